@@ -1,0 +1,1 @@
+//! Forward model (in progress).

@@ -1,0 +1,1 @@
+//! Case input and result output (in progress).

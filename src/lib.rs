@@ -1,0 +1,24 @@
+//! # edgetherm
+//!
+//! Recover the temperature of a hidden edge of a plate from thermocouples inside it, and say
+//! how sure the answer is.
+//!
+//! The crate is laid out the way the computation flows:
+//!
+//! | module | role |
+//! |---|---|
+//! | [`geometry`] | the plate, its edges and their conditions (SI units inside) |
+//! | [`forward`] | steady conduction by separation of variables: the linear map from the unknown edge coefficients to temperatures anywhere |
+//! | [`io`] | case files (`plate.toml`, `sensors.csv`, `readings.csv`, profiles) in, results out, atomically |
+//! | [`units`] | the length and temperature units of a case, converted once at the edge |
+//! | [`error`] | one error type whose messages name the file, line and field |
+//!
+//! The library never prints; the `edgetherm` binary is a thin layer over it.
+
+pub mod error;
+pub mod forward;
+pub mod geometry;
+pub mod io;
+pub mod units;
+
+pub use error::{Error, Result};
