@@ -9,6 +9,7 @@
 //! |---|---|
 //! | [`geometry`] | the plate, its edges and their conditions (SI units inside) |
 //! | [`forward`] | steady conduction by separation of variables: the linear map from the unknown edge coefficients to temperatures anywhere |
+//! | [`noise`] | the reading uncertainty: stated sigma, or thermocouple tolerance classes |
 //! | [`io`] | case files (`plate.toml`, `sensors.csv`, `readings.csv`, profiles) in, results out, atomically |
 //! | [`units`] | the length and temperature units of a case, converted once at the edge |
 //! | [`error`] | one error type whose messages name the file, line and field |
@@ -19,6 +20,7 @@ pub mod error;
 pub mod forward;
 pub mod geometry;
 pub mod io;
+pub mod noise;
 pub mod units;
 
 pub use error::{Error, Result};

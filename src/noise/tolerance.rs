@@ -1,0 +1,1 @@
+//! Thermocouple tolerance classes (in progress).
