@@ -1,1 +1,595 @@
-//! Forward model (in progress).
+//! The forward model: steady conduction in the plate by separation of variables.
+//!
+//! Laplace's equation `∇²T = 0` with constant conductivity is solved by superposition (SPEC
+//! §4): `T = B + Σ_e S_e`, where `B` is the corner base ([`base`]) and `S_e` is one series per
+//! edge that holds a temperature (fixed or unknown),
+//!
+//! `S_e(p) = Σ_n a_{e,n} φ_{e,n}(s) ψ_{e,n}(d)`,
+//!
+//! with the eigenfunctions `φ` and decays `ψ` of [`basis`]. Every other edge is homogeneous of
+//! its own kind in `S_e`: zero temperature where a temperature is held, zero flux where
+//! insulated. For a fixed edge the coefficients are the exact Fourier coefficients of its data
+//! minus `B`; for an unknown edge they are the unknowns `c` of the model, so the unknown
+//! profile is `B` along the edge (the lift, through the corner values) plus `Σ c_n φ_n`. Where
+//! two unknown edges meet, the corner temperature is one more unknown.
+//!
+//! Everything the inversion needs is linear in the unknowns: [`ForwardModel::sensor_map`]
+//! returns `A` and the known offset `o` with `T(sensors) = A c + o`.
+//!
+//! ## Truncation
+//! A mode of wavenumber `k_n` is damped by about `exp(−k_n d)` at depth `d` from its edge. For
+//! smooth edge data the coefficients fall like `1/n²` once `B` is removed, so the truncation
+//! error at depth `d` after `N` terms is of order `exp(−k_N d)/N²`; where two fixed edges
+//! disagree at a corner the coefficients fall only like `1/n` and, at the edge itself, the
+//! truncated series overshoots (Gibbs). Inside the plate the error still decays
+//! exponentially with depth: about `(L/(π d)) ln(1/tol)` terms suffice at depth `d` (METHODS
+//! §8). Known edges use [`SeriesOptions::known_terms`] terms (default 512, trailing negligible
+//! coefficients dropped), enough for 1e-6 of the temperature range at 2 % of the edge length
+//! from a jump on plates up to an aspect ratio of about 2; unknown edges use
+//! [`SeriesOptions::unknown_terms`] (default 64), which sets the finest feature the
+//! reconstruction can represent: half a wavelength of mode N, `L/N`.
+
+pub mod base;
+pub mod basis;
+
+pub use base::{Base, Corner, CornerValue};
+pub use basis::{BasisKind, Decay, EdgeBasis, Series};
+
+use crate::error::{Error, Result};
+use crate::geometry::{Edge, EdgeCondition, Plate, Point};
+use nalgebra::{DMatrix, DVector};
+use serde::Serialize;
+
+/// Series lengths.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct SeriesOptions {
+    /// Terms per unknown edge: the number of unknown coefficients each contributes.
+    pub unknown_terms: usize,
+    /// Terms per fixed edge (upper bound; negligible trailing coefficients are dropped).
+    pub known_terms: usize,
+}
+
+impl Default for SeriesOptions {
+    fn default() -> Self {
+        SeriesOptions {
+            unknown_terms: 64,
+            known_terms: 512,
+        }
+    }
+}
+
+/// One unknown of the model.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(tag = "kind", rename_all = "kebab-case")]
+pub enum Parameter {
+    /// Coefficient of mode `n` of an unknown edge's series.
+    Mode {
+        /// The edge.
+        edge: Edge,
+        /// Mode index (0-based).
+        n: usize,
+        /// Its wavenumber `k_n`, 1/m.
+        wavenumber: f64,
+    },
+    /// The temperature of a corner where two unknown edges meet, kelvin.
+    Corner {
+        /// Which corner.
+        corner: Corner,
+    },
+}
+
+/// The affine map from unknowns to temperatures at a set of points: `T = matrix · c + offset`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LinearMap {
+    /// `m × p`: one row per point, one column per [`Parameter`], kelvin per unit parameter.
+    pub matrix: DMatrix<f64>,
+    /// Temperatures at the points when every unknown is zero, kelvin.
+    pub offset: DVector<f64>,
+}
+
+/// One edge's series within the model.
+#[derive(Debug, Clone)]
+struct EdgeSeries {
+    edge: Edge,
+    series: Series,
+    /// Known edges: the Fourier coefficients of (data − B). Unknown edges: empty.
+    known: Vec<f64>,
+    /// Unknown edges: the index of the first mode's parameter.
+    first_parameter: Option<usize>,
+}
+
+/// The forward model of a plate.
+#[derive(Debug, Clone)]
+pub struct ForwardModel {
+    plate: Plate,
+    base: Base,
+    series: Vec<EdgeSeries>,
+    parameters: Vec<Parameter>,
+}
+
+/// Relative size below which trailing coefficients of a known edge are dropped.
+const NEGLIGIBLE_COEFFICIENT: f64 = 1e-15;
+
+impl ForwardModel {
+    /// Build the model of `plate` with the given series lengths.
+    pub fn new(plate: &Plate, options: SeriesOptions) -> Result<Self> {
+        if options.unknown_terms == 0 && !plate.unknown_edges().is_empty() {
+            return Err(Error::invalid_field(
+                "fit.terms",
+                "the number of series terms must be at least 1",
+            ));
+        }
+        let shape = *plate.shape();
+        let mut parameters = Vec::new();
+        for edge in plate.unknown_edges() {
+            for n in 0..options.unknown_terms {
+                parameters.push(Parameter::Mode {
+                    edge,
+                    n,
+                    wavenumber: 0.0, // filled in below, once the basis is known
+                });
+            }
+        }
+        let (base, corners) = Base::new(plate, parameters.len());
+        parameters.extend(corners.into_iter().map(|corner| Parameter::Corner { corner }));
+
+        let mut series = Vec::new();
+        let mut next_mode = 0;
+        for edge in Edge::ALL {
+            let Some(condition) = plate.condition(edge) else {
+                continue;
+            };
+            if !condition.is_dirichlet() {
+                continue;
+            }
+            let Some(length) = shape.edge_length(edge) else {
+                // the infinite side of a strip: constant, carried by the base
+                continue;
+            };
+            let (start, end) = edge.neighbours();
+            let kind = BasisKind::from_ends(plate.is_dirichlet(start), plate.is_dirichlet(end));
+            let basis = EdgeBasis { kind, length };
+            let opposite = edge.opposite();
+            let depth = match edge {
+                Edge::Bottom | Edge::Top => shape.height(),
+                Edge::Left | Edge::Right => Some(shape.width()),
+            };
+            let decay = match (depth, plate.condition(opposite)) {
+                (None, _) | (_, None) => Decay::Unbounded,
+                (Some(depth), Some(c)) if c.is_dirichlet() => Decay::Dirichlet { depth },
+                (Some(depth), Some(_)) => Decay::Insulated { depth },
+            };
+            match condition {
+                EdgeCondition::Unknown => {
+                    let s = Series::new(basis, decay, options.unknown_terms);
+                    for n in 0..options.unknown_terms {
+                        if let Parameter::Mode { wavenumber, .. } =
+                            &mut parameters[next_mode + n]
+                        {
+                            *wavenumber = s.wavenumber(n);
+                        }
+                    }
+                    series.push(EdgeSeries {
+                        edge,
+                        series: s,
+                        known: Vec::new(),
+                        first_parameter: Some(next_mode),
+                    });
+                    next_mode += options.unknown_terms;
+                }
+                EdgeCondition::Fixed(profile) => {
+                    // data minus the base along the edge, still piecewise linear
+                    let segments: Vec<_> = profile
+                        .segments(length)
+                        .into_iter()
+                        .map(|(s0, s1, g0, g1)| {
+                            let b0 = base.evaluate(shape.point_on(edge, s0), |_, _| {});
+                            let b1 = base.evaluate(shape.point_on(edge, s1), |_, _| {});
+                            (s0, s1, g0 - b0, g1 - b1)
+                        })
+                        .collect();
+                    let mut known = basis.project(&segments, options.known_terms);
+                    let scale = known.iter().fold(0.0_f64, |m, a| m.max(a.abs()));
+                    let keep = known
+                        .iter()
+                        .rposition(|a| a.abs() > NEGLIGIBLE_COEFFICIENT * scale.max(1e-300))
+                        .map_or(0, |i| i + 1);
+                    known.truncate(keep);
+                    series.push(EdgeSeries {
+                        edge,
+                        series: Series::new(basis, decay, keep),
+                        known,
+                        first_parameter: None,
+                    });
+                }
+                EdgeCondition::Insulated => unreachable!("filtered above"),
+            }
+        }
+        Ok(ForwardModel {
+            plate: plate.clone(),
+            base,
+            series,
+            parameters,
+        })
+    }
+
+    /// The plate this model describes.
+    pub fn plate(&self) -> &Plate {
+        &self.plate
+    }
+
+    /// The unknowns, in the order of the columns of [`LinearMap::matrix`].
+    pub fn parameters(&self) -> &[Parameter] {
+        &self.parameters
+    }
+
+    /// Number of unknowns.
+    pub fn parameter_count(&self) -> usize {
+        self.parameters.len()
+    }
+
+    /// The corner base.
+    pub fn base(&self) -> &Base {
+        &self.base
+    }
+
+    /// The series of `edge`, if it has one (edges that hold a temperature and are finite).
+    pub fn series_of(&self, edge: Edge) -> Option<&Series> {
+        self.series
+            .iter()
+            .find(|s| s.edge == edge)
+            .map(|s| &s.series)
+    }
+
+    fn check_parameters(&self, c: &[f64]) -> Result<()> {
+        if c.len() != self.parameters.len() {
+            return Err(Error::Internal(format!(
+                "{} coefficients given for a model with {} unknowns",
+                c.len(),
+                self.parameters.len()
+            )));
+        }
+        Ok(())
+    }
+
+    /// The local coordinates `(s, d)` of `p` for `edge`'s series.
+    fn local(&self, edge: Edge, p: Point) -> (f64, f64) {
+        let shape = self.plate.shape();
+        (shape.position_along(edge, p), shape.depth_from(edge, p))
+    }
+
+    /// Fill `row` (length [`Self::parameter_count`]) with the sensitivities of `T(p)` to each
+    /// unknown, and return the known offset at `p`. `scratch` is reused between calls.
+    fn row_into(&self, p: Point, row: &mut [f64], scratch: &mut Vec<f64>) -> f64 {
+        row.fill(0.0);
+        let mut offset = self.base.evaluate(p, |i, w| row[i] += w);
+        for es in &self.series {
+            let (s, d) = self.local(es.edge, p);
+            let n = es.series.terms();
+            scratch.resize(n, 0.0);
+            let used = es.series.modes_into(s, d, &mut scratch[..n]);
+            match es.first_parameter {
+                Some(first) => row[first..first + n].copy_from_slice(&scratch[..n]),
+                None => {
+                    offset += scratch[..used]
+                        .iter()
+                        .zip(&es.known)
+                        .map(|(m, a)| m * a)
+                        .sum::<f64>();
+                }
+            }
+        }
+        offset
+    }
+
+    /// The linear map from the unknowns to the temperatures at `points` (SPEC §4): `A` is
+    /// `points.len() × parameter_count()`.
+    pub fn sensor_map(&self, points: &[Point]) -> LinearMap {
+        let p = self.parameter_count();
+        let mut matrix = DMatrix::zeros(points.len(), p);
+        let mut offset = DVector::zeros(points.len());
+        let mut row = vec![0.0; p];
+        let mut scratch = Vec::new();
+        for (i, &pt) in points.iter().enumerate() {
+            offset[i] = self.row_into(pt, &mut row, &mut scratch);
+            for (j, &v) in row.iter().enumerate() {
+                matrix[(i, j)] = v;
+            }
+        }
+        LinearMap { matrix, offset }
+    }
+
+    /// The temperature at `p` (kelvin) for unknowns `c`.
+    pub fn temperature(&self, c: &[f64], p: Point) -> Result<f64> {
+        self.check_parameters(c)?;
+        let mut scratch = Vec::new();
+        Ok(self.temperature_unchecked(c, p, &mut scratch))
+    }
+
+    fn temperature_unchecked(&self, c: &[f64], p: Point, scratch: &mut Vec<f64>) -> f64 {
+        let mut corners = 0.0;
+        let mut t = self.base.evaluate(p, |i, w| corners += w * c[i]);
+        t += corners;
+        for es in &self.series {
+            let (s, d) = self.local(es.edge, p);
+            let n = es.series.terms();
+            scratch.resize(n, 0.0);
+            let used = es.series.modes_into(s, d, &mut scratch[..n]);
+            let coeffs: &[f64] = match es.first_parameter {
+                Some(first) => &c[first..first + n],
+                None => &es.known,
+            };
+            t += scratch[..used]
+                .iter()
+                .zip(coeffs)
+                .map(|(m, a)| m * a)
+                .sum::<f64>();
+        }
+        t
+    }
+
+    /// Temperatures on a grid: `result[(j, i)]` is `T(xs[i], ys[j])`, kelvin.
+    pub fn field_grid(&self, c: &[f64], xs: &[f64], ys: &[f64]) -> Result<DMatrix<f64>> {
+        self.check_parameters(c)?;
+        let mut out = DMatrix::zeros(ys.len(), xs.len());
+        let mut scratch = Vec::new();
+        for (j, &y) in ys.iter().enumerate() {
+            for (i, &x) in xs.iter().enumerate() {
+                out[(j, i)] = self.temperature_unchecked(c, Point::new(x, y), &mut scratch);
+            }
+        }
+        Ok(out)
+    }
+
+    /// The temperature along `edge` at `positions` (metres from the edge's lower coordinate).
+    ///
+    /// Fixed edges return their data; unknown edges the lift plus the series, exactly;
+    /// insulated edges the model's field on the edge.
+    pub fn edge_profile(&self, edge: Edge, c: &[f64], positions: &[f64]) -> Result<Vec<f64>> {
+        self.check_parameters(c)?;
+        let shape = self.plate.shape();
+        let Some(condition) = self.plate.condition(edge) else {
+            return Err(Error::invalid_field(
+                "edge",
+                format!("the plate has no {edge} edge"),
+            ));
+        };
+        let mut scratch = Vec::new();
+        Ok(positions
+            .iter()
+            .map(|&s| match condition {
+                EdgeCondition::Fixed(profile) => profile.value(s),
+                _ => self.temperature_unchecked(c, shape.point_on(edge, s), &mut scratch),
+            })
+            .collect())
+    }
+
+    /// The linear map from the unknowns to `edge`'s profile at `positions`.
+    pub fn edge_profile_map(&self, edge: Edge, positions: &[f64]) -> LinearMap {
+        let shape = self.plate.shape();
+        let points: Vec<Point> = positions.iter().map(|&s| shape.point_on(edge, s)).collect();
+        self.sensor_map(&points)
+    }
+
+    /// Derivative of the temperature along the inward normal of `edge` at position `s`,
+    /// K/m, for unknowns `c`.
+    fn inward_gradient(&self, edge: Edge, c: &[f64], s: f64) -> f64 {
+        let shape = self.plate.shape();
+        let p = shape.point_on(edge, s);
+        // base: ∇B · n_in
+        let gw = self.base.gradient_weights(p);
+        let normal = match edge {
+            Edge::Bottom => (0.0, 1.0),
+            Edge::Top => (0.0, -1.0),
+            Edge::Left => (1.0, 0.0),
+            Edge::Right => (-1.0, 0.0),
+        };
+        let mut g = 0.0;
+        for (ci, v) in self.base.values().iter().enumerate() {
+            let val = match v {
+                CornerValue::Unused => continue,
+                CornerValue::Known(t) => *t,
+                CornerValue::Parameter(i) => c[*i],
+            };
+            g += (gw[ci].0 * normal.0 + gw[ci].1 * normal.1) * val;
+        }
+        for es in &self.series {
+            let coeffs: &[f64] = match es.first_parameter {
+                Some(first) => &c[first..first + es.series.terms()],
+                None => &es.known,
+            };
+            let b = es.series.basis;
+            let decay = es.series.decay;
+            if es.edge == edge {
+                // own series: Σ a_n φ_n(s) ψ_n'(0)
+                for (n, a) in coeffs.iter().enumerate() {
+                    let k = es.series.wavenumber(n);
+                    g += a * b.value(n, s) * decay.slope(k, 0.0);
+                }
+            } else if es.edge == edge.opposite() {
+                // opposite series at its far side: the inward normal of `edge` points back
+                // toward `es.edge`, i.e. along −d.
+                let depth = match decay {
+                    Decay::Dirichlet { depth } | Decay::Insulated { depth } => depth,
+                    Decay::Unbounded => continue,
+                };
+                for (n, a) in coeffs.iter().enumerate() {
+                    let k = es.series.wavenumber(n);
+                    g -= a * b.value(n, s) * decay.slope(k, depth);
+                }
+            } else {
+                // adjacent series: the inward normal of `edge` runs along that series' s.
+                let (sn, d) = self.local(es.edge, p);
+                let sign = if sn > 0.0 { -1.0 } else { 1.0 };
+                for (n, a) in coeffs.iter().enumerate() {
+                    let k = es.series.wavenumber(n);
+                    let psi = decay.value(k, d);
+                    if psi.abs() < basis::NEGLIGIBLE_DECAY {
+                        break;
+                    }
+                    g += sign * a * b.slope(n, sn) * psi;
+                }
+            }
+        }
+        g
+    }
+
+    /// Heat-flux density into the plate through `edge` at `positions`, W/m², for unknowns
+    /// `c`: `q = k ∂T/∂n_in`. `None` when the plate has no conductivity.
+    ///
+    /// The own-edge series is differentiated term by term; for a fixed edge with a jump at a
+    /// corner this converges slowly near that corner, where the true flux is singular.
+    pub fn edge_flux(&self, edge: Edge, c: &[f64], positions: &[f64]) -> Result<Option<Vec<f64>>> {
+        self.check_parameters(c)?;
+        let Some(k) = self.plate.conductivity() else {
+            return Ok(None);
+        };
+        if self.plate.condition(edge).is_none() {
+            return Err(Error::invalid_field(
+                "edge",
+                format!("the plate has no {edge} edge"),
+            ));
+        }
+        if self.plate.is_insulated(edge) {
+            return Ok(Some(vec![0.0; positions.len()]));
+        }
+        Ok(Some(
+            positions
+                .iter()
+                .map(|&s| k * self.inward_gradient(edge, c, s))
+                .collect(),
+        ))
+    }
+
+    /// Heat flow into the plate through `edge` per unit depth, W/m, for unknowns `c`, from
+    /// the term-by-term integrals of the flux (exact per term). `None` without conductivity,
+    /// or for the infinite sides of a strip.
+    pub fn heat_flow(&self, edge: Edge, c: &[f64]) -> Result<Option<f64>> {
+        self.check_parameters(c)?;
+        let Some(kc) = self.plate.conductivity() else {
+            return Ok(None);
+        };
+        let shape = *self.plate.shape();
+        let Some(length) = shape.edge_length(edge) else {
+            return Ok(None);
+        };
+        if self.plate.is_insulated(edge) {
+            return Ok(Some(0.0));
+        }
+        // base: its normal gradient is linear along the edge, so the midpoint rule is exact
+        let mid = 0.5 * length;
+        let mut total = 0.0;
+        {
+            let p = shape.point_on(edge, mid);
+            let gw = self.base.gradient_weights(p);
+            let normal = match edge {
+                Edge::Bottom => (0.0, 1.0),
+                Edge::Top => (0.0, -1.0),
+                Edge::Left => (1.0, 0.0),
+                Edge::Right => (-1.0, 0.0),
+            };
+            for (ci, v) in self.base.values().iter().enumerate() {
+                let val = match v {
+                    CornerValue::Unused => continue,
+                    CornerValue::Known(t) => *t,
+                    CornerValue::Parameter(i) => c[*i],
+                };
+                total += (gw[ci].0 * normal.0 + gw[ci].1 * normal.1) * val * length;
+            }
+        }
+        for es in &self.series {
+            let coeffs: &[f64] = match es.first_parameter {
+                Some(first) => &c[first..first + es.series.terms()],
+                None => &es.known,
+            };
+            let b = es.series.basis;
+            let decay = es.series.decay;
+            if es.edge == edge {
+                for (n, a) in coeffs.iter().enumerate() {
+                    let k = es.series.wavenumber(n);
+                    total += a * decay.slope(k, 0.0) * b.integral(n);
+                }
+            } else if es.edge == edge.opposite() {
+                let depth = match decay {
+                    Decay::Dirichlet { depth } | Decay::Insulated { depth } => depth,
+                    Decay::Unbounded => continue,
+                };
+                for (n, a) in coeffs.iter().enumerate() {
+                    let k = es.series.wavenumber(n);
+                    total -= a * decay.slope(k, depth) * b.integral(n);
+                }
+            } else {
+                let p = shape.point_on(edge, mid);
+                let (sn, _) = self.local(es.edge, p);
+                let sign = if sn > 0.0 { -1.0 } else { 1.0 };
+                for (n, a) in coeffs.iter().enumerate() {
+                    let k = es.series.wavenumber(n);
+                    total += sign * a * b.slope(n, sn) * decay.integral(k);
+                }
+            }
+        }
+        Ok(Some(kc * total))
+    }
+
+    /// A description of the model for people (`edgetherm check`).
+    pub fn describe(&self) -> ModelDescription {
+        let edges = Edge::ALL
+            .into_iter()
+            .filter_map(|edge| {
+                let condition = self.plate.condition(edge)?;
+                let series = self.series.iter().find(|s| s.edge == edge);
+                Some(EdgeDescription {
+                    edge,
+                    condition: condition.name(),
+                    basis: series.map(|s| s.series.basis.kind.describe()),
+                    decay: series.map(|s| s.series.decay.describe()),
+                    terms: series.map_or(0, |s| s.series.terms()),
+                    unknowns: series
+                        .and_then(|s| s.first_parameter.map(|_| s.series.terms()))
+                        .unwrap_or(0),
+                })
+            })
+            .collect();
+        let corner_parameters = self
+            .parameters
+            .iter()
+            .filter_map(|p| match p {
+                Parameter::Corner { corner } => Some(corner.name()),
+                _ => None,
+            })
+            .collect();
+        ModelDescription {
+            edges,
+            corner_parameters,
+            unknowns: self.parameter_count(),
+        }
+    }
+}
+
+/// What `check` prints about the model.
+#[derive(Debug, Clone, Serialize)]
+pub struct ModelDescription {
+    /// One entry per edge of the outline.
+    pub edges: Vec<EdgeDescription>,
+    /// Corners whose temperature is an unknown (two unknown edges meet there).
+    pub corner_parameters: Vec<&'static str>,
+    /// Total number of unknowns.
+    pub unknowns: usize,
+}
+
+/// One edge of [`ModelDescription`].
+#[derive(Debug, Clone, Serialize)]
+pub struct EdgeDescription {
+    /// The edge.
+    pub edge: Edge,
+    /// Its condition (`fixed`, `insulated`, `unknown`).
+    pub condition: &'static str,
+    /// Its eigenfunctions, if it has a series.
+    pub basis: Option<&'static str>,
+    /// The decay of its modes across the plate.
+    pub decay: Option<&'static str>,
+    /// Terms in its series (after dropping negligible ones, for a fixed edge).
+    pub terms: usize,
+    /// Unknown coefficients it contributes.
+    pub unknowns: usize,
+}
