@@ -11,6 +11,7 @@
 //! | [`forward`] | steady conduction by separation of variables: the linear map from the unknown edge coefficients to temperatures anywhere |
 //! | [`noise`] | the reading uncertainty: stated sigma, or thermocouple tolerance classes |
 //! | [`io`] | case files (`plate.toml`, `sensors.csv`, `readings.csv`, profiles) in, results out, atomically |
+//! | [`simulate`] | synthetic readings from a known edge profile (demos, tests, what-if) |
 //! | [`units`] | the length and temperature units of a case, converted once at the edge |
 //! | [`error`] | one error type whose messages name the file, line and field |
 //!
@@ -21,6 +22,7 @@ pub mod forward;
 pub mod geometry;
 pub mod io;
 pub mod noise;
+pub mod simulate;
 pub mod units;
 
 pub use error::{Error, Result};

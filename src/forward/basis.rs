@@ -456,7 +456,7 @@ mod tests {
     // The decay functions against their textbook hyperbolic forms where those do not overflow.
     #[test]
     fn overflow_safe_forms_equal_hyperbolic_ratios() {
-        let (k, depth, d) = (7.0, 0.4, 0.13);
+        let (k, depth, d): (f64, f64, f64) = (7.0, 0.4, 0.13);
         let sinh_ratio = (k * (depth - d)).sinh() / (k * depth).sinh();
         let cosh_ratio = (k * (depth - d)).cosh() / (k * depth).cosh();
         assert!((Decay::Dirichlet { depth }.value(k, d) - sinh_ratio).abs() < 1e-14);
