@@ -1,1 +1,28 @@
-//! Case input and result output (in progress).
+//! Case input and result output: the only part of the library that touches files.
+//!
+//! Inputs are read in two stages (SPEC §3, STYLE "two-stage configuration"): each file is
+//! parsed as written, then checked once and converted to metres and kelvin into a typed
+//! [`Case`]. Every problem is an [`crate::Error::Invalid`] naming the file, the 1-based line
+//! and the field (a dotted TOML key or a CSV column), which the binary maps to exit status 2.
+//!
+//! | file | module |
+//! |---|---|
+//! | `plate.toml` | `plate_file` (raw serde structs, then validation) |
+//! | `sensors.csv`, `readings.csv`, profile files | `csv_files` |
+//! | the assembled case | [`case`] |
+//! | results, written atomically, never over an input | [`output`] |
+
+pub mod case;
+mod csv_files;
+pub mod output;
+mod plate_file;
+mod spans;
+
+pub use case::{
+    Case, CaseFiles, FitSettings, Sensor, Smoothing, StrengthRule, UncertaintySettings, load_case,
+    load_readings, read_truth_profiles,
+};
+pub use output::{OUTPUT_FILE_NAMES, check_output_dir, write_atomic};
+pub use plate_file::{
+    DEFAULT_CONFIDENCE, DEFAULT_REPLICATES, DEFAULT_SEED, DEFAULT_TERMS, MAX_REPLICATES, MAX_TERMS,
+};

@@ -1,0 +1,139 @@
+//! Command-line interface: the flags (clap), the dispatch to each command, and the mapping
+//! of errors to messages on stderr and exit statuses.
+//!
+//! Commands are thin: they build a [`CaseFiles`] from the flags, call the library and print.
+//! Results go to stdout (text, or JSON with `--json`); errors go to stderr as
+//! `edgetherm: <message>`.
+
+mod check;
+
+use clap::{Args, Parser, Subcommand};
+use edgetherm::io::CaseFiles;
+use edgetherm::{Error, Result};
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// Recover the temperature of a hidden plate edge from interior thermocouples, with
+/// uncertainty.
+///
+/// Lengths and temperatures are read and written in the units `plate.toml` states.
+#[derive(Debug, Parser)]
+#[command(name = "edgetherm", version, about, long_about = None)]
+struct Cli {
+    #[command(flatten)]
+    global: GlobalOptions,
+    #[command(subcommand)]
+    command: Command,
+}
+
+/// Flags that every command accepts.
+#[derive(Debug, Args)]
+pub struct GlobalOptions {
+    /// Plate file to use instead of CASE_DIR/plate.toml.
+    #[arg(long, global = true, value_name = "FILE")]
+    pub plate: Option<PathBuf>,
+    /// Sensor layout to use instead of CASE_DIR/sensors.csv.
+    #[arg(long, global = true, value_name = "FILE")]
+    pub sensors: Option<PathBuf>,
+    /// Readings to use instead of CASE_DIR/readings.csv.
+    #[arg(long, global = true, value_name = "FILE")]
+    pub readings: Option<PathBuf>,
+    /// Print the summary as JSON on stdout instead of text.
+    #[arg(long, global = true)]
+    pub json: bool,
+    /// Print no progress and no text (errors still go to stderr).
+    #[arg(long, global = true)]
+    pub quiet: bool,
+}
+
+impl GlobalOptions {
+    /// The files of the case in `dir`, with the `--plate/--sensors/--readings` overrides.
+    pub fn case_files(&self, dir: &Path) -> CaseFiles {
+        CaseFiles::in_dir(dir).with_overrides(
+            self.plate.clone(),
+            self.sensors.clone(),
+            self.readings.clone(),
+        )
+    }
+}
+
+#[derive(Debug, Subcommand)]
+enum Command {
+    /// Validate the inputs and print what the model will be, without fitting.
+    Check(check::CheckArgs),
+}
+
+/// Parse the command line, run the command and return the process exit status.
+pub fn run() -> i32 {
+    let cli = match Cli::try_parse() {
+        Ok(cli) => cli,
+        Err(e) => {
+            // clap prints help and version to stdout (status 0) and usage errors to stderr
+            // (status 2, as for any invalid input).
+            let _ = e.print();
+            return e.exit_code();
+        }
+    };
+    let result = match &cli.command {
+        Command::Check(args) => check::run(args, &cli.global),
+    };
+    match result {
+        Ok(code) => code,
+        Err(e) => {
+            let _ = writeln!(std::io::stderr(), "edgetherm: {e}");
+            e.exit_code()
+        }
+    }
+}
+
+/// Write `text` to stdout. A closed pipe (`edgetherm check . | head`) is not an error.
+pub fn print_stdout(text: &str) -> Result<()> {
+    let mut out = std::io::stdout().lock();
+    match out.write_all(text.as_bytes()).and_then(|()| out.flush()) {
+        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => Err(Error::Io {
+            path: PathBuf::from("<stdout>"),
+            source: e,
+            input: false,
+        }),
+        _ => Ok(()),
+    }
+}
+
+/// A number for people: six significant digits at most, no trailing zeros.
+pub fn num(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{}", if v == 0.0 { 0.0 } else { v });
+    }
+    let mag = v.abs().log10().floor() as i32;
+    if !(-4..15).contains(&mag) {
+        let s = format!("{v:.5e}");
+        let (m, e) = s.split_once('e').unwrap_or((s.as_str(), "0"));
+        let m = m.trim_end_matches('0').trim_end_matches('.');
+        return format!("{m}e{e}");
+    }
+    let decimals = (5 - mag).max(0) as usize;
+    let s = format!("{v:.decimals$}");
+    let s = if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    };
+    if s == "-0" { "0".into() } else { s }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::num;
+
+    #[test]
+    fn numbers_for_people() {
+        assert_eq!(num(150.00000000000003), "150");
+        assert_eq!(num(0.053333333), "0.0533333");
+        assert_eq!(num(-273.15), "-273.15");
+        assert_eq!(num(0.0), "0");
+        assert_eq!(num(25.0), "25");
+        assert_eq!(num(1234567.0), "1234567");
+        assert_eq!(num(1.5e20), "1.5e20");
+        assert_eq!(num(2e-7), "2e-7");
+    }
+}

@@ -1,0 +1,832 @@
+//! The CSV inputs: `sensors.csv`, `readings.csv`, fixed-edge profiles and truth profiles.
+//!
+//! Each file is read whole, checked to be UTF-8 text, split into a header and rows (with the
+//! 1-based line of each row kept for messages), and then checked column by column. Values
+//! are converted to metres and kelvin here, once. Every problem is an
+//! [`Error::Invalid`] naming the file, the line and the column.
+
+use crate::error::{Error, Result};
+use crate::geometry::{Edge, EdgeProfile, Point, Shape};
+use crate::io::case::{Case, Sensor};
+use crate::units::Units;
+use std::collections::HashMap;
+use std::path::{Path, PathBuf};
+
+/// Profile positions within this fraction of the edge length of an end count as that end
+/// (a CSV written with a few decimals, say); they are moved onto the end exactly.
+pub(crate) const PROFILE_SPAN_TOLERANCE: f64 = 1e-6;
+
+/// The columns a CSV file may have.
+pub(crate) struct Columns<'a> {
+    /// Columns every file must have.
+    pub required: &'a [&'a str],
+    /// Columns a file may have.
+    pub optional: &'a [&'a str],
+}
+
+impl Columns<'_> {
+    fn describe(&self) -> String {
+        let mut s = format!("`{}`", self.required.join(","));
+        if !self.optional.is_empty() {
+            s.push_str(&format!(
+                " (optional columns: {})",
+                self.optional.join(", ")
+            ));
+        }
+        s
+    }
+}
+
+/// One data row: its 1-based line and its trimmed cells, one per header column.
+pub(crate) struct CsvRow {
+    pub line: usize,
+    pub cells: Vec<String>,
+}
+
+/// A CSV file read into a header and rows.
+pub(crate) struct CsvTable {
+    pub path: PathBuf,
+    /// Lower-case column names, in file order.
+    pub columns: Vec<String>,
+    pub rows: Vec<CsvRow>,
+}
+
+/// Read a whole input file; a missing or unreadable file is an input error (exit status 2).
+pub(crate) fn read_input(path: &Path) -> Result<Vec<u8>> {
+    std::fs::read(path).map_err(|source| Error::Io {
+        path: path.to_path_buf(),
+        source,
+        input: true,
+    })
+}
+
+/// Check that `bytes` are UTF-8 text; the error names the line of the first bad byte.
+pub(crate) fn utf8_text<'a>(path: &Path, bytes: &'a [u8], expect: &str) -> Result<&'a str> {
+    match std::str::from_utf8(bytes) {
+        Ok(s) => Ok(s.strip_prefix('\u{feff}').unwrap_or(s)),
+        Err(e) => {
+            let line = bytes[..e.valid_up_to()]
+                .iter()
+                .filter(|&&b| b == b'\n')
+                .count()
+                + 1;
+            Err(Error::invalid_at(
+                path,
+                Some(line),
+                None,
+                format!(
+                    "this is not UTF-8 text (binary data or another encoding); expected {expect} \
+                     saved as UTF-8"
+                ),
+            ))
+        }
+    }
+}
+
+impl CsvTable {
+    /// Read and split a CSV file, checking its header against `columns`.
+    pub(crate) fn read(path: &Path, columns: &Columns<'_>) -> Result<CsvTable> {
+        let bytes = read_input(path)?;
+        let what = format!("a CSV file with the header {}", columns.describe());
+        let text = utf8_text(path, &bytes, &what)?;
+        let err = |line: Option<usize>, field: Option<&str>, msg: String| {
+            Error::invalid_at(path, line, field, msg)
+        };
+        if text.trim().is_empty() {
+            return Err(err(
+                None,
+                None,
+                format!(
+                    "the file is empty; it must start with the header {}",
+                    columns.describe()
+                ),
+            ));
+        }
+        let mut reader = csv::ReaderBuilder::new()
+            .has_headers(false)
+            .flexible(true)
+            .trim(csv::Trim::All)
+            .comment(Some(b'#'))
+            .from_reader(text.as_bytes());
+        let mut header: Option<(usize, Vec<String>)> = None;
+        let mut rows = Vec::new();
+        for record in reader.records() {
+            let record = record.map_err(|e| {
+                let line = e.position().map(|p| record_line(text, p.byte() as usize));
+                err(line, None, format!("cannot read this CSV line: {e}"))
+            })?;
+            let line = record
+                .position()
+                .map_or(0, |p| record_line(text, p.byte() as usize));
+            let cells: Vec<String> = record.iter().map(|c| c.trim().to_string()).collect();
+            if cells.iter().all(String::is_empty) {
+                continue;
+            }
+            if header.is_none() {
+                header = Some((line, cells.iter().map(|c| c.to_lowercase()).collect()));
+            } else {
+                rows.push(CsvRow { line, cells });
+            }
+        }
+        let Some((header_line, names)) = header else {
+            return Err(err(
+                None,
+                None,
+                format!(
+                    "the file has no header line; it must start with {}",
+                    columns.describe()
+                ),
+            ));
+        };
+        check_header(path, header_line, &names, columns)?;
+        for row in &rows {
+            if row.cells.len() != names.len() {
+                return Err(err(
+                    Some(row.line),
+                    None,
+                    format!(
+                        "this row has {} cells but the header names {} columns ({}); give one \
+                         value per column",
+                        row.cells.len(),
+                        names.len(),
+                        names.join(",")
+                    ),
+                ));
+            }
+        }
+        Ok(CsvTable {
+            path: path.to_path_buf(),
+            columns: names,
+            rows,
+        })
+    }
+
+    /// Index of a column, if the file has it.
+    pub(crate) fn col(&self, name: &str) -> Option<usize> {
+        self.columns.iter().position(|c| c == name)
+    }
+
+    /// An invalid-input error at a row and column of this file.
+    pub(crate) fn error(&self, line: usize, field: &str, message: impl Into<String>) -> Error {
+        Error::invalid_at(&self.path, Some(line), Some(field), message)
+    }
+
+    /// The text of a required column (present: the header was checked).
+    pub(crate) fn text<'r>(&self, row: &'r CsvRow, name: &str) -> &'r str {
+        self.col(name).map_or("", |i| row.cells[i].as_str())
+    }
+
+    /// A required number: present, parseable and finite.
+    pub(crate) fn number(&self, row: &CsvRow, name: &str) -> Result<f64> {
+        let cell = self.text(row, name);
+        parse_finite(cell).map_err(|m| self.error(row.line, name, m))
+    }
+
+    /// An optional number: `None` when the column is absent or the cell empty.
+    pub(crate) fn opt_number(&self, row: &CsvRow, name: &str) -> Result<Option<f64>> {
+        match self.col(name) {
+            None => Ok(None),
+            Some(i) if row.cells[i].is_empty() => Ok(None),
+            Some(i) => parse_finite(&row.cells[i])
+                .map(Some)
+                .map_err(|m| self.error(row.line, name, m)),
+        }
+    }
+}
+
+/// The 1-based line where the record that the csv reader places at byte `offset` starts.
+///
+/// The reader reports the position where it began looking for the record, which lies before
+/// any blank or comment lines it then skipped; skip them here too.
+fn record_line(text: &str, offset: usize) -> usize {
+    let mut off = offset.min(text.len());
+    while let Some(rest) = text.get(off..).filter(|r| !r.is_empty()) {
+        let len = rest.find('\n').map_or(rest.len(), |i| i + 1);
+        let line = rest[..len].trim_end_matches(['\n', '\r']);
+        if line.is_empty() || line.starts_with('#') {
+            off += len;
+        } else {
+            break;
+        }
+    }
+    text.as_bytes()[..off]
+        .iter()
+        .filter(|&&b| b == b'\n')
+        .count()
+        + 1
+}
+
+fn check_header(path: &Path, line: usize, names: &[String], columns: &Columns<'_>) -> Result<()> {
+    let err = |field: Option<&str>, msg: String| Error::invalid_at(path, Some(line), field, msg);
+    let known = |n: &str| columns.required.contains(&n) || columns.optional.contains(&n);
+    if !columns
+        .required
+        .iter()
+        .any(|r| names.iter().any(|n| n == r))
+    {
+        let found = names.join(",");
+        let hint = if names.len() == 1 && found.contains(';') {
+            "; the columns must be separated by commas, not semicolons"
+        } else {
+            ""
+        };
+        return Err(err(
+            None,
+            format!(
+                "the first line must be the header {}; found `{found}`{hint}",
+                columns.describe()
+            ),
+        ));
+    }
+    for (i, n) in names.iter().enumerate() {
+        if n.is_empty() {
+            return Err(err(
+                None,
+                format!(
+                    "column {} of the header has no name; expected {}",
+                    i + 1,
+                    columns.describe()
+                ),
+            ));
+        }
+        if names[..i].contains(n) {
+            return Err(err(
+                Some(n),
+                format!("the column `{n}` appears twice in the header"),
+            ));
+        }
+        if !known(n) {
+            return Err(err(
+                Some(n),
+                format!(
+                    "unknown column `{n}`; the header must be {}; check the spelling",
+                    columns.describe()
+                ),
+            ));
+        }
+    }
+    for r in columns.required {
+        if !names.iter().any(|n| n == r) {
+            return Err(err(
+                Some(r),
+                format!(
+                    "missing column `{r}`; the header must be {}",
+                    columns.describe()
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// Parse a finite number; the error says what was found.
+pub(crate) fn parse_finite(cell: &str) -> std::result::Result<f64, String> {
+    if cell.is_empty() {
+        return Err("empty cell where a number is required".into());
+    }
+    match cell.parse::<f64>() {
+        Ok(v) if v.is_finite() => Ok(v),
+        Ok(_) => Err(format!(
+            "`{cell}` is not a finite number (NaN, infinite or too large); give a finite value"
+        )),
+        Err(_) => Err(format!("`{cell}` is not a number")),
+    }
+}
+
+/// A value converted back to the case unit, without the round-off of the conversion
+/// (`150`, not `149.99999999999997`).
+fn tidy(v: f64) -> String {
+    format!("{v:.9e}").parse::<f64>().unwrap_or(v).to_string()
+}
+
+/// An absolute temperature in the case unit, checked against absolute zero, in kelvin.
+pub(crate) fn absolute_temperature(units: &Units, t: f64) -> std::result::Result<f64, String> {
+    let k = units.temp_to_k(t);
+    if k < 0.0 {
+        let zero = tidy(units.temp_from_k(0.0));
+        let u = units.temperature;
+        return Err(format!(
+            "{t} {u} is below absolute zero ({zero} {u}); check the value and temperature_unit"
+        ));
+    }
+    Ok(k)
+}
+
+/// Read `sensors.csv`: `sensor,x,y` with optional `sigma` and `position_sigma`.
+pub(crate) fn read_sensors(path: &Path, units: &Units, shape: &Shape) -> Result<Vec<Sensor>> {
+    let table = CsvTable::read(
+        path,
+        &Columns {
+            required: &["sensor", "x", "y"],
+            optional: &["sigma", "position_sigma"],
+        },
+    )?;
+    if table.rows.is_empty() {
+        return Err(Error::invalid_at(
+            path,
+            None,
+            None,
+            "the file lists no sensors; add one row `id,x,y` per thermocouple",
+        ));
+    }
+    let l = units.length;
+    let mut seen: HashMap<String, usize> = HashMap::new();
+    let mut sensors = Vec::with_capacity(table.rows.len());
+    for row in &table.rows {
+        let id = table.text(row, "sensor").to_string();
+        if id.is_empty() {
+            return Err(table.error(
+                row.line,
+                "sensor",
+                "the sensor id is empty; give every sensor a name",
+            ));
+        }
+        if let Some(first) = seen.insert(id.clone(), row.line) {
+            return Err(table.error(
+                row.line,
+                "sensor",
+                format!(
+                    "the sensor id `{id}` is used twice (lines {first} and {}); ids must be unique",
+                    row.line
+                ),
+            ));
+        }
+        let x = table.number(row, "x")?;
+        let y = table.number(row, "y")?;
+        let position = Point::new(units.length_to_m(x), units.length_to_m(y));
+        if !shape.contains_strictly(position) {
+            let w = tidy(units.length_from_m(shape.width()));
+            let extent = match shape.height() {
+                Some(h) => format!(
+                    "0 < x < {w} {l} and 0 < y < {} {l}",
+                    tidy(units.length_from_m(h))
+                ),
+                None => format!("0 < x < {w} {l} and y > 0"),
+            };
+            let x_bad = !(position.x > 0.0 && position.x < shape.width());
+            let on_edge = if x_bad {
+                (position.x == 0.0)
+                    .then_some(Edge::Left)
+                    .or((position.x == shape.width()).then_some(Edge::Right))
+            } else {
+                (position.y == 0.0)
+                    .then_some(Edge::Bottom)
+                    .or((shape.height() == Some(position.y)).then_some(Edge::Top))
+            };
+            let where_ = match on_edge {
+                Some(edge) => format!("exactly on an edge (the {edge} edge)"),
+                None => "outside the plate".to_string(),
+            };
+            return Err(table.error(
+                row.line,
+                if x_bad { "x" } else { "y" },
+                format!(
+                    "sensor `{id}` at ({x}, {y}) {l} is {where_}; a sensor must lie strictly \
+                     inside the plate ({extent})"
+                ),
+            ));
+        }
+        let sigma_k = match table.opt_number(row, "sigma")? {
+            Some(s) if s <= 0.0 => {
+                return Err(table.error(
+                    row.line,
+                    "sigma",
+                    format!("the standard uncertainty must be positive, not {s}; leave the cell empty to use [noise]"),
+                ));
+            }
+            s => s.map(|s| units.dtemp_to_k(s)),
+        };
+        let position_sigma_m = match table.opt_number(row, "position_sigma")? {
+            Some(s) if s < 0.0 => {
+                return Err(table.error(
+                    row.line,
+                    "position_sigma",
+                    format!("the position uncertainty cannot be negative ({s})"),
+                ));
+            }
+            s => s.map(|s| units.length_to_m(s)),
+        };
+        sensors.push(Sensor {
+            id,
+            position,
+            sigma_k,
+            position_sigma_m,
+            line: row.line,
+        });
+    }
+    Ok(sensors)
+}
+
+/// Read `readings.csv` (`sensor,temperature`, one reading per row) into kelvin, aligned with
+/// `case.sensors`; a sensor with no row gets `None`.
+pub(crate) fn read_readings(path: &Path, case: &Case) -> Result<Vec<Option<f64>>> {
+    let table = CsvTable::read(
+        path,
+        &Columns {
+            required: &["sensor", "temperature"],
+            optional: &[],
+        },
+    )?;
+    if table.rows.is_empty() {
+        return Err(Error::invalid_at(
+            path,
+            None,
+            None,
+            "the file holds no readings; add one row `sensor,temperature` per reading",
+        ));
+    }
+    let index: HashMap<&str, usize> = case
+        .sensors
+        .iter()
+        .enumerate()
+        .map(|(i, s)| (s.id.as_str(), i))
+        .collect();
+    let mut values: Vec<Option<f64>> = vec![None; case.sensors.len()];
+    let mut lines: Vec<usize> = vec![0; case.sensors.len()];
+    for row in &table.rows {
+        let id = table.text(row, "sensor");
+        let Some(&i) = index.get(id) else {
+            return Err(table.error(
+                row.line,
+                "sensor",
+                format!(
+                    "a reading for `{id}`, which is not in {}; check the id or add the sensor",
+                    case.files.sensors.display()
+                ),
+            ));
+        };
+        if values[i].is_some() {
+            return Err(table.error(
+                row.line,
+                "sensor",
+                format!(
+                    "a second reading for `{id}` (the first is on line {}); give one reading per \
+                     sensor",
+                    lines[i]
+                ),
+            ));
+        }
+        let t = table
+            .number(row, "temperature")
+            .map_err(|e| add_hint(e, "; leave the sensor's row out if it has no reading"))?;
+        let k = absolute_temperature(&case.units, t)
+            .map_err(|m| table.error(row.line, "temperature", m))?;
+        values[i] = Some(k);
+        lines[i] = row.line;
+    }
+    Ok(values)
+}
+
+fn add_hint(e: Error, hint: &str) -> Error {
+    match e {
+        Error::Invalid { location, message } => Error::Invalid {
+            location,
+            message: format!("{message}{hint}"),
+        },
+        other => other,
+    }
+}
+
+/// Rows of a profile for one edge: `(line, position, temperature)` in case units.
+type ProfileRows = Vec<(usize, f64, f64)>;
+
+/// Read one fixed-edge profile file (`position,temperature`) for `edge`. `length` is the
+/// edge's length in the case unit (`None` for a side of a strip, whose checks the plate
+/// makes).
+pub(crate) fn read_edge_profile(
+    path: &Path,
+    units: &Units,
+    edge: Edge,
+    length: Option<f64>,
+) -> Result<EdgeProfile> {
+    let table = CsvTable::read(
+        path,
+        &Columns {
+            required: &["position", "temperature"],
+            optional: &[],
+        },
+    )?;
+    let mut rows = ProfileRows::new();
+    for row in &table.rows {
+        let s = table.number(row, "position")?;
+        let t = table.number(row, "temperature")?;
+        rows.push((row.line, s, t));
+    }
+    build_profile(&table, units, edge, length, rows)
+}
+
+/// Read truth profiles (`edge,position,temperature`; the `edge` column may be left out when
+/// exactly one edge is unknown), one per unknown edge of the case.
+pub(crate) fn read_truth_profiles(path: &Path, case: &Case) -> Result<Vec<(Edge, EdgeProfile)>> {
+    let table = CsvTable::read(
+        path,
+        &Columns {
+            required: &["position", "temperature"],
+            optional: &["edge"],
+        },
+    )?;
+    let unknown = case.plate.unknown_edges();
+    let names: Vec<&str> = unknown.iter().map(|e| e.name()).collect();
+    let has_edge_col = table.col("edge").is_some();
+    if !has_edge_col && unknown.len() != 1 {
+        return Err(Error::invalid_at(
+            path,
+            Some(1),
+            Some("edge"),
+            format!(
+                "the case has {} unknown edges ({}), so every row needs an `edge` column saying \
+                 which edge it belongs to",
+                unknown.len(),
+                names.join(", ")
+            ),
+        ));
+    }
+    let mut per_edge: Vec<(Edge, ProfileRows)> = unknown.iter().map(|&e| (e, Vec::new())).collect();
+    for row in &table.rows {
+        let edge = if has_edge_col {
+            let name = table.text(row, "edge");
+            let edge = Edge::parse(name).ok_or_else(|| {
+                table.error(
+                    row.line,
+                    "edge",
+                    format!("`{name}` is not an edge; use bottom, right, top or left"),
+                )
+            })?;
+            if !unknown.contains(&edge) {
+                return Err(table.error(
+                    row.line,
+                    "edge",
+                    format!(
+                        "the {edge} edge is not unknown in the case; truth profiles are given for \
+                         the unknown edges only ({})",
+                        names.join(", ")
+                    ),
+                ));
+            }
+            edge
+        } else {
+            unknown[0]
+        };
+        let s = table.number(row, "position")?;
+        let t = table.number(row, "temperature")?;
+        if let Some((_, rows)) = per_edge.iter_mut().find(|(e, _)| *e == edge) {
+            rows.push((row.line, s, t));
+        }
+    }
+    let shape = case.plate.shape();
+    let mut out = Vec::with_capacity(per_edge.len());
+    for (edge, rows) in per_edge {
+        if rows.is_empty() {
+            return Err(Error::invalid_at(
+                path,
+                None,
+                Some("edge"),
+                format!("no rows for the unknown {edge} edge; give its profile too"),
+            ));
+        }
+        let length = shape.edge_length(edge).map(|m| case.units.length_from_m(m));
+        out.push((
+            edge,
+            build_profile(&table, &case.units, edge, length, rows)?,
+        ));
+    }
+    Ok(out)
+}
+
+/// Check and convert one edge's profile rows: positions strictly increasing and spanning
+/// the edge (ends moved onto the edge within [`PROFILE_SPAN_TOLERANCE`]), temperatures not
+/// below absolute zero.
+fn build_profile(
+    table: &CsvTable,
+    units: &Units,
+    edge: Edge,
+    length: Option<f64>,
+    mut rows: ProfileRows,
+) -> Result<EdgeProfile> {
+    let l = units.length;
+    if rows.len() < 2 {
+        return Err(Error::invalid_at(
+            &table.path,
+            rows.first().map(|r| r.0),
+            Some("position"),
+            format!(
+                "the {edge} edge's profile needs at least two rows, at both ends of the edge; for \
+                 a constant temperature write `temperature = ...` in plate.toml"
+            ),
+        ));
+    }
+    for w in rows.windows(2) {
+        if w[1].1 <= w[0].1 {
+            return Err(table.error(
+                w[1].0,
+                "position",
+                format!(
+                    "positions along the {edge} edge must increase from row to row: {} {l} follows \
+                     {} {l} (line {})",
+                    w[1].1, w[0].1, w[0].0
+                ),
+            ));
+        }
+    }
+    let mut temps = Vec::with_capacity(rows.len());
+    for &(line, _, t) in &rows {
+        temps
+            .push(absolute_temperature(units, t).map_err(|m| table.error(line, "temperature", m))?);
+    }
+    if let Some(len) = length {
+        let tol = PROFILE_SPAN_TOLERANCE * len;
+        let n = rows.len();
+        let (first_line, first, _) = rows[0];
+        let (last_line, last, _) = rows[n - 1];
+        let span_msg = |what: &str| {
+            format!(
+                "the {edge} edge's profile {what}: it covers {first} to {last} {l} but the edge \
+                 runs from 0 to {} {l}; give rows at both ends of the edge (positions are \
+                 measured along the edge, in {l})",
+                tidy(len)
+            )
+        };
+        if first.abs() <= tol {
+            rows[0].1 = 0.0;
+        } else if first > 0.0 {
+            return Err(table.error(first_line, "position", span_msg("does not span the edge")));
+        } else {
+            return Err(table.error(first_line, "position", span_msg("runs past the edge")));
+        }
+        if (last - len).abs() <= tol {
+            rows[n - 1].1 = len;
+        } else if last < len {
+            return Err(table.error(last_line, "position", span_msg("does not span the edge")));
+        } else {
+            return Err(table.error(last_line, "position", span_msg("runs past the edge")));
+        }
+    }
+    let positions = rows.iter().map(|r| units.length_to_m(r.1)).collect();
+    EdgeProfile::piecewise_linear(positions, temps)
+        .map_err(|m| Error::invalid_at(&table.path, None, Some("position"), m))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::units::{LengthUnit, TemperatureUnit};
+    use std::io::Write;
+
+    fn file(dir: &tempfile::TempDir, name: &str, text: &str) -> PathBuf {
+        let p = dir.path().join(name);
+        std::fs::File::create(&p)
+            .unwrap()
+            .write_all(text.as_bytes())
+            .unwrap();
+        p
+    }
+
+    fn mm_c() -> Units {
+        Units {
+            length: LengthUnit::Millimetre,
+            temperature: TemperatureUnit::Celsius,
+        }
+    }
+
+    fn rect() -> Shape {
+        Shape::Rectangle {
+            width_m: 0.15,
+            height_m: 0.06,
+        }
+    }
+
+    fn location(e: &Error) -> (Option<usize>, Option<String>, String) {
+        match e {
+            Error::Invalid { location, message } => {
+                (location.line, location.field.clone(), message.clone())
+            }
+            other => panic!("expected an invalid-input error, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn reads_sensors_with_lines_and_units() {
+        let d = tempfile::tempdir().unwrap();
+        let p = file(
+            &d,
+            "s.csv",
+            "# layout\nsensor, X ,y,sigma\nTC01,20,8,0.5\n\n\r\n\"TC02\",130.5,30,\n",
+        );
+        let s = read_sensors(&p, &mm_c(), &rect()).unwrap();
+        assert_eq!(s.len(), 2);
+        assert_eq!(s[0].id, "TC01");
+        assert!((s[0].position.x - 0.020).abs() < 1e-15);
+        assert_eq!(s[0].sigma_k, Some(0.5));
+        assert_eq!(s[1].sigma_k, None);
+        assert_eq!(s[0].line, 3);
+        assert_eq!(s[1].line, 6);
+    }
+
+    #[test]
+    fn sensor_errors_name_line_and_column() {
+        let d = tempfile::tempdir().unwrap();
+        let cases = [
+            ("sensor,x,y\nA,1,2\nA,3,4\n", 3, "sensor", "used twice"),
+            ("sensor,x,y\nA,150,2\n", 2, "x", "exactly on an edge"),
+            ("sensor,x,y\nA,10,-2\n", 2, "y", "outside the plate"),
+            ("sensor,x,y\nA,10,NaN\n", 2, "y", "not a finite number"),
+            ("sensor,x,y\nA,10,\n", 2, "y", "empty cell"),
+            ("sensor,x,y\nA,10,1e999\n", 2, "y", "not a finite number"),
+            ("sensor,x,y\nA,10\n", 2, "", "2 cells"),
+            ("sensor,x,z\nA,10,3\n", 1, "z", "unknown column"),
+            ("sensor,x\nA,10\n", 1, "y", "missing column `y`"),
+            ("sensor,x,y,sigma\nA,10,3,0\n", 2, "sigma", "positive"),
+        ];
+        for (text, line, field, gist) in cases {
+            let p = file(&d, "s.csv", text);
+            let e = read_sensors(&p, &mm_c(), &rect()).unwrap_err();
+            let (l, f, m) = location(&e);
+            assert_eq!(l, Some(line), "{text}: {e}");
+            assert_eq!(f.unwrap_or_default(), field, "{text}: {e}");
+            assert!(m.contains(gist), "{text}: {e}");
+        }
+    }
+
+    #[test]
+    fn profile_must_span_its_edge() {
+        let d = tempfile::tempdir().unwrap();
+        let u = mm_c();
+        let ok = file(
+            &d,
+            "p.csv",
+            "position,temperature\n0,20\n75,30\n150.0000001,25\n",
+        );
+        let p = read_edge_profile(&ok, &u, Edge::Top, Some(150.0)).unwrap();
+        assert_eq!(p.positions().len(), 3);
+        // the end within rounding is moved onto the edge's end exactly
+        assert_eq!(*p.positions().last().unwrap(), u.length_to_m(150.0));
+        assert!((p.temperatures()[0] - 293.15).abs() < 1e-12);
+        let short = file(&d, "q.csv", "position,temperature\n0,20\n140,30\n");
+        let e = read_edge_profile(&short, &u, Edge::Top, Some(150.0)).unwrap_err();
+        let (l, f, m) = location(&e);
+        assert_eq!((l, f.as_deref()), (Some(3), Some("position")));
+        assert!(m.contains("does not span"), "{m}");
+        let cold = file(&d, "r.csv", "position,temperature\n0,20\n150,-300\n");
+        let e = read_edge_profile(&cold, &u, Edge::Top, Some(150.0)).unwrap_err();
+        assert!(e.to_string().contains("below absolute zero"), "{e}");
+        let back = file(
+            &d,
+            "b.csv",
+            "position,temperature\n0,20\n100,3\n50,2\n150,3\n",
+        );
+        let e = read_edge_profile(&back, &u, Edge::Top, Some(150.0)).unwrap_err();
+        assert_eq!(location(&e).0, Some(4));
+    }
+
+    #[test]
+    fn binary_and_empty_files_are_invalid_not_panics() {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path().join("bin.csv");
+        std::fs::write(&p, [0u8, 159, 146, 150, 10, 255, 254, 0]).unwrap();
+        let e = read_sensors(&p, &mm_c(), &rect()).unwrap_err();
+        assert_eq!(e.exit_code(), 2);
+        let p = file(&d, "empty.csv", "");
+        let e = read_sensors(&p, &mm_c(), &rect()).unwrap_err();
+        assert!(e.to_string().contains("empty"), "{e}");
+        let p = file(&d, "head.csv", "sensor,x,y\n");
+        let e = read_sensors(&p, &mm_c(), &rect()).unwrap_err();
+        assert!(e.to_string().contains("no sensors"), "{e}");
+        let e = read_sensors(&d.path().join("missing.csv"), &mm_c(), &rect()).unwrap_err();
+        assert!(matches!(e, Error::Io { input: true, .. }));
+        assert_eq!(e.exit_code(), 2);
+    }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(300))]
+        /// Any text, CSV-like or not, is read or refused with an input error; never a panic.
+        #[test]
+        fn any_sensors_text_never_panics(text in "[a-zA-Z0-9,.#;\\-+eE\"\r\n ]{0,160}") {
+            let d = tempfile::tempdir().unwrap();
+            let p = file(&d, "s.csv", &format!("sensor,x,y\n{text}"));
+            if let Err(e) = read_sensors(&p, &mm_c(), &rect()) {
+                proptest::prop_assert_eq!(e.exit_code(), 2, "{}", e);
+            }
+        }
+
+        #[test]
+        fn any_bytes_never_panic(bytes in proptest::collection::vec(proptest::prelude::any::<u8>(), 0..200)) {
+            let d = tempfile::tempdir().unwrap();
+            let p = d.path().join("s.csv");
+            std::fs::write(&p, &bytes).unwrap();
+            if let Err(e) = read_sensors(&p, &mm_c(), &rect()) {
+                proptest::prop_assert_eq!(e.exit_code(), 2, "{}", e);
+            }
+        }
+    }
+
+    #[test]
+    fn number_parsing() {
+        assert_eq!(parse_finite("1e3"), Ok(1000.0));
+        assert!(parse_finite("inf").is_err());
+        assert!(parse_finite("nan").is_err());
+        assert!(parse_finite("").is_err());
+        assert!(parse_finite("1,5").is_err());
+        assert!(absolute_temperature(&mm_c(), -273.16).is_err());
+        assert!(absolute_temperature(&mm_c(), -273.15).is_ok());
+    }
+}

@@ -1,0 +1,787 @@
+//! `plate.toml`: parsed into a raw struct as written, then validated into typed settings.
+//!
+//! Stage one is serde with `deny_unknown_fields` everywhere, so a misspelt key is an error
+//! naming the key and its line. Stage two checks every value, converts to metres and kelvin
+//! and builds the [`Plate`]; its errors carry the file and the line of the key at fault,
+//! found through [`TomlSpans`].
+
+use crate::error::{Error, Result};
+use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Shape};
+use crate::io::case::{FitSettings, Smoothing, StrengthRule, UncertaintySettings};
+use crate::io::csv_files::{self, absolute_temperature};
+use crate::io::spans::{TomlSpans, guess_field_on_line, header_name};
+use crate::noise::{NoiseSpec, ThermocoupleType, ToleranceClass};
+use crate::units::{LengthUnit, TemperatureUnit, Units};
+use serde::Deserialize;
+use std::fmt;
+use std::path::{Path, PathBuf};
+
+/// Default number of series terms per unknown edge (SPEC §3.1).
+pub const DEFAULT_TERMS: usize = 64;
+/// Largest number of series terms accepted: beyond this the series only adds round-off.
+pub const MAX_TERMS: usize = 4096;
+/// Default bootstrap replicates (SPEC §3.1).
+pub const DEFAULT_REPLICATES: usize = 2000;
+/// Largest number of bootstrap replicates accepted.
+pub const MAX_REPLICATES: usize = 1_000_000;
+/// Default confidence level (SPEC §3.1).
+pub const DEFAULT_CONFIDENCE: f64 = 0.95;
+/// Default random seed (SPEC §3.1).
+pub const DEFAULT_SEED: u64 = 7;
+
+// ---- stage one: the file as written -------------------------------------------------------
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawFile {
+    plate: RawPlate,
+    #[serde(default)]
+    edges: RawEdges,
+    #[serde(default)]
+    fit: RawFit,
+    #[serde(default)]
+    noise: RawNoise,
+    #[serde(default)]
+    uncertainty: RawUncertainty,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawPlate {
+    width: f64,
+    height: NumberOrWord,
+    length_unit: LengthUnit,
+    temperature_unit: TemperatureUnit,
+    conductivity: Option<f64>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawEdges {
+    bottom: Option<RawEdge>,
+    right: Option<RawEdge>,
+    top: Option<RawEdge>,
+    left: Option<RawEdge>,
+}
+
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawEdge {
+    condition: String,
+    temperature: Option<f64>,
+    profile: Option<String>,
+    // Keys of the planned convective condition, accepted here only to answer them with a
+    // clear "not supported in this version" rather than "unknown key".
+    h: Option<toml::Value>,
+    ambient: Option<toml::Value>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawFit {
+    terms: Option<i64>,
+    smoothing: Option<Smoothing>,
+    strength: Option<NumberOrWord>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawNoise {
+    sigma: Option<f64>,
+    tolerance_class: Option<String>,
+    #[serde(rename = "type")]
+    tc_type: Option<String>,
+}
+
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawUncertainty {
+    replicates: Option<i64>,
+    confidence: Option<f64>,
+    seed: Option<i64>,
+    position_sigma: Option<f64>,
+}
+
+/// A value that may be a number or a word (`height = "infinite"`, `strength = "gcv"`).
+#[derive(Debug, Clone, PartialEq)]
+enum NumberOrWord {
+    Number(f64),
+    Word(String),
+}
+
+impl<'de> Deserialize<'de> for NumberOrWord {
+    fn deserialize<D: serde::Deserializer<'de>>(d: D) -> std::result::Result<Self, D::Error> {
+        struct V;
+        impl serde::de::Visitor<'_> for V {
+            type Value = NumberOrWord;
+            fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+                f.write_str("a number or a word in quotes")
+            }
+            fn visit_f64<E>(self, v: f64) -> std::result::Result<NumberOrWord, E> {
+                Ok(NumberOrWord::Number(v))
+            }
+            fn visit_i64<E>(self, v: i64) -> std::result::Result<NumberOrWord, E> {
+                Ok(NumberOrWord::Number(v as f64))
+            }
+            fn visit_u64<E>(self, v: u64) -> std::result::Result<NumberOrWord, E> {
+                Ok(NumberOrWord::Number(v as f64))
+            }
+            fn visit_str<E>(self, v: &str) -> std::result::Result<NumberOrWord, E> {
+                Ok(NumberOrWord::Word(v.to_string()))
+            }
+        }
+        d.deserialize_any(V)
+    }
+}
+
+// ---- stage two: validated -----------------------------------------------------------------
+
+/// Everything `plate.toml` says, validated and in SI units.
+#[derive(Debug, Clone)]
+pub(crate) struct PlateFile {
+    pub units: Units,
+    pub plate: Plate,
+    pub fit: FitSettings,
+    pub noise: NoiseSpec,
+    pub uncertainty: UncertaintySettings,
+    /// The profile files the fixed edges refer to, resolved against the plate file's
+    /// directory.
+    pub profiles: Vec<(Edge, PathBuf)>,
+}
+
+/// Read and validate `plate.toml`.
+pub(crate) fn read_plate_file(path: &Path) -> Result<PlateFile> {
+    let bytes = csv_files::read_input(path)?;
+    let text = csv_files::utf8_text(path, &bytes, "a TOML file")?;
+    let spans = TomlSpans::new(text);
+    let raw: RawFile = toml::from_str(text).map_err(|e| toml_error(path, text, &spans, &e))?;
+    Checker {
+        path,
+        spans: &spans,
+    }
+    .build(raw)
+}
+
+/// Turn a toml/serde error into a message naming the file, line and key.
+fn toml_error(path: &Path, text: &str, spans: &TomlSpans, e: &toml::de::Error) -> Error {
+    let msg = e.message().trim().to_string();
+    let offset = e.span().map(|s| s.start);
+    let line = offset.map(|o| spans.line(o));
+    let mut field = offset
+        .and_then(|o| spans.field_at(o))
+        .map(str::to_string)
+        .or_else(|| line.and_then(|l| guess_field_on_line(text, l)));
+    let message = if let Some(name) = backticked(&msg, "missing field `") {
+        let parent = field.take();
+        let full = match &parent {
+            Some(p) => format!("{p}.{name}"),
+            None => name.to_string(),
+        };
+        let message = match parent {
+            Some(p) => format!("[{p}] needs the key `{name}`; add it"),
+            None => format!("the [{name}] section is missing; add it"),
+        };
+        field = Some(full);
+        message
+    } else if let Some(rest) = msg.strip_prefix("unknown field ") {
+        format!("unknown key {rest}; check the spelling")
+    } else if msg.starts_with("duplicate key") {
+        duplicate_message(text, line)
+    } else if msg.starts_with("unknown variant") {
+        msg.replacen("unknown variant", "unknown value", 1)
+    } else if !spans.parsed() {
+        format!("not valid TOML: {msg}")
+    } else {
+        let msg = msg
+            .replace("expected f64", "expected a number")
+            .replace("expected i64", "expected a whole number");
+        // serde names the Rust struct it wanted ("expected struct RawEdge"): say "a table"
+        match msg.split_once("expected struct ") {
+            Some((head, _)) => format!("{head}expected a table ([section] or {{ ... }})"),
+            None => msg,
+        }
+    };
+    Error::Invalid {
+        location: crate::error::Location {
+            file: Some(path.to_path_buf()),
+            line,
+            field,
+        },
+        message,
+    }
+}
+
+/// The text between `prefix` and the next backtick of `msg`.
+fn backticked<'a>(msg: &'a str, prefix: &str) -> Option<&'a str> {
+    msg.strip_prefix(prefix)?.split('`').next()
+}
+
+fn duplicate_message(text: &str, line: Option<usize>) -> String {
+    let lines: Vec<&str> = text.lines().collect();
+    let here = line
+        .and_then(|l| lines.get(l.saturating_sub(1)))
+        .map(|l| l.trim())
+        .unwrap_or("");
+    if let Some(name) = header_name(here) {
+        let first = line.and_then(|l| {
+            lines[..l.saturating_sub(1)]
+                .iter()
+                .position(|x| header_name(x.trim()).as_deref() == Some(name.as_str()))
+                .map(|i| i + 1)
+        });
+        let also = first.map_or(String::new(), |f| format!(" (first on line {f})"));
+        let what = if let Some(edge) = name.strip_prefix("edges.") {
+            format!("the {edge} edge is given twice{also}; give each edge once")
+        } else {
+            format!("the section [{name}] is given twice{also}; give each section once")
+        };
+        return what;
+    }
+    let key = here.split('=').next().unwrap_or("").trim();
+    format!("the key `{key}` is given twice in its section; keep one")
+}
+
+/// Stage two: checks with access to the line of every key.
+struct Checker<'a> {
+    path: &'a Path,
+    spans: &'a TomlSpans,
+}
+
+impl Checker<'_> {
+    fn err(&self, field: &str, message: impl Into<String>) -> Error {
+        Error::invalid_at(
+            self.path,
+            self.spans.line_for_field(field),
+            Some(field),
+            message,
+        )
+    }
+
+    fn finite(&self, field: &str, v: f64) -> Result<f64> {
+        if v.is_finite() {
+            Ok(v)
+        } else {
+            Err(self.err(field, format!("must be a finite number, not {v}")))
+        }
+    }
+
+    fn build(&self, raw: RawFile) -> Result<PlateFile> {
+        let units = Units {
+            length: raw.plate.length_unit,
+            temperature: raw.plate.temperature_unit,
+        };
+        let width = self.finite("plate.width", raw.plate.width)?;
+        let shape = match &raw.plate.height {
+            NumberOrWord::Number(h) => {
+                let h = self.finite("plate.height", *h)?;
+                Shape::Rectangle {
+                    width_m: units.length_to_m(width),
+                    height_m: units.length_to_m(h),
+                }
+            }
+            NumberOrWord::Word(w) if w == "infinite" => Shape::Strip {
+                width_m: units.length_to_m(width),
+            },
+            NumberOrWord::Word(w) => {
+                return Err(self.err(
+                    "plate.height",
+                    format!(
+                        "`{w}` is not a height; give a number or \"infinite\" for a long strip"
+                    ),
+                ));
+            }
+        };
+        if let Some(k) = raw.plate.conductivity {
+            self.finite("plate.conductivity", k)?;
+        }
+        let mut conditions: [Option<EdgeCondition>; 4] = [None, None, None, None];
+        let mut profiles = Vec::new();
+        let raw_edges = [
+            (Edge::Bottom, raw.edges.bottom),
+            (Edge::Right, raw.edges.right),
+            (Edge::Top, raw.edges.top),
+            (Edge::Left, raw.edges.left),
+        ];
+        for (edge, raw_edge) in raw_edges {
+            if let Some(r) = raw_edge {
+                let (cond, file) = self.edge(edge, r, &units, &shape)?;
+                conditions[edge.index()] = Some(cond);
+                if let Some(f) = file {
+                    profiles.push((edge, f));
+                }
+            }
+        }
+        let plate = Plate::new(shape, conditions, raw.plate.conductivity)
+            .map_err(|e| e.in_file(self.path, |f| self.spans.line_for_field(f)))?;
+        Ok(PlateFile {
+            units,
+            plate,
+            fit: self.fit(raw.fit)?,
+            noise: self.noise(raw.noise, &units)?,
+            uncertainty: self.uncertainty(raw.uncertainty, &units)?,
+            profiles,
+        })
+    }
+
+    fn edge(
+        &self,
+        edge: Edge,
+        r: RawEdge,
+        units: &Units,
+        shape: &Shape,
+    ) -> Result<(EdgeCondition, Option<PathBuf>)> {
+        let key = |k: &str| format!("edges.{edge}.{k}");
+        let condition = r.condition.trim();
+        if condition == "convective" || r.h.is_some() || r.ambient.is_some() {
+            let field = if condition == "convective" {
+                key("condition")
+            } else if r.h.is_some() {
+                key("h")
+            } else {
+                key("ambient")
+            };
+            return Err(self.err(
+                &field,
+                "convective edges (h, ambient) are not supported in this version; use fixed, \
+                 insulated or unknown",
+            ));
+        }
+        if condition != "fixed" {
+            for (given, k) in [
+                (r.temperature.is_some(), "temperature"),
+                (r.profile.is_some(), "profile"),
+            ] {
+                if given {
+                    return Err(self.err(
+                        &key(k),
+                        format!(
+                            "`{k}` applies to a fixed edge only, but the {edge} edge is \
+                             `{condition}`; remove it or set condition = \"fixed\""
+                        ),
+                    ));
+                }
+            }
+        }
+        match condition {
+            "insulated" => Ok((EdgeCondition::Insulated, None)),
+            "unknown" => Ok((EdgeCondition::Unknown, None)),
+            "fixed" => match (r.temperature, r.profile) {
+                (Some(_), Some(_)) => Err(self.err(
+                    &key("profile"),
+                    "give either `temperature` or `profile` for a fixed edge, not both",
+                )),
+                (None, None) => Err(self.err(
+                    &key("condition"),
+                    format!(
+                        "the fixed {edge} edge needs `temperature = <value>` or \
+                         `profile = \"file.csv\"`"
+                    ),
+                )),
+                (Some(t), None) => {
+                    let t = self.finite(&key("temperature"), t)?;
+                    let k = absolute_temperature(units, t)
+                        .map_err(|m| self.err(&key("temperature"), m))?;
+                    Ok((EdgeCondition::Fixed(EdgeProfile::constant(k)), None))
+                }
+                (None, Some(file)) => {
+                    let base = self.path.parent().unwrap_or(Path::new(""));
+                    let file_path = base.join(&file);
+                    let length = shape.edge_length(edge).map(|m| units.length_from_m(m));
+                    let profile = csv_files::read_edge_profile(&file_path, units, edge, length)
+                        .map_err(|e| match e {
+                            Error::Io { source, .. } => self.err(
+                                &key("profile"),
+                                format!(
+                                    "cannot read the profile file {}: {source}",
+                                    file_path.display()
+                                ),
+                            ),
+                            other => other,
+                        })?;
+                    Ok((EdgeCondition::Fixed(profile), Some(file_path)))
+                }
+            },
+            other => Err(self.err(
+                &key("condition"),
+                format!("unknown condition `{other}`; use fixed, insulated or unknown"),
+            )),
+        }
+    }
+
+    fn fit(&self, raw: RawFit) -> Result<FitSettings> {
+        let terms = match raw.terms {
+            None => DEFAULT_TERMS,
+            Some(n) if n >= 1 && (n as u64) <= MAX_TERMS as u64 => n as usize,
+            Some(n) => {
+                return Err(self.err(
+                    "fit.terms",
+                    format!(
+                        "the number of terms must be a whole number from 1 to {MAX_TERMS}, not {n}"
+                    ),
+                ));
+            }
+        };
+        let strength = match raw.strength {
+            None => StrengthRule::Default,
+            Some(NumberOrWord::Number(v)) => {
+                if !(v.is_finite() && v > 0.0) {
+                    return Err(self.err(
+                        "fit.strength",
+                        format!("a fixed strength must be a positive number, not {v}"),
+                    ));
+                }
+                StrengthRule::Fixed(v)
+            }
+            Some(NumberOrWord::Word(w)) => match w.as_str() {
+                "gcv" => StrengthRule::Gcv,
+                "discrepancy" => StrengthRule::Discrepancy,
+                "evidence" => StrengthRule::Evidence,
+                "lcurve" => StrengthRule::LCurve,
+                other => {
+                    return Err(self.err(
+                        "fit.strength",
+                        format!(
+                            "unknown strength rule `{other}`; use gcv, discrepancy, evidence, \
+                             lcurve or a positive number; leave it out for the default"
+                        ),
+                    ));
+                }
+            },
+        };
+        Ok(FitSettings {
+            terms,
+            smoothing: raw.smoothing.unwrap_or(Smoothing::Curvature),
+            strength,
+        })
+    }
+
+    fn noise(&self, raw: RawNoise, units: &Units) -> Result<NoiseSpec> {
+        match (raw.sigma, raw.tolerance_class, raw.tc_type) {
+            (Some(_), Some(_), _) | (Some(_), None, Some(_)) => Err(self.err(
+                "noise.sigma",
+                "give either `sigma` or `tolerance_class` with `type`, not both",
+            )),
+            (Some(s), None, None) => {
+                if !(s.is_finite() && s > 0.0) {
+                    return Err(self.err(
+                        "noise.sigma",
+                        format!("the standard uncertainty must be a positive number, not {s}"),
+                    ));
+                }
+                Ok(NoiseSpec::Sigma(units.dtemp_to_k(s)))
+            }
+            (None, Some(c), Some(t)) => {
+                let class = ToleranceClass::parse(c.trim()).ok_or_else(|| {
+                    self.err(
+                        "noise.tolerance_class",
+                        format!(
+                            "unknown tolerance class `{c}`; use iec-1, iec-2, iec-3, \
+                             astm-standard or astm-special"
+                        ),
+                    )
+                })?;
+                let tc_type = ThermocoupleType::parse(&t).ok_or_else(|| {
+                    self.err(
+                        "noise.type",
+                        format!("unknown thermocouple type `{t}`; use K, J, T, N or E"),
+                    )
+                })?;
+                Ok(NoiseSpec::Tolerance { class, tc_type })
+            }
+            (None, Some(_), None) => Err(self.err(
+                "noise.type",
+                "a tolerance class needs the thermocouple `type` too (K, J, T, N or E)",
+            )),
+            (None, None, Some(_)) => Err(self.err(
+                "noise.tolerance_class",
+                "a thermocouple `type` needs a `tolerance_class` too (iec-1, iec-2, iec-3, \
+                 astm-standard or astm-special)",
+            )),
+            (None, None, None) => Ok(NoiseSpec::Unstated),
+        }
+    }
+
+    fn uncertainty(&self, raw: RawUncertainty, units: &Units) -> Result<UncertaintySettings> {
+        let replicates = match raw.replicates {
+            None => DEFAULT_REPLICATES,
+            Some(n) if n >= 1 && (n as u64) <= MAX_REPLICATES as u64 => n as usize,
+            Some(n) => {
+                return Err(self.err(
+                    "uncertainty.replicates",
+                    format!(
+                        "the number of replicates must be a whole number from 1 to \
+                         {MAX_REPLICATES}, not {n}"
+                    ),
+                ));
+            }
+        };
+        let confidence = match raw.confidence {
+            None => DEFAULT_CONFIDENCE,
+            Some(c) if c > 0.0 && c < 1.0 => c,
+            Some(c) => {
+                return Err(self.err(
+                    "uncertainty.confidence",
+                    format!(
+                        "the confidence must lie strictly between 0 and 1 (0.95, say), not {c}"
+                    ),
+                ));
+            }
+        };
+        let seed = match raw.seed {
+            None => DEFAULT_SEED,
+            Some(s) => u64::try_from(s).map_err(|_| {
+                self.err(
+                    "uncertainty.seed",
+                    format!("the seed must be a whole number 0 or larger, not {s}"),
+                )
+            })?,
+        };
+        let position_sigma_m = match raw.position_sigma {
+            None => None,
+            Some(s) if s.is_finite() && s >= 0.0 => Some(units.length_to_m(s)),
+            Some(s) => {
+                return Err(self.err(
+                    "uncertainty.position_sigma",
+                    format!("the position uncertainty must be a number 0 or larger, not {s}"),
+                ));
+            }
+        };
+        Ok(UncertaintySettings {
+            replicates,
+            confidence,
+            seed,
+            position_sigma_m,
+        })
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    const GOOD: &str = r#"
+[plate]
+width = 150.0
+height = 60
+length_unit = "mm"
+temperature_unit = "C"
+conductivity = 205.0
+
+[edges.bottom]
+condition = "unknown"
+
+[edges.top]
+condition = "fixed"
+temperature = 25.0
+
+[edges.left]
+condition = "insulated"
+
+[edges.right]
+condition = "insulated"
+
+[noise]
+sigma = 0.5
+"#;
+
+    fn parse(text: &str) -> Result<PlateFile> {
+        let d = tempfile::tempdir().unwrap();
+        let p = d.path().join("plate.toml");
+        std::fs::write(&p, text).unwrap();
+        read_plate_file(&p)
+    }
+
+    fn loc(e: &Error) -> (Option<usize>, Option<String>, String) {
+        match e {
+            Error::Invalid { location, message } => {
+                (location.line, location.field.clone(), message.clone())
+            }
+            other => panic!("expected an invalid-input error, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn good_file_and_defaults() {
+        let f = parse(GOOD).unwrap();
+        assert_eq!(f.plate.unknown_edges(), vec![Edge::Bottom]);
+        assert_eq!(f.plate.shape().width(), 0.15);
+        assert_eq!(f.fit.terms, DEFAULT_TERMS);
+        assert_eq!(f.fit.smoothing, Smoothing::Curvature);
+        assert_eq!(f.fit.strength, StrengthRule::Default);
+        assert_eq!(f.noise, NoiseSpec::Sigma(0.5));
+        assert_eq!(f.uncertainty.replicates, 2000);
+        assert_eq!(f.uncertainty.seed, 7);
+        assert_eq!(f.uncertainty.confidence, 0.95);
+        assert!(f.uncertainty.position_sigma_m.is_none());
+        match f.plate.condition(Edge::Top) {
+            Some(EdgeCondition::Fixed(p)) => assert!((p.value(0.0) - 298.15).abs() < 1e-12),
+            other => panic!("top should be fixed, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn errors_point_at_the_key() {
+        let cases: Vec<(String, Option<usize>, &str, &str)> = vec![
+            (
+                GOOD.replace("width = 150.0", "widht = 150.0"),
+                Some(3),
+                "plate.widht",
+                "unknown key",
+            ),
+            (
+                GOOD.replace("temperature = 25.0", "temperature = -300"),
+                Some(14),
+                "edges.top.temperature",
+                "below absolute zero",
+            ),
+            (
+                GOOD.replace("height = 60", "height = \"tall\""),
+                Some(4),
+                "plate.height",
+                "infinite",
+            ),
+            (
+                GOOD.replace("height = 60", "height = true"),
+                Some(4),
+                "plate.height",
+                "invalid type",
+            ),
+            (
+                GOOD.replace("\"mm\"", "\"cm\""),
+                Some(5),
+                "plate.length_unit",
+                "unknown value",
+            ),
+            (
+                GOOD.replace(
+                    "condition = \"insulated\"\n\n[edges.right]",
+                    "condition = \"convective\"\n\n[edges.right]",
+                ),
+                Some(17),
+                "edges.left.condition",
+                "not supported",
+            ),
+            (
+                GOOD.replace("[edges.left]\ncondition = \"insulated\"\n", ""),
+                None,
+                "edges.left",
+                "no condition",
+            ),
+            (
+                GOOD.replace("[edges.right]", "[edges.top]"),
+                Some(19),
+                "edges.top",
+                "given twice",
+            ),
+            (
+                GOOD.replace("sigma = 0.5", "sigma = 0.5\ntolerance_class = \"iec-1\""),
+                Some(23),
+                "noise.sigma",
+                "not both",
+            ),
+            (
+                GOOD.replace("sigma = 0.5", "sigma = nan"),
+                Some(23),
+                "noise.sigma",
+                "positive",
+            ),
+            (
+                GOOD.replace("[noise]", "[fit]\nterms = 0\n[noise]"),
+                Some(23),
+                "fit.terms",
+                "whole number",
+            ),
+            (
+                GOOD.replace("[noise]", "[uncertainty]\nconfidence = 1.0\n[noise]"),
+                Some(23),
+                "uncertainty.confidence",
+                "between 0 and 1",
+            ),
+            (
+                GOOD.replace(
+                    "[edges.top]\ncondition = \"fixed\"\ntemperature = 25.0",
+                    "[edges.top]\ncondition = \"fixed\"",
+                ),
+                Some(13),
+                "edges.top.condition",
+                "needs `temperature",
+            ),
+            (
+                GOOD.replace("condition = \"unknown\"", "temperature = 3"),
+                Some(9),
+                "edges.bottom.condition",
+                "needs the key `condition`",
+            ),
+            (
+                GOOD.replace("[plate]", "[plate]\nwidth = 1"),
+                Some(4),
+                "plate.width",
+                "twice",
+            ),
+            (
+                format!("edges = 3\n{}", &GOOD[..GOOD.find("[edges").unwrap()]),
+                Some(1),
+                "edges",
+                "expected a table",
+            ),
+        ];
+        for (text, line, field, gist) in cases {
+            let e = parse(&text).unwrap_err();
+            let (l, f, m) = loc(&e);
+            assert_eq!(l, line, "{e}");
+            assert_eq!(f.as_deref(), Some(field), "{e}");
+            assert!(m.contains(gist), "{e}");
+        }
+    }
+
+    #[test]
+    fn strip_sides_cannot_be_unknown() {
+        let text = GOOD
+            .replace("height = 60", "height = \"infinite\"")
+            .replace("[edges.top]\ncondition = \"fixed\"\ntemperature = 25.0", "")
+            .replace(
+                "[edges.left]\ncondition = \"insulated\"",
+                "[edges.left]\ncondition = \"unknown\"",
+            );
+        let e = parse(&text).unwrap_err();
+        let (l, f, m) = loc(&e);
+        assert_eq!(f.as_deref(), Some("edges.left.condition"));
+        assert_eq!(l, Some(15)); // the three lines of [edges.top] are gone
+        assert!(m.contains("long strip"), "{m}");
+    }
+
+    proptest::proptest! {
+        #![proptest_config(proptest::prelude::ProptestConfig::with_cases(300))]
+        /// Any value on any line of a valid file gives a valid plate or an invalid-input
+        /// error, never a panic.
+        #[test]
+        fn mutated_files_never_panic(line in 0usize..24, junk in "[ -~]{0,24}") {
+            let text: Vec<String> = GOOD
+                .lines()
+                .enumerate()
+                .map(|(i, l)| match (i == line, l.split_once('=')) {
+                    (true, Some((k, _))) => format!("{k}= {junk}"),
+                    (true, None) => junk.clone(),
+                    _ => l.to_string(),
+                })
+                .collect();
+            if let Err(e) = parse(&text.join("\n")) {
+                proptest::prop_assert_eq!(e.exit_code(), 2, "{}", e);
+            }
+        }
+    }
+
+    #[test]
+    fn garbage_is_an_error_not_a_panic() {
+        for text in [
+            "",
+            "\u{0}\u{1}\u{2}",
+            "[plate",
+            "width = 1e999999",
+            "[[plate]]\n",
+        ] {
+            let e = parse(text).unwrap_err();
+            assert_eq!(e.exit_code(), 2, "{e}");
+        }
+    }
+}
