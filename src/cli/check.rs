@@ -7,6 +7,7 @@
 
 use super::{GlobalOptions, num, print_stdout};
 use edgetherm::Result;
+use edgetherm::forward::{ForwardModel, ModelDescription, SeriesOptions};
 use edgetherm::geometry::{Edge, EdgeCondition, Shape};
 use edgetherm::io::{Case, StrengthRule, load_case, load_readings};
 use edgetherm::noise::NoiseSpec;
@@ -33,7 +34,7 @@ pub fn run(args: &CheckArgs, global: &GlobalOptions) -> Result<i32> {
     } else {
         None
     };
-    let report = CheckReport::new(&case, readings.as_deref());
+    let report = CheckReport::new(&case, readings.as_deref())?;
     if global.json {
         let json = serde_json::to_string_pretty(&report)
             .map_err(|e| edgetherm::Error::Internal(format!("cannot write JSON: {e}")))?;
@@ -165,23 +166,108 @@ struct UncertaintyReport {
 /// What the forward model will be for the case.
 #[derive(Debug, Serialize)]
 struct ForwardModelReport {
+    #[serde(flatten)]
+    description: ModelDescription,
+    /// Per unknown edge: the shortest feature the shallowest sensor still sees.
+    reach: Vec<ReachReport>,
     /// Lines for the text output.
+    #[serde(skip)]
     lines: Vec<String>,
 }
 
-// ==== FORWARD-MODEL DESCRIPTION: to be filled in by the lead with src/forward/ ============
+/// How finely the sensors can see an unknown edge.
+#[derive(Debug, Serialize)]
+struct ReachReport {
+    edge: Edge,
+    /// Depth of the sensor nearest the edge, case length unit.
+    shallowest_depth: f64,
+    /// Wavelength along the edge damped 100-fold at that depth, case length unit.
+    wavelength_damped_100x: f64,
+    /// Finest feature the series can represent (half the shortest wavelength), case length
+    /// unit.
+    series_resolution: f64,
+}
+
 /// The forward model `check` describes: the basis functions on each edge (sines, cosines
-/// with the constant mode, quarter-wave), the decay across the plate and the term counts.
-///
-/// Returns `None` until the forward model is wired in here; `check` then leaves the section
-/// out of both its text and its JSON.
-fn forward_model(_case: &Case) -> Option<ForwardModelReport> {
-    None
+/// with the constant mode, quarter-wave), the decay across the plate, the term counts, and
+/// how deep the sensors sit in terms of what they can see.
+fn forward_model(case: &Case) -> Result<ForwardModelReport> {
+    let options = SeriesOptions {
+        unknown_terms: case.fit.terms,
+        ..SeriesOptions::default()
+    };
+    let model = ForwardModel::new(&case.plate, options)?;
+    let description = model.describe();
+    let u = &case.units;
+    let len = |m: f64| u.length_from_m(m);
+    let mut lines = Vec::new();
+    for e in &description.edges {
+        let mut line = format!("{:<7}{:<10}", e.edge.name(), e.condition);
+        match (e.basis, e.decay) {
+            (Some(b), Some(d)) => {
+                let plural = if e.terms == 1 { "" } else { "s" };
+                let _ = write!(line, "{} term{plural} of {b}; decay: {d}", e.terms);
+                if e.terms == 0 {
+                    line = format!(
+                        "{:<7}{:<10}carried by the corner base (no series needed)",
+                        e.edge.name(),
+                        e.condition
+                    );
+                }
+            }
+            _ if e.condition == "insulated" => line.push_str("no series (zero flux)"),
+            _ => line.push_str("constant, carried by the corner base"),
+        }
+        lines.push(line);
+    }
+    if !description.corner_parameters.is_empty() {
+        lines.push(format!(
+            "corner temperatures estimated where two unknown edges meet: {}",
+            description.corner_parameters.join(", ")
+        ));
+    }
+    lines.push(format!("unknowns: {}", description.unknowns));
+    // Mode k is damped by about exp(-k d) at depth d (METHODS §9): 100-fold when
+    // k = ln(100)/d, i.e. a wavelength of 2πd/ln(100).
+    let shape = case.plate.shape();
+    let mut reach = Vec::new();
+    for edge in case.plate.unknown_edges() {
+        let Some(d) = case
+            .sensors
+            .iter()
+            .map(|s| shape.depth_from(edge, s.position))
+            .min_by(f64::total_cmp)
+        else {
+            continue;
+        };
+        let edge_len = shape.edge_length(edge).unwrap_or(f64::INFINITY);
+        let r = ReachReport {
+            edge,
+            shallowest_depth: len(d),
+            wavelength_damped_100x: len(2.0 * std::f64::consts::PI * d / 100f64.ln()),
+            series_resolution: len(edge_len / case.fit.terms as f64),
+        };
+        lines.push(format!(
+            "{edge}: the shallowest sensor is {} {lu} deep; features along the edge shorter \
+             than about {} {lu} reach it damped more than 100-fold; the series resolves down \
+             to {} {lu}",
+            num(r.shallowest_depth),
+            num(r.wavelength_damped_100x),
+            num(r.series_resolution),
+            lu = u.length.symbol(),
+        ));
+        reach.push(r);
+    }
+    Ok(ForwardModelReport {
+        description,
+        reach,
+        lines,
+    })
 }
 // ==========================================================================================
 
 impl CheckReport {
-    fn new(case: &Case, readings: Option<&[Option<f64>]>) -> Self {
+    fn new(case: &Case, readings: Option<&[Option<f64>]>) -> Result<Self> {
         let u = &case.units;
         let shape = case.plate.shape();
         let len = |m: f64| u.length_from_m(m);
@@ -231,7 +317,7 @@ impl CheckReport {
             }
             NoiseSpec::Unstated => ("unstated", None, None, None),
         };
-        CheckReport {
+        Ok(CheckReport {
             valid: true,
             files: FilesReport {
                 plate: case.files.plate.clone(),
@@ -278,8 +364,8 @@ impl CheckReport {
                 seed: case.uncertainty.seed,
                 position_sigma: case.uncertainty.position_sigma_m.map(len),
             },
-            model: forward_model(case),
-        }
+            model: Some(forward_model(case)?),
+        })
     }
 
     fn text(&self) -> String {

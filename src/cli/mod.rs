@@ -6,6 +6,7 @@
 //! `edgetherm: <message>`.
 
 mod check;
+mod simulate;
 
 use clap::{Args, Parser, Subcommand};
 use edgetherm::io::CaseFiles;
@@ -61,6 +62,8 @@ impl GlobalOptions {
 enum Command {
     /// Validate the inputs and print what the model will be, without fitting.
     Check(check::CheckArgs),
+    /// Synthetic readings for a known edge profile (demos, what-if studies, tests).
+    Simulate(simulate::SimulateArgs),
 }
 
 /// Parse the command line, run the command and return the process exit status.
@@ -76,6 +79,7 @@ pub fn run() -> i32 {
     };
     let result = match &cli.command {
         Command::Check(args) => check::run(args, &cli.global),
+        Command::Simulate(args) => simulate::run(args, &cli.global),
     };
     match result {
         Ok(code) => code,

@@ -70,7 +70,9 @@ impl BasisKind {
         match self {
             BasisKind::Sine => "sines (both neighbours hold a temperature)",
             BasisKind::Cosine => "cosines with the constant mode (both neighbours insulated)",
-            BasisKind::QuarterSine => "quarter-wave sines (held at the start, insulated at the end)",
+            BasisKind::QuarterSine => {
+                "quarter-wave sines (held at the start, insulated at the end)"
+            }
             BasisKind::QuarterCosine => {
                 "quarter-wave cosines (insulated at the start, held at the end)"
             }
@@ -96,7 +98,11 @@ impl EdgeBasis {
     /// `φ_n(s)`.
     pub fn value(&self, n: usize, s: f64) -> f64 {
         let a = self.wavenumber(n) * s;
-        if self.kind.is_sine() { a.sin() } else { a.cos() }
+        if self.kind.is_sine() {
+            a.sin()
+        } else {
+            a.cos()
+        }
     }
 
     /// `φ_n'(s)`.
@@ -136,7 +142,13 @@ impl EdgeBasis {
     pub fn values_into(&self, s: f64, out: &mut [f64]) {
         let theta = std::f64::consts::PI * s / self.length;
         let n0 = self.kind.index_offset();
-        let trig = |a: f64| if self.kind.is_sine() { a.sin() } else { a.cos() };
+        let trig = |a: f64| {
+            if self.kind.is_sine() {
+                a.sin()
+            } else {
+                a.cos()
+            }
+        };
         let two_cos = 2.0 * theta.cos();
         let mut prev = trig((n0 - 1.0) * theta);
         let mut cur = trig(n0 * theta);
@@ -483,7 +495,9 @@ mod tests {
         let dec = Decay::Dirichlet { depth: 0.6 };
         let m = 20000;
         let h = 0.6 / m as f64;
-        let q: f64 = (0..m).map(|i| dec.value(3.0, (i as f64 + 0.5) * h) * h).sum();
+        let q: f64 = (0..m)
+            .map(|i| dec.value(3.0, (i as f64 + 0.5) * h) * h)
+            .sum();
         assert!((q - dec.integral(3.0)).abs() < 1e-8);
     }
 }

@@ -107,6 +107,9 @@ pub struct ForwardModel {
     parameters: Vec<Parameter>,
 }
 
+/// A point closer than this fraction of the width to an edge lies on it.
+const ON_EDGE: f64 = 1e-12;
+
 /// Relative size below which trailing coefficients of a known edge are dropped.
 const NEGLIGIBLE_COEFFICIENT: f64 = 1e-15;
 
@@ -131,7 +134,11 @@ impl ForwardModel {
             }
         }
         let (base, corners) = Base::new(plate, parameters.len());
-        parameters.extend(corners.into_iter().map(|corner| Parameter::Corner { corner }));
+        parameters.extend(
+            corners
+                .into_iter()
+                .map(|corner| Parameter::Corner { corner }),
+        );
 
         let mut series = Vec::new();
         let mut next_mode = 0;
@@ -163,9 +170,7 @@ impl ForwardModel {
                 EdgeCondition::Unknown => {
                     let s = Series::new(basis, decay, options.unknown_terms);
                     for n in 0..options.unknown_terms {
-                        if let Parameter::Mode { wavenumber, .. } =
-                            &mut parameters[next_mode + n]
-                        {
+                        if let Parameter::Mode { wavenumber, .. } = &mut parameters[next_mode + n] {
                             *wavenumber = s.wavenumber(n);
                         }
                     }
@@ -307,6 +312,16 @@ impl ForwardModel {
     }
 
     fn temperature_unchecked(&self, c: &[f64], p: Point, scratch: &mut Vec<f64>) -> f64 {
+        // On a fixed edge the temperature is the data itself; the truncated Fourier series
+        // would only approximate it there (Gibbs at jumps), while inside it converges fast.
+        let shape = self.plate.shape();
+        for edge in Edge::ALL {
+            if let Some(EdgeCondition::Fixed(profile)) = self.plate.condition(edge) {
+                if shape.depth_from(edge, p).abs() <= ON_EDGE * shape.width() {
+                    return profile.value(shape.position_along(edge, p));
+                }
+            }
+        }
         let mut corners = 0.0;
         let mut t = self.base.evaluate(p, |i, w| corners += w * c[i]);
         t += corners;

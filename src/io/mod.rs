@@ -22,7 +22,9 @@ pub use case::{
     Case, CaseFiles, FitSettings, Sensor, Smoothing, StrengthRule, UncertaintySettings, load_case,
     load_readings, read_truth_profiles,
 };
-pub use output::{OUTPUT_FILE_NAMES, check_output_dir, write_atomic};
+pub mod grid;
+pub use grid::{DEFAULT_GRID, grid_coordinates, parse_grid};
+pub use output::{OUTPUT_FILE_NAMES, check_output_dir, check_output_file, write_atomic};
 pub use plate_file::{
     DEFAULT_CONFIDENCE, DEFAULT_REPLICATES, DEFAULT_SEED, DEFAULT_TERMS, MAX_REPLICATES, MAX_TERMS,
 };

@@ -84,6 +84,27 @@ pub fn check_output_dir(out: &Path, inputs: &[&Path]) -> Result<()> {
     Ok(())
 }
 
+/// Refuse (with [`Error::Invalid`], exit status 2) an output file that is one of `inputs`.
+/// `flag` names the option that chose it (`--out`, `--field`).
+pub fn check_output_file(out: &Path, flag: &str, inputs: &[&Path]) -> Result<()> {
+    let out_c = canonical(out);
+    for &input in inputs {
+        if canonical(input) == out_c {
+            return Err(Error::invalid_at(
+                out,
+                None,
+                Some(flag),
+                format!(
+                    "this output would replace {}, an input of this run; inputs are never \
+                     overwritten, so choose another file",
+                    input.display()
+                ),
+            ));
+        }
+    }
+    Ok(())
+}
+
 /// The canonical form of `p`: its longest existing ancestor canonicalised, the rest appended
 /// with `.` and `..` resolved lexically.
 fn canonical(p: &Path) -> PathBuf {
