@@ -80,7 +80,11 @@ fn semi_infinite_strip_matches_closed_form() {
     )
     .unwrap();
     let m = model(&unit);
-    for &(x, y, v) in &[(0.5, 0.5, 0.260964), (0.25, 0.1, 0.729939), (0.5, 1.0, 0.054987)] {
+    for &(x, y, v) in &[
+        (0.5, 0.5, 0.260964),
+        (0.25, 0.1, 0.729939),
+        (0.5, 1.0, 0.054987),
+    ] {
         let t = m.temperature(&[], Point::new(x, y)).unwrap();
         assert!((t - v).abs() < 1e-6, "({x},{y}): {t} vs {v}");
     }
@@ -100,6 +104,8 @@ fn rectangle_matches_incropera_eq_4_19() {
         None,
     )
     .unwrap();
-    let theta = model(&plate).temperature(&[], Point::new(1.0, 0.5)).unwrap();
+    let theta = model(&plate)
+        .temperature(&[], Point::new(1.0, 0.5))
+        .unwrap();
     assert!((theta - 0.44512).abs() < 1e-5, "θ = {theta}");
 }

@@ -184,8 +184,8 @@ fn heat_flows_balance() {
         width_m: 0.12,
         height_m: 0.05,
     };
-    let top = EdgeProfile::piecewise_linear(vec![0.0, 0.05, 0.12], vec![300.0, 310.0, 305.0])
-        .unwrap();
+    let top =
+        EdgeProfile::piecewise_linear(vec![0.0, 0.05, 0.12], vec![300.0, 310.0, 305.0]).unwrap();
     let cases: Vec<[Option<EdgeCondition>; 4]> = vec![
         // cold plate: hidden bottom, held top, insulated sides
         [
@@ -220,7 +220,10 @@ fn heat_flows_balance() {
         let sum: f64 = flows.iter().sum();
         let scale = flows.iter().fold(0.0_f64, |m, f| m.max(f.abs()));
         assert!(scale > 1.0, "flows {flows:?}");
-        eprintln!("flows {flows:?}: relative imbalance {:.2e}", sum.abs() / scale);
+        eprintln!(
+            "flows {flows:?}: relative imbalance {:.2e}",
+            sum.abs() / scale
+        );
         assert!(sum.abs() < 1e-9 * scale, "flows {flows:?} sum to {sum}");
     }
 }

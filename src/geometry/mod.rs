@@ -291,9 +291,9 @@ impl Plate {
             if let Some(EdgeCondition::Fixed(profile)) = c {
                 let len = shape.edge_length(edge);
                 if let Some(len) = len {
-                    profile.check_spans(len).map_err(|m| {
-                        Error::invalid_field(format!("edges.{edge}.profile"), m)
-                    })?;
+                    profile
+                        .check_spans(len)
+                        .map_err(|m| Error::invalid_field(format!("edges.{edge}.profile"), m))?;
                 } else if !profile.is_constant() {
                     return Err(Error::invalid_field(
                         format!("edges.{edge}.profile"),
@@ -354,7 +354,8 @@ impl Plate {
 
     /// Whether `edge` exists and prescribes a temperature (fixed or unknown).
     pub fn is_dirichlet(&self, edge: Edge) -> bool {
-        self.condition(edge).is_some_and(EdgeCondition::is_dirichlet)
+        self.condition(edge)
+            .is_some_and(EdgeCondition::is_dirichlet)
     }
 
     /// Whether `edge` exists and is insulated.

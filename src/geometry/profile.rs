@@ -29,7 +29,11 @@ impl EdgeProfile {
         if positions.is_empty() || positions.len() != temperatures.len() {
             return Err("a profile needs at least one (position, temperature) pair".into());
         }
-        if positions.iter().chain(&temperatures).any(|v| !v.is_finite()) {
+        if positions
+            .iter()
+            .chain(&temperatures)
+            .any(|v| !v.is_finite())
+        {
             return Err("a profile's positions and temperatures must be finite numbers".into());
         }
         if positions.windows(2).any(|w| w[1] <= w[0]) {
