@@ -109,3 +109,31 @@ fn rectangle_matches_incropera_eq_4_19() {
         .unwrap();
     assert!((theta - 0.44512).abs() < 1e-5, "θ = {theta}");
 }
+
+// One-dimensional conduction through a slab (Fourier's law; Incropera et al., Fundamentals
+// of Heat and Mass Transfer, §3.1): with insulated sides, a bottom at T1 and a top at T0, the
+// heat flow into the plate through the bottom per unit depth is k (T1 − T0) W / H, and the
+// same flow leaves through the top.
+#[test]
+fn slab_heat_flow_follows_fouriers_law() {
+    let (w, h, k, t1, t0) = (0.12, 0.03, 167.0, 340.0, 300.0);
+    let plate = Plate::new(
+        Shape::Rectangle {
+            width_m: w,
+            height_m: h,
+        },
+        [fixed(t1), Some(EdgeCondition::Insulated), fixed(t0), Some(EdgeCondition::Insulated)],
+        Some(k),
+    )
+    .unwrap();
+    let m = model(&plate);
+    let expected = k * (t1 - t0) * w / h;
+    let bottom = m.heat_flow(Edge::Bottom, &[]).unwrap().unwrap();
+    let top = m.heat_flow(Edge::Top, &[]).unwrap().unwrap();
+    assert!((bottom - expected).abs() < 1e-9 * expected, "{bottom} vs {expected}");
+    assert!((top + expected).abs() < 1e-9 * expected, "{top} vs {}", -expected);
+    let q = m.edge_flux(Edge::Bottom, &[], &[0.03, 0.06]).unwrap().unwrap();
+    for v in q {
+        assert!((v - k * (t1 - t0) / h).abs() < 1e-9 * v, "{v}");
+    }
+}

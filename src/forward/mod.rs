@@ -450,7 +450,8 @@ impl ForwardModel {
     }
 
     /// Heat-flux density into the plate through `edge` at `positions`, W/m², for unknowns
-    /// `c`: `q = k ∂T/∂n_in`. `None` when the plate has no conductivity.
+    /// `c`: by Fourier's law `q = −k ∇T`, the flux into the plate is `−k ∂T/∂n_in` with `n_in`
+    /// the inward normal (positive where heat enters). `None` when the plate has no conductivity.
     ///
     /// The own-edge series is differentiated term by term; for a fixed edge with a jump at a
     /// corner this converges slowly near that corner, where the true flux is singular.
@@ -471,7 +472,7 @@ impl ForwardModel {
         Ok(Some(
             positions
                 .iter()
-                .map(|&s| k * self.inward_gradient(edge, c, s))
+                .map(|&s| -k * self.inward_gradient(edge, c, s))
                 .collect(),
         ))
     }
@@ -543,7 +544,7 @@ impl ForwardModel {
                 }
             }
         }
-        Ok(Some(kc * total))
+        Ok(Some(-kc * total))
     }
 
     /// A description of the model for people (`edgetherm check`).
