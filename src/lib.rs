@@ -9,8 +9,10 @@
 //! |---|---|
 //! | [`geometry`] | the plate, its edges and their conditions (SI units inside) |
 //! | [`forward`] | steady conduction by separation of variables: the linear map from the unknown edge coefficients to temperatures anywhere |
+//! | [`inverse`] | weighted Tikhonov regularisation on that linear map (one SVD for every strength) and the rules that choose the strength |
 //! | [`noise`] | the reading uncertainty: stated sigma, or thermocouple tolerance classes |
 //! | [`io`] | case files (`plate.toml`, `sensors.csv`, `readings.csv`, profiles) in, results out, atomically |
+//! | [`report`] | the outputs of an estimate in the case's units: CSV tables, `summary.json`, the text summary, SVG plots and a self-contained HTML page |
 //! | [`simulate`] | synthetic readings from a known edge profile (demos, tests, what-if) |
 //! | [`units`] | the length and temperature units of a case, converted once at the edge |
 //! | [`error`] | one error type whose messages name the file, line and field |
@@ -18,11 +20,15 @@
 //! The library never prints; the `edgetherm` binary is a thin layer over it.
 
 pub mod error;
+pub mod estimate;
 pub mod forward;
 pub mod geometry;
+pub mod inverse;
 pub mod io;
 pub mod noise;
+pub mod report;
 pub mod simulate;
+pub mod uncertainty;
 pub mod units;
 
 pub use error::{Error, Result};

@@ -122,7 +122,12 @@ fn slab_heat_flow_follows_fouriers_law() {
             width_m: w,
             height_m: h,
         },
-        [fixed(t1), Some(EdgeCondition::Insulated), fixed(t0), Some(EdgeCondition::Insulated)],
+        [
+            fixed(t1),
+            Some(EdgeCondition::Insulated),
+            fixed(t0),
+            Some(EdgeCondition::Insulated),
+        ],
         Some(k),
     )
     .unwrap();
@@ -130,9 +135,19 @@ fn slab_heat_flow_follows_fouriers_law() {
     let expected = k * (t1 - t0) * w / h;
     let bottom = m.heat_flow(Edge::Bottom, &[]).unwrap().unwrap();
     let top = m.heat_flow(Edge::Top, &[]).unwrap().unwrap();
-    assert!((bottom - expected).abs() < 1e-9 * expected, "{bottom} vs {expected}");
-    assert!((top + expected).abs() < 1e-9 * expected, "{top} vs {}", -expected);
-    let q = m.edge_flux(Edge::Bottom, &[], &[0.03, 0.06]).unwrap().unwrap();
+    assert!(
+        (bottom - expected).abs() < 1e-9 * expected,
+        "{bottom} vs {expected}"
+    );
+    assert!(
+        (top + expected).abs() < 1e-9 * expected,
+        "{top} vs {}",
+        -expected
+    );
+    let q = m
+        .edge_flux(Edge::Bottom, &[], &[0.03, 0.06])
+        .unwrap()
+        .unwrap();
     for v in q {
         assert!((v - k * (t1 - t0) / h).abs() < 1e-9 * v, "{v}");
     }

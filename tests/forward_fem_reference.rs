@@ -15,7 +15,9 @@ use edgetherm::simulate::{exact_readings, truth_model};
 use std::path::Path;
 
 fn check_case(name: &str) -> f64 {
-    let dir = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/fem").join(name);
+    let dir = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/fixtures/fem")
+        .join(name);
     let case = load_case(&CaseFiles::in_dir(&dir)).unwrap();
     let truths = if dir.join("truth.csv").exists() {
         read_truth_profiles(&dir.join("truth.csv"), &case).unwrap()

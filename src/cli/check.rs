@@ -140,7 +140,7 @@ struct ReadingsReport {
 struct FitReport {
     terms: usize,
     smoothing: &'static str,
-    smoothing_order: usize,
+    smoothing_order: Option<usize>,
     strength: &'static str,
     strength_value: Option<f64>,
 }
@@ -492,10 +492,14 @@ impl CheckReport {
             None if f.strength == "default" => "the default rule".to_string(),
             None => f.strength.to_string(),
         };
+        let smoothing = match f.smoothing_order {
+            Some(o) => format!("{} penalty (derivative order {o})", f.smoothing),
+            None => "curvature or slope penalty, whichever the readings favour".to_string(),
+        };
         let _ = writeln!(
             s,
-            "Fit: {} terms per unknown edge, {} penalty (derivative order {}), strength: {strength}",
-            f.terms, f.smoothing, f.smoothing_order
+            "Fit: {} terms per unknown edge, {smoothing}, strength: {strength}",
+            f.terms
         );
         let n = &self.noise;
         let noise = match (n.source, n.sigma) {

@@ -6,6 +6,7 @@
 //! `edgetherm: <message>`.
 
 mod check;
+mod estimate;
 mod simulate;
 
 use clap::{Args, Parser, Subcommand};
@@ -60,6 +61,9 @@ impl GlobalOptions {
 
 #[derive(Debug, Subcommand)]
 enum Command {
+    /// Reconstruct the hidden edge(s) and the field from one set of readings, with
+    /// uncertainty (the main job).
+    Estimate(estimate::EstimateArgs),
     /// Validate the inputs and print what the model will be, without fitting.
     Check(check::CheckArgs),
     /// Synthetic readings for a known edge profile (demos, what-if studies, tests).
@@ -78,6 +82,7 @@ pub fn run() -> i32 {
         }
     };
     let result = match &cli.command {
+        Command::Estimate(args) => estimate::run(args, &cli.global),
         Command::Check(args) => check::run(args, &cli.global),
         Command::Simulate(args) => simulate::run(args, &cli.global),
     };

@@ -38,15 +38,29 @@ pub enum Smoothing {
     Slope,
     /// Penalise its curvature (order 2).
     Curvature,
+    /// Choose curvature or slope by the marginal likelihood of the readings (the default;
+    /// see `docs/calibration.md`).
+    Auto,
 }
 
 impl Smoothing {
-    /// The order of the penalised derivative: 0, 1 or 2.
-    pub fn order(self) -> usize {
+    /// The order of the penalised derivative: 0, 1 or 2; `None` for [`Smoothing::Auto`].
+    pub fn order(self) -> Option<usize> {
         match self {
-            Smoothing::Size => 0,
-            Smoothing::Slope => 1,
-            Smoothing::Curvature => 2,
+            Smoothing::Size => Some(0),
+            Smoothing::Slope => Some(1),
+            Smoothing::Curvature => Some(2),
+            Smoothing::Auto => None,
+        }
+    }
+
+    /// The smoothing of a given order (0, 1, 2).
+    pub fn of_order(order: usize) -> Option<Self> {
+        match order {
+            0 => Some(Smoothing::Size),
+            1 => Some(Smoothing::Slope),
+            2 => Some(Smoothing::Curvature),
+            _ => None,
         }
     }
 
@@ -56,6 +70,7 @@ impl Smoothing {
             Smoothing::Size => "size",
             Smoothing::Slope => "slope",
             Smoothing::Curvature => "curvature",
+            Smoothing::Auto => "auto",
         }
     }
 }

@@ -24,7 +24,9 @@ pub use case::{
 };
 pub mod grid;
 pub use grid::{DEFAULT_GRID, grid_coordinates, parse_grid};
-pub use output::{OUTPUT_FILE_NAMES, check_output_dir, check_output_file, write_atomic};
+pub use output::{
+    OUTPUT_FILE_NAMES, check_output_dir, check_output_file, create_output_dir, write_atomic,
+};
 pub use plate_file::{
     DEFAULT_CONFIDENCE, DEFAULT_REPLICATES, DEFAULT_SEED, DEFAULT_TERMS, MAX_REPLICATES, MAX_TERMS,
 };

@@ -38,6 +38,14 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
         .tempfile_in(dir)
         .map_err(io_err)?;
     tmp.write_all(bytes).map_err(io_err)?;
+    // tempfile creates its files readable by the owner only; results are ordinary files.
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        tmp.as_file()
+            .set_permissions(std::fs::Permissions::from_mode(0o644))
+            .map_err(io_err)?;
+    }
     tmp.as_file().sync_all().map_err(io_err)?;
     tmp.persist(path).map_err(|e| io_err(e.error))?;
     Ok(())
@@ -82,6 +90,15 @@ pub fn check_output_dir(out: &Path, inputs: &[&Path]) -> Result<()> {
         }
     }
     Ok(())
+}
+
+/// Create the output directory (and its parents) if it does not exist.
+pub fn create_output_dir(dir: &Path) -> Result<()> {
+    std::fs::create_dir_all(dir).map_err(|source| Error::Io {
+        path: dir.to_path_buf(),
+        source,
+        input: false,
+    })
 }
 
 /// Refuse (with [`Error::Invalid`], exit status 2) an output file that is one of `inputs`.

@@ -450,7 +450,7 @@ impl Checker<'_> {
         };
         Ok(FitSettings {
             terms,
-            smoothing: raw.smoothing.unwrap_or(Smoothing::Curvature),
+            smoothing: raw.smoothing.unwrap_or(Smoothing::Auto),
             strength,
         })
     }
@@ -606,7 +606,7 @@ sigma = 0.5
         assert_eq!(f.plate.unknown_edges(), vec![Edge::Bottom]);
         assert_eq!(f.plate.shape().width(), 0.15);
         assert_eq!(f.fit.terms, DEFAULT_TERMS);
-        assert_eq!(f.fit.smoothing, Smoothing::Curvature);
+        assert_eq!(f.fit.smoothing, Smoothing::Auto);
         assert_eq!(f.fit.strength, StrengthRule::Default);
         assert_eq!(f.noise, NoiseSpec::Sigma(0.5));
         assert_eq!(f.uncertainty.replicates, 2000);

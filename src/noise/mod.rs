@@ -109,3 +109,111 @@ pub enum NoiseSpec {
     /// Nothing stated: estimate from the residuals (unless every sensor has its own sigma).
     Unstated,
 }
+
+/// Where the reading uncertainties of a fit came from.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "kebab-case")]
+pub enum SigmaSource {
+    /// Every reading's sigma from the `sigma` column of `sensors.csv` (with `[noise]` filling
+    /// the gaps, if any).
+    Sensors,
+    /// `[noise] sigma`.
+    Stated,
+    /// A thermocouple tolerance class.
+    ToleranceClass,
+    /// Nothing stated: estimated from the fit's residuals.
+    Estimated,
+}
+
+impl SigmaSource {
+    /// The name used in summaries.
+    pub fn name(self) -> &'static str {
+        match self {
+            SigmaSource::Sensors => "sensors",
+            SigmaSource::Stated => "stated",
+            SigmaSource::ToleranceClass => "tolerance-class",
+            SigmaSource::Estimated => "estimated",
+        }
+    }
+}
+
+/// The standard uncertainty of each reading, kelvin, and where it came from.
+///
+/// `own` holds each sensor's `sigma` column (kelvin) and `readings_k` the readings (kelvin),
+/// both for the readings used in the fit. Precedence: a sensor's own sigma, then
+/// `[noise] sigma`, then the tolerance class at the reading's temperature converted to a
+/// standard uncertainty with the GUM's rectangular rule `a/√3`. With nothing stated the
+/// sigmas are all 1 K (relative weights only) and the source is
+/// [`SigmaSource::Estimated`]: the caller scales them by the residual estimate. When only
+/// some sensors have their own sigma and nothing else is stated, the error names the first
+/// sensor without one (index into `own`).
+pub fn reading_sigmas(
+    spec: &NoiseSpec,
+    own: &[Option<f64>],
+    readings_k: &[f64],
+) -> Result<(Vec<f64>, SigmaSource), (usize, String)> {
+    let all_own = own.iter().all(Option::is_some);
+    let any_own = own.iter().any(Option::is_some);
+    let mut out = Vec::with_capacity(own.len());
+    for (i, (s, &t)) in own.iter().zip(readings_k).enumerate() {
+        let sigma = match (s, spec) {
+            (Some(s), _) => *s,
+            (None, NoiseSpec::Sigma(s)) => *s,
+            (None, NoiseSpec::Tolerance { class, tc_type }) => {
+                tolerance::standard_uncertainty(*class, *tc_type, t - 273.15).map_err(|m| (i, m))?
+            }
+            (None, NoiseSpec::Unstated) if any_own => {
+                return Err((
+                    i,
+                    "this sensor has no sigma while others do, and plate.toml has no [noise] \
+                     section: give every sensor a sigma, or add [noise] sigma"
+                        .to_string(),
+                ));
+            }
+            (None, NoiseSpec::Unstated) => 1.0,
+        };
+        out.push(sigma);
+    }
+    let source = if any_own {
+        SigmaSource::Sensors
+    } else {
+        match spec {
+            NoiseSpec::Sigma(_) => SigmaSource::Stated,
+            NoiseSpec::Tolerance { .. } => SigmaSource::ToleranceClass,
+            NoiseSpec::Unstated => SigmaSource::Estimated,
+        }
+    };
+    debug_assert!(all_own || !any_own || !matches!(spec, NoiseSpec::Unstated));
+    Ok((out, source))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn precedence_of_sigma_sources() {
+        let (s, src) =
+            reading_sigmas(&NoiseSpec::Sigma(0.2), &[Some(0.5), None], &[300.0, 301.0]).unwrap();
+        assert_eq!(s, vec![0.5, 0.2]);
+        assert_eq!(src, SigmaSource::Sensors);
+        let (s, src) =
+            reading_sigmas(&NoiseSpec::Unstated, &[None, None], &[300.0, 301.0]).unwrap();
+        assert_eq!(s, vec![1.0, 1.0]);
+        assert_eq!(src, SigmaSource::Estimated);
+        assert_eq!(
+            reading_sigmas(&NoiseSpec::Unstated, &[Some(0.1), None], &[300.0, 301.0])
+                .unwrap_err()
+                .0,
+            1
+        );
+        // IEC 60584-1 class 1, type T: ±0.5 °C below 125 °C; u = a/√3 (GUM rectangular rule).
+        let spec = NoiseSpec::Tolerance {
+            class: ToleranceClass::Iec1,
+            tc_type: ThermocoupleType::T,
+        };
+        let (s, src) = reading_sigmas(&spec, &[None], &[273.15 + 60.0]).unwrap();
+        assert!((s[0] - 0.5 / 3f64.sqrt()).abs() < 1e-12);
+        assert_eq!(src, SigmaSource::ToleranceClass);
+    }
+}

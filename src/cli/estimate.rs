@@ -1,0 +1,167 @@
+//! `edgetherm estimate CASE_DIR`: the main job. Reconstruct the hidden edges and the field
+//! from one set of readings, with uncertainty, and write the outputs of SPEC §3.3.
+//!
+//! Exit status: 0 done; 3 when `--limit` is given and the probability that a hidden edge
+//! exceeds it passes `--probability`; 2 invalid input; 1 internal error.
+
+use super::{GlobalOptions, print_stdout};
+use edgetherm::estimate::{EstimateOptions, estimate};
+use edgetherm::io::{StrengthRule, check_output_dir, load_case, load_readings, parse_grid};
+use edgetherm::report::{summary_json, text_summary, write_outputs};
+use edgetherm::uncertainty::BootstrapMode;
+use edgetherm::{Error, Result};
+use indicatif::{ProgressBar, ProgressStyle};
+use std::io::IsTerminal;
+use std::path::PathBuf;
+
+/// Arguments of `edgetherm estimate`.
+#[derive(Debug, clap::Args)]
+pub struct EstimateArgs {
+    /// The case directory (plate.toml, sensors.csv, readings.csv).
+    #[arg(value_name = "CASE_DIR")]
+    pub case_dir: PathBuf,
+    /// Directory for the output files (created if needed; never an input's directory if an
+    /// output would replace an input).
+    #[arg(long, value_name = "DIR", default_value = "edgetherm-out")]
+    pub out: PathBuf,
+    /// Alarm limit for the hidden edges, in the case's temperature unit: report the
+    /// probability that any point of a hidden edge exceeds it.
+    #[arg(long, value_name = "T")]
+    pub limit: Option<f64>,
+    /// Exit with status 3 when the probability of exceeding --limit is above this.
+    #[arg(long, value_name = "P", default_value_t = 0.05)]
+    pub probability: f64,
+    /// Keep every sensor: do not leave out sensors that look faulty.
+    #[arg(long)]
+    pub keep_all: bool,
+    /// Bootstrap noise: `parametric` (Gaussian with the stated sigma) or `residual`
+    /// (resampled residuals) [default: parametric when sigma is stated, else residual].
+    #[arg(long, value_name = "MODE", value_parser = ["parametric", "residual"])]
+    pub bootstrap: Option<String>,
+    /// Bootstrap replicates [default: the case's [uncertainty] replicates, else 2000].
+    #[arg(long, value_name = "N")]
+    pub replicates: Option<usize>,
+    /// Seed of the bootstrap [default: the case's [uncertainty] seed].
+    #[arg(long, value_name = "N")]
+    pub seed: Option<u64>,
+    /// Smoothing strength rule, overriding the case: gcv, discrepancy, evidence, lcurve, or a
+    /// positive number (fixed).
+    #[arg(long, value_name = "RULE")]
+    pub strength: Option<String>,
+    /// Field grid: NX,NY points, edges included [default: 41,41].
+    #[arg(long, value_name = "NX,NY")]
+    pub grid: Option<String>,
+}
+
+/// Run `estimate`.
+pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
+    let files = global.case_files(&args.case_dir);
+    let case = load_case(&files)?;
+    let readings = load_readings(&case.files.readings, &case)?;
+    check_output_dir(&args.out, &case.files.inputs())?;
+    if !(args.probability > 0.0 && args.probability < 1.0) {
+        return Err(Error::invalid_field(
+            "--probability",
+            format!(
+                "must lie strictly between 0 and 1, not {}",
+                args.probability
+            ),
+        ));
+    }
+    let limit = match args.limit {
+        Some(t) if t.is_finite() => Some(case.units.temp_to_k(t)),
+        Some(t) => {
+            return Err(Error::invalid_field(
+                "--limit",
+                format!("must be a finite temperature, not {t}"),
+            ));
+        }
+        None => None,
+    };
+    if args.replicates == Some(0) {
+        return Err(Error::invalid_field("--replicates", "must be at least 1"));
+    }
+    let strength = args.strength.as_deref().map(parse_strength).transpose()?;
+    let options = EstimateOptions {
+        mode: args.bootstrap.as_deref().map(|m| {
+            if m == "residual" {
+                BootstrapMode::Residual
+            } else {
+                BootstrapMode::Parametric
+            }
+        }),
+        limit,
+        alarm_probability: args.probability,
+        keep_all: args.keep_all,
+        grid: match &args.grid {
+            Some(g) => parse_grid(g)?,
+            None => edgetherm::io::DEFAULT_GRID,
+        },
+        replicates: args.replicates,
+        seed: args.seed,
+        strength,
+    };
+
+    let total = options.replicates.unwrap_or(case.uncertainty.replicates) as u64;
+    let bar = (!global.quiet && std::io::stderr().is_terminal()).then(|| {
+        let bar = ProgressBar::new(total);
+        bar.set_style(
+            ProgressStyle::with_template("bootstrap {bar:32} {pos}/{len} replicates ({eta})")
+                .unwrap_or_else(|_| ProgressStyle::default_bar()),
+        );
+        bar
+    });
+    let tick = |n: usize| {
+        if let Some(b) = &bar {
+            b.set_position(n as u64);
+        }
+    };
+    let result = estimate(
+        &case,
+        &readings,
+        &options,
+        bar.as_ref().map(|_| &tick as &(dyn Fn(usize) + Sync)),
+    )?;
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let written = write_outputs(&result, &args.out)?;
+    if global.json {
+        print_stdout(&format!("{:#}\n", summary_json(&result)))?;
+    } else if !global.quiet {
+        let mut text = text_summary(&result);
+        text.push_str(&format!(
+            "\nWrote {} files to {}.\n",
+            written.len(),
+            args.out.display()
+        ));
+        print_stdout(&text)?;
+    }
+    Ok(if result.exceedance.is_some_and(|e| e.alarm) {
+        3
+    } else {
+        0
+    })
+}
+
+fn parse_strength(s: &str) -> Result<StrengthRule> {
+    let rule = match s.trim() {
+        "gcv" => StrengthRule::Gcv,
+        "discrepancy" => StrengthRule::Discrepancy,
+        "evidence" => StrengthRule::Evidence,
+        "lcurve" => StrengthRule::LCurve,
+        other => match other.parse::<f64>() {
+            Ok(v) if v.is_finite() && v > 0.0 => StrengthRule::Fixed(v),
+            _ => {
+                return Err(Error::invalid_field(
+                    "--strength",
+                    format!(
+                        "expected gcv, discrepancy, evidence, lcurve or a positive number, \
+                         not `{s}`"
+                    ),
+                ));
+            }
+        },
+    };
+    Ok(rule)
+}

@@ -1,0 +1,184 @@
+//! What an estimate produces: every number the outputs of SPEC §3.3 print.
+//!
+//! Values are SI (metres, kelvin; temperature differences in kelvin); [`EstimateResult::units`]
+//! says how the report converts them back to the case's units. Intervals are at
+//! [`EstimateResult::confidence`].
+
+use crate::geometry::{Edge, Plate, Point};
+use crate::units::Units;
+use serde::Serialize;
+
+/// The reconstruction of one unknown edge, sampled finely along it.
+#[derive(Debug, Clone, Serialize)]
+pub struct EdgeResult {
+    /// The edge.
+    pub edge: Edge,
+    /// Positions along the edge, metres from its lower coordinate.
+    pub positions: Vec<f64>,
+    /// The estimated temperature at each position, kelvin.
+    pub estimate: Vec<f64>,
+    /// Pointwise band from the bootstrap (lower, upper), kelvin.
+    pub lower: Vec<f64>,
+    /// See [`EdgeResult::lower`].
+    pub upper: Vec<f64>,
+    /// Simultaneous band over the whole edge (sup-t), kelvin.
+    pub simultaneous_lower: Vec<f64>,
+    /// See [`EdgeResult::simultaneous_lower`].
+    pub simultaneous_upper: Vec<f64>,
+    /// Linear (Gaussian posterior) band, the cross-check, kelvin.
+    pub linear_lower: Vec<f64>,
+    /// See [`EdgeResult::linear_lower`].
+    pub linear_upper: Vec<f64>,
+    /// Resolution length along the edge at the hottest point of this edge (width at half
+    /// maximum of the averaging kernel of the model resolution matrix), metres.
+    pub resolution_length: f64,
+    /// Heat flow into the plate through this edge per unit depth, W/m, with its interval;
+    /// `None` without a conductivity.
+    pub heat_flow: Option<Interval>,
+}
+
+/// A value with an interval.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct Interval {
+    /// The estimate.
+    pub value: f64,
+    /// Lower end.
+    pub lower: f64,
+    /// Upper end.
+    pub upper: f64,
+}
+
+/// The field on a grid.
+#[derive(Debug, Clone, Serialize)]
+pub struct FieldResult {
+    /// Grid abscissae, metres.
+    pub xs: Vec<f64>,
+    /// Grid ordinates, metres.
+    pub ys: Vec<f64>,
+    /// `estimate[j * xs.len() + i]` is the temperature at `(xs[i], ys[j])`, kelvin.
+    pub estimate: Vec<f64>,
+    /// Pointwise band, same layout, kelvin.
+    pub lower: Vec<f64>,
+    /// See [`FieldResult::lower`].
+    pub upper: Vec<f64>,
+}
+
+/// Diagnostics of one sensor.
+#[derive(Debug, Clone, Serialize)]
+pub struct SensorResult {
+    /// Sensor id.
+    pub sensor: String,
+    /// Position, metres.
+    pub position: Point,
+    /// The reading, kelvin; `None` when the readings had no value for this sensor.
+    pub reading: Option<f64>,
+    /// The fitted temperature at the sensor, kelvin.
+    pub fitted: f64,
+    /// Reading minus fitted, kelvin (`None` without a reading).
+    pub residual: Option<f64>,
+    /// Standardised leave-one-out residual (dimensionless; ~N(0,1) for a good sensor).
+    pub loo_residual: Option<f64>,
+    /// Leverage: the diagonal of the influence matrix (0..1).
+    pub leverage: Option<f64>,
+    /// Standard uncertainty used for this reading, kelvin.
+    pub sigma: Option<f64>,
+    /// Why the sensor was left out of the fit, if it was.
+    pub flag: Option<String>,
+}
+
+/// The hottest point on the unknown edges.
+#[derive(Debug, Clone, Serialize)]
+pub struct Hottest {
+    /// The edge it is on (in the estimate).
+    pub edge: Edge,
+    /// Position along that edge, metres.
+    pub position: f64,
+    /// Interval for the position, metres (replicates whose hottest point lies on this edge).
+    pub position_interval: [f64; 2],
+    /// Its temperature, kelvin.
+    pub temperature: f64,
+    /// Interval for the hottest temperature, kelvin.
+    pub temperature_interval: [f64; 2],
+    /// Share of the bootstrap replicates whose hottest point lies on each edge.
+    pub edge_shares: Vec<(Edge, f64)>,
+    /// Share of the replicates whose hottest point lies within the position interval's
+    /// neighbourhood of the estimate (a second peak elsewhere lowers it).
+    pub main_peak_share: f64,
+}
+
+/// The probability that a hidden edge exceeds a limit anywhere.
+#[derive(Debug, Clone, Copy, Serialize)]
+pub struct Exceedance {
+    /// The limit, kelvin.
+    pub limit: f64,
+    /// Probability (share of replicates) that the hottest temperature exceeds it.
+    pub probability: f64,
+    /// The probability above which an alarm is raised.
+    pub alarm_probability: f64,
+    /// Whether the alarm is raised (exit status 3).
+    pub alarm: bool,
+}
+
+/// How the strength was chosen.
+#[derive(Debug, Clone, Serialize)]
+pub struct StrengthSummary {
+    /// The rule (`gcv`, `discrepancy`, `evidence`, `lcurve`, `fixed`).
+    pub method: String,
+    /// The chosen strength.
+    pub value: f64,
+    /// Effective number of parameters (trace of the influence matrix).
+    pub effective_parameters: f64,
+    /// Whether the rule's optimum sat at the end of the search range.
+    pub at_range_end: bool,
+}
+
+/// Goodness of fit.
+#[derive(Debug, Clone, Serialize)]
+pub struct FitSummary {
+    /// Representative reading uncertainty (the root-mean-square of the sensors' sigmas),
+    /// kelvin.
+    pub sigma: f64,
+    /// Where sigma came from: `stated`, `sensors`, `tolerance-class`, `estimated`.
+    pub sigma_source: String,
+    /// Weighted residual sum of squares.
+    pub chi_square: f64,
+    /// Residual degrees of freedom (readings used minus effective parameters).
+    pub dof: f64,
+    /// Probability of a chi-square at least this large if the model and sigma are right.
+    pub p_value: Option<f64>,
+    /// Readings used in the fit.
+    pub readings_used: usize,
+}
+
+/// Everything an estimate produces.
+#[derive(Debug, Clone, Serialize)]
+pub struct EstimateResult {
+    /// The case's units (for the report).
+    pub units: Units,
+    /// The plate (outline and edge conditions), SI.
+    pub plate: Plate,
+    /// One entry per unknown edge.
+    pub edges: Vec<EdgeResult>,
+    /// The field on the grid.
+    pub field: FieldResult,
+    /// Per-sensor diagnostics, in the order of `sensors.csv`.
+    pub sensors: Vec<SensorResult>,
+    /// The hottest point.
+    pub hottest: Hottest,
+    /// Exceedance of a limit, when one was given.
+    pub exceedance: Option<Exceedance>,
+    /// The regularisation strength.
+    pub strength: StrengthSummary,
+    /// Goodness of fit.
+    pub fit: FitSummary,
+    /// Confidence level of every interval and band.
+    pub confidence: f64,
+    /// Bootstrap replicates.
+    pub replicates: usize,
+    /// Bootstrap mode (`residual` or `parametric`).
+    pub bootstrap_mode: String,
+    /// Seed of the bootstrap.
+    pub seed: u64,
+    /// Cautions for the reader.
+    pub cautions: Vec<String>,
+}

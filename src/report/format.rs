@@ -1,0 +1,329 @@
+//! Numbers and units for every output: SI values converted back to the case's units once,
+//! written with a fixed precision, missing or non-finite values left empty (CSV) or `null`
+//! (JSON), and text escaped for HTML and SVG.
+
+use crate::geometry::Edge;
+use crate::units::{LengthUnit, TemperatureUnit, Units};
+use serde_json::Value;
+
+/// Decimals of a temperature (or temperature difference) in the data files: 0.1 mK in
+/// kelvin and Celsius, well below any thermocouple's resolution, so rounding never shows.
+pub(crate) const TEMP_FILE_DECIMALS: usize = 4;
+
+/// Decimals of dimensionless diagnostics (leverage, standardised residuals, probabilities,
+/// effective parameters, chi-square) in the data files.
+pub(crate) const RATIO_FILE_DECIMALS: usize = 4;
+
+/// Significant digits for values that span decades (the strength, p-values).
+pub(crate) const SIGNIFICANT_DIGITS: i32 = 4;
+
+/// Case units and conversions from the library's SI values, with the formats each output
+/// uses.
+#[derive(Debug, Clone, Copy)]
+pub(crate) struct CaseUnits {
+    units: Units,
+}
+
+impl CaseUnits {
+    pub(crate) fn new(units: Units) -> Self {
+        CaseUnits { units }
+    }
+
+    /// Metres → case length.
+    pub(crate) fn len(&self, m: f64) -> f64 {
+        self.units.length_from_m(m)
+    }
+
+    /// Kelvin → case temperature.
+    pub(crate) fn temp(&self, k: f64) -> f64 {
+        self.units.temp_from_k(k)
+    }
+
+    /// Kelvin difference → case temperature difference.
+    pub(crate) fn dtemp(&self, k: f64) -> f64 {
+        self.units.dtemp_from_k(k)
+    }
+
+    /// Length unit symbol (`mm`, `m`, `in`).
+    pub(crate) fn len_symbol(&self) -> &'static str {
+        self.units.length.symbol()
+    }
+
+    /// Temperature unit as a reader writes it (`°C`, `K`, `°F`).
+    pub(crate) fn temp_symbol(&self) -> &'static str {
+        match self.units.temperature {
+            TemperatureUnit::Celsius => "°C",
+            TemperatureUnit::Kelvin => "K",
+            TemperatureUnit::Fahrenheit => "°F",
+        }
+    }
+
+    /// Temperature unit as written in case files (`C`, `K`, `F`).
+    pub(crate) fn temp_code(&self) -> &'static str {
+        self.units.temperature.symbol()
+    }
+
+    /// Decimals of a length in the data files: 1 µm in millimetres and metres, 0.0001 in.
+    pub(crate) fn len_file_decimals(&self) -> usize {
+        match self.units.length {
+            LengthUnit::Millimetre => 3,
+            LengthUnit::Metre => 6,
+            LengthUnit::Inch => 4,
+        }
+    }
+
+    /// Decimals of a length shown to a reader: 0.1 mm, 0.1 mm in metres, 0.001 in.
+    pub(crate) fn len_show_decimals(&self) -> usize {
+        match self.units.length {
+            LengthUnit::Millimetre => 1,
+            LengthUnit::Metre => 4,
+            LengthUnit::Inch => 3,
+        }
+    }
+
+    /// A length (metres) for a data file, in case units.
+    pub(crate) fn len_file(&self, m: f64) -> String {
+        fixed(self.len(m), self.len_file_decimals())
+    }
+
+    /// A temperature (kelvin) for a data file, in case units.
+    pub(crate) fn temp_file(&self, k: f64) -> String {
+        fixed(self.temp(k), TEMP_FILE_DECIMALS)
+    }
+
+    /// A temperature difference (kelvin) for a data file, in case units.
+    pub(crate) fn dtemp_file(&self, k: f64) -> String {
+        fixed(self.dtemp(k), TEMP_FILE_DECIMALS)
+    }
+
+    /// A length (metres) as JSON, in case units.
+    pub(crate) fn len_json(&self, m: f64) -> Value {
+        rounded(self.len(m), self.len_file_decimals())
+    }
+
+    /// A temperature (kelvin) as JSON, in case units.
+    pub(crate) fn temp_json(&self, k: f64) -> Value {
+        rounded(self.temp(k), TEMP_FILE_DECIMALS)
+    }
+
+    /// A temperature difference (kelvin) as JSON, in case units.
+    pub(crate) fn dtemp_json(&self, k: f64) -> Value {
+        rounded(self.dtemp(k), TEMP_FILE_DECIMALS)
+    }
+
+    /// A length (metres) for a reader, number only.
+    pub(crate) fn len_num(&self, m: f64) -> String {
+        fixed_or_dash(self.len(m), self.len_show_decimals())
+    }
+
+    /// A length (metres) for a reader, with its unit.
+    pub(crate) fn len_show(&self, m: f64) -> String {
+        format!("{} {}", self.len_num(m), self.len_symbol())
+    }
+
+    /// A temperature (kelvin) for a reader, number only (two decimals).
+    pub(crate) fn temp_num(&self, k: f64) -> String {
+        fixed_or_dash(self.temp(k), 2)
+    }
+
+    /// A temperature (kelvin) for a reader, with its unit.
+    pub(crate) fn temp_show(&self, k: f64) -> String {
+        format!("{} {}", self.temp_num(k), self.temp_symbol())
+    }
+
+    /// A length already in case units, for a reader, with its unit.
+    pub(crate) fn case_len_show(&self, v: f64) -> String {
+        format!(
+            "{} {}",
+            fixed_or_dash(v, self.len_show_decimals()),
+            self.len_symbol()
+        )
+    }
+
+    /// A temperature already in case units, for a reader, with its unit.
+    pub(crate) fn case_temp_show(&self, v: f64) -> String {
+        format!("{} {}", fixed_or_dash(v, 2), self.temp_symbol())
+    }
+
+    /// A temperature difference (kelvin) for a reader, number only.
+    pub(crate) fn dtemp_num(&self, k: f64) -> String {
+        fixed_or_dash(self.dtemp(k), 2)
+    }
+
+    /// A temperature difference (kelvin) for a reader, with its unit.
+    pub(crate) fn dtemp_show(&self, k: f64) -> String {
+        format!("{} {}", self.dtemp_num(k), self.temp_symbol())
+    }
+}
+
+/// The coordinate that positions run along on `edge` (SPEC §3.3).
+pub(crate) fn edge_coordinate(edge: Edge) -> &'static str {
+    if edge.runs_along_x() { "x" } else { "y" }
+}
+
+/// `v` with `decimals` decimals; empty when `v` is not finite; never `-0.000`.
+pub(crate) fn fixed(v: f64, decimals: usize) -> String {
+    if !v.is_finite() {
+        return String::new();
+    }
+    let s = format!("{v:.decimals$}");
+    if s.starts_with('-') && s[1..].chars().all(|c| c == '0' || c == '.') {
+        s[1..].to_string()
+    } else {
+        s
+    }
+}
+
+/// Like [`fixed`], but an en dash for a missing value (for a reader).
+pub(crate) fn fixed_or_dash(v: f64, decimals: usize) -> String {
+    if v.is_finite() {
+        fixed(v, decimals)
+    } else {
+        "–".to_string()
+    }
+}
+
+/// An optional value: [`fixed`] of the converted value, empty for `None`.
+pub(crate) fn opt_fixed(v: Option<f64>, decimals: usize) -> String {
+    v.map_or_else(String::new, |v| fixed(v, decimals))
+}
+
+/// `v` rounded to `decimals` decimals as a JSON number; `null` when not finite.
+pub(crate) fn rounded(v: f64, decimals: usize) -> Value {
+    if !v.is_finite() {
+        return Value::Null;
+    }
+    let scale = 10f64.powi(decimals as i32);
+    let r = (v * scale).round() / scale;
+    // Normalise -0.0 so that files never show `-0.0`.
+    json_number(if r == 0.0 { 0.0 } else { r })
+}
+
+/// `v` rounded to `digits` significant digits as a JSON number; `null` when not finite.
+pub(crate) fn significant(v: f64, digits: i32) -> Value {
+    if !v.is_finite() {
+        return Value::Null;
+    }
+    if v == 0.0 {
+        return json_number(0.0);
+    }
+    let magnitude = v.abs().log10().floor() as i32;
+    let scale = 10f64.powi(digits - 1 - magnitude);
+    json_number((v * scale).round() / scale)
+}
+
+/// `v` with `digits` significant digits for a reader (`1.234e-3` style for small or large
+/// values).
+pub(crate) fn significant_text(v: f64, digits: usize) -> String {
+    if !v.is_finite() {
+        return "–".to_string();
+    }
+    if v == 0.0 {
+        return "0".to_string();
+    }
+    let magnitude = v.abs().log10().floor() as i32;
+    if (-3..5).contains(&magnitude) {
+        let decimals = (digits as i32 - 1 - magnitude).max(0) as usize;
+        format!("{v:.decimals$}")
+    } else {
+        let decimals = digits.saturating_sub(1);
+        format!("{v:.decimals$e}")
+    }
+}
+
+fn json_number(v: f64) -> Value {
+    serde_json::Number::from_f64(v).map_or(Value::Null, Value::Number)
+}
+
+/// Escape text for HTML or XML content and attribute values.
+pub(crate) fn escape_html(s: &str) -> String {
+    let mut out = String::with_capacity(s.len());
+    for c in s.chars() {
+        match c {
+            '&' => out.push_str("&amp;"),
+            '<' => out.push_str("&lt;"),
+            '>' => out.push_str("&gt;"),
+            '"' => out.push_str("&quot;"),
+            '\'' => out.push_str("&#39;"),
+            c => out.push(c),
+        }
+    }
+    out
+}
+
+/// A number for an axis tick: as few decimals as the value needs (ticks are round numbers,
+/// so floating-point noise such as `0.30000000000000004` is trimmed).
+pub(crate) fn tick(v: f64) -> String {
+    let s = fixed(v, 6);
+    if s.contains('.') {
+        let t = s.trim_end_matches('0').trim_end_matches('.');
+        if t == "-0" {
+            "0".to_string()
+        } else {
+            t.to_string()
+        }
+    } else {
+        s
+    }
+}
+
+/// The fewest decimals (up to 6) that write multiples of `step` exactly.
+pub(crate) fn step_decimals(step: f64) -> usize {
+    (0..=6)
+        .find(|&d| {
+            let scaled = step * 10f64.powi(d as i32);
+            (scaled - scaled.round()).abs() < 1e-6 * scaled.abs().max(1.0)
+        })
+        .unwrap_or(6)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn fixed_precision_and_missing_values() {
+        assert_eq!(fixed(1.23456, 3), "1.235");
+        assert_eq!(fixed(-0.00001, 3), "0.000");
+        assert_eq!(fixed(f64::NAN, 3), "");
+        assert_eq!(fixed(f64::INFINITY, 1), "");
+        assert_eq!(opt_fixed(None, 2), "");
+        assert_eq!(rounded(f64::NAN, 2), Value::Null);
+        assert_eq!(rounded(-0.00001, 2), serde_json::json!(0.0));
+        assert_eq!(rounded(71.23456, 2), serde_json::json!(71.23));
+        assert_eq!(significant(0.001234567, 4), serde_json::json!(0.001235));
+        assert_eq!(significant(123456.0, 2), serde_json::json!(120000.0));
+    }
+
+    #[test]
+    fn readable_numbers() {
+        assert_eq!(significant_text(0.001234567, 3), "0.00123");
+        assert_eq!(significant_text(1.5e-7, 3), "1.50e-7");
+        assert_eq!(tick(0.30000000000000004), "0.3");
+        assert_eq!(tick(20.0), "20");
+        assert_eq!(tick(-0.0), "0");
+        assert_eq!(step_decimals(2.5), 1);
+        assert_eq!(step_decimals(5.0), 0);
+        assert_eq!(step_decimals(0.02), 2);
+    }
+
+    #[test]
+    fn escapes_markup() {
+        assert_eq!(escape_html("<b>&\"x'"), "&lt;b&gt;&amp;&quot;x&#39;");
+    }
+
+    // 0 °C = 273.15 K (SI brochure); a difference of 1 K is 1.8 °F (definition of the
+    // Fahrenheit degree).
+    #[test]
+    fn converts_to_case_units() {
+        let u = CaseUnits::new(Units {
+            length: LengthUnit::Inch,
+            temperature: TemperatureUnit::Fahrenheit,
+        });
+        assert_eq!(u.temp_file(373.15), "212.0000");
+        assert_eq!(u.dtemp_file(1.0), "1.8000");
+        assert_eq!(u.len_file(0.0254), "1.0000");
+        assert_eq!(u.temp_symbol(), "°F");
+        assert_eq!(u.temp_show(273.15), "32.00 °F");
+    }
+}

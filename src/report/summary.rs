@@ -1,0 +1,396 @@
+//! `summary.json` (SPEC §3.4, the part other programs rely on) and the text summary a person
+//! reads on stdout, both in the case's units.
+
+use super::format::{
+    CaseUnits, RATIO_FILE_DECIMALS, SIGNIFICANT_DIGITS, edge_coordinate, fixed, rounded,
+    significant, significant_text,
+};
+use super::tables::mean_half_width;
+use crate::estimate::{EdgeResult, EstimateResult};
+use serde_json::{Map, Value, json};
+use std::fmt::Write as _;
+
+pub use crate::estimate::SAFETY_CAUTION;
+
+/// The unit of the heat flows: per unit depth of the plate, into the plate.
+pub(crate) const HEAT_FLOW_UNIT: &str = "W/m";
+
+/// Whether a caution already says what [`SAFETY_CAUTION`] says (estimates, not
+/// measurements; decisions follow licensed practice), in whatever words.
+fn is_safety_caution(c: &str) -> bool {
+    let c = c.to_lowercase();
+    c == SAFETY_CAUTION.to_lowercase()
+        || (c.contains("not measurements") && c.contains("licensed practice"))
+}
+
+/// The cautions of a result, then the safety caution (always, exactly once: a result's own
+/// wording of it is replaced by [`SAFETY_CAUTION`]).
+pub fn cautions(r: &EstimateResult) -> Vec<String> {
+    let mut out: Vec<String> = Vec::new();
+    for c in &r.cautions {
+        if !is_safety_caution(c) && !out.contains(c) {
+            out.push(c.clone());
+        }
+    }
+    out.push(SAFETY_CAUTION.to_string());
+    out
+}
+
+/// The sensors left out of the fit or marked as suspect: `(index, reason)`.
+pub(crate) fn flagged(r: &EstimateResult) -> Vec<(usize, &str)> {
+    r.sensors
+        .iter()
+        .enumerate()
+        .filter_map(|(k, s)| s.flag.as_deref().map(|f| (k, f)))
+        .collect()
+}
+
+/// The confidence as a percentage for a reader (`95 %`, `99.5 %`).
+pub(crate) fn percent(p: f64) -> String {
+    let v = 100.0 * p;
+    let s = fixed(v, 1);
+    let s = s.strip_suffix(".0").unwrap_or(&s);
+    format!("{s} %")
+}
+
+/// Where the estimate of an edge is highest: `(position, temperature)`, SI.
+pub(crate) fn edge_maximum(e: &EdgeResult) -> Option<(f64, f64)> {
+    e.positions
+        .iter()
+        .zip(&e.estimate)
+        .filter(|(s, t)| s.is_finite() && t.is_finite())
+        .max_by(|a, b| a.1.total_cmp(b.1))
+        .map(|(&s, &t)| (s, t))
+}
+
+/// `summary.json` as a JSON value: the keys of SPEC §3.4 with their meaning, plus heat
+/// flows, per-edge band widths, the bootstrap mode and the readings used.
+pub fn summary_json(r: &EstimateResult) -> Value {
+    let u = CaseUnits::new(r.units);
+    let h = &r.hottest;
+    let ratio = |v: f64| rounded(v, RATIO_FILE_DECIMALS);
+    let edge_map = |f: &dyn Fn(&EdgeResult) -> Option<Value>| -> Value {
+        let mut m = Map::new();
+        for e in &r.edges {
+            if let Some(v) = f(e) {
+                m.insert(e.edge.name().to_string(), v);
+            }
+        }
+        Value::Object(m)
+    };
+
+    let mut shares = Map::new();
+    for (edge, share) in &h.edge_shares {
+        shares.insert(edge.name().to_string(), ratio(*share));
+    }
+    let hottest = json!({
+        "edge": h.edge.name(),
+        "position": u.len_json(h.position),
+        "position_interval": [u.len_json(h.position_interval[0]), u.len_json(h.position_interval[1])],
+        "temperature": u.temp_json(h.temperature),
+        "temperature_interval": [
+            u.temp_json(h.temperature_interval[0]),
+            u.temp_json(h.temperature_interval[1]),
+        ],
+        "edge_shares": shares,
+        "main_peak_share": ratio(h.main_peak_share),
+    });
+
+    let mut out = Map::new();
+    out.insert("hottest".into(), hottest);
+    if let Some(x) = &r.exceedance {
+        out.insert(
+            "exceedance".into(),
+            json!({
+                "limit": u.temp_json(x.limit),
+                "probability": ratio(x.probability),
+                "alarm_probability": ratio(x.alarm_probability),
+                "alarm": x.alarm,
+            }),
+        );
+    }
+    out.insert(
+        "strength".into(),
+        json!({
+            "method": r.strength.method,
+            "value": significant(r.strength.value, SIGNIFICANT_DIGITS),
+            "effective_parameters": ratio(r.strength.effective_parameters),
+            "at_range_end": r.strength.at_range_end,
+        }),
+    );
+    out.insert(
+        "fit".into(),
+        json!({
+            "sigma": u.dtemp_json(r.fit.sigma),
+            "sigma_source": r.fit.sigma_source,
+            "chi_square": ratio(r.fit.chi_square),
+            "dof": ratio(r.fit.dof),
+            "p_value": r.fit.p_value.map_or(Value::Null, |p| significant(p, SIGNIFICANT_DIGITS)),
+            "readings_used": r.fit.readings_used,
+        }),
+    );
+    out.insert(
+        "resolution_length".into(),
+        edge_map(&|e| Some(u.len_json(e.resolution_length))),
+    );
+    out.insert(
+        "heat_flow".into(),
+        edge_map(&|e| {
+            e.heat_flow.map(|q| {
+                json!({
+                    "value": rounded(q.value, 3),
+                    "interval": [rounded(q.lower, 3), rounded(q.upper, 3)],
+                })
+            })
+        }),
+    );
+    out.insert(
+        "heat_flow_unit".into(),
+        json!(format!(
+            "{HEAT_FLOW_UNIT}, per unit depth of the plate, into the plate"
+        )),
+    );
+    let edges: Vec<Value> = r
+        .edges
+        .iter()
+        .map(|e| {
+            let (pos, temp) = edge_maximum(e).unwrap_or((f64::NAN, f64::NAN));
+            json!({
+                "edge": e.edge.name(),
+                "samples": e.positions.len(),
+                "maximum": {"position": u.len_json(pos), "temperature": u.temp_json(temp)},
+                "mean_half_width": {
+                    "pointwise": u.dtemp_json(mean_half_width(&e.lower, &e.upper)),
+                    "simultaneous": u.dtemp_json(
+                        mean_half_width(&e.simultaneous_lower, &e.simultaneous_upper)),
+                    "linear": u.dtemp_json(mean_half_width(&e.linear_lower, &e.linear_upper)),
+                },
+            })
+        })
+        .collect();
+    out.insert("edges".into(), Value::Array(edges));
+    let flagged_sensors: Vec<Value> = flagged(r)
+        .into_iter()
+        .map(|(k, reason)| {
+            let s = &r.sensors[k];
+            json!({
+                "sensor": s.sensor,
+                "loo_residual": s.loo_residual.map_or(Value::Null, ratio),
+                "reason": reason,
+            })
+        })
+        .collect();
+    out.insert("flagged_sensors".into(), Value::Array(flagged_sensors));
+    out.insert("sensor_count".into(), json!(r.sensors.len()));
+    out.insert(
+        "units".into(),
+        json!({"length": u.len_symbol(), "temperature": u.temp_code()}),
+    );
+    out.insert("confidence".into(), ratio(r.confidence));
+    out.insert("replicates".into(), json!(r.replicates));
+    out.insert("bootstrap_mode".into(), json!(r.bootstrap_mode));
+    out.insert("seed".into(), json!(r.seed));
+    out.insert("version".into(), json!(env!("CARGO_PKG_VERSION")));
+    out.insert("cautions".into(), json!(cautions(r)));
+    Value::Object(out)
+}
+
+/// Width of the label column of the text summary.
+const LABEL: usize = 17;
+
+fn line(out: &mut String, label: &str, text: &str) {
+    let _ = writeln!(out, "{label:<LABEL$}{text}");
+}
+
+/// The text summary for stdout: what a person needs in ten seconds — the hottest point with
+/// its intervals, the limit verdict, flagged sensors, resolution, fit quality, heat flows and
+/// the cautions (the safety caution always).
+pub fn text_summary(r: &EstimateResult) -> String {
+    let u = CaseUnits::new(r.units);
+    let h = &r.hottest;
+    let conf = percent(r.confidence);
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "edgetherm {} - hidden edge estimate ({conf} intervals, {} {} bootstrap replicates, \
+         seed {})",
+        env!("CARGO_PKG_VERSION"),
+        r.replicates,
+        r.bootstrap_mode,
+        r.seed
+    );
+    out.push('\n');
+
+    line(
+        &mut out,
+        "Hottest point",
+        &format!(
+            "{}   {conf} interval [{}, {}] {}",
+            u.temp_show(h.temperature),
+            u.temp_num(h.temperature_interval[0]),
+            u.temp_num(h.temperature_interval[1]),
+            u.temp_symbol()
+        ),
+    );
+    line(
+        &mut out,
+        "",
+        &format!(
+            "{} edge, {} = {}   {conf} interval [{}, {}] {}",
+            h.edge,
+            edge_coordinate(h.edge),
+            u.len_show(h.position),
+            u.len_num(h.position_interval[0]),
+            u.len_num(h.position_interval[1]),
+            u.len_symbol()
+        ),
+    );
+    let other_edges: Vec<String> = h
+        .edge_shares
+        .iter()
+        .filter(|(e, share)| *e != h.edge && *share > 0.0)
+        .map(|(e, share)| format!("{e} {}", percent(*share)))
+        .collect();
+    if !other_edges.is_empty() {
+        line(
+            &mut out,
+            "",
+            &format!(
+                "replicates whose hottest point is on another edge: {}",
+                other_edges.join(", ")
+            ),
+        );
+    }
+    if h.main_peak_share.is_finite() && h.main_peak_share < 0.9 {
+        line(
+            &mut out,
+            "",
+            &format!(
+                "only {} of the replicates put the peak near this position: another peak is \
+                 possible",
+                percent(h.main_peak_share)
+            ),
+        );
+    }
+
+    if let Some(x) = &r.exceedance {
+        let verdict = if x.alarm { "ALARM" } else { "no alarm" };
+        line(
+            &mut out,
+            "Limit",
+            &format!(
+                "{}: {verdict} - exceeded with probability {} (alarm when above {})",
+                u.temp_show(x.limit),
+                fixed(x.probability, 3),
+                fixed(x.alarm_probability, 3)
+            ),
+        );
+    }
+
+    let flags = flagged(r);
+    if flags.is_empty() {
+        line(&mut out, "Flagged sensors", "none");
+    } else {
+        for (n, (k, reason)) in flags.iter().enumerate() {
+            let s = &r.sensors[*k];
+            let loo = s
+                .loo_residual
+                .map(|v| format!(" (standardised LOO residual {})", fixed(v, 2)))
+                .unwrap_or_default();
+            let label = if n == 0 { "Flagged sensors" } else { "" };
+            line(&mut out, label, &format!("{}{loo}: {reason}", s.sensor));
+        }
+    }
+
+    for (n, e) in r.edges.iter().enumerate() {
+        let label = if n == 0 { "Resolution" } else { "" };
+        line(
+            &mut out,
+            label,
+            &format!(
+                "{} edge {} (narrower features are smoothed away)",
+                e.edge,
+                u.len_show(e.resolution_length)
+            ),
+        );
+    }
+
+    let p = r.fit.p_value.map_or_else(
+        || "p not available".to_string(),
+        |p| format!("p = {}", significant_text(p, 2)),
+    );
+    let quality = match r.fit.p_value {
+        Some(p) if p < 0.01 => " - the readings scatter more than sigma explains",
+        Some(p) if p > 0.99 => " - the readings scatter less than sigma suggests",
+        _ => "",
+    };
+    line(
+        &mut out,
+        "Fit",
+        &format!(
+            "chi-square {} on {} dof, {p}{quality}",
+            fixed(r.fit.chi_square, 2),
+            fixed(r.fit.dof, 1)
+        ),
+    );
+    line(
+        &mut out,
+        "",
+        &format!(
+            "{} readings of {} sensors, sigma {} ({})",
+            r.fit.readings_used,
+            r.sensors.len(),
+            u.dtemp_show(r.fit.sigma),
+            r.fit.sigma_source
+        ),
+    );
+    line(
+        &mut out,
+        "Strength",
+        &format!(
+            "{} by {}, {} effective parameters{}",
+            significant_text(r.strength.value, 3),
+            r.strength.method,
+            fixed(r.strength.effective_parameters, 1),
+            if r.strength.at_range_end {
+                " (at the end of the search range)"
+            } else {
+                ""
+            }
+        ),
+    );
+    let flows: Vec<&EdgeResult> = r.edges.iter().filter(|e| e.heat_flow.is_some()).collect();
+    for (n, e) in flows.iter().enumerate() {
+        let q = e.heat_flow.expect("filtered");
+        let label = if n == 0 { "Heat flow in" } else { "" };
+        line(
+            &mut out,
+            label,
+            &format!(
+                "{} edge {} {HEAT_FLOW_UNIT}   {conf} interval [{}, {}] (per unit depth)",
+                e.edge,
+                fixed(q.value, 1),
+                fixed(q.lower, 1),
+                fixed(q.upper, 1)
+            ),
+        );
+    }
+
+    out.push('\n');
+    out.push_str("Cautions\n");
+    for c in cautions(r) {
+        let _ = writeln!(out, "  ! {c}");
+    }
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn percentages() {
+        assert_eq!(percent(0.95), "95 %");
+        assert_eq!(percent(0.995), "99.5 %");
+    }
+}

@@ -1,0 +1,368 @@
+//! Uncertainty: a bootstrap of the estimation error that re-chooses the strength in every
+//! replicate, and the bands and intervals drawn from it.
+//!
+//! ## Why not the plain bootstrap
+//! Replicates generated around the smoothed fit reproduce the spread of the estimate, not its
+//! smoothing bias, so plain percentile bands cover the *smoothed* truth and miss peaks
+//! (Kuusela & Panaretos 2015, Ann. Appl. Stat. 9:1671–1705; METHODS §2 and §10).
+//!
+//! ## What is done instead
+//! Each replicate `b` draws a *possible truth* `c_b` and new readings for it, re-runs the
+//! estimate, and records the estimation error `ε_b = ĉ_b − c_b`:
+//!
+//! 1. `c_b` is drawn from the smoothness prior the fit itself implies,
+//!    `c_{b,j} ~ N(0, 1/(λ̂ l_j²))` for the penalised coefficients (the unpenalised ones do
+//!    not affect the error of a linear estimator, which reproduces them exactly);
+//! 2. readings `d_b = A c_b + e_b`, with `e_b` Gaussian with the readings' σ (`parametric`)
+//!    or resampled from the fit's leverage-corrected, centred residuals
+//!    `r_i = e_i / sqrt([(I−S) Σ (I−S)ᵀ]_ii)` scaled by σ_i (`residual`, METHODS §2); with
+//!    position uncertainty the readings are taken at jittered sensor positions in the field of
+//!    the estimate;
+//! 3. the strength is re-chosen on `d_b` with the case's rule and `ĉ_b` computed on the
+//!    same decomposition (one SVD for everything).
+//!
+//! The draws `t_b = Q ĉ − Q ε_b` of any linear quantity `Q c` (the edge profile, the field,
+//! the heat flow) are then samples of what the truth may be given the readings. For a fixed
+//! strength and Gaussian noise this reproduces exactly the Bayesian posterior
+//! `N(ĉ, (AᵀW²A + λ LᵀL)⁻¹)`, because averaged over the prior the estimation error has that
+//! covariance; the prior's variance is what carries the smoothing bias into the band (Wahba
+//! 1983, J. R. Statist. Soc. B 45:133–150; Nychka 1988, JASA 83:1134–1143: such bands cover
+//! close to nominally on average across the function). Re-choosing the strength adds the
+//! uncertainty of the choice, and the residual mode drops the Gaussian assumption on the
+//! noise. The calibration study in `docs/calibration.md` measures the coverage.
+//!
+//! Reproducible: replicate `b` draws from its own ChaCha8 stream `(seed, b)`, so the numbers
+//! do not depend on the number of threads or on scheduling.
+
+pub mod calibration;
+
+use crate::error::Result;
+use crate::estimate::fit::{Fit, select_options};
+use crate::inverse::Strength;
+use nalgebra::{DMatrix, DVector};
+use rand::{RngExt, SeedableRng};
+use rand_chacha::ChaCha8Rng;
+use rand_distr::StandardNormal;
+use rayon::prelude::*;
+use serde::Serialize;
+
+/// How replicate readings get their noise.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum BootstrapMode {
+    /// Resampled leverage-corrected residuals.
+    Residual,
+    /// Gaussian draws with the readings' σ.
+    Parametric,
+}
+
+impl BootstrapMode {
+    /// The name used on the command line and in summaries.
+    pub fn name(self) -> &'static str {
+        match self {
+            BootstrapMode::Residual => "residual",
+            BootstrapMode::Parametric => "parametric",
+        }
+    }
+}
+
+/// The temperature change (kelvin) of each reading when the sensors move by the given
+/// displacements `(dx, dy)` (metres), one per reading.
+pub type PositionShift<'a> = &'a (dyn Fn(&[(f64, f64)]) -> Vec<f64> + Sync);
+
+/// Everything the bootstrap needs.
+pub struct BootstrapInput<'a> {
+    /// The final fit (its decomposition is reused for every replicate).
+    pub fit: &'a Fit,
+    /// The strength rule (re-applied per replicate) or the fixed strength.
+    pub strength: Strength,
+    /// The penalty diagonal `l_j`.
+    pub penalty: &'a DVector<f64>,
+    /// Noise mode.
+    pub mode: BootstrapMode,
+    /// The sensor-map rows of the readings in use (m × p).
+    pub a: &'a DMatrix<f64>,
+    /// Optional position jitter: standard deviation per reading (metres) and a function
+    /// giving the readings' temperature change for displacements `(dx, dy)` per reading.
+    pub jitter: Option<(&'a [f64], PositionShift<'a>)>,
+    /// The linear maps `Q_k` (n_k × p) of the quantities to draw.
+    pub outputs: &'a [&'a DMatrix<f64>],
+    /// Centre the replicate truths on the estimate (`true`) or on the prior mean (`false`).
+    pub center_on_estimate: bool,
+    /// Number of replicates.
+    pub replicates: usize,
+    /// Seed.
+    pub seed: u64,
+    /// Called with the number of replicates done so far (from worker threads).
+    pub progress: Option<&'a (dyn Fn(usize) + Sync)>,
+}
+
+/// The estimation errors of every replicate.
+#[derive(Debug, Clone)]
+pub struct BootstrapOutput {
+    /// Per output `k`: `B × n_k`, row `b` is `Q_k ε_b`.
+    pub errors: Vec<DMatrix<f64>>,
+    /// The strength chosen in each replicate.
+    pub lambdas: Vec<f64>,
+    /// Replicates where the rule failed and the case's own strength was used instead.
+    pub fallbacks: usize,
+}
+
+/// Leverage-corrected, centred residuals of a fit (dimensionless; METHODS §2).
+pub fn standardised_residuals(fit: &Fit) -> Result<Vec<f64>> {
+    let m = fit.sigma.len();
+    let s = fit.decomposition.influence_matrix(fit.selection.lambda)?;
+    let i_minus_s = DMatrix::<f64>::identity(m, m) - s;
+    let mut r: Vec<f64> = (0..m)
+        .map(|i| {
+            let var: f64 = (0..m)
+                .map(|k| (i_minus_s[(i, k)] * fit.sigma[k]).powi(2))
+                .sum();
+            let e = fit.solution.residuals[i];
+            if var > 1e-300 { e / var.sqrt() } else { 0.0 }
+        })
+        .collect();
+    let mean = r.iter().sum::<f64>() / m as f64;
+    for v in &mut r {
+        *v -= mean;
+    }
+    Ok(r)
+}
+
+/// Run the bootstrap (module doc).
+pub fn bootstrap(input: &BootstrapInput<'_>) -> Result<BootstrapOutput> {
+    let fit = input.fit;
+    let dec = &fit.decomposition;
+    let lambda = fit.selection.lambda;
+    let (m, p) = input.a.shape();
+    let prior_sd: Vec<f64> = input
+        .penalty
+        .iter()
+        .map(|&l| {
+            if l > 0.0 {
+                1.0 / (lambda.sqrt() * l)
+            } else {
+                0.0
+            }
+        })
+        .collect();
+    let residuals = match input.mode {
+        BootstrapMode::Residual => standardised_residuals(fit)?,
+        BootstrapMode::Parametric => Vec::new(),
+    };
+    let opts = select_options(false);
+    let done = std::sync::atomic::AtomicUsize::new(0);
+
+    struct Scratch {
+        proj: crate::inverse::Projection,
+        c_true: DVector<f64>,
+        c_hat: DVector<f64>,
+        d: DVector<f64>,
+    }
+    let per_replicate: Vec<(Vec<DVector<f64>>, f64, bool)> = (0..input.replicates)
+        .into_par_iter()
+        .map_init(
+            || Scratch {
+                proj: dec.empty_projection(),
+                c_true: DVector::zeros(p),
+                c_hat: DVector::zeros(p),
+                d: DVector::zeros(m),
+            },
+            |s, b| {
+                let mut rng = ChaCha8Rng::seed_from_u64(input.seed);
+                rng.set_stream(b as u64);
+                for (j, (c, &sd)) in s.c_true.iter_mut().zip(&prior_sd).enumerate() {
+                    let z: f64 = rng.sample(StandardNormal);
+                    let centre = if input.center_on_estimate {
+                        fit.solution.coefficients[j]
+                    } else {
+                        0.0
+                    };
+                    *c = centre + sd * z;
+                }
+                s.d.gemv(1.0, input.a, &s.c_true, 0.0);
+                for i in 0..m {
+                    let e = match input.mode {
+                        BootstrapMode::Parametric => {
+                            let z: f64 = rng.sample(StandardNormal);
+                            z
+                        }
+                        BootstrapMode::Residual => residuals[rng.random_range(0..m)],
+                    };
+                    s.d[i] += fit.sigma[i] * e;
+                }
+                if let Some((sigmas, shift)) = input.jitter {
+                    let moves: Vec<(f64, f64)> = sigmas
+                        .iter()
+                        .map(|&sg| {
+                            let dx: f64 = rng.sample(StandardNormal);
+                            let dy: f64 = rng.sample(StandardNormal);
+                            (sg * dx, sg * dy)
+                        })
+                        .collect();
+                    for (di, dt) in s.d.iter_mut().zip(shift(&moves)) {
+                        *di += dt;
+                    }
+                }
+                let mut fallback = false;
+                let lam_b = if dec.project_into(&s.d, &mut s.proj).is_ok() {
+                    match input.strength {
+                        Strength::Fixed(_) => lambda,
+                        rule => match dec.select_for(&s.proj, rule, &opts) {
+                            Ok(sel) => sel.lambda,
+                            Err(_) => {
+                                fallback = true;
+                                lambda
+                            }
+                        },
+                    }
+                } else {
+                    fallback = true;
+                    lambda
+                };
+                if dec.coefficients_into(&s.proj, lam_b, &mut s.c_hat).is_err() {
+                    fallback = true;
+                    s.c_hat.copy_from(&s.c_true);
+                }
+                let err = &s.c_hat - &s.c_true;
+                let outs = input.outputs.iter().map(|q| *q * &err).collect();
+                if let Some(cb) = input.progress {
+                    let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
+                    cb(n);
+                }
+                (outs, lam_b, fallback)
+            },
+        )
+        .collect();
+
+    let b_count = input.replicates;
+    let mut errors: Vec<DMatrix<f64>> = input
+        .outputs
+        .iter()
+        .map(|q| DMatrix::zeros(b_count, q.nrows()))
+        .collect();
+    let mut lambdas = Vec::with_capacity(b_count);
+    let mut fallbacks = 0;
+    for (b, (outs, lam, fb)) in per_replicate.into_iter().enumerate() {
+        for (k, v) in outs.iter().enumerate() {
+            errors[k].row_mut(b).copy_from(&v.transpose());
+        }
+        lambdas.push(lam);
+        fallbacks += usize::from(fb);
+    }
+    Ok(BootstrapOutput {
+        errors,
+        lambdas,
+        fallbacks,
+    })
+}
+
+/// The `q`-quantile of `values` (linear interpolation between order statistics, the
+/// "type 7" definition of Hyndman & Fan 1996). `values` is reordered.
+pub fn quantile(values: &mut [f64], q: f64) -> f64 {
+    let n = values.len();
+    if n == 0 {
+        return f64::NAN;
+    }
+    let h = (n - 1) as f64 * q.clamp(0.0, 1.0);
+    let lo = h.floor() as usize;
+    let hi = h.ceil() as usize;
+    let (_, &mut v_lo, rest) = values.select_nth_unstable_by(lo, f64::total_cmp);
+    if hi == lo {
+        return v_lo;
+    }
+    let v_hi = rest.iter().copied().fold(f64::INFINITY, f64::min);
+    v_lo + (h - lo as f64) * (v_hi - v_lo)
+}
+
+/// Pointwise percentile band of the draws `t_b = estimate − errors[b, :]` at `confidence`.
+pub fn pointwise_band(
+    estimate: &[f64],
+    errors: &DMatrix<f64>,
+    confidence: f64,
+) -> (Vec<f64>, Vec<f64>) {
+    let alpha = 1.0 - confidence;
+    let mut col = vec![0.0; errors.nrows()];
+    let mut lower = Vec::with_capacity(estimate.len());
+    let mut upper = Vec::with_capacity(estimate.len());
+    for (j, &e) in estimate.iter().enumerate() {
+        for (b, v) in col.iter_mut().enumerate() {
+            *v = e - errors[(b, j)];
+        }
+        lower.push(quantile(&mut col, alpha / 2.0));
+        upper.push(quantile(&mut col, 1.0 - alpha / 2.0));
+    }
+    (lower, upper)
+}
+
+/// Simultaneous band (sup-t; Montiel Olea & Plagborg-Møller 2019, J. Appl. Econometrics
+/// 34:1–17): with `se_j` the standard deviation of the draws at `j` and
+/// `T_b = max_j |t_bj − t̄_j| / se_j`, the band is `t̄_j ± c se_j` where `c` is the
+/// `confidence` quantile of `T_b` and `t̄_j` the draws' mean.
+pub fn simultaneous_band(
+    estimate: &[f64],
+    errors: &DMatrix<f64>,
+    confidence: f64,
+) -> (Vec<f64>, Vec<f64>) {
+    let (b_count, n) = errors.shape();
+    let mean: Vec<f64> = (0..n)
+        .map(|j| estimate[j] - errors.column(j).mean())
+        .collect();
+    let se: Vec<f64> = (0..n)
+        .map(|j| {
+            let mu = errors.column(j).mean();
+            let var = errors
+                .column(j)
+                .iter()
+                .map(|e| (e - mu).powi(2))
+                .sum::<f64>()
+                / (b_count.max(2) - 1) as f64;
+            var.sqrt().max(1e-12)
+        })
+        .collect();
+    let mut t: Vec<f64> = (0..b_count)
+        .map(|b| {
+            (0..n)
+                .map(|j| ((estimate[j] - errors[(b, j)]) - mean[j]).abs() / se[j])
+                .fold(0.0, f64::max)
+        })
+        .collect();
+    let c = quantile(&mut t, confidence);
+    (
+        (0..n).map(|j| mean[j] - c * se[j]).collect(),
+        (0..n).map(|j| mean[j] + c * se[j]).collect(),
+    )
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    // Type-7 quantiles, as numpy.quantile's default "linear" method (Hyndman & Fan 1996).
+    #[test]
+    fn quantiles_match_the_type_7_definition() {
+        let mut v = vec![3.0, 1.0, 4.0, 1.0, 5.0, 9.0, 2.0, 6.0];
+        // sorted: 1 1 2 3 4 5 6 9; q=0.25 -> h=1.75 -> 1 + 0.75*(2-1) = 1.75
+        assert!((quantile(&mut v, 0.25) - 1.75).abs() < 1e-12);
+        assert!((quantile(&mut v, 0.5) - 3.5).abs() < 1e-12);
+        assert_eq!(quantile(&mut v, 1.0), 9.0);
+        assert_eq!(quantile(&mut v, 0.0), 1.0);
+    }
+
+    #[test]
+    fn bands_of_gaussian_draws_have_the_normal_width() {
+        // errors ~ N(0, 1) at two points: the 95 % pointwise band is about ±1.96.
+        let b = 20000;
+        let mut rng = ChaCha8Rng::seed_from_u64(5);
+        let errors = DMatrix::from_fn(b, 2, |_, _| rng.sample::<f64, _>(StandardNormal));
+        let (lo, hi) = pointwise_band(&[10.0, 20.0], &errors, 0.95);
+        assert!((hi[0] - 10.0 - 1.96).abs() < 0.06, "{hi:?}");
+        assert!((10.0 - lo[0] - 1.96).abs() < 0.06, "{lo:?}");
+        // sup-t over two independent points: c solves (2Φ(c)−1)² = 0.95 → c ≈ 2.236
+        let (slo, shi) = simultaneous_band(&[10.0, 20.0], &errors, 0.95);
+        assert!(
+            (shi[1] - slo[1] - 2.0 * 2.236).abs() < 0.1,
+            "{slo:?} {shi:?}"
+        );
+    }
+}
