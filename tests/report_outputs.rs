@@ -211,6 +211,8 @@ fn common(
             value: 1.234_567e-3,
             effective_parameters: 6.3,
             at_range_end: false,
+            smoothing: "curvature".into(),
+            smoothing_auto: true,
         },
         fit: FitSummary {
             sigma: 0.15,
@@ -944,7 +946,7 @@ fn text_summary_key_lines() {
         "Resolution       bottom edge 18.0 mm (narrower features are smoothed away)",
         "Fit              chi-square 7.90 on 3.7 dof, p = 0.21",
         "                 9 readings of 10 sensors, sigma 0.15 °C (stated)",
-        "Strength         0.00123 by evidence, 6.3 effective parameters",
+        "Strength         0.00123 by evidence, curvature smoothing (chosen by evidence), 6.3 effective parameters",
         "Heat flow in     bottom edge 412.5 W/m   95 % interval [380.3, 447.0] (per unit depth)",
         "Cautions",
     ];

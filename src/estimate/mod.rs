@@ -474,6 +474,10 @@ pub fn estimate(
         value: fit.selection.lambda,
         effective_parameters: fit.solution.effective_parameters,
         at_range_end: fit.selection.at_grid_end,
+        smoothing: Smoothing::of_order(chosen_order)
+            .map_or("curvature", Smoothing::name)
+            .to_string(),
+        smoothing_auto: case.fit.smoothing == Smoothing::Auto,
     };
 
     let cautions = cautions(

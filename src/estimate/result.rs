@@ -130,6 +130,10 @@ pub struct StrengthSummary {
     pub effective_parameters: f64,
     /// Whether the rule's optimum sat at the end of the search range.
     pub at_range_end: bool,
+    /// The smoothing used (`size`, `slope`, `curvature`), after `auto` chose.
+    pub smoothing: String,
+    /// Whether the smoothing was chosen by `auto`.
+    pub smoothing_auto: bool,
 }
 
 /// Goodness of fit.

@@ -194,6 +194,18 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
     let fit_rows = [
         ("strength rule".to_string(), esc(&r.strength.method)),
         (
+            "smoothing".to_string(),
+            format!(
+                "{}{}",
+                esc(&r.strength.smoothing),
+                if r.strength.smoothing_auto {
+                    " (chosen by evidence)"
+                } else {
+                    ""
+                }
+            ),
+        ),
+        (
             "strength".to_string(),
             format!(
                 "{}{}",

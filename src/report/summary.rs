@@ -116,6 +116,8 @@ pub fn summary_json(r: &EstimateResult) -> Value {
             "value": significant(r.strength.value, SIGNIFICANT_DIGITS),
             "effective_parameters": ratio(r.strength.effective_parameters),
             "at_range_end": r.strength.at_range_end,
+            "smoothing": r.strength.smoothing,
+            "smoothing_chosen_by_evidence": r.strength.smoothing_auto,
         }),
     );
     out.insert(
@@ -348,9 +350,15 @@ pub fn text_summary(r: &EstimateResult) -> String {
         &mut out,
         "Strength",
         &format!(
-            "{} by {}, {} effective parameters{}",
+            "{} by {}, {} smoothing{}, {} effective parameters{}",
             significant_text(r.strength.value, 3),
             r.strength.method,
+            r.strength.smoothing,
+            if r.strength.smoothing_auto {
+                " (chosen by evidence)"
+            } else {
+                ""
+            },
             fixed(r.strength.effective_parameters, 1),
             if r.strength.at_range_end {
                 " (at the end of the search range)"
