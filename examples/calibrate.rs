@@ -18,30 +18,57 @@ fn profile(len: f64, f: impl Fn(f64) -> f64) -> EdgeProfile {
 fn main() -> Result<(), Box<dyn std::error::Error>> {
     let draws: usize = std::env::args().nth(1).map_or(100, |s| s.parse().unwrap());
     let reps: usize = std::env::args().nth(2).map_or(400, |s| s.parse().unwrap());
-    let mut case = load_case(&CaseFiles::in_dir("sample-measurements/cold-plate"))?;
-    let w = 0.18;
+    let which = std::env::var("CAL_CASE").unwrap_or("cold-plate".into());
+    let mut case = load_case(&CaseFiles::in_dir(format!("sample-measurements/{which}")))?;
     let k0 = 273.15;
-    let truths: Vec<(&str, EdgeProfile)> = vec![
-        (
-            "smooth",
-            profile(w, |x| {
-                k0 + 34.0 + 3.0 * (std::f64::consts::PI * x / w).sin() + 1.5 * (x / w)
-            }),
-        ),
-        (
-            "broad-hot-spot",
-            profile(w, |x| {
-                k0 + 33.5 + 8.0 * (-((x - 0.097) / 0.025f64).powi(2)).exp()
-            }),
-        ),
-        (
-            "narrow-hot-spot",
-            profile(w, |x| {
-                k0 + 33.5 + 11.0 * (-((x - 0.097) / 0.011f64).powi(2)).exp()
-            }),
-        ),
-    ];
-    let sigma = 0.15;
+    let pi = std::f64::consts::PI;
+    let truths: Vec<(&str, EdgeProfile)> = if which == "fin-root" {
+        // the sides are held at 30 °C: every truth meets them at the corners
+        let w = 0.04;
+        let s = move |x: f64| (pi * x / w).sin();
+        vec![
+            ("smooth", profile(w, move |x| k0 + 30.0 + 50.0 * s(x))),
+            (
+                "broad-hot-spot",
+                profile(w, move |x| {
+                    k0 + 30.0
+                        + 35.0 * s(x)
+                        + 12.0 * s(x) * (-((x - 0.026) / 0.006f64).powi(2)).exp()
+                }),
+            ),
+            (
+                "narrow-hot-spot",
+                profile(w, move |x| {
+                    k0 + 30.0
+                        + 35.0 * s(x)
+                        + 12.0 * s(x) * (-((x - 0.026) / 0.0025f64).powi(2)).exp()
+                }),
+            ),
+        ]
+    } else {
+        let w = 0.18;
+        vec![
+            (
+                "smooth",
+                profile(w, |x| {
+                    k0 + 34.0 + 3.0 * (std::f64::consts::PI * x / w).sin() + 1.5 * (x / w)
+                }),
+            ),
+            (
+                "broad-hot-spot",
+                profile(w, |x| {
+                    k0 + 33.5 + 8.0 * (-((x - 0.097) / 0.025f64).powi(2)).exp()
+                }),
+            ),
+            (
+                "narrow-hot-spot",
+                profile(w, |x| {
+                    k0 + 33.5 + 11.0 * (-((x - 0.097) / 0.011f64).powi(2)).exp()
+                }),
+            ),
+        ]
+    };
+    let sigma = if which == "fin-root" { 0.2 } else { 0.15 };
     for (name, truth) in &truths {
         let only: Option<String> = std::env::var("CAL_RULES").ok();
         for (rule, smoothing) in [

@@ -327,3 +327,82 @@ fn exceedance_probability_follows_the_limit() {
     assert_eq!(high.probability, 0.0);
     assert!(!high.alarm);
 }
+
+#[test]
+fn position_uncertainty_widens_the_bands() {
+    let mut case = sample("cold-plate");
+    let readings = load_readings(&case.files.readings, &case).unwrap();
+    let width = |r: &edgetherm::estimate::EstimateResult| {
+        let e = &r.edges[0];
+        e.upper
+            .iter()
+            .zip(&e.lower)
+            .map(|(u, l)| u - l)
+            .sum::<f64>()
+            / e.upper.len() as f64
+    };
+    let plain = estimate(&case, &readings, &quick(), None).unwrap();
+    case.uncertainty.position_sigma_m = Some(0.001); // 1 mm on every sensor
+    let jittered = estimate(&case, &readings, &quick(), None).unwrap();
+    eprintln!(
+        "mean band width {:.3} K without, {:.3} K with 1 mm position uncertainty",
+        width(&plain),
+        width(&jittered)
+    );
+    assert!(width(&jittered) > width(&plain));
+}
+
+// IEC 60584-1:2013 class 1, type T: ±0.5 °C from −40 to 125 °C (METHODS §4), as a standard
+// uncertainty 0.5/√3 °C by the GUM's rectangular rule (JCGM 100:2008, 4.3.7).
+#[test]
+fn tolerance_class_sets_the_reading_uncertainty() {
+    let mut case = sample("cold-plate");
+    case.noise = edgetherm::noise::NoiseSpec::Tolerance {
+        class: edgetherm::noise::ToleranceClass::Iec1,
+        tc_type: edgetherm::noise::ThermocoupleType::T,
+    };
+    let readings = load_readings(&case.files.readings, &case).unwrap();
+    let r = estimate(&case, &readings, &quick(), None).unwrap();
+    assert_eq!(r.fit.sigma_source, "tolerance-class");
+    assert!((r.fit.sigma - 0.5 / 3f64.sqrt()).abs() < 1e-12);
+    for s in &r.sensors {
+        assert!((s.sigma.unwrap() - 0.5 / 3f64.sqrt()).abs() < 1e-12);
+    }
+}
+
+#[test]
+fn every_strength_rule_runs_end_to_end() {
+    use edgetherm::io::StrengthRule;
+    let case = sample("cold-plate");
+    let readings = load_readings(&case.files.readings, &case).unwrap();
+    for rule in [
+        StrengthRule::Gcv,
+        StrengthRule::Discrepancy,
+        StrengthRule::Evidence,
+        StrengthRule::LCurve,
+        StrengthRule::Fixed(0.05),
+    ] {
+        let opts = EstimateOptions {
+            strength: Some(rule),
+            ..quick()
+        };
+        let r = estimate(&case, &readings, &opts, None).unwrap();
+        let expected = match rule {
+            StrengthRule::Fixed(_) => "fixed",
+            other => other.name(),
+        };
+        assert_eq!(r.strength.method, expected);
+        if let StrengthRule::Fixed(v) = rule {
+            assert_eq!(r.strength.value, v);
+        }
+        let e = &r.edges[0];
+        assert!(
+            e.lower
+                .iter()
+                .zip(&e.estimate)
+                .zip(&e.upper)
+                .all(|((l, m), u)| l <= m && m <= u),
+            "{expected}: the estimate lies outside its own band"
+        );
+    }
+}
