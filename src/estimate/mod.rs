@@ -32,7 +32,7 @@ use crate::noise::{SigmaSource, reading_sigmas};
 use crate::uncertainty::{
     BootstrapInput, BootstrapMode, bootstrap, pointwise_band, quantile, simultaneous_band,
 };
-use fit::{FAULT_POSTERIOR, Fit, FitInput, loo_residuals};
+use fit::{FAULT_POSTERIOR, FitInput, loo_residuals};
 use nalgebra::{DMatrix, DVector};
 use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
 
@@ -249,8 +249,7 @@ pub fn estimate(
     let fit = fit::fit(&input, strength)?;
     let c_hat = fit.solution.coefficients.clone();
     let c_slice = c_hat.as_slice();
-    let scale2 = fit.sigma_scale.map_or(1.0, |s| s * s);
-    let _ = scale2; // covariance already carries σ̂ because the refit uses σ = σ̂
+    // (the covariance already carries σ̂ when it was estimated: the refit uses σ = σ̂)
 
     // Linear maps of the outputs.
     let shape = *plate.shape();
@@ -482,7 +481,6 @@ pub fn estimate(
 
     let cautions = cautions(
         case,
-        &fit,
         &fit_summary,
         &strength_summary,
         &edges,
@@ -679,10 +677,8 @@ fn hottest_point(
     }
 }
 
-#[allow(clippy::too_many_arguments)]
 fn cautions(
     case: &Case,
-    fit: &Fit,
     summary: &FitSummary,
     strength: &StrengthSummary,
     edges: &[EdgeResult],
@@ -754,6 +750,5 @@ fn cautions(
              strength was used."
         ));
     }
-    let _ = fit;
     out
 }

@@ -386,12 +386,8 @@ impl ForwardModel {
         self.sensor_map(&points)
     }
 
-    /// Derivative of the temperature along the inward normal of `edge` at position `s`,
-    /// K/m, for unknowns `c`.
-    fn inward_gradient(&self, edge: Edge, c: &[f64], s: f64) -> f64 {
-        let shape = self.plate.shape();
-        let p = shape.point_on(edge, s);
-        // base: ∇B · n_in
+    /// `∇B · n_in` at `p` on `edge`, K/m: the corner base's share of the inward gradient.
+    fn base_inward_gradient(&self, edge: Edge, c: &[f64], p: Point) -> f64 {
         let gw = self.base.gradient_weights(p);
         let normal = match edge {
             Edge::Bottom => (0.0, 1.0),
@@ -408,11 +404,25 @@ impl ForwardModel {
             };
             g += (gw[ci].0 * normal.0 + gw[ci].1 * normal.1) * val;
         }
+        g
+    }
+
+    /// The coefficients of a series: the unknowns' slice of `c`, or a fixed edge's own.
+    fn coefficients<'a>(&'a self, es: &'a EdgeSeries, c: &'a [f64]) -> &'a [f64] {
+        match es.first_parameter {
+            Some(first) => &c[first..first + es.series.terms()],
+            None => &es.known,
+        }
+    }
+
+    /// Derivative of the temperature along the inward normal of `edge` at position `s`,
+    /// K/m, for unknowns `c`.
+    fn inward_gradient(&self, edge: Edge, c: &[f64], s: f64) -> f64 {
+        let shape = self.plate.shape();
+        let p = shape.point_on(edge, s);
+        let mut g = self.base_inward_gradient(edge, c, p);
         for es in &self.series {
-            let coeffs: &[f64] = match es.first_parameter {
-                Some(first) => &c[first..first + es.series.terms()],
-                None => &es.known,
-            };
+            let coeffs = self.coefficients(es, c);
             let b = es.series.basis;
             let decay = es.series.decay;
             if es.edge == edge {
@@ -494,30 +504,9 @@ impl ForwardModel {
         }
         // base: its normal gradient is linear along the edge, so the midpoint rule is exact
         let mid = 0.5 * length;
-        let mut total = 0.0;
-        {
-            let p = shape.point_on(edge, mid);
-            let gw = self.base.gradient_weights(p);
-            let normal = match edge {
-                Edge::Bottom => (0.0, 1.0),
-                Edge::Top => (0.0, -1.0),
-                Edge::Left => (1.0, 0.0),
-                Edge::Right => (-1.0, 0.0),
-            };
-            for (ci, v) in self.base.values().iter().enumerate() {
-                let val = match v {
-                    CornerValue::Unused => continue,
-                    CornerValue::Known(t) => *t,
-                    CornerValue::Parameter(i) => c[*i],
-                };
-                total += (gw[ci].0 * normal.0 + gw[ci].1 * normal.1) * val * length;
-            }
-        }
+        let mut total = self.base_inward_gradient(edge, c, shape.point_on(edge, mid)) * length;
         for es in &self.series {
-            let coeffs: &[f64] = match es.first_parameter {
-                Some(first) => &c[first..first + es.series.terms()],
-                None => &es.known,
-            };
+            let coeffs = self.coefficients(es, c);
             let b = es.series.basis;
             let decay = es.series.decay;
             if es.edge == edge {
