@@ -532,6 +532,15 @@ pub fn choose_order(input: &FitInput, model: &ForwardModel) -> Result<usize> {
     Ok(best.map_or(2, |(_, o)| o))
 }
 
+/// `v` with three significant digits, for cautions a person reads.
+fn significant3(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v}");
+    }
+    let decimals = (2 - v.abs().log10().floor() as i32).max(0) as usize;
+    format!("{v:.decimals$}")
+}
+
 /// Stack matrices with the same number of columns.
 fn stack<'a>(parts: impl Iterator<Item = &'a DMatrix<f64>> + Clone) -> DMatrix<f64> {
     let rows: usize = parts.clone().map(|m| m.nrows()).sum();
@@ -698,17 +707,17 @@ fn cautions(
     );
     for e in edges {
         out.push(format!(
-            "Along the {} edge, features shorter than about {:.3} {lu} (the resolution length) \
+            "Along the {} edge, features shorter than about {} {lu} (the resolution length) \
              are smoothed away: a narrow hot spot appears wider and cooler than it is.",
             e.edge,
-            u.length_from_m(e.resolution_length)
+            significant3(u.length_from_m(e.resolution_length))
         ));
     }
     if summary.sigma_source == "estimated" {
         out.push(format!(
-            "No reading uncertainty was stated: it was estimated from the residuals as {:.3} \
+            "No reading uncertainty was stated: it was estimated from the residuals as {} \
              {tu}, with {:.1} degrees of freedom. State [noise] sigma for firmer intervals.",
-            u.dtemp_from_k(summary.sigma),
+            significant3(u.dtemp_from_k(summary.sigma)),
             summary.dof
         ));
     }
