@@ -406,3 +406,85 @@ fn every_strength_rule_runs_end_to_end() {
         );
     }
 }
+
+#[test]
+fn two_unknown_edges_are_recovered_together() {
+    // the plate of the two-unknown finite-element fixture: bottom and left hidden
+    let dir =
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/fem/two-unknown");
+    let mut case = load_case(&CaseFiles::in_dir(&dir)).unwrap();
+    let truths = edgetherm::io::read_truth_profiles(&dir.join("truth.csv"), &case).unwrap();
+    case.noise = edgetherm::noise::NoiseSpec::Sigma(0.1);
+    // a layout of 20 sensors in an L along the two hidden edges
+    let (w, h) = (0.0875, 0.0625);
+    let mut sensors = Vec::new();
+    for i in 0..12 {
+        sensors.push(Point::new(
+            w * (0.05 + 0.9 * i as f64 / 11.0),
+            0.006 + 0.003 * (i % 2) as f64,
+        ));
+    }
+    for i in 0..8 {
+        sensors.push(Point::new(
+            0.006 + 0.003 * (i % 2) as f64,
+            h * (0.15 + 0.8 * i as f64 / 7.0),
+        ));
+    }
+    case.sensors = sensors
+        .into_iter()
+        .enumerate()
+        .map(|(i, p)| Sensor {
+            id: format!("S{i}"),
+            position: p,
+            sigma_k: None,
+            position_sigma_m: None,
+            line: i + 2,
+        })
+        .collect();
+    let readings = readings_for(&case, &truths, 0.1, 4);
+    let r = estimate(&case, &readings, &quick(), None).unwrap();
+    assert_eq!(r.edges.len(), 2);
+    for e in &r.edges {
+        let truth = &truths.iter().find(|(t, _)| *t == e.edge).unwrap().1;
+        let inside = e
+            .positions
+            .iter()
+            .enumerate()
+            .filter(|&(j, &s)| (e.lower[j]..=e.upper[j]).contains(&truth.value(s)))
+            .count() as f64
+            / e.positions.len() as f64;
+        eprintln!(
+            "{}: truth inside the band at {:.0} % of points",
+            e.edge,
+            100.0 * inside
+        );
+        assert!(inside > 0.8, "{}: {inside}", e.edge);
+    }
+    // the shared corner is a free parameter: the two profiles meet there
+    let b0 = r
+        .edges
+        .iter()
+        .find(|e| e.edge == Edge::Bottom)
+        .unwrap()
+        .estimate[0];
+    let l0 = r
+        .edges
+        .iter()
+        .find(|e| e.edge == Edge::Left)
+        .unwrap()
+        .estimate[0];
+    assert!((b0 - l0).abs() < 1e-9, "{b0} vs {l0}");
+    assert!(r.sensors.iter().all(|s| s.flag.is_none()));
+}
+
+#[test]
+fn a_sensor_without_a_reading_is_left_out_but_reported() {
+    let case = sample("cold-plate");
+    let mut readings = load_readings(&case.files.readings, &case).unwrap();
+    readings[3] = None;
+    let r = estimate(&case, &readings, &quick(), None).unwrap();
+    assert_eq!(r.fit.readings_used, 9);
+    let s = &r.sensors[3];
+    assert!(s.reading.is_none() && s.residual.is_none() && s.leverage.is_none());
+    assert!(s.fitted.is_finite());
+}
