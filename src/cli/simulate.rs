@@ -67,7 +67,14 @@ pub fn run(args: &SimulateArgs, global: &GlobalOptions) -> Result<i32> {
         Some(g) => parse_grid(g)?,
         None => DEFAULT_GRID,
     };
-    let mut inputs = case.files.inputs();
+    // simulate reads the plate, the sensors, the fixed-edge profiles and the truth; an old
+    // readings.csv is not among its inputs and may be replaced by --out
+    let mut inputs: Vec<&std::path::Path> = case
+        .files
+        .inputs()
+        .into_iter()
+        .filter(|p| *p != case.files.readings.as_path())
+        .collect();
     inputs.push(&args.truth);
     for (path, flag) in [(&args.out, "--out"), (&args.field, "--field")] {
         if let Some(p) = path {

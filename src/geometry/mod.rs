@@ -249,14 +249,14 @@ impl Plate {
         if !(w.is_finite() && w > 0.0) {
             return Err(Error::invalid_field(
                 "plate.width",
-                format!("the width must be a positive number, not {w}"),
+                "the width must be a positive number".to_string(),
             ));
         }
         if let Some(h) = shape.height() {
             if !(h.is_finite() && h > 0.0) {
                 return Err(Error::invalid_field(
                     "plate.height",
-                    format!("the height must be a positive number or \"infinite\", not {h}"),
+                    "the height must be a positive number or \"infinite\"".to_string(),
                 ));
             }
         }
