@@ -11,6 +11,8 @@
 //! | [`forward`] | steady conduction by separation of variables: the linear map from the unknown edge coefficients to temperatures anywhere |
 //! | [`inverse`] | weighted Tikhonov regularisation on that linear map (one SVD for every strength) and the rules that choose the strength |
 //! | [`noise`] | the reading uncertainty: stated sigma, or thermocouple tolerance classes |
+//! | [`estimate`] | the main job: fit, fault search, bands, hottest point, exceedance, resolution length |
+//! | [`uncertainty`] | the bootstrap of the estimation error with re-chosen strength; bands; calibration studies |
 //! | [`io`] | case files (`plate.toml`, `sensors.csv`, `readings.csv`, profiles) in, results out, atomically |
 //! | [`report`] | the outputs of an estimate in the case's units: CSV tables, `summary.json`, the text summary, SVG plots and a self-contained HTML page |
 //! | [`simulate`] | synthetic readings from a known edge profile (demos, tests, what-if) |

@@ -23,6 +23,14 @@ pub(crate) const FAMILY: &str = "sans-serif";
 
 /// Body text size for labels and ticks, px.
 pub(crate) const TEXT_PX: f64 = 13.0;
+
+/// The safety caution in the short form that fits under a plot (the full wording is in the
+/// text summary, `summary.json` and `report.html`).
+pub(crate) const PLOT_SAFETY_NOTE: &str = "Estimates, not measurements: decisions about live, \
+     hot or pressurised equipment follow local codes and licensed practice.";
+
+/// Height of the footer line that carries [`PLOT_SAFETY_NOTE`], px.
+pub(crate) const FOOTER_H: f64 = 26.0;
 /// Axis titles, px.
 pub(crate) const AXIS_PX: f64 = 15.0;
 /// Plot titles, px.

@@ -10,9 +10,9 @@
 
 use super::contour::{contour, length, levels};
 use super::draw::{
-    AXIS_PX, Anchor, Area, DrawResult, FAMILY, GREY, Glyph, INK, LEGEND_ROW_H, Marker, TEXT_PX,
-    TITLE_PX, TextOpts, dashed, font, label_box, legend, legend_rows, line, marker, rect, rgb,
-    text,
+    AXIS_PX, Anchor, Area, DrawResult, FAMILY, GREY, Glyph, INK, LEGEND_ROW_H, Marker,
+    PLOT_SAFETY_NOTE, TEXT_PX, TITLE_PX, TextOpts, dashed, font, label_box, legend, legend_rows,
+    line, marker, rect, rgb, text,
 };
 use super::format::{CaseUnits, fixed, step_decimals, tick};
 use super::labels::{Placer, Rect, around_marker, bold_text_width, text_width};
@@ -224,6 +224,7 @@ pub(crate) fn field_svg(r: &EstimateResult) -> Result<String> {
             "{outside} sensor(s) lie beyond the region shown and are not drawn."
         ));
     }
+    captions.push(PLOT_SAFETY_NOTE.to_string());
     let legend_items = legend_items(r);
     let rows = legend_rows(&legend_items, f64::from(WIDTH) - 2.0 * 16.0);
     let legend_top = MAP_TOP + map_h + X_LABEL_H + BAR_BLOCK_H;

@@ -15,11 +15,11 @@
 //! [`crate::io::write_atomic`]. Nothing here prints.
 
 mod contour;
-mod draw;
+pub(crate) mod draw;
 mod field_plot;
-mod format;
+pub(crate) mod format;
 mod html;
-mod labels;
+pub(crate) mod labels;
 mod palette;
 mod profile_plot;
 mod summary;

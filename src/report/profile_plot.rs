@@ -4,9 +4,9 @@
 //! along it (what the reconstruction could see, and from how deep).
 
 use super::draw::{
-    AXIS_PX, Anchor, Area, BAND, DrawResult, ESTIMATE, FAMILY, GREY, GRID, Glyph, HOTTEST, INK,
-    LEGEND_ROW_H, LIMIT, Marker, SIMULTANEOUS, TEXT_PX, TITLE_PX, TextOpts, font, legend,
-    legend_rows, line, marker, text,
+    AXIS_PX, Anchor, Area, BAND, DrawResult, ESTIMATE, FAMILY, FOOTER_H, GREY, GRID, Glyph,
+    HOTTEST, INK, LEGEND_ROW_H, LIMIT, Marker, PLOT_SAFETY_NOTE, SIMULTANEOUS, TEXT_PX, TITLE_PX,
+    TextOpts, font, legend, legend_rows, line, marker, text,
 };
 use super::format::{CaseUnits, edge_coordinate, fixed, tick};
 use super::labels::{Placer, Rect, around_marker, bold_text_width, text_width};
@@ -89,7 +89,7 @@ fn header(r: &EstimateResult) -> Header {
 pub(crate) fn profile_svg(r: &EstimateResult) -> Result<String> {
     let head = header(r);
     let blocks = r.edges.len().max(1) as f64;
-    let height = head.height + blocks * (CAPTION_H + TEMP_H + DEPTH_H + BLOCK_GAP);
+    let height = head.height + blocks * (CAPTION_H + TEMP_H + DEPTH_H + BLOCK_GAP) + FOOTER_H;
     let mut buf = String::new();
     {
         let root =
@@ -155,6 +155,13 @@ fn draw(root: &Area<'_>, r: &EstimateResult, head: &Header) -> DrawResult {
         draw_edge(root, r, e, top)?;
         top += CAPTION_H + TEMP_H + DEPTH_H + BLOCK_GAP;
     }
+    text(
+        root,
+        PLOT_SAFETY_NOTE,
+        MARGIN,
+        top + 4.0,
+        TextOpts::new(TEXT_PX, Anchor::TopLeft),
+    )?;
     Ok(())
 }
 
