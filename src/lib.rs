@@ -10,17 +10,20 @@
 //! | [`geometry`] | the plate, its edges and their conditions (SI units inside) |
 //! | [`forward`] | steady conduction by separation of variables: the linear map from the unknown edge coefficients to temperatures anywhere |
 //! | [`inverse`] | weighted Tikhonov regularisation on that linear map (one SVD for every strength) and the rules that choose the strength |
+//! | [`design`] | sensor-layout design: the uncertainty a layout will leave along the hidden edges, and greedy + exchange search for the best one |
 //! | [`noise`] | the reading uncertainty: stated sigma, or thermocouple tolerance classes |
 //! | [`estimate`] | the main job: fit, fault search, bands, hottest point, exceedance, resolution length |
 //! | [`uncertainty`] | the bootstrap of the estimation error with re-chosen strength; bands; calibration studies |
 //! | [`io`] | case files (`plate.toml`, `sensors.csv`, `readings.csv`, profiles) in, results out, atomically |
 //! | [`report`] | the outputs of an estimate in the case's units: CSV tables, `summary.json`, the text summary, SVG plots and a self-contained HTML page |
+//! | [`track`] | a logger file row by row: per-row estimate with a pattern cache, hottest point through time, alarms, failing sensors |
 //! | [`simulate`] | synthetic readings from a known edge profile (demos, tests, what-if) |
 //! | [`units`] | the length and temperature units of a case, converted once at the edge |
 //! | [`error`] | one error type whose messages name the file, line and field |
 //!
 //! The library never prints; the `edgetherm` binary is a thin layer over it.
 
+pub mod design;
 pub mod error;
 pub mod estimate;
 pub mod forward;
@@ -30,6 +33,7 @@ pub mod io;
 pub mod noise;
 pub mod report;
 pub mod simulate;
+pub mod track;
 pub mod uncertainty;
 pub mod units;
 

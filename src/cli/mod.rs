@@ -6,8 +6,10 @@
 //! `edgetherm: <message>`.
 
 mod check;
+mod design;
 mod estimate;
 mod simulate;
+mod track;
 
 use clap::{Args, Parser, Subcommand};
 use edgetherm::io::CaseFiles;
@@ -68,6 +70,12 @@ enum Command {
     Check(check::CheckArgs),
     /// Synthetic readings for a known edge profile (demos, what-if studies, tests).
     Simulate(simulate::SimulateArgs),
+    /// Choose a sensor layout before drilling, or score one (--evaluate), with the
+    /// uncertainty it will leave along the hidden edges.
+    Design(design::DesignArgs),
+    /// Run the estimate on every row of a logger file: the hottest point through time,
+    /// alarms over a limit, and failing sensors.
+    Track(track::TrackArgs),
 }
 
 /// Parse the command line, run the command and return the process exit status.
@@ -85,6 +93,8 @@ pub fn run() -> i32 {
         Command::Estimate(args) => estimate::run(args, &cli.global),
         Command::Check(args) => check::run(args, &cli.global),
         Command::Simulate(args) => simulate::run(args, &cli.global),
+        Command::Design(args) => design::run(args, &cli.global),
+        Command::Track(args) => track::run(args, &cli.global),
     };
     match result {
         Ok(code) => code,

@@ -112,43 +112,13 @@ pub fn estimate(
 ) -> Result<EstimateResult> {
     let plate = &case.plate;
     let unknown = plate.unknown_edges();
-    if unknown.is_empty() {
-        return Err(Error::invalid_at(
-            &case.files.plate,
-            None,
-            Some("edges"),
-            "no edge is unknown, so there is nothing to estimate; mark the hidden edge \
-             condition = \"unknown\"",
-        ));
-    }
-    let model = ForwardModel::new(
-        plate,
-        SeriesOptions {
-            unknown_terms: case.fit.terms,
-            ..SeriesOptions::default()
-        },
-    )?;
+    let model = case_model(case)?;
     let mut used: Vec<usize> = (0..case.sensors.len())
         .filter(|&i| readings.get(i).copied().flatten().is_some())
         .collect();
-    // every order leaves the same coefficients unpenalised (levels and corners)
-    let q_null = penalty::penalty_weights(&model, 2)
-        .iter()
-        .filter(|&&v| v == 0.0)
-        .count();
+    let q_null = unpenalised_count(&model);
     if used.len() <= q_null + 1 {
-        return Err(Error::invalid_at(
-            &case.files.readings,
-            None,
-            Some("temperature"),
-            format!(
-                "{} readings cannot determine this model: it needs at least {} (more than \
-                 its {} unsmoothed coefficients, plus one)",
-                used.len(),
-                q_null + 2,
-                q_null
-            ),
-        ));
+        return Err(too_few_readings(case, used.len(), q_null));
     }
     let points: Vec<Point> = case.sensors.iter().map(|s| s.position).collect();
     let full_map = model.sensor_map(&points);
@@ -158,21 +128,7 @@ pub fn estimate(
     let strength = strength_of(rule);
 
     // Sigmas for every sensor that has a reading (indexed like case.sensors).
-    let own: Vec<Option<f64>> = used.iter().map(|&i| case.sensors[i].sigma_k).collect();
-    let temps: Vec<f64> = used.iter().map(|&i| readings[i].unwrap_or(0.0)).collect();
-    let (sig, source) = reading_sigmas(&case.noise, &own, &temps).map_err(|(k, msg)| {
-        let s = &case.sensors[used[k]];
-        Error::invalid_at(
-            &case.files.sensors,
-            Some(s.line),
-            Some("sigma"),
-            format!("{}: {msg}", s.id),
-        )
-    })?;
-    let mut sigma_of = vec![f64::NAN; case.sensors.len()];
-    for (k, &i) in used.iter().enumerate() {
-        sigma_of[i] = sig[k];
-    }
+    let (sigma_of, source) = resolve_sigmas(case, &used, readings)?;
     let stated = source != SigmaSource::Estimated;
     let input_for = |rows: &[usize]| FitInput {
         a: full_map.matrix.select_rows(rows),
@@ -254,18 +210,7 @@ pub fn estimate(
     // Linear maps of the outputs.
     let shape = *plate.shape();
     let n_prof = profile_points(case.fit.terms);
-    let edge_positions: Vec<(Edge, Vec<f64>)> = unknown
-        .iter()
-        .map(|&e| {
-            let len = shape.edge_length(e).unwrap_or(shape.width());
-            (
-                e,
-                (0..n_prof)
-                    .map(|i| len * i as f64 / (n_prof - 1) as f64)
-                    .collect(),
-            )
-        })
-        .collect();
+    let edge_positions = profile_positions(case);
     let edge_maps: Vec<LinearMap> = edge_positions
         .iter()
         .map(|(e, pos)| model.edge_profile_map(*e, pos))
@@ -506,6 +451,110 @@ pub fn estimate(
     })
 }
 
+/// The forward model an estimate fits: the case's plate with `case.fit.terms` series terms per
+/// unknown edge. Shared by [`estimate`] and [`crate::track`].
+///
+/// # Errors
+/// [`Error::Invalid`] when no edge is unknown, or the model cannot be built.
+pub fn case_model(case: &Case) -> Result<ForwardModel> {
+    if case.plate.unknown_edges().is_empty() {
+        return Err(Error::invalid_at(
+            &case.files.plate,
+            None,
+            Some("edges"),
+            "no edge is unknown, so there is nothing to estimate; mark the hidden edge \
+             condition = \"unknown\"",
+        ));
+    }
+    ForwardModel::new(
+        &case.plate,
+        SeriesOptions {
+            unknown_terms: case.fit.terms,
+            ..SeriesOptions::default()
+        },
+    )
+}
+
+/// The number of coefficients no smoothing order penalises (levels and corners): every order
+/// leaves the same ones free, so this is read off the curvature penalty.
+pub fn unpenalised_count(model: &ForwardModel) -> usize {
+    penalty::penalty_weights(model, 2)
+        .iter()
+        .filter(|&&v| v == 0.0)
+        .count()
+}
+
+/// The smallest number of readings a fit of this model accepts: more than its `q_null`
+/// unpenalised coefficients, plus one.
+pub fn min_readings(q_null: usize) -> usize {
+    q_null + 2
+}
+
+/// The error for a set of `n` readings too small for a model with `q_null` unpenalised
+/// coefficients.
+pub fn too_few_readings(case: &Case, n: usize, q_null: usize) -> Error {
+    Error::invalid_at(
+        &case.files.readings,
+        None,
+        Some("temperature"),
+        format!(
+            "{n} readings cannot determine this model: it needs at least {} (more than its \
+             {q_null} unsmoothed coefficients, plus one)",
+            min_readings(q_null),
+        ),
+    )
+}
+
+/// The reading uncertainty of every sensor in `used` (kelvin, indexed like `case.sensors`,
+/// NaN for the others) and where it came from ([`reading_sigmas`]: a sensor's own sigma, the
+/// case's `[noise]`, a tolerance class at the reading, or unit weights to be scaled by the
+/// residual estimate).
+///
+/// # Errors
+/// [`Error::Invalid`] naming the sensor's line when its sigma cannot be resolved.
+pub fn resolve_sigmas(
+    case: &Case,
+    used: &[usize],
+    readings: &[Option<f64>],
+) -> Result<(Vec<f64>, SigmaSource)> {
+    let own: Vec<Option<f64>> = used.iter().map(|&i| case.sensors[i].sigma_k).collect();
+    let temps: Vec<f64> = used.iter().map(|&i| readings[i].unwrap_or(0.0)).collect();
+    let (sig, source) = reading_sigmas(&case.noise, &own, &temps).map_err(|(k, msg)| {
+        let s = &case.sensors[used[k]];
+        Error::invalid_at(
+            &case.files.sensors,
+            Some(s.line),
+            Some("sigma"),
+            format!("{}: {msg}", s.id),
+        )
+    })?;
+    let mut sigma_of = vec![f64::NAN; case.sensors.len()];
+    for (k, &i) in used.iter().enumerate() {
+        sigma_of[i] = sig[k];
+    }
+    Ok((sigma_of, source))
+}
+
+/// The positions along every unknown edge at which profiles are reported and the hottest
+/// point is searched: [`profile_points`] evenly spaced points, ends included, metres.
+pub fn profile_positions(case: &Case) -> Vec<(Edge, Vec<f64>)> {
+    let shape = *case.plate.shape();
+    let n_prof = profile_points(case.fit.terms);
+    case.plate
+        .unknown_edges()
+        .iter()
+        .map(|&e| {
+            let len = shape.edge_length(e).unwrap_or(shape.width());
+            (
+                e,
+                (0..n_prof)
+                    .map(|i| len * i as f64 / (n_prof - 1) as f64)
+                    .collect(),
+            )
+        })
+        .collect()
+}
+
 /// The smoothing orders `auto` chooses between, in order of preference on a tie.
 pub const AUTO_ORDERS: [usize; 2] = [2, 1];
 
@@ -542,7 +591,7 @@ fn significant3(v: f64) -> String {
 }
 
 /// Stack matrices with the same number of columns.
-fn stack<'a>(parts: impl Iterator<Item = &'a DMatrix<f64>> + Clone) -> DMatrix<f64> {
+pub(crate) fn stack<'a>(parts: impl Iterator<Item = &'a DMatrix<f64>> + Clone) -> DMatrix<f64> {
     let rows: usize = parts.clone().map(|m| m.nrows()).sum();
     let cols = parts.clone().next().map_or(0, |m| m.ncols());
     let mut out = DMatrix::zeros(rows, cols);
@@ -555,7 +604,7 @@ fn stack<'a>(parts: impl Iterator<Item = &'a DMatrix<f64>> + Clone) -> DMatrix<f
 }
 
 /// Standard deviations of `Q c` under the covariance `C`: `sqrt(diag(Q C Qᵀ))`.
-fn linear_sd(q: &DMatrix<f64>, c: &DMatrix<f64>) -> Vec<f64> {
+pub(crate) fn linear_sd(q: &DMatrix<f64>, c: &DMatrix<f64>) -> Vec<f64> {
     let qc = q * c;
     (0..q.nrows())
         .map(|i| qc.row(i).dot(&q.row(i)).max(0.0).sqrt())
@@ -604,7 +653,7 @@ fn replicate_max(est: &[f64], errors: &DMatrix<f64>, b: usize) -> f64 {
 
 /// The maximum of sampled values with a parabolic refinement through its neighbours:
 /// returns (index as a fraction, value).
-fn refined_max(values: impl Fn(usize) -> f64, lo: usize, hi: usize) -> (f64, f64) {
+pub(crate) fn refined_max(values: impl Fn(usize) -> f64, lo: usize, hi: usize) -> (f64, f64) {
     let mut k = lo;
     for j in lo..hi {
         if values(j) > values(k) {

@@ -25,7 +25,6 @@ pub fn resolution_lengths(
     edge_maps: &[LinearMap],
     estimate: &[f64],
 ) -> Vec<f64> {
-    let shape = model.plate().shape();
     let n = edge_positions.first().map_or(0, |e| e.1.len());
     edge_positions
         .iter()
@@ -35,33 +34,50 @@ pub fn resolution_lengths(
             let i0 = (0..n)
                 .max_by(|&a, &b| est[a].total_cmp(&est[b]))
                 .unwrap_or(0);
-            let v = edge_maps[k].matrix.row(i0) * resolution; // 1 × p
-            let len = shape.edge_length(*edge).unwrap_or(shape.width());
-            let modes: Vec<(usize, usize)> = model
-                .parameters()
-                .iter()
-                .enumerate()
-                .filter_map(|(j, p)| match p {
-                    Parameter::Mode { edge: e, n, .. } if e == edge => Some((j, *n)),
-                    _ => None,
-                })
-                .collect();
-            let Some(series) = model.series_of(*edge) else {
-                return len;
-            };
-            let basis = series.basis;
-            let kernel: Vec<f64> = pos
-                .iter()
-                .map(|&s| {
-                    modes
-                        .iter()
-                        .map(|&(j, m)| v[j] * basis.value(m, s) / basis.norm_sq(m))
-                        .sum()
-                })
-                .collect();
-            full_width_half_max(&kernel, pos, i0).unwrap_or(len)
+            resolution_length_at(model, resolution, *edge, pos, &edge_maps[k], i0)
         })
         .collect()
+}
+
+/// Resolution length (metres) of `edge` at `positions[i0]`: the full width at half maximum
+/// of the averaging kernel `K(s₀, ·)` of the module doc, for the resolution matrix
+/// `resolution` (any linear estimator `ĉ = R c + noise`: the regularised fit, or the
+/// posterior mean of a sensor design). `map` is the profile map of `edge` at `positions`.
+/// A kernel that never falls to half its peak gives the edge's length.
+pub fn resolution_length_at(
+    model: &ForwardModel,
+    resolution: &DMatrix<f64>,
+    edge: Edge,
+    positions: &[f64],
+    map: &LinearMap,
+    i0: usize,
+) -> f64 {
+    let shape = model.plate().shape();
+    let len = shape.edge_length(edge).unwrap_or(shape.width());
+    let Some(series) = model.series_of(edge) else {
+        return len;
+    };
+    let v = map.matrix.row(i0) * resolution; // 1 × p
+    let modes: Vec<(usize, usize)> = model
+        .parameters()
+        .iter()
+        .enumerate()
+        .filter_map(|(j, p)| match p {
+            Parameter::Mode { edge: e, n, .. } if *e == edge => Some((j, *n)),
+            _ => None,
+        })
+        .collect();
+    let basis = series.basis;
+    let kernel: Vec<f64> = positions
+        .iter()
+        .map(|&s| {
+            modes
+                .iter()
+                .map(|&(j, m)| v[j] * basis.value(m, s) / basis.norm_sq(m))
+                .sum()
+        })
+        .collect();
+    full_width_half_max(&kernel, positions, i0).unwrap_or(len)
 }
 
 /// Width at half maximum of the peak of `kernel` nearest `i0`, by linear interpolation of

@@ -201,6 +201,8 @@ pub struct Case {
     pub noise: NoiseSpec,
     /// The `[uncertainty]` settings.
     pub uncertainty: UncertaintySettings,
+    /// The `[design]` settings (used by `edgetherm design` only).
+    pub design: DesignSettings,
     /// Where the case came from.
     pub files: CaseFiles,
 }
@@ -221,8 +223,165 @@ pub fn load_case(files: &CaseFiles) -> Result<Case> {
         fit: pf.fit,
         noise: pf.noise,
         uncertainty: pf.uncertainty,
+        design: pf.design,
         files,
     })
+}
+
+/// Read and validate a case for `edgetherm design`: like [`load_case`], but `sensors.csv` may
+/// be absent (a layout is designed before anything is drilled); its sensors are then empty.
+/// A sensors file that exists must be valid.
+pub fn load_design_case(files: &CaseFiles) -> Result<Case> {
+    let pf = plate_file::read_plate_file(&files.plate)?;
+    let sensors = if files.sensors.exists() {
+        csv_files::read_sensors(&files.sensors, &pf.units, pf.plate.shape())?
+    } else {
+        Vec::new()
+    };
+    let mut files = files.clone();
+    files.profiles = pf.profiles;
+    Ok(Case {
+        units: pf.units,
+        plate: pf.plate,
+        sensors,
+        fit: pf.fit,
+        noise: pf.noise,
+        uncertainty: pf.uncertainty,
+        design: pf.design,
+        files,
+    })
+}
+
+/// Read a sensor layout in the format of `sensors.csv` (`sensor,x,y`, case units), such as a
+/// `layout.csv` written by `edgetherm design` or a layout given to `--evaluate`.
+pub fn read_layout(path: &Path, case: &Case) -> Result<Vec<Sensor>> {
+    csv_files::read_sensors(path, &case.units, case.plate.shape())
+}
+
+/// Read a candidate file for `edgetherm design`: `x,y` (case length unit; an optional
+/// `sensor` column names the holes). Returns each position in metres with its 1-based line;
+/// every position must lie strictly inside the plate.
+pub fn read_candidates(path: &Path, case: &Case) -> Result<Vec<(Point, usize)>> {
+    let table = csv_files::CsvTable::read(
+        path,
+        &csv_files::Columns {
+            required: &["x", "y"],
+            optional: &["sensor"],
+        },
+    )?;
+    if table.rows.is_empty() {
+        return Err(crate::Error::invalid_at(
+            path,
+            None,
+            None,
+            "the file lists no candidate positions; add one row `x,y` per possible hole",
+        ));
+    }
+    let shape = case.plate.shape();
+    let mut out = Vec::with_capacity(table.rows.len());
+    for row in &table.rows {
+        let x = table.number(row, "x")?;
+        let y = table.number(row, "y")?;
+        let p = Point::new(case.units.length_to_m(x), case.units.length_to_m(y));
+        if !shape.contains_strictly(p) {
+            let x_bad = !(p.x > 0.0 && p.x < shape.width());
+            return Err(table.error(
+                row.line,
+                if x_bad { "x" } else { "y" },
+                format!(
+                    "the candidate ({x}, {y}) {} is not strictly inside the plate",
+                    case.units.length
+                ),
+            ));
+        }
+        out.push((p, row.line));
+    }
+    Ok(out)
+}
+
+/// An axis-aligned rectangle of the plate, metres (`[design] allowed` and `keep_out`).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Region {
+    /// Smallest x, metres.
+    pub x_min: f64,
+    /// Largest x, metres.
+    pub x_max: f64,
+    /// Smallest y, metres.
+    pub y_min: f64,
+    /// Largest y, metres.
+    pub y_max: f64,
+}
+
+impl Region {
+    /// Whether `p` lies in the closed rectangle.
+    pub fn contains(&self, p: Point) -> bool {
+        p.x >= self.x_min && p.x <= self.x_max && p.y >= self.y_min && p.y <= self.y_max
+    }
+}
+
+/// Where the candidate positions of a design come from.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub enum CandidateSource {
+    /// A regular grid with this spacing, metres; `None` picks one (see `crate::design`).
+    Grid(Option<f64>),
+    /// A CSV file of positions (`[design] candidates`), resolved against the plate file's
+    /// directory.
+    File(PathBuf),
+}
+
+/// The `[design]` settings (SPEC §3, `edgetherm design`), validated and in SI units.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct DesignSettings {
+    /// Whether `plate.toml` has a `[design]` section at all.
+    pub present: bool,
+    /// Where sensors may go; empty means the whole plate.
+    pub allowed: Vec<Region>,
+    /// Where they may not.
+    pub keep_out: Vec<Region>,
+    /// Minimum distance from every edge of the plate, metres.
+    pub edge_distance_m: f64,
+    /// Minimum distance between two sensors, metres.
+    pub sensor_spacing_m: f64,
+    /// The candidate positions.
+    pub candidates: CandidateSource,
+    /// Expected standard uncertainty of a reading, kelvin; `None` falls back to `[noise]
+    /// sigma`.
+    pub noise_k: Option<f64>,
+    /// Prior standard deviation of the hidden profile about its level, kelvin (averaged along
+    /// the edge); `None` when not given (the design then refuses to run).
+    pub variation_k: Option<f64>,
+    /// The smoothing order of the prior; `None` uses `[fit] smoothing` when it names an
+    /// order, else curvature.
+    pub smoothing: Option<Smoothing>,
+    /// The criterion word (`information`, `edge`, `worst`), checked; `None` for the default.
+    pub criterion: Option<String>,
+    /// The 1-based line of each `[design]` key given, for messages (`design.allowed`, ...).
+    pub lines: Vec<(String, usize)>,
+}
+
+impl Default for DesignSettings {
+    fn default() -> Self {
+        DesignSettings {
+            present: false,
+            allowed: Vec::new(),
+            keep_out: Vec::new(),
+            edge_distance_m: 0.0,
+            sensor_spacing_m: 0.0,
+            candidates: CandidateSource::Grid(None),
+            noise_k: None,
+            variation_k: None,
+            smoothing: None,
+            criterion: None,
+            lines: Vec::new(),
+        }
+    }
+}
+
+impl DesignSettings {
+    /// The line of a `[design]` key (`design.variation`), when the file gave it.
+    pub fn line_of(&self, field: &str) -> Option<usize> {
+        self.lines.iter().find(|(f, _)| f == field).map(|(_, l)| *l)
+    }
 }
 
 /// Read a readings file (`sensor,temperature`, one reading per row, case temperature unit)

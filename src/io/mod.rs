@@ -11,9 +11,11 @@
 //! | `sensors.csv`, `readings.csv`, profile files | `csv_files` |
 //! | the assembled case | [`case`] |
 //! | results, written atomically, never over an input | [`output`] |
+//! | logger files for `track`, and `track.csv` written row by row | [`logger`] |
 
 pub mod case;
 mod csv_files;
+pub mod logger;
 pub mod output;
 mod plate_file;
 mod spans;
@@ -21,6 +23,10 @@ mod spans;
 pub use case::{
     Case, CaseFiles, FitSettings, Sensor, Smoothing, StrengthRule, UncertaintySettings, load_case,
     load_readings, read_truth_profiles,
+};
+pub use logger::{
+    LoggerOptions, LoggerReader, LoggerRow, StreamWriter, TRACK_OUTPUT_FILE_NAMES,
+    check_track_outputs,
 };
 pub mod grid;
 pub use grid::{DEFAULT_GRID, grid_coordinates, parse_grid};

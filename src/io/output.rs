@@ -56,6 +56,12 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
 /// canonicalisation, so `.`/`..`, relative paths and symbolic links do not hide a clash; the
 /// output directory need not exist yet.
 pub fn check_output_dir(out: &Path, inputs: &[&Path]) -> Result<()> {
+    check_output_names(out, &OUTPUT_FILE_NAMES, inputs)
+}
+
+/// [`check_output_dir`] for a command that writes the files `names` (`edgetherm design`
+/// writes `layout.csv`, `design.json`, `design.svg`).
+pub fn check_output_names(out: &Path, names: &[&str], inputs: &[&Path]) -> Result<()> {
     let out_c = canonical(out);
     let refuse = |input: &Path, what: String| {
         Error::invalid_at(
@@ -77,7 +83,7 @@ pub fn check_output_dir(out: &Path, inputs: &[&Path]) -> Result<()> {
                 "the output directory is the file".to_string(),
             ));
         }
-        for name in OUTPUT_FILE_NAMES {
+        for &name in names {
             let target = out_c.join(name);
             let target_c = if target.exists() {
                 canonical(&target)

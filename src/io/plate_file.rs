@@ -7,7 +7,10 @@
 
 use crate::error::{Error, Result};
 use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Shape};
-use crate::io::case::{FitSettings, Smoothing, StrengthRule, UncertaintySettings};
+use crate::io::case::{
+    CandidateSource, DesignSettings, FitSettings, Region, Smoothing, StrengthRule,
+    UncertaintySettings,
+};
 use crate::io::csv_files::{self, absolute_temperature};
 use crate::io::spans::{TomlSpans, guess_field_on_line, header_name};
 use crate::noise::{NoiseSpec, ThermocoupleType, ToleranceClass};
@@ -43,6 +46,7 @@ struct RawFile {
     noise: RawNoise,
     #[serde(default)]
     uncertainty: RawUncertainty,
+    design: Option<RawDesign>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -102,6 +106,33 @@ struct RawUncertainty {
     position_sigma: Option<f64>,
 }
 
+/// `[design]`: the constraints, candidates and prior of `edgetherm design`.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawDesign {
+    allowed: Option<Vec<RawRegion>>,
+    keep_out: Option<Vec<RawRegion>>,
+    edge_distance: Option<f64>,
+    sensor_spacing: Option<f64>,
+    candidate_spacing: Option<f64>,
+    candidates: Option<String>,
+    noise: Option<f64>,
+    variation: Option<f64>,
+    smoothing: Option<Smoothing>,
+    criterion: Option<String>,
+}
+
+/// A rectangle written `{ x = [x0, x1], y = [y0, y1] }`, case length unit.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawRegion {
+    x: [f64; 2],
+    y: [f64; 2],
+}
+
+/// The criteria `[design] criterion` accepts.
+pub(crate) const DESIGN_CRITERIA: [&str; 3] = ["information", "edge", "worst"];
+
 /// A value that may be a number or a word (`height = "infinite"`, `strength = "gcv"`).
 #[derive(Debug, Clone, PartialEq)]
 enum NumberOrWord {
@@ -144,6 +175,7 @@ pub(crate) struct PlateFile {
     pub fit: FitSettings,
     pub noise: NoiseSpec,
     pub uncertainty: UncertaintySettings,
+    pub design: DesignSettings,
     /// The profile files the fixed edges refer to, resolved against the plate file's
     /// directory.
     pub profiles: Vec<(Edge, PathBuf)>,
@@ -319,6 +351,10 @@ impl Checker<'_> {
             fit: self.fit(raw.fit)?,
             noise: self.noise(raw.noise, &units)?,
             uncertainty: self.uncertainty(raw.uncertainty, &units)?,
+            design: match raw.design {
+                Some(d) => self.design(d, &units, &shape)?,
+                None => DesignSettings::default(),
+            },
             profiles,
         })
     }
@@ -499,6 +535,175 @@ impl Checker<'_> {
             )),
             (None, None, None) => Ok(NoiseSpec::Unstated),
         }
+    }
+
+    fn design(&self, raw: RawDesign, units: &Units, shape: &Shape) -> Result<DesignSettings> {
+        let w = units.length_from_m(shape.width());
+        let h = shape.height().map(|h| units.length_from_m(h));
+        let lu = units.length;
+        let regions = |field: &str, list: Option<Vec<RawRegion>>| -> Result<Vec<Region>> {
+            let mut out = Vec::new();
+            for (i, r) in list.unwrap_or_default().into_iter().enumerate() {
+                let [x0, x1] = r.x;
+                let [y0, y1] = r.y;
+                let n = i + 1;
+                if ![x0, x1, y0, y1].iter().all(|v| v.is_finite()) {
+                    return Err(self.err(
+                        field,
+                        format!("rectangle {n}: every bound must be a finite number"),
+                    ));
+                }
+                if !(x0 < x1 && y0 < y1) {
+                    return Err(self.err(
+                        field,
+                        format!(
+                            "rectangle {n}: write it {{ x = [x_min, x_max], y = [y_min, y_max] }} \
+                             with x_min < x_max and y_min < y_max; found x = [{x0}, {x1}], y = [{y0}, {y1}]"
+                        ),
+                    ));
+                }
+                let y_top_ok = h.is_none_or(|h| y1 <= h);
+                if x0 < 0.0 || x1 > w || y0 < 0.0 || !y_top_ok {
+                    let extent = match h {
+                        Some(h) => format!("0 ≤ x ≤ {w} {lu}, 0 ≤ y ≤ {h} {lu}"),
+                        None => format!("0 ≤ x ≤ {w} {lu}, y ≥ 0"),
+                    };
+                    return Err(self.err(
+                        field,
+                        format!("rectangle {n} reaches outside the plate ({extent})"),
+                    ));
+                }
+                out.push(Region {
+                    x_min: units.length_to_m(x0),
+                    x_max: units.length_to_m(x1),
+                    y_min: units.length_to_m(y0),
+                    y_max: units.length_to_m(y1),
+                });
+            }
+            Ok(out)
+        };
+        let allowed = regions("design.allowed", raw.allowed)?;
+        let keep_out = regions("design.keep_out", raw.keep_out)?;
+        let non_negative = |field: &str, v: Option<f64>, what: &str| -> Result<f64> {
+            match v {
+                None => Ok(0.0),
+                Some(v) if v.is_finite() && v >= 0.0 => Ok(units.length_to_m(v)),
+                Some(v) => Err(self.err(
+                    field,
+                    format!("{what} must be a length 0 or larger, not {v}"),
+                )),
+            }
+        };
+        let edge_distance_m = non_negative(
+            "design.edge_distance",
+            raw.edge_distance,
+            "the minimum distance from the edges",
+        )?;
+        let half = 0.5
+            * shape
+                .height()
+                .map_or(shape.width(), |h| h.min(shape.width()));
+        if edge_distance_m >= half {
+            return Err(self.err(
+                "design.edge_distance",
+                "the minimum distance from the edges leaves no room inside the plate; make it \
+                 smaller than half the plate's smaller side",
+            ));
+        }
+        let sensor_spacing_m = non_negative(
+            "design.sensor_spacing",
+            raw.sensor_spacing,
+            "the minimum spacing between sensors",
+        )?;
+        let candidates = match (raw.candidate_spacing, raw.candidates) {
+            (Some(_), Some(_)) => {
+                return Err(self.err(
+                    "design.candidates",
+                    "give either `candidate_spacing` or a `candidates` file, not both",
+                ));
+            }
+            (Some(s), None) => {
+                if !(s.is_finite() && s > 0.0) {
+                    return Err(self.err(
+                        "design.candidate_spacing",
+                        format!("the candidate spacing must be a positive length, not {s}"),
+                    ));
+                }
+                CandidateSource::Grid(Some(units.length_to_m(s)))
+            }
+            (None, Some(f)) => {
+                let base = self.path.parent().unwrap_or(Path::new(""));
+                CandidateSource::File(base.join(f))
+            }
+            (None, None) => CandidateSource::Grid(None),
+        };
+        let positive_dt = |field: &str, v: Option<f64>, what: &str| -> Result<Option<f64>> {
+            match v {
+                None => Ok(None),
+                Some(v) if v.is_finite() && v > 0.0 => Ok(Some(units.dtemp_to_k(v))),
+                Some(v) => Err(self.err(
+                    field,
+                    format!("{what} must be a positive temperature difference, not {v}"),
+                )),
+            }
+        };
+        let noise_k = positive_dt("design.noise", raw.noise, "the expected reading noise")?;
+        let variation_k = positive_dt(
+            "design.variation",
+            raw.variation,
+            "the expected variation of the hidden profile",
+        )?;
+        if raw.smoothing == Some(Smoothing::Auto) {
+            return Err(self.err(
+                "design.smoothing",
+                "a design needs one smoothing order for its prior, chosen before any reading \
+                 exists; use size, slope or curvature (curvature is the usual choice)",
+            ));
+        }
+        if let Some(c) = &raw.criterion {
+            if !DESIGN_CRITERIA.contains(&c.as_str()) {
+                return Err(self.err(
+                    "design.criterion",
+                    format!("unknown criterion `{c}`; use information, edge or worst"),
+                ));
+            }
+        }
+        let lines = [
+            "allowed",
+            "keep_out",
+            "edge_distance",
+            "sensor_spacing",
+            "candidate_spacing",
+            "candidates",
+            "noise",
+            "variation",
+            "smoothing",
+            "criterion",
+        ]
+        .iter()
+        .filter_map(|k| {
+            let f = format!("design.{k}");
+            self.spans.line_of_key(&f).map(|l| (f, l))
+        })
+        .chain(
+            self.spans
+                .line_of_key("design")
+                .map(|l| ("design".to_string(), l)),
+        )
+        .collect();
+        Ok(DesignSettings {
+            present: true,
+            allowed,
+            keep_out,
+            edge_distance_m,
+            sensor_spacing_m,
+            candidates,
+            noise_k,
+            variation_k,
+            smoothing: raw.smoothing,
+            criterion: raw.criterion,
+            lines,
+        })
     }
 
     fn uncertainty(&self, raw: RawUncertainty, units: &Units) -> Result<UncertaintySettings> {
@@ -731,6 +936,98 @@ sigma = 0.5
             assert_eq!(l, line, "{e}");
             assert_eq!(f.as_deref(), Some(field), "{e}");
             assert!(m.contains(gist), "{e}");
+        }
+    }
+
+    #[test]
+    fn design_section_is_read_in_si_units() {
+        let f = parse(GOOD).unwrap();
+        assert!(!f.design.present);
+        let text = format!(
+            "{GOOD}\n[design]\nallowed = [{{ x = [0, 150], y = [0, 20] }}]\n\
+             keep_out = [{{ x = [70, 80], y = [0, 60] }}]\nedge_distance = 3\n\
+             sensor_spacing = 10\ncandidate_spacing = 0.5\nnoise = 0.2\nvariation = 5\n\
+             smoothing = \"slope\"\ncriterion = \"worst\"\n"
+        );
+        let d = parse(&text).unwrap().design;
+        assert!(d.present);
+        assert_eq!(d.allowed.len(), 1);
+        assert!((d.allowed[0].y_max - 0.02).abs() < 1e-15);
+        assert!((d.keep_out[0].x_min - 0.07).abs() < 1e-15);
+        assert!((d.edge_distance_m - 0.003).abs() < 1e-15);
+        assert!((d.sensor_spacing_m - 0.01).abs() < 1e-15);
+        assert_eq!(d.candidates, CandidateSource::Grid(Some(0.0005)));
+        assert_eq!(d.noise_k, Some(0.2));
+        assert_eq!(d.variation_k, Some(5.0));
+        assert_eq!(d.smoothing, Some(Smoothing::Slope));
+        assert_eq!(d.criterion.as_deref(), Some("worst"));
+        assert_eq!(d.line_of("design.variation"), Some(32));
+        assert_eq!(d.line_of("design"), Some(25));
+    }
+
+    #[test]
+    fn design_errors_point_at_the_key() {
+        let cases = [
+            (
+                "allowed = [{ x = [0, 200], y = [0, 20] }]",
+                26,
+                "design.allowed",
+                "outside the plate",
+            ),
+            (
+                "allowed = [{ x = [50, 10], y = [0, 20] }]",
+                26,
+                "design.allowed",
+                "x_min < x_max",
+            ),
+            (
+                "keep_out = [{ x = [1, 2] }]",
+                26,
+                "design.keep_out.y",
+                "needs the key `y`",
+            ),
+            (
+                "edge_distance = -1",
+                26,
+                "design.edge_distance",
+                "0 or larger",
+            ),
+            ("edge_distance = 30", 26, "design.edge_distance", "no room"),
+            (
+                "candidate_spacing = 0",
+                26,
+                "design.candidate_spacing",
+                "positive",
+            ),
+            (
+                "candidate_spacing = 1\ncandidates = \"c.csv\"",
+                27,
+                "design.candidates",
+                "not both",
+            ),
+            ("noise = -0.1", 26, "design.noise", "positive"),
+            ("variation = 0", 26, "design.variation", "positive"),
+            (
+                "smoothing = \"auto\"",
+                26,
+                "design.smoothing",
+                "one smoothing order",
+            ),
+            (
+                "criterion = \"best\"",
+                26,
+                "design.criterion",
+                "unknown criterion",
+            ),
+            ("count = 3", 26, "design.count", "unknown key"),
+        ];
+        for (body, line, field, gist) in cases {
+            let text = format!("{GOOD}\n[design]\n{body}\n");
+            let e = parse(&text).unwrap_err();
+            let (l, f, m) = loc(&e);
+            assert_eq!(l, Some(line), "{body}: {e}");
+            assert_eq!(f.as_deref(), Some(field), "{body}: {e}");
+            assert!(m.contains(gist), "{body}: {e}");
         }
     }
 

@@ -1,0 +1,192 @@
+//! Track benchmark (issue bar): 1,000,000 rows × 32 sensors, linear bands per row, end to
+//! end (`edgetherm track` reading the CSV log and writing every output) — target at least
+//! 200,000 rows per second on the 2-core CI machine, in constant memory.
+//!
+//! `cargo bench --bench track` writes an invented log (cold-plate geometry, 64 terms, 32
+//! sensors in two staggered rows, a hot spot that grows and fades, one sensor open circuit for
+//! a stretch) to a temporary directory, runs the release binary on it with `--calibrate 200
+//! --limit`, and prints rows/s and the binary's peak resident memory (VmHWM, polled from
+//! /proc while it runs). It also runs with the limit inside the band (every row needs the
+//! exceedance draws), on a log a tenth as long (the peak memory does not grow with the log),
+//! and with the strength chosen on every row (the slow, exact-`estimate` path) on a fiftieth.
+//! `TRACK_BENCH_ROWS` overrides the row count; `TRACK_BENCH_KEEP=1` keeps the files.
+
+use edgetherm::geometry::{EdgeProfile, Point};
+use edgetherm::io::{CaseFiles, Sensor, load_case};
+use edgetherm::track::synthetic::{Fault, FaultKind, Spec, write_log};
+use std::io::Write;
+use std::path::Path;
+use std::time::{Duration, Instant};
+
+fn main() {
+    let rows: usize = std::env::var("TRACK_BENCH_ROWS")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(1_000_000);
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let bin = root.join("target/release/edgetherm");
+    assert!(
+        bin.exists(),
+        "build the binary first: cargo build --release (the benchmark runs it end to end)"
+    );
+    let tmp = tempfile::tempdir().expect("temp dir");
+    // TRACK_BENCH_KEEP=1 keeps the case and logs (for profiling) and prints where
+    let keep = std::env::var_os("TRACK_BENCH_KEEP").is_some();
+    let dir_path = tmp.path().to_path_buf();
+    if keep {
+        println!("files kept in {}", dir_path.display());
+        std::mem::forget(tmp);
+    }
+    let dir = DirRef(&dir_path);
+    let case_dir = dir.path().join("case");
+    std::fs::create_dir(&case_dir).expect("case dir");
+    std::fs::copy(
+        root.join("sample-measurements/cold-plate/plate.toml"),
+        case_dir.join("plate.toml"),
+    )
+    .expect("plate.toml");
+    let mut sensors = String::from("sensor,x,y\n");
+    for i in 0..32 {
+        let x = 180.0 * (i as f64 + 0.5) / 32.0;
+        let y = if i % 2 == 0 { 6.0 } else { 10.0 };
+        sensors.push_str(&format!("S{i:02},{x},{y}\n"));
+    }
+    std::fs::write(case_dir.join("sensors.csv"), sensors).expect("sensors.csv");
+    let mut case = load_case(&CaseFiles::in_dir(&case_dir)).expect("case");
+    case.sensors = case
+        .sensors
+        .iter()
+        .map(|s| Sensor {
+            position: Point::new(s.position.x, s.position.y),
+            ..s.clone()
+        })
+        .collect();
+
+    // (rows, extra flags, what it shows)
+    let runs: [(usize, &[&str], &str); 4] = [
+        (
+            rows,
+            &["--calibrate", "200", "--limit", "70"],
+            "calibrated, limit far above",
+        ),
+        (
+            rows,
+            &["--calibrate", "200", "--limit", "56"],
+            "calibrated, limit within the band",
+        ),
+        (
+            rows / 10,
+            &["--calibrate", "200", "--limit", "70"],
+            "a tenth of the rows",
+        ),
+        (
+            rows / 50,
+            &["--limit", "70"],
+            "strength chosen on every row",
+        ),
+    ];
+    for (n, flags, what) in runs {
+        let log = dir.path().join(format!("log-{n}.csv"));
+        if !log.exists() {
+            let t0 = Instant::now();
+            write_bench_log(&case, n, &log);
+            let size = std::fs::metadata(&log).map(|m| m.len()).unwrap_or(0);
+            println!(
+                "log: {n} rows × 32 sensors, {:.0} MB, written in {:.1} s",
+                size as f64 / 1e6,
+                t0.elapsed().as_secs_f64()
+            );
+        }
+        let out = dir.path().join(format!("out-{n}"));
+        let t0 = Instant::now();
+        let mut child = std::process::Command::new(&bin)
+            .arg("track")
+            .arg(&case_dir)
+            .arg("--log")
+            .arg(&log)
+            .arg("--out")
+            .arg(&out)
+            .args(flags)
+            .arg("--quiet")
+            .spawn()
+            .expect("run edgetherm");
+        let status_path = format!("/proc/{}/status", child.id());
+        let mut peak_kb = 0u64;
+        let status = loop {
+            if let Ok(text) = std::fs::read_to_string(&status_path) {
+                if let Some(v) = text
+                    .lines()
+                    .find(|l| l.starts_with("VmHWM:"))
+                    .and_then(|l| l.split_whitespace().nth(1))
+                    .and_then(|v| v.parse::<u64>().ok())
+                {
+                    peak_kb = peak_kb.max(v);
+                }
+            }
+            if let Some(s) = child.try_wait().expect("wait") {
+                break s;
+            }
+            std::thread::sleep(Duration::from_millis(20));
+        };
+        let secs = t0.elapsed().as_secs_f64();
+        let summary = std::fs::read_to_string(out.join("summary.json"))
+            .ok()
+            .and_then(|t| serde_json::from_str::<serde_json::Value>(&t).ok())
+            .unwrap_or(serde_json::Value::Null);
+        println!(
+            "track ({what}; {}): {n} rows in {secs:.2} s = {:.0} rows/s end to end (exit {:?}); \
+             peak memory {:.1} MB; {} fitted, {} refitted, {} alarm episodes",
+            flags.join(" "),
+            n as f64 / secs,
+            status.code(),
+            peak_kb as f64 / 1024.0,
+            summary["rows_fitted"],
+            summary["rows_refitted"],
+            summary["alarm"]["episode_count"],
+        );
+    }
+}
+
+struct DirRef<'a>(&'a Path);
+
+impl DirRef<'_> {
+    fn path(&self) -> &Path {
+        self.0
+    }
+}
+
+fn write_bench_log(case: &edgetherm::io::Case, rows: usize, path: &Path) {
+    let s: Vec<f64> = (0..=180).map(|i| f64::from(i) * 0.001).collect();
+    let base =
+        EdgeProfile::piecewise_linear(s.clone(), vec![273.15 + 34.0; s.len()]).expect("base");
+    let bump: Vec<f64> = s
+        .iter()
+        .map(|&x| (-((x - 0.097) / 0.015f64).powi(2)).exp())
+        .collect();
+    // a hot spot of 20 K that wanders by ±1.5 K over the log: the strength calibrated on the
+    // first rows fits every row (the per-row rule path is measured separately, see
+    // docs/track.md)
+    let period = (rows / 3).max(1) as f64;
+    let amp = move |r: usize| 20.0 + 1.5 * (2.0 * std::f64::consts::PI * r as f64 / period).sin();
+    let spec = Spec {
+        rows,
+        step_s: 5.0,
+        start: Some(1_772_348_400),
+        sigma: 0.15,
+        seed: 99,
+        base,
+        bump: EdgeProfile::piecewise_linear(s, bump).expect("bump"),
+        amplitude: &amp,
+        faults: vec![Fault {
+            sensor: 7,
+            from: rows / 3,
+            to: Some(rows / 3 + rows / 20),
+            kind: FaultKind::Marker("OPEN".into()),
+        }],
+        decimals: 2,
+    };
+    let file = std::fs::File::create(path).expect("log file");
+    let mut w = std::io::BufWriter::new(file);
+    write_log(case, &spec, &mut w).expect("write log");
+    w.flush().expect("flush");
+}

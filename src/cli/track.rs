@@ -1,0 +1,334 @@
+//! `edgetherm track CASE_DIR --log LOG.csv`: the estimate on every row of a logger file, the
+//! hottest point through time, alarms and failing sensors (SPEC §3, §3.2).
+//!
+//! The log is read on a second thread (CSV parsing and the fits then run side by side) and
+//! handed over in bounded batches, so memory stays constant. `track.csv` is written row by
+//! row (see [`edgetherm::io::StreamWriter`] for what a kill leaves); the other outputs are
+//! written atomically at the end, and with `--follow` also whenever the log goes quiet.
+//!
+//! Exit status: 0 done; 3 when `--limit` is given and an alarm episode occurred; 2 invalid
+//! input; 1 internal error.
+
+use super::{GlobalOptions, print_stdout};
+use edgetherm::io::logger::Follow;
+use edgetherm::io::{
+    LoggerOptions, LoggerReader, LoggerRow, StreamWriter, StrengthRule, check_track_outputs,
+    create_output_dir, load_case, write_atomic,
+};
+use edgetherm::track::report::{
+    TRACK_CSV_HEADER, alarms_csv, health_csv, summary_json, text_summary, track_csv_row,
+};
+use edgetherm::track::{RowRecord, TrackOptions, Tracker, plot};
+use edgetherm::{Error, Result};
+use std::io::IsTerminal;
+use std::path::{Path, PathBuf};
+use std::sync::mpsc;
+use std::time::{Duration, Instant};
+
+/// Rows per batch handed from the reading thread (1 with `--follow`, so each row is handled
+/// as soon as it is complete).
+const BATCH: usize = 512;
+
+/// Arguments of `edgetherm track`.
+#[derive(Debug, clap::Args)]
+pub struct TrackArgs {
+    /// The case directory (plate.toml, sensors.csv).
+    #[arg(value_name = "CASE_DIR")]
+    pub case_dir: PathBuf,
+    /// The logger file: `time` and one column per sensor id (ISO 8601 or seconds; readings
+    /// in the case's temperature unit).
+    #[arg(long, value_name = "LOG.csv")]
+    pub log: PathBuf,
+    /// Directory for the outputs (track.csv, alarms.csv, sensors-health.csv, track.svg,
+    /// summary.json).
+    #[arg(long, value_name = "DIR", default_value = "edgetherm-track")]
+    pub out: PathBuf,
+    /// Alarm limit for the hidden edges, in the case's temperature unit.
+    #[arg(long, value_name = "T")]
+    pub limit: Option<f64>,
+    /// A row is in alarm when the probability of exceeding --limit is above this.
+    #[arg(long, value_name = "P", default_value_t = 0.05)]
+    pub probability: f64,
+    /// An alarm episode ends after this many rows in a row at or below --probability.
+    #[arg(long, value_name = "N", default_value_t = 10)]
+    pub clear: usize,
+    /// Choose the smoothing and its strength once, on the first N usable rows, then keep
+    /// them fixed [default: chosen on every row].
+    #[arg(long, value_name = "FIRST_N_ROWS")]
+    pub calibrate: Option<usize>,
+    /// Smoothing strength rule, overriding the case: gcv, discrepancy, evidence, lcurve, or
+    /// a positive number (fixed).
+    #[arg(long, value_name = "RULE")]
+    pub strength: Option<String>,
+    /// Bands from the bootstrap on every row (as `estimate`; slow) instead of the linear
+    /// (Gaussian posterior) band.
+    #[arg(long)]
+    pub bootstrap: bool,
+    /// Bootstrap replicates per row with --bootstrap [default: the case's].
+    #[arg(long, value_name = "N")]
+    pub replicates: Option<usize>,
+    /// Posterior draws per sensor pattern for the exceedance probability.
+    #[arg(long, value_name = "N", default_value_t = edgetherm::track::engine::DEFAULT_DRAWS)]
+    pub draws: usize,
+    /// Seed of the draws and of the bootstrap [default: the case's [uncertainty] seed].
+    #[arg(long, value_name = "N")]
+    pub seed: Option<u64>,
+    /// Never leave out a sensor that has a reading (problems are still reported).
+    #[arg(long)]
+    pub keep_all: bool,
+    /// Ignore logger columns that are not sensors of the case (else they are an error).
+    #[arg(long)]
+    pub ignore_extra: bool,
+    /// Keep reading the log as the logger appends to it, until interrupted.
+    #[arg(long)]
+    pub follow: bool,
+    /// With --follow: stop after this many seconds without new rows [default: never].
+    #[arg(long, value_name = "SECONDS", requires = "follow")]
+    pub idle_exit: Option<f64>,
+}
+
+/// Run `track`.
+pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
+    let files = global.case_files(&args.case_dir);
+    let case = load_case(&files)?;
+    let mut inputs = case.files.inputs();
+    inputs.push(&args.log);
+    check_track_outputs(&args.out, &inputs)?;
+    if !(args.probability > 0.0 && args.probability < 1.0) {
+        return Err(Error::invalid_field(
+            "--probability",
+            format!(
+                "must lie strictly between 0 and 1, not {}",
+                args.probability
+            ),
+        ));
+    }
+    let limit = match args.limit {
+        Some(t) if t.is_finite() => Some(case.units.temp_to_k(t)),
+        Some(t) => {
+            return Err(Error::invalid_field(
+                "--limit",
+                format!("must be a finite temperature, not {t}"),
+            ));
+        }
+        None => None,
+    };
+    for (flag, v) in [
+        ("--clear", Some(args.clear)),
+        ("--calibrate", args.calibrate),
+        ("--replicates", args.replicates),
+        ("--draws", Some(args.draws)),
+    ] {
+        if v == Some(0) {
+            return Err(Error::invalid_field(flag, "must be at least 1"));
+        }
+    }
+    let idle_exit = match args.idle_exit {
+        Some(s) if s.is_finite() && s >= 0.0 => Some(Duration::from_secs_f64(s)),
+        Some(s) => {
+            return Err(Error::invalid_field(
+                "--idle-exit",
+                format!("must be a number of seconds >= 0, not {s}"),
+            ));
+        }
+        None => None,
+    };
+    let strength = args.strength.as_deref().map(parse_strength).transpose()?;
+    let options = TrackOptions {
+        strength,
+        calibrate: args.calibrate,
+        limit,
+        probability: args.probability,
+        clear_rows: args.clear,
+        draws: args.draws,
+        seed: args.seed,
+        keep_all: args.keep_all,
+        bootstrap: args.bootstrap,
+        replicates: args.replicates,
+        ..TrackOptions::default()
+    };
+    let mut tracker = Tracker::new(&case, options)?;
+    let reader = LoggerReader::open(
+        &args.log,
+        &case,
+        &LoggerOptions {
+            ignore_extra: args.ignore_extra,
+            follow: args.follow.then_some(Follow {
+                poll: Duration::from_millis(250),
+                idle_exit,
+            }),
+        },
+    )?;
+    if !global.quiet && !reader.ignored_columns.is_empty() {
+        eprintln!(
+            "edgetherm: ignoring columns that are not sensors: {}",
+            reader.ignored_columns.join(", ")
+        );
+    }
+    if !global.quiet && !reader.absent_sensors.is_empty() {
+        let ids: Vec<&str> = reader
+            .absent_sensors
+            .iter()
+            .map(|&i| case.sensors[i].id.as_str())
+            .collect();
+        eprintln!(
+            "edgetherm: the log has no column for {}; tracking without them",
+            ids.join(", ")
+        );
+    }
+    create_output_dir(&args.out)?;
+    let writer = StreamWriter::create(&args.out.join("track.csv"), TRACK_CSV_HEADER, args.follow)?;
+
+    // Reading thread: batches of rows over a bounded channel.
+    let batch = if args.follow { 1 } else { BATCH };
+    let (tx, rx) = mpsc::sync_channel::<Result<Vec<LoggerRow>>>(8);
+    let handle = std::thread::spawn(move || {
+        let mut reader = reader;
+        loop {
+            let mut rows = Vec::with_capacity(batch);
+            let mut row = LoggerRow::default();
+            let mut done = false;
+            while rows.len() < batch {
+                match reader.next_row(&mut row) {
+                    Ok(true) => rows.push(std::mem::take(&mut row)),
+                    Ok(false) => {
+                        done = true;
+                        break;
+                    }
+                    Err(e) => {
+                        let _ = tx.send(Err(e));
+                        return;
+                    }
+                }
+            }
+            if !rows.is_empty() && tx.send(Ok(rows)).is_err() {
+                return;
+            }
+            if done {
+                return;
+            }
+        }
+    });
+
+    let bar = (!global.quiet && std::io::stderr().is_terminal()).then(|| {
+        let bar = indicatif::ProgressBar::new_spinner();
+        bar.set_style(
+            indicatif::ProgressStyle::with_template("track {spinner} {pos} rows ({per_sec})")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_spinner()),
+        );
+        bar
+    });
+    let mut rows_out = RowsOut {
+        case: tracker.case().clone(),
+        writer,
+    };
+    let mut last_write = Instant::now();
+    let mut dirty = false;
+    let mut rows_seen: u64 = 0;
+    loop {
+        let msg = if args.follow {
+            match rx.recv_timeout(Duration::from_millis(500)) {
+                Ok(m) => Some(m),
+                Err(mpsc::RecvTimeoutError::Timeout) => {
+                    // the log is quiet: make every output current (once)
+                    if dirty {
+                        rows_out.writer.flush()?;
+                        write_summaries(&tracker, &args.out)?;
+                        last_write = Instant::now();
+                        dirty = false;
+                    }
+                    continue;
+                }
+                Err(mpsc::RecvTimeoutError::Disconnected) => None,
+            }
+        } else {
+            rx.recv().ok()
+        };
+        let Some(msg) = msg else { break };
+        let rows = msg?;
+        for row in &rows {
+            tracker.push(row, &mut |rec| rows_out.write(rec))?;
+        }
+        rows_seen += rows.len() as u64;
+        if let Some(b) = &bar {
+            b.set_position(rows_seen);
+        }
+        if args.follow {
+            rows_out.writer.flush()?;
+            dirty = true;
+            if last_write.elapsed() >= Duration::from_secs(2) {
+                write_summaries(&tracker, &args.out)?;
+                last_write = Instant::now();
+                dirty = false;
+            }
+        }
+    }
+    tracker.finish(&mut |rec| rows_out.write(rec))?;
+    let _ = handle.join();
+    if let Some(b) = &bar {
+        b.finish_and_clear();
+    }
+    let writer = rows_out.writer;
+    writer.finish()?;
+    let summary = write_summaries(&tracker, &args.out)?;
+    if global.json {
+        print_stdout(&format!("{:#}\n", summary_json(&case, &summary)))?;
+    } else if !global.quiet {
+        let mut text = text_summary(&case, &summary);
+        text.push_str(&format!("Wrote 5 files to {}.\n", args.out.display()));
+        print_stdout(&text)?;
+    }
+    Ok(if limit.is_some() && tracker.any_alarm() {
+        3
+    } else {
+        0
+    })
+}
+
+/// Where `track.csv` rows go.
+struct RowsOut {
+    case: edgetherm::io::Case,
+    writer: StreamWriter,
+}
+
+impl RowsOut {
+    fn write(&mut self, rec: &RowRecord<'_>) -> Result<()> {
+        track_csv_row(&self.case, rec, self.writer.buffer());
+        self.writer.maybe_flush()
+    }
+}
+
+/// Write alarms.csv, sensors-health.csv, summary.json and track.svg atomically.
+fn write_summaries(tracker: &Tracker, out: &Path) -> Result<edgetherm::track::TrackSummary> {
+    let case = tracker.case();
+    let s = tracker.snapshot();
+    write_atomic(&out.join("alarms.csv"), &alarms_csv(case, &s))?;
+    write_atomic(&out.join("sensors-health.csv"), &health_csv(case, &s))?;
+    let json = format!("{:#}\n", summary_json(case, &s));
+    write_atomic(&out.join("summary.json"), json.as_bytes())?;
+    let svg = plot::track_svg(case, &s, &tracker.series().bins())?;
+    write_atomic(&out.join("track.svg"), svg.as_bytes())?;
+    Ok(s)
+}
+
+fn parse_strength(s: &str) -> Result<StrengthRule> {
+    let rule = match s.trim() {
+        "gcv" => StrengthRule::Gcv,
+        "discrepancy" => StrengthRule::Discrepancy,
+        "evidence" => StrengthRule::Evidence,
+        "lcurve" => StrengthRule::LCurve,
+        other => match other.parse::<f64>() {
+            Ok(v) if v.is_finite() && v > 0.0 => StrengthRule::Fixed(v),
+            _ => {
+                return Err(Error::invalid_field(
+                    "--strength",
+                    format!(
+                        "expected gcv, discrepancy, evidence, lcurve or a positive number, \
+                         not `{s}`"
+                    ),
+                ));
+            }
+        },
+    };
+    Ok(rule)
+}

@@ -1,0 +1,324 @@
+//! The outputs of `edgetherm design`, in the case's units: `layout.csv` (ready to use as
+//! `sensors.csv`), `design.json`, `design.svg` and the text summary. Rendering happens in
+//! memory; [`write_design_outputs`] writes each file atomically through
+//! [`crate::io::write_atomic`]. Nothing here prints.
+
+use super::{Comparison, DesignResult, LayoutScore, z_of};
+use crate::error::{Error, Result};
+use crate::io::{create_output_dir, write_atomic};
+use crate::report::format::{CaseUnits, edge_coordinate, rounded, significant};
+use serde_json::{Value, json};
+use std::fmt::Write as _;
+use std::path::{Path, PathBuf};
+
+/// The files `edgetherm design` writes into its output directory.
+pub const DESIGN_OUTPUT_FILE_NAMES: [&str; 3] = ["layout.csv", "design.json", "design.svg"];
+
+/// `layout.csv`: `sensor,x,y` in the case's length unit, every sensor of the layout (those
+/// kept fixed first), ready to use as `sensors.csv`.
+pub fn layout_csv(r: &DesignResult) -> String {
+    let u = CaseUnits::new(r.units);
+    let mut out = String::from("sensor,x,y\n");
+    for s in &r.layout {
+        let _ = writeln!(
+            out,
+            "{},{},{}",
+            s.id,
+            u.len_file(s.position.x),
+            u.len_file(s.position.y)
+        );
+    }
+    out
+}
+
+fn percent(c: f64) -> String {
+    let p = 100.0 * c;
+    if (p - p.round()).abs() < 1e-9 {
+        format!("{} %", p.round())
+    } else {
+        format!("{p:.1} %")
+    }
+}
+
+fn score_json(r: &DesignResult, s: &LayoutScore) -> Value {
+    let u = CaseUnits::new(r.units);
+    let z = z_of(r.confidence);
+    json!({
+        "information": rounded(s.information, 4),
+        "edge_rms_sd": u.dtemp_json(s.edge_mean_variance.sqrt()),
+        "edge_mean_variance": significant(u.dtemp(1.0).powi(2) * s.edge_mean_variance, 6),
+        "worst_sd": u.dtemp_json(s.worst_sd),
+        "worst_at": {"edge": s.worst_at.0, "position": u.len_json(s.worst_at.1)},
+        "condition_number": s.condition_number.map_or(Value::Null, |c| significant(c, 4)),
+        "resolution_length": s.edges.iter().map(|e| (e.edge.name().to_string(), u.len_json(e.resolution_median))).collect::<serde_json::Map<_, _>>(),
+        "edges": s.edges.iter().map(|e| json!({
+            "edge": e.edge,
+            "rms_sd": u.dtemp_json(e.rms_sd),
+            "max_sd": u.dtemp_json(e.max_sd),
+            "resolution_length_median": u.len_json(e.resolution_median),
+            "resolution_length": e.resolution.iter().map(|(p, l)| json!({"position": u.len_json(*p), "length": u.len_json(*l)})).collect::<Vec<_>>(),
+            "profile": e.positions.iter().enumerate().step_by(4).map(|(k, p)| json!({
+                "position": u.len_json(*p),
+                "sd": u.dtemp_json(e.sd[k]),
+                "half_width": u.dtemp_json(z * e.sd[k]),
+                "prior_sd": u.dtemp_json(e.prior_sd[k]),
+            })).collect::<Vec<_>>(),
+        })).collect::<Vec<_>>(),
+    })
+}
+
+fn layout_json(r: &DesignResult, layout: &[super::LayoutSensor]) -> Value {
+    let u = CaseUnits::new(r.units);
+    Value::Array(
+        layout
+            .iter()
+            .map(|s| {
+                json!({
+                    "sensor": s.id,
+                    "x": u.len_json(s.position.x),
+                    "y": u.len_json(s.position.y),
+                    "fixed": s.fixed,
+                })
+            })
+            .collect(),
+    )
+}
+
+/// `design.json` and the `--json` output.
+pub fn design_json(r: &DesignResult) -> Value {
+    let u = CaseUnits::new(r.units);
+    let c = &r.constraints;
+    let region = |g: &crate::io::case::Region| json!({"x": [u.len_json(g.x_min), u.len_json(g.x_max)], "y": [u.len_json(g.y_min), u.len_json(g.y_max)]});
+    json!({
+        "criterion": r.criterion.name(),
+        "criterion_value": criterion_json(r, &r.score),
+        "layout": layout_json(r, &r.layout),
+        "score": score_json(r, &r.score),
+        "against": r.against.as_ref().map(|a: &Comparison| json!({
+            "name": a.name,
+            "layout": layout_json(r, &a.layout),
+            "criterion_value": criterion_json(r, &a.score),
+            "score": score_json(r, &a.score),
+        })),
+        "search": r.search.as_ref().map(|s| json!({
+            "new_sensors": s.count,
+            "greedy_value": criterion_value_json(r, s.greedy_value),
+            "value": criterion_value_json(r, s.value),
+            "exchange_passes": s.passes,
+            "swaps": s.swaps,
+        })),
+        "prior": {
+            "variation": u.dtemp_json(r.prior.variation_k),
+            "smoothing": crate::io::Smoothing::of_order(r.prior.order).map_or("curvature", |s| s.name()),
+            "tau": significant(u.dtemp(r.prior.tau_k), 6),
+            "unpenalised_sd": u.dtemp_json(r.prior.unpenalised_sd_k),
+            "equivalent_strength": significant(r.prior.equivalent_strength, 6),
+        },
+        "noise": u.dtemp_json(r.noise_k),
+        "confidence": r.confidence,
+        "constraints": {
+            "allowed": c.allowed.iter().map(region).collect::<Vec<_>>(),
+            "keep_out": c.keep_out.iter().map(region).collect::<Vec<_>>(),
+            "edge_distance": u.len_json(c.edge_distance_m),
+            "sensor_spacing": u.len_json(c.sensor_spacing_m),
+        },
+        "candidates": {
+            "count": r.candidate_count,
+            "spacing": r.candidate_spacing_m.map(|h| u.len_json(h)),
+        },
+        "units": {"length": r.units.length.symbol(), "temperature": r.units.temperature.symbol()},
+        "version": env!("CARGO_PKG_VERSION"),
+        "cautions": r.cautions,
+    })
+}
+
+/// A criterion value in case units (information is dimensionless; edge is a mean variance,
+/// written as its root, a standard deviation; worst a standard deviation).
+fn criterion_value_json(r: &DesignResult, v: f64) -> Value {
+    let u = CaseUnits::new(r.units);
+    match r.criterion {
+        super::Criterion::Information => rounded(v, 4),
+        super::Criterion::Edge => u.dtemp_json(v.max(0.0).sqrt()),
+        super::Criterion::Worst => u.dtemp_json(v),
+    }
+}
+
+fn criterion_json(r: &DesignResult, s: &LayoutScore) -> Value {
+    criterion_value_json(r, s.value(r.criterion))
+}
+
+/// The text summary for stdout.
+pub fn design_text(r: &DesignResult) -> String {
+    let u = CaseUnits::new(r.units);
+    let z = z_of(r.confidence);
+    let conf = percent(r.confidence);
+    let lu = u.len_symbol();
+    let mut out = String::new();
+    let new = r.layout.iter().filter(|s| !s.fixed).count();
+    let fixed = r.layout.len() - new;
+    let _ = writeln!(
+        out,
+        "edgetherm {} - sensor layout {} (criterion `{}`: {})",
+        env!("CARGO_PKG_VERSION"),
+        if r.search.is_some() {
+            "design"
+        } else {
+            "score"
+        },
+        r.criterion.name(),
+        r.criterion.describe()
+    );
+    out.push('\n');
+    if let Some(s) = &r.search {
+        let _ = writeln!(
+            out,
+            "{new} new sensors chosen from {} feasible candidates{}{}; greedy, then {} \
+             exchange pass{} ({} swap{}).",
+            r.candidate_count,
+            r.candidate_spacing_m
+                .map_or(String::new(), |h| format!(" (grid {})", u.len_show(h))),
+            if fixed > 0 {
+                format!(", beside {fixed} existing sensors kept fixed")
+            } else {
+                String::new()
+            },
+            s.passes,
+            if s.passes == 1 { "" } else { "es" },
+            s.swaps,
+            if s.swaps == 1 { "" } else { "s" },
+        );
+    } else {
+        let _ = writeln!(out, "Scored layout: {} sensors.", r.layout.len());
+    }
+    out.push('\n');
+    let _ = writeln!(
+        out,
+        "  sensor  {:>9}  {:>9}",
+        format!("x [{lu}]"),
+        format!("y [{lu}]")
+    );
+    for s in &r.layout {
+        let _ = writeln!(
+            out,
+            "  {:<6}  {:>9}  {:>9}{}",
+            s.id,
+            u.len_num(s.position.x),
+            u.len_num(s.position.y),
+            if s.fixed && r.search.is_some() {
+                "  (kept)"
+            } else {
+                ""
+            }
+        );
+    }
+    out.push('\n');
+    let score_lines = |out: &mut String, name: &str, s: &LayoutScore| {
+        let _ = writeln!(out, "{name}");
+        for e in &s.edges {
+            let prior_rms = (e.prior_sd.iter().map(|v| v * v).sum::<f64>()
+                / e.prior_sd.len().max(1) as f64)
+                .sqrt();
+            let _ = writeln!(
+                out,
+                "  {} edge: predicted {conf} band half-width {} on average (root mean square), \
+                 {} at most (expected variation before any reading ±{})",
+                e.edge,
+                u.dtemp_show(z * e.rms_sd),
+                u.dtemp_show(z * e.max_sd),
+                u.dtemp_show(z * prior_rms),
+            );
+            let lens: Vec<f64> = e.resolution.iter().map(|r| r.1).collect();
+            let lo = lens.iter().copied().fold(f64::INFINITY, f64::min);
+            let hi = lens.iter().copied().fold(0.0, f64::max);
+            let _ = writeln!(
+                out,
+                "  {} edge: resolution length {} (median along the edge; {} to {} {lu})",
+                e.edge,
+                u.len_show(e.resolution_median),
+                u.len_num(lo),
+                u.len_num(hi),
+            );
+        }
+        let _ = writeln!(
+            out,
+            "  information (log det gain) {:.2}; worst standard deviation {} at {} = {} on \
+             the {} edge; condition number of the weighted sensor map {}",
+            s.information,
+            u.dtemp_show(s.worst_sd),
+            edge_coordinate(s.worst_at.0),
+            u.len_show(s.worst_at.1),
+            s.worst_at.0,
+            s.condition_number
+                .map_or("infinite".to_string(), |c| format!("{c:.3e}")),
+        );
+    };
+    let name = if r.search.is_some() {
+        "This layout".to_string()
+    } else {
+        "The scored layout".to_string()
+    };
+    score_lines(&mut out, &name, &r.score);
+    if let Some(a) = &r.against {
+        out.push('\n');
+        score_lines(
+            &mut out,
+            &format!("Compared with {} ({} sensors)", a.name, a.layout.len()),
+            &a.score,
+        );
+        out.push('\n');
+        let (ours, theirs) = (r.score.value(r.criterion), a.score.value(r.criterion));
+        let verdict = match r.criterion {
+            super::Criterion::Information => {
+                format!(
+                    "information {:.2} against {:.2} (higher is better)",
+                    ours, theirs
+                )
+            }
+            super::Criterion::Edge => format!(
+                "root-mean-square standard deviation along the edges {} against {} (lower is better)",
+                u.dtemp_show(ours.sqrt()),
+                u.dtemp_show(theirs.sqrt())
+            ),
+            super::Criterion::Worst => format!(
+                "worst standard deviation {} against {} (lower is better)",
+                u.dtemp_show(ours),
+                u.dtemp_show(theirs)
+            ),
+        };
+        let _ = writeln!(out, "Criterion `{}`: {verdict}.", r.criterion.name());
+    }
+    out.push('\n');
+    let _ = writeln!(out, "Cautions");
+    for c in &r.cautions {
+        let _ = writeln!(out, "  - {c}");
+    }
+    out
+}
+
+/// Render `layout.csv`, `design.json` and `design.svg`, in the order of
+/// [`DESIGN_OUTPUT_FILE_NAMES`].
+pub fn render_design_outputs(r: &DesignResult) -> Result<Vec<(&'static str, Vec<u8>)>> {
+    let json = serde_json::to_string_pretty(&design_json(r))
+        .map_err(|e| Error::Internal(format!("cannot format design.json: {e}")))?;
+    let svg = super::svg::design_svg(r)?;
+    Ok(vec![
+        ("layout.csv", layout_csv(r).into_bytes()),
+        ("design.json", format!("{json}\n").into_bytes()),
+        ("design.svg", svg.into_bytes()),
+    ])
+}
+
+/// Render every output and write it into `out_dir` (created if needed), each file
+/// atomically; nothing is written unless every output rendered. The caller must first check
+/// with [`crate::io::output::check_output_names`] that no output would replace an input.
+pub fn write_design_outputs(r: &DesignResult, out_dir: &Path) -> Result<Vec<PathBuf>> {
+    let outputs = render_design_outputs(r)?;
+    create_output_dir(out_dir)?;
+    let mut written = Vec::new();
+    for (name, bytes) in outputs {
+        let path = out_dir.join(name);
+        write_atomic(&path, &bytes)?;
+        written.push(path);
+    }
+    Ok(written)
+}

@@ -1,0 +1,752 @@
+//! Logger files for `track` (SPEC §3.2): a wide CSV with a `time` column and one column per
+//! sensor, read record by record in constant memory; and the incremental writer of
+//! `track.csv`.
+//!
+//! ## What a logger file may hold
+//!
+//! * A header: `time` (any case) and sensor ids from `sensors.csv`, in any order. A column
+//!   for a sensor that is not in `sensors.csv` is an error unless extra columns are allowed
+//!   (`--ignore-extra`); a sensor with no column simply has no readings.
+//! * `time`: seconds (any real number, e.g. seconds since the logger started or since 1970),
+//!   or ISO 8601 `YYYY-MM-DDTHH:MM[:SS[.fff]]` (a space may replace the `T`) with or without a
+//!   zone (`Z`, `±HH:MM`, `±HHMM`). The first row fixes the kind; every row must use the same
+//!   kind. Times never go backwards (equal times are allowed: some loggers write two rows in
+//!   one second).
+//! * Readings in the case's temperature unit. Missing readings for that row: an empty cell,
+//!   and the markers in [`FAULT_MARKERS`] (case-insensitive) and [`FAULT_CODES`]. Those lists
+//!   are what data loggers commonly write for an open or shorted thermocouple, an input over
+//!   or under its range, or no sample (common practice; no standard fixes them). Any other
+//!   text, a non-finite number, a temperature below absolute zero or above
+//!   [`MAX_PLAUSIBLE_K`] is an error naming the line and the column.
+//!
+//! Every problem is an [`Error::Invalid`] with the file, the 1-based line and the column, so
+//! the binary exits with status 2.
+//!
+//! ## Following a file that is still being written
+//!
+//! With [`Follow`], reaching the end of the file is not the end: the reader waits and reads
+//! again, so rows appended by the logger are processed as they arrive, until the process is
+//! interrupted (or, when asked, after a stretch with no new data). A row is parsed only when
+//! its line is complete, because the CSV parser keeps waiting for the rest of the line.
+
+use crate::error::{Error, Result};
+use crate::io::case::Case;
+use crate::io::csv_files::absolute_temperature;
+use std::collections::HashMap;
+use std::io::{Read, Write};
+use std::path::{Path, PathBuf};
+use std::time::{Duration, Instant};
+
+/// Text markers read as "no reading" (compared case-insensitively after trimming): the
+/// words and symbols loggers write for an open circuit, an over- or under-range input, a
+/// fault, or no sample.
+pub const FAULT_MARKERS: [&str; 26] = [
+    "nan", "-nan", "na", "n/a", "null", "none", "-", "--", "---", "----", "*", "****", "*****",
+    "open", "oc", "o/c", "ol", "+ol", "-ol", "over", "under", "ovr", "err", "error", "fault",
+    "burnout",
+];
+
+/// Numeric codes read as "no reading": the sentinel values loggers write for an
+/// over-range or open input (±9999, ±99999 and their one-decimal forms) and the saturated
+/// values of a 16-bit converter (32767, −32768).
+pub const FAULT_CODES: [f64; 10] = [
+    9999.0, -9999.0, 9999.9, -9999.9, 99999.0, -99999.0, 99999.9, -99999.9, 32767.0, -32768.0,
+];
+
+/// Readings above this many kelvin are refused as implausible (no thermocouple type in
+/// IEC 60584-1 reaches it; a number this large is a corrupted cell, not a temperature).
+pub const MAX_PLAUSIBLE_K: f64 = 5000.0;
+
+/// How a logger's time column is written (fixed by the first row).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum TimeKind {
+    /// A plain number of seconds.
+    Seconds,
+    /// ISO 8601 without a zone (local time of the logger).
+    Naive,
+    /// ISO 8601 with a zone, converted to UTC.
+    Zoned,
+}
+
+/// Options of the logger reader.
+#[derive(Debug, Clone, Default)]
+pub struct LoggerOptions {
+    /// Allow columns for sensors that are not in `sensors.csv` (they are ignored).
+    pub ignore_extra: bool,
+    /// Keep reading a file that is still being written.
+    pub follow: Option<Follow>,
+}
+
+/// Live-monitoring settings.
+#[derive(Debug, Clone, Copy)]
+pub struct Follow {
+    /// How often to look for new data.
+    pub poll: Duration,
+    /// Stop after this long without new data (`None`: until interrupted).
+    pub idle_exit: Option<Duration>,
+}
+
+/// One row of a logger file, reused from row to row.
+#[derive(Debug, Clone, Default)]
+pub struct LoggerRow {
+    /// 1-based line of the row in the file.
+    pub line: u64,
+    /// The time as written.
+    pub time_text: String,
+    /// The time in seconds (since 1970-01-01 for ISO times; as written for seconds).
+    pub time_s: f64,
+    /// Readings in kelvin, indexed like `case.sensors`; `None`: missing in this row.
+    pub values: Vec<Option<f64>>,
+}
+
+/// A reader that waits for more data at the end of a file instead of ending.
+struct FollowRead<R> {
+    inner: R,
+    follow: Option<Follow>,
+    last_data: Instant,
+}
+
+impl<R: Read> Read for FollowRead<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        loop {
+            let n = self.inner.read(buf)?;
+            if n > 0 || buf.is_empty() {
+                self.last_data = Instant::now();
+                return Ok(n);
+            }
+            let Some(f) = self.follow else {
+                return Ok(0);
+            };
+            if f.idle_exit.is_some_and(|d| self.last_data.elapsed() >= d) {
+                return Ok(0);
+            }
+            std::thread::sleep(f.poll);
+        }
+    }
+}
+
+/// A streaming reader of a logger file.
+pub struct LoggerReader {
+    path: PathBuf,
+    reader: csv::Reader<FollowRead<std::fs::File>>,
+    record: csv::ByteRecord,
+    /// Column → sensor index (`None`: the time column or an ignored column).
+    column_sensor: Vec<Option<usize>>,
+    time_column: usize,
+    column_names: Vec<String>,
+    units: crate::units::Units,
+    kind: Option<TimeKind>,
+    last_time: Option<(f64, u64)>,
+    sensor_count: usize,
+    /// Sensors of the case with no column in the file.
+    pub absent_sensors: Vec<usize>,
+    /// Header columns that were ignored (with `ignore_extra`).
+    pub ignored_columns: Vec<String>,
+}
+
+impl std::fmt::Debug for LoggerReader {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("LoggerReader")
+            .field("path", &self.path)
+            .finish()
+    }
+}
+
+impl LoggerReader {
+    /// Open a logger file and check its header against the case's sensors.
+    ///
+    /// # Errors
+    /// [`Error::Io`] (an input) when the file cannot be opened; [`Error::Invalid`] for a
+    /// header without `time`, a duplicated column, or (without `ignore_extra`) a column for
+    /// an unknown sensor.
+    pub fn open(path: &Path, case: &Case, options: &LoggerOptions) -> Result<Self> {
+        let file = std::fs::File::open(path).map_err(|source| Error::Io {
+            path: path.to_path_buf(),
+            source,
+            input: true,
+        })?;
+        let follow = FollowRead {
+            inner: file,
+            follow: options.follow,
+            last_data: Instant::now(),
+        };
+        let mut reader = csv::ReaderBuilder::new()
+            .has_headers(true)
+            .flexible(false)
+            .trim(csv::Trim::All)
+            .from_reader(follow);
+        let header = reader
+            .byte_headers()
+            .map_err(|e| csv_error(path, e))?
+            .clone();
+        if header.is_empty() || (header.len() == 1 && header[0].is_empty()) {
+            return Err(Error::invalid_at(
+                path,
+                Some(1),
+                None,
+                "the file is empty; a logger file starts with a header `time,<sensor ids>`",
+            ));
+        }
+        let index: HashMap<&str, usize> = case
+            .sensors
+            .iter()
+            .enumerate()
+            .map(|(i, s)| (s.id.as_str(), i))
+            .collect();
+        if !header.iter().any(|c| {
+            std::str::from_utf8(c).is_ok_and(|n| {
+                n.trim_start_matches('\u{feff}')
+                    .eq_ignore_ascii_case("time")
+            })
+        }) {
+            return Err(Error::invalid_at(
+                path,
+                Some(1),
+                Some("time"),
+                "the header has no `time` column; a logger file is `time,<sensor ids>` with \
+                 the time in ISO 8601 or seconds",
+            ));
+        }
+        let mut column_sensor = Vec::with_capacity(header.len());
+        let mut column_names = Vec::with_capacity(header.len());
+        let mut time_column = None;
+        let mut seen: HashMap<String, usize> = HashMap::new();
+        let mut ignored = Vec::new();
+        for (k, raw) in header.iter().enumerate() {
+            let name = std::str::from_utf8(raw)
+                .map_err(|_| {
+                    Error::invalid_at(
+                        path,
+                        Some(1),
+                        Some(&format!("column {}", k + 1)),
+                        "the header is not UTF-8 text; is this a logger CSV file?",
+                    )
+                })?
+                .trim_start_matches('\u{feff}')
+                .to_string();
+            if let Some(first) = seen.insert(name.clone(), k) {
+                return Err(Error::invalid_at(
+                    path,
+                    Some(1),
+                    Some(&name),
+                    format!(
+                        "column `{name}` appears twice (columns {} and {}); give each sensor \
+                         one column",
+                        first + 1,
+                        k + 1
+                    ),
+                ));
+            }
+            if name.eq_ignore_ascii_case("time") {
+                time_column = Some(k);
+                column_sensor.push(None);
+            } else if let Some(&i) = index.get(name.as_str()) {
+                column_sensor.push(Some(i));
+            } else if options.ignore_extra {
+                ignored.push(name.clone());
+                column_sensor.push(None);
+            } else {
+                return Err(Error::invalid_at(
+                    path,
+                    Some(1),
+                    Some(&name),
+                    format!(
+                        "column `{name}` is not a sensor in {}; check the header (it must be \
+                         `time` and sensor ids), or pass --ignore-extra to skip such columns",
+                        case.files.sensors.display()
+                    ),
+                ));
+            }
+            column_names.push(name);
+        }
+        let Some(time_column) = time_column else {
+            return Err(Error::invalid_at(
+                path,
+                Some(1),
+                Some("time"),
+                "the header has no `time` column; a logger file is `time,<sensor ids>` with \
+                 the time in ISO 8601 or seconds",
+            ));
+        };
+        let absent_sensors = (0..case.sensors.len())
+            .filter(|i| !column_sensor.contains(&Some(*i)))
+            .collect();
+        Ok(LoggerReader {
+            path: path.to_path_buf(),
+            reader,
+            record: csv::ByteRecord::new(),
+            column_sensor,
+            time_column,
+            column_names,
+            units: case.units,
+            kind: None,
+            last_time: None,
+            sensor_count: case.sensors.len(),
+            absent_sensors,
+            ignored_columns: ignored,
+        })
+    }
+
+    /// The kind of the time column, once the first row is read.
+    pub fn time_kind(&self) -> Option<TimeKind> {
+        self.kind
+    }
+
+    /// Read the next row into `row`; `Ok(false)` at the end of the file.
+    ///
+    /// # Errors
+    /// [`Error::Invalid`] naming the line and column for a ragged row, an unreadable time, a
+    /// time before the previous row's, text that is neither a number nor a fault marker, or
+    /// an implausible temperature.
+    pub fn next_row(&mut self, row: &mut LoggerRow) -> Result<bool> {
+        match self.reader.read_byte_record(&mut self.record) {
+            Ok(false) => return Ok(false),
+            Ok(true) => {}
+            Err(e) => return Err(csv_error(&self.path, e)),
+        }
+        let line = self.record.position().map_or(0, |p| p.line());
+        row.line = line;
+        row.values.clear();
+        row.values.resize(self.sensor_count, None);
+        let time_raw = &self.record[self.time_column];
+        let time_text = std::str::from_utf8(time_raw).map_err(|_| self.not_text(line, "time"))?;
+        let (t, kind) = parse_time(time_text).ok_or_else(|| {
+            Error::invalid_at(
+                &self.path,
+                Some(line as usize),
+                Some("time"),
+                format!(
+                    "`{}` is not a time; write ISO 8601 (2026-03-14T08:30:00, optionally with \
+                     Z or +01:00) or a number of seconds",
+                    shorten(time_text)
+                ),
+            )
+        })?;
+        match self.kind {
+            None => self.kind = Some(kind),
+            Some(k) if k != kind => {
+                return Err(Error::invalid_at(
+                    &self.path,
+                    Some(line as usize),
+                    Some("time"),
+                    format!(
+                        "`{time_text}` is written as {} but the first row's time is {}; use \
+                         one kind of time throughout the file",
+                        kind_name(kind),
+                        kind_name(k)
+                    ),
+                ));
+            }
+            _ => {}
+        }
+        if let Some((prev, prev_line)) = self.last_time {
+            if t < prev {
+                return Err(Error::invalid_at(
+                    &self.path,
+                    Some(line as usize),
+                    Some("time"),
+                    format!(
+                        "time `{time_text}` is earlier than the previous row's (line \
+                         {prev_line}); rows must be in time order (was the logger clock \
+                         reset, or two files joined?)"
+                    ),
+                ));
+            }
+        }
+        self.last_time = Some((t, line));
+        row.time_s = t;
+        row.time_text.clear();
+        row.time_text.push_str(time_text);
+        for (k, cell) in self.record.iter().enumerate() {
+            let Some(i) = self.column_sensor[k] else {
+                continue;
+            };
+            row.values[i] = self.reading(cell, line, k)?;
+        }
+        Ok(true)
+    }
+
+    fn not_text(&self, line: u64, field: &str) -> Error {
+        Error::invalid_at(
+            &self.path,
+            Some(line as usize),
+            Some(field),
+            "the cell is not text (binary data?); a logger file is plain CSV text",
+        )
+    }
+
+    fn reading(&self, cell: &[u8], line: u64, k: usize) -> Result<Option<f64>> {
+        if cell.is_empty() {
+            return Ok(None);
+        }
+        let name = &self.column_names[k];
+        let text = std::str::from_utf8(cell).map_err(|_| self.not_text(line, name))?;
+        let err = |msg: String| Error::invalid_at(&self.path, Some(line as usize), Some(name), msg);
+        let v = match text.parse::<f64>() {
+            Ok(v) => v,
+            Err(_) => {
+                if FAULT_MARKERS.iter().any(|m| m.eq_ignore_ascii_case(text)) {
+                    return Ok(None);
+                }
+                return Err(err(format!(
+                    "`{}` is neither a temperature nor a known fault marker (empty, NaN, OPEN, \
+                     OVER, ERR, ... see docs/track.md)",
+                    shorten(text)
+                )));
+            }
+        };
+        if v.is_nan() {
+            return Ok(None);
+        }
+        if FAULT_CODES.contains(&v) {
+            return Ok(None);
+        }
+        if !v.is_finite() {
+            return Err(err(format!(
+                "`{}` is not a finite number; write a temperature, or leave the cell empty \
+                 when there is no reading",
+                shorten(text)
+            )));
+        }
+        let kelvin = absolute_temperature(&self.units, v).map_err(err)?;
+        if kelvin > MAX_PLAUSIBLE_K {
+            return Err(err(format!(
+                "{} {} is not a plausible reading (above {MAX_PLAUSIBLE_K} K); if the logger \
+                 writes it as an over-range code, replace it with an empty cell",
+                shorten(text),
+                self.units.temperature
+            )));
+        }
+        Ok(Some(kelvin))
+    }
+}
+
+fn kind_name(k: TimeKind) -> &'static str {
+    match k {
+        TimeKind::Seconds => "seconds",
+        TimeKind::Naive => "ISO 8601 without a zone",
+        TimeKind::Zoned => "ISO 8601 with a zone",
+    }
+}
+
+fn shorten(s: &str) -> String {
+    if s.chars().count() > 40 {
+        format!("{}…", s.chars().take(40).collect::<String>())
+    } else {
+        s.to_string()
+    }
+}
+
+fn csv_error(path: &Path, e: csv::Error) -> Error {
+    let line = e.position().map(|p| p.line() as usize);
+    let message = match e.kind() {
+        csv::ErrorKind::UnequalLengths {
+            expected_len, len, ..
+        } => format!(
+            "this row has {len} cells but the header has {expected_len}; every row needs one \
+             cell per column (leave a cell empty for a missing reading)"
+        ),
+        csv::ErrorKind::Io(err) => {
+            return Error::Io {
+                path: path.to_path_buf(),
+                source: std::io::Error::new(err.kind(), err.to_string()),
+                input: true,
+            };
+        }
+        _ => format!("not a readable CSV row: {e}"),
+    };
+    Error::invalid_at(path, line, None, message)
+}
+
+/// Parse a logger time: seconds, or ISO 8601 with or without a zone. Returns seconds (since
+/// 1970-01-01T00:00:00 for ISO times, UTC when a zone is given) and the kind.
+pub fn parse_time(s: &str) -> Option<(f64, TimeKind)> {
+    let s = s.trim();
+    if let Ok(v) = s.parse::<f64>() {
+        return v.is_finite().then_some((v, TimeKind::Seconds));
+    }
+    let b = s.as_bytes();
+    if b.len() < 16 {
+        return None;
+    }
+    let num = |r: std::ops::Range<usize>| -> Option<i64> {
+        let t = s.get(r)?;
+        if !t.bytes().all(|c| c.is_ascii_digit()) {
+            return None;
+        }
+        t.parse().ok()
+    };
+    let year = num(0..4)?;
+    let month = num(5..7)?;
+    let day = num(8..10)?;
+    if b[4] != b'-' || b[7] != b'-' || !(b[10] == b'T' || b[10] == b't' || b[10] == b' ') {
+        return None;
+    }
+    let hour = num(11..13)?;
+    if b[13] != b':' {
+        return None;
+    }
+    let minute = num(14..16)?;
+    let mut pos = 16;
+    let mut second = 0.0;
+    if b.len() > pos && b[pos] == b':' {
+        let sec = num(pos + 1..pos + 3)?;
+        pos += 3;
+        let mut end = pos;
+        if b.len() > pos && (b[pos] == b'.' || b[pos] == b',') {
+            end = pos + 1;
+            while end < b.len() && b[end].is_ascii_digit() {
+                end += 1;
+            }
+            if end == pos + 1 {
+                return None;
+            }
+        }
+        let frac: f64 = if end > pos {
+            format!("0.{}", &s[pos + 1..end]).parse().ok()?
+        } else {
+            0.0
+        };
+        second = sec as f64 + frac;
+        pos = end;
+    }
+    let (offset, kind) = match &s[pos..] {
+        "" => (0, TimeKind::Naive),
+        "Z" | "z" => (0, TimeKind::Zoned),
+        zone => {
+            let zb = zone.as_bytes();
+            let sign = match zb[0] {
+                b'+' => 1,
+                b'-' => -1,
+                _ => return None,
+            };
+            let digits: String = zone[1..].chars().filter(|c| *c != ':').collect();
+            if digits.len() != 4 || !digits.bytes().all(|c| c.is_ascii_digit()) {
+                return None;
+            }
+            if zone.len() == 6 && zb[3] != b':' {
+                return None;
+            }
+            let h: i64 = digits[..2].parse().ok()?;
+            let m: i64 = digits[2..].parse().ok()?;
+            if h > 18 || m > 59 {
+                return None;
+            }
+            (sign * (h * 3600 + m * 60), TimeKind::Zoned)
+        }
+    };
+    if !(1..=12).contains(&month)
+        || day < 1
+        || day > days_in_month(year, month)
+        || hour > 23
+        || minute > 59
+        || second >= 61.0
+    {
+        return None;
+    }
+    let days = days_from_civil(year, month, day);
+    let t = (days * 86400 + hour * 3600 + minute * 60 - offset) as f64 + second;
+    Some((t, kind))
+}
+
+fn days_in_month(y: i64, m: i64) -> i64 {
+    match m {
+        1 | 3 | 5 | 7 | 8 | 10 | 12 => 31,
+        4 | 6 | 9 | 11 => 30,
+        _ if (y % 4 == 0 && y % 100 != 0) || y % 400 == 0 => 29,
+        _ => 28,
+    }
+}
+
+/// Days since 1970-01-01 of a proleptic Gregorian date (the standard civil-from-days
+/// inversion, H. Hinnant, "chrono-compatible low-level date algorithms", public domain).
+fn days_from_civil(y: i64, m: i64, d: i64) -> i64 {
+    let y = if m <= 2 { y - 1 } else { y };
+    let era = if y >= 0 { y } else { y - 399 } / 400;
+    let yoe = y - era * 400;
+    let mp = (m + 9) % 12;
+    let doy = (153 * mp + 2) / 5 + d - 1;
+    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
+    era * 146_097 + doe - 719_468
+}
+
+/// A CSV output written row by row.
+///
+/// In the ordinary (atomic) mode the rows go to a temporary file beside the destination,
+/// which [`StreamWriter::finish`] syncs and renames into place: an interrupted run leaves the
+/// previous file or none, never half a file. In live mode (`--follow`) the rows go straight
+/// to the destination, and only whole lines are ever written: rows are collected in memory
+/// and handed to the operating system in one write per [`StreamWriter::flush`], so a run
+/// that is killed leaves a file of complete rows (a reader should ignore a last line without
+/// a line end, which only a kill in the middle of that one write could leave).
+#[derive(Debug)]
+pub struct StreamWriter {
+    path: PathBuf,
+    file: Option<tempfile::NamedTempFile>,
+    live: Option<std::fs::File>,
+    buf: Vec<u8>,
+}
+
+/// Rows are handed to the operating system when this many bytes are waiting.
+const STREAM_BUFFER: usize = 1 << 16;
+
+impl StreamWriter {
+    /// Start writing `path` (its directory must exist) with `header` as the first line.
+    ///
+    /// # Errors
+    /// [`Error::Io`] when the file cannot be created.
+    pub fn create(path: &Path, header: &str, live: bool) -> Result<Self> {
+        let io_err = |source: std::io::Error| Error::Io {
+            path: path.to_path_buf(),
+            source,
+            input: false,
+        };
+        let dir = match path.parent() {
+            Some(p) if !p.as_os_str().is_empty() => p,
+            _ => Path::new("."),
+        };
+        let (file, live_file) = if live {
+            (None, Some(std::fs::File::create(path).map_err(io_err)?))
+        } else {
+            let tmp = tempfile::Builder::new()
+                .prefix(".edgetherm-")
+                .suffix(".tmp")
+                .tempfile_in(dir)
+                .map_err(io_err)?;
+            (Some(tmp), None)
+        };
+        let mut w = StreamWriter {
+            path: path.to_path_buf(),
+            file,
+            live: live_file,
+            buf: Vec::with_capacity(STREAM_BUFFER * 2),
+        };
+        w.buf.extend_from_slice(header.as_bytes());
+        w.buf.push(b'\n');
+        w.flush()?;
+        Ok(w)
+    }
+
+    /// Append one complete row (without its line end).
+    ///
+    /// # Errors
+    /// [`Error::Io`] when writing fails.
+    pub fn row(&mut self, text: &str) -> Result<()> {
+        self.buf.extend_from_slice(text.as_bytes());
+        self.buf.push(b'\n');
+        if self.buf.len() >= STREAM_BUFFER {
+            self.flush()?;
+        }
+        Ok(())
+    }
+
+    /// The buffer that rows are written into: append whole lines ending in `\n`, then call
+    /// [`Self::maybe_flush`].
+    pub fn buffer(&mut self) -> &mut Vec<u8> {
+        &mut self.buf
+    }
+
+    /// Flush when enough bytes are waiting.
+    ///
+    /// # Errors
+    /// [`Error::Io`] when writing fails.
+    pub fn maybe_flush(&mut self) -> Result<()> {
+        if self.buf.len() >= STREAM_BUFFER {
+            self.flush()?;
+        }
+        Ok(())
+    }
+
+    /// Hand every complete row collected so far to the operating system, in one write.
+    ///
+    /// # Errors
+    /// [`Error::Io`] when writing fails.
+    pub fn flush(&mut self) -> Result<()> {
+        if self.buf.is_empty() {
+            return Ok(());
+        }
+        let res = match (&mut self.file, &mut self.live) {
+            (Some(f), _) => f.as_file_mut().write_all(&self.buf),
+            (None, Some(f)) => f.write_all(&self.buf),
+            (None, None) => Ok(()),
+        };
+        res.map_err(|source| Error::Io {
+            path: self.path.clone(),
+            source,
+            input: false,
+        })?;
+        self.buf.clear();
+        Ok(())
+    }
+
+    /// Flush, sync and (in atomic mode) rename into place.
+    ///
+    /// # Errors
+    /// [`Error::Io`] when writing or renaming fails.
+    pub fn finish(mut self) -> Result<()> {
+        self.flush()?;
+        let io_err = |source: std::io::Error| Error::Io {
+            path: self.path.clone(),
+            source,
+            input: false,
+        };
+        if let Some(tmp) = self.file.take() {
+            #[cfg(unix)]
+            {
+                use std::os::unix::fs::PermissionsExt;
+                tmp.as_file()
+                    .set_permissions(std::fs::Permissions::from_mode(0o644))
+                    .map_err(io_err)?;
+            }
+            tmp.as_file().sync_all().map_err(io_err)?;
+            tmp.persist(&self.path).map_err(|e| io_err(e.error))?;
+        } else if let Some(f) = self.live.take() {
+            f.sync_all().map_err(io_err)?;
+        }
+        Ok(())
+    }
+}
+
+/// The files `track` writes into its output directory.
+pub const TRACK_OUTPUT_FILE_NAMES: [&str; 5] = [
+    "track.csv",
+    "alarms.csv",
+    "sensors-health.csv",
+    "track.svg",
+    "summary.json",
+];
+
+/// Refuse an output directory where a `track` output would replace one of `inputs`.
+///
+/// # Errors
+/// [`Error::Invalid`] naming `--out`.
+pub fn check_track_outputs(out: &Path, inputs: &[&Path]) -> Result<()> {
+    for name in TRACK_OUTPUT_FILE_NAMES {
+        crate::io::check_output_file(&out.join(name), "--out", inputs)?;
+    }
+    crate::io::check_output_file(out, "--out", inputs)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn times_in_every_form() {
+        assert_eq!(parse_time("12.5"), Some((12.5, TimeKind::Seconds)));
+        // 2000-03-01 is day 11017 after 1970-01-01 (common practice: Unix day numbers).
+        let (t, k) = parse_time("2000-03-01T00:00:00").unwrap();
+        assert_eq!((t, k), (11017.0 * 86400.0, TimeKind::Naive));
+        let (t2, k2) = parse_time("2000-03-01 01:30:00+01:30").unwrap();
+        assert_eq!((t2, k2), (11017.0 * 86400.0, TimeKind::Zoned));
+        let (t3, _) = parse_time("2000-03-01T00:00:00.25Z").unwrap();
+        assert!((t3 - (11017.0 * 86400.0 + 0.25)).abs() < 1e-6);
+        assert!(parse_time("2000-03-01T00:00").is_some());
+        assert!(parse_time("2001-02-29T00:00:00").is_none());
+        assert!(parse_time("2000-13-01T00:00:00").is_none());
+        assert!(parse_time("yesterday").is_none());
+        assert!(parse_time("2000-03-01T00:00:00+0100").is_some());
+        assert!(parse_time("2000-03-01T00:00:00 UTC").is_none());
+        assert!(parse_time("inf").is_none());
+    }
+}

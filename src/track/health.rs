@@ -1,0 +1,472 @@
+//! Sensor health over a log: which thermocouple is failing, when, and how.
+//!
+//! Four detectors, each simple enough to check by hand; the thresholds are the named
+//! constants below (design choices of this project, set so that a healthy seeded log of many
+//! thousand rows raises none, see `tests/track_alarms.rs`; not from a standard):
+//!
+//! | problem | judged when | left out |
+//! |---|---|---|
+//! | `dropout` | the row has no reading (empty cell, NaN, a fault marker) | the row itself |
+//! | `stuck` | the reading has not changed at all for [`STUCK_ROWS`] rows in a row | from the row that completes the run until the reading changes |
+//! | `outlier` | the leave-one-out fault probability of `estimate`'s fault model exceeds [`crate::estimate::fit::FAULT_POSTERIOR`] for [`OUTLIER_ROWS`] rows in a row | from the next row until its prediction check passes for [`CLEAR_ROWS`] rows in a row |
+//! | `drift` | the straight line fitted to its standardised residual over the last [`DRIFT_WINDOW`] rows changes by more than [`DRIFT_CHANGE`] across the window and ends beyond [`DRIFT_LEVEL`]; the reported start is where that line crosses zero | as for `outlier` |
+//!
+//! Before a sensor is left out, the candidate is confirmed with `estimate`'s own fault model
+//! on that row ([`crate::estimate::fit::loo_residuals`], whose prediction is averaged over the
+//! smoothing strength): a real but narrow hot spot seen by one or two sensors makes their
+//! plug-in residuals large when the strength is fixed (`--calibrate` on a quiet stretch), but
+//! rougher strengths that the other readings allow explain it, and the averaged model does not
+//! call it a fault. A refuted candidate waits twice as long before its next try.
+//!
+//! A sensor that is left out is still checked, against the prediction of the fit without it
+//! (the same distribution the leave-one-out check uses), so it comes back when it recovers.
+//! At most one sensor is newly left out per row for `outlier`/`drift` (the worst by its
+//! standardised residual; the others' outlier runs and drift windows then start afresh, since their evidence
+//! came from fits that included it), and never
+//! more than a quarter of the sensors at once, as in `estimate`'s fault search: one gross
+//! fault makes its neighbours' residuals look odd too, and dropping the only sensors that see
+//! a real hot spot would hide it.
+
+use serde::Serialize;
+
+/// A reading unchanged for this many rows is judged stuck.
+pub const STUCK_ROWS: usize = 30;
+/// Rows in a row over the fault probability before a sensor is judged an outlier.
+pub const OUTLIER_ROWS: usize = 5;
+/// Rows in a row of passing checks before a left-out sensor is used again.
+pub const CLEAR_ROWS: usize = 20;
+/// Rows in the drift window.
+pub const DRIFT_WINDOW: usize = 120;
+/// Change of the fitted residual trend across the window, in standard deviations.
+pub const DRIFT_CHANGE: f64 = 3.0;
+/// The fitted trend's value at the window's end, in standard deviations.
+pub const DRIFT_LEVEL: f64 = 3.0;
+/// After each refuted candidate a sensor needs twice as many rows before the next try, up
+/// to `OUTLIER_ROWS << MAX_BACKOFF`.
+pub const MAX_BACKOFF: u32 = 8;
+/// The drift trend is evaluated every this many rows (it costs O(window) per sensor).
+pub const DRIFT_EVERY: u64 = 25;
+/// A left-out sensor passes its check when its standardised residual is within this.
+pub const CLEAR_Z: f64 = 2.5;
+/// At most this many recorded problems per sensor (later ones are counted, not listed).
+pub const MAX_EVENTS_PER_SENSOR: usize = 500;
+
+/// The kind of a sensor problem.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Problem {
+    /// No reading.
+    Dropout,
+    /// Reading not changing.
+    Stuck,
+    /// Persistently far from what the other sensors predict.
+    Outlier,
+    /// Residual trending away.
+    Drift,
+}
+
+impl Problem {
+    /// The word used in outputs.
+    pub fn name(self) -> &'static str {
+        match self {
+            Problem::Dropout => "dropout",
+            Problem::Stuck => "stuck",
+            Problem::Outlier => "outlier",
+            Problem::Drift => "drift",
+        }
+    }
+}
+
+/// One stretch of rows in which a sensor had a problem.
+#[derive(Debug, Clone, Serialize)]
+pub struct HealthEvent {
+    /// Sensor index into `case.sensors`.
+    pub sensor: usize,
+    /// The problem.
+    pub problem: Problem,
+    /// Time of the first affected row, as written in the log.
+    pub start: String,
+    /// Time of the last affected row (`None`: still going at the end of the log).
+    pub end: Option<String>,
+    /// Line of the first affected row.
+    pub start_line: u64,
+    /// Rows affected.
+    pub rows: u64,
+    /// Rows in which the sensor was left out because of it.
+    pub rows_left_out: u64,
+}
+
+#[derive(Debug, Clone, Default)]
+struct Window {
+    /// (row number, z) of the last rows that had a z.
+    values: std::collections::VecDeque<(u64, f64)>,
+}
+
+impl Window {
+    fn push(&mut self, row: u64, z: f64) {
+        self.values.push_back((row, z));
+        while self
+            .values
+            .front()
+            .is_some_and(|&(r, _)| r + DRIFT_WINDOW as u64 <= row)
+        {
+            self.values.pop_front();
+        }
+    }
+
+    /// Least-squares line through the window: (change across the window, value at its end).
+    /// O(window) per call; called once per sensor per row (DRIFT_WINDOW is small).
+    fn trend(&self, row: u64) -> Option<(f64, f64)> {
+        let n = self.values.len();
+        if n < DRIFT_WINDOW / 2 {
+            return None;
+        }
+        let base = row as f64;
+        let (mut sx, mut sz) = (0.0, 0.0);
+        for &(r, z) in &self.values {
+            sx += r as f64 - base;
+            sz += z;
+        }
+        let (mx, mz) = (sx / n as f64, sz / n as f64);
+        let (mut sxx, mut sxz) = (0.0, 0.0);
+        for &(r, z) in &self.values {
+            let x = r as f64 - base - mx;
+            sxx += x * x;
+            sxz += x * (z - mz);
+        }
+        if sxx <= 0.0 {
+            return None;
+        }
+        let b = sxz / sxx;
+        Some((b * (DRIFT_WINDOW - 1) as f64, mz + b * (0.0 - mx)))
+    }
+}
+
+#[derive(Debug, Clone, Default)]
+struct SensorState {
+    last_raw: Option<f64>,
+    same: usize,
+    same_start: Option<(String, u64)>,
+    stuck: Option<usize>,
+    dropout: Option<usize>,
+    judged: Option<(Problem, usize)>,
+    outlier_run: usize,
+    outlier_start: Option<(String, u64)>,
+    clear_run: usize,
+    last_bad: Option<String>,
+    drift_onset: u64,
+    /// Failed confirmations so far (each doubles the rows needed before the next try).
+    refuted: u32,
+    window: Window,
+    event_count: usize,
+}
+
+/// The health monitor: fed each row's readings before the fit (dropouts and stuck readings)
+/// and each row's diagnostics after it (outliers and drift).
+#[derive(Debug, Clone)]
+pub struct HealthMonitor {
+    states: Vec<SensorState>,
+    events: Vec<HealthEvent>,
+    row: u64,
+    max_out: usize,
+    last_time: String,
+    last_line: u64,
+    /// (row, time, line) of the last DRIFT_WINDOW rows, to date a drift's onset.
+    recent: std::collections::VecDeque<(u64, String, u64)>,
+    /// Problems not listed because a sensor reached [`MAX_EVENTS_PER_SENSOR`].
+    pub unlisted: u64,
+    /// Candidates that `estimate`'s fault model did not confirm.
+    pub refuted: u64,
+}
+
+impl HealthMonitor {
+    /// A monitor for `n` sensors.
+    pub fn new(n: usize) -> Self {
+        HealthMonitor {
+            states: vec![SensorState::default(); n],
+            events: Vec::new(),
+            row: 0,
+            max_out: n / 4,
+            last_time: String::new(),
+            last_line: 0,
+            recent: std::collections::VecDeque::new(),
+            unlisted: 0,
+            refuted: 0,
+        }
+    }
+
+    fn open(&mut self, sensor: usize, problem: Problem, start: (String, u64)) -> usize {
+        let st = &mut self.states[sensor];
+        st.event_count += 1;
+        if st.event_count > MAX_EVENTS_PER_SENSOR {
+            self.unlisted += 1;
+            return usize::MAX;
+        }
+        self.events.push(HealthEvent {
+            sensor,
+            problem,
+            start: start.0,
+            end: None,
+            start_line: start.1,
+            rows: 0,
+            rows_left_out: 0,
+        });
+        self.events.len() - 1
+    }
+
+    fn close(&mut self, idx: usize) {
+        if let Some(e) = self.events.get_mut(idx) {
+            e.end = Some(self.last_time.clone());
+        }
+    }
+
+    /// Before the fit: record this row's dropouts and stuck readings, and return, in `used`,
+    /// the sensors with a reading that are not judged broken.
+    pub fn before_fit(
+        &mut self,
+        time: &str,
+        line: u64,
+        readings: &[Option<f64>],
+        keep_all: bool,
+        used: &mut Vec<usize>,
+    ) {
+        self.row += 1;
+        used.clear();
+        for (i, r) in readings.iter().enumerate() {
+            // dropout
+            match (r, self.states[i].dropout) {
+                (None, None) => {
+                    let e = self.open(i, Problem::Dropout, (time.to_string(), line));
+                    self.states[i].dropout = Some(e);
+                }
+                (Some(_), Some(e)) => {
+                    self.close(e);
+                    self.states[i].dropout = None;
+                }
+                _ => {}
+            }
+            if let Some(e) = self.states[i].dropout {
+                if let Some(ev) = self.events.get_mut(e) {
+                    ev.rows += 1;
+                    ev.rows_left_out += 1;
+                }
+            }
+            let Some(v) = *r else { continue };
+            // stuck
+            let st = &mut self.states[i];
+            if st.last_raw == Some(v) {
+                st.same += 1;
+                if st.same == 2 {
+                    // the run of equal readings began on the previous row
+                    st.same_start = Some((self.last_time.clone(), self.last_line));
+                }
+            } else {
+                st.same = 1;
+                st.same_start = None;
+                if let Some(e) = st.stuck.take() {
+                    self.close(e);
+                }
+            }
+            let st = &mut self.states[i];
+            st.last_raw = Some(v);
+            if st.same >= STUCK_ROWS && st.stuck.is_none() {
+                let start = st.same_start.clone().unwrap_or((time.to_string(), line));
+                let same = st.same as u64;
+                let e = self.open(i, Problem::Stuck, start);
+                if let Some(ev) = self.events.get_mut(e) {
+                    ev.rows = same - 1;
+                }
+                self.states[i].stuck = Some(e);
+            }
+            let st = &self.states[i];
+            if let Some(e) = st.stuck {
+                if let Some(ev) = self.events.get_mut(e) {
+                    ev.rows += 1;
+                    if !keep_all {
+                        ev.rows_left_out += 1;
+                    }
+                }
+                if !keep_all {
+                    continue;
+                }
+            }
+            if let Some((_, e)) = st.judged {
+                if let Some(ev) = self.events.get_mut(e) {
+                    ev.rows += 1;
+                    if !keep_all {
+                        ev.rows_left_out += 1;
+                    }
+                }
+                if !keep_all {
+                    continue;
+                }
+            }
+            used.push(i);
+        }
+        if self.recent.len() >= DRIFT_WINDOW {
+            if let Some(mut old) = self.recent.pop_front() {
+                old.0 = self.row;
+                old.1.clear();
+                old.1.push_str(time);
+                old.2 = line;
+                self.recent.push_back(old);
+            }
+        } else {
+            self.recent.push_back((self.row, time.to_string(), line));
+        }
+        self.last_time.clear();
+        self.last_time.push_str(time);
+        self.last_line = line;
+    }
+
+    /// After the fit: update outlier and drift judgements from the row's diagnostics
+    /// (standardised residual, fault probability) per sensor.
+    ///
+    /// `confirm(i)` gives `estimate`'s own leave-one-out verdict (standardised residual,
+    /// fault probability) for sensor `i` on this row; a sensor is left out only when it
+    /// agrees (module doc).
+    pub fn after_fit(
+        &mut self,
+        time: &str,
+        line: u64,
+        diagnostics: &[Option<(f64, f64)>],
+        confirm: &mut dyn FnMut(usize) -> Option<(f64, f64)>,
+    ) {
+        let fault_limit = crate::estimate::fit::FAULT_POSTERIOR;
+        let mut candidates: Vec<(usize, Problem, f64)> = Vec::new();
+        let judged_now = self.states.iter().filter(|s| s.judged.is_some()).count();
+        for (i, d) in diagnostics.iter().enumerate() {
+            let Some((z, p)) = *d else { continue };
+            let st = &mut self.states[i];
+            st.window.push(self.row, z);
+            if let Some((_, e)) = st.judged {
+                if z.abs() <= CLEAR_Z {
+                    st.clear_run += 1;
+                } else {
+                    st.clear_run = 0;
+                    st.last_bad = Some(time.to_string());
+                }
+                if st.clear_run >= CLEAR_ROWS {
+                    st.judged = None;
+                    st.clear_run = 0;
+                    st.outlier_run = 0;
+                    st.window = Window::default();
+                    // the problem ends at the last row that failed the check
+                    let end = st.last_bad.take();
+                    if let Some(ev) = self.events.get_mut(e) {
+                        ev.end = end.or_else(|| Some(ev.start.clone()));
+                        ev.rows = ev.rows.saturating_sub(CLEAR_ROWS as u64);
+                    }
+                }
+                continue;
+            }
+            if p > fault_limit {
+                if st.outlier_run == 0 {
+                    st.outlier_start = Some((time.to_string(), line));
+                }
+                st.outlier_run += 1;
+            } else {
+                st.outlier_run = 0;
+            }
+            let needed = OUTLIER_ROWS << st.refuted.min(MAX_BACKOFF);
+            if st.outlier_run >= needed {
+                // ranked by |z|: the probability saturates at 1 for every gross misfit
+                candidates.push((i, Problem::Outlier, z.abs()));
+            } else if let Some((change, end)) = (self.row % DRIFT_EVERY == 0)
+                .then(|| st.window.trend(self.row))
+                .flatten()
+            {
+                if change.abs() > DRIFT_CHANGE
+                    && end.abs() > DRIFT_LEVEL
+                    && change.signum() == end.signum()
+                {
+                    candidates.push((i, Problem::Drift, end.abs()));
+                    // onset: where the fitted line crosses zero, within the window
+                    let slope = change / (DRIFT_WINDOW - 1) as f64;
+                    let back = (end / slope).clamp(0.0, (DRIFT_WINDOW - 1) as f64);
+                    st.drift_onset = self.row.saturating_sub(back.round() as u64);
+                }
+            }
+        }
+        if judged_now >= self.max_out || candidates.is_empty() {
+            return;
+        }
+        // the worst: outliers before drift, then by strength of the evidence
+        candidates.sort_by(|a, b| {
+            (a.1 == Problem::Outlier)
+                .cmp(&(b.1 == Problem::Outlier))
+                .reverse()
+                .then(b.2.total_cmp(&a.2))
+        });
+        // confirm with estimate's own fault model before leaving a sensor out
+        let mut chosen = None;
+        for &(i, problem, _) in &candidates {
+            let verdict = confirm(i);
+            let ok = verdict.is_some_and(|(z, p)| match problem {
+                Problem::Outlier => p > fault_limit,
+                _ => z.abs() > DRIFT_LEVEL,
+            });
+            if ok {
+                chosen = Some((i, problem));
+                break;
+            }
+            let st = &mut self.states[i];
+            if problem == Problem::Outlier {
+                st.refuted += 1;
+                st.outlier_run = 0;
+            }
+            // a drift candidate is simply tried again at the next evaluation
+            self.refuted += 1;
+        }
+        let Some((i, problem)) = chosen else {
+            return;
+        };
+        let start = match problem {
+            Problem::Outlier => self.states[i]
+                .outlier_start
+                .clone()
+                .unwrap_or((time.to_string(), line)),
+            _ => {
+                let onset = self.states[i].drift_onset;
+                self.recent
+                    .iter()
+                    .find(|r| r.0 >= onset)
+                    .map_or((time.to_string(), line), |r| (r.1.clone(), r.2))
+            }
+        };
+        let run = self.states[i].outlier_run as u64;
+        let e = self.open(i, problem, start);
+        if let Some(ev) = self.events.get_mut(e) {
+            ev.rows = match problem {
+                Problem::Outlier => run,
+                _ => self.row.saturating_sub(self.states[i].drift_onset) + 1,
+            };
+        }
+        // the others' evidence came from fits that included this sensor: start afresh
+        for (k, other) in self.states.iter_mut().enumerate() {
+            if k != i {
+                other.outlier_run = 0;
+                other.window = Window::default();
+            }
+        }
+        let st = &mut self.states[i];
+        st.judged = Some((problem, e));
+        st.clear_run = 0;
+        st.last_bad = Some(time.to_string());
+    }
+
+    /// Why sensor `i` is left out now (stuck takes precedence).
+    pub fn problem_of(&self, i: usize) -> Problem {
+        let st = &self.states[i];
+        if st.stuck.is_some() {
+            Problem::Stuck
+        } else {
+            st.judged.map_or(Problem::Dropout, |(p, _)| p)
+        }
+    }
+
+    /// Every problem recorded so far (open ones have no end).
+    pub fn events(&self) -> &[HealthEvent] {
+        &self.events
+    }
+}

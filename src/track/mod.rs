@@ -1,0 +1,606 @@
+//! `track`: the estimate on every row of a logger file, the hottest point through time,
+//! alarms when a hidden edge is probably over a limit, and the sensors that are failing
+//! (SPEC §2, the maintenance technician).
+//!
+//! [`Tracker`] is fed one [`LoggerRow`] at a time and keeps only bounded state, so a log
+//! larger than memory streams through it:
+//!
+//! 1. [`health::HealthMonitor::before_fit`] records dropouts and stuck readings and says which
+//!    sensors the row may use;
+//! 2. [`engine::RowEstimator::fit_row`] fits the row with the same model, noise, smoothing and
+//!    strength rule as `estimate` (module [`engine`] says how they match), giving the hottest
+//!    point, its linear interval and the exceedance probability; with `bootstrap` the
+//!    interval and the probability come instead from [`crate::estimate::estimate`] itself on
+//!    that row;
+//! 3. [`health::HealthMonitor::after_fit`] updates outlier and drift judgements;
+//! 4. [`alarm::AlarmTracker`] opens and closes alarm episodes;
+//! 5. [`series::TrackSeries`] keeps a fixed number of time bins for `track.svg`.
+//!
+//! With `calibrate = N` the smoothing order and strength are chosen once from the first `N`
+//! usable rows (the most common order, and the median log-strength of the rows that chose
+//! it), and every row, those `N` included, is then fitted with them. Those rows are held in
+//! memory until the choice is made (N rows, not the log).
+//!
+//! | file | role |
+//! |---|---|
+//! | [`engine`] | per-row fit with a pattern cache, hottest point, linear band, exceedance |
+//! | [`health`] | dropout, stuck, outlier and drift detectors |
+//! | [`alarm`] | alarm episodes |
+//! | [`series`] | bounded time bins for the plot |
+//! | [`report`] | `track.csv` rows, `alarms.csv`, `sensors-health.csv`, `summary.json`, text |
+//! | [`plot`] | `track.svg` |
+//! | [`synthetic`] | synthetic logs from known truths (demos, tests, benchmark) |
+
+pub mod alarm;
+pub mod engine;
+pub mod health;
+pub mod plot;
+pub mod report;
+pub mod series;
+pub mod synthetic;
+
+use crate::error::Result;
+use crate::estimate::{EstimateOptions, SAFETY_CAUTION, strength_of};
+use crate::inverse::Strength;
+use crate::io::{Case, LoggerRow, Smoothing, StrengthRule};
+use alarm::AlarmTracker;
+use engine::{RowEstimator, RowFit, RowStrength};
+use health::HealthMonitor;
+use series::TrackSeries;
+
+/// Options of `track` beyond the case file.
+#[derive(Debug, Clone)]
+pub struct TrackOptions {
+    /// Override the case's strength rule.
+    pub strength: Option<StrengthRule>,
+    /// Choose order and strength once on this many usable rows.
+    pub calibrate: Option<usize>,
+    /// Alarm limit, kelvin.
+    pub limit: Option<f64>,
+    /// Probability above which a row is in alarm.
+    pub probability: f64,
+    /// Rows below the probability that end an episode.
+    pub clear_rows: usize,
+    /// Posterior draws per pattern for the exceedance probability.
+    pub draws: usize,
+    /// Seed of the draws (and of the bootstrap) [default: the case's].
+    pub seed: Option<u64>,
+    /// Scan stride of the hottest-point search.
+    pub stride: usize,
+    /// Never leave out a sensor that has a reading (health is still reported).
+    pub keep_all: bool,
+    /// Per-row bootstrap (slow) instead of the linear band.
+    pub bootstrap: bool,
+    /// Bootstrap replicates per row [default: the case's].
+    pub replicates: Option<usize>,
+}
+
+impl Default for TrackOptions {
+    fn default() -> Self {
+        TrackOptions {
+            strength: None,
+            calibrate: None,
+            limit: None,
+            probability: 0.05,
+            clear_rows: 10,
+            draws: engine::DEFAULT_DRAWS,
+            seed: None,
+            stride: engine::SCAN_STRIDE,
+            keep_all: false,
+            bootstrap: false,
+            replicates: None,
+        }
+    }
+}
+
+/// What happened to a row.
+#[derive(Debug, Clone, PartialEq)]
+pub enum RowStatus {
+    /// Fitted.
+    Fitted,
+    /// Skipped, with the reason.
+    Skipped(String),
+}
+
+/// One row's outcome, handed to the caller (who writes `track.csv`).
+#[derive(Debug)]
+pub struct RowRecord<'a> {
+    /// The row as read.
+    pub row: &'a LoggerRow,
+    /// Fitted or skipped.
+    pub status: RowStatus,
+    /// The fit (meaningful when fitted).
+    pub fit: &'a RowFit,
+    /// Sensors with a reading that were left out, with the problem.
+    pub left_out: &'a [(usize, health::Problem)],
+    /// Sensors without a reading.
+    pub missing: &'a [usize],
+    /// Readings the row could use.
+    pub usable: usize,
+}
+
+enum Mode {
+    Calibrating {
+        rows: Vec<LoggerRow>,
+        choices: Vec<(usize, f64)>,
+        strength: Strength,
+        target: usize,
+    },
+    Ready(RowStrength),
+}
+
+/// The streaming tracker.
+pub struct Tracker {
+    case: Case,
+    options: TrackOptions,
+    estimator: RowEstimator,
+    mode: Mode,
+    health: HealthMonitor,
+    alarms: AlarmTracker,
+    series: TrackSeries,
+    used: Vec<usize>,
+    left_out: Vec<(usize, health::Problem)>,
+    missing: Vec<usize>,
+    fit: RowFit,
+    /// Rows read, fitted, skipped.
+    pub counts: Counts,
+    first_time: Option<String>,
+    last_time: Option<String>,
+    hottest: Option<(String, RowFit)>,
+    seed: u64,
+}
+
+/// Row counts.
+#[derive(Debug, Clone, Copy, Default, serde::Serialize)]
+pub struct Counts {
+    /// Rows read.
+    pub rows: u64,
+    /// Rows fitted.
+    pub fitted: u64,
+    /// Rows skipped (too few readings, or a fit that failed).
+    pub skipped: u64,
+    /// Rows with at least one sensor left out by the health checks.
+    pub with_left_out: u64,
+    /// Rows refitted with the rule because the calibrated setting did not fit them.
+    pub refitted: u64,
+}
+
+impl std::fmt::Debug for Tracker {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("Tracker")
+            .field("counts", &self.counts)
+            .finish()
+    }
+}
+
+impl Tracker {
+    /// A tracker for a case.
+    ///
+    /// # Errors
+    /// As [`RowEstimator::new`].
+    pub fn new(case: &Case, options: TrackOptions) -> Result<Self> {
+        let seed = options.seed.unwrap_or(case.uncertainty.seed);
+        let estimator = RowEstimator::new(case, options.draws, seed, options.stride)?;
+        let rule = options.strength.unwrap_or(case.fit.strength);
+        let strength = strength_of(rule);
+        let mode = match (strength, options.calibrate, case.fit.smoothing.order()) {
+            (Strength::Fixed(l), _, Some(order)) => Mode::Ready(RowStrength::Fixed {
+                order,
+                lambda: l,
+                refit: None,
+            }),
+            (s, Some(n), _) if n > 0 => Mode::Calibrating {
+                rows: Vec::new(),
+                choices: Vec::new(),
+                strength: s,
+                target: n,
+            },
+            (s, _, _) => Mode::Ready(RowStrength::PerRow(s)),
+        };
+        Ok(Tracker {
+            health: HealthMonitor::new(case.sensors.len()),
+            alarms: AlarmTracker::new(options.probability, options.clear_rows),
+            series: TrackSeries::new(series::DEFAULT_BINS),
+            case: case.clone(),
+            options,
+            estimator,
+            mode,
+            used: Vec::new(),
+            left_out: Vec::new(),
+            missing: Vec::new(),
+            fit: RowFit::default(),
+            counts: Counts::default(),
+            first_time: None,
+            last_time: None,
+            hottest: None,
+            seed,
+        })
+    }
+
+    /// The strength setting rows are fitted with once calibration (if any) is done.
+    pub fn row_strength(&self) -> Option<RowStrength> {
+        match self.mode {
+            Mode::Ready(s) => Some(s),
+            Mode::Calibrating { .. } => None,
+        }
+    }
+
+    /// Feed one row; `sink` receives the outcome of every row processed (with `calibrate`,
+    /// the first rows are handed over only once the strength is chosen).
+    ///
+    /// # Errors
+    /// Invalid input that no row can get around (a strength rule that cannot be applied),
+    /// and errors from `sink`.
+    pub fn push(
+        &mut self,
+        row: &LoggerRow,
+        sink: &mut dyn FnMut(&RowRecord<'_>) -> Result<()>,
+    ) -> Result<()> {
+        if let Mode::Calibrating {
+            rows,
+            choices,
+            strength,
+            target,
+        } = &mut self.mode
+        {
+            rows.push(row.clone());
+            let used: Vec<usize> = (0..row.values.len())
+                .filter(|&i| row.values[i].is_some())
+                .collect();
+            if used.len() >= self.estimator.min_readings() {
+                if let Ok(c) = self.estimator.choose(&row.values, &used, *strength) {
+                    choices.push(c);
+                }
+            }
+            if choices.len() >= *target {
+                self.end_calibration(sink)?;
+            }
+            return Ok(());
+        }
+        self.process(row, sink)
+    }
+
+    fn end_calibration(
+        &mut self,
+        sink: &mut dyn FnMut(&RowRecord<'_>) -> Result<()>,
+    ) -> Result<()> {
+        let Mode::Calibrating {
+            rows,
+            choices,
+            strength,
+            ..
+        } = std::mem::replace(
+            &mut self.mode,
+            Mode::Ready(RowStrength::PerRow(Strength::Fixed(1.0))),
+        )
+        else {
+            return Ok(());
+        };
+        self.mode = Mode::Ready(match calibrated(&choices, self.case.fit.smoothing) {
+            Some((order, lambda)) => RowStrength::Fixed {
+                order,
+                lambda,
+                refit: Some(strength),
+            },
+            None => RowStrength::PerRow(strength),
+        });
+        for r in &rows {
+            self.process(r, sink)?;
+        }
+        Ok(())
+    }
+
+    fn process(
+        &mut self,
+        row: &LoggerRow,
+        sink: &mut dyn FnMut(&RowRecord<'_>) -> Result<()>,
+    ) -> Result<()> {
+        let Mode::Ready(strength) = self.mode else {
+            return Ok(());
+        };
+        self.counts.rows += 1;
+        if self.first_time.is_none() {
+            self.first_time = Some(row.time_text.clone());
+        }
+        match &mut self.last_time {
+            Some(t) => {
+                t.clear();
+                t.push_str(&row.time_text);
+            }
+            None => self.last_time = Some(row.time_text.clone()),
+        }
+        let keep_all = self.options.keep_all;
+        self.health.before_fit(
+            &row.time_text,
+            row.line,
+            &row.values,
+            keep_all,
+            &mut self.used,
+        );
+        self.missing.clear();
+        self.missing
+            .extend((0..row.values.len()).filter(|&i| row.values[i].is_none()));
+        self.left_out.clear();
+        for i in 0..row.values.len() {
+            if row.values[i].is_some() && !self.used.contains(&i) {
+                self.left_out.push((i, self.health.problem_of(i)));
+            }
+        }
+        if !self.left_out.is_empty() {
+            self.counts.with_left_out += 1;
+        }
+        let need = self.estimator.min_readings();
+        let status = if self.used.len() < need {
+            RowStatus::Skipped(format!(
+                "{} usable readings, the model needs at least {need}",
+                self.used.len()
+            ))
+        } else {
+            match self.estimator.fit_row(
+                &row.values,
+                &self.used,
+                strength,
+                self.options.limit,
+                &mut self.fit,
+            ) {
+                Ok(()) => {
+                    if self.options.bootstrap {
+                        self.bootstrap_row(row, strength)?;
+                    }
+                    RowStatus::Fitted
+                }
+                Err(e @ crate::Error::Invalid { .. }) if self.counts.fitted == 0 => {
+                    // the first row cannot be fitted: the settings are wrong, not the row
+                    if matches!(strength, RowStrength::PerRow(Strength::Rule(_))) {
+                        return Err(e);
+                    }
+                    RowStatus::Skipped(e.to_string())
+                }
+                Err(e) => RowStatus::Skipped(e.to_string()),
+            }
+        };
+        match &status {
+            RowStatus::Fitted => {
+                self.counts.fitted += 1;
+                self.counts.refitted += u64::from(self.fit.refitted);
+                let rule = strength_of(self.options.strength.unwrap_or(self.case.fit.strength));
+                let (est, used, order) = (&self.estimator, &self.used, self.fit.order);
+                let mut confirm = |i: usize| {
+                    est.loo_verdict(&row.values, used, i, order, rule)
+                        .map(|v| (v.z, v.fault_probability))
+                };
+                self.health.after_fit(
+                    &row.time_text,
+                    row.line,
+                    &self.fit.diagnostics,
+                    &mut confirm,
+                );
+                self.alarms.update(&row.time_text, row.line, &self.fit);
+                if self
+                    .hottest
+                    .as_ref()
+                    .is_none_or(|(_, h)| self.fit.temperature > h.temperature)
+                {
+                    self.hottest = Some((row.time_text.clone(), self.fit.clone()));
+                }
+                self.series
+                    .push(row.time_s, Some(&self.fit), self.alarms.in_alarm());
+            }
+            RowStatus::Skipped(_) => {
+                self.counts.skipped += 1;
+                self.series.push(row.time_s, None, self.alarms.in_alarm());
+            }
+        }
+        sink(&RowRecord {
+            row,
+            status,
+            fit: &self.fit,
+            left_out: &self.left_out,
+            missing: &self.missing,
+            usable: self.used.len(),
+        })
+    }
+
+    fn bootstrap_row(&mut self, row: &LoggerRow, strength: RowStrength) -> Result<()> {
+        let mut case = self.case.clone();
+        let mut readings: Vec<Option<f64>> = vec![None; row.values.len()];
+        for &i in &self.used {
+            readings[i] = row.values[i];
+        }
+        let rule = match strength {
+            RowStrength::Fixed { order, lambda, .. } if !self.fit.refitted => {
+                case.fit.smoothing = Smoothing::of_order(order).unwrap_or(Smoothing::Curvature);
+                Some(StrengthRule::Fixed(lambda))
+            }
+            _ => self.options.strength,
+        };
+        let opts = EstimateOptions {
+            limit: self.options.limit,
+            alarm_probability: self.options.probability,
+            keep_all: true,
+            grid: (2, 2),
+            replicates: self.options.replicates,
+            seed: Some(self.seed),
+            strength: rule,
+            ..EstimateOptions::default()
+        };
+        let r = crate::estimate::estimate(&case, &readings, &opts, None)?;
+        self.fit.edge = Some(r.hottest.edge);
+        self.fit.position = r.hottest.position;
+        self.fit.position_interval = r.hottest.position_interval;
+        self.fit.temperature = r.hottest.temperature;
+        self.fit.temperature_interval = r.hottest.temperature_interval;
+        self.fit.exceedance = r.exceedance.map(|e| e.probability);
+        Ok(())
+    }
+
+    /// Finish: process rows still held for calibration (with whatever was learnt from them)
+    /// and close open alarm episodes.
+    ///
+    /// # Errors
+    /// As [`Self::push`].
+    pub fn finish(&mut self, sink: &mut dyn FnMut(&RowRecord<'_>) -> Result<()>) -> Result<()> {
+        if matches!(self.mode, Mode::Calibrating { .. }) {
+            self.end_calibration(sink)?;
+        }
+        Ok(())
+    }
+
+    /// A snapshot of everything but the rows: for the summary files.
+    pub fn snapshot(&self) -> TrackSummary {
+        let (strength_mode, order, lambda) = match self.mode {
+            Mode::Ready(RowStrength::Fixed { order, lambda, .. }) => (
+                if self.options.calibrate.is_some() {
+                    "calibrated"
+                } else {
+                    "fixed"
+                },
+                Some(order),
+                Some(lambda),
+            ),
+            Mode::Ready(RowStrength::PerRow(_)) => ("per-row", None, None),
+            Mode::Calibrating { .. } => ("calibrating", None, None),
+        };
+        let mut cautions = vec![SAFETY_CAUTION.to_string()];
+        cautions.push(
+            "Each row is treated as a steady state: while the plate is warming or cooling \
+             quickly the estimate lags and is biased."
+                .to_string(),
+        );
+        cautions.push(
+            "Thermocouple tolerances act as a fixed offset per sensor that persists through \
+             the log; the per-row bands treat reading errors as independent from row to row, \
+             so a trend across rows is better known than any single row."
+                .to_string(),
+        );
+        if self.counts.skipped > 0 {
+            cautions.push(format!(
+                "{} rows were skipped (too few usable readings); see the status column of \
+                 track.csv.",
+                self.counts.skipped
+            ));
+        }
+        TrackSummary {
+            counts: self.counts,
+            first_time: self.first_time.clone(),
+            last_time: self.last_time.clone(),
+            strength_mode,
+            order,
+            lambda,
+            limit: self.options.limit,
+            probability: self.options.probability,
+            clear_rows: self.options.clear_rows,
+            draws: self.options.draws,
+            bootstrap: self.options.bootstrap,
+            seed: self.seed,
+            episodes: self.alarms.episodes_with_open(),
+            events: self.health.events().to_vec(),
+            unlisted_events: self.health.unlisted,
+            refuted: self.health.refuted,
+            hottest: self.hottest.clone(),
+            confidence: self.case.uncertainty.confidence,
+            cautions,
+        }
+    }
+
+    /// The time bins for `track.svg`.
+    pub fn series(&self) -> &TrackSeries {
+        &self.series
+    }
+
+    /// The case.
+    pub fn case(&self) -> &Case {
+        &self.case
+    }
+
+    /// Whether any alarm episode has started.
+    pub fn any_alarm(&self) -> bool {
+        self.alarms.any()
+    }
+
+    /// The per-row estimator (for checks).
+    pub fn estimator_mut(&mut self) -> &mut RowEstimator {
+        &mut self.estimator
+    }
+}
+
+/// The calibrated order and λ from the rows' choices: the most common order (ties go to the
+/// earlier of [`crate::estimate::AUTO_ORDERS`]), then the median of log λ over the rows that
+/// chose it.
+pub fn calibrated(choices: &[(usize, f64)], smoothing: Smoothing) -> Option<(usize, f64)> {
+    if choices.is_empty() {
+        return None;
+    }
+    let order = match smoothing.order() {
+        Some(o) => o,
+        None => {
+            let mut best = (0usize, crate::estimate::AUTO_ORDERS[0]);
+            for o in crate::estimate::AUTO_ORDERS {
+                let n = choices.iter().filter(|c| c.0 == o).count();
+                if n > best.0 {
+                    best = (n, o);
+                }
+            }
+            best.1
+        }
+    };
+    let mut logs: Vec<f64> = choices
+        .iter()
+        .filter(|c| c.0 == order)
+        .map(|c| c.1.ln())
+        .collect();
+    if logs.is_empty() {
+        return None;
+    }
+    logs.sort_by(f64::total_cmp);
+    let n = logs.len();
+    let med = if n % 2 == 1 {
+        logs[n / 2]
+    } else {
+        0.5 * (logs[n / 2 - 1] + logs[n / 2])
+    };
+    Some((order, med.exp()))
+}
+
+/// Everything the summary files report.
+#[derive(Debug, Clone)]
+pub struct TrackSummary {
+    /// Row counts.
+    pub counts: Counts,
+    /// Time of the first row processed.
+    pub first_time: Option<String>,
+    /// Time of the last row processed.
+    pub last_time: Option<String>,
+    /// `per-row`, `calibrated` or `fixed`.
+    pub strength_mode: &'static str,
+    /// Fixed order, when fixed.
+    pub order: Option<usize>,
+    /// Fixed λ, when fixed.
+    pub lambda: Option<f64>,
+    /// Limit, kelvin.
+    pub limit: Option<f64>,
+    /// Alarm probability.
+    pub probability: f64,
+    /// Rows that clear an episode.
+    pub clear_rows: usize,
+    /// Posterior draws per pattern.
+    pub draws: usize,
+    /// Per-row bootstrap.
+    pub bootstrap: bool,
+    /// Seed.
+    pub seed: u64,
+    /// Alarm episodes (the last may be open).
+    pub episodes: Vec<alarm::Episode>,
+    /// Sensor problems.
+    pub events: Vec<health::HealthEvent>,
+    /// Problems counted but not listed.
+    pub unlisted_events: u64,
+    /// Health candidates that `estimate`'s fault model did not confirm.
+    pub refuted: u64,
+    /// The hottest row of the log: its time and fit.
+    pub hottest: Option<(String, RowFit)>,
+    /// Confidence of the intervals.
+    pub confidence: f64,
+    /// Cautions.
+    pub cautions: Vec<String>,
+}

@@ -1,0 +1,357 @@
+//! The text outputs of `track`, in the case's units: the `track.csv` header and rows,
+//! `alarms.csv`, `sensors-health.csv`, `summary.json` and the text summary. Pure functions:
+//! the binary writes them (rows through [`crate::io::StreamWriter`], the rest atomically).
+
+use super::{RowRecord, RowStatus, TrackSummary};
+use crate::io::Case;
+use crate::report::format::CaseUnits;
+use crate::report::format::fixed;
+use serde_json::{Value, json};
+use std::fmt::Write as _;
+
+/// The header of `track.csv`.
+pub const TRACK_CSV_HEADER: &str = "time,status,edge,position,position_lower,position_upper,\
+temperature,lower,upper,exceedance_probability,readings_used,smoothing,strength,left_out";
+
+/// Append one `track.csv` line (with its line end) for a row to `out`.
+pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
+    use std::io::Write as _;
+    let u = CaseUnits::new(case.units);
+    out.extend_from_slice(csv_cell(&rec.row.time_text).as_bytes());
+    match &rec.status {
+        RowStatus::Fitted => {
+            let f = rec.fit;
+            let ld = u.len_file_decimals();
+            out.extend_from_slice(b",ok,");
+            out.extend_from_slice(f.edge.map_or("", |e| e.name()).as_bytes());
+            for v in [f.position, f.position_interval[0], f.position_interval[1]] {
+                out.push(b',');
+                push_fixed(out, u.len(v), ld);
+            }
+            for v in [
+                f.temperature,
+                f.temperature_interval[0],
+                f.temperature_interval[1],
+            ] {
+                out.push(b',');
+                push_fixed(out, u.temp(v), TEMP_DECIMALS);
+            }
+            out.push(b',');
+            if let Some(p) = f.exceedance {
+                push_fixed(out, p, 4);
+            }
+            let _ = write!(
+                out,
+                ",{},{},{},",
+                f.used.len(),
+                crate::io::Smoothing::of_order(f.order).map_or("", |s| s.name()),
+                f.lambda,
+            );
+        }
+        RowStatus::Skipped(why) => {
+            let _ = write!(
+                out,
+                ",{},,,,,,,,,{},,,",
+                csv_cell(&format!("skipped: {why}")),
+                rec.usable,
+            );
+        }
+    }
+    let mut first = true;
+    let mut sep = |out: &mut Vec<u8>| {
+        if !first {
+            out.push(b';');
+        }
+        first = false;
+    };
+    for (i, p) in rec.left_out {
+        sep(out);
+        let _ = write!(out, "{}:{}", case.sensors[*i].id, p.name());
+    }
+    for &i in rec.missing {
+        sep(out);
+        let _ = write!(out, "{}:missing", case.sensors[i].id);
+    }
+    out.push(b'\n');
+}
+
+/// Decimals of temperatures in `track.csv` (as in `estimate`'s tables).
+const TEMP_DECIMALS: usize = 4;
+
+/// `v` with `decimals` decimals, appended without going through the float formatter: the
+/// value is rounded to an integer number of units of the last decimal (half away from zero)
+/// and printed as an integer. Used for the millions of numbers in `track.csv`; the same text
+/// as [`fixed`] except, at most, in the last digit of a value that lies exactly half-way.
+fn push_fixed(out: &mut Vec<u8>, v: f64, decimals: usize) {
+    use std::io::Write as _;
+    let scale = 10f64.powi(decimals as i32);
+    let x = (v * scale).round();
+    if !v.is_finite() || x.abs() >= 9.0e15 {
+        out.extend_from_slice(fixed(v, decimals).as_bytes());
+        return;
+    }
+    let x = x as i64;
+    let neg = x < 0;
+    let a = x.unsigned_abs();
+    let p = 10u64.pow(decimals as u32);
+    if neg && a != 0 {
+        out.push(b'-');
+    }
+    let _ = write!(out, "{}", a / p);
+    if decimals > 0 {
+        let _ = write!(out, ".{:0width$}", a % p, width = decimals);
+    }
+}
+
+fn csv_cell(s: &str) -> String {
+    if s.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
+/// `alarms.csv`: one row per episode.
+pub fn alarms_csv(case: &Case, s: &TrackSummary) -> Vec<u8> {
+    let u = CaseUnits::new(case.units);
+    let mut out = String::from(
+        "episode,start,end,rows,peak_time,peak_temperature,peak_lower,peak_upper,edge,\
+         position,max_probability,limit\n",
+    );
+    for (k, e) in s.episodes.iter().enumerate() {
+        let _ = writeln!(
+            out,
+            "{},{},{},{},{},{},{},{},{},{},{},{}",
+            k + 1,
+            csv_cell(&e.start),
+            csv_cell(e.end.as_deref().unwrap_or("ongoing")),
+            e.rows,
+            csv_cell(&e.peak_time),
+            u.temp_file(e.peak_temperature),
+            u.temp_file(e.peak_interval[0]),
+            u.temp_file(e.peak_interval[1]),
+            e.peak_edge.map_or("", |x| x.name()),
+            u.len_file(e.peak_position),
+            fixed(e.max_probability, 4),
+            s.limit.map_or(String::new(), |l| u.temp_file(l)),
+        );
+    }
+    out.into_bytes()
+}
+
+/// `sensors-health.csv`: one row per problem stretch.
+pub fn health_csv(case: &Case, s: &TrackSummary) -> Vec<u8> {
+    let mut out = String::from("sensor,problem,start,end,start_line,rows,rows_left_out\n");
+    for e in &s.events {
+        let _ = writeln!(
+            out,
+            "{},{},{},{},{},{},{}",
+            csv_cell(&case.sensors[e.sensor].id),
+            e.problem.name(),
+            csv_cell(&e.start),
+            csv_cell(e.end.as_deref().unwrap_or("ongoing")),
+            e.start_line,
+            e.rows,
+            e.rows_left_out
+        );
+    }
+    out.into_bytes()
+}
+
+/// At most this many alarm episodes and sensor problems are listed in `summary.json` (all
+/// are in `alarms.csv` and `sensors-health.csv`; the counts are always given).
+pub const MAX_LISTED: usize = 100;
+
+/// At most this many are listed in the text summary.
+pub const MAX_TEXT_LISTED: usize = 20;
+
+/// `summary.json`.
+pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
+    let u = CaseUnits::new(case.units);
+    let hottest = s.hottest.as_ref().map(|(t, f)| {
+        json!({
+            "time": t,
+            "edge": f.edge.map(|e| e.name()),
+            "position": u.len_json(f.position),
+            "temperature": u.temp_json(f.temperature),
+            "temperature_interval": [u.temp_json(f.temperature_interval[0]),
+                                     u.temp_json(f.temperature_interval[1])],
+        })
+    });
+    let episodes: Vec<Value> = s
+        .episodes
+        .iter()
+        .take(MAX_LISTED)
+        .map(|e| {
+            json!({
+                "start": e.start, "end": e.end, "rows": e.rows,
+                "peak": {
+                    "time": e.peak_time,
+                    "temperature": u.temp_json(e.peak_temperature),
+                    "temperature_interval": [u.temp_json(e.peak_interval[0]),
+                                             u.temp_json(e.peak_interval[1])],
+                    "edge": e.peak_edge.map(|x| x.name()),
+                    "position": u.len_json(e.peak_position),
+                },
+                "max_probability": e.max_probability,
+            })
+        })
+        .collect();
+    let sensors: Vec<Value> = s
+        .events
+        .iter()
+        .take(MAX_LISTED)
+        .map(|e| {
+            json!({
+                "sensor": case.sensors[e.sensor].id, "problem": e.problem.name(),
+                "start": e.start, "end": e.end, "rows": e.rows,
+                "rows_left_out": e.rows_left_out,
+            })
+        })
+        .collect();
+    json!({
+        "rows": s.counts.rows,
+        "rows_fitted": s.counts.fitted,
+        "rows_skipped": s.counts.skipped,
+        "rows_with_sensors_left_out": s.counts.with_left_out,
+        "rows_refitted": s.counts.refitted,
+        "first_time": s.first_time,
+        "last_time": s.last_time,
+        "hottest": hottest,
+        "strength": {
+            "mode": s.strength_mode,
+            "smoothing": s.order.and_then(crate::io::Smoothing::of_order).map(|x| x.name()),
+            "value": s.lambda,
+        },
+        "alarm": s.limit.map(|l| json!({
+            "limit": u.temp_json(l),
+            "probability": s.probability,
+            "clear_rows": s.clear_rows,
+            "episode_count": s.episodes.len(),
+            "episodes": episodes,
+        })),
+        "sensor_problem_count": s.events.len(),
+        "sensor_problems": sensors,
+        "unlisted_sensor_problems": s.unlisted_events,
+        "band": if s.bootstrap { "bootstrap" } else { "linear" },
+        "exceedance_draws": s.draws,
+        "units": {"length": u.len_symbol(), "temperature": u.temp_code()},
+        "confidence": s.confidence,
+        "seed": s.seed,
+        "version": env!("CARGO_PKG_VERSION"),
+        "cautions": s.cautions,
+    })
+}
+
+/// The text summary printed at the end of a run.
+pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
+    let u = CaseUnits::new(case.units);
+    let mut out = String::new();
+    let _ = writeln!(
+        out,
+        "Tracked {} rows ({} fitted, {} skipped) from {} to {}.",
+        s.counts.rows,
+        s.counts.fitted,
+        s.counts.skipped,
+        s.first_time.as_deref().unwrap_or("-"),
+        s.last_time.as_deref().unwrap_or("-")
+    );
+    match (s.strength_mode, s.lambda) {
+        (m, Some(l)) => {
+            let _ = writeln!(
+                out,
+                "Smoothing {} with strength {l:.3e} ({m}); {} rows that it did not fit were \
+                 refitted with the case's rule.",
+                s.order
+                    .and_then(crate::io::Smoothing::of_order)
+                    .map_or("?", |x| x.name()),
+                s.counts.refitted
+            );
+        }
+        (m, None) => {
+            let _ = writeln!(out, "Smoothing strength chosen {m}.");
+        }
+    }
+    if let Some((t, f)) = &s.hottest {
+        let _ = writeln!(
+            out,
+            "Hottest row: {t}, {} edge at {}: {} ({} to {}).",
+            f.edge.map_or("?", |e| e.name()),
+            u.len_show(f.position),
+            u.temp_show(f.temperature),
+            u.temp_show(f.temperature_interval[0]),
+            u.temp_show(f.temperature_interval[1]),
+        );
+    }
+    if let Some(l) = s.limit {
+        if s.episodes.is_empty() {
+            let _ = writeln!(
+                out,
+                "No alarm: the probability of exceeding {} stayed at or below {}.",
+                u.temp_show(l),
+                s.probability
+            );
+        } else {
+            let _ = writeln!(
+                out,
+                "ALARM: {} episode(s) with probability above {} that a hidden edge exceeds {}:",
+                s.episodes.len(),
+                s.probability,
+                u.temp_show(l)
+            );
+            for e in s.episodes.iter().take(MAX_TEXT_LISTED) {
+                let _ = writeln!(
+                    out,
+                    "  {} to {} ({} rows): peak {} ({} to {}) at {} on the {} edge, at {}; \
+                     probability up to {:.3}",
+                    e.start,
+                    e.end.as_deref().unwrap_or("ongoing"),
+                    e.rows,
+                    u.temp_show(e.peak_temperature),
+                    u.temp_show(e.peak_interval[0]),
+                    u.temp_show(e.peak_interval[1]),
+                    u.len_show(e.peak_position),
+                    e.peak_edge.map_or("?", |x| x.name()),
+                    e.peak_time,
+                    e.max_probability
+                );
+            }
+        }
+    }
+    if s.episodes.len() > MAX_TEXT_LISTED {
+        let _ = writeln!(
+            out,
+            "  ... and {} more in alarms.csv",
+            s.episodes.len() - MAX_TEXT_LISTED
+        );
+    }
+    let problems: Vec<_> = s.events.iter().collect();
+    if problems.is_empty() {
+        let _ = writeln!(out, "No sensor problems found.");
+    } else {
+        let _ = writeln!(out, "Sensor problems:");
+        for e in problems.iter().take(MAX_TEXT_LISTED) {
+            let _ = writeln!(
+                out,
+                "  {} {} from {} to {} ({} rows, left out of {})",
+                case.sensors[e.sensor].id,
+                e.problem.name(),
+                e.start,
+                e.end.as_deref().unwrap_or("the end"),
+                e.rows,
+                e.rows_left_out
+            );
+        }
+        if problems.len() > MAX_TEXT_LISTED {
+            let _ = writeln!(
+                out,
+                "  ... and {} more in sensors-health.csv",
+                problems.len() - MAX_TEXT_LISTED
+            );
+        }
+    }
+    for c in &s.cautions {
+        let _ = writeln!(out, "Caution: {c}");
+    }
+    out
+}

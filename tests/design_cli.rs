@@ -1,0 +1,340 @@
+//! `edgetherm design` as a user runs it: the outputs honour every constraint, `--add`,
+//! `--evaluate` and `--against` work, runs are reproducible, and impossible constraints are
+//! clear input errors (exit status 2).
+
+use assert_cmd::Command;
+use predicates::prelude::*;
+use std::fs;
+use std::path::{Path, PathBuf};
+
+fn sample() -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-measurements/cold-plate")
+}
+
+fn design(case: &Path, out: &Path, extra: &[&str]) -> assert_cmd::assert::Assert {
+    Command::cargo_bin("edgetherm")
+        .unwrap()
+        .arg("design")
+        .arg(case)
+        .arg("--out")
+        .arg(out)
+        .args(extra)
+        .assert()
+}
+
+/// A copy of the sample case with its `[design]` section replaced.
+fn case_with_design(dir: &Path, design_section: &str) {
+    let plate = fs::read_to_string(sample().join("plate.toml")).unwrap();
+    let head = &plate[..plate.find("[design]").unwrap()];
+    fs::write(dir.join("plate.toml"), format!("{head}{design_section}")).unwrap();
+    fs::copy(sample().join("sensors.csv"), dir.join("sensors.csv")).unwrap();
+}
+
+/// (id, x, y) rows of a layout file, in mm.
+fn rows(path: &Path) -> Vec<(String, f64, f64)> {
+    let text = fs::read_to_string(path).unwrap();
+    let mut lines = text.lines();
+    assert_eq!(lines.next(), Some("sensor,x,y"));
+    lines
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            (
+                f[0].to_string(),
+                f[1].parse().unwrap(),
+                f[2].parse().unwrap(),
+            )
+        })
+        .collect()
+}
+
+/// The sample's constraints (mm): allowed y ≤ 16, keep-outs at x ∈ [53, 61] and
+/// [107, 115], 4 mm from every face, 10 mm apart.
+fn assert_sample_constraints(layout: &[(String, f64, f64)]) {
+    for (id, x, y) in layout {
+        assert!(*y <= 16.0 + 1e-9, "{id} above the allowed region");
+        assert!(
+            *x >= 4.0 - 1e-9 && *x <= 176.0 + 1e-9,
+            "{id} too near an end"
+        );
+        assert!(
+            *y >= 4.0 - 1e-9 && *y <= 24.0 + 1e-9,
+            "{id} too near a face"
+        );
+        for (a, b) in [(53.0, 61.0), (107.0, 115.0)] {
+            assert!(!(*x >= a && *x <= b), "{id} at x = {x} in a keep-out");
+        }
+    }
+    for (i, a) in layout.iter().enumerate() {
+        for b in &layout[i + 1..] {
+            let d = (a.1 - b.1).hypot(a.2 - b.2);
+            assert!(d >= 10.0 - 1e-9, "{} and {} only {d} mm apart", a.0, b.0);
+        }
+    }
+}
+
+#[test]
+fn designs_a_layout_that_honours_every_constraint() {
+    let out = tempfile::tempdir().unwrap();
+    design(&sample(), out.path(), &["--count", "8"])
+        .success()
+        .stdout(predicate::str::contains("8 new sensors chosen"))
+        .stdout(predicate::str::contains("resolution length"))
+        .stdout(predicate::str::contains("estimates, not measurements"));
+    let layout = rows(&out.path().join("layout.csv"));
+    assert_eq!(layout.len(), 8);
+    assert_sample_constraints(&layout);
+    // design.json carries the same layout and the criteria
+    let json: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.path().join("design.json")).unwrap()).unwrap();
+    assert_eq!(json["criterion"], "edge");
+    let jl = json["layout"].as_array().unwrap();
+    assert_eq!(jl.len(), 8);
+    for (j, r) in jl.iter().zip(&layout) {
+        assert_eq!(j["sensor"], r.0.as_str());
+        assert!((j["x"].as_f64().unwrap() - r.1).abs() < 1e-9);
+        assert!((j["y"].as_f64().unwrap() - r.2).abs() < 1e-9);
+    }
+    for key in ["information", "edge_rms_sd", "worst_sd", "condition_number"] {
+        assert!(json["score"][key].as_f64().unwrap() > 0.0, "{key}");
+    }
+    assert!(
+        json["score"]["resolution_length"]["bottom"]
+            .as_f64()
+            .unwrap()
+            > 0.0
+    );
+    // design.svg is well-formed and shows every sensor number
+    let svg = fs::read_to_string(out.path().join("design.svg")).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let texts: Vec<&str> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .filter_map(|n| n.text().map(str::trim))
+        .collect();
+    for k in 1..=8 {
+        assert!(
+            texts.contains(&k.to_string().as_str()),
+            "sensor {k} not numbered"
+        );
+    }
+    // layout.csv is ready to use as sensors.csv: check accepts it in a case of its own
+    let case = tempfile::tempdir().unwrap();
+    fs::copy(sample().join("plate.toml"), case.path().join("plate.toml")).unwrap();
+    fs::copy(
+        out.path().join("layout.csv"),
+        case.path().join("sensors.csv"),
+    )
+    .unwrap();
+    Command::cargo_bin("edgetherm")
+        .unwrap()
+        .arg("check")
+        .arg(case.path())
+        .assert()
+        .success();
+}
+
+#[test]
+fn same_inputs_give_the_same_files() {
+    let a = tempfile::tempdir().unwrap();
+    let b = tempfile::tempdir().unwrap();
+    for d in [&a, &b] {
+        design(
+            &sample(),
+            d.path(),
+            &["--count", "6", "--criterion", "worst", "--quiet"],
+        )
+        .success();
+    }
+    for name in ["layout.csv", "design.json", "design.svg"] {
+        assert_eq!(
+            fs::read(a.path().join(name)).unwrap(),
+            fs::read(b.path().join(name)).unwrap(),
+            "{name}"
+        );
+    }
+}
+
+#[test]
+fn adds_to_the_existing_sensors_and_keeps_them() {
+    let out = tempfile::tempdir().unwrap();
+    let dir = tempfile::tempdir().unwrap();
+    case_with_design(
+        dir.path(),
+        "[design]\nedge_distance = 3.0\nsensor_spacing = 8.0\ncandidate_spacing = 1.0\n\
+         variation = 4.0\n",
+    );
+    design(dir.path(), out.path(), &["--add", "3", "--json"])
+        .success()
+        .stdout(predicate::str::contains("\"fixed\": true"));
+    let layout = rows(&out.path().join("layout.csv"));
+    assert_eq!(layout.len(), 13);
+    let existing = rows(&sample().join("sensors.csv"));
+    assert_eq!(&layout[..10], &existing[..]);
+    for new in &layout[10..] {
+        assert!(new.0.starts_with('D'));
+        for old in &existing {
+            assert!((new.1 - old.1).hypot(new.2 - old.2) >= 8.0 - 1e-9);
+        }
+        assert!(new.2 >= 3.0 - 1e-9);
+    }
+}
+
+#[test]
+fn evaluates_and_compares_layouts() {
+    let out = tempfile::tempdir().unwrap();
+    let designed = tempfile::tempdir().unwrap();
+    design(&sample(), designed.path(), &["--count", "8", "--quiet"]).success();
+    let a = designed.path().join("layout.csv");
+    let output = Command::cargo_bin("edgetherm")
+        .unwrap()
+        .arg("design")
+        .arg(sample())
+        .arg("--evaluate")
+        .arg(&a)
+        .arg("--against")
+        .arg(sample().join("sensors.csv"))
+        .arg("--out")
+        .arg(out.path())
+        .arg("--json")
+        .output()
+        .unwrap();
+    assert!(
+        output.status.success(),
+        "{}",
+        String::from_utf8_lossy(&output.stderr)
+    );
+    let json: serde_json::Value = serde_json::from_slice(&output.stdout).unwrap();
+    assert!(json["search"].is_null());
+    assert_eq!(json["against"]["name"], "sensors.csv");
+    let ours = json["score"]["edge_rms_sd"].as_f64().unwrap();
+    let theirs = json["against"]["score"]["edge_rms_sd"].as_f64().unwrap();
+    assert!(ours > 0.0 && theirs > 0.0);
+    // the designed layout is optimal for its own criterion among these two
+    assert!(ours <= theirs, "{ours} vs {theirs}");
+    // the sample's drilled layout sits deeper than the design allows, so it is worse here;
+    // it honours the keep-outs and spacing, so no constraint caution is raised for it
+    let cautions = json["cautions"].to_string();
+    assert!(!cautions.contains("breaks a constraint"), "{cautions}");
+    // the scored layout is written back unchanged
+    assert_eq!(
+        fs::read_to_string(&a).unwrap(),
+        fs::read_to_string(out.path().join("layout.csv")).unwrap()
+    );
+}
+
+#[test]
+fn impossible_constraints_are_input_errors() {
+    let cases: Vec<(&str, Vec<&str>, &str)> = vec![
+        (
+            "[design]\nallowed = [{ x = [50, 60], y = [0, 10] }]\nkeep_out = [{ x = [40, 70], y = [0, 28] }]\nvariation = 4\n",
+            vec!["--count", "2"],
+            "no candidate position",
+        ),
+        (
+            "[design]\nallowed = [{ x = [50, 60], y = [0, 10] }]\ncandidate_spacing = 2\nvariation = 4\nedge_distance = 4\n",
+            vec!["--count", "40"],
+            "only 24 candidate",
+        ),
+        (
+            "[design]\nsensor_spacing = 100\ncandidate_spacing = 2\nvariation = 4\n",
+            vec!["--count", "3"],
+            "could place only 2 new sensors",
+        ),
+        (
+            "[design]\ncandidate_spacing = 2\n",
+            vec!["--count", "3"],
+            "needs `variation`",
+        ),
+        (
+            "[design]\nvariation = 4\nedge_distance = 14\n",
+            vec!["--count", "3"],
+            "no room",
+        ),
+        (
+            "[design]\nvariation = 4\nallowed = [{ x = [0, 200], y = [0, 10] }]\n",
+            vec!["--count", "3"],
+            "outside the plate",
+        ),
+        (
+            "[design]\nvariation = 4\nsmoothing = \"auto\"\n",
+            vec!["--count", "3"],
+            "one smoothing order",
+        ),
+        (
+            "[design]\nvariation = 4\nspacing = 3\n",
+            vec!["--count", "3"],
+            "unknown key",
+        ),
+        (
+            "[design]\nvariation = 4\n",
+            vec!["--count", "0"],
+            "at least one sensor",
+        ),
+        ("", vec!["--count", "3"], "no [design] section"),
+    ];
+    for (section, args, gist) in cases {
+        let dir = tempfile::tempdir().unwrap();
+        let out = tempfile::tempdir().unwrap();
+        case_with_design(dir.path(), section);
+        let output = Command::cargo_bin("edgetherm")
+            .unwrap()
+            .arg("design")
+            .arg(dir.path())
+            .arg("--out")
+            .arg(out.path())
+            .args(&args)
+            .output()
+            .unwrap();
+        let err = String::from_utf8_lossy(&output.stderr);
+        assert_eq!(output.status.code(), Some(2), "{section}: {err}");
+        assert!(err.contains(gist), "{section}: {err}");
+        assert!(!err.contains("panicked"), "{err}");
+        assert!(!out.path().join("layout.csv").exists());
+    }
+}
+
+#[test]
+fn errors_name_the_file_line_and_key() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = tempfile::tempdir().unwrap();
+    case_with_design(
+        dir.path(),
+        "[design]\nvariation = 4\ncriterion = \"best\"\n",
+    );
+    let plate = fs::read_to_string(dir.path().join("plate.toml")).unwrap();
+    let line = plate
+        .lines()
+        .position(|l| l.starts_with("criterion"))
+        .unwrap()
+        + 1;
+    design(dir.path(), out.path(), &["--count", "3"])
+        .code(2)
+        .stderr(predicate::str::contains("plate.toml"))
+        .stderr(predicate::str::contains(format!("line {line}")))
+        .stderr(predicate::str::contains("design.criterion"));
+}
+
+#[test]
+fn refuses_to_overwrite_an_input_and_needs_a_count() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = tempfile::tempdir().unwrap();
+    design(&sample(), out.path(), &["--count", "4", "--quiet"]).success();
+    let layout = out.path().join("layout.csv");
+    let before = fs::read_to_string(&layout).unwrap();
+    // scoring a layout.csv into its own directory would replace it
+    Command::cargo_bin("edgetherm")
+        .unwrap()
+        .arg("design")
+        .arg(sample())
+        .arg("--evaluate")
+        .arg(&layout)
+        .arg("--out")
+        .arg(out.path())
+        .assert()
+        .code(2)
+        .stderr(predicate::str::contains("inputs are never overwritten"));
+    assert_eq!(fs::read_to_string(&layout).unwrap(), before);
+    design(&sample(), dir.path(), &[])
+        .code(2)
+        .stderr(predicate::str::contains("--count"));
+}
