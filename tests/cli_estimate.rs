@@ -120,3 +120,57 @@ fn same_seed_gives_the_same_files() {
         );
     }
 }
+
+fn copy_case(name: &str) -> tempfile::TempDir {
+    let case = tempfile::tempdir().unwrap();
+    for f in ["plate.toml", "sensors.csv", "readings.csv"] {
+        std::fs::copy(sample(name).join(f), case.path().join(f)).unwrap();
+    }
+    case
+}
+
+#[test]
+fn discrepancy_without_a_stated_sigma_names_the_plate_file() {
+    let case = copy_case("cold-plate");
+    let plate = case.path().join("plate.toml");
+    let text = std::fs::read_to_string(&plate).unwrap();
+    let text: String = text
+        .lines()
+        .filter(|l| !l.starts_with("sigma ="))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    std::fs::write(&plate, text).unwrap();
+    let out = tempfile::tempdir().unwrap();
+    estimate(case.path(), out.path(), &["--strength", "discrepancy"])
+        .code(2)
+        .stderr(
+            predicate::str::contains("plate.toml")
+                .and(predicate::str::contains("--strength"))
+                .and(predicate::str::contains("discrepancy principle needs")),
+        );
+}
+
+// IEC 60584-1 class 1 covers type T from −40 to 350 °C (METHODS §4): a reading of 400 °C has
+// no tolerance in that class, and the message names the readings file.
+#[test]
+fn a_reading_outside_the_tolerance_class_range_names_the_readings_file() {
+    let case = copy_case("cold-plate");
+    let plate = case.path().join("plate.toml");
+    let text = std::fs::read_to_string(&plate)
+        .unwrap()
+        .replace("sigma = 0.15", "tolerance_class = \"iec-1\"\ntype = \"T\"");
+    std::fs::write(&plate, text).unwrap();
+    let readings = case.path().join("readings.csv");
+    let text = std::fs::read_to_string(&readings).unwrap();
+    let text = text.replacen("TC03,", "TC03,400.0\nTCXX,", 1);
+    let text: String = text
+        .lines()
+        .filter(|l| !l.starts_with("TCXX"))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    std::fs::write(&readings, text).unwrap();
+    let out = tempfile::tempdir().unwrap();
+    estimate(case.path(), out.path(), &[])
+        .code(2)
+        .stderr(predicate::str::contains("readings.csv").and(predicate::str::contains("TC03")));
+}

@@ -130,6 +130,19 @@ pub fn estimate(
     // Sigmas for every sensor that has a reading (indexed like case.sensors).
     let (sigma_of, source) = resolve_sigmas(case, &used, readings)?;
     let stated = source != SigmaSource::Estimated;
+    if strength == Strength::Rule(StrengthMethod::Discrepancy) && !stated {
+        return Err(Error::invalid_at(
+            &case.files.plate,
+            None,
+            Some(if options.strength.is_some() {
+                "--strength"
+            } else {
+                "fit.strength"
+            }),
+            "the discrepancy principle needs the reading uncertainty: add [noise] sigma, a \
+             tolerance class or a sigma column in sensors.csv, or choose another rule",
+        ));
+    }
     let input_for = |rows: &[usize]| FitInput {
         a: full_map.matrix.select_rows(rows),
         d: DVector::from_iterator(
@@ -202,7 +215,7 @@ pub fn estimate(
         }
     }
     let input = input_for(&used);
-    let fit = fit::fit(&input, strength)?;
+    let fit = fit::fit(&input, strength).map_err(|e| e.in_file(&case.files.plate, |_| None))?;
     let c_hat = fit.solution.coefficients.clone();
     let c_slice = c_hat.as_slice();
     // (the covariance already carries σ̂ when it was estimated: the refit uses σ = σ̂)
@@ -521,12 +534,22 @@ pub fn resolve_sigmas(
     let temps: Vec<f64> = used.iter().map(|&i| readings[i].unwrap_or(0.0)).collect();
     let (sig, source) = reading_sigmas(&case.noise, &own, &temps).map_err(|(k, msg)| {
         let s = &case.sensors[used[k]];
-        Error::invalid_at(
-            &case.files.sensors,
-            Some(s.line),
-            Some("sigma"),
-            format!("{}: {msg}", s.id),
-        )
+        if s.sigma_k.is_none() && matches!(case.noise, crate::noise::NoiseSpec::Tolerance { .. }) {
+            // the reading lies outside the range of the tolerance class
+            Error::invalid_at(
+                &case.files.readings,
+                None,
+                Some("temperature"),
+                format!("{}: {msg}", s.id),
+            )
+        } else {
+            Error::invalid_at(
+                &case.files.sensors,
+                Some(s.line),
+                Some("sigma"),
+                format!("{}: {msg}", s.id),
+            )
+        }
     })?;
     let mut sigma_of = vec![f64::NAN; case.sensors.len()];
     for (k, &i) in used.iter().enumerate() {
