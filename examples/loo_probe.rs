@@ -1,5 +1,6 @@
 //! Development probe: leave-one-out verdicts, optionally with one reading displaced.
-//! `cargo run --release --example loo_probe -- CASE_DIR [BUMP_K [SENSOR_INDEX]]`
+//! `cargo run --release --example loo_probe -- CASE_DIR [BUMP_K [SENSOR_INDEX]]`, and
+//! `SECOND=INDEX:BUMP` in the environment to displace a second reading.
 use edgetherm::estimate::fit::{FitInput, loo_residuals};
 use edgetherm::estimate::penalty::penalty_weights;
 use edgetherm::forward::{ForwardModel, SeriesOptions};
@@ -17,6 +18,13 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let mut readings = load_readings(&case.files.readings, &case)?;
     if let Some(r) = readings[which].as_mut() {
         *r += bump;
+    }
+    // SECOND=INDEX:BUMP displaces a second reading
+    if let Ok(second) = std::env::var("SECOND") {
+        let (k, b) = second.split_once(':').expect("INDEX:BUMP");
+        if let Some(r) = readings[k.parse::<usize>().unwrap()].as_mut() {
+            *r += b.parse::<f64>().unwrap();
+        }
     }
     let model = ForwardModel::new(
         &case.plate,
