@@ -541,6 +541,46 @@ impl Decomposition {
             .collect())
     }
 
+    /// The parts of [`Self::predictive_variances`] that do not depend on λ, for the
+    /// functional `a · c`: `(Vᵀ w, ‖V⊥ᵀ w‖², ‖a_N R₁⁻¹‖²)` with `w = L_P⁻¹ (a_P − a_N B)`.
+    /// For a caller that needs the variance of the same functionals at many λ (one per row
+    /// of a log): O(p·r) once here, then O(r) per λ in [`Self::predictive_variance_at`].
+    ///
+    /// # Errors
+    /// [`Error::Invalid`] when `a` has the wrong length.
+    pub fn predictive_variance_parts(&self, a: &DVector<f64>) -> Result<(DVector<f64>, f64, f64)> {
+        if a.len() != self.p {
+            return Err(Error::invalid_field(
+                "inverse.a",
+                format!("a row of length {} for {} coefficients", a.len(), self.p),
+            ));
+        }
+        let a_n = DVector::from_iterator(self.q, self.null_idx.iter().map(|&j| a[j]));
+        let a_p = DVector::from_iterator(self.pen_idx.len(), self.pen_idx.iter().map(|&j| a[j]));
+        let mut w = a_p - self.b.tr_mul(&a_n);
+        w.component_div_assign(&self.l_pen);
+        let proj_v = self.v.tr_mul(&w);
+        let perp = if self.v_perp.ncols() > 0 {
+            self.v_perp.tr_mul(&w).norm_squared()
+        } else {
+            0.0
+        };
+        let null = self.r1_inv.tr_mul(&a_n).norm_squared();
+        Ok((proj_v, perp, null))
+    }
+
+    /// `a C(λ) aᵀ` from [`Self::predictive_variance_parts`]:
+    /// `Σ_k (w·v_k)² / (g_k² + λ) + ‖V⊥ᵀ w‖² / λ + ‖a_N R₁⁻¹‖²`, the same arithmetic in the
+    /// same order as [`Self::predictive_variances`], so the same number.
+    pub fn predictive_variance_at(&self, proj_v: &[f64], perp: f64, null: f64, lambda: f64) -> f64 {
+        let seen: f64 = proj_v
+            .iter()
+            .zip(self.g.iter())
+            .map(|(pv, g)| pv * pv / (g * g + lambda))
+            .sum();
+        seen + perp / lambda + null
+    }
+
     /// The filter factors f_i = g_i² / (g_i² + λ).
     pub fn filter_factors(&self, lambda: f64) -> DVector<f64> {
         self.g.map(|g| g * g / (g * g + lambda))

@@ -10,8 +10,12 @@
 //! (one SVD, every λ), and, when the strength is fixed (a number, or `--calibrate`), the
 //! linear maps at that λ: the coefficients `c = G d`, the profile `P G d` on the scan grid,
 //! the pointwise posterior standard deviation of the profile, the leverages, and a fixed set
-//! of posterior draws for the exceedance probability. A row then costs O(m·(q + r)) for the
-//! projection plus O(n_scan · m) for the profile scan. The cache is bounded
+//! of posterior draws for the exceedance probability. A row then costs O(m²) for the fitted
+//! values plus O(n_scan · m) for the profile scan (the projection onto the basis is formed
+//! only when the coefficients are needed). When λ is chosen by the rule on every row, the
+//! pattern instead keeps the λ-independent parts of the posterior variance of every fine
+//! profile point ([`Decomposition::predictive_variance_parts`]), so the band costs O(r) per
+//! point instead of O(p·r). The cache is bounded
 //! ([`PATTERN_CACHE`] entries, least recently used evicted), so memory does not grow with the
 //! log.
 //!
@@ -156,13 +160,57 @@ struct FixedParts {
 
 /// Posterior draws of the profile error on the scan grid at a reference λ.
 struct Draws {
-    /// Per scan point, the draws' values there sorted descending, with the draw's index:
-    /// `cols[j * n + r]`.
-    cols: Vec<(f64, u32)>,
+    /// Per scan point, the draws' values there sorted descending: `values[j * n + r]`.
+    values: Vec<f64>,
+    /// The draw each of `values` belongs to.
+    index: Vec<u32>,
     /// Number of draws.
     n: usize,
+    /// Per scan point, its largest and smallest draw (`values[j * n]` and
+    /// `values[j * n + n - 1]` kept side by side, so the points that no draw can pass cost no
+    /// cache misses).
+    top: Vec<f64>,
+    bottom: Vec<f64>,
     /// The posterior sd on the scan grid the draws were made with (unit σ scale).
     sd: Vec<f64>,
+}
+
+/// The λ-independent parts of the posterior variance of every fine profile point
+/// ([`Decomposition::predictive_variance_parts`]), so that a row whose λ is chosen by the
+/// rule gets its band in O(r) per point instead of O(p·r).
+struct VarianceParts {
+    /// Column `j`: `Vᵀ w_j` of fine point `j` (r × n_fine_total).
+    proj: DMatrix<f64>,
+    /// `‖V⊥ᵀ w_j‖²` per fine point.
+    perp: Vec<f64>,
+    /// `‖a_N R₁⁻¹‖²` per fine point.
+    null: Vec<f64>,
+}
+
+impl VarianceParts {
+    fn new(dec: &Decomposition, prof: &DMatrix<f64>) -> Result<Self> {
+        let n = prof.nrows();
+        let r = dec.singular_values().len();
+        let mut proj = DMatrix::zeros(r, n);
+        let (mut perp, mut null) = (Vec::with_capacity(n), Vec::with_capacity(n));
+        for j in 0..n {
+            let (pv, pe, nu) = dec.predictive_variance_parts(&prof.row(j).transpose())?;
+            proj.set_column(j, &pv);
+            perp.push(pe);
+            null.push(nu);
+        }
+        Ok(VarianceParts { proj, perp, null })
+    }
+
+    /// The posterior standard deviation of fine point `j` at λ (unit σ scale): the same
+    /// number as `predictive_variances(row j, [λ])[0].max(0).sqrt()`.
+    fn sd(&self, dec: &Decomposition, j: usize, lambda: f64) -> f64 {
+        let r = self.proj.nrows();
+        let pv = &self.proj.as_slice()[j * r..(j + 1) * r];
+        dec.predictive_variance_at(pv, self.perp[j], self.null[j], lambda)
+            .max(0.0)
+            .sqrt()
+    }
 }
 
 struct Pattern {
@@ -172,6 +220,8 @@ struct Pattern {
     proj: Projection,
     fixed: Option<FixedParts>,
     draws: Option<Draws>,
+    /// Built the first time a row of this pattern has its λ chosen by the rule.
+    variance: Option<VarianceParts>,
     last_use: u64,
 }
 
@@ -185,6 +235,8 @@ pub struct RowEstimator {
     prof_offset: Vec<f64>,
     /// Fine index of each scan point.
     scan_index: Vec<usize>,
+    /// The edge of each scan point (`scan_index[j] / n_fine`).
+    scan_edge: Vec<usize>,
     scan_matrix: DMatrix<f64>,
     scan_offset: DVector<f64>,
     penalties: [DVector<f64>; 3],
@@ -213,6 +265,15 @@ pub struct RowEstimator {
     scan_sd: Vec<f64>,
     key: Vec<u64>,
     ratio: Vec<f64>,
+    /// Per sensor: used in this row (the diagnostics of the sensors left out).
+    in_use: Vec<bool>,
+    /// Fine profile values around the scan's maximum, and around the band's maxima.
+    window: Vec<f64>,
+    band_window: Vec<f64>,
+    /// Per used sensor: standardised leave-one-out residual, its sd, and the Gaussian factor.
+    loo_x: Vec<f64>,
+    loo_sd: Vec<f64>,
+    loo_good: Vec<f64>,
 }
 
 impl std::fmt::Debug for RowEstimator {
@@ -280,6 +341,7 @@ impl RowEstimator {
             n_fine,
             prof_matrix,
             prof_offset,
+            scan_edge: scan_index.iter().map(|&f| f / n_fine.max(1)).collect(),
             scan_index,
             scan_matrix,
             scan_offset,
@@ -307,6 +369,12 @@ impl RowEstimator {
             scan_sd: vec![0.0; n_scan],
             key: Vec::new(),
             ratio: vec![0.0; n_scan],
+            in_use: Vec::new(),
+            window: Vec::new(),
+            band_window: Vec::new(),
+            loo_x: Vec::new(),
+            loo_sd: Vec::new(),
+            loo_good: Vec::new(),
         })
     }
 
@@ -440,6 +508,7 @@ impl RowEstimator {
                 proj,
                 fixed: None,
                 draws: None,
+                variance: None,
                 last_use: self.clock,
             },
         );
@@ -479,10 +548,16 @@ impl RowEstimator {
             .get_mut(self.key.as_slice())
             .ok_or_else(internal)?;
         fill_d(&mut self.d, used, readings, &self.sensor_map.offset);
-        pat.dec.project_into(&self.d, &mut pat.proj)?;
+        // The projection of the data onto the pattern's basis: the rule needs it to choose λ;
+        // at a fixed λ the cached linear maps act on the data directly, so it is formed only
+        // when the coefficients or the draws are needed (`projected` says whether it holds
+        // this row's data).
+        let mut projected = false;
         let lambda = match strength {
             RowStrength::Fixed { lambda, .. } => lambda,
             RowStrength::PerRow(s) => {
+                pat.dec.project_into(&self.d, &mut pat.proj)?;
+                projected = true;
                 pat.dec
                     .select_for(&pat.proj, s, &select_options(false))?
                     .lambda
@@ -509,21 +584,25 @@ impl RowEstimator {
         match pat.fixed.as_ref().filter(|_| fixed_here) {
             Some(fx) => self.fitted.gemv(1.0, &fx.smoother, &self.d, 0.0),
             None => {
+                if !projected {
+                    pat.dec.project_into(&self.d, &mut pat.proj)?;
+                    projected = true;
+                }
                 pat.dec.coefficients_into(&pat.proj, lambda, &mut self.c)?;
                 pat.dec.predict_into(&self.c, &mut self.fitted)?;
                 c_ready = true;
             }
         }
         // σ̂ when not stated: χ²/(m − tr H) at this λ (unit weights).
-        let f_sum: f64 = pat
-            .dec
-            .singular_values()
-            .iter()
-            .map(|g| g * g / (g * g + lambda))
-            .sum();
         let sigma_scale = if self.stated {
             None
         } else {
+            let f_sum: f64 = pat
+                .dec
+                .singular_values()
+                .iter()
+                .map(|g| g * g / (g * g + lambda))
+                .sum();
             let chi2: f64 = (0..m)
                 .map(|k| ((self.d[k] - self.fitted[k]) / pat.sigma[k]).powi(2))
                 .sum();
@@ -571,10 +650,12 @@ impl RowEstimator {
         } else {
             self.scan_est.gemv(1.0, &self.scan_matrix, &self.c, 0.0);
             self.scan_est += &self.scan_offset;
+            if pat.variance.is_none() {
+                pat.variance = Some(VarianceParts::new(&pat.dec, &self.prof_matrix)?);
+            }
+            let vp = pat.variance.as_ref().ok_or_else(internal)?;
             for (j, &fi) in self.scan_index.iter().enumerate() {
-                let a = self.prof_matrix.row(fi).transpose();
-                let v = pat.dec.predictive_variances(&a, &[lambda])?[0];
-                self.scan_sd[j] = v.max(0.0).sqrt() * s;
+                self.scan_sd[j] = vp.sd(&pat.dec, fi, lambda) * s;
             }
             let h = pat.dec.influence_matrix(lambda)?;
             leverage.extend((0..m).map(|k| h[(k, k)]));
@@ -592,21 +673,20 @@ impl RowEstimator {
         let edge_k = fi / n;
         let lo = (edge_k * n).max(fi.saturating_sub(self.stride + 1));
         let hi = ((edge_k + 1) * n).min(fi + self.stride + 2);
-        let fine_val = |j: usize| -> f64 {
-            match pat.fixed.as_ref().filter(|_| fixed_here) {
-                Some(fx) => {
-                    (0..m).map(|k| fx.fine_pg[(j, k)] * self.d[k]).sum::<f64>()
-                        + self.prof_offset[j]
-                }
-                None => {
-                    (0..self.c.len())
-                        .map(|k| self.prof_matrix[(j, k)] * self.c[k])
-                        .sum::<f64>()
-                        + self.prof_offset[j]
-                }
-            }
+        // the fine profile is the data through the cached map at a fixed λ, else the
+        // coefficients through the profile map
+        let (fine_map, fine_x) = match pat.fixed.as_ref().filter(|_| fixed_here) {
+            Some(fx) => (&fx.fine_pg, &self.d),
+            None => (&self.prof_matrix, &self.c),
         };
-        let vals: Vec<f64> = (lo..hi).map(fine_val).collect();
+        let mut vals = std::mem::take(&mut self.window);
+        let win = lo..hi;
+        profile_rows(fine_map, fine_x, &self.prof_offset, win.clone(), &mut vals);
+        let fine_val = |j: usize| -> f64 {
+            let mut one = Vec::with_capacity(1);
+            profile_rows(fine_map, fine_x, &self.prof_offset, j..j + 1, &mut one);
+            one[0]
+        };
         // refined_max over the window, but a parabola only away from the edge's ends
         let mut k = 0;
         for j in 0..vals.len() {
@@ -639,48 +719,59 @@ impl RowEstimator {
         let position = pos[0] + (idx - (edge_k * n) as f64) * step;
         // [max L, max U]: the scan's maxima, refined on the fine grid around them.
         let (mut jl, mut ju) = (0, 0);
+        let (mut best_l, mut best_u) = (
+            self.scan_est[0] - z * self.scan_sd[0],
+            self.scan_est[0] + z * self.scan_sd[0],
+        );
         for j in 0..n_scan {
             let (l, u) = (
                 self.scan_est[j] - z * self.scan_sd[j],
                 self.scan_est[j] + z * self.scan_sd[j],
             );
-            if l > self.scan_est[jl] - z * self.scan_sd[jl] {
-                jl = j;
+            if l > best_l {
+                (jl, best_l) = (j, l);
             }
-            if u > self.scan_est[ju] + z * self.scan_sd[ju] {
-                ju = j;
+            if u > best_u {
+                (ju, best_u) = (j, u);
             }
         }
         let fine_sd = |j: usize| -> Result<f64> {
             match pat.fixed.as_ref().filter(|_| fixed_here) {
                 Some(fx) => Ok(fx.fine_sd[j] * s),
                 None => {
-                    let a = self.prof_matrix.row(j).transpose();
-                    Ok(pat.dec.predictive_variances(&a, &[lambda])?[0]
-                        .max(0.0)
-                        .sqrt()
-                        * s)
+                    let vp = pat.variance.as_ref().ok_or_else(internal)?;
+                    Ok(vp.sd(&pat.dec, j, lambda) * s)
                 }
             }
         };
-        let band_max = |js: usize, sign: f64| -> Result<f64> {
+        let mut band = std::mem::take(&mut self.band_window);
+        let mut band_max = |js: usize, sign: f64| -> Result<f64> {
             let f = self.scan_index[js];
             let k = f / n;
             let lo = (k * n).max(f.saturating_sub(self.stride - 1));
             let hi = ((k + 1) * n).min(f + self.stride);
+            // usually within the window around the hottest point, already evaluated
+            let values: &[f64] = if lo >= win.start && hi <= win.end {
+                &vals[lo - win.start..hi - win.start]
+            } else {
+                profile_rows(fine_map, fine_x, &self.prof_offset, lo..hi, &mut band);
+                &band
+            };
             let mut best = f64::NEG_INFINITY;
-            for j in lo..hi {
-                best = best.max(fine_val(j) + sign * z * fine_sd(j)?);
+            for (j, v) in (lo..hi).zip(values) {
+                best = best.max(v + sign * z * fine_sd(j)?);
             }
             Ok(best)
         };
         let max_l = band_max(jl, -1.0)?;
         let max_u = band_max(ju, 1.0)?;
+        self.band_window = band;
+        self.window = vals;
         let mut p_lo = position;
         let mut p_hi = position;
         for j in 0..n_scan {
             let f = self.scan_index[j];
-            if f / n == edge_k && self.scan_est[j] + z * self.scan_sd[j] >= max_l {
+            if self.scan_edge[j] == edge_k && self.scan_est[j] + z * self.scan_sd[j] >= max_l {
                 let p = pos[f - edge_k * n];
                 p_lo = p_lo.min(p);
                 p_hi = p_hi.max(p);
@@ -697,6 +788,10 @@ impl RowEstimator {
                         *o = v / s;
                     }
                     let seed = self.seed ^ hash_key(&self.key);
+                    if !projected {
+                        pat.dec.project_into(&self.d, &mut pat.proj)?;
+                        projected = true;
+                    }
                     pat.draws = Some(make_draws(
                         &pat.dec,
                         &pat.proj,
@@ -737,6 +832,10 @@ impl RowEstimator {
                 if self.c_ref.len() != self.c.len() {
                     self.c_ref = DVector::zeros(self.c.len());
                 }
+                if !projected {
+                    pat.dec.project_into(&self.d, &mut pat.proj)?;
+                    projected = true;
+                }
                 if self.fitted_ref.len() != m {
                     self.fitted_ref = DVector::zeros(m);
                 }
@@ -761,19 +860,41 @@ impl RowEstimator {
             let good = (-0.5 * x * x).exp() / (sd * (2.0 * std::f64::consts::PI).sqrt());
             (x, fault / (fault + (1.0 - FAULT_PRIOR) * good))
         };
-        for (k, &i) in used.iter().enumerate() {
+        // `verdict` for each used sensor, in three passes (the divisions, then the
+        // exponentials, then the probabilities) so that the sensors' chains overlap instead of
+        // waiting on one `exp` call at a time; the same operations on each value.
+        let (xs, sds) = (&mut self.loo_x, &mut self.loo_sd);
+        xs.clear();
+        sds.clear();
+        for k in 0..m {
             let h = leverage[k].min(1.0 - 1e-12);
             let r = self.d[k] - fitted_d[k];
             let sd_loo = pat.sigma[k] * s / (1.0 - h).sqrt();
-            out.diagnostics[i] = Some(verdict(r / (1.0 - h), sd_loo));
+            xs.push(r / (1.0 - h) / sd_loo);
+            sds.push(sd_loo);
+        }
+        let gauss = &mut self.loo_good;
+        gauss.clear();
+        gauss.extend(xs.iter().map(|&x| (-0.5 * x * x).exp()));
+        for (k, &i) in used.iter().enumerate() {
+            let good = gauss[k] / (sds[k] * (2.0 * std::f64::consts::PI).sqrt());
+            out.diagnostics[i] = Some((xs[k], fault / (fault + (1.0 - FAULT_PRIOR) * good)));
         }
         if !c_ready && !use_ref && readings.iter().flatten().count() > m {
+            if !projected {
+                pat.dec.project_into(&self.d, &mut pat.proj)?;
+            }
             pat.dec.coefficients_into(&pat.proj, lambda, &mut self.c)?;
         }
         let c_d = if use_ref { &self.c_ref } else { &self.c };
+        self.in_use.clear();
+        self.in_use.resize(readings.len(), false);
+        for &i in used {
+            self.in_use[i] = true;
+        }
         for (i, r) in readings.iter().enumerate() {
             let Some(r) = r else { continue };
-            if used.contains(&i) {
+            if self.in_use[i] {
                 continue;
             }
             let a = self.sensor_map.matrix.row(i).transpose();
@@ -829,6 +950,8 @@ impl RowEstimator {
             .cache
             .get_mut(self.key.as_slice())
             .ok_or_else(internal)?;
+        fill_d(&mut self.d, used, readings, &self.sensor_map.offset);
+        pat.dec.project_into(&self.d, &mut pat.proj)?;
         pat.dec
             .coefficients_into(&pat.proj, row.lambda, &mut self.c)?;
         let s = row.sigma_scale.unwrap_or(1.0);
@@ -895,6 +1018,31 @@ fn fill_d(d: &mut DVector<f64>, used: &[usize], readings: &[Option<f64>], offset
     }
     for (k, &i) in used.iter().enumerate() {
         d[k] = readings[i].unwrap_or(f64::NAN) - offset[i];
+    }
+}
+
+/// The fine profile at the points `rows`: `out[i] = Σ_k map[(j, k)] x[k] + offset[j]` for
+/// `j = rows.start + i`, each sum taken in the order of `k` (so every value is the same
+/// number as the row's dot product). The sums of the window's points run side by side, a
+/// column of `map` at a time, instead of one long chain of additions per point.
+fn profile_rows(
+    map: &DMatrix<f64>,
+    x: &DVector<f64>,
+    offset: &[f64],
+    rows: std::ops::Range<usize>,
+    out: &mut Vec<f64>,
+) {
+    out.clear();
+    out.resize(rows.len(), -0.0);
+    let (nr, data) = (map.nrows(), map.as_slice()); // column-major
+    for (k, &xk) in x.iter().enumerate() {
+        let col = &data[k * nr + rows.start..k * nr + rows.end];
+        for (o, &w) in out.iter_mut().zip(col) {
+            *o += w * xk;
+        }
+    }
+    for (o, off) in out.iter_mut().zip(&offset[rows]) {
+        *o += off;
     }
 }
 
@@ -996,7 +1144,23 @@ fn make_draws(
         cols.extend(e.row(j).iter().enumerate().map(|(k, &v)| (v, k as u32)));
         cols[start..].sort_by(|a, b| b.0.total_cmp(&a.0));
     }
-    Ok(Draws { cols, n, sd })
+    Ok(Draws::new(cols, n, sd))
+}
+
+impl Draws {
+    /// From `cols`: per scan point, its `n` (value, draw) pairs sorted by value, descending.
+    fn new(cols: Vec<(f64, u32)>, n: usize, sd: Vec<f64>) -> Self {
+        let top = cols.chunks(n).map(|c| c[0].0).collect();
+        let bottom = cols.chunks(n).map(|c| c[n - 1].0).collect();
+        Draws {
+            values: cols.iter().map(|c| c.0).collect(),
+            index: cols.iter().map(|c| c.1).collect(),
+            n,
+            top,
+            bottom,
+            sd,
+        }
+    }
 }
 
 /// Share of draws `k` with `max_j (est_j + ratio_j e_kj) > t`: the union over scan points of
@@ -1015,7 +1179,6 @@ fn exceed(est: &DVector<f64>, ratio: &[f64], dr: &Draws, t: f64, bits: &mut Vec<
     }
     // the hottest point first: far above the limit it decides every draw at once
     for j in std::iter::once(arg).chain((0..est.len()).filter(|&j| j != arg)) {
-        let col = &dr.cols[j * n..(j + 1) * n];
         let r = ratio[j];
         if r <= 0.0 {
             if est[j] > t {
@@ -1024,16 +1187,15 @@ fn exceed(est: &DVector<f64>, ratio: &[f64], dr: &Draws, t: f64, bits: &mut Vec<
             continue;
         }
         let c = (t - est[j]) / r;
-        if col[0].0 <= c {
+        if dr.top[j] <= c {
             continue;
         }
-        if col[n - 1].0 > c {
+        if dr.bottom[j] > c {
             return 1.0;
         }
-        for &(v, k) in col {
-            if v <= c {
-                break;
-            }
+        // the draws that pass here: the prefix of values above c
+        let passing = dr.values[j * n..(j + 1) * n].partition_point(|&v| v > c);
+        for &k in &dr.index[j * n..j * n + passing] {
             bits[k as usize / 64] |= 1 << (k % 64);
         }
     }
@@ -1044,6 +1206,53 @@ fn exceed(est: &DVector<f64>, ratio: &[f64], dr: &Draws, t: f64, bits: &mut Vec<
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn cached_variance_parts_give_the_same_numbers_as_predictive_variances() {
+        // An invented 8 × 5 problem (two unpenalised columns, so V⊥ and the null part are
+        // both exercised) and invented profile rows: the per-λ sd from the cached parts must
+        // be the very same floating-point number as the direct computation, because the
+        // per-row band written to track.csv must not change with the caching.
+        let (m, p) = (8, 5);
+        let a = DMatrix::from_fn(m, p, |i, j| ((i * 7 + j * 3) as f64 * 0.37).sin() + 0.1);
+        let penalty = DVector::from_vec(vec![0.0, 0.0, 1.0, 4.0, 9.0]);
+        let sigma = DVector::from_fn(m, |i, _| 0.1 + 0.01 * i as f64);
+        let problem = Problem::new(a, DVector::zeros(m), sigma, penalty, true).unwrap();
+        let dec = Decomposition::new(&problem).unwrap();
+        let prof = DMatrix::from_fn(6, p, |i, j| ((i + 2 * j) as f64 * 0.23).cos());
+        let parts = VarianceParts::new(&dec, &prof).unwrap();
+        for lambda in [1e-6, 3e-3, 0.5, 40.0] {
+            for j in 0..prof.nrows() {
+                let direct = dec
+                    .predictive_variances(&prof.row(j).transpose(), &[lambda])
+                    .unwrap()[0]
+                    .max(0.0)
+                    .sqrt();
+                assert!(direct > 0.0);
+                assert_eq!(
+                    parts.sd(&dec, j, lambda).to_bits(),
+                    direct.to_bits(),
+                    "λ {lambda}, row {j}"
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn profile_rows_match_the_dot_products() {
+        // the window evaluation runs the sums side by side; each value must be the same
+        // number as the plain dot product in the order of k (invented numbers)
+        let map = DMatrix::from_fn(12, 7, |i, j| ((i * 5 + j) as f64 * 0.71).sin() * 1e3);
+        let x = DVector::from_fn(7, |k, _| ((k as f64) * 1.3).cos() / 7.0);
+        let offset: Vec<f64> = (0..12).map(|j| 300.0 + j as f64 * 0.1).collect();
+        let mut out = Vec::new();
+        profile_rows(&map, &x, &offset, 3..10, &mut out);
+        assert_eq!(out.len(), 7);
+        for (i, j) in (3..10).enumerate() {
+            let plain = (0..7).map(|k| map[(j, k)] * x[k]).sum::<f64>() + offset[j];
+            assert_eq!(out[i].to_bits(), plain.to_bits(), "row {j}");
+        }
+    }
 
     #[test]
     fn exceedance_from_sorted_draws_matches_a_plain_count() {
@@ -1059,11 +1268,7 @@ mod tests {
             c.sort_by(|a, b| b.0.total_cmp(&a.0));
             cols.extend(c);
         }
-        let dr = Draws {
-            cols,
-            n: 3,
-            sd: vec![1.0, 1.0],
-        };
+        let dr = Draws::new(cols, 3, vec![1.0, 1.0]);
         let est = DVector::from_vec(vec![1.0, 2.0]);
         let ratio = [1.0, 0.5];
         let mut bits = Vec::new();

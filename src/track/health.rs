@@ -121,16 +121,18 @@ impl Window {
         if n < DRIFT_WINDOW / 2 {
             return None;
         }
-        let base = row as f64;
-        let (mut sx, mut sz) = (0.0, 0.0);
-        for &(r, z) in &self.values {
-            sx += r as f64 - base;
+        // x = r − row, an integer well inside f64's exact range: summed as an integer and
+        // converted once, it is the same number as the floating-point sum of the same terms
+        let (front, back) = self.values.as_slices();
+        let (mut sx_rows, mut sz) = (0i64, 0.0);
+        for &(r, z) in front.iter().chain(back) {
+            sx_rows += r as i64 - row as i64;
             sz += z;
         }
-        let (mx, mz) = (sx / n as f64, sz / n as f64);
+        let (mx, mz) = (sx_rows as f64 / n as f64, sz / n as f64);
         let (mut sxx, mut sxz) = (0.0, 0.0);
-        for &(r, z) in &self.values {
-            let x = r as f64 - base - mx;
+        for &(r, z) in front.iter().chain(back) {
+            let x = (r as i64 - row as i64) as f64 - mx;
             sxx += x * x;
             sxz += x * (z - mz);
         }

@@ -321,8 +321,15 @@ impl Tracker {
         self.missing
             .extend((0..row.values.len()).filter(|&i| row.values[i].is_none()));
         self.left_out.clear();
+        // `used` is ascending (before_fit pushes sensors in order) and holds only sensors
+        // with a reading: a merge finds the ones left out without a search per sensor
+        debug_assert!(self.used.windows(2).all(|w| w[0] < w[1]));
+        let mut next_used = self.used.iter().copied().peekable();
         for i in 0..row.values.len() {
-            if row.values[i].is_some() && !self.used.contains(&i) {
+            if row.values[i].is_none() {
+                continue;
+            }
+            if next_used.next_if_eq(&i).is_none() {
                 self.left_out.push((i, self.health.problem_of(i)));
             }
         }

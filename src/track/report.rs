@@ -17,7 +17,7 @@ temperature,lower,upper,exceedance_probability,readings_used,smoothing,strength,
 pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
     use std::io::Write as _;
     let u = CaseUnits::new(case.units);
-    out.extend_from_slice(csv_cell(&rec.row.time_text).as_bytes());
+    push_csv_cell(out, &rec.row.time_text);
     match &rec.status {
         RowStatus::Fitted => {
             let f = rec.fit;
@@ -40,13 +40,15 @@ pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
             if let Some(p) = f.exceedance {
                 push_fixed(out, p, 4);
             }
-            let _ = write!(
-                out,
-                ",{},{},{},",
-                f.used.len(),
-                crate::io::Smoothing::of_order(f.order).map_or("", |s| s.name()),
-                f.lambda,
+            out.push(b',');
+            push_u64(out, f.used.len() as u64, 0);
+            out.push(b',');
+            out.extend_from_slice(
+                crate::io::Smoothing::of_order(f.order)
+                    .map_or("", |s| s.name())
+                    .as_bytes(),
             );
+            let _ = write!(out, ",{},", f.lambda);
         }
         RowStatus::Skipped(why) => {
             let _ = write!(
@@ -66,11 +68,14 @@ pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
     };
     for (i, p) in rec.left_out {
         sep(out);
-        let _ = write!(out, "{}:{}", case.sensors[*i].id, p.name());
+        out.extend_from_slice(case.sensors[*i].id.as_bytes());
+        out.push(b':');
+        out.extend_from_slice(p.name().as_bytes());
     }
     for &i in rec.missing {
         sep(out);
-        let _ = write!(out, "{}:missing", case.sensors[i].id);
+        out.extend_from_slice(case.sensors[i].id.as_bytes());
+        out.extend_from_slice(b":missing");
     }
     out.push(b'\n');
 }
@@ -83,7 +88,6 @@ const TEMP_DECIMALS: usize = 4;
 /// and printed as an integer. Used for the millions of numbers in `track.csv`; the same text
 /// as [`fixed`] except, at most, in the last digit of a value that lies exactly half-way.
 fn push_fixed(out: &mut Vec<u8>, v: f64, decimals: usize) {
-    use std::io::Write as _;
     let scale = 10f64.powi(decimals as i32);
     let x = (v * scale).round();
     if !v.is_finite() || x.abs() >= 9.0e15 {
@@ -97,9 +101,39 @@ fn push_fixed(out: &mut Vec<u8>, v: f64, decimals: usize) {
     if neg && a != 0 {
         out.push(b'-');
     }
-    let _ = write!(out, "{}", a / p);
+    push_u64(out, a / p, 0);
     if decimals > 0 {
-        let _ = write!(out, ".{:0width$}", a % p, width = decimals);
+        out.push(b'.');
+        push_u64(out, a % p, decimals);
+    }
+}
+
+/// Append the decimal digits of `v`, zero-padded to at least `width` digits (what
+/// `{:0width$}` writes for an unsigned integer, without the formatting machinery: this runs
+/// for every number of every row of `track.csv`).
+fn push_u64(out: &mut Vec<u8>, mut v: u64, width: usize) {
+    let mut buf = [0u8; 20];
+    let mut i = buf.len();
+    loop {
+        i -= 1;
+        buf[i] = b'0' + (v % 10) as u8;
+        v /= 10;
+        if v == 0 {
+            break;
+        }
+    }
+    for _ in (buf.len() - i)..width {
+        out.push(b'0');
+    }
+    out.extend_from_slice(&buf[i..]);
+}
+
+/// [`csv_cell`] appended to `out` without an intermediate string.
+fn push_csv_cell(out: &mut Vec<u8>, s: &str) {
+    if s.contains([',', '"', '\n', '\r']) {
+        out.extend_from_slice(csv_cell(s).as_bytes());
+    } else {
+        out.extend_from_slice(s.as_bytes());
     }
 }
 
