@@ -4,9 +4,9 @@
 //! Exit status: 0 done; 3 when `--limit` is given and the probability that a hidden edge
 //! exceeds it passes `--probability`; 2 invalid input; 1 internal error.
 
-use super::{GlobalOptions, print_stdout};
+use super::{GlobalOptions, parse_strength, print_stdout};
 use edgetherm::estimate::{EstimateOptions, estimate};
-use edgetherm::io::{StrengthRule, check_output_dir, load_case, load_readings, parse_grid};
+use edgetherm::io::{check_output_dir, load_case, load_readings, parse_grid};
 use edgetherm::report::{summary_json, text_summary, write_outputs};
 use edgetherm::uncertainty::BootstrapMode;
 use edgetherm::{Error, Result};
@@ -142,26 +142,4 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
     } else {
         0
     })
-}
-
-fn parse_strength(s: &str) -> Result<StrengthRule> {
-    let rule = match s.trim() {
-        "gcv" => StrengthRule::Gcv,
-        "discrepancy" => StrengthRule::Discrepancy,
-        "evidence" => StrengthRule::Evidence,
-        "lcurve" => StrengthRule::LCurve,
-        other => match other.parse::<f64>() {
-            Ok(v) if v.is_finite() && v > 0.0 => StrengthRule::Fixed(v),
-            _ => {
-                return Err(Error::invalid_field(
-                    "--strength",
-                    format!(
-                        "expected gcv, discrepancy, evidence, lcurve or a positive number, \
-                         not `{s}`"
-                    ),
-                ));
-            }
-        },
-    };
-    Ok(rule)
 }

@@ -105,6 +105,30 @@ pub fn run() -> i32 {
     }
 }
 
+/// Parse `--strength`: a rule name or a positive number (a fixed strength).
+pub fn parse_strength(s: &str) -> Result<edgetherm::io::StrengthRule> {
+    use edgetherm::io::StrengthRule;
+    let rule = match s.trim() {
+        "gcv" => StrengthRule::Gcv,
+        "discrepancy" => StrengthRule::Discrepancy,
+        "evidence" => StrengthRule::Evidence,
+        "lcurve" => StrengthRule::LCurve,
+        other => match other.parse::<f64>() {
+            Ok(v) if v.is_finite() && v > 0.0 => StrengthRule::Fixed(v),
+            _ => {
+                return Err(Error::invalid_field(
+                    "--strength",
+                    format!(
+                        "expected gcv, discrepancy, evidence, lcurve or a positive number, \
+                         not `{s}`"
+                    ),
+                ));
+            }
+        },
+    };
+    Ok(rule)
+}
+
 /// Write `text` to stdout. A closed pipe (`edgetherm check . | head`) is not an error.
 pub fn print_stdout(text: &str) -> Result<()> {
     let mut out = std::io::stdout().lock();

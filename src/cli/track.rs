@@ -9,11 +9,11 @@
 //! Exit status: 0 done; 3 when `--limit` is given and an alarm episode occurred; 2 invalid
 //! input; 1 internal error.
 
-use super::{GlobalOptions, print_stdout};
+use super::{GlobalOptions, parse_strength, print_stdout};
 use edgetherm::io::logger::Follow;
 use edgetherm::io::{
-    LoggerOptions, LoggerReader, LoggerRow, StreamWriter, StrengthRule, check_track_outputs,
-    create_output_dir, load_case, write_atomic,
+    LoggerOptions, LoggerReader, LoggerRow, StreamWriter, check_track_outputs, create_output_dir,
+    load_case, write_atomic,
 };
 use edgetherm::track::report::{
     TRACK_CSV_HEADER, alarms_csv, health_csv, summary_json, text_summary, track_csv_row,
@@ -309,26 +309,4 @@ fn write_summaries(tracker: &Tracker, out: &Path) -> Result<edgetherm::track::Tr
     let svg = plot::track_svg(case, &s, &tracker.series().bins())?;
     write_atomic(&out.join("track.svg"), svg.as_bytes())?;
     Ok(s)
-}
-
-fn parse_strength(s: &str) -> Result<StrengthRule> {
-    let rule = match s.trim() {
-        "gcv" => StrengthRule::Gcv,
-        "discrepancy" => StrengthRule::Discrepancy,
-        "evidence" => StrengthRule::Evidence,
-        "lcurve" => StrengthRule::LCurve,
-        other => match other.parse::<f64>() {
-            Ok(v) if v.is_finite() && v > 0.0 => StrengthRule::Fixed(v),
-            _ => {
-                return Err(Error::invalid_field(
-                    "--strength",
-                    format!(
-                        "expected gcv, discrepancy, evidence, lcurve or a positive number, \
-                         not `{s}`"
-                    ),
-                ));
-            }
-        },
-    };
-    Ok(rule)
 }
