@@ -488,3 +488,32 @@ fn a_sensor_without_a_reading_is_left_out_but_reported() {
     assert!(s.reading.is_none() && s.residual.is_none() && s.leverage.is_none());
     assert!(s.fitted.is_finite());
 }
+
+// The heat flow through the hidden edge is a linear functional of the profile: on a smooth
+// truth its interval holds the truth's own heat flow (computed by the forward model of the
+// true plate, which the slab test checks against Fourier's law).
+#[test]
+fn heat_flow_interval_holds_the_true_heat_flow() {
+    let case = sample("cold-plate");
+    let truth = profile(W, |x| {
+        K0 + 34.0 + 3.0 * (std::f64::consts::PI * x / W).sin()
+    });
+    let truths = [(Edge::Bottom, truth)];
+    let true_flow = truth_model(&case.plate, &truths)
+        .unwrap()
+        .heat_flow(Edge::Bottom, &[])
+        .unwrap()
+        .unwrap();
+    let readings = readings_for(&case, &truths, 0.15, 12);
+    let r = estimate(&case, &readings, &quick(), None).unwrap();
+    let hf = r.edges[0].heat_flow.unwrap();
+    eprintln!(
+        "heat flow into the bottom: true {true_flow:.1} W/m, estimate {:.1} [{:.1}, {:.1}]",
+        hf.value, hf.lower, hf.upper
+    );
+    assert!(hf.lower <= true_flow && true_flow <= hf.upper);
+    assert!(
+        true_flow > 0.0,
+        "heat enters the plate through the warm bottom"
+    );
+}

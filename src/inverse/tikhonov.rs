@@ -511,33 +511,10 @@ impl Decomposition {
     /// # Errors
     /// [`Error::Invalid`] when `a` has the wrong length.
     pub fn predictive_variances(&self, a: &DVector<f64>, lambdas: &[f64]) -> Result<Vec<f64>> {
-        if a.len() != self.p {
-            return Err(Error::invalid_field(
-                "inverse.a",
-                format!("a row of length {} for {} coefficients", a.len(), self.p),
-            ));
-        }
-        let a_n = DVector::from_iterator(self.q, self.null_idx.iter().map(|&j| a[j]));
-        let a_p = DVector::from_iterator(self.pen_idx.len(), self.pen_idx.iter().map(|&j| a[j]));
-        let mut w = a_p - self.b.tr_mul(&a_n);
-        w.component_div_assign(&self.l_pen);
-        let proj_v = self.v.tr_mul(&w);
-        let perp = if self.v_perp.ncols() > 0 {
-            self.v_perp.tr_mul(&w).norm_squared()
-        } else {
-            0.0
-        };
-        let null = self.r1_inv.tr_mul(&a_n).norm_squared();
+        let (proj_v, perp, null) = self.predictive_variance_parts(a)?;
         Ok(lambdas
             .iter()
-            .map(|&lam| {
-                let seen: f64 = proj_v
-                    .iter()
-                    .zip(self.g.iter())
-                    .map(|(pv, g)| pv * pv / (g * g + lam))
-                    .sum();
-                seen + perp / lam + null
-            })
+            .map(|&lam| self.predictive_variance_at(proj_v.as_slice(), perp, null, lam))
             .collect())
     }
 
@@ -570,8 +547,8 @@ impl Decomposition {
     }
 
     /// `a C(λ) aᵀ` from [`Self::predictive_variance_parts`]:
-    /// `Σ_k (w·v_k)² / (g_k² + λ) + ‖V⊥ᵀ w‖² / λ + ‖a_N R₁⁻¹‖²`, the same arithmetic in the
-    /// same order as [`Self::predictive_variances`], so the same number.
+    /// `Σ_k (w·v_k)² / (g_k² + λ) + ‖V⊥ᵀ w‖² / λ + ‖a_N R₁⁻¹‖²` (what
+    /// [`Self::predictive_variances`] evaluates at each of its λ).
     pub fn predictive_variance_at(&self, proj_v: &[f64], perp: f64, null: f64, lambda: f64) -> f64 {
         let seen: f64 = proj_v
             .iter()

@@ -212,28 +212,20 @@ pub struct Case {
 /// Every invalid input is an [`crate::Error::Invalid`] naming the file, line and field; a
 /// missing file is an [`crate::Error::Io`] with `input: true`.
 pub fn load_case(files: &CaseFiles) -> Result<Case> {
-    let pf = plate_file::read_plate_file(&files.plate)?;
-    let sensors = csv_files::read_sensors(&files.sensors, &pf.units, pf.plate.shape())?;
-    let mut files = files.clone();
-    files.profiles = pf.profiles;
-    Ok(Case {
-        units: pf.units,
-        plate: pf.plate,
-        sensors,
-        fit: pf.fit,
-        noise: pf.noise,
-        uncertainty: pf.uncertainty,
-        design: pf.design,
-        files,
-    })
+    load(files, true)
 }
 
 /// Read and validate a case for `edgetherm design`: like [`load_case`], but `sensors.csv` may
 /// be absent (a layout is designed before anything is drilled); its sensors are then empty.
 /// A sensors file that exists must be valid.
 pub fn load_design_case(files: &CaseFiles) -> Result<Case> {
+    load(files, files.sensors.exists())
+}
+
+/// Read `plate.toml` and, when `with_sensors`, `sensors.csv`.
+fn load(files: &CaseFiles, with_sensors: bool) -> Result<Case> {
     let pf = plate_file::read_plate_file(&files.plate)?;
-    let sensors = if files.sensors.exists() {
+    let sensors = if with_sensors {
         csv_files::read_sensors(&files.sensors, &pf.units, pf.plate.shape())?
     } else {
         Vec::new()

@@ -171,6 +171,26 @@ pub(crate) fn polygon(area: &Area<'_>, pts: &[(f64, f64)], style: ShapeStyle) ->
     Ok(())
 }
 
+/// The marker of a sensor in the estimate's plots: flagged, without a reading, or used.
+pub(crate) fn sensor_marker(s: &crate::estimate::SensorResult) -> Marker {
+    if s.flag.is_some() {
+        Marker::Flagged
+    } else if s.reading.is_none() {
+        Marker::SensorNoReading
+    } else {
+        Marker::Sensor
+    }
+}
+
+/// Width of a sensor's label, px (flagged sensors are labelled in bold).
+pub(crate) fn sensor_label_width(s: &crate::estimate::SensorResult, font_px: f64) -> f64 {
+    if s.flag.is_some() {
+        super::labels::bold_text_width(&s.sensor, font_px)
+    } else {
+        super::labels::text_width(&s.sensor, font_px)
+    }
+}
+
 /// Marker shapes shared by the legend and the plots.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub(crate) enum Marker {

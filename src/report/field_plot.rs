@@ -12,7 +12,7 @@ use super::contour::{contour, length, levels};
 use super::draw::{
     AXIS_PX, Anchor, Area, DrawResult, FAMILY, GREY, Glyph, INK, LEGEND_ROW_H, Marker,
     PLOT_SAFETY_NOTE, TEXT_PX, TITLE_PX, TextOpts, dashed, font, label_box, legend, legend_rows,
-    line, marker, rect, rgb, text,
+    line, marker, rect, rgb, sensor_label_width, sensor_marker, text,
 };
 use super::format::{CaseUnits, fixed, step_decimals, tick};
 use super::labels::{Placer, Rect, around_marker, bold_text_width, text_width};
@@ -178,6 +178,27 @@ fn edge_conditions(r: &EstimateResult, u: &CaseUnits) -> String {
         })
         .collect();
     format!("Edges: {}.", parts.join("  ·  "))
+}
+
+/// A bold label in a box, at the best free place among `cands` (left out when none is free).
+fn boxed_bold_label(
+    root: &Area<'_>,
+    placer: &mut Placer,
+    cands: &[Rect],
+    label: &str,
+) -> DrawResult {
+    if let Some(b) = placer.place_best(cands) {
+        label_box(root, &b, 0.85)?;
+        let (cx, cy) = b.centre();
+        text(
+            root,
+            label,
+            cx,
+            cy,
+            TextOpts::new(TEXT_PX, Anchor::Centre).bold(),
+        )?;
+    }
+    Ok(())
 }
 
 /// Draw `field.svg`.
@@ -498,23 +519,11 @@ fn draw(
         placer.block(Rect::around(x, y, 9.0));
     }
     for &(k, x, y) in &inside {
-        let s = &r.sensors[k];
-        let m = if s.flag.is_some() {
-            Marker::Flagged
-        } else if s.reading.is_none() {
-            Marker::SensorNoReading
-        } else {
-            Marker::Sensor
-        };
-        marker(root, m, x, y, 4.0)?;
+        marker(root, sensor_marker(&r.sensors[k]), x, y, 4.0)?;
     }
     for &(k, x, y) in &inside {
         let s = &r.sensors[k];
-        let w = if s.flag.is_some() {
-            bold_text_width(&s.sensor, TEXT_PX)
-        } else {
-            text_width(&s.sensor, TEXT_PX)
-        };
+        let w = sensor_label_width(s, TEXT_PX);
         let (w, hgt) = (w + 4.0, 16.0);
         if let Some(b) = placer.place_best(&around_marker(x, y, 5.0, w, hgt)) {
             label_box(root, &b, 0.75)?;
@@ -532,17 +541,12 @@ fn draw(
         marker(root, Marker::Hottest, x, y, 6.0)?;
         let label = format!("hottest {}", u.temp_show(h.temperature));
         let (w, hgt) = (bold_text_width(&label, TEXT_PX) + 6.0, 17.0);
-        if let Some(b) = placer.place_best(&around_marker(x, y, 12.0, w, hgt)) {
-            label_box(root, &b, 0.85)?;
-            let (cx, cy) = b.centre();
-            text(
-                root,
-                &label,
-                cx,
-                cy,
-                TextOpts::new(TEXT_PX, Anchor::Centre).bold(),
-            )?;
-        }
+        boxed_bold_label(
+            root,
+            &mut placer,
+            &around_marker(x, y, 12.0, w, hgt),
+            &label,
+        )?;
     }
 
     // Unknown edge labels, inside along the edge.
@@ -563,17 +567,7 @@ fn draw(
                 }
             })
             .collect();
-        if let Some(b) = placer.place_best(&cands) {
-            label_box(root, &b, 0.85)?;
-            let (cx, cy) = b.centre();
-            text(
-                root,
-                &label,
-                cx,
-                cy,
-                TextOpts::new(TEXT_PX, Anchor::Centre).bold(),
-            )?;
-        }
+        boxed_bold_label(root, &mut placer, &cands, &label)?;
     }
 
     // Isotherm labels, on each level's longest line, where there is room.

@@ -6,10 +6,10 @@
 use super::draw::{
     AXIS_PX, Anchor, Area, BAND, DrawResult, ESTIMATE, FAMILY, FOOTER_H, GREY, GRID, Glyph,
     HOTTEST, INK, LEGEND_ROW_H, LIMIT, Marker, PLOT_SAFETY_NOTE, SIMULTANEOUS, TEXT_PX, TITLE_PX,
-    TextOpts, font, legend, legend_rows, line, marker, text,
+    TextOpts, font, legend, legend_rows, line, marker, sensor_label_width, sensor_marker, text,
 };
 use super::format::{CaseUnits, edge_coordinate, fixed, tick};
-use super::labels::{Placer, Rect, around_marker, bold_text_width, text_width};
+use super::labels::{Placer, Rect, around_marker, text_width};
 use super::summary::percent;
 use crate::error::{Error, Result};
 use crate::estimate::{EdgeResult, EstimateResult};
@@ -505,23 +505,11 @@ fn draw_depth_panel(
         line(root, &[(x, ey + 2.0), (x, y)], GRID.stroke_width(1))?;
     }
     for &(k, x, y) in &marker_px {
-        let s = &r.sensors[k];
-        let m = if s.flag.is_some() {
-            Marker::Flagged
-        } else if s.reading.is_none() {
-            Marker::SensorNoReading
-        } else {
-            Marker::Sensor
-        };
-        marker(root, m, x, y, 5.0)?;
+        marker(root, sensor_marker(&r.sensors[k]), x, y, 5.0)?;
     }
     for &(k, x, y) in &marker_px {
         let s = &r.sensors[k];
-        let w = if s.flag.is_some() {
-            bold_text_width(&s.sensor, TEXT_PX)
-        } else {
-            text_width(&s.sensor, TEXT_PX)
-        };
+        let w = sensor_label_width(s, TEXT_PX);
         let h = 16.0;
         let cands = around_marker(x, y, 6.0, w, h);
         if let Some(b) = placer.place_best(&cands) {
