@@ -252,8 +252,8 @@ fn forward_model(case: &Case) -> Result<ForwardModelReport> {
              than about {} {lu} reach it damped more than 100-fold; the series resolves down \
              to {} {lu}",
             num(r.shallowest_depth),
-            num(r.wavelength_damped_100x),
-            num(r.series_resolution),
+            num(round3(r.wavelength_damped_100x)),
+            num(round3(r.series_resolution)),
             lu = u.length.symbol(),
         ));
         reach.push(r);
@@ -605,4 +605,14 @@ fn table(rows: &[Vec<String>]) -> String {
         s.push('\n');
     }
     s
+}
+
+/// `v` rounded to three significant digits: these lengths are estimates of scale, and more
+/// digits would claim a precision they do not have.
+fn round3(v: f64) -> f64 {
+    if v == 0.0 || !v.is_finite() {
+        return v;
+    }
+    let scale = 10f64.powi(2 - v.abs().log10().floor() as i32);
+    (v * scale).round() / scale
 }
