@@ -7,8 +7,8 @@
 //! the plots show a plausible picture.
 
 use edgetherm::estimate::{
-    EdgeResult, EstimateResult, Exceedance, FieldResult, FitSummary, Hottest, Interval,
-    SensorResult, StrengthSummary,
+    DoubtfulSensor, EdgeResult, EstimateResult, Exceedance, FieldResult, FitSummary, Hottest,
+    Interval, SensorResult, StrengthSummary,
 };
 use edgetherm::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Point, Shape};
 use edgetherm::report::{
@@ -185,6 +185,7 @@ fn sensors(
                     "left out of the fit: standardised leave-one-out residual 9.8 exceeds 4"
                         .to_string()
                 }),
+                doubtful: false,
             }
         })
         .collect()
@@ -206,6 +207,7 @@ fn common(
         sensors,
         hottest,
         exceedance: None,
+        doubtful_sensors: Vec::new(),
         strength: StrengthSummary {
             method: "evidence".into(),
             value: 1.234_567e-3,
@@ -504,7 +506,8 @@ fn csv_headers_and_row_counts() {
             "loo_residual",
             "leverage",
             "sigma",
-            "flag"
+            "flag",
+            "note"
         ]
     );
     assert_eq!(sensors.len(), 1 + 10);
@@ -1067,4 +1070,50 @@ fn degenerate_results_still_render() {
             .iter()
             .any(|s| s == "No unknown edge in this result.")
     );
+}
+
+/// A sensor kept under two explanations is said so, in the case's units, in every output a
+/// person or program reads: the text summary, `summary.json`, the `note` column of
+/// `sensors.csv` and a marked row of the HTML table; and it is not counted as flagged.
+#[test]
+fn a_doubtful_sensor_is_reported_everywhere() {
+    let mut r = cold_plate();
+    r.sensors[2].doubtful = true;
+    let id = r.sensors[2].sensor.clone();
+    r.doubtful_sensors.push(DoubtfulSensor {
+        index: 2,
+        sensor: id.clone(),
+        loo_residual: 5.2,
+        fault_probability: 0.9989,
+        edge: Edge::Bottom,
+        position: 0.0938,
+        width: 0.011,
+        peak_temperature: C0 + 67.08,
+        min_gradient: Some(949.0), // K/m = 0.949 °C/mm
+    });
+    let text = text_summary(&r);
+    assert!(text.contains("Kept, doubtful"), "{text}");
+    assert!(text.contains("x = 93.8 mm"), "{text}");
+    assert!(text.contains("67.08 °C"), "{text}");
+    assert!(text.contains("0.949 °C/mm"), "{text}");
+    let json = summary_json(&r);
+    let d = &json["doubtful_sensors"][0];
+    assert_eq!(d["sensor"], Value::String(id.clone()));
+    assert!((num(&d["hot_explanation"]["position"]) - 93.8).abs() < 0.1);
+    assert!((num(&d["hot_explanation"]["peak_temperature"]) - 67.08).abs() < 0.01);
+    assert!((num(&d["hot_explanation"]["min_gradient"]) - 0.949).abs() < 1e-3);
+    assert!(
+        json["flagged_sensors"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .all(|f| f["sensor"] != Value::String(id.clone()))
+    );
+    let rows = csv_rows(&output(&r, "sensors.csv"));
+    let row = rows.iter().find(|s| s[0] == id).unwrap();
+    assert_eq!(row[9], "", "not flagged");
+    assert!(row[10].contains("hot spot"), "{}", row[10]);
+    let html = output(&r, "report.html");
+    assert!(html.contains("class=\"doubtful\""), "no marked row");
+    assert!(html.contains("kept, doubtful"));
 }

@@ -34,6 +34,11 @@ pub struct EstimateArgs {
     /// Keep every sensor: do not leave out sensors that look faulty.
     #[arg(long)]
     pub keep_all: bool,
+    /// Sensors known to be faulty, left out whatever they read (comma-separated ids). By
+    /// default a sensor that stands out is kept when a hot spot under it would explain its
+    /// reading; name it here only when you know it is bad.
+    #[arg(long, value_name = "ID,ID", value_delimiter = ',')]
+    pub exclude: Vec<String>,
     /// Bootstrap noise: `parametric` (Gaussian with the stated sigma) or `residual`
     /// (resampled residuals) [default: parametric when sigma is stated, else residual].
     #[arg(long, value_name = "MODE", value_parser = ["parametric", "residual"])]
@@ -82,6 +87,25 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
         return Err(Error::invalid_field("--replicates", "must be at least 1"));
     }
     let strength = args.strength.as_deref().map(parse_strength).transpose()?;
+    let exclude = args
+        .exclude
+        .iter()
+        .map(|id| {
+            case.sensors
+                .iter()
+                .position(|s| s.id == id.trim())
+                .ok_or_else(|| {
+                    Error::invalid_field(
+                        "--exclude",
+                        format!(
+                            "no sensor {:?} in {}",
+                            id.trim(),
+                            case.files.sensors.display()
+                        ),
+                    )
+                })
+        })
+        .collect::<Result<Vec<usize>>>()?;
     let options = EstimateOptions {
         mode: args.bootstrap.as_deref().map(|m| {
             if m == "residual" {
@@ -100,6 +124,7 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
         replicates: args.replicates,
         seed: args.seed,
         strength,
+        exclude,
     };
 
     let total = options.replicates.unwrap_or(case.uncertainty.replicates) as u64;

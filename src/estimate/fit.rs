@@ -153,7 +153,7 @@ pub fn fit(input: &FitInput, strength: Strength) -> Result<Fit> {
 }
 
 /// The input without row `i`.
-fn without_row(input: &FitInput, i: usize) -> FitInput {
+pub(crate) fn without_row(input: &FitInput, i: usize) -> FitInput {
     let keep: Vec<usize> = (0..input.d.len()).filter(|&k| k != i).collect();
     FitInput {
         a: input.a.select_rows(&keep),

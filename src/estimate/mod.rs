@@ -13,14 +13,15 @@
 //!
 //! Everything is SI inside; [`EstimateResult`] carries the case's units for the report.
 
+pub mod explain;
 pub mod fit;
 pub mod penalty;
 pub mod resolution;
 pub mod result;
 
 pub use result::{
-    EdgeResult, EstimateResult, Exceedance, FieldResult, FitSummary, Hottest, Interval,
-    SensorResult, StrengthSummary,
+    DoubtfulSensor, EdgeResult, EstimateResult, Exceedance, FieldResult, FitSummary, Hottest,
+    Interval, SensorResult, StrengthSummary,
 };
 
 use crate::error::{Error, Result};
@@ -32,7 +33,7 @@ use crate::noise::{SigmaSource, reading_sigmas};
 use crate::uncertainty::{
     BootstrapInput, BootstrapMode, bootstrap, pointwise_band, quantile, simultaneous_band,
 };
-use fit::{FAULT_POSTERIOR, FitInput, loo_residuals};
+use fit::{FAULT_POSTERIOR, FitInput, LooVerdict, loo_residuals};
 use nalgebra::{DMatrix, DVector};
 use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
 
@@ -68,6 +69,9 @@ pub struct EstimateOptions {
     pub seed: Option<u64>,
     /// Override the case's strength rule.
     pub strength: Option<StrengthRule>,
+    /// Sensors the user knows to be faulty (indices into `case.sensors`): left out before
+    /// the fit, whatever their readings.
+    pub exclude: Vec<usize>,
 }
 
 impl Default for EstimateOptions {
@@ -81,6 +85,7 @@ impl Default for EstimateOptions {
             replicates: None,
             seed: None,
             strength: None,
+            exclude: Vec::new(),
         }
     }
 }
@@ -164,56 +169,41 @@ pub fn estimate(
         ..input_for(rows)
     };
 
-    // Fit, then look for suspect sensors and refit without them.
-    let mut flags: Vec<(usize, f64, String)> = Vec::new();
-    let mut loo_of: Vec<Option<f64>> = vec![None; case.sensors.len()];
-    let min_keep = (q_null + 3).max(used.len() - used.len() / 4);
-    // Fault probabilities before anything is left out: a later round may flag only a sensor
-    // that already looked doubtful here (FIRST_ROUND_DOUBT), so that leaving out one faulty
-    // sensor cannot make its neighbour, the only other witness of a real feature, look faulty.
-    let mut first_round: Option<Vec<f64>> = None;
-    loop {
-        let input = input_for(&used);
-        let z = loo_residuals(&input, strength);
-        for (k, &i) in used.iter().enumerate() {
-            loo_of[i] = z[k].map(|v| v.z);
-        }
-        if first_round.is_none() {
-            let mut p0 = vec![0.0; case.sensors.len()];
-            for (k, &i) in used.iter().enumerate() {
-                p0[i] = z[k].map_or(0.0, |v| v.fault_probability);
-            }
-            first_round = Some(p0);
-        }
-        if options.keep_all || used.len() <= min_keep {
-            break;
-        }
-        let p0 = first_round.as_deref().unwrap_or(&[]);
-        let worst = z
-            .iter()
-            .enumerate()
-            .filter_map(|(k, v)| v.map(|v| (k, v)))
-            .filter(|(k, _)| flags.is_empty() || p0[used[*k]] > FIRST_ROUND_DOUBT)
-            .max_by(|a, b| a.1.fault_probability.total_cmp(&b.1.fault_probability));
-        match worst {
-            Some((k, v)) if v.fault_probability > FAULT_POSTERIOR => {
-                let i = used.remove(k);
-                flags.push((
-                    i,
-                    v.z,
-                    format!(
-                        "its reading is {:.1} standard deviations from what the other sensors \
-                         predict; the chance that it is faulty is {:.4} (flagged above {}); \
-                         left out and the case refitted",
-                        v.z.abs(),
-                        v.fault_probability,
-                        FAULT_POSTERIOR
-                    ),
-                ));
-            }
-            _ => break,
+    // Linear maps of the profiles (the hot-feature test needs them before the fit).
+    let n_prof = profile_points(case.fit.terms);
+    let edge_positions = profile_positions(case);
+    let edge_maps: Vec<LinearMap> = edge_positions
+        .iter()
+        .map(|(e, pos)| model.edge_profile_map(*e, pos))
+        .collect();
+    let bank = explain::FeatureBank::new(&edge_positions, &edge_maps, case.fit.terms)?;
+
+    // Sensors the user knows to be bad.
+    let mut flags: Vec<(usize, String)> = Vec::new();
+    for &i in &options.exclude {
+        if let Some(k) = used.iter().position(|&u| u == i) {
+            used.remove(k);
+            flags.push((i, "left out at the user's request".to_string()));
         }
     }
+    if used.len() <= q_null + 1 {
+        return Err(too_few_readings(case, used.len(), q_null));
+    }
+
+    // Fit, then look for suspect sensors and refit without them.
+    let search = fault_search(
+        case,
+        &input_for,
+        &mut used,
+        strength,
+        q_null,
+        options.keep_all,
+        &bank,
+        &edge_maps,
+    )?;
+    flags.extend(search.flags);
+    let doubts = search.doubts;
+    let loo_of = search.loo_of;
     let input = input_for(&used);
     let fit = fit::fit(&input, strength).map_err(|e| e.in_file(&case.files.plate, |_| None))?;
     let c_hat = fit.solution.coefficients.clone();
@@ -222,12 +212,6 @@ pub fn estimate(
 
     // Linear maps of the outputs.
     let shape = *plate.shape();
-    let n_prof = profile_points(case.fit.terms);
-    let edge_positions = profile_positions(case);
-    let edge_maps: Vec<LinearMap> = edge_positions
-        .iter()
-        .map(|(e, pos)| model.edge_profile_map(*e, pos))
-        .collect();
     let prof_matrix = stack(edge_maps.iter().map(|m| &m.matrix));
     let prof_offset: Vec<f64> = edge_maps
         .iter()
@@ -311,7 +295,11 @@ pub fn estimate(
     let (p_lo, p_hi) = pointwise_band(&prof_est, &boot.errors[0], confidence);
     let (s_lo, s_hi) = simultaneous_band(&prof_est, &boot.errors[0], confidence);
     let prof_sd = linear_sd(&prof_matrix, &fit.solution.covariance);
-    let hottest = hottest_point(&edge_positions, &prof_est, &p_lo, &p_hi, &boot.errors[0]);
+    let mut hottest = hottest_point(&edge_positions, &prof_est, &p_lo, &p_hi, &boot.errors[0]);
+    // A sensor kept under two explanations: the hotter one bounds the hottest temperature.
+    for d in &doubts {
+        hottest.temperature_interval[1] = hottest.temperature_interval[1].max(d.peak_temperature);
+    }
     let resolution = resolution::resolution_lengths(
         &model,
         &fit.solution.resolution,
@@ -375,7 +363,9 @@ pub fn estimate(
             limit,
             probability,
             alarm_probability: options.alarm_probability,
-            alarm: probability > options.alarm_probability,
+            // the hotter explanation of a doubtful sensor crossing the limit raises it too
+            alarm: probability > options.alarm_probability
+                || doubts.iter().any(|d| d.peak_temperature > limit),
         }
     });
 
@@ -402,7 +392,8 @@ pub fn estimate(
                 loo_residual: loo_of[i],
                 leverage: leverage_of(i),
                 sigma: reading.map(|_| sigma_of[i] * fit.sigma_scale.unwrap_or(1.0)),
-                flag: flags.iter().find(|f| f.0 == i).map(|f| f.2.clone()),
+                flag: flags.iter().find(|f| f.0 == i).map(|f| f.1.clone()),
+                doubtful: doubts.iter().any(|d| d.index == i),
             })
         })
         .collect::<Result<Vec<_>>>()?;
@@ -444,6 +435,7 @@ pub fn estimate(
         &edges,
         &hottest,
         &flagged,
+        &doubts,
         boot.fallbacks,
     );
     Ok(EstimateResult {
@@ -454,6 +446,7 @@ pub fn estimate(
         sensors,
         hottest,
         exceedance,
+        doubtful_sensors: doubts,
         strength: strength_summary,
         fit: fit_summary,
         confidence,
@@ -462,6 +455,149 @@ pub fn estimate(
         seed,
         cautions,
     })
+}
+
+/// What the search for suspect sensors found.
+struct FaultSearch {
+    /// Sensors left out (index into `case.sensors`) and why.
+    flags: Vec<(usize, String)>,
+    /// Sensors kept although their reading stands out, because a hot feature of a hidden
+    /// edge explains it as well as a fault does.
+    doubts: Vec<DoubtfulSensor>,
+    /// Standardised leave-one-out residual of every sensor with a reading.
+    loo_of: Vec<Option<f64>>,
+}
+
+/// The search for suspect sensors (module [`fit`] for the fault model, [`explain`] for the
+/// hot-feature test): each round computes every reading's leave-one-out verdict, takes the
+/// candidates whose fault probability exceeds [`FAULT_POSTERIOR`] from the most to the least
+/// likely, and leaves out the first one that no hot feature of a hidden edge explains (a
+/// reading lower than predicted is always a candidate: leaving it out is the hotter
+/// explanation). A candidate that a hot feature explains is kept and reported as doubtful.
+/// The case is refitted and the search repeated, at most until a quarter of the sensors are
+/// out. `used` is updated in place.
+#[allow(clippy::too_many_arguments)]
+fn fault_search(
+    case: &Case,
+    input_for: &dyn Fn(&[usize]) -> FitInput,
+    used: &mut Vec<usize>,
+    strength: Strength,
+    q_null: usize,
+    keep_all: bool,
+    bank: &explain::FeatureBank,
+    edge_maps: &[LinearMap],
+) -> Result<FaultSearch> {
+    let mut flags: Vec<(usize, String)> = Vec::new();
+    let mut doubts: Vec<DoubtfulSensor> = Vec::new();
+    let mut loo_of: Vec<Option<f64>> = vec![None; case.sensors.len()];
+    let min_keep = (q_null + 3).max(used.len() - used.len() / 4);
+    // Fault probabilities before anything is left out: a later round may flag only a sensor
+    // that already looked doubtful here (FIRST_ROUND_DOUBT), so that leaving out one faulty
+    // sensor cannot make its neighbour, the only other witness of a real feature, look faulty.
+    let mut first_round: Option<Vec<f64>> = None;
+    loop {
+        let input = input_for(used);
+        let z = loo_residuals(&input, strength);
+        for (k, &i) in used.iter().enumerate() {
+            loo_of[i] = z[k].map(|v| v.z);
+        }
+        if first_round.is_none() {
+            let mut p0 = vec![0.0; case.sensors.len()];
+            for (k, &i) in used.iter().enumerate() {
+                p0[i] = z[k].map_or(0.0, |v| v.fault_probability);
+            }
+            first_round = Some(p0);
+        }
+        doubts.clear();
+        if keep_all || used.len() <= min_keep {
+            break;
+        }
+        let p0 = first_round.as_deref().unwrap_or(&[]);
+        let mut candidates: Vec<(usize, LooVerdict)> = z
+            .iter()
+            .enumerate()
+            .filter_map(|(k, v)| v.map(|v| (k, v)))
+            .filter(|(k, v)| {
+                v.fault_probability > FAULT_POSTERIOR
+                    && (flags.is_empty() || p0[used[*k]] > FIRST_ROUND_DOUBT)
+            })
+            .collect();
+        candidates.sort_by(|a, b| b.1.fault_probability.total_cmp(&a.1.fault_probability));
+        let mut removed = None;
+        for (k, v) in candidates {
+            let hot = if v.z > 0.0 {
+                explain::hot_explanation(bank, edge_maps, &input, k, strength, None)?
+            } else {
+                None
+            };
+            match hot {
+                Some(h) if h.plausible => doubts.push(doubtful_sensor(case, used[k], &v, &h)),
+                _ => {
+                    removed = Some((k, fault_reason(&v, hot.as_ref())));
+                    break;
+                }
+            }
+        }
+        match removed {
+            Some((k, reason)) => {
+                let i = used.remove(k);
+                flags.push((i, reason));
+            }
+            None => break,
+        }
+    }
+    Ok(FaultSearch {
+        flags,
+        doubts,
+        loo_of,
+    })
+}
+
+/// A sensor kept under two explanations.
+fn doubtful_sensor(
+    case: &Case,
+    i: usize,
+    v: &LooVerdict,
+    h: &explain::HotVerdict,
+) -> DoubtfulSensor {
+    DoubtfulSensor {
+        index: i,
+        sensor: case.sensors[i].id.clone(),
+        loo_residual: v.z,
+        fault_probability: v.fault_probability,
+        edge: h.edge,
+        position: h.position_m,
+        width: h.fwhm_m,
+        peak_temperature: h.peak_k,
+        min_gradient: h.min_slope_k_per_m,
+    }
+}
+
+/// Why a sensor was left out, for `sensors.csv` and the summary.
+fn fault_reason(v: &LooVerdict, hot: Option<&explain::HotVerdict>) -> String {
+    let mut reason = format!(
+        "its reading is {:.1} standard deviations {} what the other sensors predict; the \
+         chance that it is faulty is {:.4} (flagged above {FAULT_POSTERIOR})",
+        v.z.abs(),
+        if v.z > 0.0 { "above" } else { "below" },
+        v.fault_probability,
+    );
+    match hot {
+        Some(h) => reason.push_str(&format!(
+            "; no hot feature of the {} edge explains it: one strong enough would raise the \
+             neighbouring readings more than they show (misfit {} against {} allowed)",
+            h.edge,
+            h.statistic.map_or("n/a".to_string(), |s| format!("{s:.1}")),
+            explain::HOT_REFUTE_CHI2
+        )),
+        None if v.z < 0.0 => reason.push_str(
+            "; a reading lower than predicted is left out because leaving it out is the \
+             hotter explanation",
+        ),
+        None => {}
+    }
+    reason.push_str("; left out and the case refitted");
+    reason
 }
 
 /// The forward model an estimate fits: the case's plate with `case.fit.terms` series terms per
@@ -758,6 +894,7 @@ fn hottest_point(
     }
 }
 
+#[allow(clippy::too_many_arguments)]
 fn cautions(
     case: &Case,
     summary: &FitSummary,
@@ -765,6 +902,7 @@ fn cautions(
     edges: &[EdgeResult],
     hottest: &Hottest,
     flagged: &[usize],
+    doubts: &[DoubtfulSensor],
     fallbacks: usize,
 ) -> Vec<String> {
     let u = &case.units;
@@ -815,6 +953,13 @@ fn cautions(
         out.push(format!(
             "Sensor {} was left out as suspect (see sensors.csv).",
             case.sensors[i].id
+        ));
+    }
+    for d in doubts {
+        out.push(format!(
+            "Sensor {} stands out from its neighbours and was kept: a hot spot under it \
+             explains its reading as well as a fault does (see sensors.csv and the summary).",
+            d.sensor
         ));
     }
     if hottest.main_peak_share < 0.8 {

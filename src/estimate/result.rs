@@ -84,6 +84,34 @@ pub struct SensorResult {
     pub sigma: Option<f64>,
     /// Why the sensor was left out of the fit, if it was.
     pub flag: Option<String>,
+    /// Whether the sensor was kept although its reading stands out (see
+    /// [`EstimateResult::doubtful_sensors`]).
+    pub doubtful: bool,
+}
+
+/// A sensor kept although its reading stands out: a hot feature of a hidden edge explains
+/// it as well as a fault does (`docs/method.md`, "Sensor decisions").
+#[derive(Debug, Clone, Serialize)]
+pub struct DoubtfulSensor {
+    /// Index of the sensor in the case.
+    #[serde(skip)]
+    pub index: usize,
+    /// Sensor id.
+    pub sensor: String,
+    /// Standardised leave-one-out residual.
+    pub loo_residual: f64,
+    /// Fault probability from the residual alone.
+    pub fault_probability: f64,
+    /// The edge of the hot feature that explains the reading.
+    pub edge: Edge,
+    /// Its centre along the edge, metres.
+    pub position: f64,
+    /// Its full width at half maximum, metres.
+    pub width: f64,
+    /// The edge temperature at its centre under the hot explanation, kelvin.
+    pub peak_temperature: f64,
+    /// The gradient along the edge (K/m) below which the hot explanation is ruled out.
+    pub min_gradient: Option<f64>,
 }
 
 /// The hottest point on the unknown edges.
@@ -171,6 +199,8 @@ pub struct EstimateResult {
     pub hottest: Hottest,
     /// Exceedance of a limit, when one was given.
     pub exceedance: Option<Exceedance>,
+    /// Sensors kept under two explanations (hot feature or fault).
+    pub doubtful_sensors: Vec<DoubtfulSensor>,
     /// The regularisation strength.
     pub strength: StrengthSummary,
     /// Goodness of fit.

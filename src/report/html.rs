@@ -5,7 +5,7 @@
 //! escaped.
 
 use super::format::{CaseUnits, edge_coordinate, escape_html as esc, fixed, significant_text};
-use super::summary::{SAFETY_CAUTION, cautions, edge_maximum, flagged, percent};
+use super::summary::{SAFETY_CAUTION, cautions, doubt_message, edge_maximum, flagged, percent};
 use super::tables::mean_half_width;
 use crate::estimate::EstimateResult;
 use crate::geometry::{Edge, EdgeCondition, Shape};
@@ -40,6 +40,8 @@ td.text, th.text { text-align: left; white-space: normal; }
 table.kv { width: auto; min-width: 50%; }
 tr.flagged td { background: #fde3dc; font-weight: 700; }
 tr.flagged td:first-child { border-left: 5px solid #1a1a1a; }
+tr.doubtful td { background: #fff4d6; }
+tr.doubtful td:first-child { border-left: 5px dashed #1a1a1a; }
 dl.case { display: grid; grid-template-columns: max-content 1fr; gap: 3px 16px; }
 dl.case dt { font-weight: 600; }
 dl.case dd { margin: 0; }
@@ -301,13 +303,22 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
     let n_flagged = flagged(r).len();
     let _ = writeln!(
         o,
-        "<h2>Sensors</h2>\n<p>{} sensors; {} flagged{}.</p>",
+        "<h2>Sensors</h2>\n<p>{} sensors; {} flagged{}{}.</p>",
         r.sensors.len(),
         n_flagged,
         if n_flagged > 0 {
             " (highlighted rows)"
         } else {
             ""
+        },
+        match r.doubtful_sensors.len() {
+            0 => String::new(),
+            n => format!(
+                "; {n} kept although {} out (dashed rows): a hot spot under {} \
+                 explains its reading as well as a fault does",
+                if n == 1 { "it stands" } else { "they stand" },
+                if n == 1 { "it" } else { "each" },
+            ),
         }
     );
     o.push_str("<table>\n");
@@ -345,13 +356,26 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
                 s.loo_residual.map_or_else(dash, |v| fixed(v, 2)),
                 s.leverage.map_or_else(dash, |v| fixed(v, 3)),
                 s.sigma.map_or_else(dash, |v| u.dtemp_num(v)),
-                s.flag
-                    .as_deref()
-                    .map_or(String::new(), |f| format!("flagged: {}", esc(f))),
+                match (
+                    &s.flag,
+                    r.doubtful_sensors.iter().find(|d| d.sensor == s.sensor),
+                ) {
+                    (Some(f), _) => format!("flagged: {}", esc(f)),
+                    (None, Some(d)) if s.doubtful => {
+                        format!("kept, doubtful: {}", esc(&doubt_message(r, d)))
+                    }
+                    _ => String::new(),
+                },
             ],
             &[0, 9],
             false,
-            s.flag.is_some().then_some("flagged"),
+            if s.flag.is_some() {
+                Some("flagged")
+            } else if s.doubtful {
+                Some("doubtful")
+            } else {
+                None
+            },
         );
     }
     o.push_str("</table>\n");

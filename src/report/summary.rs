@@ -6,7 +6,7 @@ use super::format::{
     significant, significant_text,
 };
 use super::tables::mean_half_width;
-use crate::estimate::{EdgeResult, EstimateResult};
+use crate::estimate::{DoubtfulSensor, EdgeResult, EstimateResult};
 use serde_json::{Map, Value, json};
 use std::fmt::Write as _;
 
@@ -43,6 +43,37 @@ pub(crate) fn flagged(r: &EstimateResult) -> Vec<(usize, &str)> {
         .enumerate()
         .filter_map(|(k, s)| s.flag.as_deref().map(|f| (k, f)))
         .collect()
+}
+
+/// What a person reads about a sensor kept under two explanations (a hot spot under it, or
+/// a fault).
+pub(crate) fn doubt_message(r: &EstimateResult, d: &DoubtfulSensor) -> String {
+    let u = CaseUnits::new(r.units);
+    let ls = u.len_symbol();
+    let ts = u.temp_symbol();
+    let mut m = format!(
+        "{} reads {} standard deviations above what the other sensors predict, which alone \
+         would call it faulty (probability {}). A hot spot on the {} edge near {} = {}, about \
+         {} wide and reaching about {}, explains it as well: it is kept, so the hotter \
+         explanation drives the hottest point and the verdict. Check the sensor.",
+        d.sensor,
+        fixed(d.loo_residual, 1),
+        fixed(d.fault_probability, 4),
+        d.edge,
+        edge_coordinate(d.edge),
+        u.len_show(d.position),
+        u.len_show(d.width),
+        u.temp_show(d.peak_temperature),
+    );
+    if let Some(g) = d.min_gradient {
+        let _ = write!(
+            m,
+            " The hot spot is ruled out only if the edge cannot change by more than {} {ts}/{ls} \
+             along it (a stated gradient limit), or if the sensor is known to be faulty.",
+            significant_text(u.dtemp(g) / u.len(1.0), 3),
+        );
+    }
+    m
 }
 
 /// The confidence as a percentage for a reader (`95 %`, `99.5 %`).
@@ -183,6 +214,28 @@ pub fn summary_json(r: &EstimateResult) -> Value {
         })
         .collect();
     out.insert("flagged_sensors".into(), Value::Array(flagged_sensors));
+    let doubtful: Vec<Value> = r
+        .doubtful_sensors
+        .iter()
+        .map(|d| {
+            json!({
+                "sensor": d.sensor,
+                "loo_residual": ratio(d.loo_residual),
+                "fault_probability": ratio(d.fault_probability),
+                "hot_explanation": {
+                    "edge": d.edge.name(),
+                    "position": u.len_json(d.position),
+                    "width": u.len_json(d.width),
+                    "peak_temperature": u.temp_json(d.peak_temperature),
+                    "min_gradient": d.min_gradient.map_or(Value::Null, |g| {
+                        significant(u.dtemp(g) / u.len(1.0), 3)
+                    }),
+                },
+                "message": doubt_message(r, d),
+            })
+        })
+        .collect();
+    out.insert("doubtful_sensors".into(), Value::Array(doubtful));
     out.insert("sensor_count".into(), json!(r.sensors.len()));
     out.insert(
         "units".into(),
@@ -302,6 +355,11 @@ pub fn text_summary(r: &EstimateResult) -> String {
             let label = if n == 0 { "Flagged sensors" } else { "" };
             line(&mut out, label, &format!("{}{loo}: {reason}", s.sensor));
         }
+    }
+
+    for (n, d) in r.doubtful_sensors.iter().enumerate() {
+        let label = if n == 0 { "Kept, doubtful" } else { "" };
+        line(&mut out, label, &doubt_message(r, d));
     }
 
     for (n, e) in r.edges.iter().enumerate() {

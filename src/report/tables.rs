@@ -23,7 +23,7 @@ pub(crate) const PROFILE_HEADER: [&str; 9] = [
 pub(crate) const FIELD_HEADER: [&str; 5] = ["x", "y", "estimate", "lower", "upper"];
 
 /// Header of `sensors.csv`.
-pub(crate) const SENSORS_HEADER: [&str; 10] = [
+pub(crate) const SENSORS_HEADER: [&str; 11] = [
     "sensor",
     "x",
     "y",
@@ -34,6 +34,7 @@ pub(crate) const SENSORS_HEADER: [&str; 10] = [
     "leverage",
     "sigma",
     "flag",
+    "note",
 ];
 
 fn csv_error(e: impl std::fmt::Display) -> Error {
@@ -110,6 +111,10 @@ pub(crate) fn sensors_csv(r: &EstimateResult) -> Result<Vec<u8>> {
             opt_fixed(s.leverage, RATIO_FILE_DECIMALS),
             s.sigma.map_or_else(String::new, |v| u.dtemp_file(v)),
             s.flag.clone().unwrap_or_default(),
+            r.doubtful_sensors
+                .iter()
+                .find(|d| d.sensor == s.sensor && s.doubtful)
+                .map_or_else(String::new, |d| super::summary::doubt_message(r, d)),
         ])
         .map_err(csv_error)?;
     }
