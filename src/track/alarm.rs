@@ -3,6 +3,13 @@
 //! fallen back to `P` or below (`--clear N`); rows that could not be fitted neither extend
 //! nor clear an episode. Each episode keeps its peak: the row with the highest hottest
 //! temperature, with its interval and where on the edge it was.
+//!
+//! Leaving a sensor out never ends an episode by itself: while a sensor that was in use when
+//! the episode began is left out by the health checks (or gives no reading), a row at or
+//! below `P` holds the episode open instead of counting toward its end. A sensor that fails
+//! during an overheat is as likely to be the witness of the hot spot as a bystander, and
+//! "the estimate cooled because its hottest witness went silent" is not a reason to stand
+//! down.
 
 use super::engine::RowFit;
 use crate::geometry::Edge;
@@ -30,6 +37,9 @@ pub struct Episode {
     pub peak_position: f64,
     /// The highest exceedance probability in the episode.
     pub max_probability: f64,
+    /// Rows at or below `P` that held the episode open because a sensor in use at its start
+    /// was left out.
+    pub held_rows: u64,
 }
 
 /// The alarm state machine.
@@ -59,8 +69,9 @@ impl AlarmTracker {
         }
     }
 
-    /// Update with a fitted row.
-    pub fn update(&mut self, time: &str, line: u64, fit: &RowFit) {
+    /// Update with a fitted row. `hold`: a sensor in use when the open episode began is left
+    /// out on this row (module doc).
+    pub fn update(&mut self, time: &str, line: u64, fit: &RowFit, hold: bool) {
         let Some(p) = fit.exceedance else { return };
         let above = p > self.probability;
         match &mut self.current {
@@ -76,6 +87,7 @@ impl AlarmTracker {
                     peak_edge: fit.edge,
                     peak_position: fit.position,
                     max_probability: p,
+                    held_rows: 0,
                 });
                 self.since_start = 1;
                 self.below = 0;
@@ -92,9 +104,10 @@ impl AlarmTracker {
                     ep.peak_position = fit.position;
                 }
                 ep.max_probability = ep.max_probability.max(p);
-                if above {
+                if above || hold {
                     self.below = 0;
                     ep.rows = self.since_start;
+                    ep.held_rows += u64::from(!above);
                     self.last_above.clear();
                     self.last_above.push_str(time);
                 } else {
@@ -107,6 +120,11 @@ impl AlarmTracker {
                 }
             }
         }
+    }
+
+    /// Whether an episode opened on the last update.
+    pub fn just_opened(&self) -> bool {
+        self.current.is_some() && self.since_start == 1
     }
 
     /// Whether an episode is open.
@@ -124,5 +142,39 @@ impl AlarmTracker {
         let mut v = self.closed.clone();
         v.extend(self.current.clone());
         v
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn row(p: f64) -> RowFit {
+        RowFit {
+            exceedance: Some(p),
+            temperature: 300.0,
+            ..RowFit::default()
+        }
+    }
+
+    /// Rows at or below P close an episode after `clear` of them, unless a sensor in use at
+    /// its start is left out: then they hold it open and are counted (module doc).
+    #[test]
+    fn a_left_out_sensor_holds_the_episode_open() {
+        let mut a = AlarmTracker::new(0.05, 3);
+        a.update("t0", 1, &row(0.9), false);
+        assert!(a.just_opened());
+        for k in 0..10 {
+            a.update(&format!("h{k}"), 2 + k, &row(0.0), true);
+            assert!(a.in_alarm(), "held row {k} closed the episode");
+        }
+        assert_eq!(a.current.as_ref().map(|e| e.held_rows), Some(10));
+        for k in 0..3 {
+            a.update(&format!("c{k}"), 20 + k, &row(0.0), false);
+        }
+        assert!(!a.in_alarm());
+        let ep = &a.episodes_with_open()[0];
+        assert_eq!(ep.end.as_deref(), Some("h9"), "ends at the last held row");
+        assert_eq!(ep.held_rows, 10);
     }
 }

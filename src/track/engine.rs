@@ -230,6 +230,10 @@ pub struct RowEstimator {
     points: Vec<Point>,
     sensor_map: LinearMap,
     edge_positions: Vec<(Edge, Vec<f64>)>,
+    /// Profile maps of the unknown edges, and the bank of hot features built on them (the
+    /// physics check before a sensor is left out, [`crate::estimate::explain`]).
+    edge_maps: Vec<LinearMap>,
+    bank: crate::estimate::explain::FeatureBank,
     n_fine: usize,
     prof_matrix: DMatrix<f64>,
     prof_offset: Vec<f64>,
@@ -303,6 +307,8 @@ impl RowEstimator {
             .collect();
         let prof_matrix = stack(maps.iter().map(|m| &m.matrix));
         let prof_offset: Vec<f64> = maps.iter().flat_map(|m| m.offset.iter().copied()).collect();
+        let bank =
+            crate::estimate::explain::FeatureBank::new(&edge_positions, &maps, case.fit.terms)?;
         let stride = stride.max(1);
         let mut scan_index = Vec::new();
         for k in 0..edge_positions.len() {
@@ -338,6 +344,8 @@ impl RowEstimator {
             points,
             sensor_map,
             edge_positions,
+            edge_maps: maps,
+            bank,
             n_fine,
             prof_matrix,
             prof_offset,
@@ -981,6 +989,43 @@ impl RowEstimator {
         order: usize,
         strength: Strength,
     ) -> Option<crate::estimate::fit::LooVerdict> {
+        let (input, k) = self.row_input(readings, used, i, order)?;
+        crate::estimate::fit::loo_residuals(&input, strength)[k]
+    }
+
+    /// Whether a hot feature of a hidden edge explains sensor `i`'s reading on this row
+    /// together with the others ([`crate::estimate::explain::hot_explanation`]), with the
+    /// same inputs as [`Self::loo_verdict`]. `None` when the reading is not above what the
+    /// others predict, or the test cannot be made.
+    pub fn hot_verdict(
+        &self,
+        readings: &[Option<f64>],
+        used: &[usize],
+        i: usize,
+        order: usize,
+        strength: Strength,
+    ) -> Option<crate::estimate::explain::HotVerdict> {
+        let (input, k) = self.row_input(readings, used, i, order)?;
+        crate::estimate::explain::hot_explanation(
+            &self.bank,
+            &self.edge_maps,
+            &input,
+            k,
+            strength,
+            None,
+        )
+        .ok()
+        .flatten()
+    }
+
+    /// The fit input of the sensors `used` plus `i` on this row, and `i`'s row in it.
+    fn row_input(
+        &self,
+        readings: &[Option<f64>],
+        used: &[usize],
+        i: usize,
+        order: usize,
+    ) -> Option<(crate::estimate::fit::FitInput, usize)> {
         let mut rows: Vec<usize> = used.to_vec();
         if !rows.contains(&i) {
             rows.push(i);
@@ -999,7 +1044,7 @@ impl RowEstimator {
             sigma_stated: self.stated,
             penalty: self.penalties[order].clone(),
         };
-        crate::estimate::fit::loo_residuals(&input, strength)[k]
+        Some((input, k))
     }
 
     /// The smoothing the case asks for (`None`: auto).

@@ -140,6 +140,8 @@ pub struct Tracker {
     series: TrackSeries,
     used: Vec<usize>,
     left_out: Vec<(usize, health::Problem)>,
+    /// The sensors in use when the open alarm episode began (ascending).
+    episode_sensors: Vec<usize>,
     missing: Vec<usize>,
     fit: RowFit,
     /// Rows read, fitted, skipped.
@@ -207,6 +209,7 @@ impl Tracker {
             mode,
             used: Vec::new(),
             left_out: Vec::new(),
+            episode_sensors: Vec::new(),
             missing: Vec::new(),
             fit: RowFit::default(),
             counts: Counts::default(),
@@ -372,9 +375,19 @@ impl Tracker {
                 self.counts.refitted += u64::from(self.fit.refitted);
                 let rule = strength_of(self.options.strength.unwrap_or(self.case.fit.strength));
                 let (est, used, order) = (&self.estimator, &self.used, self.fit.order);
+                // estimate's fault model, then the physics: a reading above the others'
+                // prediction that a hot feature of a hidden edge explains is not a fault,
+                // and counts as agreeing with the others (0, 0)
                 let mut confirm = |i: usize| {
-                    est.loo_verdict(&row.values, used, i, order, rule)
-                        .map(|v| (v.z, v.fault_probability))
+                    let v = est.loo_verdict(&row.values, used, i, order, rule)?;
+                    if v.z > 0.0
+                        && est
+                            .hot_verdict(&row.values, used, i, order, rule)
+                            .is_some_and(|h| h.plausible)
+                    {
+                        return Some((0.0, 0.0));
+                    }
+                    Some((v.z, v.fault_probability))
                 };
                 self.health.after_fit(
                     &row.time_text,
@@ -382,7 +395,17 @@ impl Tracker {
                     &self.fit.diagnostics,
                     &mut confirm,
                 );
-                self.alarms.update(&row.time_text, row.line, &self.fit);
+                let hold = self.alarms.in_alarm()
+                    && self
+                        .episode_sensors
+                        .iter()
+                        .any(|i| self.used.binary_search(i).is_err());
+                self.alarms
+                    .update(&row.time_text, row.line, &self.fit, hold);
+                if self.alarms.just_opened() {
+                    self.episode_sensors.clear();
+                    self.episode_sensors.extend_from_slice(&self.used);
+                }
                 if self
                     .hottest
                     .as_ref()
@@ -390,12 +413,21 @@ impl Tracker {
                 {
                     self.hottest = Some((row.time_text.clone(), self.fit.clone()));
                 }
-                self.series
-                    .push(row.time_s, Some(&self.fit), self.alarms.in_alarm());
+                self.series.push(
+                    row.time_s,
+                    Some(&self.fit),
+                    self.alarms.in_alarm(),
+                    !self.left_out.is_empty(),
+                );
             }
             RowStatus::Skipped(_) => {
                 self.counts.skipped += 1;
-                self.series.push(row.time_s, None, self.alarms.in_alarm());
+                self.series.push(
+                    row.time_s,
+                    None,
+                    self.alarms.in_alarm(),
+                    !self.left_out.is_empty(),
+                );
             }
         }
         sink(&RowRecord {

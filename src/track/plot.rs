@@ -30,6 +30,8 @@ const POS_PANEL: (f64, f64) = (500.0, 680.0);
 const ALARM_SHADE: RGBColor = RGBColor(0xf6, 0xd5, 0xd0);
 /// The range of the hottest temperature within a bin (drawn over the band).
 const RANGE: RGBColor = RGBColor(0xa3, 0xb7, 0xd2);
+/// Rows with a sensor left out (dark, so it stays apart from the shading in greyscale).
+const LEFT_OUT: RGBColor = RGBColor(0x3a, 0x2a, 0x5c);
 
 /// Render `track.svg`.
 ///
@@ -136,6 +138,12 @@ fn draw(root: &Area<'_>, case: &Case, s: &TrackSummary, bins: &[Bin]) -> DrawRes
             "alarm (paler: fewer of a point's rows)".to_string(),
         ));
     }
+    if bins.iter().any(|b| b.left_out_rows > 0) {
+        items.push((
+            Glyph::Swatch(LEFT_OUT),
+            "a sensor left out (ticks along the panel's foot)".to_string(),
+        ));
+    }
     legend(root, &items, 16.0, 68.0, f64::from(WIDTH) - 32.0)?;
 
     let x0 = LEFT;
@@ -169,6 +177,11 @@ fn draw(root: &Area<'_>, case: &Case, s: &TrackSummary, bins: &[Bin]) -> DrawRes
     for &(a, c, share) in &stretches {
         let (a, c) = (xmap(a), xmap(c).max(xmap(a) + 1.0));
         rect(root, a, ty0, c, ty1, ALARM_SHADE.mix(share).filled())?;
+    }
+    // rows with a sensor left out: a dark strip along the foot of the panel
+    for b in bins.iter().filter(|b| b.left_out_rows > 0) {
+        let (a, c) = (xmap(b.t0), xmap(b.t1).max(xmap(b.t0) + 1.5));
+        rect(root, a, ty1 - 7.0, c, ty1, LEFT_OUT.filled())?;
     }
     let (tt, tstep) = ticks(lo, hi, 6.0);
     for &v in &tt {

@@ -150,12 +150,12 @@ pub fn alarms_csv(case: &Case, s: &TrackSummary) -> Vec<u8> {
     let u = CaseUnits::new(case.units);
     let mut out = String::from(
         "episode,start,end,rows,peak_time,peak_temperature,peak_lower,peak_upper,edge,\
-         position,max_probability,limit\n",
+         position,max_probability,limit,held_rows\n",
     );
     for (k, e) in s.episodes.iter().enumerate() {
         let _ = writeln!(
             out,
-            "{},{},{},{},{},{},{},{},{},{},{},{}",
+            "{},{},{},{},{},{},{},{},{},{},{},{},{}",
             k + 1,
             csv_cell(&e.start),
             csv_cell(e.end.as_deref().unwrap_or("ongoing")),
@@ -168,6 +168,7 @@ pub fn alarms_csv(case: &Case, s: &TrackSummary) -> Vec<u8> {
             u.len_file(e.peak_position),
             fixed(e.max_probability, 4),
             s.limit.map_or(String::new(), |l| u.temp_file(l)),
+            e.held_rows,
         );
     }
     out.into_bytes()

@@ -41,6 +41,8 @@ pub struct Bin {
     pub alarm: bool,
     /// Rows of the bin in alarm.
     pub alarm_rows: u64,
+    /// Rows of the bin with at least one sensor left out by the health checks.
+    pub left_out_rows: u64,
     /// Highest exceedance probability.
     pub prob_max: f64,
 }
@@ -63,6 +65,7 @@ impl Bin {
             edge: None,
             alarm: false,
             alarm_rows: 0,
+            left_out_rows: 0,
             prob_max: 0.0,
         }
     }
@@ -82,6 +85,7 @@ impl Bin {
         self.edge = o.edge.or(self.edge);
         self.alarm |= o.alarm;
         self.alarm_rows += o.alarm_rows;
+        self.left_out_rows += o.left_out_rows;
         self.prob_max = self.prob_max.max(o.prob_max);
     }
 
@@ -118,10 +122,11 @@ impl TrackSeries {
         }
     }
 
-    /// Add a row (fitted or not).
-    pub fn push(&mut self, t: f64, fit: Option<&RowFit>, alarm: bool) {
+    /// Add a row (fitted or not); `left_out`: a sensor with a reading was left out of it.
+    pub fn push(&mut self, t: f64, fit: Option<&RowFit>, alarm: bool, left_out: bool) {
         let b = self.pending.get_or_insert_with(|| Bin::empty(t));
         b.t1 = t;
+        b.left_out_rows += u64::from(left_out);
         b.alarm |= alarm;
         b.alarm_rows += u64::from(alarm);
         match fit {
@@ -186,7 +191,7 @@ mod tests {
             ..RowFit::default()
         };
         for i in 0..1005 {
-            s.push(i as f64, (i % 7 != 0).then_some(&f), false);
+            s.push(i as f64, (i % 7 != 0).then_some(&f), false, false);
         }
         let bins = s.bins();
         assert!(bins.len() <= 11);
