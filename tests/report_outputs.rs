@@ -132,6 +132,8 @@ fn edge_result(edge: Edge, len: f64, f: &dyn Fn(f64) -> f64, peak: f64, heat: bo
         positions,
         estimate,
         resolution_length: 0.018,
+        resolution_worst_position: 0.25 * len,
+        resolution_at_hottest: 0.012,
         heat_flow: heat.then_some(Interval {
             value: 412.5,
             lower: 380.3,
@@ -946,7 +948,8 @@ fn text_summary_key_lines() {
         "                 bottom edge, x = 71.2 mm   95 % interval [66.0, 76.4] mm",
         "Flagged sensors  TC07 (standardised LOO residual 9.80): left out of the fit: \
          standardised leave-one-out residual 9.8 exceeds 4",
-        "Resolution       bottom edge 18.0 mm (narrower features are smoothed away)",
+        "Resolution       bottom edge 18.0 mm, the worst along it (at x = 45.0 mm); 12.0 mm at \
+         the hottest point; narrower features are smoothed away",
         "Fit              chi-square 7.90 on 3.7 dof, p = 0.21",
         "                 9 readings of 10 sensors, sigma 0.15 °C (stated)",
         "Strength         0.00123 by evidence, curvature smoothing (chosen by evidence), 6.3 effective parameters",

@@ -37,7 +37,7 @@ pub use search::{Goal, SearchOutcome};
 
 use crate::error::{Error, Result};
 use crate::estimate::SAFETY_CAUTION;
-use crate::estimate::resolution::resolution_length_at;
+use crate::estimate::resolution::{resolution_length_at, worst_resolution};
 use crate::forward::{ForwardModel, LinearMap, SeriesOptions};
 use crate::geometry::{Edge, Plate, Point};
 use crate::io::case::{CandidateSource, Case, Sensor};
@@ -156,6 +156,10 @@ pub struct EdgeScore {
     pub resolution: Vec<(f64, f64)>,
     /// Median of those resolution lengths, metres.
     pub resolution_median: f64,
+    /// The largest resolution length along the edge and where it occurs, `(position,
+    /// length)`, metres: the same quantity `estimate` reports as the edge's resolution length
+    /// ([`crate::estimate::resolution::worst_resolution`]).
+    pub resolution_worst: (f64, f64),
 }
 
 /// How good a layout is.
@@ -528,6 +532,7 @@ impl DesignSpace {
             let mut lens: Vec<f64> = res.iter().map(|r| r.1).collect();
             lens.sort_by(f64::total_cmp);
             let resolution_median = lens[lens.len() / 2];
+            let resolution_worst = worst_resolution(&self.model, &resolution, *edge, pos, map);
             let rms_sd = (sd.iter().map(|s| s * s).sum::<f64>() / n as f64).sqrt();
             let max_sd = sd.iter().copied().fold(0.0, f64::max);
             edges.push(EdgeScore {
@@ -539,6 +544,7 @@ impl DesignSpace {
                 max_sd,
                 resolution: res,
                 resolution_median,
+                resolution_worst,
             });
         }
         let condition_number = if h.nrows() == 0 {

@@ -50,12 +50,14 @@ fn score_json(r: &DesignResult, s: &LayoutScore) -> Value {
         "worst_sd": u.dtemp_json(s.worst_sd),
         "worst_at": {"edge": s.worst_at.0, "position": u.len_json(s.worst_at.1)},
         "condition_number": s.condition_number.map_or(Value::Null, |c| significant(c, 4)),
-        "resolution_length": s.edges.iter().map(|e| (e.edge.name().to_string(), u.len_json(e.resolution_median))).collect::<serde_json::Map<_, _>>(),
+        "resolution_length": s.edges.iter().map(|e| (e.edge.name().to_string(), u.len_json(e.resolution_worst.1))).collect::<serde_json::Map<_, _>>(),
         "edges": s.edges.iter().map(|e| json!({
             "edge": e.edge,
             "rms_sd": u.dtemp_json(e.rms_sd),
             "max_sd": u.dtemp_json(e.max_sd),
             "resolution_length_median": u.len_json(e.resolution_median),
+            "resolution_length_worst": u.len_json(e.resolution_worst.1),
+            "resolution_worst_position": u.len_json(e.resolution_worst.0),
             "resolution_length": e.resolution.iter().map(|(p, l)| json!({"position": u.len_json(*p), "length": u.len_json(*l)})).collect::<Vec<_>>(),
             "profile": e.positions.iter().enumerate().step_by(4).map(|(k, p)| json!({
                 "position": u.len_json(*p),
@@ -227,16 +229,15 @@ pub fn design_text(r: &DesignResult) -> String {
                 u.dtemp_show(z * e.max_sd),
                 u.dtemp_show(z * prior_rms),
             );
-            let lens: Vec<f64> = e.resolution.iter().map(|r| r.1).collect();
-            let lo = lens.iter().copied().fold(f64::INFINITY, f64::min);
-            let hi = lens.iter().copied().fold(0.0, f64::max);
             let _ = writeln!(
                 out,
-                "  {} edge: resolution length {} (median along the edge; {} to {} {lu})",
+                "  {} edge: resolution length {} (the worst along the edge, at {} = {}; \
+                 median {})",
                 e.edge,
+                u.len_show(e.resolution_worst.1),
+                edge_coordinate(e.edge),
+                u.len_show(e.resolution_worst.0),
                 u.len_show(e.resolution_median),
-                u.len_num(lo),
-                u.len_num(hi),
             );
         }
         let _ = writeln!(

@@ -423,10 +423,13 @@ fn draw_edge(
     )?;
     let prior_rms =
         (e.prior_sd.iter().map(|v| v * v).sum::<f64>() / e.prior_sd.len().max(1) as f64).sqrt();
-    let mut details = format!("resolution length {}", u.len_show(e.resolution_median));
+    let mut details = format!(
+        "resolution length {} (worst)",
+        u.len_show(e.resolution_worst.1)
+    );
     if let Some((o, name)) = other {
         if let Some(oe) = o.edges.get(k) {
-            details.push_str(&format!(" ({name}: {})", u.len_show(oe.resolution_median)));
+            details.push_str(&format!(" ({name}: {})", u.len_show(oe.resolution_worst.1)));
         }
     }
     details.push_str(&format!(

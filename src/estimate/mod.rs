@@ -333,7 +333,9 @@ pub fn estimate(
             simultaneous_upper: s_hi[r.clone()].to_vec(),
             linear_lower: r.clone().map(|j| prof_est[j] - z * prof_sd[j]).collect(),
             linear_upper: r.clone().map(|j| prof_est[j] + z * prof_sd[j]).collect(),
-            resolution_length: resolution[k],
+            resolution_length: resolution[k].worst,
+            resolution_worst_position: resolution[k].worst_position,
+            resolution_at_hottest: resolution[k].at_hottest,
             heat_flow,
         });
     }
@@ -917,8 +919,10 @@ fn cautions(
     );
     for e in edges {
         out.push(format!(
-            "Along the {} edge, features shorter than about {} {lu} (the resolution length) \
-             are smoothed away: a narrow hot spot appears wider and cooler than it is.",
+            "Along the {} edge, features shorter than about {} {lu} (the resolution length, \
+             the worst along the edge: between or beyond the sensors a point feature is smeared \
+             over that much) are smoothed away: a narrow hot spot appears wider and cooler than \
+             it is.",
             e.edge,
             significant3(u.length_from_m(e.resolution_length))
         ));

@@ -8,23 +8,47 @@
 //!
 //! `K(s₀, s₁) = Σ_j P(s₀, j) Σ_{k ∈ e} R_{jk} φ_k(s₁) / ‖φ_k‖²`,
 //!
-//! where `P` is the linear map from coefficients to the profile. The resolution length is the
-//! kernel's full width at half its maximum around `s₀`, taken at the hottest point of the
-//! edge. With no smoothing and `N` terms the kernel is the Dirichlet kernel of width about
-//! `1.2 L / N`; smoothing and depth widen it.
+//! where `P` is the linear map from coefficients to the profile. The resolution length at
+//! `s₀` is the width of the stretch over which a feature at `s₀` is smeared: the span of the
+//! kernel's half-maximum region around its peak, extended to include `s₀` itself when the
+//! peak sits elsewhere. Between two sensors far apart the kernel of a point is pulled toward
+//! the nearer sensor and spread over the gap, so the span, not the peak's own width, is what
+//! the layout resolves there; measuring the peak alone reported a few millimetres for a
+//! layout with sensors 21 mm apart while a 12 mm feature between them was lost.
+//!
+//! The length is computed at every [`SCAN_STRIDE`]-th profile position along the edge; the
+//! edge's resolution length is the **worst** of them, reported with where it occurs (the
+//! finest feature the layout is sure to see anywhere on the edge), and the value at the
+//! hottest point beside it. With no smoothing and `N` terms the kernel is the Dirichlet kernel
+//! of width about `1.2 L / N`; smoothing, depth and sensor spacing widen it.
 
 use crate::forward::{ForwardModel, LinearMap, Parameter};
 use crate::geometry::Edge;
 use nalgebra::DMatrix;
 
-/// Resolution length (metres) of each unknown edge at its own hottest point.
+/// Every this many profile positions the resolution length is computed (module doc).
+pub const SCAN_STRIDE: usize = 4;
+
+/// The resolution of one edge: the worst along it, where, and at the hottest point.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct EdgeResolution {
+    /// The largest resolution length along the edge, metres.
+    pub worst: f64,
+    /// Where it occurs, metres along the edge.
+    pub worst_position: f64,
+    /// The resolution length at the edge's hottest point, metres.
+    pub at_hottest: f64,
+}
+
+/// The resolution of each unknown edge (module doc); `estimate` holds the profiles, edge
+/// after edge, to locate each edge's hottest point.
 pub fn resolution_lengths(
     model: &ForwardModel,
     resolution: &DMatrix<f64>,
     edge_positions: &[(Edge, Vec<f64>)],
     edge_maps: &[LinearMap],
     estimate: &[f64],
-) -> Vec<f64> {
+) -> Vec<EdgeResolution> {
     let n = edge_positions.first().map_or(0, |e| e.1.len());
     edge_positions
         .iter()
@@ -34,13 +58,53 @@ pub fn resolution_lengths(
             let i0 = (0..n)
                 .max_by(|&a, &b| est[a].total_cmp(&est[b]))
                 .unwrap_or(0);
-            resolution_length_at(model, resolution, *edge, pos, &edge_maps[k], i0)
+            let at_hottest = resolution_length_at(model, resolution, *edge, pos, &edge_maps[k], i0);
+            let (worst_position, worst) =
+                worst_resolution(model, resolution, *edge, pos, &edge_maps[k]);
+            EdgeResolution {
+                worst: worst.max(at_hottest),
+                worst_position: if at_hottest > worst {
+                    pos[i0]
+                } else {
+                    worst_position
+                },
+                at_hottest,
+            }
         })
         .collect()
 }
 
-/// Resolution length (metres) of `edge` at `positions[i0]`: the full width at half maximum
-/// of the averaging kernel `K(s₀, ·)` of the module doc, for the resolution matrix
+/// The largest resolution length along `edge` over every [`SCAN_STRIDE`]-th position (the
+/// last included) and where it occurs: `(position, length)`, metres.
+pub fn worst_resolution(
+    model: &ForwardModel,
+    resolution: &DMatrix<f64>,
+    edge: Edge,
+    positions: &[f64],
+    map: &LinearMap,
+) -> (f64, f64) {
+    let n = positions.len();
+    let mut idx: Vec<usize> = (0..n).step_by(SCAN_STRIDE).collect();
+    if n > 0 && idx.last() != Some(&(n - 1)) {
+        idx.push(n - 1);
+    }
+    // a point whose kernel has no positive peak (a corner pinned by a fixed neighbour: the
+    // estimate there does not depend on the truth near it) has nothing to resolve
+    idx.into_iter()
+        .filter_map(|i| {
+            kernel_span(model, resolution, edge, positions, map, i).map(|w| (positions[i], w))
+        })
+        .fold(
+            (positions.first().copied().unwrap_or(0.0), 0.0),
+            |best, x| {
+                if x.1 > best.1 { x } else { best }
+            },
+        )
+}
+
+/// Resolution length (metres) of `edge` at `positions[i0]`: the span of the half-maximum
+/// region of the averaging kernel `K(s₀, ·)` of the module doc around its peak, extended to
+/// include `s₀`, for the resolution matrix
 /// `resolution` (any linear estimator `ĉ = R c + noise`: the regularised fit, or the
 /// posterior mean of a sensor design). `map` is the profile map of `edge` at `positions`.
 /// A kernel that never falls to half its peak gives the edge's length.
@@ -54,9 +118,19 @@ pub fn resolution_length_at(
 ) -> f64 {
     let shape = model.plate().shape();
     let len = shape.edge_length(edge).unwrap_or(shape.width());
-    let Some(series) = model.series_of(edge) else {
-        return len;
-    };
+    kernel_span(model, resolution, edge, positions, map, i0).unwrap_or(len)
+}
+
+/// The span of [`resolution_length_at`], `None` when the kernel has no positive peak.
+fn kernel_span(
+    model: &ForwardModel,
+    resolution: &DMatrix<f64>,
+    edge: Edge,
+    positions: &[f64],
+    map: &LinearMap,
+    i0: usize,
+) -> Option<f64> {
+    let series = model.series_of(edge)?;
     let v = map.matrix.row(i0) * resolution; // 1 × p
     let modes: Vec<(usize, usize)> = model
         .parameters()
@@ -77,12 +151,14 @@ pub fn resolution_length_at(
                 .sum()
         })
         .collect();
-    full_width_half_max(&kernel, positions, i0).unwrap_or(len)
+    half_max_region(&kernel, positions, i0)
+        .map(|(left, right)| right.max(positions[i0]) - left.min(positions[i0]))
 }
 
-/// Width at half maximum of the peak of `kernel` nearest `i0`, by linear interpolation of
-/// the crossings; a side that never falls to half counts to the edge's end.
-fn full_width_half_max(kernel: &[f64], pos: &[f64], i0: usize) -> Option<f64> {
+/// The stretch `(left, right)` where the peak of `kernel` nearest `i0` stays above half its
+/// maximum, by linear interpolation of the crossings; a side that never falls to half counts
+/// to the edge's end.
+fn half_max_region(kernel: &[f64], pos: &[f64], i0: usize) -> Option<(f64, f64)> {
     let n = kernel.len();
     if n < 3 {
         return None;
@@ -119,12 +195,12 @@ fn full_width_half_max(kernel: &[f64], pos: &[f64], i0: usize) -> Option<f64> {
             break;
         }
     }
-    Some(right - left)
+    Some((left, right))
 }
 
 #[cfg(test)]
 mod tests {
-    use super::full_width_half_max;
+    use super::half_max_region;
 
     #[test]
     fn width_of_a_gaussian() {
@@ -135,7 +211,9 @@ mod tests {
             .iter()
             .map(|x| (-0.5 * ((x - 0.4) / s).powi(2)).exp())
             .collect();
-        let w = full_width_half_max(&k, &pos, 790).unwrap();
+        let (l, r) = half_max_region(&k, &pos, 790).unwrap();
+        let w = r - l;
         assert!((w - 2.354_820 * s).abs() < 1e-4, "{w}");
+        assert!(((l + r) / 2.0 - 0.4).abs() < 1e-4);
     }
 }

@@ -29,9 +29,14 @@ pub struct EdgeResult {
     pub linear_lower: Vec<f64>,
     /// See [`EdgeResult::linear_lower`].
     pub linear_upper: Vec<f64>,
-    /// Resolution length along the edge at the hottest point of this edge (width at half
-    /// maximum of the averaging kernel of the model resolution matrix), metres.
+    /// Resolution length of the edge: the worst along it (the span over which the averaging
+    /// kernel of the model resolution matrix smears a point feature; `docs/method.md`),
+    /// metres.
     pub resolution_length: f64,
+    /// Where along the edge the resolution is worst, metres.
+    pub resolution_worst_position: f64,
+    /// The resolution length at the edge's hottest point, metres.
+    pub resolution_at_hottest: f64,
     /// Heat flow into the plate through this edge per unit depth, W/m, with its interval;
     /// `None` without a conductivity.
     pub heat_flow: Option<Interval>,

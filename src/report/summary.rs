@@ -167,6 +167,16 @@ pub fn summary_json(r: &EstimateResult) -> Value {
         edge_map(&|e| Some(u.len_json(e.resolution_length))),
     );
     out.insert(
+        "resolution".into(),
+        edge_map(&|e| {
+            Some(json!({
+                "worst": u.len_json(e.resolution_length),
+                "worst_position": u.len_json(e.resolution_worst_position),
+                "at_hottest": u.len_json(e.resolution_at_hottest),
+            }))
+        }),
+    );
+    out.insert(
         "heat_flow".into(),
         edge_map(&|e| {
             e.heat_flow.map(|q| {
@@ -368,9 +378,13 @@ pub fn text_summary(r: &EstimateResult) -> String {
             &mut out,
             label,
             &format!(
-                "{} edge {} (narrower features are smoothed away)",
+                "{} edge {}, the worst along it (at {} = {}); {} at the hottest point; \
+                 narrower features are smoothed away",
                 e.edge,
-                u.len_show(e.resolution_length)
+                u.len_show(e.resolution_length),
+                edge_coordinate(e.edge),
+                u.len_show(e.resolution_worst_position),
+                u.len_show(e.resolution_at_hottest),
             ),
         );
     }

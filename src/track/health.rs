@@ -16,10 +16,16 @@
 //! smoothing strength): a real but narrow hot spot seen by one or two sensors makes their
 //! plug-in residuals large when the strength is fixed (`--calibrate` on a quiet stretch), but
 //! rougher strengths that the other readings allow explain it, and the averaged model does not
-//! call it a fault. A refuted candidate waits twice as long before its next try.
+//! call it a fault. Then the physics: a candidate reading above the others' prediction is not
+//! left out when a hot feature of a hidden edge explains its reading together with theirs
+//! ([`crate::estimate::explain`]; the caller's `confirm` does both). A refuted candidate waits
+//! twice as long before its next try.
 //!
 //! A sensor that is left out is still checked, against the prediction of the fit without it
-//! (the same distribution the leave-one-out check uses), so it comes back when it recovers.
+//! (the same distribution the leave-one-out check uses), so it comes back when it recovers;
+//! a left-out sensor reading above that prediction also passes when a hot feature of a
+//! hidden edge explains its reading ([`crate::estimate::explain`]): it has become the
+//! witness of a hot spot, not a faulty sensor.
 //! At most one sensor is newly left out per row for `outlier`/`drift` (the worst by its
 //! standardised residual; the others' outlier runs and drift windows then start afresh, since their evidence
 //! came from fits that included it), and never
@@ -327,12 +333,17 @@ impl HealthMonitor {
     /// `confirm(i)` gives `estimate`'s own leave-one-out verdict (standardised residual,
     /// fault probability) for sensor `i` on this row; a sensor is left out only when it
     /// agrees (module doc).
+    ///
+    /// `explained(i)` says whether a hot feature of a hidden edge explains the reading of
+    /// left-out sensor `i` on this row together with the others' readings: a left-out sensor
+    /// reading high for that reason passes its check and comes back.
     pub fn after_fit(
         &mut self,
         time: &str,
         line: u64,
         diagnostics: &[Option<(f64, f64)>],
         confirm: &mut dyn FnMut(usize) -> Option<(f64, f64)>,
+        explained: &mut dyn FnMut(usize) -> bool,
     ) {
         let fault_limit = crate::estimate::fit::FAULT_POSTERIOR;
         let mut candidates: Vec<(usize, Problem, f64)> = Vec::new();
@@ -342,7 +353,7 @@ impl HealthMonitor {
             let st = &mut self.states[i];
             st.window.push(self.row, z);
             if let Some((_, e)) = st.judged {
-                if z.abs() <= CLEAR_Z {
+                if z.abs() <= CLEAR_Z || (z > CLEAR_Z && explained(i)) {
                     st.clear_run += 1;
                 } else {
                     st.clear_run = 0;

@@ -394,6 +394,10 @@ impl Tracker {
                     row.line,
                     &self.fit.diagnostics,
                     &mut confirm,
+                    &mut |i: usize| {
+                        est.hot_verdict(&row.values, used, i, order, rule)
+                            .is_some_and(|h| h.plausible)
+                    },
                 );
                 let hold = self.alarms.in_alarm()
                     && self
