@@ -186,11 +186,44 @@ fn check_faults(case: &Case, path: &Path, calibrate: Option<usize>) {
             .unwrap_or_else(|| panic!("no {p:?} for sensor {sensor}: {:#?}", s.events))
     };
     println!("refuted candidates: {}", s.refuted);
+    for e in &s.events {
+        println!(
+            "{} {:?} rows {}..{:?}, left out {}",
+            e.sensor,
+            e.problem,
+            row_of(&e.start),
+            e.end.as_deref().map(row_of),
+            e.rows_left_out
+        );
+    }
+    // Since the physics check ("Sensor decisions" in docs/method.md), a sensor reading high
+    // is left out only when no hot feature of the hidden edge explains it. The two high
+    // faults of this log sit on the deepest sensors (10 mm, neighbours at 7 mm, 15 mm away)
+    // while two other sensors are out (stuck, open), and there a +12 K step or a slow drift
+    // cannot always be told from a narrow hot spot under the sensor: the tool then names the
+    // sensor `doubtful` (kept, a hot spot or a fault) instead of leaving it out. The old
+    // expectations (TC06 left out to row 700, TC04 judged `drift` by row 450, nobody else
+    // named) assumed the residual alone decides; what must hold now is that each fault is
+    // named from its start, whether as left out or as doubtful, and that only the faulty
+    // sensors are ever left out.
+    let named = |sensor: usize, row: usize| {
+        s.events.iter().any(|e| {
+            e.sensor == sensor
+                && row_of(&e.start) <= row
+                && e.end.as_deref().is_none_or(|t| row_of(t) >= row)
+        })
+    };
     let off = find(5, Problem::Outlier);
-    println!("TC06 outlier: {:?}", off);
-    assert_eq!(row_of(&off.start), 400);
-    let end = row_of(off.end.as_deref().unwrap());
-    assert!((699..=700).contains(&end), "TC06 outlier ends at row {end}");
+    assert_eq!(
+        row_of(&off.start),
+        400,
+        "TC06's offset named from its start"
+    );
+    let covered = (400..700).filter(|&r| named(5, r)).count();
+    assert!(
+        covered >= 270,
+        "TC06 named in only {covered} of its 300 faulty rows"
+    );
     let stuck = find(1, Problem::Stuck);
     println!("TC02 stuck: {:?}", stuck);
     // the frozen value is row 199's last good reading, so the run of equal values starts there
@@ -199,27 +232,23 @@ fn check_faults(case: &Case, path: &Path, calibrate: Option<usize>) {
     let open = find(6, Problem::Dropout);
     assert_eq!(row_of(&open.start), 800);
     assert!(open.end.is_none());
-    let drift = find(3, Problem::Drift);
-    println!("TC04 drift: {:?}", drift);
-    // 0.02 K per row over σ = 0.2 K: DRIFT_LEVEL (3 σ) of offset is reached ~30 rows in, and
-    // the trend over the window then needs the rest; judged within 150 rows of its start
-    let dstart = row_of(&drift.start);
-    assert!(
-        (300..=450).contains(&dstart),
-        "drift judged at row {dstart}"
-    );
-    // nothing else is blamed
+    // TC04 drifts 0.02 K per row from row 300: over σ = 0.2 K, DRIFT_LEVEL (3 σ) of offset is
+    // reached ~30 rows in and the trend over the window needs the rest; named (drift or
+    // doubtful) within 150 rows of its start, and named to the end of the log
+    let first = s
+        .events
+        .iter()
+        .filter(|e| e.sensor == 3 && matches!(e.problem, Problem::Drift | Problem::Doubtful))
+        .map(|e| row_of(&e.start))
+        .min()
+        .expect("TC04's drift is named");
+    assert!((300..=450).contains(&first), "drift named from row {first}");
+    assert!(named(3, 999), "TC04 named to the end");
+    // only the faulty sensors are ever left out
     for e in &s.events {
         assert!(
-            [
-                (5, Problem::Outlier),
-                (1, Problem::Stuck),
-                (6, Problem::Dropout),
-                (3, Problem::Drift)
-            ]
-            .contains(&(e.sensor, e.problem)),
-            "unexpected {:?}",
-            e
+            e.rows_left_out == 0 || [5, 1, 6, 3].contains(&e.sensor),
+            "a good sensor was left out: {e:?}"
         );
     }
 }
@@ -305,8 +334,11 @@ fn a_hot_spot_growing_under_one_sensor_keeps_its_witness_and_its_alarm() {
     );
     println!("truth crosses at row {cross}; episodes {:?}", s.episodes);
     println!("events {:?}", s.events);
+    // TC05 may be named `doubtful` (it reads high: a hot spot or a fault), never left out
     assert!(
-        s.events.iter().all(|e| e.sensor != 4), // TC05
+        s.events
+            .iter()
+            .all(|e| e.sensor != 4 || (e.problem == Problem::Doubtful && e.rows_left_out == 0)),
         "the witness was left out: {:?}",
         s.events
     );

@@ -52,6 +52,14 @@ use nalgebra::{DMatrix, DVector};
 /// refuted.
 pub const HOT_REFUTE_CHI2: f64 = 10.828;
 
+/// The 0.90 quantile of chi-square with one degree of freedom (2.706; Abramowitz & Stegun,
+/// table 26.8). A sensor already left out comes back on the hot explanation only when its
+/// statistic is below this, i.e. when the hot feature explains the readings about as well as
+/// the fault does or better (a real hot spot's witness typically gives a negative statistic):
+/// the gap to [`HOT_REFUTE_CHI2`] is a hysteresis, so that a borderline sensor is not left
+/// out and taken back row after row in `track`.
+pub const HOT_READMIT_CHI2: f64 = 2.706;
+
 /// The narrowest bump in the bank, as a multiple of `edge length / terms` (the half
 /// wavelength of the last series term): a Gaussian of this standard deviation keeps its
 /// spectrum above `e^{-4.4}` of its peak up to the last term, so the truncated series carries
@@ -332,9 +340,12 @@ mod tests {
 
     #[test]
     fn refute_threshold_is_the_chi_square_quantile() {
-        // Abramowitz & Stegun table 26.8: chi-square(1) upper 0.001 point 10.828
+        // Abramowitz & Stegun table 26.8: chi-square(1) upper 0.001 point 10.828, 0.10 point
+        // 2.706
         let q = ChiSquared::new(1.0).unwrap().inverse_cdf(0.999);
         assert!((q - HOT_REFUTE_CHI2).abs() < 1e-3, "{q}");
+        let q = ChiSquared::new(1.0).unwrap().inverse_cdf(0.90);
+        assert!((q - HOT_READMIT_CHI2).abs() < 1e-3, "{q}");
     }
 
     #[test]

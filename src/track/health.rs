@@ -9,6 +9,7 @@
 //! | `dropout` | the row has no reading (empty cell, NaN, a fault marker) | the row itself |
 //! | `stuck` | the reading has not changed at all for [`STUCK_ROWS`] rows in a row | from the row that completes the run until the reading changes |
 //! | `outlier` | the leave-one-out fault probability of `estimate`'s fault model exceeds [`crate::estimate::fit::FAULT_POSTERIOR`] for [`OUTLIER_ROWS`] rows in a row | from the next row until its prediction check passes for [`CLEAR_ROWS`] rows in a row |
+//! | `doubtful` | an `outlier` or `drift` candidate reads above the others' prediction and a hot feature of a hidden edge explains it (a hot spot or a fault) | never; ends when its prediction check passes for [`CLEAR_ROWS`] rows in a row |
 //! | `drift` | the straight line fitted to its standardised residual over the last [`DRIFT_WINDOW`] rows changes by more than [`DRIFT_CHANGE`] across the window and ends beyond [`DRIFT_LEVEL`]; the reported start is where that line crosses zero | as for `outlier` |
 //!
 //! Before a sensor is left out, the candidate is confirmed with `estimate`'s own fault model
@@ -19,12 +20,16 @@
 //! call it a fault. Then the physics: a candidate reading above the others' prediction is not
 //! left out when a hot feature of a hidden edge explains its reading together with theirs
 //! ([`crate::estimate::explain`]; the caller's `confirm` does both). A refuted candidate waits
-//! twice as long before its next try.
+//! twice as long before its next try. When a hot feature explains a candidate, the lesser
+//! candidates of that row are not tried: their evidence came from fits that include the
+//! possible witness of a hot spot, and a neighbour reading low beside it is no fault.
 //!
 //! A sensor that is left out is still checked, against the prediction of the fit without it
 //! (the same distribution the leave-one-out check uses), so it comes back when it recovers;
 //! a left-out sensor reading above that prediction also passes when a hot feature of a
-//! hidden edge explains its reading ([`crate::estimate::explain`]): it has become the
+//! hidden edge clearly explains its reading ([`crate::estimate::explain`], below the
+//! readmission threshold `HOT_READMIT_CHI2`, stricter than the one that keeps a sensor in, so
+//! that a borderline sensor does not go out and come back row after row): it has become the
 //! witness of a hot spot, not a faulty sensor.
 //! At most one sensor is newly left out per row for `outlier`/`drift` (the worst by its
 //! standardised residual; the others' outlier runs and drift windows then start afresh, since their evidence
@@ -33,6 +38,7 @@
 //! fault makes its neighbours' residuals look odd too, and dropping the only sensors that see
 //! a real hot spot would hide it.
 
+use crate::estimate::explain::{HOT_READMIT_CHI2, HOT_REFUTE_CHI2};
 use serde::Serialize;
 
 /// A reading unchanged for this many rows is judged stuck.
@@ -57,6 +63,10 @@ pub const CLEAR_Z: f64 = 2.5;
 /// At most this many recorded problems per sensor (later ones are counted, not listed).
 pub const MAX_EVENTS_PER_SENSOR: usize = 500;
 
+/// The caller's leave-one-out verdict on sensor `i` fitted without the sensors given:
+/// `(standardised residual, fault probability)` ([`HealthMonitor::after_fit`]).
+pub type ConfirmFn<'a> = dyn FnMut(usize, &[usize]) -> Option<(f64, f64)> + 'a;
+
 /// The kind of a sensor problem.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
@@ -69,6 +79,9 @@ pub enum Problem {
     Outlier,
     /// Residual trending away.
     Drift,
+    /// Reading above what the others predict, by as much as an outlier or a drift, but a hot
+    /// feature of a hidden edge explains it: a hot spot or a fault. Never left out.
+    Doubtful,
 }
 
 impl Problem {
@@ -79,6 +92,7 @@ impl Problem {
             Problem::Stuck => "stuck",
             Problem::Outlier => "outlier",
             Problem::Drift => "drift",
+            Problem::Doubtful => "doubtful",
         }
     }
 }
@@ -167,6 +181,9 @@ struct SensorState {
     refuted: u32,
     window: Window,
     event_count: usize,
+    /// The open `doubtful` event, and passing rows in a row toward its end.
+    doubt: Option<usize>,
+    doubt_clear: usize,
 }
 
 /// The health monitor: fed each row's readings before the fit (dropouts and stuck readings)
@@ -330,20 +347,24 @@ impl HealthMonitor {
     /// After the fit: update outlier and drift judgements from the row's diagnostics
     /// (standardised residual, fault probability) per sensor.
     ///
-    /// `confirm(i)` gives `estimate`'s own leave-one-out verdict (standardised residual,
-    /// fault probability) for sensor `i` on this row; a sensor is left out only when it
-    /// agrees (module doc).
+    /// `confirm(i, without)` gives `estimate`'s own leave-one-out verdict (standardised
+    /// residual, fault probability) for sensor `i` on this row, fitted without the sensors
+    /// `without` (those kept as doubtful); a sensor is left out only when it agrees and no
+    /// hot feature explains its reading (module doc).
     ///
-    /// `explained(i)` says whether a hot feature of a hidden edge explains the reading of
-    /// left-out sensor `i` on this row together with the others' readings: a left-out sensor
-    /// reading high for that reason passes its check and comes back.
+    /// `hot(i, without)` weighs a hot feature of a hidden edge against a fault for sensor
+    /// `i`'s reading on this row ([`crate::estimate::explain`]): the statistic Δ, `-∞` when
+    /// the readings cannot tell them apart, `+∞` when no hot feature applies (the reading is
+    /// not above the others' prediction). A candidate with Δ at most
+    /// [`crate::estimate::explain::HOT_REFUTE_CHI2`] is kept and named `doubtful`; a left-out
+    /// sensor with Δ at most [`crate::estimate::explain::HOT_READMIT_CHI2`] passes its check.
     pub fn after_fit(
         &mut self,
         time: &str,
         line: u64,
         diagnostics: &[Option<(f64, f64)>],
-        confirm: &mut dyn FnMut(usize) -> Option<(f64, f64)>,
-        explained: &mut dyn FnMut(usize) -> bool,
+        confirm: &mut ConfirmFn<'_>,
+        hot: &mut dyn FnMut(usize, &[usize]) -> f64,
     ) {
         let fault_limit = crate::estimate::fit::FAULT_POSTERIOR;
         let mut candidates: Vec<(usize, Problem, f64)> = Vec::new();
@@ -352,8 +373,28 @@ impl HealthMonitor {
             let Some((z, p)) = *d else { continue };
             let st = &mut self.states[i];
             st.window.push(self.row, z);
+            if let Some(e) = st.doubt {
+                if z.abs() <= CLEAR_Z {
+                    st.doubt_clear += 1;
+                } else {
+                    st.doubt_clear = 0;
+                    st.last_bad = Some(time.to_string());
+                }
+                if let Some(ev) = self.events.get_mut(e) {
+                    ev.rows += 1;
+                }
+                if st.doubt_clear >= CLEAR_ROWS {
+                    st.doubt = None;
+                    st.doubt_clear = 0;
+                    let end = st.last_bad.clone();
+                    if let Some(ev) = self.events.get_mut(e) {
+                        ev.end = end.or_else(|| Some(ev.start.clone()));
+                        ev.rows = ev.rows.saturating_sub(CLEAR_ROWS as u64);
+                    }
+                }
+            }
             if let Some((_, e)) = st.judged {
-                if z.abs() <= CLEAR_Z || (z > CLEAR_Z && explained(i)) {
+                if z.abs() <= CLEAR_Z || (z > CLEAR_Z && hot(i, &[]) <= HOT_READMIT_CHI2) {
                     st.clear_run += 1;
                 } else {
                     st.clear_run = 0;
@@ -413,13 +454,23 @@ impl HealthMonitor {
         });
         // confirm with estimate's own fault model before leaving a sensor out
         let mut chosen = None;
+        // sensors kept as doubtful: a candidate beside one is checked without it, since a
+        // high reading kept in the fit makes its neighbours look low
+        let doubtful: Vec<usize> = (0..self.states.len())
+            .filter(|&k| self.states[k].doubt.is_some())
+            .collect();
         for &(i, problem, _) in &candidates {
-            let verdict = confirm(i);
-            let ok = verdict.is_some_and(|(z, p)| match problem {
+            let without: Vec<usize> = doubtful.iter().copied().filter(|&k| k != i).collect();
+            let verdict = confirm(i, &without);
+            let fault = verdict.is_some_and(|(z, p)| match problem {
                 Problem::Outlier => p > fault_limit,
                 _ => z.abs() > DRIFT_LEVEL,
             });
-            if ok {
+            // the physics, for a reading above the others' prediction
+            let hot_feature = fault
+                && verdict.is_some_and(|(z, _)| z > 0.0)
+                && hot(i, &without) <= HOT_REFUTE_CHI2;
+            if fault && !hot_feature {
                 chosen = Some((i, problem));
                 break;
             }
@@ -430,23 +481,25 @@ impl HealthMonitor {
             }
             // a drift candidate is simply tried again at the next evaluation
             self.refuted += 1;
+            if hot_feature {
+                // named, never left out: a hot spot or a fault
+                if self.states[i].doubt.is_none() {
+                    let start = self.start_of(i, problem, time, line);
+                    let e = self.open(i, Problem::Doubtful, start);
+                    let st = &mut self.states[i];
+                    st.doubt = Some(e);
+                    st.doubt_clear = 0;
+                    st.last_bad = Some(time.to_string());
+                }
+                // the others' evidence came from fits that include a sensor that may be the
+                // witness of a hot spot: a neighbour reading low beside it is no fault
+                break;
+            }
         }
         let Some((i, problem)) = chosen else {
             return;
         };
-        let start = match problem {
-            Problem::Outlier => self.states[i]
-                .outlier_start
-                .clone()
-                .unwrap_or((time.to_string(), line)),
-            _ => {
-                let onset = self.states[i].drift_onset;
-                self.recent
-                    .iter()
-                    .find(|r| r.0 >= onset)
-                    .map_or((time.to_string(), line), |r| (r.1.clone(), r.2))
-            }
-        };
+        let start = self.start_of(i, problem, time, line);
         let run = self.states[i].outlier_run as u64;
         let e = self.open(i, problem, start);
         if let Some(ev) = self.events.get_mut(e) {
@@ -462,10 +515,31 @@ impl HealthMonitor {
                 other.window = Window::default();
             }
         }
+        if let Some(d) = self.states[i].doubt.take() {
+            self.close(d);
+        }
         let st = &mut self.states[i];
         st.judged = Some((problem, e));
         st.clear_run = 0;
         st.last_bad = Some(time.to_string());
+    }
+
+    /// Where a problem of sensor `i` judged on this row began: the first row of its outlier
+    /// streak, or where its drift line crosses zero.
+    fn start_of(&self, i: usize, problem: Problem, time: &str, line: u64) -> (String, u64) {
+        match problem {
+            Problem::Outlier => self.states[i]
+                .outlier_start
+                .clone()
+                .unwrap_or((time.to_string(), line)),
+            _ => {
+                let onset = self.states[i].drift_onset;
+                self.recent
+                    .iter()
+                    .find(|r| r.0 >= onset)
+                    .map_or((time.to_string(), line), |r| (r.1.clone(), r.2))
+            }
+        }
     }
 
     /// Why sensor `i` is left out now (stuck takes precedence).

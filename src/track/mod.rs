@@ -375,29 +375,28 @@ impl Tracker {
                 self.counts.refitted += u64::from(self.fit.refitted);
                 let rule = strength_of(self.options.strength.unwrap_or(self.case.fit.strength));
                 let (est, used, order) = (&self.estimator, &self.used, self.fit.order);
-                // estimate's fault model, then the physics: a reading above the others'
-                // prediction that a hot feature of a hidden edge explains is not a fault,
-                // and counts as agreeing with the others (0, 0)
-                let mut confirm = |i: usize| {
-                    let v = est.loo_verdict(&row.values, used, i, order, rule)?;
-                    if v.z > 0.0
-                        && est
-                            .hot_verdict(&row.values, used, i, order, rule)
-                            .is_some_and(|h| h.plausible)
-                    {
-                        return Some((0.0, 0.0));
-                    }
-                    Some((v.z, v.fault_probability))
+                // estimate's fault model, then the physics (module `health`); both fitted
+                // without the sensors in `without`
+                let without_these = |without: &[usize]| -> Vec<usize> {
+                    used.iter()
+                        .copied()
+                        .filter(|k| !without.contains(k))
+                        .collect()
+                };
+                let mut confirm = |i: usize, without: &[usize]| {
+                    est.loo_verdict(&row.values, &without_these(without), i, order, rule)
+                        .map(|v| (v.z, v.fault_probability))
+                };
+                let mut hot = |i: usize, without: &[usize]| {
+                    est.hot_verdict(&row.values, &without_these(without), i, order, rule)
+                        .map_or(f64::INFINITY, |h| h.statistic.unwrap_or(f64::NEG_INFINITY))
                 };
                 self.health.after_fit(
                     &row.time_text,
                     row.line,
                     &self.fit.diagnostics,
                     &mut confirm,
-                    &mut |i: usize| {
-                        est.hot_verdict(&row.values, used, i, order, rule)
-                            .is_some_and(|h| h.plausible)
-                    },
+                    &mut hot,
                 );
                 let hold = self.alarms.in_alarm()
                     && self

@@ -366,9 +366,16 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
     } else {
         let _ = writeln!(out, "Sensor problems:");
         for e in problems.iter().take(MAX_TEXT_LISTED) {
+            let kept = if e.problem == super::health::Problem::Doubtful {
+                ": reads high, kept because a hot spot under it would explain it as well as a \
+                 fault; check the sensor"
+                    .to_string()
+            } else {
+                String::new()
+            };
             let _ = writeln!(
                 out,
-                "  {} {} from {} to {} ({} rows, left out of {})",
+                "  {} {} from {} to {} ({} rows, left out of {}){kept}",
                 case.sensors[e.sensor].id,
                 e.problem.name(),
                 e.start,
