@@ -44,6 +44,7 @@ use crate::geometry::{Edge, Plate, Point};
 use program::{Limits, Objective, Outcome};
 use rayon::prelude::*;
 use statrs::distribution::{ChiSquared, ContinuousCDF};
+use serde::Serialize;
 use std::collections::BTreeMap;
 
 /// What the bounds are computed from: the fitted case's sensors in use and their readings.
@@ -93,7 +94,7 @@ impl Default for BoundsOptions {
 }
 
 /// Bound envelopes along one hidden edge.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct EdgeBounds {
     /// The edge.
     pub edge: Edge,
@@ -106,7 +107,7 @@ pub struct EdgeBounds {
 }
 
 /// The strict bounds under one gradient limit.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Serialize)]
 pub enum BoundsOutcome {
     /// The set is not empty: the bounds.
     Bounded {
@@ -128,7 +129,7 @@ pub enum BoundsOutcome {
 }
 
 /// One row of the gradient study.
-#[derive(Debug, Clone, Copy, PartialEq)]
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct GradientRow {
     /// The assumed gradient limit, K/m.
     pub gradient_k_per_m: f64,
@@ -137,7 +138,7 @@ pub struct GradientRow {
 }
 
 /// What the readings say about the gradient without a stated limit.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct GradientStudy {
     /// The smallest gradient limit compatible with the readings at the stated confidence, K/m
     /// (`None` when no gradient is: the readings contradict the model or the stated
@@ -148,7 +149,7 @@ pub struct GradientStudy {
 }
 
 /// Strict bounds and the gradient study of one estimate.
-#[derive(Debug, Clone, PartialEq)]
+#[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct BoundsResult {
     /// Confidence of every bound.
     pub confidence: f64,
@@ -164,6 +165,8 @@ pub struct BoundsResult {
     pub temperature_limits_k: (Option<f64>, Option<f64>),
     /// The gradient study.
     pub study: GradientStudy,
+    /// Why the bounds could not be computed at all (the rest is then empty).
+    pub failure: Option<String>,
 }
 
 /// `q = χ²_m(confidence)`.
@@ -565,5 +568,63 @@ pub fn strict_bounds(
         stated,
         temperature_limits_k: (input.min_temperature_k, input.max_temperature_k),
         study,
+        failure: None,
+    })
+}
+
+/// The strict bounds of an estimate, never an error: a failure is recorded in
+/// [`BoundsResult::failure`] so that the estimate itself still stands.
+///
+/// `used` indexes `case.sensors`, `points` and `readings_k` (every sensor of the case);
+/// `sigmas_k` follows `used`. The gradient limit is `gradient_override_k_per_m` if given, else
+/// the case's `[bounds] max_gradient`.
+#[allow(clippy::too_many_arguments)]
+pub fn estimate_bounds(
+    case: &crate::io::Case,
+    points: &[Point],
+    readings_k: &[Option<f64>],
+    used: &[usize],
+    sigmas_k: &[f64],
+    sigma_stated: bool,
+    gradient_override_k_per_m: Option<f64>,
+    positions_m: &[(Edge, Vec<f64>)],
+) -> BoundsResult {
+    let sensors: Vec<Point> = used.iter().map(|&i| points[i]).collect();
+    let d: Vec<f64> = used
+        .iter()
+        .map(|&i| readings_k.get(i).copied().flatten().unwrap_or(f64::NAN))
+        .collect();
+    let input = BoundsInput {
+        plate: &case.plate,
+        sensors: &sensors,
+        readings_k: &d,
+        sigmas_k,
+        sigma_stated,
+        confidence: case.uncertainty.confidence,
+        min_temperature_k: case.bounds.min_temperature_k,
+        max_temperature_k: case.bounds.max_temperature_k,
+    };
+    let gradient = gradient_override_k_per_m.or(case.bounds.max_gradient_k_per_m);
+    strict_bounds(&input, gradient, positions_m, &BoundsOptions::default()).unwrap_or_else(|e| {
+        BoundsResult {
+            confidence: input.confidence,
+            chi_square_radius: 0.0,
+            approximate: !sigma_stated,
+            node_spacing_m: Vec::new(),
+            stated: gradient.map(|g| {
+                (
+                    g,
+                    BoundsOutcome::Failed {
+                        reason: e.to_string(),
+                    },
+                )
+            }),
+            temperature_limits_k: (input.min_temperature_k, input.max_temperature_k),
+            study: GradientStudy {
+                min_gradient_k_per_m: None,
+                rows: Vec::new(),
+            },
+            failure: Some(e.to_string()),
+        }
     })
 }

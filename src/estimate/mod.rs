@@ -68,6 +68,11 @@ pub struct EstimateOptions {
     pub seed: Option<u64>,
     /// Override the case's strength rule.
     pub strength: Option<StrengthRule>,
+    /// Compute strict bounds and the gradient study ([`crate::bounds`]); off by default
+    /// because they cost conic programs (the command line turns them on).
+    pub strict_bounds: bool,
+    /// Override the case's `[bounds] max_gradient`, K/m.
+    pub max_gradient_k_per_m: Option<f64>,
 }
 
 impl Default for EstimateOptions {
@@ -81,6 +86,8 @@ impl Default for EstimateOptions {
             replicates: None,
             seed: None,
             strength: None,
+            strict_bounds: false,
+            max_gradient_k_per_m: None,
         }
     }
 }
@@ -224,6 +231,18 @@ pub fn estimate(
     let shape = *plate.shape();
     let n_prof = profile_points(case.fit.terms);
     let edge_positions = profile_positions(case);
+    let bounds = options.strict_bounds.then(|| {
+        crate::bounds::estimate_bounds(
+            case,
+            &points,
+            readings,
+            &used,
+            fit.sigma.as_slice(),
+            stated,
+            options.max_gradient_k_per_m,
+            &edge_positions,
+        )
+    });
     let edge_maps: Vec<LinearMap> = edge_positions
         .iter()
         .map(|(e, pos)| model.edge_profile_map(*e, pos))
@@ -460,6 +479,7 @@ pub fn estimate(
         replicates,
         bootstrap_mode: mode.name().to_string(),
         seed,
+        bounds,
         cautions,
     })
 }

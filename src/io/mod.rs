@@ -21,7 +21,7 @@ mod plate_file;
 mod spans;
 
 pub use case::{
-    Case, CaseFiles, FitSettings, Sensor, Smoothing, StrengthRule, UncertaintySettings, load_case,
+    BoundsSettings, Case, CaseFiles, FitSettings, Sensor, Smoothing, StrengthRule, UncertaintySettings, load_case,
     load_readings, read_truth_profiles,
 };
 pub use logger::{
