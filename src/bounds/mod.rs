@@ -86,7 +86,7 @@ impl Default for BoundsOptions {
     fn default() -> Self {
         BoundsOptions {
             discretisation: Discretisation::default(),
-            envelope_points: 25,
+            envelope_points: 49,
             peak_tolerance_k: 0.05,
             max_rounds: 16,
         }
@@ -168,6 +168,9 @@ pub struct BoundsResult {
     /// Why the bounds could not be computed at all (the rest is then empty).
     pub failure: Option<String>,
 }
+
+/// Rows of the gradient study.
+pub const STUDY_ROWS: usize = 5;
 
 /// `q = χ²_m(confidence)`.
 fn chi_square_radius(m: usize, confidence: f64) -> Result<f64> {
@@ -514,7 +517,7 @@ pub fn gradient_study(
             let upper = peak_upper(
                 &ctx,
                 g,
-                (options.envelope_points / 2).max(5),
+                (options.envelope_points / 4).max(5),
                 4.0 * options.peak_tolerance_k,
                 options.max_rounds / 2,
             )
@@ -559,7 +562,7 @@ pub fn strict_bounds(
         Some(g) => Some((g, bounds_under(&set, input, g, positions_m, options)?)),
         None => None,
     };
-    let study = gradient_study(&set, input, 6, options)?;
+    let study = gradient_study(&set, input, STUDY_ROWS, options)?;
     Ok(BoundsResult {
         confidence: input.confidence,
         chi_square_radius: q,

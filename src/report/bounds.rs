@@ -321,3 +321,96 @@ pub(crate) fn study_rows(r: &EstimateResult) -> Vec<(String, String)> {
         })
         .collect()
 }
+
+/// The page section "How hot could it be?": the stated bounds, the limit verdict, the
+/// smallest gradient the readings need and the table of the peak's upper bound against the
+/// assumed gradient limit. Empty when the bounds were not asked for.
+pub(crate) fn bounds_html(r: &EstimateResult) -> String {
+    use super::format::escape_html as esc;
+    use std::fmt::Write as _;
+    let Some(b) = r.bounds.as_ref() else {
+        return String::new();
+    };
+    let u = CaseUnits::new(r.units);
+    let conf = super::summary::percent(b.confidence);
+    let unit = gradient_unit_show(&u);
+    let len = u.len_symbol();
+    let mut o = String::new();
+    o.push_str("<h2>How hot could it be? Strict bounds</h2>\n");
+    let _ = writeln!(
+        o,
+        "<p>Strict bounds hold for <em>every</em> hidden-edge profile that reproduces the \
+         readings within their {conf} chi-square region and changes by at most G {} per {len} \
+         along the edge, whatever its shape, a hot spot narrower than the sensors resolve \
+         included. They rest on that statement about G, not on the smoothing prior of the \
+         estimate{}.</p>",
+        esc(u.temp_symbol()),
+        if b.approximate {
+            "; with the reading uncertainty estimated from the residuals their confidence is \
+             approximate"
+        } else {
+            ""
+        }
+    );
+    match &b.stated {
+        Some((g, BoundsOutcome::Bounded { hottest_k, .. })) => {
+            let _ = writeln!(
+                o,
+                "<div class=\"card\"><h3>Hottest temperature if the edge changes by at most {} \
+                 {}</h3><p class=\"big\">{} to {}</p><p>{conf} strict bounds (simultaneous \
+                 over the whole edge){}</p></div>",
+                esc(&gradient_text(&u, *g)),
+                esc(&unit),
+                esc(&u.temp_num(hottest_k[0])),
+                esc(&u.temp_show(hottest_k[1])),
+                limit_verdict(r)
+                    .map(|v| format!("<br/>Limit {}: {}", esc(&u.temp_show(r.exceedance.as_ref().map_or(f64::NAN, |x| x.limit))), esc(&v)))
+                    .unwrap_or_default()
+            );
+        }
+        Some((g, BoundsOutcome::Empty)) => {
+            let _ = writeln!(
+                o,
+                "<div class=\"card alarm\"><h3>Gradient limit {} {} ruled out</h3><p>{}</p></div>",
+                esc(&gradient_text(&u, *g)),
+                esc(&unit),
+                esc(&empty_message(&u, *g, b))
+            );
+        }
+        Some((_, BoundsOutcome::Failed { reason })) => {
+            let _ = writeln!(o, "<p>Strict bounds not computed: {}</p>", esc(reason));
+        }
+        None => {
+            let _ = writeln!(
+                o,
+                "<p>No gradient limit was stated (<code>[bounds] max_gradient</code> in \
+                 plate.toml), so no strict interval is given; the table shows what each \
+                 assumption would allow.</p>"
+            );
+        }
+    }
+    if let Some(m) = b.study.min_gradient_k_per_m {
+        let _ = writeln!(
+            o,
+            "<p>The readings need a hidden edge that changes by at least <strong>{} {}</strong> \
+             somewhere ({conf}).</p>",
+            esc(&gradient_text(&u, m)),
+            esc(&unit)
+        );
+    }
+    let rows = study_rows(r);
+    if !rows.is_empty() {
+        let _ = writeln!(
+            o,
+            "<table class=\"kv\"><tr><th>if the edge changes by at most G [{}]</th><th>the \
+             hottest temperature is at most [{}]</th></tr>",
+            esc(&unit),
+            esc(u.temp_symbol())
+        );
+        for (g, t) in rows {
+            let _ = writeln!(o, "<tr><td>{}</td><td>{}</td></tr>", esc(&g), esc(&t));
+        }
+        o.push_str("</table>\n");
+    }
+    o
+}

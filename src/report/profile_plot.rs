@@ -4,7 +4,7 @@
 //! along it (what the reconstruction could see, and from how deep).
 
 use super::draw::{
-    AXIS_PX, Anchor, Area, BAND, DrawResult, ESTIMATE, FAMILY, FOOTER_H, GREY, GRID, Glyph,
+    AXIS_PX, Anchor, Area, BAND, BOUNDS, DrawResult, ESTIMATE, FAMILY, FOOTER_H, GREY, GRID, Glyph,
     HOTTEST, INK, LEGEND_ROW_H, LIMIT, Marker, PLOT_SAFETY_NOTE, SIMULTANEOUS, TEXT_PX, TITLE_PX,
     TextOpts, font, legend, legend_rows, line, marker, sensor_label_width, sensor_marker, text,
 };
@@ -54,6 +54,22 @@ fn header(r: &EstimateResult) -> Header {
             format!("hottest point, {conf} intervals"),
         ),
     ];
+    if let Some(g) = super::bounds::stated_gradient(r) {
+        if r.edges
+            .iter()
+            .any(|e| super::bounds::edge_envelope(r, e.edge).is_some())
+        {
+            let u = CaseUnits::new(r.units);
+            legend.push((
+                Glyph::Line(BOUNDS, 2),
+                format!(
+                    "strict bounds (|slope| ≤ G = {} {}, {conf})",
+                    super::bounds::gradient_text(&u, g),
+                    super::bounds::gradient_unit_show(&u)
+                ),
+            ));
+        }
+    }
     if let Some(x) = &r.exceedance {
         let u = CaseUnits::new(r.units);
         legend.push((
@@ -195,6 +211,9 @@ fn temperature_range(r: &EstimateResult, e: &EdgeResult, u: &CaseUnits) -> (f64,
         &e.simultaneous_upper,
     ];
     let mut extra = vec![];
+    if let Some((lo, hi)) = super::bounds::edge_envelope(r, e.edge) {
+        extra.extend(lo.iter().chain(hi).copied());
+    }
     if r.hottest.edge == e.edge {
         extra.extend(r.hottest.temperature_interval);
     }
@@ -316,6 +335,18 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
                 4,
                 SIMULTANEOUS.stroke_width(1),
             )))?;
+        }
+    }
+    // Strict-bound envelopes, solid teal.
+    if let Some((b_lo, b_hi)) = super::bounds::edge_envelope(r, e.edge) {
+        for band in [b_lo, b_hi] {
+            for run in runs(n, |k| s(k).is_finite() && at(band, k).is_finite()) {
+                let pts: Vec<(f64, f64)> = run.map(|k| (s(k), at(band, k))).collect();
+                chart.draw_series(std::iter::once(PathElement::new(
+                    pts,
+                    BOUNDS.stroke_width(2),
+                )))?;
+            }
         }
     }
     // Limit.
