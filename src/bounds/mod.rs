@@ -68,6 +68,19 @@ pub struct BoundsInput<'a> {
     pub max_temperature_k: Option<f64>,
 }
 
+/// The statement a set of bounds rests on, and their confidence.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct BoundSpec {
+    /// Gradient limit along every hidden edge, K/m (positive).
+    pub gradient_k_per_m: f64,
+    /// Confidence, e.g. 0.95.
+    pub confidence: f64,
+    /// Lowest temperature a hidden edge can have, kelvin, if stated.
+    pub min_temperature_k: Option<f64>,
+    /// Highest temperature a hidden edge can have, kelvin, if stated.
+    pub max_temperature_k: Option<f64>,
+}
+
 /// Numerical settings of the bounds.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct BoundsOptions {
@@ -308,18 +321,20 @@ fn peak_upper(
     Err(Outcome::Failed("the peak search ended without a bound".into()))
 }
 
-/// Strict bounds under the gradient limit `gradient_k_per_m`, with envelopes at
-/// `positions_m` (metres, per hidden edge; edges not listed get none).
+/// Strict bounds under the gradient limit of `spec`, with envelopes at `positions_m`
+/// (metres, per hidden edge; edges not listed get none, and without any position only the
+/// hottest-temperature interval is computed).
 ///
 /// # Errors
 /// [`Error::Invalid`] for a non-positive or non-finite gradient.
 pub fn bounds_under(
     set: &AdmissibleSet,
-    input: &BoundsInput,
-    gradient_k_per_m: f64,
+    spec: &BoundSpec,
     positions_m: &[(Edge, Vec<f64>)],
     options: &BoundsOptions,
 ) -> Result<BoundsOutcome> {
+    let gradient_k_per_m = spec.gradient_k_per_m;
+    let input = spec;
     if !(gradient_k_per_m.is_finite() && gradient_k_per_m > 0.0) {
         return Err(Error::invalid_field(
             "bounds.max_gradient",
@@ -360,6 +375,7 @@ pub fn bounds_under(
         .edges
         .iter()
         .enumerate()
+        .filter(|(_, edge)| positions_m.iter().any(|(x, _)| *x == edge.edge))
         .flat_map(|(e, edge)| {
             spread(edge.positions_m.len(), options.envelope_points)
                 .into_iter()
@@ -559,7 +575,15 @@ pub fn strict_bounds(
     )?;
     let q = chi_square_radius(set.sensor_count(), input.confidence)?;
     let stated = match gradient_k_per_m {
-        Some(g) => Some((g, bounds_under(&set, input, g, positions_m, options)?)),
+        Some(g) => {
+            let spec = BoundSpec {
+                gradient_k_per_m: g,
+                confidence: input.confidence,
+                min_temperature_k: input.min_temperature_k,
+                max_temperature_k: input.max_temperature_k,
+            };
+            Some((g, bounds_under(&set, &spec, positions_m, options)?))
+        }
         None => None,
     };
     let study = gradient_study(&set, input, STUDY_ROWS, options)?;

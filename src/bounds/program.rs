@@ -28,7 +28,7 @@ use clarabel::solver::{
 
 /// What a program optimises.
 #[derive(Debug, Clone, Copy, PartialEq)]
-pub(crate) enum Objective {
+pub enum Objective {
     /// The largest value of node `j` (kelvin).
     MaxNode(usize),
     /// The smallest value of node `j` (kelvin).
@@ -41,7 +41,7 @@ pub(crate) enum Objective {
 
 /// The result of one program.
 #[derive(Debug, Clone, PartialEq)]
-pub(crate) enum Outcome {
+pub enum Outcome {
     /// The optimal value (kelvin, or K/m for [`Objective::MinGradient`]).
     Value(f64),
     /// The admissible set is empty.
@@ -52,7 +52,7 @@ pub(crate) enum Outcome {
 
 /// The constraints shared by every program.
 #[derive(Debug, Clone, Copy)]
-pub(crate) struct Limits {
+pub struct Limits {
     /// Gradient limit, K/m (ignored by [`Objective::MinGradient`]).
     pub gradient: f64,
     /// `√q`: the misfit radius.
@@ -85,8 +85,9 @@ impl Rows {
     }
 }
 
-/// Solve one bound program over `set`.
-pub(crate) fn solve(set: &AdmissibleSet, limits: Limits, objective: Objective) -> Outcome {
+/// Solve one bound program over `set`: the optimum of `objective` over the admissible set
+/// under `limits`, read conservatively from the primal and dual objectives.
+pub fn solve(set: &AdmissibleSet, limits: Limits, objective: Objective) -> Outcome {
     let n = set.node_count;
     let m = set.sensor_count();
     let ne = set.edges.len();
@@ -98,8 +99,14 @@ pub(crate) fn solve(set: &AdmissibleSet, limits: Limits, objective: Objective) -
         .fold(0.0_f64, f64::max)
         .max(1e-9);
     let iu = n; // u_i at iu + i
-    let ia = n + m; // a_{e,k} at ia + 3 e + k
-    let iz = n + m + 3 * ne; // the extra scalar
+    // a_{e,k} at aux_start[e] + k
+    let mut aux_start = Vec::with_capacity(ne);
+    let mut next = n + m;
+    for terms in &set.tail_terms {
+        aux_start.push(next);
+        next += terms.len();
+    }
+    let iz = next; // the extra scalar
     let nvar = iz + 1;
     let free_gradient = objective == Objective::MinGradient;
     let g = limits.gradient;
@@ -128,10 +135,10 @@ pub(crate) fn solve(set: &AdmissibleSet, limits: Limits, objective: Objective) -
         for (k, t) in terms.iter().enumerate() {
             let c0 = t.constant + t_ref * t.coef.iter().map(|(_, c)| c).sum::<f64>();
             let mut plus: Vec<(usize, f64)> = t.coef.clone();
-            plus.push((ia + 3 * e + k, -1.0));
+            plus.push((aux_start[e] + k, -1.0));
             rows.push(&plus, -c0);
             let mut minus: Vec<(usize, f64)> = t.coef.iter().map(|&(j, c)| (j, -c)).collect();
-            minus.push((ia + 3 * e + k, -1.0));
+            minus.push((aux_start[e] + k, -1.0));
             rows.push(&minus, c0);
         }
     }
@@ -146,9 +153,9 @@ pub(crate) fn solve(set: &AdmissibleSet, limits: Limits, objective: Objective) -
                 .sum::<f64>();
         for sign in [1.0, -1.0] {
             let mut entries = vec![(iu + i, sign)];
-            for e in 0..ne {
-                for k in 0..3 {
-                    entries.push((ia + 3 * e + k, -set.tail[i][e]));
+            for (e, terms) in set.tail_terms.iter().enumerate() {
+                for k in 0..terms.len() {
+                    entries.push((aux_start[e] + k, -set.tail[i][e]));
                 }
             }
             if free_gradient {

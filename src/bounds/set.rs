@@ -269,6 +269,80 @@ impl AdmissibleSet {
         })
     }
 
+    /// The same set for other readings of the same sensors (kelvin): everything but the
+    /// readings depends on the layout only, so a simulation study builds the set once.
+    ///
+    /// # Errors
+    /// [`Error::Internal`] when the number of readings differs or one is not finite.
+    pub fn with_readings(&self, readings_k: &[f64]) -> Result<Self> {
+        if readings_k.len() != self.readings.len() || readings_k.iter().any(|r| !r.is_finite()) {
+            return Err(Error::Internal(
+                "strict bounds: new readings must be finite, one per sensor".into(),
+            ));
+        }
+        let mut out = self.clone();
+        out.readings = readings_k.to_vec();
+        Ok(out)
+    }
+
+    /// A set given directly by its matrices, for checks against an independent solver: one
+    /// hidden edge (named `edge`) of `length_m` with `nodes` nodes, model readings
+    /// `h · v + offset` (`h` row-major, `m × nodes`), readings and sigmas (kelvin), and the
+    /// per-sensor model-error allowance per unit gradient `rho_m` (metres). No series tail.
+    ///
+    /// # Errors
+    /// [`Error::Internal`] when the sizes disagree or a value is not finite.
+    #[allow(clippy::too_many_arguments)]
+    pub fn from_matrix(
+        edge: Edge,
+        length_m: f64,
+        nodes: usize,
+        h: Vec<f64>,
+        offset: Vec<f64>,
+        readings_k: Vec<f64>,
+        sigmas_k: Vec<f64>,
+        rho_m: Vec<f64>,
+    ) -> Result<Self> {
+        let m = readings_k.len();
+        let ok = nodes >= 2
+            && length_m.is_finite()
+            && length_m > 0.0
+            && h.len() == m * nodes
+            && offset.len() == m
+            && sigmas_k.len() == m
+            && rho_m.len() == m
+            && h.iter()
+                .chain(&offset)
+                .chain(&readings_k)
+                .chain(&rho_m)
+                .all(|v| v.is_finite())
+            && sigmas_k.iter().all(|s| s.is_finite() && *s > 0.0);
+        if !ok || m == 0 {
+            return Err(Error::Internal(
+                "strict bounds: inconsistent matrices for a set".into(),
+            ));
+        }
+        let spacing = length_m / (nodes - 1) as f64;
+        Ok(AdmissibleSet {
+            edges: vec![EdgeNodes {
+                edge,
+                length_m,
+                positions_m: (0..nodes).map(|j| j as f64 * spacing).collect(),
+                first: 0,
+                spacing_m: spacing,
+            }],
+            node_count: nodes,
+            h,
+            offset,
+            readings: readings_k,
+            sigmas: sigmas_k,
+            rho_m,
+            tail: vec![vec![0.0]; m],
+            tail_terms: vec![Vec::new()],
+            max_tail_factor: 0.0,
+        })
+    }
+
     /// Number of sensors.
     pub fn sensor_count(&self) -> usize {
         self.readings.len()
