@@ -88,9 +88,7 @@ fn bounds_shrink_onto_a_closed_form_truth_where_the_sensors_see_it() {
             e.upper_k[k]
         );
         if (0.015..=0.085).contains(&s) {
-            worst_inside = worst_inside
-                .max(t0 - e.lower_k[k])
-                .max(e.upper_k[k] - t0);
+            worst_inside = worst_inside.max(t0 - e.lower_k[k]).max(e.upper_k[k] - t0);
         }
     }
     println!(
@@ -145,7 +143,9 @@ fn cold_plate() -> (Plate, Vec<Point>) {
     .expect("a plate");
     let sensors = (0..10)
         .map(|k| {
-            let x = [12.0, 30.0, 48.0, 66.0, 84.0, 102.0, 120.0, 138.0, 156.0, 172.0][k];
+            let x = [
+                12.0, 30.0, 48.0, 66.0, 84.0, 102.0, 120.0, 138.0, 156.0, 172.0,
+            ][k];
             Point::new(x * 1e-3, if k % 2 == 0 { 0.007 } else { 0.009 })
         })
         .collect();
@@ -296,9 +296,7 @@ fn strict_peak_interval_covers_a_sub_resolution_hot_spot() {
         est_width += hi - lo;
         t_est += clock.elapsed().as_secs_f64();
     }
-    println!(
-        "time: bounds {t_bounds:.2} s ({programs_total} programs), estimate {t_est:.2} s"
-    );
+    println!("time: bounds {t_bounds:.2} s ({programs_total} programs), estimate {t_est:.2} s");
     let share = covered as f64 / draws as f64;
     println!(
         "sub-resolution hot spot (true peak {true_peak:.2} K, G = {g} K/m, sigma {sigma} K, \

@@ -45,7 +45,10 @@ fn stated_gradient_gives_bounds_in_every_output() {
     assert_eq!(b["limit_ruled_out"], hi < 60.0);
     let study = &j["gradient_study"];
     let g_min = study["minimum_required_gradient"].as_f64().unwrap();
-    assert!(g_min > 0.0 && g_min < 1.0, "1 °C/mm is admissible, so the minimum is below");
+    assert!(
+        g_min > 0.0 && g_min < 1.0,
+        "1 °C/mm is admissible, so the minimum is below"
+    );
     let rows = study["peak_upper_bound"].as_array().unwrap();
     assert!(rows.len() >= 3);
     // a looser limit never lowers the upper bound
@@ -60,7 +63,10 @@ fn stated_gradient_gives_bounds_in_every_output() {
     for row in lines {
         let cells: Vec<f64> = row.split(',').skip(1).map(|c| c.parse().unwrap()).collect();
         let (b_lo, b_hi) = (cells[8], cells[9]);
-        assert!(b_lo <= b_hi && b_lo.is_finite() && b_hi.is_finite(), "{row}");
+        assert!(
+            b_lo <= b_hi && b_lo.is_finite() && b_hi.is_finite(),
+            "{row}"
+        );
         // the bounds are simultaneous: every position's interval lies inside the peak's
         assert!(b_hi <= hi + 1e-3, "{row}");
     }

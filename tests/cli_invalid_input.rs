@@ -881,7 +881,8 @@ fn bounds_unknown_key_and_temperature_limits() {
         Some("bounds.max_gradiant"),
         "unknown",
     );
-    let (plate, line) = plate_with_bounds("max_gradient = 2.0\nmin_temperature = 80.0\nmax_temperature = 70.0");
+    let (plate, line) =
+        plate_with_bounds("max_gradient = 2.0\nmin_temperature = 80.0\nmax_temperature = 70.0");
     let dir = case(&[("plate.toml", Some(&plate))]);
     assert_invalid(
         &dir,

@@ -451,9 +451,10 @@ fn csv_rows(text: &str) -> Vec<Vec<String>> {
 }
 
 fn cautions_contain(j: &Value, needle: &str) -> bool {
-    j["cautions"]
-        .as_array()
-        .is_some_and(|c| c.iter().any(|c| c.as_str().is_some_and(|c| c.contains(needle))))
+    j["cautions"].as_array().is_some_and(|c| {
+        c.iter()
+            .any(|c| c.as_str().is_some_and(|c| c.contains(needle)))
+    })
 }
 
 fn num(v: &Value) -> f64 {
@@ -484,11 +485,10 @@ fn csv_headers_and_row_counts() {
     );
     assert_eq!(profile.len(), 1 + 361);
     // without a stated gradient limit the bound cells are empty
-    assert!(
-        profile[1..]
-            .iter()
-            .all(|row| row[0] == "bottom" && row.len() == 11 && row[9].is_empty() && row[10].is_empty())
-    );
+    assert!(profile[1..].iter().all(|row| row[0] == "bottom"
+        && row.len() == 11
+        && row[9].is_empty()
+        && row[10].is_empty()));
     // positions run from 0 to the edge's length, in mm with the case's precision
     assert_eq!(profile[1][1], "0.000");
     assert_eq!(profile[361][1], "180.000");
@@ -1145,7 +1145,9 @@ fn strict_bounds_appear_in_every_output_in_case_units() {
     let g = &j["gradient_study"];
     assert_eq!(num(&g["minimum_required_gradient"]), 0.325);
     assert_eq!(num(&g["peak_upper_bound"][0]["max_gradient"]), 0.5);
-    assert!((num(&g["peak_upper_bound"][0]["hottest_temperature_upper_bound"]) - 46.3).abs() < 1e-9);
+    assert!(
+        (num(&g["peak_upper_bound"][0]["hottest_temperature_upper_bound"]) - 46.3).abs() < 1e-9
+    );
     let text = text_summary(&r);
     assert!(text.contains("Strict bounds    hottest temperature in [40.00, 52.50] °C"));
     assert!(text.contains("at least 0.325 °C/mm"));
@@ -1155,7 +1157,11 @@ fn strict_bounds_appear_in_every_output_in_case_units() {
     assert!(html.contains("How hot could it be?"));
     assert!(html.contains("<td>0.5</td><td>46.30</td>"));
     for out in [text.as_str(), html.as_str(), &j.to_string()] {
-        assert_eq!(out.matches(SAFETY_CAUTION).count(), 1, "safety caution once");
+        assert_eq!(
+            out.matches(SAFETY_CAUTION).count(),
+            1,
+            "safety caution once"
+        );
     }
     roxmltree::Document::parse(&svg).expect("well-formed SVG");
 }
@@ -1175,7 +1181,11 @@ fn a_ruled_out_gradient_is_said_plainly_with_no_number() {
     let text = text_summary(&r);
     assert!(text.contains("none: the readings rule out a gradient limit of 1.0 °C/mm"));
     let profile = csv_rows(&output(&r, "profile.csv"));
-    assert!(profile[1..].iter().all(|row| row[9].is_empty() && row[10].is_empty()));
+    assert!(
+        profile[1..]
+            .iter()
+            .all(|row| row[9].is_empty() && row[10].is_empty())
+    );
     assert!(
         cautions_contain(&j, "ruled out by the readings"),
         "the empty set is among the cautions"

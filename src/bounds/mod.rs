@@ -43,8 +43,8 @@ use crate::error::{Error, Result};
 use crate::geometry::{Edge, Plate, Point};
 use program::{Limits, Objective, Outcome};
 use rayon::prelude::*;
-use statrs::distribution::{ChiSquared, ContinuousCDF};
 use serde::Serialize;
+use statrs::distribution::{ChiSquared, ContinuousCDF};
 use std::collections::BTreeMap;
 
 /// What the bounds are computed from: the fitted case's sensors in use and their readings.
@@ -318,7 +318,9 @@ fn peak_upper(
         candidates.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)).then(a.2.cmp(&b.2)));
         jobs = candidates.iter().take(4).map(|&(_, e, j)| (e, j)).collect();
     }
-    Err(Outcome::Failed("the peak search ended without a bound".into()))
+    Err(Outcome::Failed(
+        "the peak search ended without a bound".into(),
+    ))
 }
 
 /// Strict bounds under the gradient limit of `spec`, with envelopes at `positions_m`
@@ -517,7 +519,10 @@ pub fn gradient_study(
         .readings_k
         .iter()
         .fold(f64::NEG_INFINITY, |a, &b| a.max(b))
-        - input.readings_k.iter().fold(f64::INFINITY, |a, &b| a.min(b));
+        - input
+            .readings_k
+            .iter()
+            .fold(f64::INFINITY, |a, &b| a.min(b));
     let l_max = set.edges.iter().map(|e| e.length_m).fold(0.0, f64::max);
     let floor = 0.01 * spread_k.max(1e-3) / l_max.max(1e-9);
     let ctx = Context {

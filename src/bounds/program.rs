@@ -191,11 +191,8 @@ pub fn solve(set: &AdmissibleSet, limits: Limits, objective: Objective) -> Outco
         let w = 1.0 / set.sigmas[i];
         let hrow = &set.h[i * n..(i + 1) * n];
         let o = set.offset[i] + t_ref * hrow.iter().sum::<f64>();
-        let mut entries: Vec<(usize, f64)> = hrow
-            .iter()
-            .enumerate()
-            .map(|(j, &a)| (j, w * a))
-            .collect();
+        let mut entries: Vec<(usize, f64)> =
+            hrow.iter().enumerate().map(|(j, &a)| (j, w * a)).collect();
         entries.push((iu + i, w));
         rows.push(&entries, w * (set.readings[i] - o));
     }

@@ -470,9 +470,7 @@ fn quasi_interpolation_allowance(
         // φ_n at the fine points, divided by ‖φ_n‖².
         let mut phi = vec![0.0; fine.len() * n];
         for (k, &s) in fine.iter().enumerate() {
-            series
-                .basis
-                .values_into(s, &mut phi[k * n..(k + 1) * n]);
+            series.basis.values_into(s, &mut phi[k * n..(k + 1) * n]);
             for (t, v) in phi[k * n..(k + 1) * n].iter_mut().enumerate() {
                 *v /= series.basis.norm_sq(t);
             }

@@ -100,9 +100,7 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
         Some(g) => {
             return Err(Error::invalid_field(
                 "--max-gradient",
-                format!(
-                    "must be a positive number (temperature unit per length unit), not {g}"
-                ),
+                format!("must be a positive number (temperature unit per length unit), not {g}"),
             ));
         }
         None => None,
@@ -174,9 +172,11 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
         (Some(t), Some([lo, _])) => lo > t,
         _ => false,
     };
-    Ok(if result.exceedance.is_some_and(|e| e.alarm) || bounds_exceed {
-        3
-    } else {
-        0
-    })
+    Ok(
+        if result.exceedance.is_some_and(|e| e.alarm) || bounds_exceed {
+            3
+        } else {
+            0
+        },
+    )
 }

@@ -279,7 +279,8 @@ pub(crate) fn bounds_text(r: &EstimateResult) -> Vec<(String, String)> {
                     format!(
                         "{} -> {}",
                         gradient_text(&u, row.gradient_k_per_m),
-                        row.hottest_upper_k.map_or("–".to_string(), |t| u.temp_num(t))
+                        row.hottest_upper_k
+                            .map_or("–".to_string(), |t| u.temp_num(t))
                     )
                 })
                 .collect();
@@ -364,7 +365,11 @@ pub(crate) fn bounds_html(r: &EstimateResult) -> String {
                 esc(&u.temp_num(hottest_k[0])),
                 esc(&u.temp_show(hottest_k[1])),
                 limit_verdict(r)
-                    .map(|v| format!("<br/>Limit {}: {}", esc(&u.temp_show(r.exceedance.as_ref().map_or(f64::NAN, |x| x.limit))), esc(&v)))
+                    .map(|v| format!(
+                        "<br/>Limit {}: {}",
+                        esc(&u.temp_show(r.exceedance.as_ref().map_or(f64::NAN, |x| x.limit))),
+                        esc(&v)
+                    ))
                     .unwrap_or_default()
             );
         }
