@@ -86,3 +86,28 @@ fn a_gradient_the_readings_rule_out_is_reported() {
     let csv = std::fs::read_to_string(dir.path().join("profile.csv")).unwrap();
     assert!(csv.lines().skip(1).all(|r| r.ends_with(",,")));
 }
+
+#[test]
+fn bounds_on_an_estimated_sigma_are_marked_approximate() {
+    let plate = std::fs::read_to_string("sample-measurements/cold-plate/plate.toml").unwrap();
+    let without_noise = plate.replace("[noise]\nsigma = 0.15", "");
+    assert_ne!(plate, without_noise, "test setup: the sample states its sigma");
+    let tmp = tempfile::tempdir().unwrap();
+    let plate_path = tmp.path().join("plate.toml");
+    std::fs::write(&plate_path, without_noise).unwrap();
+    let plate_arg = plate_path.display().to_string();
+    let (code, text, dir) = run(&["--plate", &plate_arg, "--max-gradient", "1.0"]);
+    assert_eq!(code, 0, "{text}");
+    let j = summary(&dir);
+    assert_eq!(j["fit"]["sigma_source"], "estimated");
+    assert_eq!(j["bounds"]["sigma_stated"], false);
+    assert!(
+        j["cautions"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .any(|c| c.as_str().unwrap().contains("their confidence is approximate")),
+        "{}",
+        j["cautions"]
+    );
+}
