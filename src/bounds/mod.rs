@@ -660,3 +660,39 @@ pub fn estimate_bounds(
         }
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn tent_is_the_highest_point_of_two_slopes() {
+        // min(a + G t, b + G (D − t)) peaks where the two lines cross: at (a + b + G D)/2
+        // (elementary geometry)
+        assert_eq!(tent(0.0, 0.0, 1.0, 2.0), 1.0);
+        assert_eq!(tent(1.0, 0.0, 1.0, 2.0), 1.5);
+        // lines that do not cross inside: the higher end
+        assert_eq!(tent(5.0, 0.0, 1.0, 2.0), 5.0);
+    }
+
+    #[test]
+    fn study_gradients_follow_the_1_2_5_series_above_the_minimum() {
+        assert_eq!(
+            study_gradients(325.0, 1.0, 5),
+            vec![500.0, 1000.0, 2000.0, 5000.0, 10000.0]
+        );
+        // 1.1 × 450 = 495 still below 500
+        assert_eq!(study_gradients(450.0, 1.0, 2), vec![500.0, 1000.0]);
+        // no required gradient: from the floor
+        assert_eq!(study_gradients(0.0, 3.0, 2), vec![5.0, 10.0]);
+    }
+
+    #[test]
+    fn spread_keeps_both_ends() {
+        let v = spread(241, 49);
+        assert_eq!(v.first(), Some(&0));
+        assert_eq!(v.last(), Some(&240));
+        assert_eq!(v.len(), 49);
+        assert!(v.windows(2).all(|w| w[1] - w[0] == 5));
+    }
+}

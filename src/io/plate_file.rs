@@ -865,6 +865,31 @@ sigma = 0.5
     }
 
     #[test]
+    fn bounds_section_in_si_units() {
+        let f = parse(GOOD).unwrap();
+        assert_eq!(f.bounds, BoundsSettings::default());
+        let f = parse(&format!(
+            "{GOOD}\n[bounds]\nmax_gradient = 2.5\nmin_temperature = 10.0\nmax_temperature = 90.0\n"
+        ))
+        .unwrap();
+        // 2.5 °C/mm = 2500 K/m; 0 °C = 273.15 K (definitions of the units)
+        let g = f.bounds.max_gradient_k_per_m.unwrap();
+        assert!((g - 2500.0).abs() < 1e-9, "{g}");
+        assert!((f.bounds.min_temperature_k.unwrap() - 283.15).abs() < 1e-9);
+        assert!((f.bounds.max_temperature_k.unwrap() - 363.15).abs() < 1e-9);
+        // 1 °F/in = (5/9) K / 0.0254 m = 21.872 K/m (1 in = 25.4 mm exactly)
+        let text = GOOD
+            .replace("length_unit = \"mm\"", "length_unit = \"in\"")
+            .replace("temperature_unit = \"C\"", "temperature_unit = \"F\"")
+            .replace("width = 150.0", "width = 6.0")
+            .replace("height = 60", "height = 2.5")
+            + "\n[bounds]\nmax_gradient = 1.0\n";
+        let f = parse(&text).expect("the inch/Fahrenheit plate parses");
+        let g = f.bounds.max_gradient_k_per_m.unwrap();
+        assert!((g - 5.0 / 9.0 / 0.0254).abs() < 1e-9, "{g}");
+    }
+
+    #[test]
     fn good_file_and_defaults() {
         let f = parse(GOOD).unwrap();
         assert_eq!(f.plate.unknown_edges(), vec![Edge::Bottom]);
