@@ -21,13 +21,16 @@
 //! hidden edge fixed at a hat (exact Fourier coefficients of piecewise-linear data,
 //! [`crate::forward::EdgeBasis::project`]); the series beyond `N` terms is bounded per sensor
 //! by `ε_{ie} S_e(v)` with
-//! `ε_{ie} = 4 e^{−k_N d_{ie}} / (k_N L_e (1 − e^{−π d_{ie} / L_e}))` and
+//! `ε_{ie} = 4 e^{−k_c d_{ie}} / (k_c L_e (1 − e^{−π d_{ie} / L_e}))`, `k_c` the smaller of
+//! `N π / L_e` and the wavenumber where the series stops because `e^{−k d}` fell below
+//! [`NEGLIGIBLE_DECAY`], and
 //! `S_e = |u(0)| + |u(L_e)| + TV(u)`, `u = g − B` (integration by parts of the Fourier
 //! coefficient, `|a_n| ≤ 2 S_e / (k_n L_e)`, and `ψ_n(d) ≤ 2 e^{−k_n d}`; Carslaw & Jaeger
 //! §5.2 for the series). `S_e` is a convex function of the node values and enters the
 //! programs through auxiliary variables.
 
 use crate::error::{Error, Result};
+use crate::forward::basis::NEGLIGIBLE_DECAY;
 use crate::forward::{ForwardModel, SeriesOptions};
 use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Point};
 use rayon::prelude::*;
@@ -247,7 +250,10 @@ impl AdmissibleSet {
         for (i, p) in sensors.iter().enumerate() {
             for (ei, e) in edges.iter().enumerate() {
                 let d = shape.depth_from(e.edge, *p);
-                let k = n_terms * std::f64::consts::PI / e.length_m;
+                // the first omitted mode: beyond the N terms, or where the series itself
+                // stops because e^{−k d} fell below NEGLIGIBLE_DECAY
+                let k = (n_terms * std::f64::consts::PI / e.length_m)
+                    .min((1.0 / NEGLIGIBLE_DECAY).ln() / d);
                 let eps = 4.0 * (-k * d).exp()
                     / (k * e.length_m * -(-std::f64::consts::PI * d / e.length_m).exp_m1());
                 tail[i][ei] = eps;
@@ -481,6 +487,13 @@ fn quasi_interpolation_allowance(
                 let (s_i, d_i) = (shape.position_along(e.edge, p), shape.depth_from(e.edge, p));
                 let mut w = vec![0.0; n];
                 let used = series.modes_into(s_i, d_i, &mut w);
+                // The kernel's omitted modes (n ≥ used): |K_tail| ≤ Σ ψ_n (2/L) ≤ τ with
+                // ψ_n ≤ 2 e^{−k_n d} and k_n ≥ nπ/L, so |K_tail − Q K_tail| ≤ 2τ and their
+                // share of ∫|R| is at most 2 τ L².
+                let len = e.length_m;
+                let k_omit = used as f64 * std::f64::consts::PI / len;
+                let tau = 4.0 / len * (-k_omit * d_i).exp()
+                    / -(-std::f64::consts::PI * d_i / len).exp_m1();
                 let kernel: Vec<f64> = (0..fine.len())
                     .map(|k| {
                         phi[k * n..k * n + used]
@@ -525,7 +538,7 @@ fn quasi_interpolation_allowance(
                     r = r_new;
                     prev_d = dk;
                 }
-                integral
+                integral + 2.0 * tau * len * len
             })
             .collect();
         for (acc, v) in rho.iter_mut().zip(per_sensor) {
