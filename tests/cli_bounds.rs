@@ -91,7 +91,10 @@ fn a_gradient_the_readings_rule_out_is_reported() {
 fn bounds_on_an_estimated_sigma_are_marked_approximate() {
     let plate = std::fs::read_to_string("sample-measurements/cold-plate/plate.toml").unwrap();
     let without_noise = plate.replace("[noise]\nsigma = 0.15", "");
-    assert_ne!(plate, without_noise, "test setup: the sample states its sigma");
+    assert_ne!(
+        plate, without_noise,
+        "test setup: the sample states its sigma"
+    );
     let tmp = tempfile::tempdir().unwrap();
     let plate_path = tmp.path().join("plate.toml");
     std::fs::write(&plate_path, without_noise).unwrap();
@@ -102,11 +105,10 @@ fn bounds_on_an_estimated_sigma_are_marked_approximate() {
     assert_eq!(j["fit"]["sigma_source"], "estimated");
     assert_eq!(j["bounds"]["sigma_stated"], false);
     assert!(
-        j["cautions"]
-            .as_array()
+        j["cautions"].as_array().unwrap().iter().any(|c| c
+            .as_str()
             .unwrap()
-            .iter()
-            .any(|c| c.as_str().unwrap().contains("their confidence is approximate")),
+            .contains("their confidence is approximate")),
         "{}",
         j["cautions"]
     );
