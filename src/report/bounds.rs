@@ -202,7 +202,9 @@ pub(crate) fn bounds_cautions(r: &EstimateResult) -> Vec<String> {
         );
     }
     match &b.stated {
-        Some((g, BoundsOutcome::Empty)) => out.push(empty_message(&u, *g, b)),
+        Some((g, BoundsOutcome::Empty)) => {
+            out.push(format!("No strict bounds: {}.", empty_message(&u, *g, b)));
+        }
         Some((_, BoundsOutcome::Failed { reason })) => {
             out.push(format!("The strict bounds could not be computed: {reason}"));
         }
