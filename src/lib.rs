@@ -13,6 +13,7 @@
 //! | [`design`] | sensor-layout design: the uncertainty a layout will leave along the hidden edges, and greedy + exchange search for the best one |
 //! | [`noise`] | the reading uncertainty: stated sigma, or thermocouple tolerance classes |
 //! | [`estimate`] | the main job: fit, fault search, bands, hottest point, exceedance, resolution length |
+//! | [`bounds`] | strict bounds on the hidden edges and their hottest temperature under a stated gradient limit (conic programs) |
 //! | [`uncertainty`] | the bootstrap of the estimation error with re-chosen strength; bands; calibration studies |
 //! | [`io`] | case files (`plate.toml`, `sensors.csv`, `readings.csv`, profiles) in, results out, atomically |
 //! | [`report`] | the outputs of an estimate in the case's units: CSV tables, `summary.json`, the text summary, SVG plots and a self-contained HTML page |
@@ -23,6 +24,7 @@
 //!
 //! The library never prints; the `edgetherm` binary is a thin layer over it.
 
+pub mod bounds;
 pub mod design;
 pub mod error;
 pub mod estimate;

@@ -845,3 +845,79 @@ fn output_dir_may_not_be_the_case_dir() {
     );
     assert!(check_output_dir(&dir.path().join("edgetherm-out"), &inputs).is_ok());
 }
+
+// ---- [bounds] -------------------------------------------------------------------------------
+
+/// The base plate file with a `[bounds]` section appended; returns it and the line of the
+/// section's first key.
+fn plate_with_bounds(keys: &str) -> (String, usize) {
+    let text = format!("{PLATE}\n[bounds]\n{keys}\n");
+    (text, PLATE.lines().count() + 3)
+}
+
+#[test]
+fn bounds_gradient_must_be_positive_and_finite() {
+    for value in ["-1.0", "0.0", "nan", "inf"] {
+        let (plate, line) = plate_with_bounds(&format!("max_gradient = {value}"));
+        let dir = case(&[("plate.toml", Some(&plate))]);
+        assert_invalid(
+            &dir,
+            "plate.toml",
+            Some(line),
+            Some("bounds.max_gradient"),
+            "must be a positive number",
+        );
+    }
+}
+
+#[test]
+fn bounds_unknown_key_and_temperature_limits() {
+    let (plate, line) = plate_with_bounds("max_gradiant = 2.0");
+    let dir = case(&[("plate.toml", Some(&plate))]);
+    assert_invalid(
+        &dir,
+        "plate.toml",
+        Some(line),
+        Some("bounds.max_gradiant"),
+        "unknown",
+    );
+    let (plate, line) =
+        plate_with_bounds("max_gradient = 2.0\nmin_temperature = 80.0\nmax_temperature = 70.0");
+    let dir = case(&[("plate.toml", Some(&plate))]);
+    assert_invalid(
+        &dir,
+        "plate.toml",
+        Some(line + 2),
+        Some("bounds.max_temperature"),
+        "above min_temperature",
+    );
+    let (plate, line) = plate_with_bounds("min_temperature = -300.0");
+    let dir = case(&[("plate.toml", Some(&plate))]);
+    assert_invalid(
+        &dir,
+        "plate.toml",
+        Some(line),
+        Some("bounds.min_temperature"),
+        "below absolute zero",
+    );
+}
+
+#[test]
+fn max_gradient_option_must_be_positive() {
+    let dir = case(&[]);
+    let out_dir = tempfile::tempdir().unwrap();
+    for value in ["0", "-2", "NaN"] {
+        let out = cargo_bin_cmd!("edgetherm")
+            .arg("estimate")
+            .arg(dir.path())
+            .arg("--out")
+            .arg(out_dir.path().join("out"))
+            .arg(format!("--max-gradient={value}"))
+            .output()
+            .unwrap();
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "--max-gradient {value}: {err}");
+        assert!(err.contains("--max-gradient"), "{err}");
+        assert!(!err.contains("panicked"), "{err}");
+    }
+}

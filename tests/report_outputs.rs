@@ -230,6 +230,7 @@ fn common(
         replicates: 2000,
         bootstrap_mode: "residual".into(),
         seed: 7,
+        bounds: None,
         cautions: vec!["The peak is narrower than twice the resolution length: its height may be underestimated.".into()],
     }
 }
@@ -453,6 +454,13 @@ fn csv_rows(text: &str) -> Vec<Vec<String>> {
         .collect()
 }
 
+fn cautions_contain(j: &Value, needle: &str) -> bool {
+    j["cautions"].as_array().is_some_and(|c| {
+        c.iter()
+            .any(|c| c.as_str().is_some_and(|c| c.contains(needle)))
+    })
+}
+
 fn num(v: &Value) -> f64 {
     v.as_f64().unwrap_or_else(|| panic!("not a number: {v}"))
 }
@@ -474,15 +482,17 @@ fn csv_headers_and_row_counts() {
             "simultaneous_lower",
             "simultaneous_upper",
             "linear_lower",
-            "linear_upper"
+            "linear_upper",
+            "bound_lower",
+            "bound_upper"
         ]
     );
     assert_eq!(profile.len(), 1 + 361);
-    assert!(
-        profile[1..]
-            .iter()
-            .all(|row| row[0] == "bottom" && row.len() == 9)
-    );
+    // without a stated gradient limit the bound cells are empty
+    assert!(profile[1..].iter().all(|row| row[0] == "bottom"
+        && row.len() == 11
+        && row[9].is_empty()
+        && row[10].is_empty()));
     // positions run from 0 to the edge's length, in mm with the case's precision
     assert_eq!(profile[1][1], "0.000");
     assert_eq!(profile[361][1], "180.000");
@@ -1119,4 +1129,117 @@ fn a_doubtful_sensor_is_reported_everywhere() {
     let html = output(&r, "report.html");
     assert!(html.contains("class=\"doubtful\""), "no marked row");
     assert!(html.contains("kept, doubtful"));
+}
+
+// ---- strict bounds ------------------------------------------------------------------------
+
+/// The cold plate with invented strict bounds under 1 °C/mm (envelopes 4 K either side of the
+/// estimate) and a gradient study; `empty` makes the stated limit ruled out instead.
+fn with_bounds(empty: bool) -> EstimateResult {
+    use edgetherm::bounds::{BoundsOutcome, BoundsResult, EdgeBounds, GradientRow, GradientStudy};
+    let mut r = cold_plate();
+    let e = &r.edges[0];
+    let outcome = if empty {
+        BoundsOutcome::Empty
+    } else {
+        BoundsOutcome::Bounded {
+            hottest_k: [C0 + 40.0, C0 + 52.5],
+            edges: vec![EdgeBounds {
+                edge: Edge::Bottom,
+                positions_m: e.positions.clone(),
+                lower_k: e.estimate.iter().map(|t| t - 4.0).collect(),
+                upper_k: e.estimate.iter().map(|t| t + 4.0).collect(),
+            }],
+            programs: 100,
+        }
+    };
+    r.bounds = Some(BoundsResult {
+        confidence: 0.95,
+        chi_square_radius: 18.307,
+        approximate: false,
+        node_spacing_m: vec![(Edge::Bottom, 0.00075)],
+        stated: Some((1000.0, outcome)),
+        temperature_limits_k: (None, None),
+        study: GradientStudy {
+            min_gradient_k_per_m: Some(325.0),
+            rows: vec![
+                GradientRow {
+                    gradient_k_per_m: 500.0,
+                    hottest_upper_k: Some(C0 + 46.3),
+                },
+                GradientRow {
+                    gradient_k_per_m: 1000.0,
+                    hottest_upper_k: Some(C0 + 52.5),
+                },
+            ],
+        },
+        failure: None,
+    });
+    r
+}
+
+#[test]
+fn strict_bounds_appear_in_every_output_in_case_units() {
+    let r = with_bounds(false);
+    let profile = csv_rows(&output(&r, "profile.csv"));
+    let est: f64 = profile[1][2].parse().unwrap();
+    let lo: f64 = profile[1][9].parse().unwrap();
+    let hi: f64 = profile[1][10].parse().unwrap();
+    assert!((est - lo - 4.0).abs() < 1e-3 && (hi - est - 4.0).abs() < 1e-3);
+    let j = summary_json(&r);
+    let b = &j["bounds"];
+    assert_eq!(num(&b["max_gradient"]), 1.0); // 1000 K/m = 1 °C/mm
+    assert_eq!(b["max_gradient_unit"], "C/mm");
+    assert_eq!(num(&b["confidence"]), 0.95);
+    assert!((num(&b["hottest_temperature_interval"][0]) - 40.0).abs() < 1e-9);
+    assert!((num(&b["hottest_temperature_interval"][1]) - 52.5).abs() < 1e-9);
+    assert_eq!(b["admissible"], true);
+    let g = &j["gradient_study"];
+    assert_eq!(num(&g["minimum_required_gradient"]), 0.325);
+    assert_eq!(num(&g["peak_upper_bound"][0]["max_gradient"]), 0.5);
+    assert!(
+        (num(&g["peak_upper_bound"][0]["hottest_temperature_upper_bound"]) - 46.3).abs() < 1e-9
+    );
+    let text = text_summary(&r);
+    assert!(text.contains("Strict bounds    hottest temperature in [40.00, 52.50] °C"));
+    assert!(text.contains("at least 0.325 °C/mm"));
+    let svg = output(&r, "profile.svg");
+    assert!(svg.contains("strict bounds (|slope| ≤ G = 1.0 °C/mm, 95 %)"));
+    let html = output(&r, "report.html");
+    assert!(html.contains("How hot could it be?"));
+    assert!(html.contains("<td>0.5</td><td>46.30</td>"));
+    for out in [text.as_str(), html.as_str(), &j.to_string()] {
+        assert_eq!(
+            out.matches(SAFETY_CAUTION).count(),
+            1,
+            "safety caution once"
+        );
+    }
+    roxmltree::Document::parse(&svg).expect("well-formed SVG");
+}
+
+#[test]
+fn a_ruled_out_gradient_is_said_plainly_with_no_number() {
+    let r = with_bounds(true);
+    let j = summary_json(&r);
+    assert_eq!(j["bounds"]["admissible"], false);
+    assert!(j["bounds"]["hottest_temperature_interval"].is_null());
+    assert!(
+        j["bounds"]["message"]
+            .as_str()
+            .unwrap()
+            .contains("ruled out by the readings")
+    );
+    let text = text_summary(&r);
+    assert!(text.contains("none: the readings rule out a gradient limit of 1.0 °C/mm"));
+    let profile = csv_rows(&output(&r, "profile.csv"));
+    assert!(
+        profile[1..]
+            .iter()
+            .all(|row| row[9].is_empty() && row[10].is_empty())
+    );
+    assert!(
+        cautions_contain(&j, "ruled out by the readings"),
+        "the empty set is among the cautions"
+    );
 }

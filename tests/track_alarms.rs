@@ -6,6 +6,7 @@
 
 use edgetherm::geometry::EdgeProfile;
 use edgetherm::io::{Case, CaseFiles, LoggerOptions, LoggerReader, LoggerRow, load_case};
+use edgetherm::track::bounds::RowBound;
 use edgetherm::track::health::Problem;
 use edgetherm::track::synthetic::{Fault, FaultKind, Spec, write_log};
 use edgetherm::track::{RowStatus, TrackOptions, TrackSummary, Tracker};
@@ -353,4 +354,61 @@ fn a_hot_spot_growing_under_one_sensor_keeps_its_witness_and_its_alarm() {
         "an episode started well before the truth crossed"
     );
     assert_eq!(s.episodes.len(), 1, "{:?}", s.episodes);
+}
+
+/// `track` with a stated gradient limit bounds every N-th row strictly: on the log of the
+/// alarm test (a 26 mm hot spot growing to 90 K, steepest slope 90 K · √(2/e) / 13 mm ≈
+/// 5.9 K/mm), under G = 7 K/mm the strict interval of every bounded row holds the true
+/// hottest temperature (each row's bounds hold with at least 95 %, and the chi-square region
+/// over 8 sensors makes them conservative; Stark 1992), and a row bounded above the limit is
+/// in alarm.
+#[test]
+fn strict_bounds_on_rows_hold_the_truth() {
+    let case = busbar();
+    let amp = |r: usize| 0.1 * (r as f64 - 300.0).max(0.0);
+    let (_d, path, truth) = log(&case, 1200, &amp, vec![], 43);
+    let opts = TrackOptions {
+        limit: Some(K + 90.0),
+        max_gradient_k_per_m: Some(7000.0),
+        bounds_every: 100,
+        ..TrackOptions::default()
+    };
+    let mut tracker = Tracker::new(&case, opts).unwrap();
+    let mut reader = LoggerReader::open(&path, &case, &LoggerOptions::default()).unwrap();
+    let mut row = LoggerRow::default();
+    let mut bounded = Vec::new();
+    let mut k = 0usize;
+    let mut sink = |rec: &edgetherm::track::RowRecord<'_>| {
+        if let Some(b) = rec.bound {
+            bounded.push((k, b));
+        }
+        k += 1;
+        Ok(())
+    };
+    while reader.next_row(&mut row).unwrap() {
+        tracker.push(&row, &mut sink).unwrap();
+    }
+    tracker.finish(&mut sink).unwrap();
+    let s = tracker.snapshot();
+    let counts = s.bounds.expect("bounds were asked for");
+    assert_eq!(counts.rows as usize, bounded.len());
+    assert!(bounded.len() >= 12, "only {} rows bounded", bounded.len());
+    for &(r, b) in &bounded {
+        match b {
+            RowBound::Interval([lo, hi]) => {
+                println!("row {r}: truth {:.2} in [{lo:.2}, {hi:.2}]", truth[r]);
+                assert!(
+                    lo <= truth[r] && truth[r] <= hi,
+                    "row {r}: {:?} vs {}",
+                    b,
+                    truth[r]
+                );
+                if lo > K + 90.0 {
+                    let in_alarm = s.episodes.iter().any(|e| row_of(&e.start) <= r);
+                    assert!(in_alarm, "row {r} bounded above the limit but not in alarm");
+                }
+            }
+            other => panic!("row {r}: {other:?} although the truth obeys the limit"),
+        }
+    }
 }

@@ -1,8 +1,11 @@
 //! `edgetherm estimate CASE_DIR`: the main job. Reconstruct the hidden edges and the field
 //! from one set of readings, with uncertainty, and write the outputs of SPEC §3.3.
 //!
-//! Exit status: 0 done; 3 when `--limit` is given and the probability that a hidden edge
-//! exceeds it passes `--probability`; 2 invalid input; 1 internal error.
+//! Exit status: 0 done; 3 when `--limit` is given and either the probability that a hidden
+//! edge exceeds it passes `--probability`, or the strict bounds under a stated gradient limit
+//! put the hottest temperature above it (its lower bound exceeds the limit); 2 invalid input;
+//! 1 internal error. Strict bounds that rule the limit out never lower the exit status: the
+//! alarm stays with the estimate's exceedance probability.
 
 use super::{GlobalOptions, parse_strength, print_stdout};
 use edgetherm::estimate::{EstimateOptions, estimate};
@@ -56,6 +59,14 @@ pub struct EstimateArgs {
     /// Field grid: NX,NY points, edges included [default: 41,41].
     #[arg(long, value_name = "NX,NY")]
     pub grid: Option<String>,
+    /// Steepest credible change of a hidden edge's temperature along it, in the case's
+    /// temperature unit per length unit: strict bounds that hold for every edge obeying it
+    /// [default: the case's [bounds] max_gradient].
+    #[arg(long, value_name = "G")]
+    pub max_gradient: Option<f64>,
+    /// Skip the strict bounds and the gradient study (they cost a few seconds).
+    #[arg(long)]
+    pub no_bounds: bool,
 }
 
 /// Run `estimate`.
@@ -106,6 +117,24 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
                 })
         })
         .collect::<Result<Vec<usize>>>()?;
+    let max_gradient_k_per_m = match args.max_gradient {
+        Some(g) if g.is_finite() && g > 0.0 => {
+            Some(case.units.dtemp_to_k(g) / case.units.length_to_m(1.0))
+        }
+        Some(g) => {
+            return Err(Error::invalid_field(
+                "--max-gradient",
+                format!("must be a positive number (temperature unit per length unit), not {g}"),
+            ));
+        }
+        None => None,
+    };
+    if args.no_bounds && args.max_gradient.is_some() {
+        return Err(Error::invalid_field(
+            "--no-bounds",
+            "--no-bounds and --max-gradient ask for opposite things; give one of them",
+        ));
+    }
     let options = EstimateOptions {
         mode: args.bootstrap.as_deref().map(|m| {
             if m == "residual" {
@@ -125,6 +154,8 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
         seed: args.seed,
         strength,
         exclude,
+        strict_bounds: !args.no_bounds,
+        max_gradient_k_per_m,
     };
 
     let total = options.replicates.unwrap_or(case.uncertainty.replicates) as u64;
@@ -162,9 +193,15 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
         ));
         print_stdout(&text)?;
     }
-    Ok(if result.exceedance.is_some_and(|e| e.alarm) {
-        3
-    } else {
-        0
-    })
+    let bounds_exceed = match (limit, edgetherm::report::bounds_hottest_interval(&result)) {
+        (Some(t), Some([lo, _])) => lo > t,
+        _ => false,
+    };
+    Ok(
+        if result.exceedance.is_some_and(|e| e.alarm) || bounds_exceed {
+            3
+        } else {
+            0
+        },
+    )
 }

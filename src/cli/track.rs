@@ -76,6 +76,15 @@ pub struct TrackArgs {
     /// Never leave out a sensor that has a reading (problems are still reported).
     #[arg(long)]
     pub keep_all: bool,
+    /// Strict bounds on the hottest temperature of rows, for every hidden edge changing by
+    /// at most G (case temperature unit per length unit) along it [default: the case's
+    /// [bounds] max_gradient, else none]. A row bounded above --limit is in alarm.
+    #[arg(long, value_name = "G")]
+    pub max_gradient: Option<f64>,
+    /// With strict bounds: bound every N-th fitted row (and each row that opens an alarm
+    /// episode); each bounded row costs conic programs (tenths of a second).
+    #[arg(long, value_name = "N", default_value_t = edgetherm::track::bounds::DEFAULT_BOUNDS_EVERY)]
+    pub bounds_every: usize,
     /// Ignore logger columns that are not sensors of the case (else they are an error).
     #[arg(long)]
     pub ignore_extra: bool,
@@ -118,6 +127,7 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
         ("--calibrate", args.calibrate),
         ("--replicates", args.replicates),
         ("--draws", Some(args.draws)),
+        ("--bounds-every", Some(args.bounds_every)),
     ] {
         if v == Some(0) {
             return Err(Error::invalid_field(flag, "must be at least 1"));
@@ -134,6 +144,18 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
         None => None,
     };
     let strength = args.strength.as_deref().map(parse_strength).transpose()?;
+    let max_gradient_k_per_m = match args.max_gradient {
+        Some(g) if g.is_finite() && g > 0.0 => {
+            Some(case.units.dtemp_to_k(g) / case.units.length_to_m(1.0))
+        }
+        Some(g) => {
+            return Err(Error::invalid_field(
+                "--max-gradient",
+                format!("must be a positive number (temperature unit per length unit), not {g}"),
+            ));
+        }
+        None => None,
+    };
     let options = TrackOptions {
         strength,
         calibrate: args.calibrate,
@@ -145,6 +167,8 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
         keep_all: args.keep_all,
         bootstrap: args.bootstrap,
         replicates: args.replicates,
+        max_gradient_k_per_m,
+        bounds_every: args.bounds_every,
         ..TrackOptions::default()
     };
     let mut tracker = Tracker::new(&case, options)?;

@@ -72,6 +72,11 @@ pub struct EstimateOptions {
     /// Sensors the user knows to be faulty (indices into `case.sensors`): left out before
     /// the fit, whatever their readings.
     pub exclude: Vec<usize>,
+    /// Compute strict bounds and the gradient study ([`crate::bounds`]); off by default
+    /// because they cost conic programs (the command line turns them on).
+    pub strict_bounds: bool,
+    /// Override the case's `[bounds] max_gradient`, K/m.
+    pub max_gradient_k_per_m: Option<f64>,
 }
 
 impl Default for EstimateOptions {
@@ -86,6 +91,8 @@ impl Default for EstimateOptions {
             seed: None,
             strength: None,
             exclude: Vec::new(),
+            strict_bounds: false,
+            max_gradient_k_per_m: None,
         }
     }
 }
@@ -200,6 +207,9 @@ pub fn estimate(
         options.keep_all,
         &bank,
         &edge_maps,
+        options
+            .max_gradient_k_per_m
+            .or(case.bounds.max_gradient_k_per_m),
     )?;
     flags.extend(search.flags);
     let doubts = search.doubts;
@@ -212,6 +222,18 @@ pub fn estimate(
 
     // Linear maps of the outputs.
     let shape = *plate.shape();
+    let bounds = options.strict_bounds.then(|| {
+        crate::bounds::estimate_bounds(
+            case,
+            &points,
+            readings,
+            &used,
+            fit.sigma.as_slice(),
+            stated,
+            options.max_gradient_k_per_m,
+            &edge_positions,
+        )
+    });
     let prof_matrix = stack(edge_maps.iter().map(|m| &m.matrix));
     let prof_offset: Vec<f64> = edge_maps
         .iter()
@@ -455,6 +477,7 @@ pub fn estimate(
         replicates,
         bootstrap_mode: mode.name().to_string(),
         seed,
+        bounds,
         cautions,
     })
 }
@@ -475,7 +498,8 @@ struct FaultSearch {
 /// candidates whose fault probability exceeds [`FAULT_POSTERIOR`] from the most to the least
 /// likely, and leaves out the first one that no hot feature of a hidden edge explains (a
 /// reading lower than predicted is always a candidate: leaving it out is the hotter
-/// explanation). A candidate that a hot feature explains is kept and reported as doubtful.
+/// explanation). A candidate that a hot feature explains is kept and reported as doubtful;
+/// with a stated gradient limit (`max_gradient`, K/m) the feature must obey it.
 /// The case is refitted and the search repeated, at most until a quarter of the sensors are
 /// out. `used` is updated in place.
 #[allow(clippy::too_many_arguments)]
@@ -488,6 +512,7 @@ fn fault_search(
     keep_all: bool,
     bank: &explain::FeatureBank,
     edge_maps: &[LinearMap],
+    max_gradient: Option<f64>,
 ) -> Result<FaultSearch> {
     let mut flags: Vec<(usize, String)> = Vec::new();
     let mut doubts: Vec<DoubtfulSensor> = Vec::new();
@@ -528,7 +553,7 @@ fn fault_search(
         let mut removed = None;
         for (k, v) in candidates {
             let hot = if v.z > 0.0 {
-                explain::hot_explanation(bank, edge_maps, &input, k, strength, None)?
+                explain::hot_explanation(bank, edge_maps, &input, k, strength, max_gradient)?
             } else {
                 None
             };

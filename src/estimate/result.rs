@@ -218,6 +218,9 @@ pub struct EstimateResult {
     pub bootstrap_mode: String,
     /// Seed of the bootstrap.
     pub seed: u64,
+    /// Strict bounds under a gradient limit and the gradient study
+    /// ([`crate::bounds::estimate_bounds`]); `None` when not asked for.
+    pub bounds: Option<crate::bounds::BoundsResult>,
     /// Cautions for the reader.
     pub cautions: Vec<String>,
 }

@@ -130,6 +130,17 @@ pub struct UncertaintySettings {
     pub position_sigma_m: Option<f64>,
 }
 
+/// The `[bounds]` settings: what strict bounds may assume about the hidden edges.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize)]
+pub struct BoundsSettings {
+    /// Steepest credible change of a hidden edge's temperature along it, K/m.
+    pub max_gradient_k_per_m: Option<f64>,
+    /// Lowest temperature a hidden edge can have, kelvin.
+    pub min_temperature_k: Option<f64>,
+    /// Highest temperature a hidden edge can have, kelvin.
+    pub max_temperature_k: Option<f64>,
+}
+
 /// The files of a case.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
 pub struct CaseFiles {
@@ -203,6 +214,8 @@ pub struct Case {
     pub uncertainty: UncertaintySettings,
     /// The `[design]` settings (used by `edgetherm design` only).
     pub design: DesignSettings,
+    /// The `[bounds]` settings (strict bounds under a gradient limit).
+    pub bounds: BoundsSettings,
     /// Where the case came from.
     pub files: CaseFiles,
 }
@@ -240,6 +253,7 @@ fn load(files: &CaseFiles, with_sensors: bool) -> Result<Case> {
         noise: pf.noise,
         uncertainty: pf.uncertainty,
         design: pf.design,
+        bounds: pf.bounds,
         files,
     })
 }

@@ -21,8 +21,8 @@ mod plate_file;
 mod spans;
 
 pub use case::{
-    Case, CaseFiles, FitSettings, Sensor, Smoothing, StrengthRule, UncertaintySettings, load_case,
-    load_readings, read_truth_profiles,
+    BoundsSettings, Case, CaseFiles, FitSettings, Sensor, Smoothing, StrengthRule,
+    UncertaintySettings, load_case, load_readings, read_truth_profiles,
 };
 pub use logger::{
     LoggerOptions, LoggerReader, LoggerRow, StreamWriter, TRACK_OUTPUT_FILE_NAMES,

@@ -8,7 +8,7 @@
 use crate::error::{Error, Result};
 use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Shape};
 use crate::io::case::{
-    CandidateSource, DesignSettings, FitSettings, Region, Smoothing, StrengthRule,
+    BoundsSettings, CandidateSource, DesignSettings, FitSettings, Region, Smoothing, StrengthRule,
     UncertaintySettings,
 };
 use crate::io::csv_files::{self, absolute_temperature};
@@ -47,6 +47,17 @@ struct RawFile {
     #[serde(default)]
     uncertainty: RawUncertainty,
     design: Option<RawDesign>,
+    #[serde(default)]
+    bounds: RawBounds,
+}
+
+/// `[bounds]`: the statement strict bounds rest on.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawBounds {
+    max_gradient: Option<f64>,
+    min_temperature: Option<f64>,
+    max_temperature: Option<f64>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -176,6 +187,7 @@ pub(crate) struct PlateFile {
     pub noise: NoiseSpec,
     pub uncertainty: UncertaintySettings,
     pub design: DesignSettings,
+    pub bounds: BoundsSettings,
     /// The profile files the fixed edges refer to, resolved against the plate file's
     /// directory.
     pub profiles: Vec<(Edge, PathBuf)>,
@@ -355,7 +367,54 @@ impl Checker<'_> {
                 Some(d) => self.design(d, &units, &shape)?,
                 None => DesignSettings::default(),
             },
+            bounds: self.bounds(raw.bounds, &units)?,
             profiles,
+        })
+    }
+
+    /// `[bounds]`: a positive, finite gradient limit converted to K/m, and temperature limits
+    /// in kelvin with `min < max`.
+    fn bounds(&self, raw: RawBounds, units: &Units) -> Result<BoundsSettings> {
+        let max_gradient_k_per_m = match raw.max_gradient {
+            None => None,
+            Some(g) if g.is_finite() && g > 0.0 => {
+                Some(units.dtemp_to_k(g) / units.length_to_m(1.0))
+            }
+            Some(g) => {
+                return Err(self.err(
+                    "bounds.max_gradient",
+                    format!(
+                        "the gradient limit must be a positive number (temperature unit per \
+                         length unit), not {g}"
+                    ),
+                ));
+            }
+        };
+        let temperature = |field: &str, v: Option<f64>| -> Result<Option<f64>> {
+            match v {
+                None => Ok(None),
+                Some(t) => {
+                    let t = self.finite(field, t)?;
+                    absolute_temperature(units, t)
+                        .map(Some)
+                        .map_err(|m| self.err(field, m))
+                }
+            }
+        };
+        let min_temperature_k = temperature("bounds.min_temperature", raw.min_temperature)?;
+        let max_temperature_k = temperature("bounds.max_temperature", raw.max_temperature)?;
+        if let (Some(lo), Some(hi)) = (min_temperature_k, max_temperature_k) {
+            if lo >= hi {
+                return Err(self.err(
+                    "bounds.max_temperature",
+                    "max_temperature must be above min_temperature",
+                ));
+            }
+        }
+        Ok(BoundsSettings {
+            max_gradient_k_per_m,
+            min_temperature_k,
+            max_temperature_k,
         })
     }
 
@@ -803,6 +862,31 @@ sigma = 0.5
             }
             other => panic!("expected an invalid-input error, got {other:?}"),
         }
+    }
+
+    #[test]
+    fn bounds_section_in_si_units() {
+        let f = parse(GOOD).unwrap();
+        assert_eq!(f.bounds, BoundsSettings::default());
+        let f = parse(&format!(
+            "{GOOD}\n[bounds]\nmax_gradient = 2.5\nmin_temperature = 10.0\nmax_temperature = 90.0\n"
+        ))
+        .unwrap();
+        // 2.5 °C/mm = 2500 K/m; 0 °C = 273.15 K (definitions of the units)
+        let g = f.bounds.max_gradient_k_per_m.unwrap();
+        assert!((g - 2500.0).abs() < 1e-9, "{g}");
+        assert!((f.bounds.min_temperature_k.unwrap() - 283.15).abs() < 1e-9);
+        assert!((f.bounds.max_temperature_k.unwrap() - 363.15).abs() < 1e-9);
+        // 1 °F/in = (5/9) K / 0.0254 m = 21.872 K/m (1 in = 25.4 mm exactly)
+        let text = GOOD
+            .replace("length_unit = \"mm\"", "length_unit = \"in\"")
+            .replace("temperature_unit = \"C\"", "temperature_unit = \"F\"")
+            .replace("width = 150.0", "width = 6.0")
+            .replace("height = 60", "height = 2.5")
+            + "\n[bounds]\nmax_gradient = 1.0\n";
+        let f = parse(&text).expect("the inch/Fahrenheit plate parses");
+        let g = f.bounds.max_gradient_k_per_m.unwrap();
+        assert!((g - 5.0 / 9.0 / 0.0254).abs() < 1e-9, "{g}");
     }
 
     #[test]

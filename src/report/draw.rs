@@ -52,6 +52,8 @@ pub(crate) const SIMULTANEOUS: RGBColor = RGBColor(0x3d, 0x5a, 0x80);
 pub(crate) const HOTTEST: RGBColor = RGBColor(0xc8, 0x43, 0x1a);
 /// The limit line: a dark red.
 pub(crate) const LIMIT: RGBColor = RGBColor(0x9b, 0x11, 0x1e);
+/// The strict-bound envelopes: a dark teal, apart from the bootstrap bands' blues.
+pub(crate) const BOUNDS: RGBColor = RGBColor(0x0f, 0x6e, 0x5c);
 
 /// A `plotters` font size that renders at `px` CSS pixels.
 pub(crate) fn font(px: f64) -> f64 {

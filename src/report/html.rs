@@ -181,8 +181,14 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
         o,
         "<figcaption>Reconstructed temperature along each unknown edge: shaded, the {conf} \
          pointwise band; dashed, the {conf} simultaneous band (covers the whole edge at once); \
-         below, each sensor's depth under the edge.</figcaption>\n</figure>"
+         below, each sensor's depth under the edge{}.</figcaption>\n</figure>",
+        if super::bounds::bounds_hottest_interval(r).is_some() {
+            "; solid teal, the strict bounds under the stated gradient limit"
+        } else {
+            ""
+        }
     );
+    o.push_str(&super::bounds::bounds_html(r));
     o.push_str("<h2>Temperature field</h2>\n<figure>\n");
     o.push_str(strip_xml_declaration(field_svg));
     o.push_str(

@@ -14,6 +14,7 @@
 //! ([`render_outputs`]); [`write_outputs`] then writes each file atomically through
 //! [`crate::io::write_atomic`]. Nothing here prints.
 
+mod bounds;
 mod contour;
 pub(crate) mod draw;
 mod field_plot;
@@ -25,6 +26,7 @@ mod profile_plot;
 mod summary;
 mod tables;
 
+pub use bounds::bounds_hottest_interval;
 pub use summary::{SAFETY_CAUTION, cautions, summary_json, text_summary};
 
 use crate::error::{Error, Result};

@@ -4,9 +4,10 @@
 //! along it (what the reconstruction could see, and from how deep).
 
 use super::draw::{
-    AXIS_PX, Anchor, Area, BAND, DrawResult, ESTIMATE, FAMILY, FOOTER_H, GREY, GRID, Glyph,
+    AXIS_PX, Anchor, Area, BAND, BOUNDS, DrawResult, ESTIMATE, FAMILY, FOOTER_H, GREY, GRID, Glyph,
     HOTTEST, INK, LEGEND_ROW_H, LIMIT, Marker, PLOT_SAFETY_NOTE, SIMULTANEOUS, TEXT_PX, TITLE_PX,
-    TextOpts, font, legend, legend_rows, line, marker, sensor_label_width, sensor_marker, text,
+    TextOpts, font, label_box, legend, legend_rows, line, marker, sensor_label_width,
+    sensor_marker, text,
 };
 use super::format::{CaseUnits, edge_coordinate, fixed, tick};
 use super::labels::{Placer, Rect, around_marker, text_width};
@@ -54,6 +55,22 @@ fn header(r: &EstimateResult) -> Header {
             format!("hottest point, {conf} intervals"),
         ),
     ];
+    if let Some(g) = super::bounds::stated_gradient(r) {
+        if r.edges
+            .iter()
+            .any(|e| super::bounds::edge_envelope(r, e.edge).is_some())
+        {
+            let u = CaseUnits::new(r.units);
+            legend.push((
+                Glyph::Line(BOUNDS, 2),
+                format!(
+                    "strict bounds (|slope| ≤ G = {} {}, {conf})",
+                    super::bounds::gradient_text(&u, g),
+                    super::bounds::gradient_unit_show(&u)
+                ),
+            ));
+        }
+    }
     if let Some(x) = &r.exceedance {
         let u = CaseUnits::new(r.units);
         legend.push((
@@ -195,6 +212,9 @@ fn temperature_range(r: &EstimateResult, e: &EdgeResult, u: &CaseUnits) -> (f64,
         &e.simultaneous_upper,
     ];
     let mut extra = vec![];
+    if let Some((lo, hi)) = super::bounds::edge_envelope(r, e.edge) {
+        extra.extend(lo.iter().chain(hi).copied());
+    }
     if r.hottest.edge == e.edge {
         extra.extend(r.hottest.temperature_interval);
     }
@@ -318,7 +338,20 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
             )))?;
         }
     }
+    // Strict-bound envelopes, solid teal.
+    if let Some((b_lo, b_hi)) = super::bounds::edge_envelope(r, e.edge) {
+        for band in [b_lo, b_hi] {
+            for run in runs(n, |k| s(k).is_finite() && at(band, k).is_finite()) {
+                let pts: Vec<(f64, f64)> = run.map(|k| (s(k), at(band, k))).collect();
+                chart.draw_series(std::iter::once(PathElement::new(
+                    pts,
+                    BOUNDS.stroke_width(2),
+                )))?;
+            }
+        }
+    }
     // Limit.
+    let mut limit_label: Option<(String, f64, f64)> = None;
     if let Some(x) = &r.exceedance {
         let lim = u.temp(x.limit);
         if lim.is_finite() {
@@ -329,18 +362,17 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
                 LIMIT.stroke_width(2),
             )))?;
             let (px1, py) = chart.backend_coord(&(x_max, lim));
-            text(
-                root,
-                &format!(
+            // drawn last, on a white box, clear of the hottest point's bars where it can be
+            limit_label = Some((
+                format!(
                     "limit {}  ·  P(exceeded) = {}{}",
                     u.temp_show(x.limit),
                     fixed(x.probability, 3),
                     if x.alarm { "  ·  ALARM" } else { "" }
                 ),
                 f64::from(px1) - 6.0,
-                f64::from(py) - 10.0,
-                TextOpts::new(TEXT_PX, Anchor::Right).colour(LIMIT).bold(),
-            )?;
+                f64::from(py),
+            ));
         }
     }
     // The estimate.
@@ -365,6 +397,7 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
     }
     // The hottest point with its intervals.
     let h = &r.hottest;
+    let mut hottest_box: Option<Rect> = None;
     if h.edge == e.edge {
         let (p, t) = (u.len(h.position), u.temp(h.temperature));
         let (p0, p1) = (u.len(h.position_interval[0]), u.len(h.position_interval[1]));
@@ -391,7 +424,42 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
                 line(root, &[(cx - cap, y1), (cx + cap, y1)], bar)?;
             }
             marker(root, Marker::Hottest, cx, cy, 5.0)?;
+            let (xa, _) = to_px((p0.max(0.0), t));
+            let (xb, _) = to_px((p1.min(x_max), t));
+            let (_, ya) = to_px((p, t1));
+            let (_, yb) = to_px((p, t0));
+            hottest_box = Some(Rect {
+                x0: xa.min(cx - cap).min(xb) - 2.0,
+                x1: xb.max(cx + cap).max(xa) + 2.0,
+                y0: ya.min(yb).min(cy - cap) - 2.0,
+                y1: ya.max(yb).max(cy + cap) + 2.0,
+            });
         }
+    }
+    if let Some((label, x, y)) = limit_label {
+        let w = text_width(&label, TEXT_PX) + 6.0;
+        let h = TEXT_PX + 4.0;
+        // the boxes stop 3 px short of the limit line, which stays whole
+        let above = Rect::anchored(x + 3.0, y - 11.0, w, h, 1.0, 0.5);
+        let below = Rect::anchored(x + 3.0, y + 12.0, w, h, 1.0, 0.5);
+        let hits = |b: &Rect| {
+            hottest_box
+                .as_ref()
+                .is_some_and(|o| b.x0 < o.x1 && o.x0 < b.x1 && b.y0 < o.y1 && o.y0 < b.y1)
+        };
+        let (boxed, ty) = if hits(&above) && !hits(&below) {
+            (below, y + 12.0)
+        } else {
+            (above, y - 10.0)
+        };
+        label_box(root, &boxed, 0.85)?;
+        text(
+            root,
+            &label,
+            x,
+            ty,
+            TextOpts::new(TEXT_PX, Anchor::Right).colour(LIMIT).bold(),
+        )?;
     }
 
     // Depth panel.

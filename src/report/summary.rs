@@ -27,7 +27,7 @@ fn is_safety_caution(c: &str) -> bool {
 /// wording of it is replaced by [`SAFETY_CAUTION`]).
 pub fn cautions(r: &EstimateResult) -> Vec<String> {
     let mut out: Vec<String> = Vec::new();
-    for c in &r.cautions {
+    for c in r.cautions.iter().chain(&super::bounds::bounds_cautions(r)) {
         if !is_safety_caution(c) && !out.contains(c) {
             out.push(c.clone());
         }
@@ -246,6 +246,12 @@ pub fn summary_json(r: &EstimateResult) -> Value {
         })
         .collect();
     out.insert("doubtful_sensors".into(), Value::Array(doubtful));
+    if let Some(b) = super::bounds::bounds_json(r) {
+        out.insert("bounds".into(), b);
+    }
+    if let Some(g) = super::bounds::gradient_study_json(r) {
+        out.insert("gradient_study".into(), g);
+    }
     out.insert("sensor_count".into(), json!(r.sensors.len()));
     out.insert(
         "units".into(),
@@ -350,6 +356,10 @@ pub fn text_summary(r: &EstimateResult) -> String {
                 fixed(x.alarm_probability, 3)
             ),
         );
+    }
+
+    for (label, text) in super::bounds::bounds_text(r) {
+        line(&mut out, &label, &text);
     }
 
     let flags = flagged(r);

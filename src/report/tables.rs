@@ -5,9 +5,10 @@ use super::format::{CaseUnits, RATIO_FILE_DECIMALS, opt_fixed};
 use crate::error::{Error, Result};
 use crate::estimate::EstimateResult;
 
-/// Header of `profile.csv`: the five columns of SPEC §3.3, then the simultaneous band and
-/// the linear cross-check band.
-pub(crate) const PROFILE_HEADER: [&str; 9] = [
+/// Header of `profile.csv`: the five columns of SPEC §3.3, then the simultaneous band, the
+/// linear cross-check band and the strict bounds under the stated gradient limit (empty
+/// cells without one).
+pub(crate) const PROFILE_HEADER: [&str; 11] = [
     "edge",
     "position",
     "estimate",
@@ -17,6 +18,8 @@ pub(crate) const PROFILE_HEADER: [&str; 9] = [
     "simultaneous_upper",
     "linear_lower",
     "linear_upper",
+    "bound_lower",
+    "bound_upper",
 ];
 
 /// Header of `field.csv` (SPEC §3.3).
@@ -52,6 +55,7 @@ pub(crate) fn profile_csv(r: &EstimateResult) -> Result<Vec<u8>> {
     w.write_record(PROFILE_HEADER).map_err(csv_error)?;
     for e in &r.edges {
         let get = |v: &[f64], k: usize| v.get(k).copied().unwrap_or(f64::NAN);
+        let (b_lo, b_hi) = super::bounds::edge_envelope(r, e.edge).unwrap_or((&[], &[]));
         for (k, &s) in e.positions.iter().enumerate() {
             w.write_record([
                 e.edge.name().to_string(),
@@ -63,6 +67,8 @@ pub(crate) fn profile_csv(r: &EstimateResult) -> Result<Vec<u8>> {
                 u.temp_file(get(&e.simultaneous_upper, k)),
                 u.temp_file(get(&e.linear_lower, k)),
                 u.temp_file(get(&e.linear_upper, k)),
+                u.temp_file(get(b_lo, k)),
+                u.temp_file(get(b_hi, k)),
             ])
             .map_err(csv_error)?;
         }

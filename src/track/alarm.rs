@@ -70,10 +70,11 @@ impl AlarmTracker {
     }
 
     /// Update with a fitted row. `hold`: a sensor in use when the open episode began is left
-    /// out on this row (module doc).
-    pub fn update(&mut self, time: &str, line: u64, fit: &RowFit, hold: bool) {
+    /// out on this row (module doc); `certain`: the row's strict bounds put the hottest
+    /// temperature above the limit (the row is in alarm whatever its probability).
+    pub fn update(&mut self, time: &str, line: u64, fit: &RowFit, hold: bool, certain: bool) {
         let Some(p) = fit.exceedance else { return };
-        let above = p > self.probability;
+        let above = p > self.probability || certain;
         match &mut self.current {
             None if above => {
                 self.current = Some(Episode {
@@ -162,15 +163,15 @@ mod tests {
     #[test]
     fn a_left_out_sensor_holds_the_episode_open() {
         let mut a = AlarmTracker::new(0.05, 3);
-        a.update("t0", 1, &row(0.9), false);
+        a.update("t0", 1, &row(0.9), false, false);
         assert!(a.just_opened());
         for k in 0..10 {
-            a.update(&format!("h{k}"), 2 + k, &row(0.0), true);
+            a.update(&format!("h{k}"), 2 + k, &row(0.0), true, false);
             assert!(a.in_alarm(), "held row {k} closed the episode");
         }
         assert_eq!(a.current.as_ref().map(|e| e.held_rows), Some(10));
         for k in 0..3 {
-            a.update(&format!("c{k}"), 20 + k, &row(0.0), false);
+            a.update(&format!("c{k}"), 20 + k, &row(0.0), false, false);
         }
         assert!(!a.in_alarm());
         let ep = &a.episodes_with_open()[0];

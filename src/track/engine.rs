@@ -993,9 +993,10 @@ impl RowEstimator {
         crate::estimate::fit::loo_residuals(&input, strength)[k]
     }
 
-    /// Whether a hot feature of a hidden edge explains sensor `i`'s reading on this row
-    /// together with the others ([`crate::estimate::explain::hot_explanation`]), with the
-    /// same inputs as [`Self::loo_verdict`]. `None` when the reading is not above what the
+    /// Whether a hot feature of a hidden edge (obeying a stated gradient limit, K/m) explains
+    /// sensor `i`'s reading on this row together with the others
+    /// ([`crate::estimate::explain::hot_explanation`]), with the same inputs as
+    /// [`Self::loo_verdict`]. `None` when the reading is not above what the
     /// others predict, or the test cannot be made.
     pub fn hot_verdict(
         &self,
@@ -1004,6 +1005,7 @@ impl RowEstimator {
         i: usize,
         order: usize,
         strength: Strength,
+        max_gradient_k_per_m: Option<f64>,
     ) -> Option<crate::estimate::explain::HotVerdict> {
         let (input, k) = self.row_input(readings, used, i, order)?;
         crate::estimate::explain::hot_explanation(
@@ -1012,7 +1014,7 @@ impl RowEstimator {
             &input,
             k,
             strength,
-            None,
+            max_gradient_k_per_m,
         )
         .ok()
         .flatten()

@@ -32,6 +32,7 @@
 //! | [`synthetic`] | synthetic logs from known truths (demos, tests, benchmark) |
 
 pub mod alarm;
+pub mod bounds;
 pub mod engine;
 pub mod health;
 pub mod plot;
@@ -73,6 +74,11 @@ pub struct TrackOptions {
     pub bootstrap: bool,
     /// Bootstrap replicates per row [default: the case's].
     pub replicates: Option<usize>,
+    /// Strict bounds under this gradient limit, K/m [default: the case's `[bounds]
+    /// max_gradient`, else none] ([`bounds`]).
+    pub max_gradient_k_per_m: Option<f64>,
+    /// Bound every this many fitted rows (and the row that opens an episode).
+    pub bounds_every: usize,
 }
 
 impl Default for TrackOptions {
@@ -89,6 +95,8 @@ impl Default for TrackOptions {
             keep_all: false,
             bootstrap: false,
             replicates: None,
+            max_gradient_k_per_m: None,
+            bounds_every: bounds::DEFAULT_BOUNDS_EVERY,
         }
     }
 }
@@ -117,6 +125,8 @@ pub struct RowRecord<'a> {
     pub missing: &'a [usize],
     /// Readings the row could use.
     pub usable: usize,
+    /// The row's strict bounds, when it was bounded.
+    pub bound: Option<bounds::RowBound>,
 }
 
 enum Mode {
@@ -150,6 +160,9 @@ pub struct Tracker {
     last_time: Option<String>,
     hottest: Option<(String, RowFit)>,
     seed: u64,
+    /// Strict bounds on rows, with a gradient limit.
+    bounds: Option<bounds::RowBounds>,
+    bound: Option<bounds::RowBound>,
 }
 
 /// Row counts.
@@ -199,7 +212,13 @@ impl Tracker {
             },
             (s, _, _) => Mode::Ready(RowStrength::PerRow(s)),
         };
+        let bounds = options
+            .max_gradient_k_per_m
+            .or(case.bounds.max_gradient_k_per_m)
+            .map(|g| bounds::RowBounds::new(case, g, options.bounds_every));
         Ok(Tracker {
+            bounds,
+            bound: None,
             health: HealthMonitor::new(case.sensors.len()),
             alarms: AlarmTracker::new(options.probability, options.clear_rows),
             series: TrackSeries::new(series::DEFAULT_BINS),
@@ -387,9 +406,20 @@ impl Tracker {
                     est.loo_verdict(&row.values, &without_these(without), i, order, rule)
                         .map(|v| (v.z, v.fault_probability))
                 };
+                let gradient = self
+                    .options
+                    .max_gradient_k_per_m
+                    .or(self.case.bounds.max_gradient_k_per_m);
                 let mut hot = |i: usize, without: &[usize]| {
-                    est.hot_verdict(&row.values, &without_these(without), i, order, rule)
-                        .map_or(f64::INFINITY, |h| h.statistic.unwrap_or(f64::NEG_INFINITY))
+                    est.hot_verdict(
+                        &row.values,
+                        &without_these(without),
+                        i,
+                        order,
+                        rule,
+                        gradient,
+                    )
+                    .map_or(f64::INFINITY, |h| h.statistic.unwrap_or(f64::NEG_INFINITY))
                 };
                 self.health.after_fit(
                     &row.time_text,
@@ -398,13 +428,32 @@ impl Tracker {
                     &mut confirm,
                     &mut hot,
                 );
+                // strict bounds on the rows that are due (module `bounds`)
+                self.bound = None;
+                let opening = !self.alarms.in_alarm()
+                    && self
+                        .fit
+                        .exceedance
+                        .is_some_and(|p| p > self.options.probability);
+                if let Some(b) = self.bounds.as_mut() {
+                    if b.due(self.counts.fitted, opening) {
+                        self.bound = Some(
+                            b.bound(&self.case, &row.values, &self.fit, self.options.limit)
+                                .unwrap_or(bounds::RowBound::Failed),
+                        );
+                    }
+                }
+                let certain = matches!(
+                    (self.bound, self.options.limit),
+                    (Some(bounds::RowBound::Interval([lo, _])), Some(l)) if lo > l
+                );
                 let hold = self.alarms.in_alarm()
                     && self
                         .episode_sensors
                         .iter()
                         .any(|i| self.used.binary_search(i).is_err());
                 self.alarms
-                    .update(&row.time_text, row.line, &self.fit, hold);
+                    .update(&row.time_text, row.line, &self.fit, hold, certain);
                 if self.alarms.just_opened() {
                     self.episode_sensors.clear();
                     self.episode_sensors.extend_from_slice(&self.used);
@@ -440,6 +489,7 @@ impl Tracker {
             left_out: &self.left_out,
             missing: &self.missing,
             usable: self.used.len(),
+            bound: self.bound,
         })
     }
 
@@ -541,6 +591,14 @@ impl Tracker {
             refuted: self.health.refuted,
             hottest: self.hottest.clone(),
             confidence: self.case.uncertainty.confidence,
+            bounds: self.bounds.as_ref().map(|b| BoundsCounts {
+                max_gradient_k_per_m: b.gradient_k_per_m(),
+                every: b.every,
+                rows: b.rows,
+                limit_certain: b.certain,
+                limit_ruled_out: b.ruled_out,
+                empty: b.empty,
+            }),
             cautions,
         }
     }
@@ -643,6 +701,25 @@ pub struct TrackSummary {
     pub hottest: Option<(String, RowFit)>,
     /// Confidence of the intervals.
     pub confidence: f64,
+    /// Strict bounds on rows, with a gradient limit.
+    pub bounds: Option<BoundsCounts>,
     /// Cautions.
     pub cautions: Vec<String>,
+}
+
+/// What the strict bounds found over a log ([`bounds`]).
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize)]
+pub struct BoundsCounts {
+    /// The gradient limit, K/m.
+    pub max_gradient_k_per_m: f64,
+    /// Bounded every this many fitted rows (and the rows that open an episode).
+    pub every: usize,
+    /// Rows bounded.
+    pub rows: u64,
+    /// Bounded rows whose hottest temperature is above the limit for every admissible edge.
+    pub limit_certain: u64,
+    /// Bounded rows where the limit is ruled out.
+    pub limit_ruled_out: u64,
+    /// Bounded rows whose admissible set was empty (the gradient limit contradicts them).
+    pub empty: u64,
 }

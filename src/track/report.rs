@@ -5,13 +5,14 @@
 use super::{RowRecord, RowStatus, TrackSummary};
 use crate::io::Case;
 use crate::report::format::CaseUnits;
-use crate::report::format::fixed;
+use crate::report::format::{fixed, significant};
 use serde_json::{Value, json};
 use std::fmt::Write as _;
 
 /// The header of `track.csv`.
 pub const TRACK_CSV_HEADER: &str = "time,status,edge,position,position_lower,position_upper,\
-temperature,lower,upper,exceedance_probability,readings_used,smoothing,strength,left_out";
+temperature,lower,upper,exceedance_probability,readings_used,smoothing,strength,bound_lower,\
+bound_upper,left_out";
 
 /// Append one `track.csv` line (with its line end) for a row to `out`.
 pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
@@ -49,11 +50,19 @@ pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
                     .as_bytes(),
             );
             let _ = write!(out, ",{},", f.lambda);
+            if let Some(super::bounds::RowBound::Interval([lo, hi])) = rec.bound {
+                push_fixed(out, u.temp(lo), TEMP_DECIMALS);
+                out.push(b',');
+                push_fixed(out, u.temp(hi), TEMP_DECIMALS);
+            } else {
+                out.push(b',');
+            }
+            out.push(b',');
         }
         RowStatus::Skipped(why) => {
             let _ = write!(
                 out,
-                ",{},,,,,,,,,{},,,",
+                ",{},,,,,,,,,{},,,,,",
                 csv_cell(&format!("skipped: {why}")),
                 rec.usable,
             );
@@ -265,6 +274,15 @@ pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
             "episode_count": s.episodes.len(),
             "episodes": episodes,
         })),
+        "bounds": s.bounds.map(|b| json!({
+            "max_gradient": significant(u.dtemp(b.max_gradient_k_per_m) / u.len(1.0), 4),
+            "max_gradient_unit": format!("{}/{}", u.temp_code(), u.len_symbol()),
+            "every": b.every,
+            "rows_bounded": b.rows,
+            "rows_limit_certain": b.limit_certain,
+            "rows_limit_ruled_out": b.limit_ruled_out,
+            "rows_empty": b.empty,
+        })),
         "sensor_problem_count": s.events.len(),
         "sensor_problems": sensors,
         "unlisted_sensor_problems": s.unlisted_events,
@@ -316,6 +334,30 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
             u.temp_show(f.temperature),
             u.temp_show(f.temperature_interval[0]),
             u.temp_show(f.temperature_interval[1]),
+        );
+    }
+    if let Some(b) = s.bounds {
+        let _ = writeln!(
+            out,
+            "Strict bounds (every hidden edge changing by at most {} {}/{}, {} %): {} rows \
+             bounded (every {} fitted rows and each row opening an episode){}.",
+            crate::report::format::significant_text(
+                u.dtemp(b.max_gradient_k_per_m) / u.len(1.0),
+                3
+            ),
+            u.temp_symbol(),
+            u.len_symbol(),
+            fixed(100.0 * s.confidence, 0),
+            b.rows,
+            b.every,
+            match s.limit {
+                Some(_) => format!(
+                    "; on {} the limit is exceeded for every admissible edge, on {} it is ruled \
+                     out; {} contradict the gradient limit",
+                    b.limit_certain, b.limit_ruled_out, b.empty
+                ),
+                None => format!("; {} contradict the gradient limit", b.empty),
+            }
         );
     }
     if let Some(l) = s.limit {

@@ -1,0 +1,549 @@
+//! The admissible set, discretised without losing any admissible truth.
+//!
+//! Each hidden edge `e` of length `L_e` carries `K_e` equally spaced nodes `s_j = j h_e`; the
+//! unknowns of every bound program are the node values `v_j`, read as the piecewise-linear
+//! profile `g = Σ_j v_j θ_j` with the hat functions `θ_j` (half hats at the two ends, so that
+//! `Σ_j θ_j = 1`). A true profile `f` obeying `|f'| ≤ G` is represented by its *quasi-
+//! interpolant* `v_j = ⟨f, θ_j⟩ / ⟨1, θ_j⟩` (hat-weighted local means), which keeps three
+//! facts that make every bound strict (docs/method.md, "Strict bounds"):
+//!
+//! 1. node slopes `|v_{j+1} − v_j| ≤ G h_e` (a difference of two means of `f` whose weights
+//!    are at most `h_e` apart in the Wasserstein sense);
+//! 2. `|v_j − f(s_j)| ≤ G h_e / 3` (the mean distance from `s_j` under `θ_j`);
+//! 3. the readings of `f` and of `g` differ by at most `G ρ_i` at sensor `i`, with
+//!    `ρ_i = Σ_e ∫ |R_{ie}|`, `R_{ie}(s) = ∫_0^s (K_{ie} − Q K_{ie})`, where `K_{ie}` is the
+//!    sensor's kernel along edge `e` (the Poisson kernel as a series) and `Q` the same
+//!    quasi-interpolation: `⟨f, K − QK⟩ = −⟨f', R⟩` because `⟨1, K − QK⟩ = 0`. This is second
+//!    order in `h_e / depth`, far smaller than the first-order `G h_e / 2` a plain
+//!    interpolant would cost through the maximum principle.
+//!
+//! The readings of `g` are computed by superposition through the forward model with every
+//! hidden edge fixed at a hat (exact Fourier coefficients of piecewise-linear data,
+//! [`crate::forward::EdgeBasis::project`]); the series beyond `N` terms is bounded per sensor
+//! by `ε_{ie} S_e(v)` with
+//! `ε_{ie} = 4 e^{−k_c d_{ie}} / (k_c L_e (1 − e^{−π d_{ie} / L_e}))`, `k_c` the smaller of
+//! `N π / L_e` and the wavenumber where the series stops because `e^{−k d}` fell below
+//! [`NEGLIGIBLE_DECAY`], and
+//! `S_e = |u(0)| + |u(L_e)| + TV(u)`, `u = g − B` (integration by parts of the Fourier
+//! coefficient, `|a_n| ≤ 2 S_e / (k_n L_e)`, and `ψ_n(d) ≤ 2 e^{−k_n d}`; Carslaw & Jaeger
+//! §5.2 for the series). `S_e` is a convex function of the node values and enters the
+//! programs through auxiliary variables.
+
+use crate::error::{Error, Result};
+use crate::forward::basis::NEGLIGIBLE_DECAY;
+use crate::forward::{ForwardModel, SeriesOptions};
+use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Point};
+use rayon::prelude::*;
+
+/// How finely the admissible set is discretised.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Discretisation {
+    /// Nodes per hidden edge (at least 3). The pointwise bounds pay `G h / 3` for the node
+    /// spacing `h = L / (nodes − 1)`.
+    pub nodes_per_edge: usize,
+    /// Series terms used to map the node profile to the sensors (the tail beyond them is
+    /// bounded and added to the misfit allowance).
+    pub terms: usize,
+}
+
+impl Default for Discretisation {
+    fn default() -> Self {
+        Discretisation {
+            nodes_per_edge: 241,
+            terms: 1024,
+        }
+    }
+}
+
+/// One affine expression `coef · v + constant` in the node values (kelvin).
+#[derive(Debug, Clone)]
+pub(crate) struct Affine {
+    pub coef: Vec<(usize, f64)>,
+    pub constant: f64,
+}
+
+/// One hidden edge's nodes within the variable vector.
+#[derive(Debug, Clone)]
+pub struct EdgeNodes {
+    /// The edge.
+    pub edge: Edge,
+    /// Edge length, metres.
+    pub length_m: f64,
+    /// Node positions, metres from the edge's lower coordinate.
+    pub positions_m: Vec<f64>,
+    /// Index of the first node in the variable vector.
+    pub first: usize,
+    /// Node spacing, metres.
+    pub spacing_m: f64,
+}
+
+/// The discretised admissible set, independent of the gradient limit.
+#[derive(Debug, Clone)]
+pub struct AdmissibleSet {
+    /// The hidden edges' nodes.
+    pub edges: Vec<EdgeNodes>,
+    /// Number of node variables.
+    pub node_count: usize,
+    /// `m × node_count`, row-major: model readings `H v + offset`, kelvin per kelvin.
+    pub(crate) h: Vec<f64>,
+    /// Model readings with every hidden edge at 0 K, kelvin.
+    pub(crate) offset: Vec<f64>,
+    /// Readings, kelvin.
+    pub(crate) readings: Vec<f64>,
+    /// Reading standard uncertainties, kelvin.
+    pub(crate) sigmas: Vec<f64>,
+    /// `ρ_i`, metres: the quasi-interpolation allowance per unit gradient.
+    pub(crate) rho_m: Vec<f64>,
+    /// `ε_{ie}` per sensor and edge (dimensionless).
+    pub(crate) tail: Vec<Vec<f64>>,
+    /// Per edge: the affine terms whose absolute values (plus `G L_e`) make `S_e`.
+    pub(crate) tail_terms: Vec<Vec<Affine>>,
+    /// Largest `ε_{ie}` (reported).
+    pub max_tail_factor: f64,
+}
+
+/// Quadrature points per node cell for the kernels (at least this many, and enough for a
+/// tenth of the shallowest depth).
+const SUBPOINTS: usize = 8;
+
+/// Margin on the quadrature of `ρ_i`: trapezoid sums of a kernel that is smooth on the scale
+/// of the sensor depth, sampled at a tenth of it or finer, are accurate to well under 1 %
+/// (the trapezoid error is `(Δs)² / 12` times the second derivative); 10 % covers that.
+const QUADRATURE_MARGIN: f64 = 1.1;
+
+impl AdmissibleSet {
+    /// Build the set for `plate`'s hidden edges and the sensors in use.
+    ///
+    /// # Errors
+    /// [`Error::Invalid`] when a sensor lies on a hidden edge or the sizes disagree;
+    /// errors of the forward model.
+    pub fn new(
+        plate: &Plate,
+        sensors: &[Point],
+        readings_k: &[f64],
+        sigmas_k: &[f64],
+        disc: Discretisation,
+    ) -> Result<Self> {
+        let m = sensors.len();
+        if readings_k.len() != m || sigmas_k.len() != m || m == 0 {
+            return Err(Error::Internal(
+                "strict bounds: sensors, readings and sigmas differ in number".into(),
+            ));
+        }
+        if sigmas_k.iter().any(|s| !(s.is_finite() && *s > 0.0))
+            || readings_k.iter().any(|r| !r.is_finite())
+        {
+            return Err(Error::Internal(
+                "strict bounds: readings and sigmas must be finite, sigmas positive".into(),
+            ));
+        }
+        let shape = *plate.shape();
+        let hidden = plate.unknown_edges();
+        let k_nodes = disc.nodes_per_edge.max(3);
+        let mut edges = Vec::new();
+        let mut first = 0;
+        for &edge in &hidden {
+            let Some(length) = shape.edge_length(edge) else {
+                continue;
+            };
+            let h = length / (k_nodes - 1) as f64;
+            let positions: Vec<f64> = (0..k_nodes).map(|j| j as f64 * h).collect();
+            edges.push(EdgeNodes {
+                edge,
+                length_m: length,
+                positions_m: positions,
+                first,
+                spacing_m: h,
+            });
+            first += k_nodes;
+        }
+        let node_count = first;
+        for (i, p) in sensors.iter().enumerate() {
+            for e in &edges {
+                if shape.depth_from(e.edge, *p) <= 0.0 {
+                    return Err(Error::invalid_field(
+                        "sensors",
+                        format!(
+                            "sensor {} lies on the hidden {} edge: strict bounds need every \
+                             sensor inside the plate",
+                            i + 1,
+                            e.edge
+                        ),
+                    ));
+                }
+            }
+        }
+        let options = SeriesOptions {
+            unknown_terms: 1,
+            known_terms: disc.terms.max(16),
+        };
+        // Readings with every hidden edge at 0 K, and the base at each hidden edge's ends.
+        let zero: Vec<(Edge, EdgeProfile)> = hidden
+            .iter()
+            .map(|&e| (e, EdgeProfile::constant(0.0)))
+            .collect();
+        let (offset, base0) = hat_response(plate, &zero, sensors, &edges, options)?;
+        // One column per node: the hat's readings minus the zero readings.
+        let columns: Vec<(Vec<f64>, Vec<[f64; 2]>)> = (0..node_count)
+            .into_par_iter()
+            .map(|var| {
+                let mut profiles = zero.clone();
+                let e = &edges[var / k_nodes];
+                let j = var - e.first;
+                let hat = hat_profile(&e.positions_m, j)?;
+                if let Some(slot) = profiles.iter_mut().find(|(x, _)| *x == e.edge) {
+                    slot.1 = hat;
+                }
+                let (r, b) = hat_response(plate, &profiles, sensors, &edges, options)?;
+                Ok((
+                    r.iter().zip(&offset).map(|(a, o)| a - o).collect(),
+                    b.iter()
+                        .zip(&base0)
+                        .map(|(x, y)| [x[0] - y[0], x[1] - y[1]])
+                        .collect(),
+                ))
+            })
+            .collect::<Result<Vec<_>>>()?;
+        let mut h = vec![0.0; m * node_count];
+        for (var, (col, _)) in columns.iter().enumerate() {
+            for i in 0..m {
+                h[i * node_count + var] = col[i];
+            }
+        }
+        // Tail terms: u(0) = v_0 − B(0), u(L) = v_K − B(L), TV(B) = |B(L) − B(0)|.
+        let mut tail_terms = Vec::new();
+        for (ei, e) in edges.iter().enumerate() {
+            let base_at = |end: usize| -> Affine {
+                let coef: Vec<(usize, f64)> = columns
+                    .iter()
+                    .enumerate()
+                    .map(|(var, (_, b))| (var, b[ei][end]))
+                    .filter(|(_, c)| *c != 0.0)
+                    .collect();
+                Affine {
+                    coef,
+                    constant: base0[ei][end],
+                }
+            };
+            let (b0, b1) = (base_at(0), base_at(1));
+            let minus = |a: &Affine, var: usize| -> Affine {
+                let mut coef: Vec<(usize, f64)> = a.coef.iter().map(|&(i, c)| (i, -c)).collect();
+                coef.push((var, 1.0));
+                Affine {
+                    coef,
+                    constant: -a.constant,
+                }
+            };
+            let u0 = minus(&b0, e.first);
+            let u1 = minus(&b1, e.first + k_nodes - 1);
+            let mut db: Vec<(usize, f64)> = b1.coef.clone();
+            db.extend(b0.coef.iter().map(|&(i, c)| (i, -c)));
+            let tv_b = Affine {
+                coef: db,
+                constant: b1.constant - b0.constant,
+            };
+            tail_terms.push(vec![u0, u1, tv_b]);
+        }
+        let n_terms = options.known_terms as f64;
+        let mut tail = vec![vec![0.0; edges.len()]; m];
+        let mut max_tail_factor = 0.0_f64;
+        for (i, p) in sensors.iter().enumerate() {
+            for (ei, e) in edges.iter().enumerate() {
+                let d = shape.depth_from(e.edge, *p);
+                // the first omitted mode: beyond the N terms, or where the series itself
+                // stops because e^{−k d} fell below NEGLIGIBLE_DECAY
+                let k = (n_terms * std::f64::consts::PI / e.length_m)
+                    .min((1.0 / NEGLIGIBLE_DECAY).ln() / d);
+                let eps = 4.0 * (-k * d).exp()
+                    / (k * e.length_m * -(-std::f64::consts::PI * d / e.length_m).exp_m1());
+                tail[i][ei] = eps;
+                max_tail_factor = max_tail_factor.max(eps);
+            }
+        }
+        let rho_m = quasi_interpolation_allowance(plate, sensors, &edges)?;
+        Ok(AdmissibleSet {
+            edges,
+            node_count,
+            h,
+            offset,
+            readings: readings_k.to_vec(),
+            sigmas: sigmas_k.to_vec(),
+            rho_m,
+            tail,
+            tail_terms,
+            max_tail_factor,
+        })
+    }
+
+    /// The same set for other readings of the same sensors (kelvin): everything but the
+    /// readings depends on the layout only, so a simulation study builds the set once.
+    ///
+    /// # Errors
+    /// [`Error::Internal`] when the number of readings differs or one is not finite.
+    pub fn with_readings(&self, readings_k: &[f64]) -> Result<Self> {
+        if readings_k.len() != self.readings.len() || readings_k.iter().any(|r| !r.is_finite()) {
+            return Err(Error::Internal(
+                "strict bounds: new readings must be finite, one per sensor".into(),
+            ));
+        }
+        let mut out = self.clone();
+        out.readings = readings_k.to_vec();
+        Ok(out)
+    }
+
+    /// A set given directly by its matrices, for checks against an independent solver: one
+    /// hidden edge (named `edge`) of `length_m` with `nodes` nodes, model readings
+    /// `h · v + offset` (`h` row-major, `m × nodes`), readings and sigmas (kelvin), and the
+    /// per-sensor model-error allowance per unit gradient `rho_m` (metres). No series tail.
+    ///
+    /// # Errors
+    /// [`Error::Internal`] when the sizes disagree or a value is not finite.
+    #[allow(clippy::too_many_arguments)]
+    pub fn from_matrix(
+        edge: Edge,
+        length_m: f64,
+        nodes: usize,
+        h: Vec<f64>,
+        offset: Vec<f64>,
+        readings_k: Vec<f64>,
+        sigmas_k: Vec<f64>,
+        rho_m: Vec<f64>,
+    ) -> Result<Self> {
+        let m = readings_k.len();
+        let ok = nodes >= 2
+            && length_m.is_finite()
+            && length_m > 0.0
+            && h.len() == m * nodes
+            && offset.len() == m
+            && sigmas_k.len() == m
+            && rho_m.len() == m
+            && h.iter()
+                .chain(&offset)
+                .chain(&readings_k)
+                .chain(&rho_m)
+                .all(|v| v.is_finite())
+            && sigmas_k.iter().all(|s| s.is_finite() && *s > 0.0);
+        if !ok || m == 0 {
+            return Err(Error::Internal(
+                "strict bounds: inconsistent matrices for a set".into(),
+            ));
+        }
+        let spacing = length_m / (nodes - 1) as f64;
+        Ok(AdmissibleSet {
+            edges: vec![EdgeNodes {
+                edge,
+                length_m,
+                positions_m: (0..nodes).map(|j| j as f64 * spacing).collect(),
+                first: 0,
+                spacing_m: spacing,
+            }],
+            node_count: nodes,
+            h,
+            offset,
+            readings: readings_k,
+            sigmas: sigmas_k,
+            rho_m,
+            tail: vec![vec![0.0]; m],
+            tail_terms: vec![Vec::new()],
+            max_tail_factor: 0.0,
+        })
+    }
+
+    /// Number of sensors.
+    pub fn sensor_count(&self) -> usize {
+        self.readings.len()
+    }
+
+    /// The readings the model predicts for node values `v`, kelvin.
+    pub fn predict(&self, v: &[f64]) -> Vec<f64> {
+        let n = self.node_count;
+        (0..self.sensor_count())
+            .map(|i| {
+                self.offset[i]
+                    + self.h[i * n..(i + 1) * n]
+                        .iter()
+                        .zip(v)
+                        .map(|(a, b)| a * b)
+                        .sum::<f64>()
+            })
+            .collect()
+    }
+
+    /// The quasi-interpolation allowance `ρ_i` per sensor, metres (reading error per unit
+    /// gradient).
+    pub fn rho_m(&self) -> &[f64] {
+        &self.rho_m
+    }
+}
+
+/// The hat function of node `j` as a piecewise-linear profile.
+fn hat_profile(nodes: &[f64], j: usize) -> Result<EdgeProfile> {
+    let last = nodes.len() - 1;
+    let mut pos = Vec::new();
+    let mut val = Vec::new();
+    if j > 1 {
+        pos.push(0.0);
+        val.push(0.0);
+    }
+    if j > 0 {
+        pos.push(nodes[j - 1]);
+        val.push(0.0);
+    }
+    pos.push(nodes[j]);
+    val.push(1.0);
+    if j < last {
+        pos.push(nodes[j + 1]);
+        val.push(0.0);
+    }
+    if j + 1 < last {
+        pos.push(nodes[last]);
+        val.push(0.0);
+    }
+    EdgeProfile::piecewise_linear(pos, val).map_err(Error::Internal)
+}
+
+/// Readings at `sensors` with the hidden edges fixed at `profiles`, and the corner base at the
+/// two ends of each hidden edge.
+fn hat_response(
+    plate: &Plate,
+    profiles: &[(Edge, EdgeProfile)],
+    sensors: &[Point],
+    edges: &[EdgeNodes],
+    options: SeriesOptions,
+) -> Result<(Vec<f64>, Vec<[f64; 2]>)> {
+    let fixed = plate.with_unknowns_fixed(profiles)?;
+    let model = ForwardModel::new(&fixed, options)?;
+    let readings = sensors
+        .iter()
+        .map(|&p| model.temperature(&[], p))
+        .collect::<Result<Vec<f64>>>()?;
+    let shape = fixed.shape();
+    let base = edges
+        .iter()
+        .map(|e| {
+            [
+                model
+                    .base()
+                    .evaluate(shape.point_on(e.edge, 0.0), |_, _| {}),
+                model
+                    .base()
+                    .evaluate(shape.point_on(e.edge, e.length_m), |_, _| {}),
+            ]
+        })
+        .collect();
+    Ok((readings, base))
+}
+
+/// `ρ_i = Σ_e ∫_0^{L_e} |R_{ie}(s)| ds` with `R_{ie}(s) = ∫_0^s (K_{ie} − Q K_{ie})`, metres,
+/// by the trapezoid rule on a sub-grid of each node cell, times [`QUADRATURE_MARGIN`].
+///
+/// The kernel of sensor `i` along edge `e` is the series
+/// `K(s) = Σ_n φ_n(s_i) ψ_n(d_i) φ_n(s) / ‖φ_n‖²` (Carslaw & Jaeger §5.2); an edge's corner
+/// base depends only on its end values, so interior changes of the profile act through `K`
+/// alone.
+fn quasi_interpolation_allowance(
+    plate: &Plate,
+    sensors: &[Point],
+    edges: &[EdgeNodes],
+) -> Result<Vec<f64>> {
+    let model = ForwardModel::new(
+        plate,
+        SeriesOptions {
+            unknown_terms: 1024,
+            known_terms: 16,
+        },
+    )?;
+    let shape = plate.shape();
+    let mut rho = vec![0.0; sensors.len()];
+    for e in edges {
+        let Some(series) = model.series_of(e.edge) else {
+            continue;
+        };
+        if !matches!(plate.condition(e.edge), Some(EdgeCondition::Unknown)) {
+            continue;
+        }
+        let n = series.terms();
+        let min_depth = sensors
+            .iter()
+            .map(|&p| shape.depth_from(e.edge, p))
+            .fold(f64::INFINITY, f64::min);
+        let per_cell = SUBPOINTS.max((10.0 * e.spacing_m / min_depth).ceil() as usize);
+        let cells = e.positions_m.len() - 1;
+        let fine: Vec<f64> = (0..=cells * per_cell)
+            .map(|k| k as f64 * e.spacing_m / per_cell as f64)
+            .collect();
+        let ds = e.spacing_m / per_cell as f64;
+        // φ_n at the fine points, divided by ‖φ_n‖².
+        let mut phi = vec![0.0; fine.len() * n];
+        for (k, &s) in fine.iter().enumerate() {
+            series.basis.values_into(s, &mut phi[k * n..(k + 1) * n]);
+            for (t, v) in phi[k * n..(k + 1) * n].iter_mut().enumerate() {
+                *v /= series.basis.norm_sq(t);
+            }
+        }
+        let per_sensor: Vec<f64> = sensors
+            .par_iter()
+            .map(|&p| {
+                let (s_i, d_i) = (shape.position_along(e.edge, p), shape.depth_from(e.edge, p));
+                let mut w = vec![0.0; n];
+                let used = series.modes_into(s_i, d_i, &mut w);
+                // The kernel's omitted modes (n ≥ used): |K_tail| ≤ Σ ψ_n (2/L) ≤ τ with
+                // ψ_n ≤ 2 e^{−k_n d} and k_n ≥ nπ/L, so |K_tail − Q K_tail| ≤ 2τ and their
+                // share of ∫|R| is at most 2 τ L².
+                let len = e.length_m;
+                let k_omit = used as f64 * std::f64::consts::PI / len;
+                let tau = 4.0 / len * (-k_omit * d_i).exp()
+                    / -(-std::f64::consts::PI * d_i / len).exp_m1();
+                let kernel: Vec<f64> = (0..fine.len())
+                    .map(|k| {
+                        phi[k * n..k * n + used]
+                            .iter()
+                            .zip(&w[..used])
+                            .map(|(a, b)| a * b)
+                            .sum()
+                    })
+                    .collect();
+                // node means c_j = ⟨K, θ_j⟩ / ⟨1, θ_j⟩ (trapezoid)
+                let mut c = vec![0.0; cells + 1];
+                let mut wsum = vec![0.0; cells + 1];
+                for (k, &kv) in kernel.iter().enumerate() {
+                    let tw = if k == 0 || k == fine.len() - 1 {
+                        0.5
+                    } else {
+                        1.0
+                    };
+                    let cell = (k / per_cell).min(cells - 1);
+                    let t = (k - cell * per_cell) as f64 / per_cell as f64;
+                    for (j, theta) in [(cell, 1.0 - t), (cell + 1, t)] {
+                        c[j] += tw * theta * kv;
+                        wsum[j] += tw * theta;
+                    }
+                }
+                for (cj, wj) in c.iter_mut().zip(&wsum) {
+                    *cj /= wj;
+                }
+                // D = K − QK, R = ∫ D, ∫ |R|
+                let diff = |k: usize| {
+                    let cell = (k / per_cell).min(cells - 1);
+                    let t = (k - cell * per_cell) as f64 / per_cell as f64;
+                    kernel[k] - ((1.0 - t) * c[cell] + t * c[cell + 1])
+                };
+                let mut r = 0.0;
+                let mut prev_d = diff(0);
+                let mut integral = 0.0;
+                for k in 1..fine.len() {
+                    let dk = diff(k);
+                    let r_new = r + 0.5 * (prev_d + dk) * ds;
+                    integral += 0.5 * (r.abs() + r_new.abs()) * ds;
+                    r = r_new;
+                    prev_d = dk;
+                }
+                integral + 2.0 * tau * len * len
+            })
+            .collect();
+        for (acc, v) in rho.iter_mut().zip(per_sensor) {
+            *acc += QUADRATURE_MARGIN * v;
+        }
+    }
+    Ok(rho)
+}
