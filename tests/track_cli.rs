@@ -49,7 +49,7 @@ fn sample_log_raises_the_alarm_and_names_the_open_sensor() {
     assert_eq!(csv.lines().count(), 2881);
     assert!(
         csv.lines()
-            .all(|l| l.split(',').count() == 14 || l.contains('"'))
+            .all(|l| l.split(',').count() == 16 || l.contains('"'))
     );
     let json: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(out.path().join("summary.json")).unwrap())
