@@ -66,7 +66,11 @@ fn readings(c: &edgetherm::io::Case, t: &EdgeProfile, seed: u64) -> Vec<Option<f
     let model = truth_model(&c.plate, &[(Edge::Bottom, t.clone())]).unwrap();
     let pts: Vec<Point> = c.sensors.iter().map(|s| s.position).collect();
     let exact = exact_readings(&model, &pts).unwrap();
-    add_noise(&exact, 0.2, seed).unwrap().into_iter().map(Some).collect()
+    add_noise(&exact, 0.2, seed)
+        .unwrap()
+        .into_iter()
+        .map(Some)
+        .collect()
 }
 
 fn main() {
@@ -80,7 +84,12 @@ fn main() {
     let xs: Vec<f64> = (0..10).map(|k| 0.01 + 0.02 * f64::from(k)).collect();
     for depth in [0.004, 0.006, 0.010] {
         let c = case(&xs, |_| depth);
-        for (height, fwhm) in [(10.0, 4.0e-3), (20.0, 8.0e-3), (40.0, 6.0e-3), (20.0, 16.0e-3)] {
+        for (height, fwhm) in [
+            (10.0, 4.0e-3),
+            (20.0, 8.0e-3),
+            (40.0, 6.0e-3),
+            (20.0, 16.0e-3),
+        ] {
             let t = truth(height, 0.09, fwhm);
             let (mut out, mut doubt) = (0, 0);
             for seed in 0..draws {

@@ -173,10 +173,13 @@ pub(crate) fn polygon(area: &Area<'_>, pts: &[(f64, f64)], style: ShapeStyle) ->
     Ok(())
 }
 
-/// The marker of a sensor in the estimate's plots: flagged, without a reading, or used.
+/// The marker of a sensor in the estimate's plots: flagged, kept as doubtful, without a
+/// reading, or used.
 pub(crate) fn sensor_marker(s: &crate::estimate::SensorResult) -> Marker {
     if s.flag.is_some() {
         Marker::Flagged
+    } else if s.doubtful {
+        Marker::Doubtful
     } else if s.reading.is_none() {
         Marker::SensorNoReading
     } else {
@@ -184,9 +187,9 @@ pub(crate) fn sensor_marker(s: &crate::estimate::SensorResult) -> Marker {
     }
 }
 
-/// Width of a sensor's label, px (flagged sensors are labelled in bold).
+/// Width of a sensor's label, px (flagged and doubtful sensors are labelled in bold).
 pub(crate) fn sensor_label_width(s: &crate::estimate::SensorResult, font_px: f64) -> f64 {
-    if s.flag.is_some() {
+    if s.flag.is_some() || s.doubtful {
         super::labels::bold_text_width(&s.sensor, font_px)
     } else {
         super::labels::text_width(&s.sensor, font_px)
@@ -202,6 +205,9 @@ pub(crate) enum Marker {
     SensorNoReading,
     /// A flagged sensor: a black square with a white cross.
     Flagged,
+    /// A sensor kept although its reading stands out (a hot spot or a fault): a dark disc
+    /// inside a ring.
+    Doubtful,
     /// The hottest point: a vermilion diamond.
     Hottest,
     /// A sensor position on an axis: a small upward triangle.
@@ -234,6 +240,19 @@ pub(crate) fn marker(area: &Area<'_>, m: Marker, x: f64, y: f64, r: f64) -> Draw
             let white = WHITE.stroke_width(2);
             line(area, &[(x - d, y - d), (x + d, y + d)], white)?;
             line(area, &[(x - d, y + d), (x + d, y - d)], white)?;
+        }
+        Marker::Doubtful => {
+            area.draw(&Circle::new(px(x, y), (r + 4.0) as u32, WHITE.filled()))?;
+            area.draw(&Circle::new(
+                px(x, y),
+                (r + 3.0) as u32,
+                INK.stroke_width(2),
+            ))?;
+            area.draw(&Circle::new(
+                px(x, y),
+                (r - 1.0).max(2.0) as u32,
+                INK.filled(),
+            ))?;
         }
         Marker::Hottest => {
             let s = r + 1.5;

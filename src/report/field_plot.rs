@@ -294,6 +294,12 @@ fn legend_items(r: &EstimateResult) -> Vec<(Glyph, String)> {
     if r.sensors.iter().any(|s| s.flag.is_some()) {
         items.push((Glyph::Marker(Marker::Flagged), "flagged sensor".to_string()));
     }
+    if r.sensors.iter().any(|s| s.doubtful) {
+        items.push((
+            Glyph::Marker(Marker::Doubtful),
+            "doubtful sensor (kept: a hot spot or a fault)".to_string(),
+        ));
+    }
     if r.sensors
         .iter()
         .any(|s| s.reading.is_none() && s.flag.is_none())
@@ -528,7 +534,7 @@ fn draw(
         if let Some(b) = placer.place_best(&around_marker(x, y, 5.0, w, hgt)) {
             label_box(root, &b, 0.75)?;
             let mut o = TextOpts::new(TEXT_PX, Anchor::Centre);
-            if s.flag.is_some() {
+            if s.flag.is_some() || s.doubtful {
                 o = o.bold();
             }
             let (cx, cy) = b.centre();

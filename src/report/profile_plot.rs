@@ -86,6 +86,12 @@ fn header(r: &EstimateResult) -> Header {
     if r.sensors.iter().any(|s| s.flag.is_some()) {
         legend.push((Glyph::Marker(Marker::Flagged), "flagged sensor".to_string()));
     }
+    if r.sensors.iter().any(|s| s.doubtful) {
+        legend.push((
+            Glyph::Marker(Marker::Doubtful),
+            "doubtful sensor (kept: a hot spot or a fault)".to_string(),
+        ));
+    }
     if r.sensors
         .iter()
         .any(|s| s.reading.is_none() && s.flag.is_none())
@@ -437,7 +443,7 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
         }
     }
     if let Some((label, x, y)) = limit_label {
-        let w = text_width(&label, TEXT_PX) + 6.0;
+        let w = super::labels::bold_text_width(&label, TEXT_PX) + 6.0;
         let h = TEXT_PX + 4.0;
         // the boxes stop 3 px short of the limit line, which stays whole
         let above = Rect::anchored(x + 3.0, y - 11.0, w, h, 1.0, 0.5);
@@ -582,7 +588,7 @@ fn draw_depth_panel(
         let cands = around_marker(x, y, 6.0, w, h);
         if let Some(b) = placer.place_best(&cands) {
             let mut o = TextOpts::new(TEXT_PX, Anchor::Left);
-            if s.flag.is_some() {
+            if s.flag.is_some() || s.doubtful {
                 o = o.bold();
             }
             text(root, &s.sensor, b.x0 + 1.0, b.centre().1, o)?;
