@@ -1,5 +1,5 @@
 //! Coverage of the strict peak interval on the cold-plate layout for three invented truths
-//! (development aid; the CI version with the narrow spot is `tests/bounds_checks.rs`).
+//! (development aid; the CI version with the narrow spot is `tests/integration/bounds_checks.rs`).
 //!
 //! `cargo run --release --example bounds_coverage -- [DRAWS]` (default 100)
 //!

@@ -1,5 +1,5 @@
 #!/usr/bin/env python3
-"""Reference values for the strict-bound programs (tests/bounds_reference.rs).
+"""Reference values for the strict-bound programs (tests/integration/bounds_reference.rs).
 
 An invented small problem -- one hidden edge of 0.12 m with 25 nodes, five sensors whose
 sensitivities are trapezoid weights of the half-plane Poisson kernel d / (pi ((x - s)^2 + d^2)),

@@ -4,8 +4,7 @@
 Regenerates the test fixtures under ``tests/fixtures/fem/``: one directory per
 case holding ``plate.toml``, ``sensors.csv``, ``truth.csv`` (cases with unknown
 edges), ``expected.csv`` (the reference temperature at every sensor), any fixed
-edge profile CSV, and a ``README.md``. The formats are those of SPEC sections
-3.1-3.3. The Rust series model is checked against ``expected.csv``.
+edge profile CSV, and a ``README.md``. The formats are those of docs/case-files.md. The Rust series model is checked against ``expected.csv``.
 
 How to run (from the repository root; about 1.5 minutes and 2.6 GB of memory
 on 2 cores):

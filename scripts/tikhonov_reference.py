@@ -2,7 +2,7 @@
 """Independent dense reference for the edgetherm Tikhonov inversion (src/inverse).
 
 Regenerates ``tests/fixtures/tikhonov/reference.json``, which
-``tests/tikhonov_reference.rs`` checks the Rust code against.
+``tests/integration/tikhonov_reference.rs`` checks the Rust code against.
 
 How to run (from the repository root, a few seconds):
 
@@ -12,9 +12,9 @@ How to run (from the repository root, a few seconds):
 
 Exit status 0 when every internal check passed, 1 otherwise (nothing is written then).
 
-Problem (SPEC section 4): minimise ||W (A c - d)||^2 + lam ||L c||^2 with W = diag(1/sigma),
-L = diag(l), some l_j = 0 (an unpenalised null space). ``lam`` here is SPEC's lambda (it
-multiplies ||L c||^2 directly; METHODS section 1 writes lam^2 for it).
+Problem (docs/method.md section 2): minimise ||W (A c - d)||^2 + lam ||L c||^2 with W = diag(1/sigma),
+L = diag(l), some l_j = 0 (an unpenalised null space). ``lam`` here is the lambda of docs/method.md (it
+multiplies ||L c||^2 directly; Hansen's texts write lam^2 for it).
 
 The Rust code works through one SVD of the standard form. This script deliberately does not:
 every quantity is computed from dense formulas with numpy/scipy (general-purpose reference
@@ -284,7 +284,7 @@ def main():
         "generator": "scripts/tikhonov_reference.py",
         "numpy": np.__version__,
         "scipy": scipy.__version__,
-        "convention": "lambda multiplies ||L c||^2 (SPEC section 4); W = diag(1/sigma)",
+        "convention": "lambda multiplies ||L c||^2 (docs/method.md section 2); W = diag(1/sigma)",
         "cases": [],
     }
     failures = []

@@ -123,7 +123,7 @@ impl Error {
     }
 
     /// The process exit status this error maps to: 2 for anything the user's inputs explain,
-    /// 1 for the rest (SPEC §3).
+    /// 1 for the rest (README, exit status).
     pub fn exit_code(&self) -> i32 {
         match self {
             Error::Invalid { .. } => 2,

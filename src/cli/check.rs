@@ -227,7 +227,7 @@ fn forward_model(case: &Case) -> Result<ForwardModelReport> {
         ));
     }
     lines.push(format!("unknowns: {}", description.unknowns));
-    // Mode k is damped by about exp(-k d) at depth d (METHODS §9): 100-fold when
+    // Mode k is damped by about exp(-k d) at depth d (`docs/method.md` §2, resolution length): 100-fold when
     // k = ln(100)/d, i.e. a wavelength of 2πd/ln(100).
     let shape = case.plate.shape();
     let mut reach = Vec::new();

@@ -1,5 +1,5 @@
 //! `edgetherm estimate CASE_DIR`: the main job. Reconstruct the hidden edges and the field
-//! from one set of readings, with uncertainty, and write the outputs of SPEC §3.3.
+//! from one set of readings, with uncertainty, and write the outputs of `docs/case-files.md`, outputs.
 //!
 //! Exit status: 0 done; 3 when `--limit` is given and either the probability that a hidden
 //! edge exceeds it passes `--probability`, or the strict bounds under a stated gradient limit
@@ -7,9 +7,9 @@
 //! 1 internal error. Strict bounds that rule the limit out never lower the exit status: the
 //! alarm stays with the estimate's exceedance probability.
 
-use super::{GlobalOptions, parse_strength, print_stdout};
+use super::{GlobalOptions, parse_grid, parse_strength, print_stdout};
 use edgetherm::estimate::{EstimateOptions, estimate};
-use edgetherm::io::{check_output_dir, load_case, load_readings, parse_grid};
+use edgetherm::io::{check_output_dir, load_case, load_readings};
 use edgetherm::report::{summary_json, text_summary, write_outputs};
 use edgetherm::uncertainty::BootstrapMode;
 use edgetherm::{Error, Result};

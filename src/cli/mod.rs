@@ -96,12 +96,49 @@ pub fn run() -> i32 {
         Command::Design(args) => design::run(args, &cli.global),
         Command::Track(args) => track::run(args, &cli.global),
     };
-    match result {
+    match result.map_err(with_flag_names) {
         Ok(code) => code,
         Err(e) => {
             let _ = writeln!(std::io::stderr(), "edgetherm: {e}");
             e.exit_code()
         }
+    }
+}
+
+/// Parse `--grid NX,NY` (each between 2 and [`edgetherm::io::MAX_GRID`]).
+pub fn parse_grid(text: &str) -> Result<(usize, usize)> {
+    use edgetherm::io::MAX_GRID;
+    let bad = || {
+        Error::invalid_field(
+            "--grid",
+            format!("expected two whole numbers NX,NY between 2 and {MAX_GRID}, got `{text}`"),
+        )
+    };
+    let (a, b) = text.split_once(',').ok_or_else(bad)?;
+    let nx: usize = a.trim().parse().map_err(|_| bad())?;
+    let ny: usize = b.trim().parse().map_err(|_| bad())?;
+    if !(2..=MAX_GRID).contains(&nx) || !(2..=MAX_GRID).contains(&ny) {
+        return Err(bad());
+    }
+    Ok((nx, ny))
+}
+
+/// The library names a setting that came from the command line `option.NAME` (it knows no
+/// flags); the message says `--NAME`, the flag the user typed.
+fn with_flag_names(e: Error) -> Error {
+    match e {
+        Error::Invalid {
+            mut location,
+            message,
+        } => {
+            if let Some(f) = location.field.as_deref() {
+                if let Some(name) = f.strip_prefix("option.") {
+                    location.field = Some(format!("--{}", name.replace('_', "-")));
+                }
+            }
+            Error::Invalid { location, message }
+        }
+        other => other,
     }
 }
 
@@ -178,5 +215,27 @@ mod tests {
         assert_eq!(num(1234567.0), "1234567");
         assert_eq!(num(1.5e20), "1.5e20");
         assert_eq!(num(2e-7), "2e-7");
+    }
+}
+
+#[cfg(test)]
+mod flag_tests {
+    use super::*;
+
+    #[test]
+    fn grid_parses_and_rejects() {
+        assert_eq!(parse_grid("41,21").unwrap(), (41, 21));
+        assert_eq!(parse_grid(" 3 , 2 ").unwrap(), (3, 2));
+        for bad in ["41", "1,5", "a,b", "5,99999", "-3,4", ""] {
+            assert!(parse_grid(bad).is_err(), "{bad}");
+        }
+    }
+
+    #[test]
+    fn library_option_fields_become_flags() {
+        let e = with_flag_names(Error::invalid_field("option.ignore_extra", "x"));
+        assert!(e.to_string().contains("field `--ignore-extra`"), "{e}");
+        let e = with_flag_names(Error::invalid_field("fit.strength", "x"));
+        assert!(e.to_string().contains("field `fit.strength`"), "{e}");
     }
 }

@@ -4,10 +4,9 @@
 //! Writes `readings.csv` (`sensor,temperature`) to `--out` or, without it, to stdout;
 //! `--field FILE` also writes the true field (`x,y,temperature`) on the grid.
 
-use super::{GlobalOptions, num, print_stdout};
+use super::{GlobalOptions, num, parse_grid, print_stdout};
 use edgetherm::io::{
-    DEFAULT_GRID, check_output_file, grid_coordinates, load_case, parse_grid, read_truth_profiles,
-    write_atomic,
+    DEFAULT_GRID, check_output_file, grid_coordinates, load_case, read_truth_profiles, write_atomic,
 };
 use edgetherm::simulate::{add_noise, exact_readings, true_field, truth_model};
 use edgetherm::{Error, Result};

@@ -1,5 +1,5 @@
 //! `edgetherm track CASE_DIR --log LOG.csv`: the estimate on every row of a logger file, the
-//! hottest point through time, alarms and failing sensors (SPEC §3, §3.2).
+//! hottest point through time, alarms and failing sensors (`docs/track.md`).
 //!
 //! The log is read on a second thread (CSV parsing and the fits then run side by side) and
 //! handed over in bounded batches, so memory stays constant. `track.csv` is written row by
@@ -182,7 +182,17 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
                 idle_exit,
             }),
         },
-    )?;
+    )
+    .map_err(|e| match e {
+        Error::Invalid {
+            location,
+            mut message,
+        } if message.ends_with(edgetherm::io::logger::IGNORE_EXTRA_HINT) => {
+            message.push_str(" (--ignore-extra)");
+            Error::Invalid { location, message }
+        }
+        other => other,
+    })?;
     if !global.quiet && !reader.ignored_columns.is_empty() {
         eprintln!(
             "edgetherm: ignoring columns that are not sensors: {}",

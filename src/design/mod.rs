@@ -1,5 +1,5 @@
 //! Sensor-layout design: choose where the sensors go before anything is drilled, and score a
-//! layout by the uncertainty it will leave along the hidden edges (SPEC §1, §3, §4).
+//! layout by the uncertainty it will leave along the hidden edges (`docs/design.md`).
 //!
 //! A design uses the forward model and the smoothness prior of the inversion: the readings
 //! are `d = A c + e`, `e ~ N(0, σ²)`, and the coefficients have the prior of [`prior`]
@@ -47,7 +47,7 @@ use nalgebra::{DMatrix, DVector};
 use serde::Serialize;
 use statrs::distribution::{ContinuousCDF, Normal};
 
-/// The design criteria (SPEC §4, issue 4).
+/// The design criteria (`docs/design.md`).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Criterion {

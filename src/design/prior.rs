@@ -1,7 +1,7 @@
 //! The prior of a design: the same Gaussian smoothness prior the inversion uses, scaled so
 //! that its pointwise spread along the hidden edge matches what the experimenter expects.
 //!
-//! The inversion minimises `‖W(Ac − d)‖² + λ Σ l_j² c_j²` with `W = diag(1/σ)` (SPEC §4,
+//! The inversion minimises `‖W(Ac − d)‖² + λ Σ l_j² c_j²` with `W = diag(1/σ)` (`docs/method.md`,
 //! [`crate::inverse`]). Read as a posterior mode (Wahba 1983, J. R. Statist. Soc. B
 //! 45:133–150), the penalty is the Gaussian prior `c_j ~ N(0, τ²/l_j²)` with `λ = 1/τ²`
 //! (kelvin⁻²: the data term is already divided by σ², so σ does not appear in `λ`; in an

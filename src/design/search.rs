@@ -1,13 +1,13 @@
 //! The layout search: greedy selection with rank-one updates, then exchange passes.
 //!
-//! Linear-Gaussian design (METHODS §3). With prior covariance `Σ₀`, readings of noise `σ_i`
+//! Linear-Gaussian design (`docs/design.md`). With prior covariance `Σ₀`, readings of noise `σ_i`
 //! and whitened sensor-map rows `h_i = g_i/σ_i`, the posterior covariance of the coefficients
 //! after a set of sensors is `C = (Σ₀⁻¹ + Σ h_i h_iᵀ)⁻¹`. Adding a candidate `h` changes it by
 //! a rank-one term (Sherman–Morrison):
 //!
 //! `C' = C − C h hᵀ C / (1 + hᵀ C h)`,
 //!
-//! so with `u = C h` and `d = hᵀ C h` the criteria change by (METHODS §3, recomputed there from the formula):
+//! so with `u = C h` and `d = hᵀ C h` the criteria change by (recomputed from the formula):
 //!
 //! | criterion | value | change when `h` is added |
 //! |---|---|---|
@@ -41,7 +41,7 @@
 //! For `information` the greedy value is within `(1 − 1/e)` of the optimum, because
 //! `log det` of the information is monotone and submodular in the set of sensors
 //! (Nemhauser, Wolsey & Fisher 1978, Math. Program. 14:265–294; Krause, Singh & Guestrin
-//! 2008, JMLR 9:235–284). `tests/design_search.rs` checks the bound and the distance to the
+//! 2008, JMLR 9:235–284). `tests/integration/design_search.rs` checks the bound and the distance to the
 //! optimum by exhaustive search on small cases.
 
 use crate::error::{Error, Result};

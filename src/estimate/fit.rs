@@ -50,6 +50,16 @@ pub const FAULT_PRIOR: f64 = 0.01;
 /// Posterior fault probability above which a sensor is flagged and left out.
 pub const FAULT_POSTERIOR: f64 = 0.99;
 
+/// Posterior probability that a sensor is faulty (module doc), given the density `good`
+/// (per kelvin) of its reading under the working-sensor model: `π p_f / (π p_f + (1 − π)
+/// good)` with the prior `π` = [`FAULT_PRIOR`] and the faulty density `p_f = 1/(2R)`,
+/// `R` = [`FAULT_RANGE_K`]. The one place the fault model's posterior is written.
+#[inline]
+pub fn fault_posterior(good: f64) -> f64 {
+    let fault = FAULT_PRIOR / (2.0 * FAULT_RANGE_K);
+    fault / (fault + (1.0 - FAULT_PRIOR) * good)
+}
+
 /// Leave-one-out verdict on one reading.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct LooVerdict {
@@ -245,10 +255,8 @@ fn loo_one(input: &FitInput, strength: Strength, i: usize) -> Option<LooVerdict>
     } else {
         zsum / wsum
     };
-    let good = dens / wsum;
-    let fault = FAULT_PRIOR / (2.0 * FAULT_RANGE_K);
     Some(LooVerdict {
         z: z.copysign(resid_sum),
-        fault_probability: fault / (fault + (1.0 - FAULT_PRIOR) * good),
+        fault_probability: fault_posterior(dens / wsum),
     })
 }

@@ -1,5 +1,5 @@
 //! The main job: reconstruct the hidden edges and the field from one set of readings, with
-//! uncertainty (SPEC §1–§4).
+//! uncertainty (README).
 //!
 //! [`estimate`] runs, in order:
 //! 1. the forward model's sensor map for the sensors that have a reading;
@@ -38,14 +38,14 @@ use nalgebra::{DMatrix, DVector};
 use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
 
 /// The strength rule used when the case does not name one. Chosen by the calibration study
-/// in `docs/calibration.md` (METHODS §10: plain GCV fails with few, deep sensors).
+/// in `docs/calibration.md` (plain GCV fails with few, deep sensors).
 pub const DEFAULT_STRENGTH: StrengthMethod = StrengthMethod::Evidence;
 
 /// A sensor can be flagged after the first round only if its fault probability exceeded this
 /// before any sensor was left out (see [`estimate`]).
 pub const FIRST_ROUND_DOUBT: f64 = 0.5;
 
-/// The caution every output carries (SPEC §5).
+/// The caution every output carries (the project rules in DEVELOPERS.md).
 pub const SAFETY_CAUTION: &str = "These are estimates, not measurements: the hidden edge was \
      inferred from interior sensors through a model. Decisions about live, hot or pressurised \
      equipment follow local codes and licensed practice.";
@@ -147,7 +147,7 @@ pub fn estimate(
             &case.files.plate,
             None,
             Some(if options.strength.is_some() {
-                "--strength"
+                "option.strength"
             } else {
                 "fit.strength"
             }),
@@ -867,7 +867,7 @@ pub(crate) fn refined_max(values: impl Fn(usize) -> f64, lo: usize, hi: usize) -
 /// smooth truth (the maximum of a rough draw exceeds the maximum of the truth) and too low at
 /// a sharp peak (smoothing bias); see `docs/calibration.md`. The position interval is the
 /// hull of the set `{s : U(s) ≥ max L}` on the hottest edge, the set that can hold the
-/// maximum (METHODS §2). `main_peak_share` is the share of replicates whose own hottest point
+/// maximum (`docs/method.md` §3). `main_peak_share` is the share of replicates whose own hottest point
 /// falls inside it.
 fn hottest_point(
     edge_positions: &[(Edge, Vec<f64>)],

@@ -4,7 +4,7 @@
 //! order `p` integrates mode by mode, `∫ (u^{(p)})² ds = Σ c_n² k_n^{2p} ‖φ_n‖²` (the lift is
 //! linear, so for `p = 2` this is exact; for `p ≤ 1` the lift's share is left unpenalised),
 //! because the eigenfunctions are orthogonal and differentiation maps each to its partner
-//! times `k_n`. The penalty is therefore diagonal (SPEC §4):
+//! times `k_n`. The penalty is therefore diagonal (`docs/method.md`):
 //!
 //! `l_j² = (k_j L_ref / π)^{2p} ‖φ_j‖² / L_ref`,
 //!

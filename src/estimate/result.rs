@@ -1,4 +1,4 @@
-//! What an estimate produces: every number the outputs of SPEC §3.3 print.
+//! What an estimate produces: every number the outputs of `docs/case-files.md`, outputs print.
 //!
 //! Values are SI (metres, kelvin; temperature differences in kelvin); [`EstimateResult::units`]
 //! says how the report converts them back to the case's units. Intervals are at

@@ -399,7 +399,7 @@ mod tests {
 
     // Fourier sine coefficients of a constant T0 on (0, W): 4 T0/(nπ) for odd n, 0 for even n
     // (standard Fourier series result; e.g. Boas, Mathematical Methods in the Physical
-    // Sciences, ch. 7; METHODS §6).
+    // Sciences, ch. 7).
     #[test]
     fn sine_coefficients_of_a_constant() {
         let w = 0.37;

@@ -1,7 +1,7 @@
 //! The forward model: steady conduction in the plate by separation of variables.
 //!
-//! Laplace's equation `∇²T = 0` with constant conductivity is solved by superposition (SPEC
-//! §4): `T = B + Σ_e S_e`, where `B` is the corner base ([`base`]) and `S_e` is one series per
+//! Laplace's equation `∇²T = 0` with constant conductivity is solved by superposition
+//! (`docs/method.md` §1): `T = B + Σ_e S_e`, where `B` is the corner base ([`base`]) and `S_e` is one series per
 //! edge that holds a temperature (fixed or unknown),
 //!
 //! `S_e(p) = Σ_n a_{e,n} φ_{e,n}(s) ψ_{e,n}(d)`,
@@ -22,8 +22,8 @@
 //! error at depth `d` after `N` terms is of order `exp(−k_N d)/N²`; where two fixed edges
 //! disagree at a corner the coefficients fall only like `1/n` and, at the edge itself, the
 //! truncated series overshoots (Gibbs). Inside the plate the error still decays
-//! exponentially with depth: about `(L/(π d)) ln(1/tol)` terms suffice at depth `d` (METHODS
-//! §8). Known edges use [`SeriesOptions::known_terms`] terms (default 512, trailing negligible
+//! exponentially with depth: about `(L/(π d)) ln(1/tol)` terms suffice at depth `d` (Gibbs and
+//! the depth decay: `docs/method.md` §1). Known edges use [`SeriesOptions::known_terms`] terms (default 512, trailing negligible
 //! coefficients dropped), enough for 1e-6 of the temperature range at 2 % of the edge length
 //! from a jump on plates up to an aspect ratio of about 2; unknown edges use
 //! [`SeriesOptions::unknown_terms`] (default 64), which sets the finest feature the
@@ -287,7 +287,7 @@ impl ForwardModel {
         offset
     }
 
-    /// The linear map from the unknowns to the temperatures at `points` (SPEC §4): `A` is
+    /// The linear map from the unknowns to the temperatures at `points` (`docs/method.md`): `A` is
     /// `points.len() × parameter_count()`.
     pub fn sensor_map(&self, points: &[Point]) -> LinearMap {
         let p = self.parameter_count();

@@ -5,7 +5,7 @@
 //! carries one [`EdgeCondition`]. All values are SI: metres and kelvin.
 //!
 //! Positions along an edge are measured from the edge's lower coordinate: `x` on the bottom
-//! and top edges, `y` on the left and right edges (SPEC §3.3).
+//! and top edges, `y` on the left and right edges (`docs/case-files.md`, outputs).
 
 mod profile;
 

@@ -13,13 +13,13 @@
 //! ‖W (A c − d)‖² + λ ‖L c‖²,      W = diag(1/σ_i),  L = diag(l_j), l_j ≥ 0      (1)
 //! ```
 //!
-//! (SPEC §4; Tikhonov regularisation in the weighted form, e.g. Hansen, *Rank-Deficient and
+//! (`docs/method.md`; Tikhonov regularisation in the weighted form, e.g. Hansen, *Rank-Deficient and
 //! Discrete Ill-Posed Problems*, SIAM 1998, ch. 5).
 //!
 //! ## Conventions
 //!
-//! * **λ is SPEC's λ**: it multiplies ‖L c‖² directly. METHODS §1 writes `lam` for its square
-//!   root (`λ = lam²`); every formula quoted from METHODS is rewritten here with `λ`, and the
+//! * **λ is the λ of `docs/method.md`**: it multiplies ‖L c‖² directly. Hansen's texts write `lam` for its square
+//!   root (`λ = lam²`); every formula quoted from the literature is rewritten here with `λ`, and the
 //!   filter factors are `f_i = g_i² / (g_i² + λ)`.
 //! * Coefficients with `l_j = 0` form the unpenalised **null space** (a constant mode, corner
 //!   parameters): their number is `q`, and `m' = m − q` is the number of data degrees of

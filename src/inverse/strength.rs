@@ -4,7 +4,7 @@
 //! Every rule is a function of the standard-form spectrum only — the kept singular values
 //! `g_i`, the data components `β_i = u_iᵀ W d`, the unfittable part `δ₀`, m and the null-space
 //! dimension q (see [`super::tikhonov`]) — so one decomposition serves every λ and every data
-//! vector. λ is SPEC's λ (METHODS' `lam²`); `f_i = g_i²/(g_i² + λ)`, and `1 − f_i` is computed
+//! vector. λ is the λ of `docs/method.md` (the literature's `lam²`); `f_i = g_i²/(g_i² + λ)`, and `1 − f_i` is computed
 //! as `λ/(g_i² + λ)` to keep its precision when λ is small. `m' = m − q`.
 //!
 //! ## The rules
@@ -12,7 +12,7 @@
 //! * **GCV** (Golub, Heath & Wahba 1979, Technometrics 21:215–223):
 //!   `V(λ) = m ‖(I − H) W d‖² / [tr(I − H)]²` with `‖(I − H) W d‖² = Σ (1−f_i)² β_i² + δ₀` and
 //!   `tr(I − H) = m − q − Σ f_i` (the null space is fitted exactly, so its q degrees of freedom
-//!   are subtracted: METHODS §1). Minimised.
+//!   are subtracted: Golub, Heath & Wahba 1979; Wahba 1985). Minimised.
 //! * **Discrepancy principle** (Morozov 1984, *Methods for Solving Incorrectly Posed
 //!   Problems*): choose λ with `χ²(λ) = ‖W (A c − d)‖² = τ² m'`. We use `m' = m − q` rather
 //!   than m: the q unpenalised directions are always fitted exactly and absorb q of the
@@ -37,7 +37,7 @@
 //!     `m' log 2π − Σ log(1 − f_i) + Σ (1 − f_i) β_i² + δ₀`. Used when σ is stated.
 //!   - **Profiled scale** ([`EvidenceKind::ProfiledScale`], s unknown): the maximising
 //!     `ŝ² = [Σ (1 − f_i) β_i² + δ₀] / m'` gives
-//!     `m' [log(2π ŝ²) + 1] − Σ log(1 − f_i)`, i.e. METHODS' `m' log(Σ β_i²(1 − f_i) + δ₀)
+//!     `m' [log(2π ŝ²) + 1] − Σ log(1 − f_i)`, i.e. the familiar `m' log(Σ β_i²(1 − f_i) + δ₀)
 //!     − Σ log(1 − f_i)` plus a constant — Wahba's GML. Used when σ is not stated (unit
 //!     weights), since the scale then has to come from the data.
 //!
@@ -45,7 +45,7 @@
 //!   compared with an independent dense Gaussian density (the reference fixture does).
 //! * **L-curve corner** (Hansen & O'Leary 1993, SIAM J. Sci. Comput. 14:1487–1503): maximum
 //!   curvature of the curve (log ‖W(Ac − d)‖, log ‖L c‖). With `ρ = χ²`, `η = ‖L c‖² =
-//!   Σ (g_i β_i/(g_i² + λ))²`, and METHODS §1's formula rewritten for `lam = √λ`:
+//!   Σ (g_i β_i/(g_i² + λ))²`, and Hansen & O'Leary's formula rewritten for `lam = √λ`:
 //!
 //!   ```text
 //!   η' = dη/dlam = −(4/lam) Σ (1 − f_i) f_i² β_i² / g_i²
@@ -248,7 +248,7 @@ impl Spectrum<'_> {
         }
     }
 
-    /// L-curve curvature κ(λ) (module doc; METHODS §1 with lam = √λ).
+    /// L-curve curvature κ(λ) (module doc; Hansen & O'Leary 1993 with lam = √λ).
     pub(crate) fn curvature(&self, lambda: f64) -> f64 {
         let lam = lambda.sqrt();
         let rho = self.chi2(lambda);

@@ -147,7 +147,7 @@ pub struct Decomposition {
 /// `W = diag(1/σ)`.
 #[derive(Debug, Clone)]
 pub struct Solution {
-    /// The strength λ (SPEC convention: it multiplies ‖L c‖²).
+    /// The strength λ (the convention of `docs/method.md`: it multiplies ‖L c‖²).
     pub lambda: f64,
     /// The coefficients c, length p.
     pub coefficients: DVector<f64>,

@@ -28,7 +28,7 @@ pub struct Sensor {
     pub line: usize,
 }
 
-/// The penalised derivative of the edge profile (SPEC §3.1 `smoothing`).
+/// The penalised derivative of the edge profile (`docs/case-files.md`, plate.toml `smoothing`).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Smoothing {
@@ -75,10 +75,10 @@ impl Smoothing {
     }
 }
 
-/// How the regularisation strength is chosen (SPEC §3.1 `strength`).
+/// How the regularisation strength is chosen (`docs/case-files.md`, plate.toml `strength`).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub enum StrengthRule {
-    /// Not stated: the inversion applies the project's default rule (METHODS §10).
+    /// Not stated: the inversion applies the project's default rule (`docs/calibration.md`).
     Default,
     /// Generalised cross-validation.
     Gcv,
@@ -335,7 +335,7 @@ pub enum CandidateSource {
     File(PathBuf),
 }
 
-/// The `[design]` settings (SPEC §3, `edgetherm design`), validated and in SI units.
+/// The `[design]` settings (`docs/design.md`), validated and in SI units.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct DesignSettings {
     /// Whether `plate.toml` has a `[design]` section at all.

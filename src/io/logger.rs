@@ -1,4 +1,4 @@
-//! Logger files for `track` (SPEC §3.2): a wide CSV with a `time` column and one column per
+//! Logger files for `track` (`docs/case-files.md`, logger files): a wide CSV with a `time` column and one column per
 //! sensor, read record by record in constant memory; and the incremental writer of
 //! `track.csv`.
 //!
@@ -67,6 +67,10 @@ pub enum TimeKind {
     /// ISO 8601 with a zone, converted to UTC.
     Zoned,
 }
+
+/// The end of the message for a column that is not a sensor: what to do besides fixing the
+/// header. The command line appends the flag that does it.
+pub const IGNORE_EXTRA_HINT: &str = "or ask for columns that are not sensors to be ignored";
 
 /// Options of the logger reader.
 #[derive(Debug, Clone, Default)]
@@ -252,7 +256,7 @@ impl LoggerReader {
                     Some(&name),
                     format!(
                         "column `{name}` is not a sensor in {}; check the header (it must be \
-                         `time` and sensor ids), or pass --ignore-extra to skip such columns",
+                         `time` and sensor ids), {IGNORE_EXTRA_HINT}",
                         case.files.sensors.display()
                     ),
                 ));
@@ -722,9 +726,9 @@ pub const TRACK_OUTPUT_FILE_NAMES: [&str; 5] = [
 /// [`Error::Invalid`] naming `--out`.
 pub fn check_track_outputs(out: &Path, inputs: &[&Path]) -> Result<()> {
     for name in TRACK_OUTPUT_FILE_NAMES {
-        crate::io::check_output_file(&out.join(name), "--out", inputs)?;
+        crate::io::check_output_file(&out.join(name), "option.out", inputs)?;
     }
-    crate::io::check_output_file(out, "--out", inputs)
+    crate::io::check_output_file(out, "option.out", inputs)
 }
 
 #[cfg(test)]

@@ -1,6 +1,6 @@
 //! Case input and result output: the only part of the library that touches files.
 //!
-//! Inputs are read in two stages (SPEC §3, STYLE "two-stage configuration"): each file is
+//! Inputs are read in two stages (raw, then validated): each file is
 //! parsed as written, then checked once and converted to metres and kelvin into a typed
 //! [`Case`]. Every problem is an [`crate::Error::Invalid`] naming the file, the 1-based line
 //! and the field (a dotted TOML key or a CSV column), which the binary maps to exit status 2.
@@ -29,7 +29,7 @@ pub use logger::{
     check_track_outputs,
 };
 pub mod grid;
-pub use grid::{DEFAULT_GRID, grid_coordinates, parse_grid};
+pub use grid::{DEFAULT_GRID, MAX_GRID, grid_coordinates};
 pub use output::{
     OUTPUT_FILE_NAMES, check_output_dir, check_output_file, create_output_dir, write_atomic,
 };

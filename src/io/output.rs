@@ -2,14 +2,14 @@
 //!
 //! [`write_atomic`] writes to a temporary file in the destination's directory and renames it
 //! into place, so an interrupted run leaves either the old file or the new one, never half a
-//! file (SPEC §3.3). [`check_output_dir`] refuses an output directory whose result files
+//! file (`docs/case-files.md`, outputs). [`check_output_dir`] refuses an output directory whose result files
 //! would replace an input (the case directory itself holds a `sensors.csv`, say).
 
 use crate::error::{Error, Result};
 use std::io::Write;
 use std::path::{Component, Path, PathBuf};
 
-/// The names of the files a run may write into its output directory (SPEC §3.3).
+/// The names of the files a run may write into its output directory (`docs/case-files.md`, outputs).
 pub const OUTPUT_FILE_NAMES: [&str; 7] = [
     "profile.csv",
     "field.csv",
@@ -67,7 +67,7 @@ pub fn check_output_names(out: &Path, names: &[&str], inputs: &[&Path]) -> Resul
         Error::invalid_at(
             out,
             None,
-            Some("--out"),
+            Some("option.out"),
             format!(
                 "{what} {}, an input; inputs are never overwritten, so choose another output \
                  directory (the default is ./edgetherm-out)",

@@ -19,17 +19,17 @@ use serde::Deserialize;
 use std::fmt;
 use std::path::{Path, PathBuf};
 
-/// Default number of series terms per unknown edge (SPEC §3.1).
+/// Default number of series terms per unknown edge (`docs/case-files.md`, plate.toml).
 pub const DEFAULT_TERMS: usize = 64;
 /// Largest number of series terms accepted: beyond this the series only adds round-off.
 pub const MAX_TERMS: usize = 4096;
-/// Default bootstrap replicates (SPEC §3.1).
+/// Default bootstrap replicates (`docs/case-files.md`, plate.toml).
 pub const DEFAULT_REPLICATES: usize = 2000;
 /// Largest number of bootstrap replicates accepted.
 pub const MAX_REPLICATES: usize = 1_000_000;
-/// Default confidence level (SPEC §3.1).
+/// Default confidence level (`docs/case-files.md`, plate.toml).
 pub const DEFAULT_CONFIDENCE: f64 = 0.95;
-/// Default random seed (SPEC §3.1).
+/// Default random seed (`docs/case-files.md`, plate.toml).
 pub const DEFAULT_SEED: u64 = 7;
 
 // ---- stage one: the file as written -------------------------------------------------------

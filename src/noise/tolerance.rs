@@ -13,10 +13,10 @@
 //!
 //! * **IEC 60584-1:2013**, *Thermocouples — Part 1: EMF specifications and tolerances*,
 //!   tolerance table, classes 1, 2 and 3. Types K, J and T are taken from the table in the
-//!   project's METHODS §4 (three agreeing copies of the standard's table).
+//!   the standard's table (three agreeing copies were compared).
 //! * **ASTM E230/E230M**, *Standard Specification for Temperature-Electromotive Force (emf)
 //!   Tables for Standardized Thermocouples*, tolerance table, standard and special limits.
-//!   Types K, J and T are taken from METHODS §4. The edition (E230/E230M-17 or later) is
+//!   Types K, J and T are taken from the standard's table. The edition (E230/E230M-17 or later) is
 //!   recalled from memory. For type K below 0 °C the sources disagree (2 % in one, 1 % in
 //!   another edition's data sheet); this module uses 2 %, the larger and so the cautious one.
 //! * Types **N and E**: every value for them is *recalled from memory, not confirmed against
@@ -28,7 +28,7 @@
 //! half-width a, whose standard deviation is a/√3.
 //!
 //! A tolerance is a limit for *new* wire and acts mostly as a fixed offset per sensor, not as
-//! independent noise per reading (METHODS §2); callers that treat it as reading noise should
+//! independent noise per reading (`docs/method.md` §3); callers that treat it as reading noise should
 //! say so in their summaries.
 
 use super::{ThermocoupleType, ToleranceClass};
@@ -75,14 +75,14 @@ const fn row(
 /// The tolerance tables. Rows of one class and type never overlap except at a shared end
 /// point, where both rows give the same value.
 const TABLE: &[Row] = &[
-    // IEC 60584-1:2013, type K (METHODS §4, three agreeing copies of the table).
+    // IEC 60584-1:2013, type K (three agreeing copies of the table).
     row(Cl::Iec1, Tc::K, -40.0, 1000.0, 1.5, 0.004, false),
     row(Cl::Iec2, Tc::K, -40.0, 1200.0, 2.5, 0.0075, false),
     row(Cl::Iec3, Tc::K, -200.0, 40.0, 2.5, 0.015, false),
-    // IEC 60584-1:2013, type J (METHODS §4). The standard has no class 3 for J.
+    // IEC 60584-1:2013, type J. The standard has no class 3 for J.
     row(Cl::Iec1, Tc::J, -40.0, 750.0, 1.5, 0.004, false),
     row(Cl::Iec2, Tc::J, -40.0, 750.0, 2.5, 0.0075, false),
-    // IEC 60584-1:2013, type T (METHODS §4).
+    // IEC 60584-1:2013, type T.
     row(Cl::Iec1, Tc::T, -40.0, 350.0, 0.5, 0.004, false),
     row(Cl::Iec2, Tc::T, -40.0, 350.0, 1.0, 0.0075, false),
     row(Cl::Iec3, Tc::T, -200.0, 40.0, 1.0, 0.015, false),
@@ -97,15 +97,15 @@ const TABLE: &[Row] = &[
     row(Cl::Iec1, Tc::E, -40.0, 800.0, 1.5, 0.004, true),
     row(Cl::Iec2, Tc::E, -40.0, 900.0, 2.5, 0.0075, true),
     row(Cl::Iec3, Tc::E, -200.0, 40.0, 2.5, 0.015, true),
-    // ASTM E230, type K (METHODS §4). Below 0 °C: 2 % (one edition's sheet says 1 %;
+    // ASTM E230, type K. Below 0 °C: 2 % (one edition's sheet says 1 %;
     // unresolved, the larger is used). Special limits below 0 °C are not tabulated.
     row(Cl::AstmStandard, Tc::K, 0.0, 1260.0, 2.2, 0.0075, false),
     row(Cl::AstmStandard, Tc::K, -200.0, 0.0, 2.2, 0.02, false),
     row(Cl::AstmSpecial, Tc::K, 0.0, 1260.0, 1.1, 0.004, false),
-    // ASTM E230, type J (METHODS §4).
+    // ASTM E230, type J.
     row(Cl::AstmStandard, Tc::J, 0.0, 760.0, 2.2, 0.0075, false),
     row(Cl::AstmSpecial, Tc::J, 0.0, 760.0, 1.1, 0.004, false),
-    // ASTM E230, type T (METHODS §4). Special limits below 0 °C are not tabulated there.
+    // ASTM E230, type T. Special limits below 0 °C are not tabulated there.
     row(Cl::AstmStandard, Tc::T, 0.0, 370.0, 1.0, 0.0075, false),
     row(Cl::AstmStandard, Tc::T, -200.0, 0.0, 1.0, 0.015, false),
     row(Cl::AstmSpecial, Tc::T, 0.0, 370.0, 0.5, 0.004, false),
@@ -264,7 +264,7 @@ mod tests {
         tolerance_limit(class, tc, t).unwrap()
     }
 
-    // IEC 60584-1:2013 class 1, type K: ±1.5 °C or 0.004·|t|, -40..1000 °C (METHODS §4).
+    // IEC 60584-1:2013 class 1, type K: ±1.5 °C or 0.004·|t|, -40..1000 °C.
     // The two parts are equal at 1.5/0.004 = 375 °C.
     #[test]
     fn iec_class1_type_k_switches_at_375() {
@@ -278,7 +278,7 @@ mod tests {
         assert!(close(lim(Cl::Iec1, Tc::K, 1000.0), 4.0));
     }
 
-    // IEC 60584-1:2013 classes 2 and 3, type K (METHODS §4).
+    // IEC 60584-1:2013 classes 2 and 3, type K.
     #[test]
     fn iec_classes_2_and_3_type_k() {
         // class 2: ±2.5 °C or 0.0075·|t|, switch at 333.3 °C.
@@ -291,7 +291,7 @@ mod tests {
         assert!(close(lim(Cl::Iec3, Tc::K, 40.0), 2.5));
     }
 
-    // IEC 60584-1:2013, types J and T (METHODS §4).
+    // IEC 60584-1:2013, types J and T.
     #[test]
     fn iec_types_j_and_t() {
         assert!(close(lim(Cl::Iec1, Tc::J, 100.0), 1.5));
@@ -308,7 +308,7 @@ mod tests {
         assert!(close(lim(Cl::Iec3, Tc::T, -200.0), 3.0));
     }
 
-    // ASTM E230 (METHODS §4): K and J standard ±2.2 °C or 0.75 %, special ±1.1 °C or 0.4 %;
+    // ASTM E230: K and J standard ±2.2 °C or 0.75 %, special ±1.1 °C or 0.4 %;
     // T standard ±1.0 °C or 0.75 %, special ±0.5 °C or 0.4 %; below zero K 2 %, T 1.5 %.
     #[test]
     fn astm_types_k_j_t() {
@@ -360,7 +360,7 @@ mod tests {
         assert!(tolerance_limit(Cl::Iec1, Tc::K, f64::INFINITY).is_err());
     }
 
-    // IEC 60584-1 has no class 3 for type J (METHODS §4 table: "—").
+    // IEC 60584-1 has no class 3 for type J (its table has no entry).
     #[test]
     fn missing_class_is_an_error() {
         let e = tolerance_limit(Cl::Iec3, Tc::J, 0.0).unwrap_err();

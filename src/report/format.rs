@@ -156,7 +156,7 @@ impl CaseUnits {
     }
 }
 
-/// The coordinate that positions run along on `edge` (SPEC §3.3).
+/// The coordinate that positions run along on `edge` (`docs/case-files.md`, outputs).
 pub(crate) fn edge_coordinate(edge: Edge) -> &'static str {
     if edge.runs_along_x() { "x" } else { "y" }
 }

@@ -1,4 +1,4 @@
-//! The report: every output of an estimate (SPEC §3.3, §3.4), made from an
+//! The report: every output of an estimate (`docs/case-files.md`), made from an
 //! [`EstimateResult`] and written in the case's units.
 //!
 //! | output | made by |
@@ -43,7 +43,7 @@ pub struct Output {
     pub bytes: Vec<u8>,
 }
 
-/// Render every output of SPEC §3.3 in memory, in the order of [`OUTPUT_FILE_NAMES`].
+/// Render every output of `docs/case-files.md`, outputs in memory, in the order of [`OUTPUT_FILE_NAMES`].
 pub fn render_outputs(result: &EstimateResult) -> Result<Vec<Output>> {
     let profile_svg = profile_plot::profile_svg(result)?;
     let field_svg = field_plot::field_svg(result)?;

@@ -1,4 +1,4 @@
-//! `summary.json` (SPEC §3.4, the part other programs rely on) and the text summary a person
+//! `summary.json` (`docs/case-files.md`, summary.json, the part other programs rely on) and the text summary a person
 //! reads on stdout, both in the case's units.
 
 use super::format::{
@@ -94,7 +94,7 @@ pub(crate) fn edge_maximum(e: &EdgeResult) -> Option<(f64, f64)> {
         .map(|(&s, &t)| (s, t))
 }
 
-/// `summary.json` as a JSON value: the keys of SPEC §3.4 with their meaning, plus heat
+/// `summary.json` as a JSON value: the keys of `docs/case-files.md`, summary.json with their meaning, plus heat
 /// flows, per-edge band widths, the bootstrap mode and the readings used.
 pub fn summary_json(r: &EstimateResult) -> Value {
     let u = CaseUnits::new(r.units);

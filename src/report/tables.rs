@@ -1,11 +1,11 @@
-//! The CSV outputs of SPEC §3.3: `profile.csv`, `field.csv` and `sensors.csv`, in the case's
+//! The CSV outputs of `docs/case-files.md`, outputs: `profile.csv`, `field.csv` and `sensors.csv`, in the case's
 //! units, with fixed precision and empty cells for missing values.
 
 use super::format::{CaseUnits, RATIO_FILE_DECIMALS, opt_fixed};
 use crate::error::{Error, Result};
 use crate::estimate::EstimateResult;
 
-/// Header of `profile.csv`: the five columns of SPEC §3.3, then the simultaneous band, the
+/// Header of `profile.csv`: the five columns of `docs/case-files.md`, outputs, then the simultaneous band, the
 /// linear cross-check band and the strict bounds under the stated gradient limit (empty
 /// cells without one).
 pub(crate) const PROFILE_HEADER: [&str; 11] = [
@@ -22,7 +22,7 @@ pub(crate) const PROFILE_HEADER: [&str; 11] = [
     "bound_upper",
 ];
 
-/// Header of `field.csv` (SPEC §3.3).
+/// Header of `field.csv` (`docs/case-files.md`, outputs).
 pub(crate) const FIELD_HEADER: [&str; 5] = ["x", "y", "estimate", "lower", "upper"];
 
 /// Header of `sensors.csv`.

@@ -60,7 +60,7 @@
 //!   the fit without it, `σ_i² + a_i C a_iᵀ`.
 
 use crate::error::{Error, Result};
-use crate::estimate::fit::{FAULT_PRIOR, FAULT_RANGE_K, select_options};
+use crate::estimate::fit::{fault_posterior, select_options};
 use crate::estimate::{AUTO_ORDERS, penalty, profile_positions, refined_max, stack};
 use crate::forward::LinearMap;
 use crate::geometry::{Edge, Point};
@@ -862,11 +862,10 @@ impl RowEstimator {
         };
         out.diagnostics.clear();
         out.diagnostics.resize(self.points.len(), None);
-        let fault = FAULT_PRIOR / (2.0 * FAULT_RANGE_K);
         let verdict = |resid: f64, sd: f64| -> (f64, f64) {
             let x = resid / sd;
             let good = (-0.5 * x * x).exp() / (sd * (2.0 * std::f64::consts::PI).sqrt());
-            (x, fault / (fault + (1.0 - FAULT_PRIOR) * good))
+            (x, fault_posterior(good))
         };
         // `verdict` for each used sensor, in three passes (the divisions, then the
         // exponentials, then the probabilities) so that the sensors' chains overlap instead of
@@ -886,7 +885,7 @@ impl RowEstimator {
         gauss.extend(xs.iter().map(|&x| (-0.5 * x * x).exp()));
         for (k, &i) in used.iter().enumerate() {
             let good = gauss[k] / (sds[k] * (2.0 * std::f64::consts::PI).sqrt());
-            out.diagnostics[i] = Some((xs[k], fault / (fault + (1.0 - FAULT_PRIOR) * good)));
+            out.diagnostics[i] = Some((xs[k], fault_posterior(good)));
         }
         if !c_ready && !use_ref && readings.iter().flatten().count() > m {
             if !projected {

@@ -2,7 +2,7 @@
 //!
 //! Four detectors, each simple enough to check by hand; the thresholds are the named
 //! constants below (design choices of this project, set so that a healthy seeded log of many
-//! thousand rows raises none, see `tests/track_alarms.rs`; not from a standard):
+//! thousand rows raises none, see `tests/integration/track_alarms.rs`; not from a standard):
 //!
 //! | problem | judged when | left out |
 //! |---|---|---|

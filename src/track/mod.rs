@@ -1,6 +1,6 @@
 //! `track`: the estimate on every row of a logger file, the hottest point through time,
 //! alarms when a hidden edge is probably over a limit, and the sensors that are failing
-//! (SPEC §2, the maintenance technician).
+//! (the maintenance technician's job in README).
 //!
 //! [`Tracker`] is fed one [`LoggerRow`] at a time and keeps only bounded state, so a log
 //! larger than memory streams through it:

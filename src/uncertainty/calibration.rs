@@ -3,7 +3,7 @@
 //! A study simulates readings from known edge profiles with many seeded noise draws, runs the
 //! estimate on each, and counts how often the truth lies inside what the estimate reports.
 //! The tests use it to hold the bands to their stated confidence, and `docs/calibration.md`
-//! records the figures that chose the defaults (METHODS §10).
+//! records the figures that chose the defaults (`docs/calibration.md`).
 
 use crate::error::Result;
 use crate::estimate::{EstimateOptions, estimate};

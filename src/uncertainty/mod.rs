@@ -4,7 +4,7 @@
 //! ## Why not the plain bootstrap
 //! Replicates generated around the smoothed fit reproduce the spread of the estimate, not its
 //! smoothing bias, so plain percentile bands cover the *smoothed* truth and miss peaks
-//! (Kuusela & Panaretos 2015, Ann. Appl. Stat. 9:1671–1705; METHODS §2 and §10).
+//! (Kuusela & Panaretos 2015, Ann. Appl. Stat. 9:1671–1705; `docs/calibration.md`).
 //!
 //! ## What is done instead
 //! Each replicate `b` draws a *possible truth* `c_b` and new readings for it, re-runs the
@@ -15,7 +15,7 @@
 //!    not affect the error of a linear estimator, which reproduces them exactly);
 //! 2. readings `d_b = A c_b + e_b`, with `e_b` Gaussian with the readings' σ (`parametric`)
 //!    or resampled from the fit's leverage-corrected, centred residuals
-//!    `r_i = e_i / sqrt([(I−S) Σ (I−S)ᵀ]_ii)` scaled by σ_i (`residual`, METHODS §2); with
+//!    `r_i = e_i / sqrt([(I−S) Σ (I−S)ᵀ]_ii)` scaled by σ_i (`residual`, `docs/method.md` §3); with
 //!    position uncertainty the readings are taken at jittered sensor positions in the field of
 //!    the estimate;
 //! 3. the strength is re-chosen on `d_b` with the case's rule and `ĉ_b` computed on the
@@ -108,7 +108,7 @@ pub struct BootstrapOutput {
     pub fallbacks: usize,
 }
 
-/// Leverage-corrected, centred residuals of a fit (dimensionless; METHODS §2).
+/// Leverage-corrected, centred residuals of a fit (dimensionless; `docs/method.md` §3).
 pub fn standardised_residuals(fit: &Fit) -> Result<Vec<f64>> {
     let m = fit.sigma.len();
     let s = fit.decomposition.influence_matrix(fit.selection.lambda)?;

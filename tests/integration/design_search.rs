@@ -4,7 +4,7 @@
 //! within a factor (1 − 1/e) of the best K-subset (Nemhauser, Wolsey & Fisher 1978, Math.
 //! Program. 14:265–294). The D-optimal value log det(I + Σ₀^{1/2} Hᵀ H Σ₀^{1/2}) is such a
 //! function of the set of sensors (Krause, Singh & Guestrin 2008, JMLR 9:235–284, and
-//! METHODS §3). The test asserts the bound for the greedy stage alone and prints how close
+//! `docs/design.md`). The test asserts the bound for the greedy stage alone and prints how close
 //! greedy + exchange gets to the exhaustive optimum for every criterion.
 
 use edgetherm::design::{Criterion, DesignSpace, LayoutSensor};

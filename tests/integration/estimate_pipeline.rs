@@ -55,7 +55,7 @@ fn rmse(r: &edgetherm::estimate::EstimateResult, truth: &EdgeProfile) -> f64 {
 
 /// Error bound for the recovery tests: `3 σ exp(π d / s)`, with `d` the deepest sensor's depth
 /// and `s` the sensor spacing along the edge. A feature of the shortest wavelength the array
-/// samples (2 s) is damped by `exp(π d / s)` at depth `d` (METHODS §9), so noise is amplified
+/// samples (2 s) is damped by `exp(π d / s)` at depth `d` (`docs/method.md` §2, resolution length), so noise is amplified
 /// by that factor when it is recovered; the factor 3 leaves room for the smoothing bias of
 /// features near that scale. The bound grows with σ and with depth, as the issue asks.
 fn bound(sigma: f64, depth: f64, spacing: f64) -> f64 {
@@ -133,7 +133,7 @@ fn deep_sensors_recover_a_smooth_profile_with_a_wider_bound() {
 
 // Square plate, one edge unknown and three held at T0; readings simulated from the unknown
 // edge at a constant T1. Superposition of the four rotations gives the centre exactly
-// (3 T0 + T1)/4 (standard textbook argument; METHODS §6). Through the whole pipeline the
+// (3 T0 + T1)/4 (standard textbook argument). Through the whole pipeline the
 // constant is recovered within the band away from the corners (where the hidden edge must
 // jump to T0), and the centre within the field band.
 #[test]
@@ -352,7 +352,7 @@ fn position_uncertainty_widens_the_bands() {
     assert!(width(&jittered) > width(&plain));
 }
 
-// IEC 60584-1:2013 class 1, type T: ±0.5 °C from −40 to 125 °C (METHODS §4), as a standard
+// IEC 60584-1:2013 class 1, type T: ±0.5 °C from −40 to 125 °C, as a standard
 // uncertainty 0.5/√3 °C by the GUM's rectangular rule (JCGM 100:2008, 4.3.7).
 #[test]
 fn tolerance_class_sets_the_reading_uncertainty() {

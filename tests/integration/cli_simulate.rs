@@ -11,7 +11,7 @@ fn write(dir: &Path, name: &str, text: &str) {
 
 /// A long strip 0 < x < 30 mm, sides at 0 °C, base at 40 °C: the closed form
 /// T = (2 T0/π) atan(sin(πx/W)/sinh(πy/W)) (Brown & Churchill, Complex Variables and
-/// Applications, steady temperatures in a semi-infinite strip; METHODS §6).
+/// Applications, steady temperatures in a semi-infinite strip).
 fn strip_case(dir: &Path) {
     write(
         dir,

@@ -13,7 +13,7 @@ fn model(plate: &Plate) -> ForwardModel {
 }
 
 // Square with one edge at T1 and three at T0: by superposition of the four rotations of the
-// problem the centre is exactly (3 T0 + T1)/4 (standard textbook argument; METHODS §6).
+// problem the centre is exactly (3 T0 + T1)/4 (standard textbook argument).
 #[test]
 fn square_centre_is_the_mean_of_its_edges() {
     let (t0, t1) = (291.4, 347.9);
@@ -44,7 +44,7 @@ fn square_centre_is_the_mean_of_its_edges() {
 
 // Long strip 0<x<W, y>0, base at T0, sides at 0:
 // T = (2 T0/π) atan(sin(πx/W) / sinh(πy/W)) (Brown & Churchill, Complex Variables and
-// Applications, steady temperatures in a semi-infinite strip; METHODS §6 [S]).
+// Applications, steady temperatures in a semi-infinite strip).
 #[test]
 fn semi_infinite_strip_matches_closed_form() {
     let w = 0.042;
@@ -72,7 +72,7 @@ fn semi_infinite_strip_matches_closed_form() {
             "({fx},{fy}): series {t}, closed form {exact}"
         );
     }
-    // Check values recomputed from the closed form with W = 1, T0 = 1 (METHODS §6 [N]).
+    // Check values recomputed from the closed form with W = 1, T0 = 1 (recomputed from the closed form).
     let unit = Plate::new(
         Shape::Strip { width_m: 1.0 },
         [fixed(1.0), fixed(0.0), None, fixed(0.0)],
@@ -92,7 +92,7 @@ fn semi_infinite_strip_matches_closed_form() {
 
 // Rectangle 0<x<L, 0<y<W with T2 on y = W and T1 elsewhere (Incropera et al., Fundamentals of
 // Heat and Mass Transfer, eq. 4.19): at L = 2, W = 1, midpoint (1, 0.5), θ = 0.44512
-// (METHODS §6 [N]).
+// (recomputed from the closed form).
 #[test]
 fn rectangle_matches_incropera_eq_4_19() {
     let plate = Plate::new(

@@ -2,7 +2,7 @@
 //! the gradient study reach `summary.json`, `profile.csv` and the text; a gradient limit the
 //! readings rule out is reported (exit 0, no bounds, a caution), never a panic or a
 //! non-finite number. Format and behaviour checks; the numbers are checked in
-//! tests/bounds_reference.rs and tests/bounds_checks.rs.
+//! tests/integration/bounds_reference.rs and tests/integration/bounds_checks.rs.
 
 use assert_cmd::cargo::cargo_bin_cmd;
 use serde_json::Value;

@@ -1,4 +1,4 @@
-//! The report layer: every output of SPEC §3.3/§3.4 made from hand-built estimate results
+//! The report layer: every output of `docs/case-files.md` made from hand-built estimate results
 //! (a bottom edge with a hot bump, a long strip, two unknown edges, °F/inch units), checked
 //! for shape, units, the safety caution, escaping and well-formed SVG/HTML.
 //!

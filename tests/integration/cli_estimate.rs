@@ -150,7 +150,7 @@ fn discrepancy_without_a_stated_sigma_names_the_plate_file() {
         );
 }
 
-// IEC 60584-1 class 1 covers type T from −40 to 350 °C (METHODS §4): a reading of 400 °C has
+// IEC 60584-1 class 1 covers type T from −40 to 350 °C: a reading of 400 °C has
 // no tolerance in that class, and the message names the readings file.
 #[test]
 fn a_reading_outside_the_tolerance_class_range_names_the_readings_file() {

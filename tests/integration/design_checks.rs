@@ -12,7 +12,7 @@
 //!    over profiles drawn from the prior (common random numbers: the same truths and noise
 //!    for every layout).
 //!
-//! Run with `cargo test --test design_checks -- --nocapture` to see the figures.
+//! Run with `cargo test --test integration design_checks:: -- --nocapture` to see the figures.
 
 use edgetherm::design::{DesignSpace, LayoutSensor, prior_draw, random_layout, uniform_layout};
 use edgetherm::estimate::{EstimateOptions, estimate};

@@ -104,7 +104,7 @@ fn bounds_shrink_onto_a_closed_form_truth_where_the_sensors_see_it() {
     // hidden. Add the Lipschitz tent between the 49 programs (G H / 2, H = W / 48) and the node
     // allowance G h / 3 (h = W / 240). The kernel approximation and the other sensors' share
     // are rough, so the check allows twice that scale.
-    // χ²_15(0.95) = 24.996 (statrs, checked against scipy in tests/bounds_reference.rs)
+    // χ²_15(0.95) = 24.996 (statrs, checked against scipy in tests/integration/bounds_reference.rs)
     let q = ChiSquared::new(15.0).expect("chi-square").inverse_cdf(0.95);
     let (r, d) = (0.088 / 14.0 / 2.0, 0.006);
     let a = (q.sqrt() * sigma * g * PI * (r * r + d * d) / d).sqrt();

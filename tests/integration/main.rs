@@ -1,0 +1,26 @@
+//! The integration tests, compiled as one binary: one link of the library and its
+//! dependencies instead of one per file, which is most of a fresh `cargo test`. Each module
+//! is one group of checks (DEVELOPERS.md lists what each checks against); run one group with
+//! `cargo test --test integration GROUP::` (e.g. `cargo test --test integration
+//! calibration:: -- --nocapture` to see its printed figures).
+
+mod bounds_checks;
+mod bounds_reference;
+mod calibration;
+mod cli_bounds;
+mod cli_check;
+mod cli_estimate;
+mod cli_invalid_input;
+mod cli_simulate;
+mod design_checks;
+mod design_cli;
+mod design_search;
+mod estimate_pipeline;
+mod forward_closed_forms;
+mod forward_fem_reference;
+mod forward_properties;
+mod report_outputs;
+mod tikhonov_reference;
+mod track_alarms;
+mod track_cli;
+mod track_equality;
