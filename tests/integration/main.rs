@@ -12,6 +12,7 @@ mod cli_check;
 mod cli_estimate;
 mod cli_invalid_input;
 mod cli_simulate;
+mod degenerate_inputs;
 mod design_checks;
 mod design_cli;
 mod design_search;
