@@ -7,7 +7,7 @@
 //! 1 internal error. Strict bounds that rule the limit out never lower the exit status: the
 //! alarm stays with the estimate's exceedance probability.
 
-use super::{GlobalOptions, parse_grid, parse_strength, print_stdout};
+use super::{GlobalOptions, parse_grid, parse_max_gradient, parse_strength, print_stdout};
 use edgetherm::estimate::{EstimateOptions, estimate};
 use edgetherm::io::{check_output_dir, load_case, load_readings};
 use edgetherm::report::{summary_json, text_summary, write_outputs};
@@ -117,18 +117,7 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
                 })
         })
         .collect::<Result<Vec<usize>>>()?;
-    let max_gradient_k_per_m = match args.max_gradient {
-        Some(g) if g.is_finite() && g > 0.0 => {
-            Some(case.units.dtemp_to_k(g) / case.units.length_to_m(1.0))
-        }
-        Some(g) => {
-            return Err(Error::invalid_field(
-                "--max-gradient",
-                format!("must be a positive number (temperature unit per length unit), not {g}"),
-            ));
-        }
-        None => None,
-    };
+    let max_gradient_k_per_m = parse_max_gradient(args.max_gradient, &case)?;
     if args.no_bounds && args.max_gradient.is_some() {
         return Err(Error::invalid_field(
             "--no-bounds",

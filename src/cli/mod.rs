@@ -142,6 +142,20 @@ fn with_flag_names(e: Error) -> Error {
     }
 }
 
+/// `--max-gradient G` in the case's temperature unit per length unit, as K/m.
+pub fn parse_max_gradient(g: Option<f64>, case: &edgetherm::io::Case) -> Result<Option<f64>> {
+    match g {
+        Some(g) if g.is_finite() && g > 0.0 => {
+            Ok(Some(case.units.dtemp_to_k(g) / case.units.length_to_m(1.0)))
+        }
+        Some(g) => Err(Error::invalid_field(
+            "--max-gradient",
+            format!("must be a positive number (temperature unit per length unit), not {g}"),
+        )),
+        None => Ok(None),
+    }
+}
+
 /// Parse `--strength`: a rule name or a positive number (a fixed strength).
 pub fn parse_strength(s: &str) -> Result<edgetherm::io::StrengthRule> {
     use edgetherm::io::StrengthRule;

@@ -9,7 +9,7 @@
 //! Exit status: 0 done; 3 when `--limit` is given and an alarm episode occurred; 2 invalid
 //! input; 1 internal error.
 
-use super::{GlobalOptions, parse_strength, print_stdout};
+use super::{GlobalOptions, parse_max_gradient, parse_strength, print_stdout};
 use edgetherm::io::logger::Follow;
 use edgetherm::io::{
     LoggerOptions, LoggerReader, LoggerRow, StreamWriter, check_track_outputs, create_output_dir,
@@ -144,18 +144,7 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
         None => None,
     };
     let strength = args.strength.as_deref().map(parse_strength).transpose()?;
-    let max_gradient_k_per_m = match args.max_gradient {
-        Some(g) if g.is_finite() && g > 0.0 => {
-            Some(case.units.dtemp_to_k(g) / case.units.length_to_m(1.0))
-        }
-        Some(g) => {
-            return Err(Error::invalid_field(
-                "--max-gradient",
-                format!("must be a positive number (temperature unit per length unit), not {g}"),
-            ));
-        }
-        None => None,
-    };
+    let max_gradient_k_per_m = parse_max_gradient(args.max_gradient, &case)?;
     let options = TrackOptions {
         strength,
         calibrate: args.calibrate,

@@ -482,6 +482,7 @@ impl DesignSpace {
 
     /// Score a layout: predicted uncertainty along the edges, resolution lengths, criteria,
     /// condition number.
+    #[allow(clippy::float_cmp)] // positions copied from one grid: equal means the same point
     pub fn evaluate(&self, sensors: &[LayoutSensor]) -> Result<LayoutScore> {
         let (c, information, h) = self.posterior(sensors)?;
         let p = self.model.parameter_count();

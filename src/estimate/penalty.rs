@@ -44,6 +44,7 @@ pub fn penalty_weights(model: &ForwardModel, order: usize) -> DVector<f64> {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // the checked values are exact by construction
 mod tests {
     use super::*;
     use crate::forward::SeriesOptions;

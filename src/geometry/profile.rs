@@ -46,6 +46,7 @@ impl EdgeProfile {
     }
 
     /// Whether the profile is a single constant.
+    #[allow(clippy::float_cmp)] // a constant profile is one whose values are all the same number
     pub fn is_constant(&self) -> bool {
         self.temperatures.len() == 1 || self.temperatures.windows(2).all(|w| w[0] == w[1])
     }
@@ -117,6 +118,7 @@ impl EdgeProfile {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // the checked values are exact by construction
 mod tests {
     use super::*;
 

@@ -524,6 +524,7 @@ fn discrepancy_root(
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // the checked values are exact by construction
 mod tests {
     use super::*;
     use crate::inverse::Problem;

@@ -313,6 +313,7 @@ pub(crate) fn absolute_temperature(units: &Units, t: f64) -> std::result::Result
 }
 
 /// Read `sensors.csv`: `sensor,x,y` with optional `sigma` and `position_sigma`.
+#[allow(clippy::float_cmp)] // a position exactly on the right edge, as written in the file
 pub(crate) fn read_sensors(path: &Path, units: &Units, shape: &Shape) -> Result<Vec<Sensor>> {
     let table = CsvTable::read(
         path,
@@ -667,6 +668,7 @@ fn build_profile(
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // the checked values are exact by construction
 mod tests {
     use super::*;
     use crate::units::{LengthUnit, TemperatureUnit};

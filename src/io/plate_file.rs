@@ -820,6 +820,7 @@ impl Checker<'_> {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // the checked values are exact by construction
 mod tests {
     use super::*;
 

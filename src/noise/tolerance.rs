@@ -253,6 +253,7 @@ pub fn describe(class: ToleranceClass, tc: ThermocoupleType) -> String {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // the checked values are exact by construction
 mod tests {
     use super::*;
 

@@ -50,6 +50,7 @@ type SideKey = (bool, usize, usize);
 
 /// The contour polylines of `z` at `level`. `z[j * xs.len() + i]` is the value at
 /// `(xs[i], ys[j])`; cells with a non-finite corner are skipped.
+#[allow(clippy::float_cmp)] // a flat cell edge has equal corner values, copied from the grid
 pub(crate) fn contour(xs: &[f64], ys: &[f64], z: &[f64], level: f64) -> Vec<Polyline> {
     let (nx, ny) = (xs.len(), ys.len());
     if nx < 2 || ny < 2 || z.len() != nx * ny {
@@ -183,6 +184,7 @@ pub(crate) fn length(line: &Polyline, scale: (f64, f64)) -> f64 {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // the checked values are exact by construction
 mod tests {
     use super::*;
 

@@ -143,6 +143,7 @@ pub(crate) fn mean_half_width(lower: &[f64], upper: &[f64]) -> f64 {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // the checked values are exact by construction
 mod tests {
     use super::*;
 

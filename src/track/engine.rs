@@ -529,6 +529,7 @@ impl RowEstimator {
     /// # Errors
     /// [`Error::Invalid`] when the readings cannot determine the model or the strength rule
     /// cannot be applied; [`Error::Internal`] on a numerical breakdown.
+    #[allow(clippy::float_cmp)] // a cached value is reused only for the very same strength
     pub fn fit_row(
         &mut self,
         readings: &[Option<f64>],
@@ -1250,6 +1251,7 @@ fn exceed(est: &DVector<f64>, ratio: &[f64], dr: &Draws, t: f64, bits: &mut Vec<
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // the checked values are exact by construction
 mod tests {
     use super::*;
 

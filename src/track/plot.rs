@@ -362,6 +362,7 @@ fn draw(root: &Area<'_>, case: &Case, s: &TrackSummary, bins: &[Bin]) -> DrawRes
 
 /// Time stretches (first, last second, share of rows in alarm) of consecutive bins with
 /// the same share of rows in alarm (in tenths, so that neighbours merge).
+#[allow(clippy::float_cmp)] // shares rounded to tenths: equal means the same tenth
 fn alarm_stretches(bins: &[Bin]) -> Vec<(f64, f64, f64)> {
     let mut out: Vec<(f64, f64, f64)> = Vec::new();
     let mut prev = 0.0;

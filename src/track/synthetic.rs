@@ -192,6 +192,7 @@ pub fn iso_time(t: f64) -> String {
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // the checked values are exact by construction
 mod tests {
     use super::*;
 

@@ -335,6 +335,7 @@ pub fn simultaneous_band(
 }
 
 #[cfg(test)]
+#[allow(clippy::float_cmp)] // the checked values are exact by construction
 mod tests {
     use super::*;
 

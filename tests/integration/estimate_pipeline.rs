@@ -249,6 +249,7 @@ fn a_broken_thermocouple_is_caught_and_good_ones_are_not() {
     assert!(r.sensors.iter().all(|s| s.flag.is_none()));
 }
 
+#[allow(clippy::float_cmp)] // the point of the test: bit-identical numbers
 #[test]
 fn same_seed_same_numbers_whatever_the_thread_count() {
     let case = sample("cold-plate");
@@ -306,6 +307,7 @@ fn unstated_noise_is_estimated_and_said() {
     );
 }
 
+#[allow(clippy::float_cmp)] // probabilities 0 and 1 and a strength passed through are exact
 #[test]
 fn exceedance_probability_follows_the_limit() {
     let case = sample("cold-plate");
@@ -370,6 +372,7 @@ fn tolerance_class_sets_the_reading_uncertainty() {
     }
 }
 
+#[allow(clippy::float_cmp)] // probabilities 0 and 1 and a strength passed through are exact
 #[test]
 fn every_strength_rule_runs_end_to_end() {
     use edgetherm::io::StrengthRule;

@@ -886,6 +886,7 @@ fn profile_svg_has_one_panel_per_unknown_edge() {
     );
 }
 
+#[allow(clippy::float_cmp)] // values printed from exactly representable inputs, read back
 #[test]
 fn field_svg_is_well_formed_with_map_isotherms_and_markers() {
     let r = cold_plate();
@@ -1178,6 +1179,7 @@ fn with_bounds(empty: bool) -> EstimateResult {
     r
 }
 
+#[allow(clippy::float_cmp)] // values printed from exactly representable inputs, read back
 #[test]
 fn strict_bounds_appear_in_every_output_in_case_units() {
     let r = with_bounds(false);
