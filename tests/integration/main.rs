@@ -21,6 +21,7 @@ mod forward_closed_forms;
 mod forward_fem_reference;
 mod forward_properties;
 mod report_outputs;
+mod snapshots_of_outputs;
 mod tikhonov_reference;
 mod track_alarms;
 mod track_cli;
