@@ -12,8 +12,6 @@ use edgetherm::design::{Criterion, DesignSpace, LayoutSensor, report::write_desi
 use edgetherm::io::case::{CandidateSource, load_design_case, read_candidates, read_layout};
 use edgetherm::io::output::check_output_names;
 use edgetherm::{Error, Result};
-use indicatif::{ProgressBar, ProgressStyle};
-use std::io::IsTerminal;
 use std::path::PathBuf;
 
 /// Arguments of `edgetherm design`.
@@ -115,14 +113,11 @@ pub fn run(args: &DesignArgs, global: &GlobalOptions) -> Result<i32> {
             (None, None) => unreachable!("checked above"),
         };
         space.check_count(count, flag)?;
-        let bar = (!global.quiet && std::io::stderr().is_terminal()).then(|| {
-            let bar = ProgressBar::new((2 * count) as u64);
-            bar.set_style(
-                ProgressStyle::with_template("design search {bar:32} {pos}/{len} steps")
-                    .unwrap_or_else(|_| ProgressStyle::default_bar()),
-            );
-            bar
-        });
+        let bar = super::progress_bar(
+            global,
+            Some((2 * count) as u64),
+            "design search {bar:32} {pos}/{len} steps",
+        );
         let tick = |done: usize, total: usize| {
             if let Some(b) = &bar {
                 b.set_length(total as u64);

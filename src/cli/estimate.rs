@@ -7,14 +7,15 @@
 //! 1 internal error. Strict bounds that rule the limit out never lower the exit status: the
 //! alarm stays with the estimate's exceedance probability.
 
-use super::{GlobalOptions, parse_grid, parse_max_gradient, parse_strength, print_stdout};
+use super::{
+    GlobalOptions, parse_alarm, parse_grid, parse_max_gradient, parse_strength, print_stdout,
+    progress_bar,
+};
 use edgetherm::estimate::{EstimateOptions, estimate};
 use edgetherm::io::{check_output_dir, load_case, load_readings};
 use edgetherm::report::{summary_json, text_summary, write_outputs};
 use edgetherm::uncertainty::BootstrapMode;
 use edgetherm::{Error, Result};
-use indicatif::{ProgressBar, ProgressStyle};
-use std::io::IsTerminal;
 use std::path::PathBuf;
 
 /// Arguments of `edgetherm estimate`.
@@ -75,25 +76,7 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
     let case = load_case(&files)?;
     let readings = load_readings(&case.files.readings, &case)?;
     check_output_dir(&args.out, &case.files.inputs())?;
-    if !(args.probability > 0.0 && args.probability < 1.0) {
-        return Err(Error::invalid_field(
-            "--probability",
-            format!(
-                "must lie strictly between 0 and 1, not {}",
-                args.probability
-            ),
-        ));
-    }
-    let limit = match args.limit {
-        Some(t) if t.is_finite() => Some(case.units.temp_to_k(t)),
-        Some(t) => {
-            return Err(Error::invalid_field(
-                "--limit",
-                format!("must be a finite temperature, not {t}"),
-            ));
-        }
-        None => None,
-    };
+    let limit = parse_alarm(args.limit, args.probability, &case)?;
     if args.replicates == Some(0) {
         return Err(Error::invalid_field("--replicates", "must be at least 1"));
     }
@@ -148,14 +131,11 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
     };
 
     let total = options.replicates.unwrap_or(case.uncertainty.replicates) as u64;
-    let bar = (!global.quiet && std::io::stderr().is_terminal()).then(|| {
-        let bar = ProgressBar::new(total);
-        bar.set_style(
-            ProgressStyle::with_template("bootstrap {bar:32} {pos}/{len} replicates ({eta})")
-                .unwrap_or_else(|_| ProgressStyle::default_bar()),
-        );
-        bar
-    });
+    let bar = progress_bar(
+        global,
+        Some(total),
+        "bootstrap {bar:32} {pos}/{len} replicates ({eta})",
+    );
     let tick = |n: usize| {
         if let Some(b) = &bar {
             b.set_position(n as u64);

@@ -142,6 +142,53 @@ fn with_flag_names(e: Error) -> Error {
     }
 }
 
+/// `--limit T` (case temperature unit, as kelvin) and `--probability P` of `estimate` and
+/// `track`, checked.
+pub fn parse_alarm(
+    limit: Option<f64>,
+    probability: f64,
+    case: &edgetherm::io::Case,
+) -> Result<Option<f64>> {
+    if !(probability > 0.0 && probability < 1.0) {
+        return Err(Error::invalid_field(
+            "--probability",
+            format!("must lie strictly between 0 and 1, not {probability}"),
+        ));
+    }
+    match limit {
+        Some(t) if t.is_finite() => Ok(Some(case.units.temp_to_k(t))),
+        Some(t) => Err(Error::invalid_field(
+            "--limit",
+            format!("must be a finite temperature, not {t}"),
+        )),
+        None => Ok(None),
+    }
+}
+
+/// A progress bar on stderr when it is a terminal and `--quiet` is off: a bar to `len`, or a
+/// spinner without a length.
+pub fn progress_bar(
+    global: &GlobalOptions,
+    len: Option<u64>,
+    template: &str,
+) -> Option<indicatif::ProgressBar> {
+    use std::io::IsTerminal;
+    (!global.quiet && std::io::stderr().is_terminal()).then(|| {
+        let (bar, fallback) = match len {
+            Some(n) => (
+                indicatif::ProgressBar::new(n),
+                indicatif::ProgressStyle::default_bar(),
+            ),
+            None => (
+                indicatif::ProgressBar::new_spinner(),
+                indicatif::ProgressStyle::default_spinner(),
+            ),
+        };
+        bar.set_style(indicatif::ProgressStyle::with_template(template).unwrap_or(fallback));
+        bar
+    })
+}
+
 /// `--max-gradient G` in the case's temperature unit per length unit, as K/m.
 pub fn parse_max_gradient(g: Option<f64>, case: &edgetherm::io::Case) -> Result<Option<f64>> {
     match g {

@@ -9,7 +9,9 @@
 //! Exit status: 0 done; 3 when `--limit` is given and an alarm episode occurred; 2 invalid
 //! input; 1 internal error.
 
-use super::{GlobalOptions, parse_max_gradient, parse_strength, print_stdout};
+use super::{
+    GlobalOptions, parse_alarm, parse_max_gradient, parse_strength, print_stdout, progress_bar,
+};
 use edgetherm::io::logger::Follow;
 use edgetherm::io::{
     LoggerOptions, LoggerReader, LoggerRow, StreamWriter, check_track_outputs, create_output_dir,
@@ -20,7 +22,6 @@ use edgetherm::track::report::{
 };
 use edgetherm::track::{RowRecord, TrackOptions, Tracker, plot};
 use edgetherm::{Error, Result};
-use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::sync::mpsc;
 use std::time::{Duration, Instant};
@@ -103,25 +104,7 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
     let mut inputs = case.files.inputs();
     inputs.push(&args.log);
     check_track_outputs(&args.out, &inputs)?;
-    if !(args.probability > 0.0 && args.probability < 1.0) {
-        return Err(Error::invalid_field(
-            "--probability",
-            format!(
-                "must lie strictly between 0 and 1, not {}",
-                args.probability
-            ),
-        ));
-    }
-    let limit = match args.limit {
-        Some(t) if t.is_finite() => Some(case.units.temp_to_k(t)),
-        Some(t) => {
-            return Err(Error::invalid_field(
-                "--limit",
-                format!("must be a finite temperature, not {t}"),
-            ));
-        }
-        None => None,
-    };
+    let limit = parse_alarm(args.limit, args.probability, &case)?;
     for (flag, v) in [
         ("--clear", Some(args.clear)),
         ("--calibrate", args.calibrate),
@@ -233,14 +216,7 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
         }
     });
 
-    let bar = (!global.quiet && std::io::stderr().is_terminal()).then(|| {
-        let bar = indicatif::ProgressBar::new_spinner();
-        bar.set_style(
-            indicatif::ProgressStyle::with_template("track {spinner} {pos} rows ({per_sec})")
-                .unwrap_or_else(|_| indicatif::ProgressStyle::default_spinner()),
-        );
-        bar
-    });
+    let bar = progress_bar(global, None, "track {spinner} {pos} rows ({per_sec})");
     let mut rows_out = RowsOut {
         case: tracker.case().clone(),
         writer,
