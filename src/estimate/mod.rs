@@ -13,6 +13,7 @@
 //!
 //! Everything is SI inside; [`EstimateResult`] carries the case's units for the report.
 
+pub mod calibration;
 pub mod explain;
 pub mod fit;
 pub mod penalty;

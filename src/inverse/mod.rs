@@ -55,6 +55,7 @@
 //! | [`tikhonov`] | the decomposition (null-space elimination + one SVD), solutions, the fast path for new data |
 //! | [`strength`] | GCV, discrepancy, evidence (marginal likelihood), L-curve, fixed; grid + Brent |
 
+pub mod fit;
 pub mod strength;
 pub mod tikhonov;
 

@@ -34,11 +34,9 @@
 //! Reproducible: replicate `b` draws from its own ChaCha8 stream `(seed, b)`, so the numbers
 //! do not depend on the number of threads or on scheduling.
 
-pub mod calibration;
-
 use crate::error::Result;
-use crate::estimate::fit::{Fit, select_options};
 use crate::inverse::Strength;
+use crate::inverse::fit::{Fit, select_options};
 use nalgebra::{DMatrix, DVector};
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;

@@ -5,9 +5,9 @@
 //! wider study behind the defaults is in docs/calibration.md.
 
 use edgetherm::estimate::EstimateOptions;
+use edgetherm::estimate::calibration::coverage_study;
 use edgetherm::geometry::{Edge, EdgeProfile};
 use edgetherm::io::{CaseFiles, load_case};
-use edgetherm::uncertainty::calibration::coverage_study;
 
 #[test]
 fn bands_cover_a_smooth_truth_at_their_stated_confidence() {
