@@ -162,9 +162,10 @@ impl FeatureBank {
 /// The outcome of weighing the two explanations of one high reading.
 #[derive(Debug, Clone, PartialEq)]
 pub struct HotVerdict {
-    /// Whether a hot feature of a hidden edge explains the reading together with the others
-    /// (the sensor is then kept).
-    pub plausible: bool,
+    /// Whether some non-negative feature of the bank raises this reading more than its
+    /// neighbours' at all; without one the hot explanation is refuted whatever the
+    /// statistic, and the feature fields below are placeholders.
+    pub feature_found: bool,
     /// The statistic `Δ` of the module doc (chi-square units); `None` when the readings leave
     /// no degrees of freedom to tell the explanations apart (the sensor is then kept).
     pub statistic: Option<f64>,
@@ -181,6 +182,26 @@ pub struct HotVerdict {
     /// reading, K/m: if the edge cannot change faster than this, the hot explanation is ruled
     /// out. `None` when no feature explains it.
     pub min_slope_k_per_m: Option<f64>,
+}
+
+impl HotVerdict {
+    /// The statistic the sensor decisions compare with [`HOT_REFUTE_CHI2`] (to keep a sensor)
+    /// and [`HOT_READMIT_CHI2`] (to take one back): `Δ`; `−∞` when the readings cannot tell
+    /// the explanations apart (the hot one then stands); `+∞` when no feature raises the
+    /// reading (it is refuted).
+    pub fn score(&self) -> f64 {
+        if !self.feature_found {
+            f64::INFINITY
+        } else {
+            self.statistic.unwrap_or(f64::NEG_INFINITY)
+        }
+    }
+
+    /// Whether a hot feature of a hidden edge explains the reading together with the others
+    /// (the sensor is then kept).
+    pub fn plausible(&self) -> bool {
+        self.score() <= HOT_REFUTE_CHI2
+    }
 }
 
 /// Full width at half maximum of a Gaussian of standard deviation `w`: `2 √(2 ln 2) w`.
@@ -302,7 +323,7 @@ pub fn hot_explanation(
     let Some((j_hot, b, amp)) = best else {
         // no non-negative feature raises this reading more than its neighbours
         return Ok(Some(HotVerdict {
-            plausible: false,
+            feature_found: false,
             statistic: s2.map(|s| (j0 - j_fault) / s),
             edge: bank.edges.first().copied().unwrap_or(Edge::Bottom),
             position_m: 0.0,
@@ -323,7 +344,7 @@ pub fn hot_explanation(
         map.matrix.row(bump.centre_index).dot(&c.transpose()) + map.offset[bump.centre_index];
     let statistic = s2.map(|s| (j_hot - j_fault) / s);
     Ok(Some(HotVerdict {
-        plausible: statistic.is_none_or(|d| d <= HOT_REFUTE_CHI2),
+        feature_found: true,
         statistic,
         edge: bank.edges[bump.edge],
         position_m: bump.centre_m,

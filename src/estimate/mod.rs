@@ -184,7 +184,15 @@ pub fn estimate(
         .iter()
         .map(|(e, pos)| model.edge_profile_map(*e, pos))
         .collect();
-    let bank = explain::FeatureBank::new(&edge_positions, &edge_maps, case.fit.terms)?;
+    let hot_test = HotTest {
+        bank: std::cell::OnceCell::new(),
+        edge_positions: &edge_positions,
+        edge_maps: &edge_maps,
+        terms: case.fit.terms,
+        max_gradient: options
+            .max_gradient_k_per_m
+            .or(case.bounds.max_gradient_k_per_m),
+    };
 
     // Sensors the user knows to be bad.
     let mut flags: Vec<(usize, String)> = Vec::new();
@@ -206,11 +214,7 @@ pub fn estimate(
         strength,
         q_null,
         options.keep_all,
-        &bank,
-        &edge_maps,
-        options
-            .max_gradient_k_per_m
-            .or(case.bounds.max_gradient_k_per_m),
+        &hot_test,
     )?;
     flags.extend(search.flags);
     let doubts = search.doubts;
@@ -483,6 +487,37 @@ pub fn estimate(
     })
 }
 
+/// The hot-feature test of the fault search ([`explain`]), with its bank of features built
+/// only when a high reading first needs it.
+struct HotTest<'a> {
+    bank: std::cell::OnceCell<explain::FeatureBank>,
+    edge_positions: &'a [(Edge, Vec<f64>)],
+    edge_maps: &'a [LinearMap],
+    terms: usize,
+    /// A stated gradient limit the feature must obey, K/m.
+    max_gradient: Option<f64>,
+}
+
+impl HotTest<'_> {
+    /// [`explain::hot_explanation`] for row `k` of `input`.
+    fn verdict(
+        &self,
+        input: &FitInput,
+        k: usize,
+        strength: Strength,
+    ) -> Result<Option<explain::HotVerdict>> {
+        let bank = match self.bank.get() {
+            Some(b) => b,
+            None => {
+                let built =
+                    explain::FeatureBank::new(self.edge_positions, self.edge_maps, self.terms)?;
+                self.bank.get_or_init(|| built)
+            }
+        };
+        explain::hot_explanation(bank, self.edge_maps, input, k, strength, self.max_gradient)
+    }
+}
+
 /// What the search for suspect sensors found.
 struct FaultSearch {
     /// Sensors left out (index into `case.sensors`) and why.
@@ -500,10 +535,9 @@ struct FaultSearch {
 /// likely, and leaves out the first one that no hot feature of a hidden edge explains (a
 /// reading lower than predicted is always a candidate: leaving it out is the hotter
 /// explanation). A candidate that a hot feature explains is kept and reported as doubtful;
-/// with a stated gradient limit (`max_gradient`, K/m) the feature must obey it.
+/// with a stated gradient limit the feature must obey it.
 /// The case is refitted and the search repeated, at most until a quarter of the sensors are
 /// out. `used` is updated in place.
-#[allow(clippy::too_many_arguments)]
 fn fault_search(
     case: &Case,
     input_for: &dyn Fn(&[usize]) -> FitInput,
@@ -511,9 +545,7 @@ fn fault_search(
     strength: Strength,
     q_null: usize,
     keep_all: bool,
-    bank: &explain::FeatureBank,
-    edge_maps: &[LinearMap],
-    max_gradient: Option<f64>,
+    hot_test: &HotTest<'_>,
 ) -> Result<FaultSearch> {
     let mut flags: Vec<(usize, String)> = Vec::new();
     let mut doubts: Vec<DoubtfulSensor> = Vec::new();
@@ -554,12 +586,12 @@ fn fault_search(
         let mut removed = None;
         for (k, v) in candidates {
             let hot = if v.z > 0.0 {
-                explain::hot_explanation(bank, edge_maps, &input, k, strength, max_gradient)?
+                hot_test.verdict(&input, k, strength)?
             } else {
                 None
             };
             match hot {
-                Some(h) if h.plausible => doubts.push(doubtful_sensor(case, used[k], &v, &h)),
+                Some(h) if h.plausible() => doubts.push(doubtful_sensor(case, used[k], &v, &h)),
                 _ => {
                     removed = Some((k, fault_reason(&v, hot.as_ref())));
                     break;

@@ -80,7 +80,7 @@ impl RowBounds {
     /// Whether the `fitted`-th fitted row (1-based) is bounded; `opening` says the row opens
     /// an alarm episode on its probability.
     pub fn due(&self, fitted: u64, opening: bool) -> bool {
-        opening || fitted % self.every as u64 == 1 || self.every == 1
+        opening || fitted.saturating_sub(1) % self.every as u64 == 0
     }
 
     /// The bounds of a fitted row: `readings` indexed like `case.sensors`, the row's fit.

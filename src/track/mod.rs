@@ -419,7 +419,7 @@ impl Tracker {
                         rule,
                         gradient,
                     )
-                    .map_or(f64::INFINITY, |h| h.statistic.unwrap_or(f64::NEG_INFINITY))
+                    .map_or(f64::INFINITY, |h| h.score())
                 };
                 self.health.after_fit(
                     &row.time_text,

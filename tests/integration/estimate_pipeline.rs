@@ -700,3 +700,76 @@ fn a_sensor_named_as_faulty_is_left_out() {
             .all(|(k, s)| (k == 3) == s.flag.is_some())
     );
 }
+
+/// The resolution length counts sensor spacing (`docs/method.md`, resolution length): at the
+/// same depth and the same smoothing strength, sensors twice as far apart resolve a coarser
+/// feature between them. A point feature midway between sensors 2 s apart at depth d is seen
+/// through kernels of width about the spacing, not the depth (the Poisson kernel spreads as
+/// d² + r²: Evans, *PDE*, §2.2.4). The strength is fixed because a rule re-chooses it with
+/// the data, and the smoothing it chooses then sets the length as much as the layout does.
+#[test]
+fn sparser_sensors_give_a_longer_resolution_length() {
+    let lengths: Vec<f64> = [0.01, 0.02, 0.04]
+        .iter()
+        .map(|&spacing| {
+            let xs: Vec<f64> = (0..)
+                .map(|k| 0.01 + spacing * k as f64)
+                .take_while(|&x| x < 0.195)
+                .collect();
+            let case = clamp_case(&xs, |_| 0.006);
+            let readings = readings_for(
+                &case,
+                &[(Edge::Bottom, spot_profile(0.0, 0.1, 0.01))],
+                0.2,
+                7,
+            );
+            let opts = EstimateOptions {
+                strength: Some(edgetherm::io::StrengthRule::Fixed(1e-3)),
+                ..quick()
+            };
+            let r = estimate(&case, &readings, &opts, None).unwrap();
+            let e = &r.edges[0];
+            assert!(e.resolution_at_hottest <= e.resolution_length);
+            e.resolution_length
+        })
+        .collect();
+    eprintln!("resolution length at spacing 10, 20, 40 mm: {lengths:?} m");
+    assert!(
+        lengths[0] < lengths[1] && lengths[1] < lengths[2],
+        "{lengths:?}"
+    );
+    // never shorter than half the spacing: midway between two sensors the kernel peaks at a
+    // sensor, and the span holds both the point and that sensor (measured: 21, 35 and 36 mm;
+    // the span is about half the gap plus the kernel's own width, not the whole gap, as a
+    // first draft of this test assumed)
+    assert!(lengths[2] >= 0.02, "{lengths:?}");
+}
+
+/// The gradient a doubtful sensor's message names is what rules the hot spot out: stating a
+/// gradient limit below it leaves the sensor out; without the limit it is kept. Cold-plate
+/// sample with TC03 raised by 15 °C (the example in `docs/case-files.md`).
+#[test]
+fn a_gradient_limit_below_the_named_one_rules_the_hot_spot_out() {
+    let case = sample("cold-plate");
+    let mut readings = load_readings(&case.files.readings, &case).unwrap();
+    *readings[2].as_mut().unwrap() += 15.0;
+    let r = estimate(&case, &readings, &quick(), None).unwrap();
+    let d = r.doubtful_sensors.first().expect("TC03 kept as doubtful");
+    assert_eq!(d.sensor, "TC03");
+    let g = d.min_gradient.expect("a gradient that rules it out");
+    let limited = estimate(
+        &case,
+        &readings,
+        &EstimateOptions {
+            max_gradient_k_per_m: Some(0.8 * g),
+            ..quick()
+        },
+        None,
+    )
+    .unwrap();
+    assert!(limited.doubtful_sensors.is_empty());
+    assert!(
+        limited.sensors[2].flag.is_some(),
+        "TC03 left out under 0.8 × {g} K/m"
+    );
+}
