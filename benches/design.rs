@@ -6,10 +6,11 @@
 //! runs of the whole design (sensor map of every candidate, search, scoring of the result),
 //! and the passes and swaps the exchange made.
 
+use edgetherm::case::CandidateSource;
+use edgetherm::case::{CaseFiles, Smoothing};
 use edgetherm::design::{Criterion, DesignSpace};
 use edgetherm::geometry::Point;
-use edgetherm::io::case::{CandidateSource, load_design_case};
-use edgetherm::io::{CaseFiles, Smoothing};
+use edgetherm::io::case::load_design_case;
 use std::time::Instant;
 
 fn main() {

@@ -6,9 +6,10 @@
 //! estimate (fault search, order choice, bootstrap, bands), and the same with the fault
 //! search turned off (`--keep-all`), plus the peak resident memory (VmHWM).
 
+use edgetherm::case::{CaseFiles, Sensor};
 use edgetherm::estimate::{EstimateOptions, estimate};
 use edgetherm::geometry::{Edge, EdgeProfile, Point};
-use edgetherm::io::{CaseFiles, Sensor, load_case};
+use edgetherm::io::load_case;
 use edgetherm::simulate::{add_noise, exact_readings, truth_model};
 use std::time::Instant;
 

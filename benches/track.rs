@@ -11,8 +11,9 @@
 //! and with the strength chosen on every row (the slow, exact-`estimate` path) on a fiftieth.
 //! `TRACK_BENCH_ROWS` overrides the row count; `TRACK_BENCH_KEEP=1` keeps the files.
 
+use edgetherm::case::{CaseFiles, Sensor};
 use edgetherm::geometry::{EdgeProfile, Point};
-use edgetherm::io::{CaseFiles, Sensor, load_case};
+use edgetherm::io::load_case;
 use edgetherm::track::synthetic::{Fault, FaultKind, Spec, write_log};
 use std::io::Write;
 use std::path::Path;
@@ -155,7 +156,7 @@ impl DirRef<'_> {
     }
 }
 
-fn write_bench_log(case: &edgetherm::io::Case, rows: usize, path: &Path) {
+fn write_bench_log(case: &edgetherm::case::Case, rows: usize, path: &Path) {
     let s: Vec<f64> = (0..=180).map(|i| f64::from(i) * 0.001).collect();
     let base =
         EdgeProfile::piecewise_linear(s.clone(), vec![273.15 + 34.0; s.len()]).expect("base");

@@ -7,8 +7,9 @@
 //! cargo run --release --example busbar_clamp_log
 //! ```
 
+use edgetherm::case::CaseFiles;
 use edgetherm::geometry::EdgeProfile;
-use edgetherm::io::{CaseFiles, load_case};
+use edgetherm::io::load_case;
 use edgetherm::track::synthetic::{Fault, FaultKind, Spec, write_log};
 
 fn main() {

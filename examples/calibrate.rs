@@ -3,10 +3,11 @@
 //! `cargo run --release --example calibrate -- [DRAWS] [REPLICATES]`
 //! Prints one line per (truth, layout, strength rule): the figures in docs/calibration.md.
 
+use edgetherm::case::{CaseFiles, Smoothing, StrengthRule};
 use edgetherm::estimate::EstimateOptions;
 use edgetherm::estimate::calibration::coverage_study;
 use edgetherm::geometry::{Edge, EdgeProfile};
-use edgetherm::io::{CaseFiles, Smoothing, StrengthRule, load_case};
+use edgetherm::io::load_case;
 
 fn profile(len: f64, f: impl Fn(f64) -> f64) -> EdgeProfile {
     let n = 241;

@@ -9,14 +9,15 @@
 //! ends insulated, σ = 0.2 K; the contact temperature is 45 °C plus a 3 K sine, plus a
 //! Gaussian hot spot under one sensor. Readings come from the forward model (`simulate`).
 
+use edgetherm::case::{CaseFiles, Sensor};
 use edgetherm::estimate::{EstimateOptions, estimate};
 use edgetherm::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Point, Shape};
-use edgetherm::io::{CaseFiles, Sensor, load_case};
+use edgetherm::io::load_case;
 use edgetherm::simulate::{add_noise, exact_readings, truth_model};
 
 const K0: f64 = 273.15;
 
-fn case(xs: &[f64], depth: impl Fn(usize) -> f64) -> edgetherm::io::Case {
+fn case(xs: &[f64], depth: impl Fn(usize) -> f64) -> edgetherm::case::Case {
     let mut case = load_case(&CaseFiles::in_dir("sample-measurements/cold-plate")).unwrap();
     case.plate = Plate::new(
         Shape::Rectangle {
@@ -62,7 +63,7 @@ fn truth(height: f64, centre: f64, fwhm: f64) -> EdgeProfile {
     EdgeProfile::piecewise_linear(s, t).unwrap()
 }
 
-fn readings(c: &edgetherm::io::Case, t: &EdgeProfile, seed: u64) -> Vec<Option<f64>> {
+fn readings(c: &edgetherm::case::Case, t: &EdgeProfile, seed: u64) -> Vec<Option<f64>> {
     let model = truth_model(&c.plate, &[(Edge::Bottom, t.clone())]).unwrap();
     let pts: Vec<Point> = c.sensors.iter().map(|s| s.position).collect();
     let exact = exact_readings(&model, &pts).unwrap();

@@ -1,11 +1,12 @@
 //! Development probe: leave-one-out verdicts, optionally with one reading displaced.
 //! `cargo run --release --example loo_probe -- CASE_DIR [BUMP_K [SENSOR_INDEX]]`, and
 //! `SECOND=INDEX:BUMP` in the environment to displace a second reading.
+use edgetherm::case::CaseFiles;
 use edgetherm::estimate::fit::{FitInput, loo_residuals};
 use edgetherm::estimate::penalty::penalty_weights;
 use edgetherm::forward::{ForwardModel, SeriesOptions};
 use edgetherm::inverse::{Strength, StrengthMethod};
-use edgetherm::io::{CaseFiles, load_case, load_readings};
+use edgetherm::io::{load_case, load_readings};
 use nalgebra::DVector;
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {

@@ -2,8 +2,9 @@
 //!
 //! `cargo run --release --example quick_estimate -- sample-measurements/cold-plate`
 
+use edgetherm::case::CaseFiles;
 use edgetherm::estimate::{EstimateOptions, estimate};
-use edgetherm::io::{CaseFiles, load_case, load_readings};
+use edgetherm::io::{load_case, load_readings};
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
     let dir = std::env::args()

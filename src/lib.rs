@@ -8,14 +8,15 @@
 //! | module | role |
 //! |---|---|
 //! | [`geometry`] | the plate, its edges and their conditions (SI units inside) |
+//! | [`case`] | the validated case a run takes: plate, sensors, fit / uncertainty / design / bounds settings, the field grid |
 //! | [`forward`] | steady conduction by separation of variables: the linear map from the unknown edge coefficients to temperatures anywhere |
 //! | [`inverse`] | weighted Tikhonov regularisation on that linear map (one SVD for every strength) and the rules that choose the strength |
 //! | [`design`] | sensor-layout design: the uncertainty a layout will leave along the hidden edges, and greedy + exchange search for the best one |
 //! | [`noise`] | the reading uncertainty: stated sigma, or thermocouple tolerance classes |
 //! | [`estimate`] | the main job: fit, fault search, bands, hottest point, exceedance, resolution length |
 //! | [`bounds`] | strict bounds on the hidden edges and their hottest temperature under a stated gradient limit (conic programs) |
-//! | [`uncertainty`] | the bootstrap of the estimation error with re-chosen strength; bands; calibration studies |
-//! | [`io`] | case files (`plate.toml`, `sensors.csv`, `readings.csv`, profiles) in, results out, atomically |
+//! | [`uncertainty`] | the bootstrap of the estimation error with re-chosen strength; bands |
+//! | [`io`] | case files (`plate.toml`, `sensors.csv`, `readings.csv`, profiles, logger files) read into a [`case::Case`]; results written atomically |
 //! | [`report`] | the outputs of an estimate in the case's units: CSV tables, `summary.json`, the text summary, SVG plots and a self-contained HTML page |
 //! | [`track`] | a logger file row by row: per-row estimate with a pattern cache, hottest point through time, alarms, failing sensors |
 //! | [`simulate`] | synthetic readings from a known edge profile (demos, tests, what-if) |
@@ -25,6 +26,7 @@
 //! The library never prints; the `edgetherm` binary is a thin layer over it.
 
 pub mod bounds;
+pub mod case;
 pub mod design;
 pub mod error;
 pub mod estimate;

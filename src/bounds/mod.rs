@@ -612,7 +612,7 @@ pub fn strict_bounds(
 /// the case's `[bounds] max_gradient`.
 #[allow(clippy::too_many_arguments)]
 pub fn estimate_bounds(
-    case: &crate::io::Case,
+    case: &crate::case::Case,
     points: &[Point],
     readings_k: &[Option<f64>],
     used: &[usize],

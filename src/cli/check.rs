@@ -7,9 +7,10 @@
 
 use super::{GlobalOptions, num, print_stdout};
 use edgetherm::Result;
+use edgetherm::case::{Case, StrengthRule};
 use edgetherm::forward::{ForwardModel, ModelDescription, SeriesOptions};
 use edgetherm::geometry::{Edge, EdgeCondition, Shape};
-use edgetherm::io::{Case, StrengthRule, load_case, load_readings};
+use edgetherm::io::{load_case, load_readings};
 use edgetherm::noise::NoiseSpec;
 use serde::Serialize;
 use std::fmt::Write as _;

@@ -120,7 +120,7 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
         keep_all: args.keep_all,
         grid: match &args.grid {
             Some(g) => parse_grid(g)?,
-            None => edgetherm::io::DEFAULT_GRID,
+            None => edgetherm::case::DEFAULT_GRID,
         },
         replicates: args.replicates,
         seed: args.seed,

@@ -12,7 +12,7 @@ mod simulate;
 mod track;
 
 use clap::{Args, Parser, Subcommand};
-use edgetherm::io::CaseFiles;
+use edgetherm::case::CaseFiles;
 use edgetherm::{Error, Result};
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -105,9 +105,9 @@ pub fn run() -> i32 {
     }
 }
 
-/// Parse `--grid NX,NY` (each between 2 and [`edgetherm::io::MAX_GRID`]).
+/// Parse `--grid NX,NY` (each between 2 and [`edgetherm::case::MAX_GRID`]).
 pub fn parse_grid(text: &str) -> Result<(usize, usize)> {
-    use edgetherm::io::MAX_GRID;
+    use edgetherm::case::MAX_GRID;
     let bad = || {
         Error::invalid_field(
             "--grid",
@@ -147,7 +147,7 @@ fn with_flag_names(e: Error) -> Error {
 pub fn parse_alarm(
     limit: Option<f64>,
     probability: f64,
-    case: &edgetherm::io::Case,
+    case: &edgetherm::case::Case,
 ) -> Result<Option<f64>> {
     if !(probability > 0.0 && probability < 1.0) {
         return Err(Error::invalid_field(
@@ -190,7 +190,7 @@ pub fn progress_bar(
 }
 
 /// `--max-gradient G` in the case's temperature unit per length unit, as K/m.
-pub fn parse_max_gradient(g: Option<f64>, case: &edgetherm::io::Case) -> Result<Option<f64>> {
+pub fn parse_max_gradient(g: Option<f64>, case: &edgetherm::case::Case) -> Result<Option<f64>> {
     match g {
         Some(g) if g.is_finite() && g > 0.0 => {
             Ok(Some(case.units.dtemp_to_k(g) / case.units.length_to_m(1.0)))
@@ -204,8 +204,8 @@ pub fn parse_max_gradient(g: Option<f64>, case: &edgetherm::io::Case) -> Result<
 }
 
 /// Parse `--strength`: a rule name or a positive number (a fixed strength).
-pub fn parse_strength(s: &str) -> Result<edgetherm::io::StrengthRule> {
-    use edgetherm::io::StrengthRule;
+pub fn parse_strength(s: &str) -> Result<edgetherm::case::StrengthRule> {
+    use edgetherm::case::StrengthRule;
     let rule = match s.trim() {
         "gcv" => StrengthRule::Gcv,
         "discrepancy" => StrengthRule::Discrepancy,

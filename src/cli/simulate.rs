@@ -5,9 +5,8 @@
 //! `--field FILE` also writes the true field (`x,y,temperature`) on the grid.
 
 use super::{GlobalOptions, num, parse_grid, print_stdout};
-use edgetherm::io::{
-    DEFAULT_GRID, check_output_file, grid_coordinates, load_case, read_truth_profiles, write_atomic,
-};
+use edgetherm::case::{DEFAULT_GRID, grid_coordinates};
+use edgetherm::io::{check_output_file, load_case, read_truth_profiles, write_atomic};
 use edgetherm::simulate::{add_noise, exact_readings, true_field, truth_model};
 use edgetherm::{Error, Result};
 use std::path::PathBuf;

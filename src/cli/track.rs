@@ -286,7 +286,7 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
 
 /// Where `track.csv` rows go.
 struct RowsOut {
-    case: edgetherm::io::Case,
+    case: edgetherm::case::Case,
     writer: StreamWriter,
 }
 

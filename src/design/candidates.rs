@@ -14,8 +14,8 @@
 //! [`DEFAULT_CANDIDATES`] points over the allowed area, its spacing rounded down to 1, 2 or
 //! 5 times a power of ten.
 
+use crate::case::{DesignSettings, Region};
 use crate::geometry::{Point, Shape};
-use crate::io::case::{DesignSettings, Region};
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 

@@ -35,12 +35,12 @@ pub use candidates::{Constraints, random_layout, uniform_layout};
 pub use prior::Prior;
 pub use search::{Goal, SearchOutcome};
 
+use crate::case::{CandidateSource, Case, Sensor};
 use crate::error::{Error, Result};
 use crate::estimate::SAFETY_CAUTION;
 use crate::estimate::resolution::{resolution_length_at, worst_resolution};
 use crate::forward::{ForwardModel, LinearMap, SeriesOptions};
 use crate::geometry::{Edge, Plate, Point};
-use crate::io::case::{CandidateSource, Case, Sensor};
 use crate::noise::NoiseSpec;
 use crate::units::Units;
 use nalgebra::{DMatrix, DVector};
@@ -739,7 +739,7 @@ impl DesignSpace {
             u.temperature,
             u.dtemp_from_k(self.prior.variation_k),
             u.temperature,
-            crate::io::Smoothing::of_order(self.prior.order).map_or("curvature", |s| s.name()),
+            crate::case::Smoothing::of_order(self.prior.order).map_or("curvature", |s| s.name()),
         ));
         for v in self.violations(&layout) {
             let whose = if search.is_some() {

@@ -90,7 +90,7 @@ fn layout_json(r: &DesignResult, layout: &[super::LayoutSensor]) -> Value {
 pub fn design_json(r: &DesignResult) -> Value {
     let u = CaseUnits::new(r.units);
     let c = &r.constraints;
-    let region = |g: &crate::io::case::Region| json!({"x": [u.len_json(g.x_min), u.len_json(g.x_max)], "y": [u.len_json(g.y_min), u.len_json(g.y_max)]});
+    let region = |g: &crate::case::Region| json!({"x": [u.len_json(g.x_min), u.len_json(g.x_max)], "y": [u.len_json(g.y_min), u.len_json(g.y_max)]});
     json!({
         "criterion": r.criterion.name(),
         "criterion_value": criterion_json(r, &r.score),
@@ -111,7 +111,7 @@ pub fn design_json(r: &DesignResult) -> Value {
         })),
         "prior": {
             "variation": u.dtemp_json(r.prior.variation_k),
-            "smoothing": crate::io::Smoothing::of_order(r.prior.order).map_or("curvature", |s| s.name()),
+            "smoothing": crate::case::Smoothing::of_order(r.prior.order).map_or("curvature", |s| s.name()),
             "tau": significant(u.dtemp(r.prior.tau_k), 6),
             "unpenalised_sd": u.dtemp_json(r.prior.unpenalised_sd_k),
             "equivalent_strength": significant(r.prior.equivalent_strength, 6),

@@ -5,10 +5,10 @@
 //! The tests use it to hold the bands to their stated confidence, and `docs/calibration.md`
 //! records the figures that chose the defaults (`docs/calibration.md`).
 
+use crate::case::Case;
 use crate::error::Result;
 use crate::estimate::{EstimateOptions, estimate};
 use crate::geometry::{Edge, EdgeProfile};
-use crate::io::Case;
 use crate::simulate::{add_noise, exact_readings, truth_model};
 use serde::Serialize;
 

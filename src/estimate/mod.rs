@@ -25,11 +25,11 @@ pub use result::{
     Interval, SensorResult, StrengthSummary,
 };
 
+use crate::case::{Case, Smoothing, StrengthRule};
 use crate::error::{Error, Result};
 use crate::forward::{ForwardModel, LinearMap, SeriesOptions};
 use crate::geometry::{Edge, Point};
 use crate::inverse::{Strength, StrengthMethod};
-use crate::io::{Case, Smoothing, StrengthRule};
 use crate::noise::{SigmaSource, reading_sigmas};
 use crate::uncertainty::{
     BootstrapInput, BootstrapMode, bootstrap, pointwise_band, quantile, simultaneous_band,
@@ -87,7 +87,7 @@ impl Default for EstimateOptions {
             limit: None,
             alarm_probability: 0.05,
             keep_all: false,
-            grid: crate::io::DEFAULT_GRID,
+            grid: crate::case::DEFAULT_GRID,
             replicates: None,
             seed: None,
             strength: None,
@@ -244,7 +244,7 @@ pub fn estimate(
         .iter()
         .flat_map(|m| m.offset.iter().copied())
         .collect();
-    let (xs, ys) = crate::io::grid_coordinates(&shape, options.grid.0, options.grid.1);
+    let (xs, ys) = crate::case::grid_coordinates(&shape, options.grid.0, options.grid.1);
     let grid_points: Vec<Point> = ys
         .iter()
         .flat_map(|&y| xs.iter().map(move |&x| Point::new(x, y)))

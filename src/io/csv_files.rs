@@ -5,9 +5,9 @@
 //! are converted to metres and kelvin here, once. Every problem is an
 //! [`Error::Invalid`] naming the file, the line and the column.
 
+use crate::case::{Case, Sensor};
 use crate::error::{Error, Result};
 use crate::geometry::{Edge, EdgeProfile, Point, Shape};
-use crate::io::case::{Case, Sensor};
 use crate::units::Units;
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};

@@ -29,8 +29,8 @@
 //! interrupted (or, when asked, after a stretch with no new data). A row is parsed only when
 //! its line is complete, because the CSV parser keeps waiting for the rest of the line.
 
+use crate::case::Case;
 use crate::error::{Error, Result};
-use crate::io::case::Case;
 use crate::io::csv_files::absolute_temperature;
 use std::collections::HashMap;
 use std::io::{Read, Write};

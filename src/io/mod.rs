@@ -2,14 +2,14 @@
 //!
 //! Inputs are read in two stages (raw, then validated): each file is
 //! parsed as written, then checked once and converted to metres and kelvin into a typed
-//! [`Case`]. Every problem is an [`crate::Error::Invalid`] naming the file, the 1-based line
+//! [`crate::case::Case`]. Every problem is an [`crate::Error::Invalid`] naming the file, the 1-based line
 //! and the field (a dotted TOML key or a CSV column), which the binary maps to exit status 2.
 //!
 //! | file | module |
 //! |---|---|
 //! | `plate.toml` | `plate_file` (raw serde structs, then validation) |
 //! | `sensors.csv`, `readings.csv`, profile files | `csv_files` |
-//! | the assembled case | [`case`] |
+//! | the assembled case (its types live in `crate::case`) | [`case`] |
 //! | results, written atomically, never over an input | [`output`] |
 //! | logger files for `track`, and `track.csv` written row by row | [`logger`] |
 
@@ -20,16 +20,11 @@ pub mod output;
 mod plate_file;
 mod spans;
 
-pub use case::{
-    BoundsSettings, Case, CaseFiles, FitSettings, Sensor, Smoothing, StrengthRule,
-    UncertaintySettings, load_case, load_readings, read_truth_profiles,
-};
+pub use case::{load_case, load_readings, read_truth_profiles};
 pub use logger::{
     LoggerOptions, LoggerReader, LoggerRow, StreamWriter, TRACK_OUTPUT_FILE_NAMES,
     check_track_outputs,
 };
-pub mod grid;
-pub use grid::{DEFAULT_GRID, MAX_GRID, grid_coordinates};
 pub use output::{
     OUTPUT_FILE_NAMES, check_output_dir, check_output_file, create_output_dir, write_atomic,
 };

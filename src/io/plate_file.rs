@@ -5,12 +5,12 @@
 //! and builds the [`Plate`]; its errors carry the file and the line of the key at fault,
 //! found through [`TomlSpans`].
 
-use crate::error::{Error, Result};
-use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Shape};
-use crate::io::case::{
+use crate::case::{
     BoundsSettings, CandidateSource, DesignSettings, FitSettings, Region, Smoothing, StrengthRule,
     UncertaintySettings,
 };
+use crate::error::{Error, Result};
+use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Shape};
 use crate::io::csv_files::{self, absolute_temperature};
 use crate::io::spans::{TomlSpans, guess_field_on_line, header_name};
 use crate::noise::{NoiseSpec, ThermocoupleType, ToleranceClass};

@@ -15,9 +15,9 @@
 
 use super::engine::RowFit;
 use crate::bounds::{AdmissibleSet, BoundSpec, BoundsOptions, BoundsOutcome, bounds_under};
+use crate::case::Case;
 use crate::error::Result;
 use crate::geometry::Point;
-use crate::io::Case;
 
 /// Default stride of bounded rows.
 pub const DEFAULT_BOUNDS_EVERY: usize = 30;

@@ -59,13 +59,13 @@
 //!   reading included bends toward it and hides it; for a sensor left out, the same from the prediction of
 //!   the fit without it, `σ_i² + a_i C a_iᵀ`.
 
+use crate::case::{Case, Smoothing};
 use crate::error::{Error, Result};
 use crate::estimate::fit::{fault_posterior, select_options};
 use crate::estimate::{AUTO_ORDERS, penalty, profile_positions, refined_max, stack};
 use crate::forward::LinearMap;
 use crate::geometry::{Edge, Point};
 use crate::inverse::{Decomposition, Problem, Projection, Strength, StrengthMethod};
-use crate::io::{Case, Smoothing};
 use crate::noise::{NoiseSpec, SigmaSource};
 use nalgebra::{DMatrix, DVector};
 use rand::SeedableRng;

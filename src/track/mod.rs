@@ -40,10 +40,11 @@ pub mod report;
 pub mod series;
 pub mod synthetic;
 
+use crate::case::{Case, Smoothing, StrengthRule};
 use crate::error::Result;
 use crate::estimate::{EstimateOptions, SAFETY_CAUTION, strength_of};
 use crate::inverse::Strength;
-use crate::io::{Case, LoggerRow, Smoothing, StrengthRule};
+use crate::io::LoggerRow;
 use alarm::AlarmTracker;
 use engine::{RowEstimator, RowFit, RowStrength};
 use health::HealthMonitor;

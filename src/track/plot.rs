@@ -11,8 +11,8 @@
 
 use super::TrackSummary;
 use super::series::Bin;
+use crate::case::Case;
 use crate::error::{Error, Result};
-use crate::io::Case;
 use crate::report::draw::{
     AXIS_PX, Anchor, Area, BAND, DrawResult, ESTIMATE, GREY, GRID, Glyph, HOTTEST, INK, LIMIT,
     PLOT_SAFETY_NOTE, TEXT_PX, TITLE_PX, TextOpts, dashed, legend, line, polygon, rect, text,

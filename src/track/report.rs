@@ -3,7 +3,7 @@
 //! the binary writes them (rows through [`crate::io::StreamWriter`], the rest atomically).
 
 use super::{RowRecord, RowStatus, TrackSummary};
-use crate::io::Case;
+use crate::case::Case;
 use crate::report::format::CaseUnits;
 use crate::report::format::{fixed, significant};
 use serde_json::{Value, json};
@@ -45,7 +45,7 @@ pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
             push_u64(out, f.used.len() as u64, 0);
             out.push(b',');
             out.extend_from_slice(
-                crate::io::Smoothing::of_order(f.order)
+                crate::case::Smoothing::of_order(f.order)
                     .map_or("", |s| s.name())
                     .as_bytes(),
             );
@@ -264,7 +264,7 @@ pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
         "hottest": hottest,
         "strength": {
             "mode": s.strength_mode,
-            "smoothing": s.order.and_then(crate::io::Smoothing::of_order).map(|x| x.name()),
+            "smoothing": s.order.and_then(crate::case::Smoothing::of_order).map(|x| x.name()),
             "value": s.lambda,
         },
         "alarm": s.limit.map(|l| json!({
@@ -316,7 +316,7 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
                 "Smoothing {} with strength {l:.3e} ({m}); {} rows that it did not fit were \
                  refitted with the case's rule.",
                 s.order
-                    .and_then(crate::io::Smoothing::of_order)
+                    .and_then(crate::case::Smoothing::of_order)
                     .map_or("?", |x| x.name()),
                 s.counts.refitted
             );

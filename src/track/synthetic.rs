@@ -7,9 +7,9 @@
 //! `r_base + a(row) · (r_bump − r_base)` where `r_base` and `r_bump` are the readings for the
 //! truths `base` and `base + bump`: two forward solutions serve the whole log.
 
+use crate::case::Case;
 use crate::error::{Error, Result};
 use crate::geometry::{Edge, EdgeProfile, Point};
-use crate::io::Case;
 use crate::simulate::{exact_readings, truth_model};
 use rand::{RngExt, SeedableRng};
 use rand_chacha::ChaCha8Rng;

@@ -9,9 +9,10 @@
 use edgetherm::bounds::{
     AdmissibleSet, BoundSpec, BoundsOptions, BoundsOutcome, Discretisation, bounds_under,
 };
+use edgetherm::case::CaseFiles;
 use edgetherm::estimate::{EstimateOptions, estimate};
 use edgetherm::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Point, Shape};
-use edgetherm::io::{CaseFiles, load_case};
+use edgetherm::io::load_case;
 use edgetherm::simulate::{add_noise, exact_readings, truth_model};
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 use std::f64::consts::PI;

@@ -4,10 +4,11 @@
 //! the true hottest temperature in at least 90 % of the draws. The figures are printed; the
 //! wider study behind the defaults is in docs/calibration.md.
 
+use edgetherm::case::CaseFiles;
 use edgetherm::estimate::EstimateOptions;
 use edgetherm::estimate::calibration::coverage_study;
 use edgetherm::geometry::{Edge, EdgeProfile};
-use edgetherm::io::{CaseFiles, load_case};
+use edgetherm::io::load_case;
 
 #[test]
 fn bands_cover_a_smooth_truth_at_their_stated_confidence() {

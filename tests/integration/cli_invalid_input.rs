@@ -832,7 +832,8 @@ fn usage_errors_exit_2() {
 
 #[test]
 fn output_dir_may_not_be_the_case_dir() {
-    use edgetherm::io::{CaseFiles, check_output_dir, load_case};
+    use edgetherm::case::CaseFiles;
+    use edgetherm::io::{check_output_dir, load_case};
     let dir = case(&[]);
     let case = load_case(&CaseFiles::in_dir(dir.path())).unwrap();
     let inputs = case.files.inputs();

@@ -3,9 +3,10 @@
 //! finite answer or an input error (exit status 2 at the command line), never a panic or a
 //! non-finite number in the result. The physical checks name their source.
 
+use edgetherm::case::{Case, CaseFiles, Sensor};
 use edgetherm::estimate::{EstimateOptions, EstimateResult, estimate};
 use edgetherm::geometry::{Edge, EdgeProfile, Point};
-use edgetherm::io::{Case, CaseFiles, Sensor, load_case};
+use edgetherm::io::load_case;
 use edgetherm::simulate::{exact_readings, truth_model};
 
 const K0: f64 = 273.15;

@@ -14,11 +14,11 @@
 //!
 //! Run with `cargo test --test integration design_checks:: -- --nocapture` to see the figures.
 
+use edgetherm::case::{Case, CaseFiles, Sensor, Smoothing, StrengthRule};
 use edgetherm::design::{DesignSpace, LayoutSensor, prior_draw, random_layout, uniform_layout};
 use edgetherm::estimate::{EstimateOptions, estimate};
 use edgetherm::geometry::{Edge, EdgeProfile, Point};
 use edgetherm::io::case::load_design_case;
-use edgetherm::io::{Case, CaseFiles, Sensor, Smoothing, StrengthRule};
 use edgetherm::simulate::{add_noise, exact_readings, truth_model};
 use nalgebra::{DMatrix, DVector};
 use rand::SeedableRng;

@@ -7,10 +7,11 @@
 //! `docs/design.md`). The test asserts the bound for the greedy stage alone and prints how close
 //! greedy + exchange gets to the exhaustive optimum for every criterion.
 
+use edgetherm::case::CandidateSource;
+use edgetherm::case::{CaseFiles, Smoothing};
 use edgetherm::design::{Criterion, DesignSpace, LayoutSensor};
 use edgetherm::geometry::Point;
-use edgetherm::io::case::{CandidateSource, load_design_case};
-use edgetherm::io::{CaseFiles, Smoothing};
+use edgetherm::io::case::load_design_case;
 
 /// A small version of the sample cold plate: 10 series terms and a few candidates.
 fn small_space(criterion: Criterion, spacing_mm: f64) -> (DesignSpace, Vec<Point>) {

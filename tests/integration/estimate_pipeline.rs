@@ -1,8 +1,9 @@
 //! The estimate end to end on cases simulated from known truths.
 
+use edgetherm::case::{Case, CaseFiles, Sensor, Smoothing};
 use edgetherm::estimate::{EstimateOptions, estimate};
 use edgetherm::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Point, Shape};
-use edgetherm::io::{Case, CaseFiles, Sensor, Smoothing, load_case, load_readings};
+use edgetherm::io::{load_case, load_readings};
 use edgetherm::simulate::{add_noise, exact_readings, truth_model};
 
 fn sample(name: &str) -> Case {
@@ -375,7 +376,7 @@ fn tolerance_class_sets_the_reading_uncertainty() {
 #[allow(clippy::float_cmp)] // probabilities 0 and 1 and a strength passed through are exact
 #[test]
 fn every_strength_rule_runs_end_to_end() {
-    use edgetherm::io::StrengthRule;
+    use edgetherm::case::StrengthRule;
     let case = sample("cold-plate");
     let readings = load_readings(&case.files.readings, &case).unwrap();
     for rule in [
@@ -724,7 +725,7 @@ fn sparser_sensors_give_a_longer_resolution_length() {
                 7,
             );
             let opts = EstimateOptions {
-                strength: Some(edgetherm::io::StrengthRule::Fixed(1e-3)),
+                strength: Some(edgetherm::case::StrengthRule::Fixed(1e-3)),
                 ..quick()
             };
             let r = estimate(&case, &readings, &opts, None).unwrap();

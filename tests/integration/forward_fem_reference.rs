@@ -9,8 +9,9 @@
 //! every edge; there the series must agree with the reference to 1e-4 of the range of the
 //! boundary temperatures (issue bar).
 
+use edgetherm::case::CaseFiles;
 use edgetherm::geometry::{Edge, EdgeCondition};
-use edgetherm::io::{CaseFiles, load_case, read_truth_profiles};
+use edgetherm::io::{load_case, read_truth_profiles};
 use edgetherm::simulate::{exact_readings, truth_model};
 use std::path::Path;
 

@@ -5,8 +5,9 @@
 //! invented sample (not an external check); what the snapshot guards is that nothing a reader
 //! relies on changes unnoticed.
 
+use edgetherm::case::CaseFiles;
 use edgetherm::estimate::{EstimateOptions, estimate};
-use edgetherm::io::{CaseFiles, load_case, load_readings};
+use edgetherm::io::{load_case, load_readings};
 use edgetherm::report::{summary_json, text_summary};
 use serde_json::Value;
 

@@ -4,8 +4,9 @@
 //! nothing. Truths come from the forward model (checked against closed forms and FEM
 //! references in `forward_*`), noise from a seeded generator.
 
+use edgetherm::case::{Case, CaseFiles};
 use edgetherm::geometry::EdgeProfile;
-use edgetherm::io::{Case, CaseFiles, LoggerOptions, LoggerReader, LoggerRow, load_case};
+use edgetherm::io::{LoggerOptions, LoggerReader, LoggerRow, load_case};
 use edgetherm::track::bounds::RowBound;
 use edgetherm::track::health::Problem;
 use edgetherm::track::synthetic::{Fault, FaultKind, Spec, write_log};

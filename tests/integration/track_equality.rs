@@ -5,10 +5,11 @@
 //! These are internal-consistency checks (two code paths, one model); the model itself is
 //! checked against external references in `forward_*` and `tikhonov_reference`.
 
+use edgetherm::case::{Case, CaseFiles, Smoothing, StrengthRule};
 use edgetherm::estimate::{EstimateOptions, estimate};
 use edgetherm::geometry::EdgeProfile;
 use edgetherm::inverse::{Strength, StrengthMethod};
-use edgetherm::io::{Case, CaseFiles, Smoothing, StrengthRule, load_case};
+use edgetherm::io::load_case;
 use edgetherm::noise::NoiseSpec;
 use edgetherm::track::engine::{RowEstimator, RowFit, RowStrength};
 use edgetherm::track::synthetic::{Spec, write_log};

@@ -1,0 +1,334 @@
+//! The validated case: what a run takes, in SI units.
+//!
+//! A [`Case`] is the typed, checked form of a case directory: the plate and its edge
+//! conditions, the sensors, and the settings of the fit, the uncertainty, the design and the
+//! strict bounds. `crate::io` builds one from the files (`crate::io::load_case`) and checks
+//! everything once; nothing downstream re-checks what is here. The computation
+//! (`forward`, `inverse`, `uncertainty`, `estimate`, `design`, `track`) takes a `Case` and
+//! never reads a file.
+
+use crate::geometry::{Edge, Plate, Point, Shape};
+use crate::noise::NoiseSpec;
+use crate::units::Units;
+use serde::{Deserialize, Serialize};
+use std::path::{Path, PathBuf};
+
+/// A thermocouple of the case.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct Sensor {
+    /// The id used in `sensors.csv` and `readings.csv`.
+    pub id: String,
+    /// Position, metres.
+    pub position: Point,
+    /// The sensor's own standard uncertainty, kelvin (the `sigma` column), if given.
+    pub sigma_k: Option<f64>,
+    /// The sensor's own position uncertainty, metres (the `position_sigma` column), if given.
+    pub position_sigma_m: Option<f64>,
+    /// 1-based line of the sensor in `sensors.csv`, for messages.
+    pub line: usize,
+}
+
+/// The penalised derivative of the edge profile (`docs/case-files.md`, plate.toml `smoothing`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Smoothing {
+    /// Penalise the profile's size (order 0).
+    Size,
+    /// Penalise its slope (order 1).
+    Slope,
+    /// Penalise its curvature (order 2).
+    Curvature,
+    /// Choose curvature or slope by the marginal likelihood of the readings (the default;
+    /// see `docs/calibration.md`).
+    Auto,
+}
+
+impl Smoothing {
+    /// The order of the penalised derivative: 0, 1 or 2; `None` for [`Smoothing::Auto`].
+    pub fn order(self) -> Option<usize> {
+        match self {
+            Smoothing::Size => Some(0),
+            Smoothing::Slope => Some(1),
+            Smoothing::Curvature => Some(2),
+            Smoothing::Auto => None,
+        }
+    }
+
+    /// The smoothing of a given order (0, 1, 2).
+    pub fn of_order(order: usize) -> Option<Self> {
+        match order {
+            0 => Some(Smoothing::Size),
+            1 => Some(Smoothing::Slope),
+            2 => Some(Smoothing::Curvature),
+            _ => None,
+        }
+    }
+
+    /// The word used in plate files.
+    pub fn name(self) -> &'static str {
+        match self {
+            Smoothing::Size => "size",
+            Smoothing::Slope => "slope",
+            Smoothing::Curvature => "curvature",
+            Smoothing::Auto => "auto",
+        }
+    }
+}
+
+/// How the regularisation strength is chosen (`docs/case-files.md`, plate.toml `strength`).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub enum StrengthRule {
+    /// Not stated: the inversion applies the project's default rule (`docs/calibration.md`).
+    Default,
+    /// Generalised cross-validation.
+    Gcv,
+    /// The discrepancy principle (needs a stated sigma).
+    Discrepancy,
+    /// Marginal likelihood.
+    Evidence,
+    /// The L-curve corner.
+    LCurve,
+    /// A fixed strength.
+    Fixed(f64),
+}
+
+impl StrengthRule {
+    /// The word used in plate files (`default` when none was given, `fixed` for a number).
+    pub fn name(self) -> &'static str {
+        match self {
+            StrengthRule::Default => "default",
+            StrengthRule::Gcv => "gcv",
+            StrengthRule::Discrepancy => "discrepancy",
+            StrengthRule::Evidence => "evidence",
+            StrengthRule::LCurve => "lcurve",
+            StrengthRule::Fixed(_) => "fixed",
+        }
+    }
+}
+
+/// The `[fit]` settings.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct FitSettings {
+    /// Series terms per unknown edge.
+    pub terms: usize,
+    /// The penalised derivative.
+    pub smoothing: Smoothing,
+    /// How the strength is chosen.
+    pub strength: StrengthRule,
+}
+
+/// The `[uncertainty]` settings.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct UncertaintySettings {
+    /// Bootstrap replicates (at least 1).
+    pub replicates: usize,
+    /// Confidence level of the intervals, in (0, 1).
+    pub confidence: f64,
+    /// Random seed.
+    pub seed: u64,
+    /// Standard uncertainty of every sensor position, metres, if stated.
+    pub position_sigma_m: Option<f64>,
+}
+
+/// The `[bounds]` settings: what strict bounds may assume about the hidden edges.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize)]
+pub struct BoundsSettings {
+    /// Steepest credible change of a hidden edge's temperature along it, K/m.
+    pub max_gradient_k_per_m: Option<f64>,
+    /// Lowest temperature a hidden edge can have, kelvin.
+    pub min_temperature_k: Option<f64>,
+    /// Highest temperature a hidden edge can have, kelvin.
+    pub max_temperature_k: Option<f64>,
+}
+
+/// The files of a case.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct CaseFiles {
+    /// The case directory.
+    pub dir: PathBuf,
+    /// `plate.toml` (or the `--plate` override).
+    pub plate: PathBuf,
+    /// `sensors.csv` (or the `--sensors` override).
+    pub sensors: PathBuf,
+    /// `readings.csv` (or the `--readings` override); it need not exist for every command.
+    pub readings: PathBuf,
+    /// Fixed-edge profile files named in `plate.toml`, filled in by [`load_case`].
+    pub profiles: Vec<(Edge, PathBuf)>,
+}
+
+impl CaseFiles {
+    /// The default files of a case directory: `plate.toml`, `sensors.csv`, `readings.csv`.
+    pub fn in_dir(dir: impl Into<PathBuf>) -> Self {
+        let dir = dir.into();
+        CaseFiles {
+            plate: dir.join("plate.toml"),
+            sensors: dir.join("sensors.csv"),
+            readings: dir.join("readings.csv"),
+            profiles: Vec::new(),
+            dir,
+        }
+    }
+
+    /// Replace any of the three main files (the `--plate`, `--sensors`, `--readings` flags).
+    pub fn with_overrides(
+        mut self,
+        plate: Option<PathBuf>,
+        sensors: Option<PathBuf>,
+        readings: Option<PathBuf>,
+    ) -> Self {
+        if let Some(p) = plate {
+            self.plate = p;
+        }
+        if let Some(s) = sensors {
+            self.sensors = s;
+        }
+        if let Some(r) = readings {
+            self.readings = r;
+        }
+        self
+    }
+
+    /// Every input file that exists: the outputs must never replace one of these.
+    pub fn inputs(&self) -> Vec<&Path> {
+        let mut v: Vec<&Path> = vec![&self.plate, &self.sensors, &self.readings];
+        v.extend(self.profiles.iter().map(|(_, p)| p.as_path()));
+        v.retain(|p| p.exists());
+        v
+    }
+}
+
+/// A validated case, in SI units.
+#[derive(Debug, Clone)]
+pub struct Case {
+    /// The units the case's files are written in (for reading and for reporting).
+    pub units: Units,
+    /// The plate and its edge conditions.
+    pub plate: Plate,
+    /// The sensors, in file order.
+    pub sensors: Vec<Sensor>,
+    /// The `[fit]` settings.
+    pub fit: FitSettings,
+    /// The stated reading uncertainty.
+    pub noise: NoiseSpec,
+    /// The `[uncertainty]` settings.
+    pub uncertainty: UncertaintySettings,
+    /// The `[design]` settings (used by `edgetherm design` only).
+    pub design: DesignSettings,
+    /// The `[bounds]` settings (strict bounds under a gradient limit).
+    pub bounds: BoundsSettings,
+    /// Where the case came from.
+    pub files: CaseFiles,
+}
+/// An axis-aligned rectangle of the plate, metres (`[design] allowed` and `keep_out`).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Region {
+    /// Smallest x, metres.
+    pub x_min: f64,
+    /// Largest x, metres.
+    pub x_max: f64,
+    /// Smallest y, metres.
+    pub y_min: f64,
+    /// Largest y, metres.
+    pub y_max: f64,
+}
+
+impl Region {
+    /// Whether `p` lies in the closed rectangle.
+    pub fn contains(&self, p: Point) -> bool {
+        p.x >= self.x_min && p.x <= self.x_max && p.y >= self.y_min && p.y <= self.y_max
+    }
+}
+
+/// Where the candidate positions of a design come from.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub enum CandidateSource {
+    /// A regular grid with this spacing, metres; `None` picks one (see `crate::design`).
+    Grid(Option<f64>),
+    /// A CSV file of positions (`[design] candidates`), resolved against the plate file's
+    /// directory.
+    File(PathBuf),
+}
+
+/// The `[design]` settings (`docs/design.md`), validated and in SI units.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct DesignSettings {
+    /// Whether `plate.toml` has a `[design]` section at all.
+    pub present: bool,
+    /// Where sensors may go; empty means the whole plate.
+    pub allowed: Vec<Region>,
+    /// Where they may not.
+    pub keep_out: Vec<Region>,
+    /// Minimum distance from every edge of the plate, metres.
+    pub edge_distance_m: f64,
+    /// Minimum distance between two sensors, metres.
+    pub sensor_spacing_m: f64,
+    /// The candidate positions.
+    pub candidates: CandidateSource,
+    /// Expected standard uncertainty of a reading, kelvin; `None` falls back to `[noise]
+    /// sigma`.
+    pub noise_k: Option<f64>,
+    /// Prior standard deviation of the hidden profile about its level, kelvin (averaged along
+    /// the edge); `None` when not given (the design then refuses to run).
+    pub variation_k: Option<f64>,
+    /// The smoothing order of the prior; `None` uses `[fit] smoothing` when it names an
+    /// order, else curvature.
+    pub smoothing: Option<Smoothing>,
+    /// The criterion word (`information`, `edge`, `worst`), checked; `None` for the default.
+    pub criterion: Option<String>,
+    /// The 1-based line of each `[design]` key given, for messages (`design.allowed`, ...).
+    pub lines: Vec<(String, usize)>,
+}
+
+impl Default for DesignSettings {
+    fn default() -> Self {
+        DesignSettings {
+            present: false,
+            allowed: Vec::new(),
+            keep_out: Vec::new(),
+            edge_distance_m: 0.0,
+            sensor_spacing_m: 0.0,
+            candidates: CandidateSource::Grid(None),
+            noise_k: None,
+            variation_k: None,
+            smoothing: None,
+            criterion: None,
+            lines: Vec::new(),
+        }
+    }
+}
+
+impl DesignSettings {
+    /// The line of a `[design]` key (`design.variation`), when the file gave it.
+    pub fn line_of(&self, field: &str) -> Option<usize> {
+        self.lines.iter().find(|(f, _)| f == field).map(|(_, l)| *l)
+    }
+}
+
+/// Default grid size (`docs/case-files.md`, outputs).
+pub const DEFAULT_GRID: (usize, usize) = (41, 41);
+
+/// Largest grid accepted along one direction: beyond this a CSV of the field is no longer
+/// something a person or a plotting script can use.
+pub const MAX_GRID: usize = 2001;
+
+/// Grid coordinates in metres: `nx` points across the width and `ny` up the height, edges
+/// included. A long strip has no height: its grid runs from the bottom to one width up,
+/// where the field has relaxed to within `e^{-π}` (4 %) of its far value.
+pub fn grid_coordinates(shape: &Shape, nx: usize, ny: usize) -> (Vec<f64>, Vec<f64>) {
+    let w = shape.width();
+    let h = shape.height().unwrap_or(w);
+    let lin = |len: f64, n: usize| (0..n).map(|i| len * i as f64 / (n - 1) as f64).collect();
+    (lin(w, nx), lin(h, ny))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn strip_grid_is_one_width_deep() {
+        let (xs, ys) = grid_coordinates(&Shape::Strip { width_m: 0.04 }, 5, 3);
+        assert_eq!(xs.len(), 5);
+        assert_eq!(ys, vec![0.0, 0.02, 0.04]);
+    }
+}
