@@ -1,0 +1,448 @@
+//! Step 5 of an estimate: the result, assembled from the fit, the output maps and the
+//! bootstrap: the edge profiles with their bands, the hottest point, the field, the
+//! exceedance probability, every sensor's residuals and decision, the summaries of the fit
+//! and of the strength, and the cautions.
+
+use super::faults::Fitted;
+use super::outputs::{OutputMaps, Resampled};
+use super::problem::Problem;
+use super::{
+    DoubtfulSensor, EdgeResult, EstimateOptions, EstimateResult, Exceedance, FieldResult,
+    FitSummary, Hottest, Interval, SAFETY_CAUTION, SensorResult, StrengthSummary, linear_sd,
+    profile_points, refined_max, resolution,
+};
+use crate::bounds::BoundsResult;
+use crate::case::{Case, Smoothing};
+use crate::error::Result;
+use crate::geometry::Edge;
+use crate::inverse::Strength;
+use crate::uncertainty::{pointwise_band, quantile, simultaneous_band};
+use nalgebra::DMatrix;
+use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
+
+/// Put the result together.
+pub(super) fn assemble(
+    problem: &Problem<'_>,
+    fitted: Fitted,
+    maps: OutputMaps,
+    resampled: Resampled,
+    bounds: Option<BoundsResult>,
+    options: &EstimateOptions,
+) -> Result<EstimateResult> {
+    let case = problem.case;
+    let boot = &resampled.output;
+    let confidence = case.uncertainty.confidence;
+    let prof_est = profile_estimate(&maps, &fitted);
+    let (edges, hottest) = edge_results(problem, &fitted, &maps, &resampled, &prof_est)?;
+    let field = field_result(&fitted, &maps, boot, confidence);
+    let exceedance = options.limit.map(|limit| {
+        exceedance(
+            &prof_est,
+            &fitted,
+            boot,
+            resampled.replicates,
+            limit,
+            options,
+        )
+    });
+    let sensors = sensor_results(problem, &fitted)?;
+    let fit_summary = fit_summary(problem, &fitted);
+    let strength_summary = strength_summary(problem, &fitted);
+    let flagged: Vec<usize> = fitted.flags.iter().map(|f| f.0).collect();
+    let cautions = cautions(
+        case,
+        &fit_summary,
+        &strength_summary,
+        &edges,
+        &hottest,
+        &flagged,
+        &fitted.doubts,
+        boot.fallbacks,
+    );
+    Ok(EstimateResult {
+        units: case.units,
+        plate: case.plate.clone(),
+        edges,
+        field,
+        sensors,
+        hottest,
+        exceedance,
+        doubtful_sensors: fitted.doubts,
+        strength: strength_summary,
+        fit: fit_summary,
+        confidence,
+        replicates: resampled.replicates,
+        bootstrap_mode: resampled.mode.name().to_string(),
+        seed: resampled.seed,
+        bounds,
+        cautions,
+    })
+}
+
+/// The profiles of the unknown edges with their bands, resolution lengths and heat flows,
+/// and the hottest point (widened by the hotter explanation of any doubtful sensor).
+fn edge_results(
+    problem: &Problem<'_>,
+    fitted: &Fitted,
+    maps: &OutputMaps,
+    resampled: &Resampled,
+    prof_est: &[f64],
+) -> Result<(Vec<EdgeResult>, Hottest)> {
+    let case = problem.case;
+    let boot = &resampled.output;
+    let replicates = resampled.replicates;
+    let c_hat = &fitted.fit.solution.coefficients;
+    let confidence = case.uncertainty.confidence;
+    let z = Normal::standard().inverse_cdf(0.5 + confidence / 2.0);
+    let n_prof = profile_points(case.fit.terms);
+    let (p_lo, p_hi) = pointwise_band(prof_est, &boot.errors[0], confidence);
+    let (s_lo, s_hi) = simultaneous_band(prof_est, &boot.errors[0], confidence);
+    let prof_sd = linear_sd(&maps.profile, &fitted.fit.solution.covariance);
+    let mut hottest = hottest_point(
+        &problem.edge_positions,
+        prof_est,
+        &p_lo,
+        &p_hi,
+        &boot.errors[0],
+    );
+    // A sensor kept under two explanations: the hotter one bounds the hottest temperature.
+    for d in &fitted.doubts {
+        hottest.temperature_interval[1] = hottest.temperature_interval[1].max(d.peak_temperature);
+    }
+    let resolution = resolution::resolution_lengths(
+        &problem.model,
+        &fitted.fit.solution.resolution,
+        &problem.edge_positions,
+        &problem.edge_maps,
+        prof_est,
+    );
+    let mut edges = Vec::new();
+    for (k, (edge, pos)) in problem.edge_positions.iter().enumerate() {
+        let r = k * n_prof..(k + 1) * n_prof;
+        let heat_flow = maps.heat.as_ref().map(|(m, off)| {
+            let est = (m.row(k) * c_hat)[0] + off[k];
+            let mut draws: Vec<f64> = (0..replicates)
+                .map(|b| est - boot.errors[2][(b, k)])
+                .collect();
+            let lo = quantile(&mut draws, (1.0 - confidence) / 2.0);
+            let hi = quantile(&mut draws, (1.0 + confidence) / 2.0);
+            Interval {
+                value: est,
+                lower: lo,
+                upper: hi,
+            }
+        });
+        edges.push(EdgeResult {
+            edge: *edge,
+            positions: pos.clone(),
+            estimate: prof_est[r.clone()].to_vec(),
+            lower: p_lo[r.clone()].to_vec(),
+            upper: p_hi[r.clone()].to_vec(),
+            simultaneous_lower: s_lo[r.clone()].to_vec(),
+            simultaneous_upper: s_hi[r.clone()].to_vec(),
+            linear_lower: r.clone().map(|j| prof_est[j] - z * prof_sd[j]).collect(),
+            linear_upper: r.clone().map(|j| prof_est[j] + z * prof_sd[j]).collect(),
+            resolution_length: resolution[k].worst,
+            resolution_worst_position: resolution[k].worst_position,
+            resolution_at_hottest: resolution[k].at_hottest,
+            heat_flow,
+        });
+    }
+    Ok((edges, hottest))
+}
+
+/// The stacked profile estimate `Q ĉ + q0` of every unknown edge.
+fn profile_estimate(maps: &OutputMaps, fitted: &Fitted) -> Vec<f64> {
+    (&maps.profile * &fitted.fit.solution.coefficients)
+        .iter()
+        .zip(&maps.profile_offset)
+        .map(|(a, b)| a + b)
+        .collect()
+}
+
+/// The field on the grid with its pointwise band.
+fn field_result(
+    fitted: &Fitted,
+    maps: &OutputMaps,
+    boot: &crate::uncertainty::BootstrapOutput,
+    confidence: f64,
+) -> FieldResult {
+    let field_est: Vec<f64> = (&maps.field.matrix * &fitted.fit.solution.coefficients)
+        .iter()
+        .zip(maps.field.offset.iter())
+        .map(|(a, b)| a + b)
+        .collect();
+    let (f_lo, f_hi) = pointwise_band(&field_est, &boot.errors[1], confidence);
+    FieldResult {
+        xs: maps.xs.clone(),
+        ys: maps.ys.clone(),
+        estimate: field_est,
+        lower: f_lo,
+        upper: f_hi,
+    }
+}
+
+/// The probability that the hottest point of the hidden edges exceeds `limit`: the share of
+/// bootstrap replicates whose profile maximum does. The hotter explanation of a doubtful
+/// sensor crossing the limit raises the alarm too.
+fn exceedance(
+    prof_est: &[f64],
+    fitted: &Fitted,
+    boot: &crate::uncertainty::BootstrapOutput,
+    replicates: usize,
+    limit: f64,
+    options: &EstimateOptions,
+) -> Exceedance {
+    let over = (0..replicates)
+        .filter(|&b| replicate_max(prof_est, &boot.errors[0], b) > limit)
+        .count();
+    let probability = over as f64 / replicates as f64;
+    Exceedance {
+        limit,
+        probability,
+        alarm_probability: options.alarm_probability,
+        alarm: probability > options.alarm_probability
+            || fitted.doubts.iter().any(|d| d.peak_temperature > limit),
+    }
+}
+
+/// Every sensor of the case: reading, fitted value, residuals, leverage, uncertainty and the
+/// decision taken about it.
+fn sensor_results(problem: &Problem<'_>, fitted: &Fitted) -> Result<Vec<SensorResult>> {
+    let fit = &fitted.fit;
+    let c_slice = fit.solution.coefficients.as_slice();
+    let leverage_of = |i: usize| {
+        fitted
+            .used
+            .iter()
+            .position(|&u| u == i)
+            .map(|k| fit.solution.leverages[k])
+    };
+    problem
+        .case
+        .sensors
+        .iter()
+        .enumerate()
+        .map(|(i, s)| {
+            let fitted_t = problem.model.temperature(c_slice, s.position)?;
+            let reading = problem.readings.get(i).copied().flatten();
+            Ok(SensorResult {
+                sensor: s.id.clone(),
+                position: s.position,
+                reading,
+                fitted: fitted_t,
+                residual: reading.map(|r| r - fitted_t),
+                loo_residual: fitted.loo_of[i],
+                leverage: leverage_of(i),
+                sigma: reading.map(|_| problem.sigma_of[i] * fit.sigma_scale.unwrap_or(1.0)),
+                flag: fitted.flags.iter().find(|f| f.0 == i).map(|f| f.1.clone()),
+                doubtful: fitted.doubts.iter().any(|d| d.index == i),
+            })
+        })
+        .collect()
+}
+
+/// The fit's noise level, chi-square and its p-value (when the noise was stated).
+fn fit_summary(problem: &Problem<'_>, fitted: &Fitted) -> FitSummary {
+    let fit = &fitted.fit;
+    let dof = fit.solution.residual_dof();
+    let chi2 = fit.solution.chi_square;
+    let p_value = (dof > 0.05 && problem.stated)
+        .then(|| ChiSquared::new(dof).ok().map(|d| 1.0 - d.cdf(chi2)))
+        .flatten();
+    let sig_used: Vec<f64> = fit.sigma.iter().copied().collect();
+    let sigma_rms = (sig_used.iter().map(|s| s * s).sum::<f64>() / sig_used.len() as f64).sqrt();
+    FitSummary {
+        sigma: sigma_rms,
+        sigma_source: problem.sigma_source.name().to_string(),
+        chi_square: chi2,
+        dof,
+        p_value,
+        readings_used: fitted.used.len(),
+    }
+}
+
+/// The strength chosen, by which rule, and the smoothing order.
+fn strength_summary(problem: &Problem<'_>, fitted: &Fitted) -> StrengthSummary {
+    let fit = &fitted.fit;
+    StrengthSummary {
+        method: match problem.strength {
+            Strength::Fixed(_) => "fixed".to_string(),
+            Strength::Rule(m) => m.name().to_string(),
+        },
+        value: fit.selection.lambda,
+        effective_parameters: fit.solution.effective_parameters,
+        at_range_end: fit.selection.at_grid_end,
+        smoothing: Smoothing::of_order(problem.order)
+            .map_or("curvature", Smoothing::name)
+            .to_string(),
+        smoothing_auto: problem.case.fit.smoothing == Smoothing::Auto,
+    }
+}
+
+/// The largest value of replicate `b`'s profile, `est − errors[b]`.
+fn replicate_max(est: &[f64], errors: &DMatrix<f64>, b: usize) -> f64 {
+    est.iter()
+        .enumerate()
+        .map(|(j, e)| e - errors[(b, j)])
+        .fold(f64::NEG_INFINITY, f64::max)
+}
+
+/// The hottest point of the estimate and its intervals.
+///
+/// The interval for the hottest temperature is `[max_s L(s), max_s U(s)]` from the pointwise
+/// band `[L, U]` of every unknown edge: if the band holds at the true hottest point `s*`
+/// then `T* = u(s*) ≤ U(s*) ≤ max U`, and if it holds where `L` peaks then
+/// `T* ≥ u(argmax L) ≥ max L`, so the interval misses only when one of two one-sided bounds
+/// fails. It is wider than the spread of the replicates' maxima, which sits too high for a
+/// smooth truth (the maximum of a rough draw exceeds the maximum of the truth) and too low at
+/// a sharp peak (smoothing bias); see `docs/calibration.md`. The position interval is the
+/// hull of the set `{s : U(s) ≥ max L}` on the hottest edge, the set that can hold the
+/// maximum (`docs/method.md` §3). `main_peak_share` is the share of replicates whose own hottest point
+/// falls inside it.
+fn hottest_point(
+    edge_positions: &[(Edge, Vec<f64>)],
+    est: &[f64],
+    lower: &[f64],
+    upper: &[f64],
+    errors: &DMatrix<f64>,
+) -> Hottest {
+    let n = edge_positions.first().map_or(0, |e| e.1.len());
+    let locate = |val: &dyn Fn(usize) -> f64| -> (usize, f64, f64) {
+        let mut best = (0, f64::NAN, f64::NEG_INFINITY);
+        for (k, (_, pos)) in edge_positions.iter().enumerate() {
+            let (idx, v) = refined_max(|j| val(k * n + j), 0, n);
+            if v > best.2 {
+                let step = pos[1] - pos[0];
+                best = (k, pos[0] + idx * step, v);
+            }
+        }
+        best
+    };
+    let (k0, pos0, t0) = locate(&|j| est[j]);
+    let max_lower = lower.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let max_upper = upper.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let pos = &edge_positions[k0].1;
+    let candidates: Vec<f64> = (0..n)
+        .filter(|&j| upper[k0 * n + j] >= max_lower)
+        .map(|j| pos[j])
+        .collect();
+    let p_lo = candidates.first().copied().unwrap_or(pos0).min(pos0);
+    let p_hi = candidates.last().copied().unwrap_or(pos0).max(pos0);
+    let b_count = errors.nrows();
+    let mut counts = vec![0usize; edge_positions.len()];
+    let mut inside = 0usize;
+    for b in 0..b_count {
+        let (k, p, _) = locate(&|j| est[j] - errors[(b, j)]);
+        counts[k] += 1;
+        inside += usize::from(k == k0 && p >= p_lo && p <= p_hi);
+    }
+    Hottest {
+        edge: edge_positions[k0].0,
+        position: pos0,
+        position_interval: [p_lo, p_hi],
+        temperature: t0,
+        temperature_interval: [max_lower.min(t0), max_upper.max(t0)],
+        edge_shares: edge_positions
+            .iter()
+            .zip(&counts)
+            .map(|((e, _), &c)| (*e, c as f64 / b_count.max(1) as f64))
+            .collect(),
+        main_peak_share: inside as f64 / b_count.max(1) as f64,
+    }
+}
+
+#[allow(clippy::too_many_arguments)]
+fn cautions(
+    case: &Case,
+    summary: &FitSummary,
+    strength: &StrengthSummary,
+    edges: &[EdgeResult],
+    hottest: &Hottest,
+    flagged: &[usize],
+    doubts: &[DoubtfulSensor],
+    fallbacks: usize,
+) -> Vec<String> {
+    let u = &case.units;
+    let lu = u.length.symbol();
+    let tu = u.temperature.symbol();
+    let mut out = vec![SAFETY_CAUTION.to_string()];
+    out.push(
+        "The model assumes steady conduction with constant conductivity and the stated edge \
+         conditions; a plate still warming up, or a contact that is not as modelled, biases \
+         the estimate."
+            .to_string(),
+    );
+    for e in edges {
+        out.push(format!(
+            "Along the {} edge, features shorter than about {} {lu} (the resolution length, \
+             the worst along the edge: between or beyond the sensors a point feature is smeared \
+             over that much) are smoothed away: a narrow hot spot appears wider and cooler than \
+             it is.",
+            e.edge,
+            significant3(u.length_from_m(e.resolution_length))
+        ));
+    }
+    if summary.sigma_source == "estimated" {
+        out.push(format!(
+            "No reading uncertainty was stated: it was estimated from the residuals as {} \
+             {tu}, with {:.1} degrees of freedom. State [noise] sigma for firmer intervals.",
+            significant3(u.dtemp_from_k(summary.sigma)),
+            summary.dof
+        ));
+    }
+    if let Some(p) = summary.p_value {
+        if p < 0.01 {
+            out.push(format!(
+                "The readings scatter about the fit more than the stated noise explains \
+                 (chi-square {:.1} on {:.1} degrees of freedom, p = {p:.2e}): the noise may be \
+                 understated, the plate not steady, or a sensor position or edge condition \
+                 wrong.",
+                summary.chi_square, summary.dof
+            ));
+        }
+    }
+    if strength.at_range_end {
+        out.push(format!(
+            "The {} rule found no interior optimum for the smoothing strength; the value at \
+             the end of the search range was used.",
+            strength.method
+        ));
+    }
+    for &i in flagged {
+        out.push(format!(
+            "Sensor {} was left out as suspect (see sensors.csv).",
+            case.sensors[i].id
+        ));
+    }
+    for d in doubts {
+        out.push(format!(
+            "Sensor {} stands out from its neighbours and was kept: a hot spot under it \
+             explains its reading as well as a fault does (see sensors.csv and the summary).",
+            d.sensor
+        ));
+    }
+    if hottest.main_peak_share < 0.8 {
+        out.push(format!(
+            "The hottest point is not well located: only {:.0} % of the bootstrap replicates \
+             put it within the reported position interval on the {} edge.",
+            100.0 * hottest.main_peak_share,
+            hottest.edge
+        ));
+    }
+    if fallbacks > 0 {
+        out.push(format!(
+            "In {fallbacks} bootstrap replicates the strength rule failed and the case's own \
+             strength was used."
+        ));
+    }
+    out
+}
+/// `v` with three significant digits, for cautions a person reads.
+fn significant3(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v}");
+    }
+    let decimals = (2 - v.abs().log10().floor() as i32).max(0) as usize;
+    format!("{v:.decimals$}")
+}
