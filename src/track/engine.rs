@@ -225,6 +225,59 @@ struct Pattern {
     last_use: u64,
 }
 
+/// How a row's profile is formed.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum RowMode {
+    /// At a fixed λ: the pattern's cached linear maps ([`FixedParts`]) act on the data.
+    Cached,
+    /// At the λ the rule chose for this row: through the coefficients and the profile maps.
+    Chosen,
+}
+
+/// One row on its way through [`RowEstimator::fit_row`]'s steps.
+struct RowStep<'r> {
+    readings: &'r [Option<f64>],
+    used: &'r [usize],
+    strength: RowStrength,
+    order: usize,
+    mode: RowMode,
+    /// λ of the row (set by the first step).
+    lambda: f64,
+    /// Whether the pattern's projection holds this row's data.
+    projected: bool,
+    /// Whether the estimator's coefficients are this row's at `lambda`.
+    coefficients: bool,
+    /// σ̂ of the row, 1 when σ is stated.
+    s: f64,
+}
+
+impl RowStep<'_> {
+    /// Project the row's data `d` onto the pattern's basis, once.
+    fn project(&mut self, pat: &mut Pattern, d: &DVector<f64>) -> Result<()> {
+        if !self.projected {
+            pat.dec.project_into(d, &mut pat.proj)?;
+            self.projected = true;
+        }
+        Ok(())
+    }
+}
+
+/// The cached maps of a row in [`RowMode::Cached`].
+fn cached(pat: &Pattern, mode: RowMode) -> Option<&FixedParts> {
+    pat.fixed.as_ref().filter(|_| mode == RowMode::Cached)
+}
+
+/// The hottest point of a row (kelvin, metres; `edge` indexes the unknown edges).
+struct RowHottest {
+    edge: usize,
+    position: f64,
+    position_interval: [f64; 2],
+    temperature: f64,
+    /// `max L` and `max U` of the linear band.
+    max_lower: f64,
+    max_upper: f64,
+}
+
 /// The per-row estimator with its pattern cache.
 pub struct RowEstimator {
     points: Vec<Point>,
@@ -526,10 +579,14 @@ impl RowEstimator {
     /// Estimate one row. `readings` in kelvin indexed like `case.sensors`; `used` the sensors
     /// to fit (each must have a reading; at least [`Self::min_readings`]).
     ///
+    /// The row runs through named steps on its pattern ([`RowStep`]): the strength, the
+    /// fitted values and σ̂, the misfit check of a calibrated strength, the profile on the scan
+    /// grid, the hottest point and its intervals, the exceedance probability and the sensor
+    /// diagnostics. A calibrated row that misfits is then estimated again with the rule.
+    ///
     /// # Errors
     /// [`Error::Invalid`] when the readings cannot determine the model or the strength rule
     /// cannot be applied; [`Error::Internal`] on a numerical breakdown.
-    #[allow(clippy::float_cmp)] // a cached value is reused only for the very same strength
     pub fn fit_row(
         &mut self,
         readings: &[Option<f64>],
@@ -550,104 +607,196 @@ impl RowEstimator {
             RowStrength::PerRow(_) => self.order_for(readings, used)?,
         };
         self.pattern_key(readings, used, order)?;
-        let z = self.z;
-        let n_scan = self.scan_index.len();
-        let pat = self
+        // The pattern leaves the cache for the row (so that the steps can borrow it beside
+        // the estimator's buffers) and always goes back, whatever the row's outcome.
+        let (key, mut pat) = self
             .cache
-            .get_mut(self.key.as_slice())
+            .remove_entry(self.key.as_slice())
             .ok_or_else(internal)?;
-        fill_d(&mut self.d, used, readings, &self.sensor_map.offset);
-        // The projection of the data onto the pattern's basis: the rule needs it to choose λ;
-        // at a fixed λ the cached linear maps act on the data directly, so it is formed only
-        // when the coefficients or the draws are needed (`projected` says whether it holds
-        // this row's data).
-        let mut projected = false;
-        let lambda = match strength {
+        let mut step = RowStep {
+            readings,
+            used,
+            strength,
+            order,
+            mode: match strength {
+                RowStrength::Fixed { .. } => RowMode::Cached,
+                RowStrength::PerRow(_) => RowMode::Chosen,
+            },
+            lambda: 0.0,
+            projected: false,
+            coefficients: false,
+            s: 1.0,
+        };
+        let refit = self.fit_pattern_row(&mut pat, &mut step, limit, out);
+        self.cache.insert(key, pat);
+        if let Some(rule) = refit? {
+            // the sensor diagnostics stay those of the calibrated fit: a strength re-chosen
+            // with a faulty reading included bends toward it and hides it
+            let diagnostics = std::mem::take(&mut out.diagnostics);
+            self.fit_row(readings, used, RowStrength::PerRow(rule), limit, out)?;
+            out.diagnostics = diagnostics;
+            out.refitted = true;
+        }
+        Ok(())
+    }
+
+    /// The steps of [`Self::fit_row`] on the row's pattern. Returns the rule to estimate the
+    /// row again with when a calibrated strength misfits it (`out` then holds only the
+    /// calibrated fit's diagnostics).
+    fn fit_pattern_row(
+        &mut self,
+        pat: &mut Pattern,
+        step: &mut RowStep<'_>,
+        limit: Option<f64>,
+        out: &mut RowFit,
+    ) -> Result<Option<Strength>> {
+        fill_d(
+            &mut self.d,
+            step.used,
+            step.readings,
+            &self.sensor_map.offset,
+        );
+        self.choose_lambda(pat, step)?;
+        self.fitted_values(pat, step)?;
+        let sigma_scale = self.sigma_scale(pat, step)?;
+        step.s = sigma_scale.unwrap_or(1.0);
+        out.refitted = false;
+        let refit_rule = self.misfit_rule(pat, step);
+        let mut leverage = std::mem::take(&mut self.lev);
+        self.scan_profile(pat, step, &mut leverage)?;
+        let hot = self.hottest(pat, step)?;
+        let exceedance = match limit {
+            None => None,
+            Some(t) => Some(self.exceedance(pat, step, t)?),
+        };
+        self.diagnostics(pat, step, &mut leverage, out)?;
+        self.lev = leverage;
+        if refit_rule.is_some() {
+            return Ok(refit_rule);
+        }
+        out.used.clear();
+        out.used.extend_from_slice(&pat.rows);
+        out.order = step.order;
+        out.lambda = step.lambda;
+        out.sigma_scale = sigma_scale;
+        out.edge = Some(self.edge_positions[hot.edge].0);
+        out.position = hot.position;
+        out.position_interval = hot.position_interval;
+        out.temperature = hot.temperature;
+        out.temperature_interval = [
+            hot.max_lower.min(hot.temperature),
+            hot.max_upper.max(hot.temperature),
+        ];
+        out.exceedance = exceedance;
+        Ok(None)
+    }
+
+    /// Step 1: λ, fixed or chosen by the rule on this row's data. At a fixed λ the cached
+    /// linear maps act on the data directly, so the projection of the data onto the
+    /// pattern's basis is formed only when the coefficients or the draws need it.
+    #[allow(clippy::float_cmp)] // the cached maps are reused only for the very same strength
+    fn choose_lambda(&mut self, pat: &mut Pattern, step: &mut RowStep<'_>) -> Result<()> {
+        step.lambda = match step.strength {
             RowStrength::Fixed { lambda, .. } => lambda,
             RowStrength::PerRow(s) => {
-                pat.dec.project_into(&self.d, &mut pat.proj)?;
-                projected = true;
+                step.project(pat, &self.d)?;
                 pat.dec
                     .select_for(&pat.proj, s, &select_options(false))?
                     .lambda
             }
         };
-        let m = used.len();
-        let fixed_here = matches!(strength, RowStrength::Fixed { .. });
-        if fixed_here && pat.fixed.as_ref().is_none_or(|f| f.lambda != lambda) {
+        if step.mode == RowMode::Cached
+            && pat.fixed.as_ref().is_none_or(|f| f.lambda != step.lambda)
+        {
             pat.fixed = Some(fixed_parts(
                 &pat.dec,
-                lambda,
+                step.lambda,
                 &self.prof_matrix,
                 &self.scan_index,
-                m,
+                step.used.len(),
             )?);
             pat.draws = None;
         }
+        Ok(())
+    }
+
+    /// Step 2: the fitted values at the sensors: `S d` with the cached smoother at a fixed
+    /// λ, else through the coefficients (which are then ready for the later steps).
+    fn fitted_values(&mut self, pat: &mut Pattern, step: &mut RowStep<'_>) -> Result<()> {
+        let m = step.used.len();
         if self.fitted.len() != m {
             self.fitted = DVector::zeros(m);
         }
-        // At a fixed λ the fitted values are S d with the smoother S cached; the coefficients
-        // are formed only when something needs them.
-        let mut c_ready = false;
-        match pat.fixed.as_ref().filter(|_| fixed_here) {
+        match cached(pat, step.mode) {
             Some(fx) => self.fitted.gemv(1.0, &fx.smoother, &self.d, 0.0),
             None => {
-                if !projected {
-                    pat.dec.project_into(&self.d, &mut pat.proj)?;
-                    projected = true;
-                }
-                pat.dec.coefficients_into(&pat.proj, lambda, &mut self.c)?;
+                step.project(pat, &self.d)?;
+                pat.dec
+                    .coefficients_into(&pat.proj, step.lambda, &mut self.c)?;
                 pat.dec.predict_into(&self.c, &mut self.fitted)?;
-                c_ready = true;
+                step.coefficients = true;
             }
         }
-        // σ̂ when not stated: χ²/(m − tr H) at this λ (unit weights).
-        let sigma_scale = if self.stated {
-            None
-        } else {
-            let f_sum: f64 = pat
-                .dec
-                .singular_values()
-                .iter()
-                .map(|g| g * g / (g * g + lambda))
-                .sum();
-            let chi2: f64 = (0..m)
-                .map(|k| ((self.d[k] - self.fitted[k]) / pat.sigma[k]).powi(2))
-                .sum();
-            let dof = m as f64 - (pat.dec.null_dimension() as f64 + f_sum);
-            if dof <= 0.0 {
-                return Err(Error::invalid_field(
-                    "noise",
-                    "no reading uncertainty is stated and this row's fit leaves no residual \
-                     degrees of freedom to estimate it from: state [noise] sigma",
-                ));
-            }
-            Some((chi2 / dof).sqrt().max(1e-9))
-        };
-        let s = sigma_scale.unwrap_or(1.0);
+        Ok(())
+    }
 
-        out.refitted = false;
-        let mut refit_rule = None;
-        if let (
-            RowStrength::Fixed {
-                refit: Some(rule), ..
-            },
-            Some(fx),
-            true,
-        ) = (strength, pat.fixed.as_ref(), self.stated)
-        {
-            let chi2: f64 = (0..m)
-                .map(|k| ((self.d[k] - self.fitted[k]) / pat.sigma[k]).powi(2))
-                .sum();
-            if chi2 > fx.chi2_limit {
-                refit_rule = Some(rule);
-            }
+    /// Step 3: σ̂ when σ is not stated, `χ²/(m − tr H)` at this λ (unit weights).
+    fn sigma_scale(&self, pat: &Pattern, step: &RowStep<'_>) -> Result<Option<f64>> {
+        if self.stated {
+            return Ok(None);
         }
-        // Scan-grid profile and sd.
-        let mut leverage = std::mem::take(&mut self.lev);
+        let m = step.used.len();
+        let lambda = step.lambda;
+        let f_sum: f64 = pat
+            .dec
+            .singular_values()
+            .iter()
+            .map(|g| g * g / (g * g + lambda))
+            .sum();
+        let chi2 = self.weighted_chi2(pat, m);
+        let dof = m as f64 - (pat.dec.null_dimension() as f64 + f_sum);
+        if dof <= 0.0 {
+            return Err(Error::invalid_field(
+                "noise",
+                "no reading uncertainty is stated and this row's fit leaves no residual \
+                 degrees of freedom to estimate it from: state [noise] sigma",
+            ));
+        }
+        Ok(Some((chi2 / dof).sqrt().max(1e-9)))
+    }
+
+    /// `Σ ((d_k − fitted_k) / σ_k)²` of the row's fit.
+    fn weighted_chi2(&self, pat: &Pattern, m: usize) -> f64 {
+        (0..m)
+            .map(|k| ((self.d[k] - self.fitted[k]) / pat.sigma[k]).powi(2))
+            .sum()
+    }
+
+    /// Step 4: with a calibrated strength and a stated σ, the rule to estimate the row again
+    /// with when its chi-square exceeds the [`MISFIT_QUANTILE`] limit.
+    fn misfit_rule(&self, pat: &Pattern, step: &RowStep<'_>) -> Option<Strength> {
+        match (step.strength, pat.fixed.as_ref(), self.stated) {
+            (
+                RowStrength::Fixed {
+                    refit: Some(rule), ..
+                },
+                Some(fx),
+                true,
+            ) if self.weighted_chi2(pat, step.used.len()) > fx.chi2_limit => Some(rule),
+            _ => None,
+        }
+    }
+
+    /// Step 5: the profile and its posterior sd on the scan grid, and the leverages.
+    fn scan_profile(
+        &mut self,
+        pat: &mut Pattern,
+        step: &RowStep<'_>,
+        leverage: &mut Vec<f64>,
+    ) -> Result<()> {
+        let s = step.s;
         leverage.clear();
-        if let Some(fx) = pat.fixed.as_ref().filter(|_| fixed_here) {
+        if let Some(fx) = cached(pat, step.mode) {
             self.scan_est.gemv(1.0, &fx.scan_pg, &self.d, 0.0);
             for (j, v) in self.scan_est.iter_mut().enumerate() {
                 *v += self.scan_offset[j];
@@ -664,12 +813,20 @@ impl RowEstimator {
             }
             let vp = pat.variance.as_ref().ok_or_else(internal)?;
             for (j, &fi) in self.scan_index.iter().enumerate() {
-                self.scan_sd[j] = vp.sd(&pat.dec, fi, lambda) * s;
+                self.scan_sd[j] = vp.sd(&pat.dec, fi, step.lambda) * s;
             }
-            let h = pat.dec.influence_matrix(lambda)?;
-            leverage.extend((0..m).map(|k| h[(k, k)]));
+            let h = pat.dec.influence_matrix(step.lambda)?;
+            leverage.extend((0..step.used.len()).map(|k| h[(k, k)]));
         }
-        // Hottest point: scan maximum, then the fine grid around it.
+        Ok(())
+    }
+
+    /// Step 6: the hottest point (the scan's maximum refined on the fine grid around it),
+    /// the interval `[max L, max U]` of its temperature from the linear band, and the hull
+    /// of the scan points that can hold the maximum.
+    fn hottest(&mut self, pat: &Pattern, step: &RowStep<'_>) -> Result<RowHottest> {
+        let (z, s, lambda) = (self.z, step.s, step.lambda);
+        let n_scan = self.scan_index.len();
         let n = self.n_fine;
         let (mut best_j, mut best_v) = (0, f64::NEG_INFINITY);
         for j in 0..n_scan {
@@ -684,7 +841,7 @@ impl RowEstimator {
         let hi = ((edge_k + 1) * n).min(fi + self.stride + 2);
         // the fine profile is the data through the cached map at a fixed λ, else the
         // coefficients through the profile map
-        let (fine_map, fine_x) = match pat.fixed.as_ref().filter(|_| fixed_here) {
+        let (fine_map, fine_x) = match cached(pat, step.mode) {
             Some(fx) => (&fx.fine_pg, &self.d),
             None => (&self.prof_matrix, &self.c),
         };
@@ -724,8 +881,8 @@ impl RowEstimator {
             (global as f64, vals[k])
         };
         let pos = &self.edge_positions[edge_k].1;
-        let step = pos[1] - pos[0];
-        let position = pos[0] + (idx - (edge_k * n) as f64) * step;
+        let step_m = pos[1] - pos[0];
+        let position = pos[0] + (idx - (edge_k * n) as f64) * step_m;
         // [max L, max U]: the scan's maxima, refined on the fine grid around them.
         let (mut jl, mut ju) = (0, 0);
         let (mut best_l, mut best_u) = (
@@ -745,7 +902,7 @@ impl RowEstimator {
             }
         }
         let fine_sd = |j: usize| -> Result<f64> {
-            match pat.fixed.as_ref().filter(|_| fixed_here) {
+            match cached(pat, step.mode) {
                 Some(fx) => Ok(fx.fine_sd[j] * s),
                 None => {
                     let vp = pat.variance.as_ref().ok_or_else(internal)?;
@@ -786,50 +943,68 @@ impl RowEstimator {
                 p_hi = p_hi.max(p);
             }
         }
+        Ok(RowHottest {
+            edge: edge_k,
+            position,
+            position_interval: [p_lo, p_hi],
+            temperature: t0,
+            max_lower: max_l,
+            max_upper: max_u,
+        })
+    }
 
-        // Exceedance.
-        let exceedance = match limit {
-            None => None,
-            Some(t) => {
-                if pat.draws.is_none() {
-                    let mut sd0 = vec![0.0; n_scan];
-                    for (o, v) in sd0.iter_mut().zip(&self.scan_sd) {
-                        *o = v / s;
-                    }
-                    let seed = self.seed ^ hash_key(&self.key);
-                    if !projected {
-                        pat.dec.project_into(&self.d, &mut pat.proj)?;
-                        projected = true;
-                    }
-                    pat.draws = Some(make_draws(
-                        &pat.dec,
-                        &pat.proj,
-                        lambda,
-                        &self.scan_matrix,
-                        sd0,
-                        self.draws,
-                        seed,
-                    )?);
-                }
-                let dr = pat.draws.as_ref().ok_or_else(internal)?;
-                for j in 0..n_scan {
-                    self.ratio[j] = if dr.sd[j] > 0.0 {
-                        self.scan_sd[j] / dr.sd[j]
-                    } else {
-                        s
-                    };
-                }
-                Some(exceed(&self.scan_est, &self.ratio, dr, t, &mut self.bits))
+    /// Step 7: the probability that the hidden edge exceeds `t` anywhere, from the pattern's
+    /// posterior draws (made at the first λ the pattern meets, rescaled to this row's sd).
+    fn exceedance(&mut self, pat: &mut Pattern, step: &mut RowStep<'_>, t: f64) -> Result<f64> {
+        let n_scan = self.scan_index.len();
+        let s = step.s;
+        if pat.draws.is_none() {
+            let mut sd0 = vec![0.0; n_scan];
+            for (o, v) in sd0.iter_mut().zip(&self.scan_sd) {
+                *o = v / s;
             }
-        };
+            let seed = self.seed ^ hash_key(&self.key);
+            step.project(pat, &self.d)?;
+            pat.draws = Some(make_draws(
+                &pat.dec,
+                &pat.proj,
+                step.lambda,
+                &self.scan_matrix,
+                sd0,
+                self.draws,
+                seed,
+            )?);
+        }
+        let dr = pat.draws.as_ref().ok_or_else(internal)?;
+        for j in 0..n_scan {
+            self.ratio[j] = if dr.sd[j] > 0.0 {
+                self.scan_sd[j] / dr.sd[j]
+            } else {
+                s
+            };
+        }
+        Ok(exceed(&self.scan_est, &self.ratio, dr, t, &mut self.bits))
+    }
 
-        // Sensor diagnostics, at a reference strength in per-row mode: the strength chosen
-        // on a row that includes a faulty reading bends toward it and hides it, so the
-        // residuals are taken at a slowly moving average of log λ over the rows instead.
+    /// Step 8: every sensor's standardised residual and fault probability: a used sensor's
+    /// against the leave-one-out prediction, a left-out sensor's against the prediction of
+    /// the fit without it. In per-row mode they are taken at a reference strength: the
+    /// strength chosen on a row that includes a faulty reading bends toward it and hides
+    /// it, so the residuals are judged at a slowly moving average of log λ over the rows.
+    #[allow(clippy::float_cmp)] // the reference fit is needed only where λ differs from it
+    fn diagnostics(
+        &mut self,
+        pat: &mut Pattern,
+        step: &mut RowStep<'_>,
+        leverage: &mut Vec<f64>,
+        out: &mut RowFit,
+    ) -> Result<()> {
+        let (readings, used) = (step.readings, step.used);
+        let (m, s, lambda) = (used.len(), step.s, step.lambda);
         let mut lambda_d = lambda;
         let mut use_ref = false;
-        if matches!(strength, RowStrength::PerRow(_)) {
-            let slot = &mut self.ref_log_lambda[order];
+        if step.mode == RowMode::Chosen {
+            let slot = &mut self.ref_log_lambda[step.order];
             let lref = slot.map_or(lambda, f64::exp);
             *slot = Some(match *slot {
                 None => lambda.ln(),
@@ -841,10 +1016,7 @@ impl RowEstimator {
                 if self.c_ref.len() != self.c.len() {
                     self.c_ref = DVector::zeros(self.c.len());
                 }
-                if !projected {
-                    pat.dec.project_into(&self.d, &mut pat.proj)?;
-                    projected = true;
-                }
+                step.project(pat, &self.d)?;
                 if self.fitted_ref.len() != m {
                     self.fitted_ref = DVector::zeros(m);
                 }
@@ -863,14 +1035,9 @@ impl RowEstimator {
         };
         out.diagnostics.clear();
         out.diagnostics.resize(self.points.len(), None);
-        let verdict = |resid: f64, sd: f64| -> (f64, f64) {
-            let x = resid / sd;
-            let good = (-0.5 * x * x).exp() / (sd * (2.0 * std::f64::consts::PI).sqrt());
-            (x, fault_posterior(good))
-        };
-        // `verdict` for each used sensor, in three passes (the divisions, then the
-        // exponentials, then the probabilities) so that the sensors' chains overlap instead of
-        // waiting on one `exp` call at a time; the same operations on each value.
+        // The leave-one-out verdict of each used sensor, in three passes (the divisions,
+        // then the exponentials, then the probabilities) so that the sensors' chains overlap
+        // instead of waiting on one `exp` call at a time; the same operations on each value.
         let (xs, sds) = (&mut self.loo_x, &mut self.loo_sd);
         xs.clear();
         sds.clear();
@@ -888,10 +1055,9 @@ impl RowEstimator {
             let good = gauss[k] / (sds[k] * (2.0 * std::f64::consts::PI).sqrt());
             out.diagnostics[i] = Some((xs[k], fault_posterior(good)));
         }
-        if !c_ready && !use_ref && readings.iter().flatten().count() > m {
-            if !projected {
-                pat.dec.project_into(&self.d, &mut pat.proj)?;
-            }
+        // The sensors left out: the coefficients are needed now if no step formed them.
+        if !step.coefficients && !use_ref && readings.iter().flatten().count() > m {
+            step.project(pat, &self.d)?;
             pat.dec.coefficients_into(&pat.proj, lambda, &mut self.c)?;
         }
         let c_d = if use_ref { &self.c_ref } else { &self.c };
@@ -900,6 +1066,11 @@ impl RowEstimator {
         for &i in used {
             self.in_use[i] = true;
         }
+        let verdict = |resid: f64, sd: f64| -> (f64, f64) {
+            let x = resid / sd;
+            let good = (-0.5 * x * x).exp() / (sd * (2.0 * std::f64::consts::PI).sqrt());
+            (x, fault_posterior(good))
+        };
         for (i, r) in readings.iter().enumerate() {
             let Some(r) = r else { continue };
             if self.in_use[i] {
@@ -915,28 +1086,6 @@ impl RowEstimator {
             } * s;
             out.diagnostics[i] = Some(verdict(r - pred, (sig * sig + var.max(0.0)).sqrt()));
         }
-
-        self.lev = leverage;
-        if let Some(rule) = refit_rule {
-            // the sensor diagnostics stay those of the calibrated fit: a strength re-chosen
-            // with a faulty reading included bends toward it and hides it
-            let diagnostics = std::mem::take(&mut out.diagnostics);
-            self.fit_row(readings, used, RowStrength::PerRow(rule), limit, out)?;
-            out.diagnostics = diagnostics;
-            out.refitted = true;
-            return Ok(());
-        }
-        out.used.clear();
-        out.used.extend_from_slice(&pat.rows);
-        out.order = order;
-        out.lambda = lambda;
-        out.sigma_scale = sigma_scale;
-        out.edge = Some(self.edge_positions[edge_k].0);
-        out.position = position;
-        out.position_interval = [p_lo, p_hi];
-        out.temperature = t0;
-        out.temperature_interval = [max_l.min(t0), max_u.max(t0)];
-        out.exceedance = exceedance;
         Ok(())
     }
 
