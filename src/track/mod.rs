@@ -313,6 +313,8 @@ impl Tracker {
         Ok(())
     }
 
+    /// One row: which sensors it uses, its fit, then what follows from a fitted row
+    /// ([`Self::after_fitted`]), and the record handed to `sink`.
     fn process(
         &mut self,
         row: &LoggerRow,
@@ -322,6 +324,34 @@ impl Tracker {
             return Ok(());
         };
         self.counts.rows += 1;
+        self.note_time(row);
+        self.choose_sensors(row);
+        let status = self.fit_status(row, strength)?;
+        match &status {
+            RowStatus::Fitted => self.after_fitted(row),
+            RowStatus::Skipped(_) => {
+                self.counts.skipped += 1;
+                self.series.push(
+                    row.time_s,
+                    None,
+                    self.alarms.in_alarm(),
+                    !self.left_out.is_empty(),
+                );
+            }
+        }
+        sink(&RowRecord {
+            row,
+            status,
+            fit: &self.fit,
+            left_out: &self.left_out,
+            missing: &self.missing,
+            usable: self.used.len(),
+            bound: self.bound,
+        })
+    }
+
+    /// Keep the first and the last time of the log.
+    fn note_time(&mut self, row: &LoggerRow) {
         if self.first_time.is_none() {
             self.first_time = Some(row.time_text.clone());
         }
@@ -332,6 +362,11 @@ impl Tracker {
             }
             None => self.last_time = Some(row.time_text.clone()),
         }
+    }
+
+    /// The sensors the row uses (sensor health decides, [`health`]), the ones without a
+    /// reading, and the ones left out with their problem.
+    fn choose_sensors(&mut self, row: &LoggerRow) {
         let keep_all = self.options.keep_all;
         self.health.before_fit(
             &row.time_text,
@@ -359,13 +394,20 @@ impl Tracker {
         if !self.left_out.is_empty() {
             self.counts.with_left_out += 1;
         }
+    }
+
+    /// Fit the row ([`engine::RowEstimator::fit_row`], and the bootstrap when asked for), or
+    /// say why it is skipped. An invalid first row is an error when the strength rule runs
+    /// on every row: the settings are wrong, not the row.
+    fn fit_status(&mut self, row: &LoggerRow, strength: RowStrength) -> Result<RowStatus> {
         let need = self.estimator.min_readings();
-        let status = if self.used.len() < need {
-            RowStatus::Skipped(format!(
+        if self.used.len() < need {
+            return Ok(RowStatus::Skipped(format!(
                 "{} usable readings, the model needs at least {need}",
                 self.used.len()
-            ))
-        } else {
+            )));
+        }
+        Ok(
             match self.estimator.fit_row(
                 &row.values,
                 &self.used,
@@ -380,118 +422,105 @@ impl Tracker {
                     RowStatus::Fitted
                 }
                 Err(e @ crate::Error::Invalid { .. }) if self.counts.fitted == 0 => {
-                    // the first row cannot be fitted: the settings are wrong, not the row
                     if matches!(strength, RowStrength::PerRow(Strength::Rule(_))) {
                         return Err(e);
                     }
                     RowStatus::Skipped(e.to_string())
                 }
                 Err(e) => RowStatus::Skipped(e.to_string()),
-            }
-        };
-        match &status {
-            RowStatus::Fitted => {
-                self.counts.fitted += 1;
-                self.counts.refitted += u64::from(self.fit.refitted);
-                let rule = strength_of(self.options.strength.unwrap_or(self.case.fit.strength));
-                let (est, used, order) = (&self.estimator, &self.used, self.fit.order);
-                // estimate's fault model, then the physics (module `health`); both fitted
-                // without the sensors in `without`
-                let without_these = |without: &[usize]| -> Vec<usize> {
-                    used.iter()
-                        .copied()
-                        .filter(|k| !without.contains(k))
-                        .collect()
-                };
-                let mut confirm = |i: usize, without: &[usize]| {
-                    est.loo_verdict(&row.values, &without_these(without), i, order, rule)
-                        .map(|v| (v.z, v.fault_probability))
-                };
-                let gradient = self
-                    .options
-                    .max_gradient_k_per_m
-                    .or(self.case.bounds.max_gradient_k_per_m);
-                let mut hot = |i: usize, without: &[usize]| {
-                    est.hot_verdict(
-                        &row.values,
-                        &without_these(without),
-                        i,
-                        order,
-                        rule,
-                        gradient,
-                    )
-                    .map_or(f64::INFINITY, |h| h.score())
-                };
-                self.health.after_fit(
-                    &row.time_text,
-                    row.line,
-                    &self.fit.diagnostics,
-                    &mut confirm,
-                    &mut hot,
-                );
-                // strict bounds on the rows that are due (module `bounds`)
-                self.bound = None;
-                let opening = !self.alarms.in_alarm()
-                    && self
-                        .fit
-                        .exceedance
-                        .is_some_and(|p| p > self.options.probability);
-                if let Some(b) = self.bounds.as_mut() {
-                    if b.due(self.counts.fitted, opening) {
-                        self.bound = Some(
-                            b.bound(&self.case, &row.values, &self.fit, self.options.limit)
-                                .unwrap_or(bounds::RowBound::Failed),
-                        );
-                    }
-                }
-                let certain = matches!(
-                    (self.bound, self.options.limit),
-                    (Some(bounds::RowBound::Interval([lo, _])), Some(l)) if lo > l
-                );
-                let hold = self.alarms.in_alarm()
-                    && self
-                        .episode_sensors
-                        .iter()
-                        .any(|i| self.used.binary_search(i).is_err());
-                self.alarms
-                    .update(&row.time_text, row.line, &self.fit, hold, certain);
-                if self.alarms.just_opened() {
-                    self.episode_sensors.clear();
-                    self.episode_sensors.extend_from_slice(&self.used);
-                }
-                if self
-                    .hottest
-                    .as_ref()
-                    .is_none_or(|(_, h)| self.fit.temperature > h.temperature)
-                {
-                    self.hottest = Some((row.time_text.clone(), self.fit.clone()));
-                }
-                self.series.push(
-                    row.time_s,
-                    Some(&self.fit),
-                    self.alarms.in_alarm(),
-                    !self.left_out.is_empty(),
-                );
-            }
-            RowStatus::Skipped(_) => {
-                self.counts.skipped += 1;
-                self.series.push(
-                    row.time_s,
-                    None,
-                    self.alarms.in_alarm(),
-                    !self.left_out.is_empty(),
+            },
+        )
+    }
+
+    /// What follows from a fitted row: the sensor decisions ([`health`]), strict bounds when
+    /// due ([`bounds`]), the alarm state ([`alarm`]), the hottest row, the series for the
+    /// plot.
+    fn after_fitted(&mut self, row: &LoggerRow) {
+        self.counts.fitted += 1;
+        self.counts.refitted += u64::from(self.fit.refitted);
+        self.judge_sensors(row);
+        // strict bounds on the rows that are due (module `bounds`)
+        self.bound = None;
+        let opening = !self.alarms.in_alarm()
+            && self
+                .fit
+                .exceedance
+                .is_some_and(|p| p > self.options.probability);
+        if let Some(b) = self.bounds.as_mut() {
+            if b.due(self.counts.fitted, opening) {
+                self.bound = Some(
+                    b.bound(&self.case, &row.values, &self.fit, self.options.limit)
+                        .unwrap_or(bounds::RowBound::Failed),
                 );
             }
         }
-        sink(&RowRecord {
-            row,
-            status,
-            fit: &self.fit,
-            left_out: &self.left_out,
-            missing: &self.missing,
-            usable: self.used.len(),
-            bound: self.bound,
-        })
+        let certain = matches!(
+            (self.bound, self.options.limit),
+            (Some(bounds::RowBound::Interval([lo, _])), Some(l)) if lo > l
+        );
+        let hold = self.alarms.in_alarm()
+            && self
+                .episode_sensors
+                .iter()
+                .any(|i| self.used.binary_search(i).is_err());
+        self.alarms
+            .update(&row.time_text, row.line, &self.fit, hold, certain);
+        if self.alarms.just_opened() {
+            self.episode_sensors.clear();
+            self.episode_sensors.extend_from_slice(&self.used);
+        }
+        if self
+            .hottest
+            .as_ref()
+            .is_none_or(|(_, h)| self.fit.temperature > h.temperature)
+        {
+            self.hottest = Some((row.time_text.clone(), self.fit.clone()));
+        }
+        self.series.push(
+            row.time_s,
+            Some(&self.fit),
+            self.alarms.in_alarm(),
+            !self.left_out.is_empty(),
+        );
+    }
+
+    /// The sensor decisions after a fitted row: estimate's fault model, then the physics
+    /// (module `health`), both fitted without the sensors a candidate is judged without.
+    fn judge_sensors(&mut self, row: &LoggerRow) {
+        let rule = strength_of(self.options.strength.unwrap_or(self.case.fit.strength));
+        let (est, used, order) = (&self.estimator, &self.used, self.fit.order);
+        let without_these = |without: &[usize]| -> Vec<usize> {
+            used.iter()
+                .copied()
+                .filter(|k| !without.contains(k))
+                .collect()
+        };
+        let mut confirm = |i: usize, without: &[usize]| {
+            est.loo_verdict(&row.values, &without_these(without), i, order, rule)
+                .map(|v| (v.z, v.fault_probability))
+        };
+        let gradient = self
+            .options
+            .max_gradient_k_per_m
+            .or(self.case.bounds.max_gradient_k_per_m);
+        let mut hot = |i: usize, without: &[usize]| {
+            est.hot_verdict(
+                &row.values,
+                &without_these(without),
+                i,
+                order,
+                rule,
+                gradient,
+            )
+            .map_or(f64::INFINITY, |h| h.score())
+        };
+        self.health.after_fit(
+            &row.time_text,
+            row.line,
+            &self.fit.diagnostics,
+            &mut confirm,
+            &mut hot,
+        );
     }
 
     fn bootstrap_row(&mut self, row: &LoggerRow, strength: RowStrength) -> Result<()> {
