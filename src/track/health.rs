@@ -366,9 +366,35 @@ impl HealthMonitor {
         confirm: &mut ConfirmFn<'_>,
         hot: &mut dyn FnMut(usize, &[usize]) -> f64,
     ) {
+        let judged_now = self.states.iter().filter(|s| s.judged.is_some()).count();
+        let mut candidates = self.candidates(time, line, diagnostics, hot);
+        if judged_now >= self.max_out || candidates.is_empty() {
+            return;
+        }
+        // the worst: outliers before drift, then by strength of the evidence
+        candidates.sort_by(|a, b| {
+            (a.1 == Problem::Outlier)
+                .cmp(&(b.1 == Problem::Outlier))
+                .reverse()
+                .then(b.2.total_cmp(&a.2))
+        });
+        if let Some((i, problem)) = self.confirm(&candidates, time, line, confirm, hot) {
+            self.leave_out(i, problem, time, line);
+        }
+    }
+
+    /// Update every sensor's running judgements from the row's diagnostics (a doubtful
+    /// sensor's clearing, a left-out sensor's readmission, outlier streaks and drift trends)
+    /// and return the candidates to leave out: `(sensor, problem, strength of evidence)`.
+    fn candidates(
+        &mut self,
+        time: &str,
+        line: u64,
+        diagnostics: &[Option<(f64, f64)>],
+        hot: &mut dyn FnMut(usize, &[usize]) -> f64,
+    ) -> Vec<(usize, Problem, f64)> {
         let fault_limit = crate::estimate::fit::FAULT_POSTERIOR;
         let mut candidates: Vec<(usize, Problem, f64)> = Vec::new();
-        let judged_now = self.states.iter().filter(|s| s.judged.is_some()).count();
         for (i, d) in diagnostics.iter().enumerate() {
             let Some((z, p)) = *d else { continue };
             let st = &mut self.states[i];
@@ -442,24 +468,28 @@ impl HealthMonitor {
                 }
             }
         }
-        if judged_now >= self.max_out || candidates.is_empty() {
-            return;
-        }
-        // the worst: outliers before drift, then by strength of the evidence
-        candidates.sort_by(|a, b| {
-            (a.1 == Problem::Outlier)
-                .cmp(&(b.1 == Problem::Outlier))
-                .reverse()
-                .then(b.2.total_cmp(&a.2))
-        });
-        // confirm with estimate's own fault model before leaving a sensor out
+        candidates
+    }
+
+    /// Confirm the candidates, worst first, with `estimate`'s own fault model and the
+    /// physics ([`Self::after_fit`]); returns the first one to leave out. A candidate that a
+    /// hot feature explains is named doubtful and ends the search.
+    fn confirm(
+        &mut self,
+        candidates: &[(usize, Problem, f64)],
+        time: &str,
+        line: u64,
+        confirm: &mut ConfirmFn<'_>,
+        hot: &mut dyn FnMut(usize, &[usize]) -> f64,
+    ) -> Option<(usize, Problem)> {
+        let fault_limit = crate::estimate::fit::FAULT_POSTERIOR;
         let mut chosen = None;
         // sensors kept as doubtful: a candidate beside one is checked without it, since a
         // high reading kept in the fit makes its neighbours look low
         let doubtful: Vec<usize> = (0..self.states.len())
             .filter(|&k| self.states[k].doubt.is_some())
             .collect();
-        for &(i, problem, _) in &candidates {
+        for &(i, problem, _) in candidates {
             let without: Vec<usize> = doubtful.iter().copied().filter(|&k| k != i).collect();
             let verdict = confirm(i, &without);
             let fault = verdict.is_some_and(|(z, p)| match problem {
@@ -496,9 +526,12 @@ impl HealthMonitor {
                 break;
             }
         }
-        let Some((i, problem)) = chosen else {
-            return;
-        };
+        chosen
+    }
+
+    /// Leave sensor `i` out for `problem` from this row on: open its event and start the
+    /// other sensors' evidence afresh.
+    fn leave_out(&mut self, i: usize, problem: Problem, time: &str, line: u64) {
         let start = self.start_of(i, problem, time, line);
         let run = self.states[i].outlier_run as u64;
         let e = self.open(i, problem, start);
