@@ -12,6 +12,7 @@
 use super::{
     GlobalOptions, parse_alarm, parse_max_gradient, parse_strength, print_stdout, progress_bar,
 };
+use edgetherm::case::Case;
 use edgetherm::io::logger::Follow;
 use edgetherm::io::{
     LoggerOptions, LoggerReader, LoggerRow, StreamWriter, check_track_outputs, create_output_dir,
@@ -97,14 +98,49 @@ pub struct TrackArgs {
     pub idle_exit: Option<f64>,
 }
 
-/// Run `track`.
+/// Run `track`: validate the flags, open the log, stream its rows through the tracker
+/// (a reading thread feeds batches), then write the summaries and print the verdict.
 pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
     let files = global.case_files(&args.case_dir);
     let case = load_case(&files)?;
     let mut inputs = case.files.inputs();
     inputs.push(&args.log);
     check_track_outputs(&args.out, &inputs)?;
-    let limit = parse_alarm(args.limit, args.probability, &case)?;
+    let (options, idle_exit) = track_options(args, &case)?;
+    let limit = options.limit;
+    let mut tracker = Tracker::new(&case, options)?;
+    let reader = open_log(args, &case, global, idle_exit)?;
+    create_output_dir(&args.out)?;
+    let writer = StreamWriter::create(&args.out.join("track.csv"), TRACK_CSV_HEADER, args.follow)?;
+    let (rx, handle) = spawn_reader(reader, if args.follow { 1 } else { BATCH });
+    let mut rows_out = RowsOut {
+        case: tracker.case().clone(),
+        writer,
+    };
+    stream_rows(args, global, &mut tracker, &mut rows_out, &rx)?;
+    tracker.finish(&mut |rec| rows_out.write(rec))?;
+    let _ = handle.join();
+    let writer = rows_out.writer;
+    writer.finish()?;
+    let summary = write_summaries(&tracker, &args.out)?;
+    if global.json {
+        print_stdout(&format!("{:#}\n", summary_json(&case, &summary)))?;
+    } else if !global.quiet {
+        let mut text = text_summary(&case, &summary);
+        text.push_str(&format!("Wrote 5 files to {}.\n", args.out.display()));
+        print_stdout(&text)?;
+    }
+    Ok(if limit.is_some() && tracker.any_alarm() {
+        3
+    } else {
+        0
+    })
+}
+
+/// The validated settings of a run (raw flags → [`TrackOptions`]) and the idle time after
+/// which `--follow` stops.
+fn track_options(args: &TrackArgs, case: &Case) -> Result<(TrackOptions, Option<Duration>)> {
+    let limit = parse_alarm(args.limit, args.probability, case)?;
     for (flag, v) in [
         ("--clear", Some(args.clear)),
         ("--calibrate", args.calibrate),
@@ -127,7 +163,7 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
         None => None,
     };
     let strength = args.strength.as_deref().map(parse_strength).transpose()?;
-    let max_gradient_k_per_m = parse_max_gradient(args.max_gradient, &case)?;
+    let max_gradient_k_per_m = parse_max_gradient(args.max_gradient, case)?;
     let options = TrackOptions {
         strength,
         calibrate: args.calibrate,
@@ -143,10 +179,20 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
         bounds_every: args.bounds_every,
         ..TrackOptions::default()
     };
-    let mut tracker = Tracker::new(&case, options)?;
+    Ok((options, idle_exit))
+}
+
+/// Open the logger file, naming the flag that helps when it has extra columns, and say on
+/// stderr which columns are ignored and which sensors have none.
+fn open_log(
+    args: &TrackArgs,
+    case: &Case,
+    global: &GlobalOptions,
+    idle_exit: Option<Duration>,
+) -> Result<LoggerReader> {
     let reader = LoggerReader::open(
         &args.log,
-        &case,
+        case,
         &LoggerOptions {
             ignore_extra: args.ignore_extra,
             follow: args.follow.then_some(Follow {
@@ -182,14 +228,20 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
             ids.join(", ")
         );
     }
-    create_output_dir(&args.out)?;
-    let writer = StreamWriter::create(&args.out.join("track.csv"), TRACK_CSV_HEADER, args.follow)?;
+    Ok(reader)
+}
 
-    // Reading thread: batches of rows over a bounded channel.
-    let batch = if args.follow { 1 } else { BATCH };
+/// Batches of rows from the log, read on their own thread over a bounded channel.
+type RowBatches = mpsc::Receiver<Result<Vec<LoggerRow>>>;
+
+/// Start the reading thread: it sends batches of `batch` rows and stops at the end of the
+/// log, at the first error (sent), or when the receiver is gone.
+fn spawn_reader(
+    mut reader: LoggerReader,
+    batch: usize,
+) -> (RowBatches, std::thread::JoinHandle<()>) {
     let (tx, rx) = mpsc::sync_channel::<Result<Vec<LoggerRow>>>(8);
     let handle = std::thread::spawn(move || {
-        let mut reader = reader;
         loop {
             let mut rows = Vec::with_capacity(batch);
             let mut row = LoggerRow::default();
@@ -215,12 +267,19 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
             }
         }
     });
+    (rx, handle)
+}
 
+/// Push every row through the tracker into `track.csv`, with a progress bar; with
+/// `--follow`, keep every output current while the log is quiet and at most every 2 s.
+fn stream_rows(
+    args: &TrackArgs,
+    global: &GlobalOptions,
+    tracker: &mut Tracker,
+    rows_out: &mut RowsOut,
+    rx: &RowBatches,
+) -> Result<()> {
     let bar = progress_bar(global, None, "track {spinner} {pos} rows ({per_sec})");
-    let mut rows_out = RowsOut {
-        case: tracker.case().clone(),
-        writer,
-    };
     let mut last_write = Instant::now();
     let mut dirty = false;
     let mut rows_seen: u64 = 0;
@@ -232,7 +291,7 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
                     // the log is quiet: make every output current (once)
                     if dirty {
                         rows_out.writer.flush()?;
-                        write_summaries(&tracker, &args.out)?;
+                        write_summaries(tracker, &args.out)?;
                         last_write = Instant::now();
                         dirty = false;
                     }
@@ -256,37 +315,21 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
             rows_out.writer.flush()?;
             dirty = true;
             if last_write.elapsed() >= Duration::from_secs(2) {
-                write_summaries(&tracker, &args.out)?;
+                write_summaries(tracker, &args.out)?;
                 last_write = Instant::now();
                 dirty = false;
             }
         }
     }
-    tracker.finish(&mut |rec| rows_out.write(rec))?;
-    let _ = handle.join();
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
-    let writer = rows_out.writer;
-    writer.finish()?;
-    let summary = write_summaries(&tracker, &args.out)?;
-    if global.json {
-        print_stdout(&format!("{:#}\n", summary_json(&case, &summary)))?;
-    } else if !global.quiet {
-        let mut text = text_summary(&case, &summary);
-        text.push_str(&format!("Wrote 5 files to {}.\n", args.out.display()));
-        print_stdout(&text)?;
-    }
-    Ok(if limit.is_some() && tracker.any_alarm() {
-        3
-    } else {
-        0
-    })
+    Ok(())
 }
 
 /// Where `track.csv` rows go.
 struct RowsOut {
-    case: edgetherm::case::Case,
+    case: Case,
     writer: StreamWriter,
 }
 
