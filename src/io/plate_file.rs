@@ -597,52 +597,8 @@ impl Checker<'_> {
     }
 
     fn design(&self, raw: RawDesign, units: &Units, shape: &Shape) -> Result<DesignSettings> {
-        let w = units.length_from_m(shape.width());
-        let h = shape.height().map(|h| units.length_from_m(h));
-        let lu = units.length;
-        let regions = |field: &str, list: Option<Vec<RawRegion>>| -> Result<Vec<Region>> {
-            let mut out = Vec::new();
-            for (i, r) in list.unwrap_or_default().into_iter().enumerate() {
-                let [x0, x1] = r.x;
-                let [y0, y1] = r.y;
-                let n = i + 1;
-                if ![x0, x1, y0, y1].iter().all(|v| v.is_finite()) {
-                    return Err(self.err(
-                        field,
-                        format!("rectangle {n}: every bound must be a finite number"),
-                    ));
-                }
-                if !(x0 < x1 && y0 < y1) {
-                    return Err(self.err(
-                        field,
-                        format!(
-                            "rectangle {n}: write it {{ x = [x_min, x_max], y = [y_min, y_max] }} \
-                             with x_min < x_max and y_min < y_max; found x = [{x0}, {x1}], y = [{y0}, {y1}]"
-                        ),
-                    ));
-                }
-                let y_top_ok = h.is_none_or(|h| y1 <= h);
-                if x0 < 0.0 || x1 > w || y0 < 0.0 || !y_top_ok {
-                    let extent = match h {
-                        Some(h) => format!("0 ≤ x ≤ {w} {lu}, 0 ≤ y ≤ {h} {lu}"),
-                        None => format!("0 ≤ x ≤ {w} {lu}, y ≥ 0"),
-                    };
-                    return Err(self.err(
-                        field,
-                        format!("rectangle {n} reaches outside the plate ({extent})"),
-                    ));
-                }
-                out.push(Region {
-                    x_min: units.length_to_m(x0),
-                    x_max: units.length_to_m(x1),
-                    y_min: units.length_to_m(y0),
-                    y_max: units.length_to_m(y1),
-                });
-            }
-            Ok(out)
-        };
-        let allowed = regions("design.allowed", raw.allowed)?;
-        let keep_out = regions("design.keep_out", raw.keep_out)?;
+        let allowed = self.design_regions("design.allowed", raw.allowed, units, shape)?;
+        let keep_out = self.design_regions("design.keep_out", raw.keep_out, units, shape)?;
         let non_negative = |field: &str, v: Option<f64>, what: &str| -> Result<f64> {
             match v {
                 None => Ok(0.0),
@@ -674,28 +630,7 @@ impl Checker<'_> {
             raw.sensor_spacing,
             "the minimum spacing between sensors",
         )?;
-        let candidates = match (raw.candidate_spacing, raw.candidates) {
-            (Some(_), Some(_)) => {
-                return Err(self.err(
-                    "design.candidates",
-                    "give either `candidate_spacing` or a `candidates` file, not both",
-                ));
-            }
-            (Some(s), None) => {
-                if !(s.is_finite() && s > 0.0) {
-                    return Err(self.err(
-                        "design.candidate_spacing",
-                        format!("the candidate spacing must be a positive length, not {s}"),
-                    ));
-                }
-                CandidateSource::Grid(Some(units.length_to_m(s)))
-            }
-            (None, Some(f)) => {
-                let base = self.path.parent().unwrap_or(Path::new(""));
-                CandidateSource::File(base.join(f))
-            }
-            (None, None) => CandidateSource::Grid(None),
-        };
+        let candidates = self.design_candidates(raw.candidate_spacing, raw.candidates, units)?;
         let positive_dt = |field: &str, v: Option<f64>, what: &str| -> Result<Option<f64>> {
             match v {
                 None => Ok(None),
@@ -727,7 +662,110 @@ impl Checker<'_> {
                 ));
             }
         }
-        let lines = [
+        let lines = self.design_lines();
+        Ok(DesignSettings {
+            present: true,
+            allowed,
+            keep_out,
+            edge_distance_m,
+            sensor_spacing_m,
+            candidates,
+            noise_k,
+            variation_k,
+            smoothing: raw.smoothing,
+            criterion: raw.criterion,
+            lines,
+        })
+    }
+
+    /// The rectangles of `[design] allowed` or `keep_out` (`field`), checked against the
+    /// plate and converted to metres.
+    fn design_regions(
+        &self,
+        field: &str,
+        list: Option<Vec<RawRegion>>,
+        units: &Units,
+        shape: &Shape,
+    ) -> Result<Vec<Region>> {
+        let w = units.length_from_m(shape.width());
+        let h = shape.height().map(|h| units.length_from_m(h));
+        let lu = units.length;
+        let mut out = Vec::new();
+        for (i, r) in list.unwrap_or_default().into_iter().enumerate() {
+            let [x0, x1] = r.x;
+            let [y0, y1] = r.y;
+            let n = i + 1;
+            if ![x0, x1, y0, y1].iter().all(|v| v.is_finite()) {
+                return Err(self.err(
+                    field,
+                    format!("rectangle {n}: every bound must be a finite number"),
+                ));
+            }
+            if !(x0 < x1 && y0 < y1) {
+                return Err(self.err(
+                    field,
+                    format!(
+                        "rectangle {n}: write it {{ x = [x_min, x_max], y = [y_min, y_max] }} \
+                         with x_min < x_max and y_min < y_max; found x = [{x0}, {x1}], y = [{y0}, {y1}]"
+                    ),
+                ));
+            }
+            let y_top_ok = h.is_none_or(|h| y1 <= h);
+            if x0 < 0.0 || x1 > w || y0 < 0.0 || !y_top_ok {
+                let extent = match h {
+                    Some(h) => format!("0 ≤ x ≤ {w} {lu}, 0 ≤ y ≤ {h} {lu}"),
+                    None => format!("0 ≤ x ≤ {w} {lu}, y ≥ 0"),
+                };
+                return Err(self.err(
+                    field,
+                    format!("rectangle {n} reaches outside the plate ({extent})"),
+                ));
+            }
+            out.push(Region {
+                x_min: units.length_to_m(x0),
+                x_max: units.length_to_m(x1),
+                y_min: units.length_to_m(y0),
+                y_max: units.length_to_m(y1),
+            });
+        }
+        Ok(out)
+    }
+
+    /// Where the design's candidate positions come from: `candidate_spacing`, a
+    /// `candidates` file (relative to the plate file), or the default grid.
+    fn design_candidates(
+        &self,
+        spacing: Option<f64>,
+        file: Option<String>,
+        units: &Units,
+    ) -> Result<CandidateSource> {
+        Ok(match (spacing, file) {
+            (Some(_), Some(_)) => {
+                return Err(self.err(
+                    "design.candidates",
+                    "give either `candidate_spacing` or a `candidates` file, not both",
+                ));
+            }
+            (Some(s), None) => {
+                if !(s.is_finite() && s > 0.0) {
+                    return Err(self.err(
+                        "design.candidate_spacing",
+                        format!("the candidate spacing must be a positive length, not {s}"),
+                    ));
+                }
+                CandidateSource::Grid(Some(units.length_to_m(s)))
+            }
+            (None, Some(f)) => {
+                let base = self.path.parent().unwrap_or(Path::new(""));
+                CandidateSource::File(base.join(f))
+            }
+            (None, None) => CandidateSource::Grid(None),
+        })
+    }
+
+    /// The line of every `[design]` key the file gives, for messages.
+    fn design_lines(&self) -> Vec<(String, usize)> {
+        [
             "allowed",
             "keep_out",
             "edge_distance",
@@ -749,20 +787,7 @@ impl Checker<'_> {
                 .line_of_key("design")
                 .map(|l| ("design".to_string(), l)),
         )
-        .collect();
-        Ok(DesignSettings {
-            present: true,
-            allowed,
-            keep_out,
-            edge_distance_m,
-            sensor_spacing_m,
-            candidates,
-            noise_k,
-            variation_k,
-            smoothing: raw.smoothing,
-            criterion: raw.criterion,
-            lines,
-        })
+        .collect()
     }
 
     fn uncertainty(&self, raw: RawUncertainty, units: &Units) -> Result<UncertaintySettings> {
