@@ -32,7 +32,7 @@
 use crate::error::{Error, Result};
 use crate::forward::basis::NEGLIGIBLE_DECAY;
 use crate::forward::{ForwardModel, SeriesOptions};
-use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Point};
+use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Point, Shape};
 use rayon::prelude::*;
 
 /// How finely the admissible set is discretised.
@@ -140,39 +140,9 @@ impl AdmissibleSet {
         let shape = *plate.shape();
         let hidden = plate.unknown_edges();
         let k_nodes = disc.nodes_per_edge.max(3);
-        let mut edges = Vec::new();
-        let mut first = 0;
-        for &edge in &hidden {
-            let Some(length) = shape.edge_length(edge) else {
-                continue;
-            };
-            let h = length / (k_nodes - 1) as f64;
-            let positions: Vec<f64> = (0..k_nodes).map(|j| j as f64 * h).collect();
-            edges.push(EdgeNodes {
-                edge,
-                length_m: length,
-                positions_m: positions,
-                first,
-                spacing_m: h,
-            });
-            first += k_nodes;
-        }
-        let node_count = first;
-        for (i, p) in sensors.iter().enumerate() {
-            for e in &edges {
-                if shape.depth_from(e.edge, *p) <= 0.0 {
-                    return Err(Error::invalid_field(
-                        "sensors",
-                        format!(
-                            "sensor {} lies on the hidden {} edge: strict bounds need every \
-                             sensor inside the plate",
-                            i + 1,
-                            e.edge
-                        ),
-                    ));
-                }
-            }
-        }
+        let edges = edge_nodes(&shape, &hidden, k_nodes);
+        let node_count = edges.len() * k_nodes;
+        sensors_off_hidden_edges(&shape, sensors, &edges)?;
         let options = SeriesOptions {
             unknown_terms: 1,
             known_terms: disc.terms.max(16),
@@ -210,56 +180,8 @@ impl AdmissibleSet {
                 h[i * node_count + var] = col[i];
             }
         }
-        // Tail terms: u(0) = v_0 − B(0), u(L) = v_K − B(L), TV(B) = |B(L) − B(0)|.
-        let mut tail_terms = Vec::new();
-        for (ei, e) in edges.iter().enumerate() {
-            let base_at = |end: usize| -> Affine {
-                let coef: Vec<(usize, f64)> = columns
-                    .iter()
-                    .enumerate()
-                    .map(|(var, (_, b))| (var, b[ei][end]))
-                    .filter(|(_, c)| *c != 0.0)
-                    .collect();
-                Affine {
-                    coef,
-                    constant: base0[ei][end],
-                }
-            };
-            let (b0, b1) = (base_at(0), base_at(1));
-            let minus = |a: &Affine, var: usize| -> Affine {
-                let mut coef: Vec<(usize, f64)> = a.coef.iter().map(|&(i, c)| (i, -c)).collect();
-                coef.push((var, 1.0));
-                Affine {
-                    coef,
-                    constant: -a.constant,
-                }
-            };
-            let u0 = minus(&b0, e.first);
-            let u1 = minus(&b1, e.first + k_nodes - 1);
-            let mut db: Vec<(usize, f64)> = b1.coef.clone();
-            db.extend(b0.coef.iter().map(|&(i, c)| (i, -c)));
-            let tv_b = Affine {
-                coef: db,
-                constant: b1.constant - b0.constant,
-            };
-            tail_terms.push(vec![u0, u1, tv_b]);
-        }
-        let n_terms = options.known_terms as f64;
-        let mut tail = vec![vec![0.0; edges.len()]; m];
-        let mut max_tail_factor = 0.0_f64;
-        for (i, p) in sensors.iter().enumerate() {
-            for (ei, e) in edges.iter().enumerate() {
-                let d = shape.depth_from(e.edge, *p);
-                // the first omitted mode: beyond the N terms, or where the series itself
-                // stops because e^{−k d} fell below NEGLIGIBLE_DECAY
-                let k = (n_terms * std::f64::consts::PI / e.length_m)
-                    .min((1.0 / NEGLIGIBLE_DECAY).ln() / d);
-                let eps = 4.0 * (-k * d).exp()
-                    / (k * e.length_m * -(-std::f64::consts::PI * d / e.length_m).exp_m1());
-                tail[i][ei] = eps;
-                max_tail_factor = max_tail_factor.max(eps);
-            }
-        }
+        let tail_terms = tail_terms(&edges, &columns, &base0, k_nodes);
+        let (tail, max_tail_factor) = tail_factors(&shape, sensors, &edges, options.known_terms);
         let rho_m = quasi_interpolation_allowance(plate, sensors, &edges)?;
         Ok(AdmissibleSet {
             edges,
@@ -546,4 +468,118 @@ fn quasi_interpolation_allowance(
         }
     }
     Ok(rho)
+}
+/// The nodes of every hidden edge: `k_nodes` evenly spaced along it, ends included, numbered
+/// edge after edge.
+fn edge_nodes(shape: &Shape, hidden: &[Edge], k_nodes: usize) -> Vec<EdgeNodes> {
+    let mut edges = Vec::new();
+    let mut first = 0;
+    for &edge in hidden {
+        let Some(length) = shape.edge_length(edge) else {
+            continue;
+        };
+        let h = length / (k_nodes - 1) as f64;
+        let positions: Vec<f64> = (0..k_nodes).map(|j| j as f64 * h).collect();
+        edges.push(EdgeNodes {
+            edge,
+            length_m: length,
+            positions_m: positions,
+            first,
+            spacing_m: h,
+        });
+        first += k_nodes;
+    }
+    edges
+}
+
+/// Every sensor must lie strictly inside the plate, off each hidden edge.
+fn sensors_off_hidden_edges(shape: &Shape, sensors: &[Point], edges: &[EdgeNodes]) -> Result<()> {
+    for (i, p) in sensors.iter().enumerate() {
+        for e in edges {
+            if shape.depth_from(e.edge, *p) <= 0.0 {
+                return Err(Error::invalid_field(
+                    "sensors",
+                    format!(
+                        "sensor {} lies on the hidden {} edge: strict bounds need every \
+                         sensor inside the plate",
+                        i + 1,
+                        e.edge
+                    ),
+                ));
+            }
+        }
+    }
+    Ok(())
+}
+
+/// The affine forms of the tail terms of every hidden edge, in the node values:
+/// `u(0) = v_0 − B(0)`, `u(L) = v_K − B(L)` and `TV(B) = |B(L) − B(0)|`, where `B` is the
+/// corner base (`columns[var].1[edge][end]` its response to node `var`).
+fn tail_terms(
+    edges: &[EdgeNodes],
+    columns: &[(Vec<f64>, Vec<[f64; 2]>)],
+    base0: &[[f64; 2]],
+    k_nodes: usize,
+) -> Vec<Vec<Affine>> {
+    let mut tail_terms = Vec::new();
+    for (ei, e) in edges.iter().enumerate() {
+        let base_at = |end: usize| -> Affine {
+            let coef: Vec<(usize, f64)> = columns
+                .iter()
+                .enumerate()
+                .map(|(var, (_, b))| (var, b[ei][end]))
+                .filter(|(_, c)| *c != 0.0)
+                .collect();
+            Affine {
+                coef,
+                constant: base0[ei][end],
+            }
+        };
+        let (b0, b1) = (base_at(0), base_at(1));
+        let minus = |a: &Affine, var: usize| -> Affine {
+            let mut coef: Vec<(usize, f64)> = a.coef.iter().map(|&(i, c)| (i, -c)).collect();
+            coef.push((var, 1.0));
+            Affine {
+                coef,
+                constant: -a.constant,
+            }
+        };
+        let u0 = minus(&b0, e.first);
+        let u1 = minus(&b1, e.first + k_nodes - 1);
+        let mut db: Vec<(usize, f64)> = b1.coef.clone();
+        db.extend(b0.coef.iter().map(|&(i, c)| (i, -c)));
+        let tv_b = Affine {
+            coef: db,
+            constant: b1.constant - b0.constant,
+        };
+        tail_terms.push(vec![u0, u1, tv_b]);
+    }
+    tail_terms
+}
+
+/// The tail factor `ε_{ie}` of every sensor and hidden edge (the share of a unit edge change
+/// beyond the series that can reach the sensor), and the largest of them.
+fn tail_factors(
+    shape: &Shape,
+    sensors: &[Point],
+    edges: &[EdgeNodes],
+    known_terms: usize,
+) -> (Vec<Vec<f64>>, f64) {
+    let n_terms = known_terms as f64;
+    let mut tail = vec![vec![0.0; edges.len()]; sensors.len()];
+    let mut max_tail_factor = 0.0_f64;
+    for (i, p) in sensors.iter().enumerate() {
+        for (ei, e) in edges.iter().enumerate() {
+            let d = shape.depth_from(e.edge, *p);
+            // the first omitted mode: beyond the N terms, or where the series itself
+            // stops because e^{−k d} fell below NEGLIGIBLE_DECAY
+            let k = (n_terms * std::f64::consts::PI / e.length_m)
+                .min((1.0 / NEGLIGIBLE_DECAY).ln() / d);
+            let eps = 4.0 * (-k * d).exp()
+                / (k * e.length_m * -(-std::f64::consts::PI * d / e.length_m).exp_m1());
+            tail[i][ei] = eps;
+            max_tail_factor = max_tail_factor.max(eps);
+        }
+    }
+    (tail, max_tail_factor)
 }
