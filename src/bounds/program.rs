@@ -85,32 +85,120 @@ impl Rows {
     }
 }
 
+/// Where each variable of a bound program sits: node values `v'` (temperatures above
+/// `t_ref`) at `0..n`, model-error terms `u_i` at `iu + i`, tail auxiliaries at
+/// `aux_start[e] + k`, and the extra scalar (peak or gradient) at `iz`.
+struct Layout {
+    n: usize,
+    m: usize,
+    iu: usize,
+    aux_start: Vec<usize>,
+    iz: usize,
+    nvar: usize,
+    /// The reference temperature the node values are taken from (the mean reading), kelvin.
+    t_ref: f64,
+    /// The length that scales the gradient variable, metres.
+    l_ref: f64,
+}
+
+impl Layout {
+    fn new(set: &AdmissibleSet) -> Self {
+        let n = set.node_count;
+        let m = set.sensor_count();
+        let t_ref = set.readings.iter().sum::<f64>() / m as f64;
+        let l_ref = set
+            .edges
+            .iter()
+            .map(|e| e.length_m)
+            .fold(0.0_f64, f64::max)
+            .max(1e-9);
+        let mut aux_start = Vec::with_capacity(set.edges.len());
+        let mut next = n + m;
+        for terms in &set.tail_terms {
+            aux_start.push(next);
+            next += terms.len();
+        }
+        Layout {
+            n,
+            m,
+            iu: n,
+            aux_start,
+            iz: next,
+            nvar: next + 1,
+            t_ref,
+            l_ref,
+        }
+    }
+}
+
 /// Solve one bound program over `set`: the optimum of `objective` over the admissible set
 /// under `limits`, read conservatively from the primal and dual objectives.
 pub fn solve(set: &AdmissibleSet, limits: Limits, objective: Objective) -> Outcome {
-    let n = set.node_count;
-    let m = set.sensor_count();
-    let ne = set.edges.len();
-    let t_ref = set.readings.iter().sum::<f64>() / m as f64;
-    let l_ref = set
-        .edges
-        .iter()
-        .map(|e| e.length_m)
-        .fold(0.0_f64, f64::max)
-        .max(1e-9);
-    let iu = n; // u_i at iu + i
-    // a_{e,k} at aux_start[e] + k
-    let mut aux_start = Vec::with_capacity(ne);
-    let mut next = n + m;
-    for terms in &set.tail_terms {
-        aux_start.push(next);
-        next += terms.len();
+    let lay = Layout::new(set);
+    let (rows, n_orthant) = constraints(set, limits, objective, &lay);
+    let (m, nvar, iz, t_ref, l_ref) = (lay.m, lay.nvar, lay.iz, lay.t_ref, lay.l_ref);
+    let nrows = rows.b.len();
+    let a = CscMatrix::new_from_triplets(nrows, nvar, rows.i, rows.j, rows.v);
+    let p = CscMatrix::zeros((nvar, nvar));
+    let mut q = vec![0.0; nvar];
+    match objective {
+        Objective::MaxNode(j) => q[j] = -1.0,
+        Objective::MinNode(j) => q[j] = 1.0,
+        Objective::MinPeak | Objective::MinGradient => q[iz] = 1.0,
     }
-    let iz = next; // the extra scalar
-    let nvar = iz + 1;
+    let cones = [
+        SupportedConeT::NonnegativeConeT(n_orthant),
+        SupportedConeT::SecondOrderConeT(m + 1),
+    ];
+    let Ok(settings) = DefaultSettingsBuilder::default()
+        .verbose(false)
+        .max_iter(200)
+        .build()
+    else {
+        return Outcome::Failed("solver settings rejected".into());
+    };
+    let mut solver = match DefaultSolver::new(&p, &q, &a, &rows.b, &cones, settings) {
+        Ok(s) => s,
+        Err(e) => return Outcome::Failed(format!("solver setup failed: {e}")),
+    };
+    solver.solve();
+    let sol = &solver.solution;
+    match sol.status {
+        SolverStatus::Solved | SolverStatus::AlmostSolved => {
+            let low = sol.obj_val.min(sol.obj_val_dual);
+            let value = match objective {
+                // max v = −min(−v) ≤ −(dual objective)
+                Objective::MaxNode(_) => t_ref - low,
+                Objective::MinNode(_) | Objective::MinPeak => t_ref + low,
+                Objective::MinGradient => (low / l_ref).max(0.0),
+            };
+            if value.is_finite() {
+                Outcome::Value(value)
+            } else {
+                Outcome::Failed("the solver returned a non-finite value".into())
+            }
+        }
+        SolverStatus::PrimalInfeasible | SolverStatus::AlmostPrimalInfeasible => {
+            Outcome::Infeasible
+        }
+        other => Outcome::Failed(format!("the conic solver stopped: {other:?}")),
+    }
+}
+
+/// The constraint rows `A x + s = b` of a bound program: first the non-negative orthant
+/// (slopes or the gradient variable, tail auxiliaries, the model-error allowance,
+/// temperature limits, the peak variable), then the second-order cone of the misfit.
+/// Returns the rows and the size of the orthant.
+fn constraints(
+    set: &AdmissibleSet,
+    limits: Limits,
+    objective: Objective,
+    lay: &Layout,
+) -> (Rows, usize) {
+    let (n, m, iu, iz) = (lay.n, lay.m, lay.iu, lay.iz);
+    let (aux_start, t_ref, l_ref) = (&lay.aux_start, lay.t_ref, lay.l_ref);
     let free_gradient = objective == Objective::MinGradient;
     let g = limits.gradient;
-
     let mut rows = Rows {
         i: Vec::new(),
         j: Vec::new(),
@@ -196,50 +284,5 @@ pub fn solve(set: &AdmissibleSet, limits: Limits, objective: Objective) -> Outco
         entries.push((iu + i, w));
         rows.push(&entries, w * (set.readings[i] - o));
     }
-    let nrows = rows.b.len();
-    let a = CscMatrix::new_from_triplets(nrows, nvar, rows.i, rows.j, rows.v);
-    let p = CscMatrix::zeros((nvar, nvar));
-    let mut q = vec![0.0; nvar];
-    match objective {
-        Objective::MaxNode(j) => q[j] = -1.0,
-        Objective::MinNode(j) => q[j] = 1.0,
-        Objective::MinPeak | Objective::MinGradient => q[iz] = 1.0,
-    }
-    let cones = [
-        SupportedConeT::NonnegativeConeT(n_orthant),
-        SupportedConeT::SecondOrderConeT(m + 1),
-    ];
-    let Ok(settings) = DefaultSettingsBuilder::default()
-        .verbose(false)
-        .max_iter(200)
-        .build()
-    else {
-        return Outcome::Failed("solver settings rejected".into());
-    };
-    let mut solver = match DefaultSolver::new(&p, &q, &a, &rows.b, &cones, settings) {
-        Ok(s) => s,
-        Err(e) => return Outcome::Failed(format!("solver setup failed: {e}")),
-    };
-    solver.solve();
-    let sol = &solver.solution;
-    match sol.status {
-        SolverStatus::Solved | SolverStatus::AlmostSolved => {
-            let low = sol.obj_val.min(sol.obj_val_dual);
-            let value = match objective {
-                // max v = −min(−v) ≤ −(dual objective)
-                Objective::MaxNode(_) => t_ref - low,
-                Objective::MinNode(_) | Objective::MinPeak => t_ref + low,
-                Objective::MinGradient => (low / l_ref).max(0.0),
-            };
-            if value.is_finite() {
-                Outcome::Value(value)
-            } else {
-                Outcome::Failed("the solver returned a non-finite value".into())
-            }
-        }
-        SolverStatus::PrimalInfeasible | SolverStatus::AlmostPrimalInfeasible => {
-            Outcome::Infeasible
-        }
-        other => Outcome::Failed(format!("the conic solver stopped: {other:?}")),
-    }
+    (rows, n_orthant)
 }
