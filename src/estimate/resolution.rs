@@ -84,22 +84,20 @@ pub fn worst_resolution(
     map: &LinearMap,
 ) -> (f64, f64) {
     let n = positions.len();
+    let first = (positions.first().copied().unwrap_or(0.0), 0.0);
     let mut idx: Vec<usize> = (0..n).step_by(SCAN_STRIDE).collect();
     if n > 0 && idx.last() != Some(&(n - 1)) {
         idx.push(n - 1);
     }
+    let Some(kernels) = Kernels::new(model, resolution, edge, positions, map, &idx) else {
+        return first;
+    };
     // a point whose kernel has no positive peak (a corner pinned by a fixed neighbour: the
     // estimate there does not depend on the truth near it) has nothing to resolve
-    idx.into_iter()
-        .filter_map(|i| {
-            kernel_span(model, resolution, edge, positions, map, i).map(|w| (positions[i], w))
-        })
-        .fold(
-            (positions.first().copied().unwrap_or(0.0), 0.0),
-            |best, x| {
-                if x.1 > best.1 { x } else { best }
-            },
-        )
+    idx.iter()
+        .enumerate()
+        .filter_map(|(c, &i)| kernels.span(c, positions, i).map(|w| (positions[i], w)))
+        .fold(first, |best, x| if x.1 > best.1 { x } else { best })
 }
 
 /// Resolution length (metres) of `edge` at `positions[i0]`: the span of the half-maximum
@@ -118,41 +116,57 @@ pub fn resolution_length_at(
 ) -> f64 {
     let shape = model.plate().shape();
     let len = shape.edge_length(edge).unwrap_or(shape.width());
-    kernel_span(model, resolution, edge, positions, map, i0).unwrap_or(len)
+    Kernels::new(model, resolution, edge, positions, map, &[i0])
+        .and_then(|k| k.span(0, positions, i0))
+        .unwrap_or(len)
 }
 
-/// The span of [`resolution_length_at`], `None` when the kernel has no positive peak.
-fn kernel_span(
-    model: &ForwardModel,
-    resolution: &DMatrix<f64>,
-    edge: Edge,
-    positions: &[f64],
-    map: &LinearMap,
-    i0: usize,
-) -> Option<f64> {
-    let series = model.series_of(edge)?;
-    let v = map.matrix.row(i0) * resolution; // 1 × p
-    let modes: Vec<(usize, usize)> = model
-        .parameters()
-        .iter()
-        .enumerate()
-        .filter_map(|(j, p)| match p {
-            Parameter::Mode { edge: e, n, .. } if *e == edge => Some((j, *n)),
-            _ => None,
+/// The averaging kernels `K(s₀, ·)` of several points `s₀` of one edge, sampled at the
+/// edge's profile positions: column `c` is the kernel of the `c`-th point, formed as
+/// `Φ (P[s₀] R)_{modes}ᵀ` with `Φ[s, k] = φ_k(s)/‖φ_k‖²` evaluated once for the edge.
+struct Kernels {
+    /// `n × points`.
+    values: DMatrix<f64>,
+}
+
+impl Kernels {
+    fn new(
+        model: &ForwardModel,
+        resolution: &DMatrix<f64>,
+        edge: Edge,
+        positions: &[f64],
+        map: &LinearMap,
+        points: &[usize],
+    ) -> Option<Self> {
+        let series = model.series_of(edge)?;
+        let (cols, orders): (Vec<usize>, Vec<usize>) = model
+            .parameters()
+            .iter()
+            .enumerate()
+            .filter_map(|(j, p)| match p {
+                Parameter::Mode { edge: e, n, .. } if *e == edge => Some((j, *n)),
+                _ => None,
+            })
+            .unzip();
+        let basis = series.basis;
+        let phi = DMatrix::from_fn(positions.len(), orders.len(), |i, k| {
+            basis.value(orders[k], positions[i]) / basis.norm_sq(orders[k])
+        });
+        // (P[s₀] R) restricted to the edge's modes, one row per point
+        let v = map.matrix.select_rows(points) * resolution;
+        let v_modes = v.select_columns(&cols);
+        Some(Kernels {
+            values: phi * v_modes.transpose(),
         })
-        .collect();
-    let basis = series.basis;
-    let kernel: Vec<f64> = positions
-        .iter()
-        .map(|&s| {
-            modes
-                .iter()
-                .map(|&(j, m)| v[j] * basis.value(m, s) / basis.norm_sq(m))
-                .sum()
-        })
-        .collect();
-    half_max_region(&kernel, positions, i0)
-        .map(|(left, right)| right.max(positions[i0]) - left.min(positions[i0]))
+    }
+
+    /// The span of column `c` (the kernel of `positions[i0]`), `None` when the kernel has no
+    /// positive peak.
+    fn span(&self, c: usize, positions: &[f64], i0: usize) -> Option<f64> {
+        let kernel = self.values.column(c);
+        half_max_region(kernel.as_slice(), positions, i0)
+            .map(|(left, right)| right.max(positions[i0]) - left.min(positions[i0]))
+    }
 }
 
 /// The stretch `(left, right)` where the peak of `kernel` nearest `i0` stays above half its
