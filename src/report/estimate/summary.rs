@@ -1,12 +1,12 @@
 //! `summary.json` (`docs/case-files.md`, summary.json, the part other programs rely on) and the text summary a person
 //! reads on stdout, both in the case's units.
 
-use super::format::{
+use super::tables::mean_half_width;
+use crate::estimate::{DoubtfulSensor, EdgeResult, EstimateResult};
+use crate::report::format::{
     CaseUnits, RATIO_FILE_DECIMALS, SIGNIFICANT_DIGITS, edge_coordinate, fixed, rounded,
     significant, significant_text,
 };
-use super::tables::mean_half_width;
-use crate::estimate::{DoubtfulSensor, EdgeResult, EstimateResult};
 use serde_json::{Map, Value, json};
 use std::fmt::Write as _;
 

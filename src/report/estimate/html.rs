@@ -4,11 +4,13 @@
 //! flagged rows highlighted, and the cautions. Every piece of text from the inputs is
 //! escaped.
 
-use super::format::{CaseUnits, edge_coordinate, escape_html as esc, fixed, significant_text};
 use super::summary::{SAFETY_CAUTION, cautions, doubt_message, edge_maximum, flagged, percent};
 use super::tables::mean_half_width;
 use crate::estimate::EstimateResult;
 use crate::geometry::{Edge, EdgeCondition, Shape};
+use crate::report::format::{
+    CaseUnits, edge_coordinate, escape_html as esc, fixed, significant_text,
+};
 use std::fmt::Write as _;
 
 const CSS: &str = "
