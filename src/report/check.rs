@@ -339,11 +339,21 @@ impl CheckReport {
         })
     }
 
-    /// The text `check` prints.
+    /// The text `check` prints: one section after another, each written by the step named
+    /// after it.
     pub fn text(&self) -> String {
-        let lu = self.units.length;
-        let tu = self.units.temperature;
         let mut s = String::new();
+        self.files_text(&mut s);
+        self.plate_text(&mut s);
+        self.edges_text(&mut s);
+        self.sensors_text(&mut s);
+        self.settings_text(&mut s);
+        self.model_text(&mut s);
+        s
+    }
+
+    /// The verdict and the files read (a readings file is optional for `check`).
+    fn files_text(&self, s: &mut String) {
         let _ = writeln!(s, "The case is valid.");
         let _ = writeln!(s);
         let _ = writeln!(s, "Files");
@@ -358,6 +368,12 @@ impl CheckReport {
             }
         }
         let _ = writeln!(s);
+    }
+
+    /// The plate's outline, the units and the conductivity.
+    fn plate_text(&self, s: &mut String) {
+        let lu = self.units.length;
+        let tu = self.units.temperature;
         let p = &self.plate;
         match p.height {
             Some(h) => {
@@ -387,6 +403,12 @@ impl CheckReport {
             }
         }
         let _ = writeln!(s);
+    }
+
+    /// Each edge with its length and condition, then the unknown edges.
+    fn edges_text(&self, s: &mut String) {
+        let lu = self.units.length;
+        let tu = self.units.temperature;
         let _ = writeln!(s, "Edges");
         for e in &self.edges {
             let along = if e.edge.runs_along_x() { "x" } else { "y" };
@@ -419,6 +441,12 @@ impl CheckReport {
         let names: Vec<&str> = self.unknown_edges.iter().map(|e| e.name()).collect();
         let _ = writeln!(s, "Unknown edges: {}", names.join(", "));
         let _ = writeln!(s);
+    }
+
+    /// The sensor table: position, and depth below each unknown edge (also as a fraction of
+    /// that edge's length).
+    fn sensors_text(&self, s: &mut String) {
+        let lu = self.units.length;
         let _ = writeln!(s, "Sensors ({})", self.sensors.len());
         let mut rows: Vec<Vec<String>> = Vec::new();
         let mut header = vec![
@@ -441,6 +469,12 @@ impl CheckReport {
         }
         s.push_str(&table(&rows));
         let _ = writeln!(s);
+    }
+
+    /// The readings count and the fit, noise and uncertainty settings.
+    fn settings_text(&self, s: &mut String) {
+        let lu = self.units.length;
+        let tu = self.units.temperature;
         match &self.readings {
             Some(r) => {
                 let _ = write!(s, "Readings: {} of {} sensors", r.count, self.sensors.len());
@@ -503,6 +537,10 @@ impl CheckReport {
             num(un.confidence),
             un.seed
         );
+    }
+
+    /// The forward model's lines, when it was described.
+    fn model_text(&self, s: &mut String) {
         if let Some(m) = &self.model {
             let _ = writeln!(s);
             let _ = writeln!(s, "Forward model");
@@ -510,7 +548,6 @@ impl CheckReport {
                 let _ = writeln!(s, "  {l}");
             }
         }
-        s
     }
 }
 
