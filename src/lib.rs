@@ -17,12 +17,14 @@
 //! | [`bounds`] | strict bounds on the hidden edges and their hottest temperature under a stated gradient limit (conic programs) |
 //! | [`uncertainty`] | the bootstrap of the estimation error with re-chosen strength; bands |
 //! | [`io`] | case files (`plate.toml`, `sensors.csv`, `readings.csv`, profiles, logger files) read into a [`case::Case`]; results written atomically |
-//! | [`report`] | the outputs of an estimate in the case's units: CSV tables, `summary.json`, the text summary, SVG plots and a self-contained HTML page |
 //! | [`track`] | a logger file row by row: per-row estimate with a pattern cache, hottest point through time, alarms, failing sensors |
+//! | [`report`] | every output in the case's units, one module per command (`estimate`, `design`, `track`, `check`) over shared drawing and number-format primitives: CSV tables, JSON, text summaries, SVG plots, the HTML page |
 //! | [`simulate`] | synthetic readings from a known edge profile (demos, tests, what-if) |
 //! | [`units`] | the length and temperature units of a case, converted once at the edge |
 //! | [`error`] | one error type whose messages name the file, line and field |
 //!
+//! Data flows one way, case → computation (`estimate`, `design`, `track`) → [`report`] →
+//! the binary: the computing modules return typed results and import nothing from `report`.
 //! The library never prints; the `edgetherm` binary is a thin layer over it.
 
 pub mod bounds;

@@ -8,10 +8,12 @@
 
 use super::{GlobalOptions, print_stdout};
 use edgetherm::case::CandidateSource;
-use edgetherm::design::report::{DESIGN_OUTPUT_FILE_NAMES, design_json, design_text};
-use edgetherm::design::{Criterion, DesignSpace, LayoutSensor, report::write_design_outputs};
+use edgetherm::design::{Criterion, DesignSpace, LayoutSensor};
 use edgetherm::io::case::{load_design_case, read_candidates, read_layout};
 use edgetherm::io::output::check_output_names;
+use edgetherm::report::design::{
+    DESIGN_OUTPUT_FILE_NAMES, design_json, design_text, write_design_outputs,
+};
 use edgetherm::{Error, Result};
 use std::path::PathBuf;
 

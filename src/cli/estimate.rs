@@ -13,7 +13,9 @@ use super::{
 };
 use edgetherm::estimate::{EstimateOptions, estimate};
 use edgetherm::io::{check_output_dir, load_case, load_readings};
-use edgetherm::report::{summary_json, text_summary, write_outputs};
+use edgetherm::report::estimate::{
+    bounds_hottest_interval, summary_json, text_summary, write_outputs,
+};
 use edgetherm::uncertainty::BootstrapMode;
 use edgetherm::{Error, Result};
 use std::path::PathBuf;
@@ -162,7 +164,7 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
         ));
         print_stdout(&text)?;
     }
-    let bounds_exceed = match (limit, edgetherm::report::bounds_hottest_interval(&result)) {
+    let bounds_exceed = match (limit, bounds_hottest_interval(&result)) {
         (Some(t), Some([lo, _])) => lo > t,
         _ => false,
     };

@@ -240,45 +240,6 @@ pub fn print_stdout(text: &str) -> Result<()> {
     }
 }
 
-/// A number for people: six significant digits at most, no trailing zeros.
-pub fn num(v: f64) -> String {
-    if v == 0.0 || !v.is_finite() {
-        return format!("{}", if v == 0.0 { 0.0 } else { v });
-    }
-    let mag = v.abs().log10().floor() as i32;
-    if !(-4..15).contains(&mag) {
-        let s = format!("{v:.5e}");
-        let (m, e) = s.split_once('e').unwrap_or((s.as_str(), "0"));
-        let m = m.trim_end_matches('0').trim_end_matches('.');
-        return format!("{m}e{e}");
-    }
-    let decimals = (5 - mag).max(0) as usize;
-    let s = format!("{v:.decimals$}");
-    let s = if s.contains('.') {
-        s.trim_end_matches('0').trim_end_matches('.').to_string()
-    } else {
-        s
-    };
-    if s == "-0" { "0".into() } else { s }
-}
-
-#[cfg(test)]
-mod tests {
-    use super::num;
-
-    #[test]
-    fn numbers_for_people() {
-        assert_eq!(num(150.00000000000003), "150");
-        assert_eq!(num(0.053333333), "0.0533333");
-        assert_eq!(num(-273.15), "-273.15");
-        assert_eq!(num(0.0), "0");
-        assert_eq!(num(25.0), "25");
-        assert_eq!(num(1234567.0), "1234567");
-        assert_eq!(num(1.5e20), "1.5e20");
-        assert_eq!(num(2e-7), "2e-7");
-    }
-}
-
 #[cfg(test)]
 mod flag_tests {
     use super::*;

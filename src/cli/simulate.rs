@@ -4,9 +4,10 @@
 //! Writes `readings.csv` (`sensor,temperature`) to `--out` or, without it, to stdout;
 //! `--field FILE` also writes the true field (`x,y,temperature`) on the grid.
 
-use super::{GlobalOptions, num, parse_grid, print_stdout};
+use super::{GlobalOptions, parse_grid, print_stdout};
 use edgetherm::case::{DEFAULT_GRID, grid_coordinates};
 use edgetherm::io::{check_output_file, load_case, read_truth_profiles, write_atomic};
+use edgetherm::report::num;
 use edgetherm::simulate::{add_noise, exact_readings, true_field, truth_model};
 use edgetherm::{Error, Result};
 use std::path::PathBuf;

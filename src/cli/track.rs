@@ -18,10 +18,10 @@ use edgetherm::io::{
     LoggerOptions, LoggerReader, LoggerRow, StreamWriter, check_track_outputs, create_output_dir,
     load_case, write_atomic,
 };
-use edgetherm::track::report::{
-    TRACK_CSV_HEADER, alarms_csv, health_csv, summary_json, text_summary, track_csv_row,
+use edgetherm::report::track::{
+    TRACK_CSV_HEADER, alarms_csv, health_csv, plot, summary_json, text_summary, track_csv_row,
 };
-use edgetherm::track::{RowRecord, TrackOptions, Tracker, plot};
+use edgetherm::track::{RowRecord, TrackOptions, Tracker};
 use edgetherm::{Error, Result};
 use std::path::{Path, PathBuf};
 use std::sync::mpsc;

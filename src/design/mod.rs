@@ -19,7 +19,8 @@
 //!
 //! [`DesignSpace::design`] chooses a layout by greedy selection and exchange ([`search`])
 //! among the feasible candidates ([`candidates`]); [`DesignSpace::evaluate`] scores a given
-//! layout. [`report`] renders `layout.csv`, `design.json`, the text summary and `design.svg`.
+//! layout. The outputs (`layout.csv`, `design.json`, the text summary and `design.svg`) are
+//! rendered from a [`DesignResult`] by `report::design`, which sits above this module.
 //!
 //! The predicted spread is that of the posterior-mean estimate with the strength fixed at
 //! the prior's equivalent `λ = 1/τ²`, for profiles drawn from the prior; `estimate` chooses
@@ -27,9 +28,7 @@
 
 pub mod candidates;
 pub mod prior;
-pub mod report;
 pub mod search;
-mod svg;
 
 pub use candidates::{Constraints, random_layout, uniform_layout};
 pub use prior::Prior;

@@ -27,16 +27,13 @@
 //! | [`health`] | dropout, stuck, outlier and drift detectors |
 //! | [`alarm`] | alarm episodes |
 //! | [`series`] | bounded time bins for the plot |
-//! | [`report`] | `track.csv` rows, `alarms.csv`, `sensors-health.csv`, `summary.json`, text |
-//! | [`plot`] | `track.svg` |
+//! | (`report::track`, above) | the outputs: `track.csv` rows, `alarms.csv`, `sensors-health.csv`, `summary.json`, text, `track.svg` |
 //! | [`synthetic`] | synthetic logs from known truths (demos, tests, benchmark) |
 
 pub mod alarm;
 pub mod bounds;
 pub mod engine;
 pub mod health;
-pub mod plot;
-pub mod report;
 pub mod series;
 pub mod synthetic;
 

@@ -11,7 +11,7 @@ use edgetherm::estimate::{
     Interval, SensorResult, StrengthSummary,
 };
 use edgetherm::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Point, Shape};
-use edgetherm::report::{
+use edgetherm::report::estimate::{
     SAFETY_CAUTION, render_outputs, summary_json, text_summary, write_outputs,
 };
 use edgetherm::units::{LengthUnit, TemperatureUnit, Units};

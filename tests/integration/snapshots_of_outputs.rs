@@ -8,7 +8,7 @@
 use edgetherm::case::CaseFiles;
 use edgetherm::estimate::{EstimateOptions, estimate};
 use edgetherm::io::{load_case, load_readings};
-use edgetherm::report::{summary_json, text_summary};
+use edgetherm::report::estimate::{summary_json, text_summary};
 use serde_json::Value;
 
 fn cold_plate_result() -> edgetherm::estimate::EstimateResult {

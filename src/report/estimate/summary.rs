@@ -1,12 +1,12 @@
 //! `summary.json` (`docs/case-files.md`, summary.json, the part other programs rely on) and the text summary a person
 //! reads on stdout, both in the case's units.
 
-use super::format::{
+use super::tables::mean_half_width;
+use crate::estimate::{DoubtfulSensor, EdgeResult, EstimateResult};
+use crate::report::format::{
     CaseUnits, RATIO_FILE_DECIMALS, SIGNIFICANT_DIGITS, edge_coordinate, fixed, rounded,
     significant, significant_text,
 };
-use super::tables::mean_half_width;
-use crate::estimate::{DoubtfulSensor, EdgeResult, EstimateResult};
 use serde_json::{Map, Value, json};
 use std::fmt::Write as _;
 
@@ -95,26 +95,43 @@ pub(crate) fn edge_maximum(e: &EdgeResult) -> Option<(f64, f64)> {
 }
 
 /// `summary.json` as a JSON value: the keys of `docs/case-files.md`, summary.json with their meaning, plus heat
-/// flows, per-edge band widths, the bootstrap mode and the readings used.
+/// flows, per-edge band widths, the bootstrap mode and the readings used. Each group of keys
+/// is made by the step named after it.
 pub fn summary_json(r: &EstimateResult) -> Value {
+    let mut out = Map::new();
+    out.insert("hottest".into(), hottest_json(r));
+    if let Some(x) = exceedance_json(r) {
+        out.insert("exceedance".into(), x);
+    }
+    out.insert("strength".into(), strength_json(r));
+    out.insert("fit".into(), fit_json(r));
+    insert_edges_json(r, &mut out);
+    insert_sensors_json(r, &mut out);
+    if let Some(b) = super::bounds::bounds_json(r) {
+        out.insert("bounds".into(), b);
+    }
+    if let Some(g) = super::bounds::gradient_study_json(r) {
+        out.insert("gradient_study".into(), g);
+    }
+    insert_run_json(r, &mut out);
+    Value::Object(out)
+}
+
+/// A dimensionless value in `summary.json`, at the precision of the data files.
+fn ratio(v: f64) -> Value {
+    rounded(v, RATIO_FILE_DECIMALS)
+}
+
+/// `hottest`: the hottest point, its intervals, and how the replicates' hottest points
+/// spread over the edges and around the main peak.
+fn hottest_json(r: &EstimateResult) -> Value {
     let u = CaseUnits::new(r.units);
     let h = &r.hottest;
-    let ratio = |v: f64| rounded(v, RATIO_FILE_DECIMALS);
-    let edge_map = |f: &dyn Fn(&EdgeResult) -> Option<Value>| -> Value {
-        let mut m = Map::new();
-        for e in &r.edges {
-            if let Some(v) = f(e) {
-                m.insert(e.edge.name().to_string(), v);
-            }
-        }
-        Value::Object(m)
-    };
-
     let mut shares = Map::new();
     for (edge, share) in &h.edge_shares {
         shares.insert(edge.name().to_string(), ratio(*share));
     }
-    let hottest = json!({
+    json!({
         "edge": h.edge.name(),
         "position": u.len_json(h.position),
         "position_interval": [u.len_json(h.position_interval[0]), u.len_json(h.position_interval[1])],
@@ -125,43 +142,60 @@ pub fn summary_json(r: &EstimateResult) -> Value {
         ],
         "edge_shares": shares,
         "main_peak_share": ratio(h.main_peak_share),
-    });
+    })
+}
 
-    let mut out = Map::new();
-    out.insert("hottest".into(), hottest);
-    if let Some(x) = &r.exceedance {
-        out.insert(
-            "exceedance".into(),
-            json!({
-                "limit": u.temp_json(x.limit),
-                "probability": ratio(x.probability),
-                "alarm_probability": ratio(x.alarm_probability),
-                "alarm": x.alarm,
-            }),
-        );
-    }
-    out.insert(
-        "strength".into(),
+/// `exceedance`: the limit verdict, only when a limit was given.
+fn exceedance_json(r: &EstimateResult) -> Option<Value> {
+    let u = CaseUnits::new(r.units);
+    r.exceedance.as_ref().map(|x| {
         json!({
-            "method": r.strength.method,
-            "value": significant(r.strength.value, SIGNIFICANT_DIGITS),
-            "effective_parameters": ratio(r.strength.effective_parameters),
-            "at_range_end": r.strength.at_range_end,
-            "smoothing": r.strength.smoothing,
-            "smoothing_chosen_by_evidence": r.strength.smoothing_auto,
-        }),
-    );
-    out.insert(
-        "fit".into(),
-        json!({
-            "sigma": u.dtemp_json(r.fit.sigma),
-            "sigma_source": r.fit.sigma_source,
-            "chi_square": ratio(r.fit.chi_square),
-            "dof": ratio(r.fit.dof),
-            "p_value": r.fit.p_value.map_or(Value::Null, |p| significant(p, SIGNIFICANT_DIGITS)),
-            "readings_used": r.fit.readings_used,
-        }),
-    );
+            "limit": u.temp_json(x.limit),
+            "probability": ratio(x.probability),
+            "alarm_probability": ratio(x.alarm_probability),
+            "alarm": x.alarm,
+        })
+    })
+}
+
+/// `strength`: the regularisation strength, its rule and the smoothing.
+fn strength_json(r: &EstimateResult) -> Value {
+    json!({
+        "method": r.strength.method,
+        "value": significant(r.strength.value, SIGNIFICANT_DIGITS),
+        "effective_parameters": ratio(r.strength.effective_parameters),
+        "at_range_end": r.strength.at_range_end,
+        "smoothing": r.strength.smoothing,
+        "smoothing_chosen_by_evidence": r.strength.smoothing_auto,
+    })
+}
+
+/// `fit`: the reading uncertainty and the fit quality.
+fn fit_json(r: &EstimateResult) -> Value {
+    let u = CaseUnits::new(r.units);
+    json!({
+        "sigma": u.dtemp_json(r.fit.sigma),
+        "sigma_source": r.fit.sigma_source,
+        "chi_square": ratio(r.fit.chi_square),
+        "dof": ratio(r.fit.dof),
+        "p_value": r.fit.p_value.map_or(Value::Null, |p| significant(p, SIGNIFICANT_DIGITS)),
+        "readings_used": r.fit.readings_used,
+    })
+}
+
+/// The per-edge keys: `resolution_length`, `resolution`, `heat_flow` with its unit, and
+/// `edges` (maximum and mean band half-widths of each unknown edge).
+fn insert_edges_json(r: &EstimateResult, out: &mut Map<String, Value>) {
+    let u = CaseUnits::new(r.units);
+    let edge_map = |f: &dyn Fn(&EdgeResult) -> Option<Value>| -> Value {
+        let mut m = Map::new();
+        for e in &r.edges {
+            if let Some(v) = f(e) {
+                m.insert(e.edge.name().to_string(), v);
+            }
+        }
+        Value::Object(m)
+    };
     out.insert(
         "resolution_length".into(),
         edge_map(&|e| Some(u.len_json(e.resolution_length))),
@@ -212,6 +246,12 @@ pub fn summary_json(r: &EstimateResult) -> Value {
         })
         .collect();
     out.insert("edges".into(), Value::Array(edges));
+}
+
+/// The sensor keys: `flagged_sensors` (left out or suspect, with the reason) and
+/// `doubtful_sensors` (kept under two explanations, with the hot-spot explanation).
+fn insert_sensors_json(r: &EstimateResult, out: &mut Map<String, Value>) {
+    let u = CaseUnits::new(r.units);
     let flagged_sensors: Vec<Value> = flagged(r)
         .into_iter()
         .map(|(k, reason)| {
@@ -246,12 +286,12 @@ pub fn summary_json(r: &EstimateResult) -> Value {
         })
         .collect();
     out.insert("doubtful_sensors".into(), Value::Array(doubtful));
-    if let Some(b) = super::bounds::bounds_json(r) {
-        out.insert("bounds".into(), b);
-    }
-    if let Some(g) = super::bounds::gradient_study_json(r) {
-        out.insert("gradient_study".into(), g);
-    }
+}
+
+/// The keys that describe the run: sensor count, units, confidence, bootstrap, seed,
+/// version, and the cautions (the safety caution always).
+fn insert_run_json(r: &EstimateResult, out: &mut Map<String, Value>) {
+    let u = CaseUnits::new(r.units);
     out.insert("sensor_count".into(), json!(r.sensors.len()));
     out.insert(
         "units".into(),
@@ -263,7 +303,6 @@ pub fn summary_json(r: &EstimateResult) -> Value {
     out.insert("seed".into(), json!(r.seed));
     out.insert("version".into(), json!(env!("CARGO_PKG_VERSION")));
     out.insert("cautions".into(), json!(cautions(r)));
-    Value::Object(out)
 }
 
 /// Width of the label column of the text summary.
@@ -275,25 +314,46 @@ fn line(out: &mut String, label: &str, text: &str) {
 
 /// The text summary for stdout: what a person needs in ten seconds — the hottest point with
 /// its intervals, the limit verdict, flagged sensors, resolution, fit quality, heat flows and
-/// the cautions (the safety caution always).
+/// the cautions (the safety caution always). Each block is written by the step named after
+/// it.
 pub fn text_summary(r: &EstimateResult) -> String {
-    let u = CaseUnits::new(r.units);
-    let h = &r.hottest;
-    let conf = percent(r.confidence);
     let mut out = String::new();
     let _ = writeln!(
         out,
-        "edgetherm {} - hidden edge estimate ({conf} intervals, {} {} bootstrap replicates, \
+        "edgetherm {} - hidden edge estimate ({} intervals, {} {} bootstrap replicates, \
          seed {})",
         env!("CARGO_PKG_VERSION"),
+        percent(r.confidence),
         r.replicates,
         r.bootstrap_mode,
         r.seed
     );
     out.push('\n');
+    hottest_text(r, &mut out);
+    limit_text(r, &mut out);
+    for (label, text) in super::bounds::bounds_text(r) {
+        line(&mut out, &label, &text);
+    }
+    sensors_text(r, &mut out);
+    resolution_text(r, &mut out);
+    fit_text(r, &mut out);
+    heat_flow_text(r, &mut out);
+    out.push('\n');
+    out.push_str("Cautions\n");
+    for c in cautions(r) {
+        let _ = writeln!(out, "  ! {c}");
+    }
+    out
+}
 
+/// The hottest point and its intervals, with a note when replicates put it on another edge
+/// or away from the main peak.
+fn hottest_text(r: &EstimateResult, out: &mut String) {
+    let u = CaseUnits::new(r.units);
+    let h = &r.hottest;
+    let conf = percent(r.confidence);
     line(
-        &mut out,
+        out,
         "Hottest point",
         &format!(
             "{}   {conf} interval [{}, {}] {}",
@@ -304,7 +364,7 @@ pub fn text_summary(r: &EstimateResult) -> String {
         ),
     );
     line(
-        &mut out,
+        out,
         "",
         &format!(
             "{} edge, {} = {}   {conf} interval [{}, {}] {}",
@@ -324,7 +384,7 @@ pub fn text_summary(r: &EstimateResult) -> String {
         .collect();
     if !other_edges.is_empty() {
         line(
-            &mut out,
+            out,
             "",
             &format!(
                 "replicates whose hottest point is on another edge: {}",
@@ -334,7 +394,7 @@ pub fn text_summary(r: &EstimateResult) -> String {
     }
     if h.main_peak_share.is_finite() && h.main_peak_share < 0.9 {
         line(
-            &mut out,
+            out,
             "",
             &format!(
                 "only {} of the replicates put the peak near this position: another peak is \
@@ -343,11 +403,15 @@ pub fn text_summary(r: &EstimateResult) -> String {
             ),
         );
     }
+}
 
+/// The limit verdict, when a limit was given.
+fn limit_text(r: &EstimateResult, out: &mut String) {
+    let u = CaseUnits::new(r.units);
     if let Some(x) = &r.exceedance {
         let verdict = if x.alarm { "ALARM" } else { "no alarm" };
         line(
-            &mut out,
+            out,
             "Limit",
             &format!(
                 "{}: {verdict} - exceeded with probability {} (alarm when above {})",
@@ -357,14 +421,13 @@ pub fn text_summary(r: &EstimateResult) -> String {
             ),
         );
     }
+}
 
-    for (label, text) in super::bounds::bounds_text(r) {
-        line(&mut out, &label, &text);
-    }
-
+/// The flagged sensors (or `none`), then the sensors kept although doubtful.
+fn sensors_text(r: &EstimateResult, out: &mut String) {
     let flags = flagged(r);
     if flags.is_empty() {
-        line(&mut out, "Flagged sensors", "none");
+        line(out, "Flagged sensors", "none");
     } else {
         for (n, (k, reason)) in flags.iter().enumerate() {
             let s = &r.sensors[*k];
@@ -373,19 +436,22 @@ pub fn text_summary(r: &EstimateResult) -> String {
                 .map(|v| format!(" (standardised LOO residual {})", fixed(v, 2)))
                 .unwrap_or_default();
             let label = if n == 0 { "Flagged sensors" } else { "" };
-            line(&mut out, label, &format!("{}{loo}: {reason}", s.sensor));
+            line(out, label, &format!("{}{loo}: {reason}", s.sensor));
         }
     }
-
     for (n, d) in r.doubtful_sensors.iter().enumerate() {
         let label = if n == 0 { "Kept, doubtful" } else { "" };
-        line(&mut out, label, &doubt_message(r, d));
+        line(out, label, &doubt_message(r, d));
     }
+}
 
+/// The resolution length of each unknown edge.
+fn resolution_text(r: &EstimateResult, out: &mut String) {
+    let u = CaseUnits::new(r.units);
     for (n, e) in r.edges.iter().enumerate() {
         let label = if n == 0 { "Resolution" } else { "" };
         line(
-            &mut out,
+            out,
             label,
             &format!(
                 "{} edge {}, the worst along it (at {} = {}); {} at the hottest point; \
@@ -398,7 +464,11 @@ pub fn text_summary(r: &EstimateResult) -> String {
             ),
         );
     }
+}
 
+/// The fit quality, the readings used with their sigma, and the strength.
+fn fit_text(r: &EstimateResult, out: &mut String) {
+    let u = CaseUnits::new(r.units);
     let p = r.fit.p_value.map_or_else(
         || "p not available".to_string(),
         |p| format!("p = {}", significant_text(p, 2)),
@@ -409,7 +479,7 @@ pub fn text_summary(r: &EstimateResult) -> String {
         _ => "",
     };
     line(
-        &mut out,
+        out,
         "Fit",
         &format!(
             "chi-square {} on {} dof, {p}{quality}",
@@ -418,7 +488,7 @@ pub fn text_summary(r: &EstimateResult) -> String {
         ),
     );
     line(
-        &mut out,
+        out,
         "",
         &format!(
             "{} readings of {} sensors, sigma {} ({})",
@@ -429,7 +499,7 @@ pub fn text_summary(r: &EstimateResult) -> String {
         ),
     );
     line(
-        &mut out,
+        out,
         "Strength",
         &format!(
             "{} by {}, {} smoothing{}, {} effective parameters{}",
@@ -449,12 +519,17 @@ pub fn text_summary(r: &EstimateResult) -> String {
             }
         ),
     );
+}
+
+/// The heat flow into the plate through each edge that has one, with its interval.
+fn heat_flow_text(r: &EstimateResult, out: &mut String) {
+    let conf = percent(r.confidence);
     let flows: Vec<&EdgeResult> = r.edges.iter().filter(|e| e.heat_flow.is_some()).collect();
     for (n, e) in flows.iter().enumerate() {
         let q = e.heat_flow.expect("filtered");
         let label = if n == 0 { "Heat flow in" } else { "" };
         line(
-            &mut out,
+            out,
             label,
             &format!(
                 "{} edge {} {HEAT_FLOW_UNIT}   {conf} interval [{}, {}] (per unit depth)",
@@ -465,13 +540,6 @@ pub fn text_summary(r: &EstimateResult) -> String {
             ),
         );
     }
-
-    out.push('\n');
-    out.push_str("Cautions\n");
-    for c in cautions(r) {
-        let _ = writeln!(out, "  ! {c}");
-    }
-    out
 }
 
 #[cfg(test)]

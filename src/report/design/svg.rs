@@ -4,7 +4,7 @@
 //! layout and for the one it was compared against. Uses the plot conventions of
 //! [`crate::report`] (sizes, colours, markers, label placement).
 
-use super::{DesignResult, LayoutScore, z_of};
+use crate::design::{DesignResult, LayoutScore, z_of};
 use crate::error::{Error, Result};
 use crate::geometry::Edge;
 use crate::report::draw::{

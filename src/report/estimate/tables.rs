@@ -1,9 +1,9 @@
 //! The CSV outputs of `docs/case-files.md`, outputs: `profile.csv`, `field.csv` and `sensors.csv`, in the case's
 //! units, with fixed precision and empty cells for missing values.
 
-use super::format::{CaseUnits, RATIO_FILE_DECIMALS, opt_fixed};
 use crate::error::{Error, Result};
 use crate::estimate::EstimateResult;
+use crate::report::format::{CaseUnits, RATIO_FILE_DECIMALS, opt_fixed};
 
 /// Header of `profile.csv`: the five columns of `docs/case-files.md`, outputs, then the simultaneous band, the
 /// linear cross-check band and the strict bounds under the stated gradient limit (empty

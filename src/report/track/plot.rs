@@ -1,6 +1,6 @@
 //! `track.svg`: the hottest temperature of the hidden edge through the log with its band and
 //! the alarm limit, and beneath it where on the edge the hottest point was. Drawn from the
-//! bounded time bins of [`super::series`], in the report's conventions (fonts, colours,
+//! bounded time bins of [`crate::track::series`], in the report's conventions (fonts, colours,
 //! legend and markers of [`crate::report`]).
 //!
 //! Each bin is drawn as the mean hottest temperature of its rows, the band from the lowest
@@ -9,8 +9,6 @@
 //! Bins with no fitted row leave gaps. Time runs from the first row, in seconds, minutes,
 //! hours or days as the span suits.
 
-use super::TrackSummary;
-use super::series::Bin;
 use crate::case::Case;
 use crate::error::{Error, Result};
 use crate::report::draw::{
@@ -18,6 +16,8 @@ use crate::report::draw::{
     PLOT_SAFETY_NOTE, TEXT_PX, TITLE_PX, TextOpts, dashed, legend, line, polygon, rect, text,
 };
 use crate::report::format::{CaseUnits, edge_coordinate, fixed};
+use crate::track::TrackSummary;
+use crate::track::series::Bin;
 use plotters::prelude::*;
 
 const WIDTH: u32 = 960;

@@ -3,18 +3,18 @@
 //! profile a small panel of the sensors' depth below that edge against their position
 //! along it (what the reconstruction could see, and from how deep).
 
-use super::draw::{
+use super::summary::percent;
+use crate::error::{Error, Result};
+use crate::estimate::{EdgeResult, EstimateResult};
+use crate::geometry::Edge;
+use crate::report::draw::{
     AXIS_PX, Anchor, Area, BAND, BOUNDS, DrawResult, ESTIMATE, FAMILY, FOOTER_H, GREY, GRID, Glyph,
     HOTTEST, INK, LEGEND_ROW_H, LIMIT, Marker, PLOT_SAFETY_NOTE, SIMULTANEOUS, TEXT_PX, TITLE_PX,
     TextOpts, font, label_box, legend, legend_rows, line, marker, sensor_label_width,
     sensor_marker, text,
 };
-use super::format::{CaseUnits, edge_coordinate, fixed, tick};
-use super::labels::{Placer, Rect, around_marker, text_width};
-use super::summary::percent;
-use crate::error::{Error, Result};
-use crate::estimate::{EdgeResult, EstimateResult};
-use crate::geometry::Edge;
+use crate::report::format::{CaseUnits, edge_coordinate, fixed, tick};
+use crate::report::labels::{Placer, Rect, around_marker, text_width};
 use plotters::element::DashedPathElement;
 use plotters::prelude::*;
 
@@ -443,7 +443,7 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
         }
     }
     if let Some((label, x, y)) = limit_label {
-        let w = super::labels::bold_text_width(&label, TEXT_PX) + 6.0;
+        let w = crate::report::labels::bold_text_width(&label, TEXT_PX) + 6.0;
         let h = TEXT_PX + 4.0;
         // the boxes stop 3 px short of the limit line, which stays whole
         let above = Rect::anchored(x + 3.0, y - 11.0, w, h, 1.0, 0.5);

@@ -3,10 +3,10 @@
 //! Everything in the case's units; a gradient is in the case's temperature unit per length
 //! unit.
 
-use super::format::{CaseUnits, RATIO_FILE_DECIMALS, fixed, rounded, significant};
 use crate::bounds::{BoundsOutcome, BoundsResult};
 use crate::estimate::EstimateResult;
 use crate::geometry::Edge;
+use crate::report::format::{CaseUnits, RATIO_FILE_DECIMALS, fixed, rounded, significant};
 use serde_json::{Value, json};
 
 /// Significant digits of a gradient in the outputs.
@@ -329,7 +329,7 @@ pub(crate) fn study_rows(r: &EstimateResult) -> Vec<(String, String)> {
 /// smallest gradient the readings need and the table of the peak's upper bound against the
 /// assumed gradient limit. Empty when the bounds were not asked for.
 pub(crate) fn bounds_html(r: &EstimateResult) -> String {
-    use super::format::escape_html as esc;
+    use crate::report::format::escape_html as esc;
     use std::fmt::Write as _;
     let Some(b) = r.bounds.as_ref() else {
         return String::new();

@@ -4,11 +4,13 @@
 //! flagged rows highlighted, and the cautions. Every piece of text from the inputs is
 //! escaped.
 
-use super::format::{CaseUnits, edge_coordinate, escape_html as esc, fixed, significant_text};
 use super::summary::{SAFETY_CAUTION, cautions, doubt_message, edge_maximum, flagged, percent};
 use super::tables::mean_half_width;
 use crate::estimate::EstimateResult;
 use crate::geometry::{Edge, EdgeCondition, Shape};
+use crate::report::format::{
+    CaseUnits, edge_coordinate, escape_html as esc, fixed, significant_text,
+};
 use std::fmt::Write as _;
 
 const CSS: &str = "
@@ -73,12 +75,39 @@ fn row(out: &mut String, cells: &[String], text_cols: &[usize], header: bool, cl
     out.push_str("</tr>\n");
 }
 
-/// The page, with the two SVG pictures inlined.
+/// The page, with the two SVG pictures inlined: one section after another, each written by
+/// the step named after it.
 pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str) -> String {
+    let mut o = String::new();
+    head_html(&mut o, r);
+    cautions_html(&mut o, r);
+    cards_html(&mut o, r);
+    figures_html(&mut o, r, profile_svg, field_svg);
+    fit_table_html(&mut o, r);
+    edges_table_html(&mut o, r);
+    sensors_table_html(&mut o, r);
+    case_html(&mut o, r);
+    o.push_str(
+        "<footer>Files beside this page: <code>profile.csv</code>, <code>field.csv</code>, \
+         <code>sensors.csv</code>, <code>summary.json</code>, <code>profile.svg</code>, \
+         <code>field.svg</code>. Temperatures are in the case's units; positions along an edge \
+         are measured from its lower coordinate.</footer>\n</body>\n</html>\n",
+    );
+    o
+}
+
+/// The fit's p-value for a reader.
+fn p_value_text(r: &EstimateResult) -> String {
+    r.fit
+        .p_value
+        .map_or_else(|| "not available".to_string(), |p| significant_text(p, 2))
+}
+
+/// The document head (title, inline style) and the page heading with the run's settings.
+fn head_html(o: &mut String, r: &EstimateResult) {
     let u = CaseUnits::new(r.units);
     let h = &r.hottest;
     let conf = percent(r.confidence);
-    let mut o = String::new();
     let _ = write!(
         o,
         "<!DOCTYPE html>\n<html lang=\"en\">\n<head>\n<meta charset=\"utf-8\"/>\n\
@@ -98,8 +127,10 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
         esc(&r.bootstrap_mode),
         r.seed
     );
+}
 
-    // Cautions first: the safety caution always, then the result's own.
+/// The cautions, first: the safety caution always, then the result's own.
+fn cautions_html(o: &mut String, r: &EstimateResult) {
     let _ = writeln!(
         o,
         "<div class=\"safety\" role=\"note\"><strong>Caution.</strong> {}</div>",
@@ -116,8 +147,13 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
         }
         o.push_str("</ul></div>\n");
     }
+}
 
-    // Key results.
+/// The key results as cards: the hottest point, the limit verdict, the fit.
+fn cards_html(o: &mut String, r: &EstimateResult) {
+    let u = CaseUnits::new(r.units);
+    let h = &r.hottest;
+    let conf = percent(r.confidence);
     o.push_str("<div class=\"cards\">\n");
     let _ = writeln!(
         o,
@@ -157,10 +193,7 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
             );
         }
     }
-    let p = r
-        .fit
-        .p_value
-        .map_or_else(|| "not available".to_string(), |p| significant_text(p, 2));
+    let p = p_value_text(r);
     let _ = writeln!(
         o,
         "<div class=\"card\"><h3>Fit</h3><p>chi-square {} on {} degrees of freedom, p = {}</p>\
@@ -173,8 +206,11 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
         fixed(r.strength.effective_parameters, 1)
     );
     o.push_str("</div>\n");
+}
 
-    // Plots.
+/// The two pictures, inlined, with their captions (and the strict bounds' block between them).
+fn figures_html(o: &mut String, r: &EstimateResult, profile_svg: &str, field_svg: &str) {
+    let conf = percent(r.confidence);
     o.push_str("<h2>Edge profile</h2>\n<figure>\n");
     o.push_str(strip_xml_declaration(profile_svg));
     let _ = writeln!(
@@ -196,8 +232,12 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
          pointwise bands of every grid point are in <code>field.csv</code>.</figcaption>\n\
          </figure>\n",
     );
+}
 
-    // Fit details.
+/// The fit details as a key-value table.
+fn fit_table_html(o: &mut String, r: &EstimateResult) {
+    let u = CaseUnits::new(r.units);
+    let p = p_value_text(r);
     o.push_str("<h2>Fit</h2>\n<table class=\"kv\">\n");
     let fit_rows = [
         ("strength rule".to_string(), esc(&r.strength.method)),
@@ -252,11 +292,16 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
         );
     }
     o.push_str("</table>\n");
+}
 
-    // Per edge.
+/// Per unknown edge: resolution length, highest estimate, mean band half-widths and heat
+/// flow.
+fn edges_table_html(o: &mut String, r: &EstimateResult) {
+    let u = CaseUnits::new(r.units);
+    let conf = percent(r.confidence);
     o.push_str("<h2>Edges: resolution and heat flow</h2>\n<table>\n");
     row(
-        &mut o,
+        o,
         &[
             "edge".into(),
             format!("resolution length [{}]", u.len_symbol()),
@@ -277,7 +322,7 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
         let (pos, t) = edge_maximum(e).unwrap_or((f64::NAN, f64::NAN));
         let hw = |l: &[f64], h: &[f64]| u.dtemp_num(mean_half_width(l, h));
         row(
-            &mut o,
+            o,
             &[
                 e.edge.name().to_string(),
                 u.len_num(e.resolution_length),
@@ -304,8 +349,11 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
                 sensors can resolve along the edge; narrower features are smoothed away. Heat \
                 flows are per unit depth of the plate.</p>\n",
     );
+}
 
-    // Sensors.
+/// The sensor table, flagged rows highlighted and doubtful rows dashed.
+fn sensors_table_html(o: &mut String, r: &EstimateResult) {
+    let u = CaseUnits::new(r.units);
     let n_flagged = flagged(r).len();
     let _ = writeln!(
         o,
@@ -331,7 +379,7 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
     let ts = esc(u.temp_symbol());
     let ls = u.len_symbol();
     row(
-        &mut o,
+        o,
         &[
             "sensor".into(),
             format!("x [{ls}]"),
@@ -351,7 +399,7 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
     for s in &r.sensors {
         let dash = || "–".to_string();
         row(
-            &mut o,
+            o,
             &[
                 esc(&s.sensor),
                 u.len_num(s.position.x),
@@ -385,8 +433,12 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
         );
     }
     o.push_str("</table>\n");
+}
 
-    // The case.
+/// The case: outline, edge conditions, conductivity, units, grid and uncertainty settings.
+fn case_html(o: &mut String, r: &EstimateResult) {
+    let u = CaseUnits::new(r.units);
+    let conf = percent(r.confidence);
     o.push_str("<h2>The case</h2>\n<dl class=\"case\">\n");
     let shape = r.plate.shape();
     let outline = match shape {
@@ -444,14 +496,6 @@ pub(crate) fn report_html(r: &EstimateResult, profile_svg: &str, field_svg: &str
         let _ = writeln!(o, "<dt>{k}</dt><dd>{v}</dd>");
     }
     o.push_str("</dl>\n");
-
-    o.push_str(
-        "<footer>Files beside this page: <code>profile.csv</code>, <code>field.csv</code>, \
-         <code>sensors.csv</code>, <code>summary.json</code>, <code>profile.svg</code>, \
-         <code>field.svg</code>. Temperatures are in the case's units; positions along an edge \
-         are measured from its lower coordinate.</footer>\n</body>\n</html>\n",
-    );
-    o
 }
 
 /// An SVG document without its XML declaration, ready to inline in HTML.

@@ -1,9 +1,11 @@
-//! The outputs of `edgetherm design`, in the case's units: `layout.csv` (ready to use as
-//! `sensors.csv`), `design.json`, `design.svg` and the text summary. Rendering happens in
-//! memory; [`write_design_outputs`] writes each file atomically through
-//! [`crate::io::write_atomic`]. Nothing here prints.
+//! The outputs of `edgetherm design`, made from a [`DesignResult`] in the case's units:
+//! `layout.csv` (ready to use as `sensors.csv`), `design.json`, the text summary, and
+//! `design.svg` (drawn by `svg`). Rendering happens in memory; [`write_design_outputs`]
+//! writes each file atomically through [`crate::io::write_atomic`]. Nothing here prints.
 
-use super::{Comparison, DesignResult, LayoutScore, z_of};
+mod svg;
+
+use crate::design::{Comparison, Criterion, DesignResult, LayoutScore, LayoutSensor, z_of};
 use crate::error::{Error, Result};
 use crate::io::{create_output_dir, write_atomic};
 use crate::report::format::{CaseUnits, edge_coordinate, rounded, significant};
@@ -69,7 +71,7 @@ fn score_json(r: &DesignResult, s: &LayoutScore) -> Value {
     })
 }
 
-fn layout_json(r: &DesignResult, layout: &[super::LayoutSensor]) -> Value {
+fn layout_json(r: &DesignResult, layout: &[LayoutSensor]) -> Value {
     let u = CaseUnits::new(r.units);
     Value::Array(
         layout
@@ -139,9 +141,9 @@ pub fn design_json(r: &DesignResult) -> Value {
 fn criterion_value_json(r: &DesignResult, v: f64) -> Value {
     let u = CaseUnits::new(r.units);
     match r.criterion {
-        super::Criterion::Information => rounded(v, 4),
-        super::Criterion::Edge => u.dtemp_json(v.max(0.0).sqrt()),
-        super::Criterion::Worst => u.dtemp_json(v),
+        Criterion::Information => rounded(v, 4),
+        Criterion::Edge => u.dtemp_json(v.max(0.0).sqrt()),
+        Criterion::Worst => u.dtemp_json(v),
     }
 }
 
@@ -269,18 +271,18 @@ pub fn design_text(r: &DesignResult) -> String {
         out.push('\n');
         let (ours, theirs) = (r.score.value(r.criterion), a.score.value(r.criterion));
         let verdict = match r.criterion {
-            super::Criterion::Information => {
+            Criterion::Information => {
                 format!(
                     "information {:.2} against {:.2} (higher is better)",
                     ours, theirs
                 )
             }
-            super::Criterion::Edge => format!(
+            Criterion::Edge => format!(
                 "root-mean-square standard deviation along the edges {} against {} (lower is better)",
                 u.dtemp_show(ours.sqrt()),
                 u.dtemp_show(theirs.sqrt())
             ),
-            super::Criterion::Worst => format!(
+            Criterion::Worst => format!(
                 "worst standard deviation {} against {} (lower is better)",
                 u.dtemp_show(ours),
                 u.dtemp_show(theirs)
@@ -301,7 +303,7 @@ pub fn design_text(r: &DesignResult) -> String {
 pub fn render_design_outputs(r: &DesignResult) -> Result<Vec<(&'static str, Vec<u8>)>> {
     let json = serde_json::to_string_pretty(&design_json(r))
         .map_err(|e| Error::Internal(format!("cannot format design.json: {e}")))?;
-    let svg = super::svg::design_svg(r)?;
+    let svg = svg::design_svg(r)?;
     Ok(vec![
         ("layout.csv", layout_csv(r).into_bytes()),
         ("design.json", format!("{json}\n").into_bytes()),

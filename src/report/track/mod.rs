@@ -1,11 +1,14 @@
-//! The text outputs of `track`, in the case's units: the `track.csv` header and rows,
-//! `alarms.csv`, `sensors-health.csv`, `summary.json` and the text summary. Pure functions:
-//! the binary writes them (rows through [`crate::io::StreamWriter`], the rest atomically).
+//! The outputs of `edgetherm track`, in the case's units: the `track.csv` header and rows,
+//! `alarms.csv`, `sensors-health.csv`, `summary.json` and the text summary (here), and
+//! `track.svg` ([`plot`]). Pure functions: the binary writes them (rows through
+//! [`crate::io::StreamWriter`], the rest atomically).
 
-use super::{RowRecord, RowStatus, TrackSummary};
+pub mod plot;
+
 use crate::case::Case;
 use crate::report::format::CaseUnits;
 use crate::report::format::{fixed, significant};
+use crate::track::{RowRecord, RowStatus, TrackSummary};
 use serde_json::{Value, json};
 use std::fmt::Write as _;
 
@@ -50,7 +53,7 @@ pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
                     .as_bytes(),
             );
             let _ = write!(out, ",{},", f.lambda);
-            if let Some(super::bounds::RowBound::Interval([lo, hi])) = rec.bound {
+            if let Some(crate::track::bounds::RowBound::Interval([lo, hi])) = rec.bound {
                 push_fixed(out, u.temp(lo), TEMP_DECIMALS);
                 out.push(b',');
                 push_fixed(out, u.temp(hi), TEMP_DECIMALS);
@@ -408,7 +411,7 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
     } else {
         let _ = writeln!(out, "Sensor problems:");
         for e in problems.iter().take(MAX_TEXT_LISTED) {
-            let kept = if e.problem == super::health::Problem::Doubtful {
+            let kept = if e.problem == crate::track::health::Problem::Doubtful {
                 ": reads high, kept because a hot spot under it would explain it as well as a \
                  fault; check the sensor"
                     .to_string()

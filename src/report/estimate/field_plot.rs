@@ -8,19 +8,19 @@
 //! [`CELL_PX`] pixels (coarse grids are not shown as coarse blocks, fine grids do not bloat
 //! the file); the isotherms are traced by marching squares on the same cells.
 
-use super::contour::{contour, length, levels};
-use super::draw::{
-    AXIS_PX, Anchor, Area, DrawResult, FAMILY, GREY, Glyph, INK, LEGEND_ROW_H, Marker,
-    PLOT_SAFETY_NOTE, TEXT_PX, TITLE_PX, TextOpts, dashed, font, label_box, legend, legend_rows,
-    line, marker, rect, rgb, sensor_label_width, sensor_marker, text,
-};
-use super::format::{CaseUnits, fixed, step_decimals, tick};
-use super::labels::{Placer, Rect, around_marker, bold_text_width, text_width};
-use super::palette::colour;
 use super::summary::percent;
 use crate::error::{Error, Result};
 use crate::estimate::EstimateResult;
 use crate::geometry::{Edge, EdgeCondition, Shape};
+use crate::report::contour::{contour, length, levels};
+use crate::report::draw::{
+    AXIS_PX, Anchor, Area, DrawResult, FAMILY, GREY, Glyph, INK, LEGEND_ROW_H, Marker,
+    PLOT_SAFETY_NOTE, TEXT_PX, TITLE_PX, TextOpts, dashed, font, label_box, legend, legend_rows,
+    line, marker, rect, rgb, sensor_label_width, sensor_marker, text,
+};
+use crate::report::format::{CaseUnits, fixed, step_decimals, tick};
+use crate::report::labels::{Placer, Rect, around_marker, bold_text_width, text_width};
+use crate::report::palette::colour;
 use plotters::prelude::*;
 
 /// Picture width, px.

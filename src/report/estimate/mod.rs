@@ -1,0 +1,85 @@
+//! The outputs of `edgetherm estimate` (`docs/case-files.md`), made from an
+//! [`EstimateResult`] and written in the case's units.
+//!
+//! | output | made by |
+//! |---|---|
+//! | `profile.csv`, `field.csv`, `sensors.csv` | `tables` (fixed precision, empty cells for missing values) |
+//! | `summary.json` and the `--json` output | [`summary_json`] |
+//! | the text summary on stdout | [`text_summary`] |
+//! | `profile.svg` | `profile_plot` (with `plotters`) |
+//! | `field.svg` | `field_plot`: colour map (`palette`), isotherms (`contour`) |
+//! | `report.html` | `html`, with both pictures inlined |
+//!
+//! The strict bounds, when the estimate has them, are rendered by `bounds` into each of
+//! these. Every output carries the safety caution [`SAFETY_CAUTION`]. Rendering happens in
+//! memory ([`render_outputs`]); [`write_outputs`] then writes each file atomically through
+//! [`crate::io::write_atomic`]. Nothing here prints.
+
+mod bounds;
+mod field_plot;
+mod html;
+mod profile_plot;
+mod summary;
+mod tables;
+
+pub use bounds::bounds_hottest_interval;
+pub use summary::{SAFETY_CAUTION, cautions, summary_json, text_summary};
+
+use crate::error::{Error, Result};
+use crate::estimate::EstimateResult;
+use crate::io::{OUTPUT_FILE_NAMES, create_output_dir, write_atomic};
+use std::path::{Path, PathBuf};
+
+/// One rendered output: its file name (one of [`OUTPUT_FILE_NAMES`]) and its bytes.
+#[derive(Debug, Clone)]
+pub struct Output {
+    /// File name inside the output directory.
+    pub name: &'static str,
+    /// The file's content.
+    pub bytes: Vec<u8>,
+}
+
+/// Render every output of `docs/case-files.md`, outputs in memory, in the order of [`OUTPUT_FILE_NAMES`].
+pub fn render_outputs(result: &EstimateResult) -> Result<Vec<Output>> {
+    let profile_svg = profile_plot::profile_svg(result)?;
+    let field_svg = field_plot::field_svg(result)?;
+    let json = serde_json::to_string_pretty(&summary_json(result))
+        .map_err(|e| Error::Internal(format!("cannot format summary.json: {e}")))?;
+    let html = html::report_html(result, &profile_svg, &field_svg);
+    let mut out = Vec::with_capacity(OUTPUT_FILE_NAMES.len());
+    for name in OUTPUT_FILE_NAMES {
+        let bytes = match name {
+            "profile.csv" => tables::profile_csv(result)?,
+            "field.csv" => tables::field_csv(result)?,
+            "sensors.csv" => tables::sensors_csv(result)?,
+            "summary.json" => format!("{json}\n").into_bytes(),
+            "profile.svg" => profile_svg.clone().into_bytes(),
+            "field.svg" => field_svg.clone().into_bytes(),
+            "report.html" => html.clone().into_bytes(),
+            other => {
+                return Err(Error::Internal(format!(
+                    "the report has no renderer for the output file {other}"
+                )));
+            }
+        };
+        out.push(Output { name, bytes });
+    }
+    Ok(out)
+}
+
+/// Render every output and write it into `out_dir` (created if needed), each file
+/// atomically. Returns the paths written, in the order of [`OUTPUT_FILE_NAMES`].
+///
+/// Nothing is written unless every output rendered. The caller must first check with
+/// [`crate::io::check_output_dir`] that no output would replace an input.
+pub fn write_outputs(result: &EstimateResult, out_dir: &Path) -> Result<Vec<PathBuf>> {
+    let outputs = render_outputs(result)?;
+    create_output_dir(out_dir)?;
+    let mut written = Vec::with_capacity(outputs.len());
+    for o in outputs {
+        let path = out_dir.join(o.name);
+        write_atomic(&path, &o.bytes)?;
+        written.push(path);
+    }
+    Ok(written)
+}
