@@ -64,6 +64,12 @@ impl Smoothing {
         }
     }
 
+    /// The smoothing of a penalty order as reported: `size`, `slope` or `curvature` (an
+    /// order beyond 2 does not occur; it reads as curvature).
+    pub fn of_penalty_order(order: usize) -> Self {
+        Self::of_order(order).unwrap_or(Smoothing::Curvature)
+    }
+
     /// The word used in plate files.
     pub fn name(self) -> &'static str {
         match self {
@@ -72,6 +78,12 @@ impl Smoothing {
             Smoothing::Curvature => "curvature",
             Smoothing::Auto => "auto",
         }
+    }
+}
+
+impl std::fmt::Display for Smoothing {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
     }
 }
 
@@ -249,6 +261,50 @@ pub enum CandidateSource {
     File(PathBuf),
 }
 
+/// The design criteria (`docs/design.md`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Criterion {
+    /// D-optimal: the most information about all the coefficients.
+    Information,
+    /// A-optimal on the edges: the smallest mean posterior variance along them (default).
+    Edge,
+    /// The smallest largest posterior standard deviation along the edges.
+    Worst,
+}
+
+impl Criterion {
+    /// Parse the word used in files and flags.
+    pub fn parse(s: &str) -> Option<Criterion> {
+        match s.trim() {
+            "information" => Some(Criterion::Information),
+            "edge" => Some(Criterion::Edge),
+            "worst" => Some(Criterion::Worst),
+            _ => None,
+        }
+    }
+
+    /// The word used in files and flags.
+    pub fn name(self) -> &'static str {
+        match self {
+            Criterion::Information => "information",
+            Criterion::Edge => "edge",
+            Criterion::Worst => "worst",
+        }
+    }
+
+    /// What it measures, for people.
+    pub fn describe(self) -> &'static str {
+        match self {
+            Criterion::Information => "D-optimal: most information about the hidden edges",
+            Criterion::Edge => "A-optimal: smallest mean posterior variance along the hidden edges",
+            Criterion::Worst => {
+                "smallest worst-case posterior standard deviation along the hidden edges"
+            }
+        }
+    }
+}
+
 /// The `[design]` settings (`docs/design.md`), validated and in SI units.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct DesignSettings {
@@ -273,8 +329,8 @@ pub struct DesignSettings {
     /// The smoothing order of the prior; `None` uses `[fit] smoothing` when it names an
     /// order, else curvature.
     pub smoothing: Option<Smoothing>,
-    /// The criterion word (`information`, `edge`, `worst`), checked; `None` for the default.
-    pub criterion: Option<String>,
+    /// The criterion; `None` for the default.
+    pub criterion: Option<Criterion>,
     /// The 1-based line of each `[design]` key given, for messages (`design.allowed`, ...).
     pub lines: Vec<(String, usize)>,
 }

@@ -46,49 +46,9 @@ use nalgebra::{DMatrix, DVector};
 use serde::Serialize;
 use statrs::distribution::{ContinuousCDF, Normal};
 
-/// The design criteria (`docs/design.md`).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "lowercase")]
-pub enum Criterion {
-    /// D-optimal: the most information about all the coefficients.
-    Information,
-    /// A-optimal on the edges: the smallest mean posterior variance along them (default).
-    Edge,
-    /// The smallest largest posterior standard deviation along the edges.
-    Worst,
-}
+pub use crate::case::Criterion;
 
 impl Criterion {
-    /// Parse the word used in files and flags.
-    pub fn parse(s: &str) -> Option<Criterion> {
-        match s.trim() {
-            "information" => Some(Criterion::Information),
-            "edge" => Some(Criterion::Edge),
-            "worst" => Some(Criterion::Worst),
-            _ => None,
-        }
-    }
-
-    /// The word used in files and flags.
-    pub fn name(self) -> &'static str {
-        match self {
-            Criterion::Information => "information",
-            Criterion::Edge => "edge",
-            Criterion::Worst => "worst",
-        }
-    }
-
-    /// What it measures, for people.
-    pub fn describe(self) -> &'static str {
-        match self {
-            Criterion::Information => "D-optimal: most information about the hidden edges",
-            Criterion::Edge => "A-optimal: smallest mean posterior variance along the hidden edges",
-            Criterion::Worst => {
-                "smallest worst-case posterior standard deviation along the hidden edges"
-            }
-        }
-    }
-
     fn goal(self) -> Goal {
         match self {
             Criterion::Information => Goal::Information,
@@ -335,11 +295,7 @@ impl DesignSpace {
                 ));
             }
         };
-        let criterion = match (criterion, ds.criterion.as_deref()) {
-            (Some(c), _) => c,
-            (None, Some(w)) => Criterion::parse(w).unwrap_or(DEFAULT_CRITERION),
-            (None, None) => DEFAULT_CRITERION,
-        };
+        let criterion = criterion.or(ds.criterion).unwrap_or(DEFAULT_CRITERION);
         let order = ds
             .smoothing
             .and_then(|s| s.order())
@@ -738,7 +694,7 @@ impl DesignSpace {
             u.temperature,
             u.dtemp_from_k(self.prior.variation_k),
             u.temperature,
-            crate::case::Smoothing::of_order(self.prior.order).map_or("curvature", |s| s.name()),
+            crate::case::Smoothing::of_penalty_order(self.prior.order).name(),
         ));
         for v in self.violations(&layout) {
             let whose = if search.is_some() {

@@ -15,7 +15,7 @@ use crate::bounds::BoundsResult;
 use crate::case::{Case, Smoothing};
 use crate::error::Result;
 use crate::geometry::Edge;
-use crate::inverse::Strength;
+use crate::noise::SigmaSource;
 use crate::uncertainty::{pointwise_band, quantile, simultaneous_band};
 use nalgebra::DMatrix;
 use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
@@ -72,7 +72,7 @@ pub(super) fn assemble(
         fit: fit_summary,
         confidence,
         replicates: resampled.replicates,
-        bootstrap_mode: resampled.mode.name().to_string(),
+        bootstrap_mode: resampled.mode,
         seed: resampled.seed,
         bounds,
         cautions,
@@ -254,7 +254,7 @@ fn fit_summary(problem: &Problem<'_>, fitted: &Fitted) -> FitSummary {
     let sigma_rms = (sig_used.iter().map(|s| s * s).sum::<f64>() / sig_used.len() as f64).sqrt();
     FitSummary {
         sigma: sigma_rms,
-        sigma_source: problem.sigma_source.name().to_string(),
+        sigma_source: problem.sigma_source,
         chi_square: chi2,
         dof,
         p_value,
@@ -266,16 +266,11 @@ fn fit_summary(problem: &Problem<'_>, fitted: &Fitted) -> FitSummary {
 fn strength_summary(problem: &Problem<'_>, fitted: &Fitted) -> StrengthSummary {
     let fit = &fitted.fit;
     StrengthSummary {
-        method: match problem.strength {
-            Strength::Fixed(_) => "fixed".to_string(),
-            Strength::Rule(m) => m.name().to_string(),
-        },
+        method: problem.strength,
         value: fit.selection.lambda,
         effective_parameters: fit.solution.effective_parameters,
         at_range_end: fit.selection.at_grid_end,
-        smoothing: Smoothing::of_order(problem.order)
-            .map_or("curvature", Smoothing::name)
-            .to_string(),
+        smoothing: Smoothing::of_penalty_order(problem.order),
         smoothing_auto: problem.case.fit.smoothing == Smoothing::Auto,
     }
 }
@@ -383,7 +378,7 @@ fn cautions(
             significant3(u.length_from_m(e.resolution_length))
         ));
     }
-    if summary.sigma_source == "estimated" {
+    if summary.sigma_source == SigmaSource::Estimated {
         out.push(format!(
             "No reading uncertainty was stated: it was estimated from the residuals as {} \
              {tu}, with {:.1} degrees of freedom. State [noise] sigma for firmer intervals.",

@@ -4,7 +4,11 @@
 //! says how the report converts them back to the case's units. Intervals are at
 //! [`EstimateResult::confidence`].
 
+use crate::case::Smoothing;
 use crate::geometry::{Edge, Plate, Point};
+use crate::inverse::Strength;
+use crate::noise::SigmaSource;
+use crate::uncertainty::BootstrapMode;
 use crate::units::Units;
 use serde::Serialize;
 
@@ -155,16 +159,16 @@ pub struct Exceedance {
 /// How the strength was chosen.
 #[derive(Debug, Clone, Serialize)]
 pub struct StrengthSummary {
-    /// The rule (`gcv`, `discrepancy`, `evidence`, `lcurve`, `fixed`).
-    pub method: String,
+    /// The rule, or a fixed strength.
+    pub method: Strength,
     /// The chosen strength.
     pub value: f64,
     /// Effective number of parameters (trace of the influence matrix).
     pub effective_parameters: f64,
     /// Whether the rule's optimum sat at the end of the search range.
     pub at_range_end: bool,
-    /// The smoothing used (`size`, `slope`, `curvature`), after `auto` chose.
-    pub smoothing: String,
+    /// The smoothing used (size, slope or curvature), after `auto` chose.
+    pub smoothing: Smoothing,
     /// Whether the smoothing was chosen by `auto`.
     pub smoothing_auto: bool,
 }
@@ -175,8 +179,8 @@ pub struct FitSummary {
     /// Representative reading uncertainty (the root-mean-square of the sensors' sigmas),
     /// kelvin.
     pub sigma: f64,
-    /// Where sigma came from: `stated`, `sensors`, `tolerance-class`, `estimated`.
-    pub sigma_source: String,
+    /// Where sigma came from.
+    pub sigma_source: SigmaSource,
     /// Weighted residual sum of squares.
     pub chi_square: f64,
     /// Residual degrees of freedom (readings used minus effective parameters).
@@ -215,7 +219,7 @@ pub struct EstimateResult {
     /// Bootstrap replicates.
     pub replicates: usize,
     /// Bootstrap mode (`residual` or `parametric`).
-    pub bootstrap_mode: String,
+    pub bootstrap_mode: BootstrapMode,
     /// Seed of the bootstrap.
     pub seed: u64,
     /// Strict bounds under a gradient limit and the gradient study

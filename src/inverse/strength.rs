@@ -122,6 +122,29 @@ pub enum Strength {
     Rule(StrengthMethod),
 }
 
+impl Strength {
+    /// The rule's name (`gcv`, `discrepancy`, `evidence`, `lcurve`), or `fixed`.
+    pub fn name(self) -> &'static str {
+        match self {
+            Strength::Fixed(_) => "fixed",
+            Strength::Rule(m) => m.name(),
+        }
+    }
+}
+
+impl std::fmt::Display for Strength {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
+/// Serialised as its name (a fixed value is reported beside it).
+impl Serialize for Strength {
+    fn serialize<S: serde::Serializer>(&self, s: S) -> std::result::Result<S::Ok, S::Error> {
+        s.serialize_str(self.name())
+    }
+}
+
 /// Which marginal likelihood the evidence rule maximises (see the module doc).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 pub enum EvidenceKind {

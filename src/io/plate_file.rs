@@ -6,8 +6,8 @@
 //! found through [`TomlSpans`].
 
 use crate::case::{
-    BoundsSettings, CandidateSource, DesignSettings, FitSettings, Region, Smoothing, StrengthRule,
-    UncertaintySettings,
+    BoundsSettings, CandidateSource, Criterion, DesignSettings, FitSettings, Region, Smoothing,
+    StrengthRule, UncertaintySettings,
 };
 use crate::error::{Error, Result};
 use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Shape};
@@ -140,9 +140,6 @@ struct RawRegion {
     x: [f64; 2],
     y: [f64; 2],
 }
-
-/// The criteria `[design] criterion` accepts.
-pub(crate) const DESIGN_CRITERIA: [&str; 3] = ["information", "edge", "worst"];
 
 /// A value that may be a number or a word (`height = "infinite"`, `strength = "gcv"`).
 #[derive(Debug, Clone, PartialEq)]
@@ -654,14 +651,15 @@ impl Checker<'_> {
                  exists; use size, slope or curvature (curvature is the usual choice)",
             ));
         }
-        if let Some(c) = &raw.criterion {
-            if !DESIGN_CRITERIA.contains(&c.as_str()) {
-                return Err(self.err(
+        let criterion = match &raw.criterion {
+            None => None,
+            Some(c) => Some(Criterion::parse(c).ok_or_else(|| {
+                self.err(
                     "design.criterion",
                     format!("unknown criterion `{c}`; use information, edge or worst"),
-                ));
-            }
-        }
+                )
+            })?),
+        };
         let lines = self.design_lines();
         Ok(DesignSettings {
             present: true,
@@ -673,7 +671,7 @@ impl Checker<'_> {
             noise_k,
             variation_k,
             smoothing: raw.smoothing,
-            criterion: raw.criterion,
+            criterion,
             lines,
         })
     }
@@ -1070,7 +1068,7 @@ sigma = 0.5
         assert_eq!(d.noise_k, Some(0.2));
         assert_eq!(d.variation_k, Some(5.0));
         assert_eq!(d.smoothing, Some(Smoothing::Slope));
-        assert_eq!(d.criterion.as_deref(), Some("worst"));
+        assert_eq!(d.criterion, Some(Criterion::Worst));
         assert_eq!(d.line_of("design.variation"), Some(32));
         assert_eq!(d.line_of("design"), Some(25));
     }

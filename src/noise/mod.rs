@@ -137,6 +137,12 @@ impl SigmaSource {
     }
 }
 
+impl std::fmt::Display for SigmaSource {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
 /// The standard uncertainty of each reading, kelvin, and where it came from.
 ///
 /// `own` holds each sensor's `sigma` column (kelvin) and `readings_k` the readings (kelvin),

@@ -528,7 +528,7 @@ impl Tracker {
         }
         let rule = match strength {
             RowStrength::Fixed { order, lambda, .. } if !self.fit.refitted => {
-                case.fit.smoothing = Smoothing::of_order(order).unwrap_or(Smoothing::Curvature);
+                case.fit.smoothing = Smoothing::of_penalty_order(order);
                 Some(StrengthRule::Fixed(lambda))
             }
             _ => self.options.strength,
@@ -567,18 +567,18 @@ impl Tracker {
 
     /// A snapshot of everything but the rows: for the summary files.
     pub fn snapshot(&self) -> TrackSummary {
-        let (strength_mode, order, lambda) = match self.mode {
+        let (strength_mode, smoothing, lambda) = match self.mode {
             Mode::Ready(RowStrength::Fixed { order, lambda, .. }) => (
                 if self.options.calibrate.is_some() {
-                    "calibrated"
+                    StrengthMode::Calibrated
                 } else {
-                    "fixed"
+                    StrengthMode::Fixed
                 },
-                Some(order),
+                Some(Smoothing::of_penalty_order(order)),
                 Some(lambda),
             ),
-            Mode::Ready(RowStrength::PerRow(_)) => ("per-row", None, None),
-            Mode::Calibrating { .. } => ("calibrating", None, None),
+            Mode::Ready(RowStrength::PerRow(_)) => (StrengthMode::PerRow, None, None),
+            Mode::Calibrating { .. } => (StrengthMode::Calibrating, None, None),
         };
         let mut cautions = vec![SAFETY_CAUTION.to_string()];
         cautions.push(
@@ -604,7 +604,7 @@ impl Tracker {
             first_time: self.first_time.clone(),
             last_time: self.last_time.clone(),
             strength_mode,
-            order,
+            smoothing,
             lambda,
             limit: self.options.limit,
             probability: self.options.probability,
@@ -689,6 +689,37 @@ pub fn calibrated(choices: &[(usize, f64)], smoothing: Smoothing) -> Option<(usi
     Some((order, med.exp()))
 }
 
+/// How the smoothing strength of a log is set.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum StrengthMode {
+    /// Chosen by the case's rule on every row.
+    PerRow,
+    /// Chosen once on the first rows (`--calibrate`), then fixed.
+    Calibrated,
+    /// Fixed by the case or the command line.
+    Fixed,
+    /// Still collecting the calibration rows (the log ended first).
+    Calibrating,
+}
+
+impl StrengthMode {
+    /// The word used in summaries.
+    pub fn name(self) -> &'static str {
+        match self {
+            StrengthMode::PerRow => "per-row",
+            StrengthMode::Calibrated => "calibrated",
+            StrengthMode::Fixed => "fixed",
+            StrengthMode::Calibrating => "calibrating",
+        }
+    }
+}
+
+impl std::fmt::Display for StrengthMode {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
 /// Everything the summary files report.
 #[derive(Debug, Clone)]
 pub struct TrackSummary {
@@ -698,10 +729,10 @@ pub struct TrackSummary {
     pub first_time: Option<String>,
     /// Time of the last row processed.
     pub last_time: Option<String>,
-    /// `per-row`, `calibrated` or `fixed`.
-    pub strength_mode: &'static str,
-    /// Fixed order, when fixed.
-    pub order: Option<usize>,
+    /// How the strength was set.
+    pub strength_mode: StrengthMode,
+    /// The smoothing, when fixed.
+    pub smoothing: Option<Smoothing>,
     /// Fixed λ, when fixed.
     pub lambda: Option<f64>,
     /// Limit, kelvin.

@@ -64,6 +64,12 @@ impl BootstrapMode {
     }
 }
 
+impl std::fmt::Display for BootstrapMode {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
 /// The temperature change (kelvin) of each reading when the sensors move by the given
 /// displacements `(dx, dy)` (metres), one per reading.
 pub type PositionShift<'a> = &'a (dyn Fn(&[(f64, f64)]) -> Vec<f64> + Sync);

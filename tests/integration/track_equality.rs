@@ -73,7 +73,7 @@ fn compare(case: &Case, strength_rule: Option<StrengthRule>, row_strength: RowSt
         let e = &r.edges[0];
         // same smoothing order and strength
         assert_eq!(
-            Smoothing::of_order(fit.order).unwrap().name(),
+            Smoothing::of_order(fit.order).unwrap(),
             r.strength.smoothing,
             "row {k}"
         );

@@ -113,7 +113,7 @@ pub fn design_json(r: &DesignResult) -> Value {
         })),
         "prior": {
             "variation": u.dtemp_json(r.prior.variation_k),
-            "smoothing": crate::case::Smoothing::of_order(r.prior.order).map_or("curvature", |s| s.name()),
+            "smoothing": crate::case::Smoothing::of_penalty_order(r.prior.order).name(),
             "tau": significant(u.dtemp(r.prior.tau_k), 6),
             "unpenalised_sd": u.dtemp_json(r.prior.unpenalised_sd_k),
             "equivalent_strength": significant(r.prior.equivalent_strength, 6),

@@ -168,7 +168,7 @@ fn draw(
         "expected variation of the hidden profile {} ({} prior)  ·  reading noise {}  ·  {} \
          candidates",
         u.dtemp_show(r.prior.variation_k),
-        crate::case::Smoothing::of_order(r.prior.order).map_or("curvature", |s| s.name()),
+        crate::case::Smoothing::of_penalty_order(r.prior.order).name(),
         u.dtemp_show(r.noise_k),
         r.candidate_count,
     );

@@ -124,7 +124,7 @@ fn head_html(o: &mut String, r: &EstimateResult) {
          replicates &middot; seed {}</p>",
         esc(env!("CARGO_PKG_VERSION")),
         r.replicates,
-        esc(&r.bootstrap_mode),
+        esc(r.bootstrap_mode.name()),
         r.seed
     );
 }
@@ -202,7 +202,7 @@ fn cards_html(o: &mut String, r: &EstimateResult) {
         fixed(r.fit.dof, 1),
         esc(&p),
         esc(&significant_text(r.strength.value, 3)),
-        esc(&r.strength.method),
+        esc(r.strength.method.name()),
         fixed(r.strength.effective_parameters, 1)
     );
     o.push_str("</div>\n");
@@ -240,12 +240,12 @@ fn fit_table_html(o: &mut String, r: &EstimateResult) {
     let p = p_value_text(r);
     o.push_str("<h2>Fit</h2>\n<table class=\"kv\">\n");
     let fit_rows = [
-        ("strength rule".to_string(), esc(&r.strength.method)),
+        ("strength rule".to_string(), esc(r.strength.method.name())),
         (
             "smoothing".to_string(),
             format!(
                 "{}{}",
-                esc(&r.strength.smoothing),
+                esc(r.strength.smoothing.name()),
                 if r.strength.smoothing_auto {
                     " (chosen by evidence)"
                 } else {
@@ -277,7 +277,7 @@ fn fit_table_html(o: &mut String, r: &EstimateResult) {
             format!(
                 "{} ({})",
                 esc(&u.dtemp_show(r.fit.sigma)),
-                esc(&r.fit.sigma_source)
+                esc(r.fit.sigma_source.name())
             ),
         ),
         (
@@ -488,7 +488,7 @@ fn case_html(o: &mut String, r: &EstimateResult) {
         format!(
             "{conf} confidence, {} bootstrap replicates ({}), seed {}",
             r.replicates,
-            esc(&r.bootstrap_mode),
+            esc(r.bootstrap_mode.name()),
             r.seed
         ),
     ));

@@ -48,8 +48,8 @@ pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
             push_u64(out, f.used.len() as u64, 0);
             out.push(b',');
             out.extend_from_slice(
-                crate::case::Smoothing::of_order(f.order)
-                    .map_or("", |s| s.name())
+                crate::case::Smoothing::of_penalty_order(f.order)
+                    .name()
                     .as_bytes(),
             );
             let _ = write!(out, ",{},", f.lambda);
@@ -266,8 +266,8 @@ pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
         "last_time": s.last_time,
         "hottest": hottest,
         "strength": {
-            "mode": s.strength_mode,
-            "smoothing": s.order.and_then(crate::case::Smoothing::of_order).map(|x| x.name()),
+            "mode": s.strength_mode.name(),
+            "smoothing": s.smoothing.map(|x| x.name()),
             "value": s.lambda,
         },
         "alarm": s.limit.map(|l| json!({
@@ -318,9 +318,7 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
                 out,
                 "Smoothing {} with strength {l:.3e} ({m}); {} rows that it did not fit were \
                  refitted with the case's rule.",
-                s.order
-                    .and_then(crate::case::Smoothing::of_order)
-                    .map_or("?", |x| x.name()),
+                s.smoothing.map_or("?", |x| x.name()),
                 s.counts.refitted
             );
         }
