@@ -33,18 +33,14 @@ pub(super) fn assemble(
     let boot = &resampled.output;
     let confidence = case.uncertainty.confidence;
     let prof_est = profile_estimate(&maps, &fitted);
-    let (edges, hottest) = edge_results(problem, &fitted, &maps, &resampled, &prof_est)?;
+    // the profiles' errors in every replicate: the bands, the hottest point and the
+    // exceedance all read them
+    let prof_err = boot.errors_of(&maps.profile);
+    let (edges, hottest) = edge_results(problem, &fitted, &maps, &resampled, &prof_est, &prof_err)?;
     let field = field_result(&fitted, &maps, boot, confidence);
-    let exceedance = options.limit.map(|limit| {
-        exceedance(
-            &prof_est,
-            &fitted,
-            boot,
-            resampled.replicates,
-            limit,
-            options,
-        )
-    });
+    let exceedance = options
+        .limit
+        .map(|limit| exceedance(&prof_est, &prof_err, &fitted, limit, options));
     let sensors = sensor_results(problem, &fitted)?;
     let fit_summary = fit_summary(problem, &fitted);
     let strength_summary = strength_summary(problem, &fitted);
@@ -87,6 +83,7 @@ fn edge_results(
     maps: &OutputMaps,
     resampled: &Resampled,
     prof_est: &[f64],
+    prof_err: &DMatrix<f64>,
 ) -> Result<(Vec<EdgeResult>, Hottest)> {
     let case = problem.case;
     let boot = &resampled.output;
@@ -95,16 +92,11 @@ fn edge_results(
     let confidence = case.uncertainty.confidence;
     let z = Normal::standard().inverse_cdf(0.5 + confidence / 2.0);
     let n_prof = profile_points(case.fit.terms);
-    let (p_lo, p_hi) = pointwise_band(prof_est, &boot.errors[0], confidence);
-    let (s_lo, s_hi) = simultaneous_band(prof_est, &boot.errors[0], confidence);
+    let (p_lo, p_hi) = pointwise_band(prof_est, prof_err, confidence);
+    let (s_lo, s_hi) = simultaneous_band(prof_est, prof_err, confidence);
+    let heat_err = maps.heat.as_ref().map(|(m, _)| boot.errors_of(m));
     let prof_sd = linear_sd(&maps.profile, &fitted.fit.solution.covariance);
-    let mut hottest = hottest_point(
-        &problem.edge_positions,
-        prof_est,
-        &p_lo,
-        &p_hi,
-        &boot.errors[0],
-    );
+    let mut hottest = hottest_point(&problem.edge_positions, prof_est, &p_lo, &p_hi, prof_err);
     // A sensor kept under two explanations: the hotter one bounds the hottest temperature.
     for d in &fitted.doubts {
         hottest.temperature_interval[1] = hottest.temperature_interval[1].max(d.peak_temperature);
@@ -119,19 +111,21 @@ fn edge_results(
     let mut edges = Vec::new();
     for (k, (edge, pos)) in problem.edge_positions.iter().enumerate() {
         let r = k * n_prof..(k + 1) * n_prof;
-        let heat_flow = maps.heat.as_ref().map(|(m, off)| {
-            let est = (m.row(k) * c_hat)[0] + off[k];
-            let mut draws: Vec<f64> = (0..replicates)
-                .map(|b| est - boot.errors[2][(b, k)])
-                .collect();
-            let lo = quantile(&mut draws, (1.0 - confidence) / 2.0);
-            let hi = quantile(&mut draws, (1.0 + confidence) / 2.0);
-            Interval {
-                value: est,
-                lower: lo,
-                upper: hi,
-            }
-        });
+        let heat_flow = maps
+            .heat
+            .as_ref()
+            .zip(heat_err.as_ref())
+            .map(|((m, off), err)| {
+                let est = (m.row(k) * c_hat)[0] + off[k];
+                let mut draws: Vec<f64> = (0..replicates).map(|b| est - err[(b, k)]).collect();
+                let lo = quantile(&mut draws, (1.0 - confidence) / 2.0);
+                let hi = quantile(&mut draws, (1.0 + confidence) / 2.0);
+                Interval {
+                    value: est,
+                    lower: lo,
+                    upper: hi,
+                }
+            });
         edges.push(EdgeResult {
             edge: *edge,
             positions: pos.clone(),
@@ -172,7 +166,7 @@ fn field_result(
         .zip(maps.field.offset.iter())
         .map(|(a, b)| a + b)
         .collect();
-    let (f_lo, f_hi) = pointwise_band(&field_est, &boot.errors[1], confidence);
+    let (f_lo, f_hi) = boot.pointwise_band_of(&maps.field.matrix, &field_est, confidence);
     FieldResult {
         xs: maps.xs.clone(),
         ys: maps.ys.clone(),
@@ -187,14 +181,14 @@ fn field_result(
 /// sensor crossing the limit raises the alarm too.
 fn exceedance(
     prof_est: &[f64],
+    prof_err: &DMatrix<f64>,
     fitted: &Fitted,
-    boot: &crate::uncertainty::BootstrapOutput,
-    replicates: usize,
     limit: f64,
     options: &EstimateOptions,
 ) -> Exceedance {
+    let replicates = prof_err.nrows();
     let over = (0..replicates)
-        .filter(|&b| replicate_max(prof_est, &boot.errors[0], b) > limit)
+        .filter(|&b| replicate_max(prof_est, prof_err, b) > limit)
         .count();
     let probability = over as f64 / replicates as f64;
     Exceedance {

@@ -145,7 +145,7 @@ pub fn estimate(
         )
     });
     let maps = OutputMaps::new(&problem, options.grid)?;
-    let resampled = outputs::resample(&problem, &fitted, &maps, options, progress)?;
+    let resampled = outputs::resample(&problem, &fitted, options, progress)?;
     assemble::assemble(&problem, fitted, maps, resampled, bounds, options)
 }
 

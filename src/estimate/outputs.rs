@@ -59,19 +59,18 @@ impl OutputMaps {
 
 /// The bootstrap of an estimate and the settings it ran with.
 pub(super) struct Resampled {
-    /// Errors per replicate: `[profiles, field, heat flows (when given)]`.
+    /// The replicates' estimation errors.
     pub output: BootstrapOutput,
     pub replicates: usize,
     pub seed: u64,
     pub mode: BootstrapMode,
 }
 
-/// Run the bootstrap of the fit's estimation error for every output map, with the strength
+/// Run the bootstrap of the fit's estimation error (in the coefficients), with the strength
 /// re-chosen in each replicate and, when positions are uncertain, the sensors moved.
 pub(super) fn resample(
     problem: &Problem<'_>,
     fitted: &Fitted,
-    maps: &OutputMaps,
     options: &EstimateOptions,
     progress: Option<&(dyn Fn(usize) + Sync)>,
 ) -> Result<Resampled> {
@@ -116,10 +115,6 @@ pub(super) fn resample(
             .collect()
     };
     let has_jitter = jitter_sd.iter().any(|&s| s > 0.0);
-    let mut outputs: Vec<&DMatrix<f64>> = vec![&maps.profile, &maps.field.matrix];
-    if let Some((h, _)) = &maps.heat {
-        outputs.push(h);
-    }
     let output = bootstrap(&BootstrapInput {
         fit: &fitted.fit,
         strength: problem.strength,
@@ -130,7 +125,6 @@ pub(super) fn resample(
             jitter_sd.as_slice(),
             &shift as &(dyn Fn(&[(f64, f64)]) -> Vec<f64> + Sync),
         )),
-        outputs: &outputs,
         center_on_estimate: false,
         replicates,
         seed,

@@ -89,8 +89,6 @@ pub struct BootstrapInput<'a> {
     /// Optional position jitter: standard deviation per reading (metres) and a function
     /// giving the readings' temperature change for displacements `(dx, dy)` per reading.
     pub jitter: Option<(&'a [f64], PositionShift<'a>)>,
-    /// The linear maps `Q_k` (n_k × p) of the quantities to draw.
-    pub outputs: &'a [&'a DMatrix<f64>],
     /// Centre the replicate truths on the estimate (`true`) or on the prior mean (`false`).
     pub center_on_estimate: bool,
     /// Number of replicates.
@@ -101,11 +99,13 @@ pub struct BootstrapInput<'a> {
     pub progress: Option<&'a (dyn Fn(usize) + Sync)>,
 }
 
-/// The estimation errors of every replicate.
+/// The estimation errors of every replicate, in the coefficients; the errors of any linear
+/// quantity follow from them ([`BootstrapOutput::errors_of`],
+/// [`BootstrapOutput::pointwise_band_of`]).
 #[derive(Debug, Clone)]
 pub struct BootstrapOutput {
-    /// Per output `k`: `B × n_k`, row `b` is `Q_k ε_b`.
-    pub errors: Vec<DMatrix<f64>>,
+    /// `B × p`: row `b` is `ε_b = ĉ_b − c_b`.
+    pub coefficient_errors: DMatrix<f64>,
     /// The strength chosen in each replicate.
     pub lambdas: Vec<f64>,
     /// Replicates where the rule failed and the case's own strength was used instead.
@@ -163,7 +163,7 @@ pub fn bootstrap(input: &BootstrapInput<'_>) -> Result<BootstrapOutput> {
         c_hat: DVector<f64>,
         d: DVector<f64>,
     }
-    let per_replicate: Vec<(Vec<DVector<f64>>, f64, bool)> = (0..input.replicates)
+    let per_replicate: Vec<(DVector<f64>, f64, bool)> = (0..input.replicates)
         .into_par_iter()
         .map_init(
             || Scratch {
@@ -229,36 +229,70 @@ pub fn bootstrap(input: &BootstrapInput<'_>) -> Result<BootstrapOutput> {
                     s.c_hat.copy_from(&s.c_true);
                 }
                 let err = &s.c_hat - &s.c_true;
-                let outs = input.outputs.iter().map(|q| *q * &err).collect();
                 if let Some(cb) = input.progress {
                     let n = done.fetch_add(1, std::sync::atomic::Ordering::Relaxed) + 1;
                     cb(n);
                 }
-                (outs, lam_b, fallback)
+                (err, lam_b, fallback)
             },
         )
         .collect();
 
     let b_count = input.replicates;
-    let mut errors: Vec<DMatrix<f64>> = input
-        .outputs
-        .iter()
-        .map(|q| DMatrix::zeros(b_count, q.nrows()))
-        .collect();
+    let mut coefficient_errors = DMatrix::zeros(b_count, p);
     let mut lambdas = Vec::with_capacity(b_count);
     let mut fallbacks = 0;
-    for (b, (outs, lam, fb)) in per_replicate.into_iter().enumerate() {
-        for (k, v) in outs.iter().enumerate() {
-            errors[k].row_mut(b).copy_from(&v.transpose());
-        }
+    for (b, (err, lam, fb)) in per_replicate.into_iter().enumerate() {
+        coefficient_errors.row_mut(b).tr_copy_from(&err);
         lambdas.push(lam);
         fallbacks += usize::from(fb);
     }
     Ok(BootstrapOutput {
-        errors,
+        coefficient_errors,
         lambdas,
         fallbacks,
     })
+}
+
+/// Points per block of [`BootstrapOutput::pointwise_band_of`]: the errors of one block
+/// (`B × BAND_BLOCK`) are formed, read and dropped, so memory does not grow with the grid.
+const BAND_BLOCK: usize = 64;
+
+impl BootstrapOutput {
+    /// The errors `Q ε_b` of the linear quantity `Q c` (`Q` is n × p): `B × n`, row `b` for
+    /// replicate `b` (one matrix product).
+    pub fn errors_of(&self, q: &DMatrix<f64>) -> DMatrix<f64> {
+        &self.coefficient_errors * q.transpose()
+    }
+
+    /// The pointwise band ([`pointwise_band`]) of the quantity `Q c` whose estimate is
+    /// `estimate`, formed block by block of points in parallel without holding every
+    /// replicate's error at every point: the same numbers as
+    /// `pointwise_band(estimate, &self.errors_of(q), confidence)`.
+    pub fn pointwise_band_of(
+        &self,
+        q: &DMatrix<f64>,
+        estimate: &[f64],
+        confidence: f64,
+    ) -> (Vec<f64>, Vec<f64>) {
+        let n = q.nrows();
+        let starts: Vec<usize> = (0..n).step_by(BAND_BLOCK).collect();
+        let blocks: Vec<(Vec<f64>, Vec<f64>)> = starts
+            .into_par_iter()
+            .map(|start| {
+                let len = BAND_BLOCK.min(n - start);
+                let errors = &self.coefficient_errors * q.rows(start, len).transpose();
+                pointwise_band(&estimate[start..start + len], &errors, confidence)
+            })
+            .collect();
+        let mut lower = Vec::with_capacity(n);
+        let mut upper = Vec::with_capacity(n);
+        for (lo, hi) in blocks {
+            lower.extend(lo);
+            upper.extend(hi);
+        }
+        (lower, upper)
+    }
 }
 
 /// The `q`-quantile of `values` (linear interpolation between order statistics, the
