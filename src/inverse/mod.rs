@@ -59,7 +59,9 @@ pub mod fit;
 pub mod strength;
 pub mod tikhonov;
 
-pub use strength::{EvidenceKind, SelectOptions, Selection, Strength, StrengthMethod};
+pub use strength::{
+    EvidenceKind, SelectOptions, Selection, Strength, StrengthGrid, StrengthMethod,
+};
 pub use tikhonov::{Decomposition, Projection, Solution};
 
 use crate::error::{Error, Result};

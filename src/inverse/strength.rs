@@ -292,6 +292,107 @@ impl Spectrum<'_> {
     }
 }
 
+/// The data-independent parts of the strength criteria on the λ grid of one decomposition:
+/// for every grid point `λ_k` the factors `h_ki = λ_k/(g_i² + λ_k)`, the evidence's
+/// log-determinant and `tr(I − H)`. The criteria then cost `O(r)` multiply-adds per grid
+/// point and no logarithm (the profiled evidence keeps one), so a search repeated for many
+/// data vectors on the same decomposition (the bootstrap's replicates, a logger pattern's
+/// rows) builds this once. Every value is computed with the same operations, in the same
+/// order, as [`Spectrum`]'s direct evaluation, so the criterion is the same number.
+#[derive(Debug, Clone)]
+pub struct StrengthGrid {
+    /// log10 λ of the grid points.
+    xs: Vec<f64>,
+    /// λ of the grid points.
+    lambdas: Vec<f64>,
+    /// Number of singular values.
+    r: usize,
+    /// `h_ki`, row k for grid point k.
+    h: Vec<f64>,
+    /// Σ_i (ln(g_i² + λ_k) − ln λ_k), accumulated as [`Spectrum::evidence`] does.
+    logdet: Vec<f64>,
+    /// tr(I − H) at λ_k.
+    trace_residual: Vec<f64>,
+}
+
+impl StrengthGrid {
+    fn new(dec: &Decomposition, opts: &SelectOptions) -> Option<Self> {
+        let xs = dec.lambda_grid(opts)?;
+        let lambdas: Vec<f64> = xs.iter().map(|x| 10f64.powf(*x)).collect();
+        let g = dec.g.as_slice();
+        let r = g.len();
+        let spec = Spectrum {
+            g,
+            beta: &[],
+            delta0: 0.0,
+            m: dec.m,
+            q: dec.q,
+        };
+        let mut h = Vec::with_capacity(lambdas.len() * r);
+        let mut logdet = Vec::with_capacity(lambdas.len());
+        for &lambda in &lambdas {
+            let mut ld = 0.0;
+            for g in g {
+                h.push(lambda / (g * g + lambda));
+                ld -= lambda.ln() - (g * g + lambda).ln();
+            }
+            logdet.push(ld);
+        }
+        let trace_residual = lambdas.iter().map(|&l| spec.trace_residual(l)).collect();
+        Some(StrengthGrid {
+            xs,
+            lambdas,
+            r,
+            h,
+            logdet,
+            trace_residual,
+        })
+    }
+
+    /// The criterion of `method` at grid point `k` for the data of `spec` (not the L-curve,
+    /// which is evaluated directly).
+    fn value(
+        &self,
+        spec: &Spectrum<'_>,
+        k: usize,
+        method: StrengthMethod,
+        kind: EvidenceKind,
+    ) -> f64 {
+        let h = &self.h[k * self.r..(k + 1) * self.r];
+        match method {
+            StrengthMethod::Evidence => {
+                let mut quad = spec.delta0;
+                for (h, b) in h.iter().zip(spec.beta) {
+                    quad += h * b * b;
+                }
+                let mp = spec.m_prime();
+                let two_pi = 2.0 * std::f64::consts::PI;
+                match kind {
+                    EvidenceKind::KnownSigma => mp * two_pi.ln() + self.logdet[k] + quad,
+                    EvidenceKind::ProfiledScale => {
+                        mp * ((two_pi * quad / mp).ln() + 1.0) + self.logdet[k]
+                    }
+                }
+            }
+            StrengthMethod::Gcv => {
+                let t = self.trace_residual[k];
+                spec.m as f64 * chi2_of(h, spec) / (t * t)
+            }
+            StrengthMethod::Discrepancy => chi2_of(h, spec),
+            StrengthMethod::LCurve => spec.curvature(self.lambdas[k]),
+        }
+    }
+}
+
+/// χ² from the factors `h_i` of one λ: [`Spectrum::chi2`] with `h` given.
+fn chi2_of(h: &[f64], spec: &Spectrum<'_>) -> f64 {
+    h.iter()
+        .zip(spec.beta)
+        .map(|(h, b)| (h * b).powi(2))
+        .sum::<f64>()
+        + spec.delta0
+}
+
 /// A 1-D function as an argmin cost.
 struct Cost<F: Fn(f64) -> f64>(F);
 
@@ -403,7 +504,9 @@ impl Decomposition {
 
     /// Choose λ for a projected data vector (a bootstrap replicate, say) on this
     /// decomposition: grid on log λ, then Brent (module doc). Cost O(grid · r) plus a few
-    /// dozen evaluations; allocates only the curve when `opts.keep_curve`.
+    /// dozen evaluations; allocates only the curve when `opts.keep_curve`. A search for many
+    /// data vectors on one decomposition builds the [`StrengthGrid`] once and calls
+    /// [`Self::select_on`] instead.
     ///
     /// # Errors
     /// [`Error::Invalid`] for a non-positive fixed λ, the discrepancy principle without a
@@ -414,6 +517,32 @@ impl Decomposition {
         proj: &Projection,
         strength: Strength,
         opts: &SelectOptions,
+    ) -> Result<Selection> {
+        let grid = match strength {
+            Strength::Fixed(_) => None,
+            Strength::Rule(_) => self.strength_grid(opts),
+        };
+        self.select_on(proj, strength, opts, grid.as_ref())
+    }
+
+    /// The data-independent tables of the strength search on this decomposition's λ grid
+    /// ([`StrengthGrid`]); `None` when no penalised direction is seen by the data.
+    pub fn strength_grid(&self, opts: &SelectOptions) -> Option<StrengthGrid> {
+        StrengthGrid::new(self, opts)
+    }
+
+    /// [`Self::select_for`] with the grid's tables built beforehand (`grid` must come from
+    /// [`Self::strength_grid`] with the same `opts`; `None` when it returned none). The
+    /// criterion on the grid is the same number, bit for bit, as the direct evaluation.
+    ///
+    /// # Errors
+    /// As [`Self::select_for`].
+    pub fn select_on(
+        &self,
+        proj: &Projection,
+        strength: Strength,
+        opts: &SelectOptions,
+        grid: Option<&StrengthGrid>,
     ) -> Result<Selection> {
         let spec = self.spectrum(proj);
         let method = match strength {
@@ -456,7 +585,7 @@ impl Decomposition {
                 ));
             }
         }
-        let Some(xs) = self.lambda_grid(opts) else {
+        let Some(grid) = grid else {
             return Err(Error::invalid_field(
                 "fit.strength",
                 format!(
@@ -476,7 +605,13 @@ impl Decomposition {
                 StrengthMethod::LCurve => spec.curvature(lambda),
             }
         };
-        let curve: Vec<f64> = xs.iter().map(|&x| value(x)).collect();
+        let xs = &grid.xs;
+        let curve: Vec<f64> = match method {
+            StrengthMethod::LCurve => xs.iter().map(|&x| value(x)).collect(),
+            _ => (0..xs.len())
+                .map(|k| grid.value(&spec, k, method, kind))
+                .collect(),
+        };
 
         let (x, crit, at_end, target) = match method {
             StrengthMethod::Gcv | StrengthMethod::Evidence => {
@@ -496,7 +631,7 @@ impl Decomposition {
         };
         let lambda = 10f64.powf(x);
         let (grid, curve) = if opts.keep_curve {
-            (xs.iter().map(|x| 10f64.powf(*x)).collect(), curve)
+            (grid.lambdas.clone(), curve)
         } else {
             (Vec::new(), Vec::new())
         };

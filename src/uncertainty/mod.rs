@@ -155,6 +155,11 @@ pub fn bootstrap(input: &BootstrapInput<'_>) -> Result<BootstrapOutput> {
         BootstrapMode::Parametric => Vec::new(),
     };
     let opts = select_options(false);
+    // the strength search's data-independent tables, shared by every replicate
+    let grid = match input.strength {
+        Strength::Fixed(_) => None,
+        Strength::Rule(_) => dec.strength_grid(&opts),
+    };
     let done = std::sync::atomic::AtomicUsize::new(0);
 
     struct Scratch {
@@ -212,7 +217,7 @@ pub fn bootstrap(input: &BootstrapInput<'_>) -> Result<BootstrapOutput> {
                 let lam_b = if dec.project_into(&s.d, &mut s.proj).is_ok() {
                     match input.strength {
                         Strength::Fixed(_) => lambda,
-                        rule => match dec.select_for(&s.proj, rule, &opts) {
+                        rule => match dec.select_on(&s.proj, rule, &opts, grid.as_ref()) {
                             Ok(sel) => sel.lambda,
                             Err(_) => {
                                 fallback = true;
