@@ -187,8 +187,9 @@ fn exceedance(
     options: &EstimateOptions,
 ) -> Exceedance {
     let replicates = prof_err.nrows();
+    let by_replicate = prof_err.transpose();
     let over = (0..replicates)
-        .filter(|&b| replicate_max(prof_est, prof_err, b) > limit)
+        .filter(|&b| replicate_max(prof_est, by_replicate.column(b).as_slice()) > limit)
         .count();
     let probability = over as f64 / replicates as f64;
     Exceedance {
@@ -269,11 +270,11 @@ fn strength_summary(problem: &Problem<'_>, fitted: &Fitted) -> StrengthSummary {
     }
 }
 
-/// The largest value of replicate `b`'s profile, `est − errors[b]`.
-fn replicate_max(est: &[f64], errors: &DMatrix<f64>, b: usize) -> f64 {
+/// The largest value of a replicate's profile, `est − errors_of_b`.
+fn replicate_max(est: &[f64], errors_of_b: &[f64]) -> f64 {
     est.iter()
-        .enumerate()
-        .map(|(j, e)| e - errors[(b, j)])
+        .zip(errors_of_b)
+        .map(|(e, err)| e - err)
         .fold(f64::NEG_INFINITY, f64::max)
 }
 
@@ -321,8 +322,14 @@ fn hottest_point(
     let b_count = errors.nrows();
     let mut counts = vec![0usize; edge_positions.len()];
     let mut inside = 0usize;
+    // replicate by replicate, each replicate's profile contiguous
+    let by_replicate = errors.transpose();
+    let mut draw = vec![0.0; est.len()];
     for b in 0..b_count {
-        let (k, p, _) = locate(&|j| est[j] - errors[(b, j)]);
+        for ((t, e), err) in draw.iter_mut().zip(est).zip(by_replicate.column(b).iter()) {
+            *t = e - err;
+        }
+        let (k, p, _) = locate(&|j| draw[j]);
         counts[k] += 1;
         inside += usize::from(k == k0 && p >= p_lo && p <= p_hi);
     }
