@@ -532,8 +532,9 @@ pub fn gradient_study(
         t_max: input.max_temperature_k,
     };
     let h_max = set.edges.iter().map(|e| e.spacing_m).fold(0.0, f64::max);
+    // the rows are independent: one Piyavskii–Shubert search each, in parallel
     let rows = study_gradients(g_min, floor, count)
-        .into_iter()
+        .into_par_iter()
         .map(|g| {
             let upper = peak_upper(
                 &ctx,
