@@ -152,7 +152,7 @@ pub struct CaseFiles {
     pub sensors: PathBuf,
     /// `readings.csv` (or the `--readings` override); it need not exist for every command.
     pub readings: PathBuf,
-    /// Fixed-edge profile files named in `plate.toml`, filled in by [`load_case`].
+    /// Fixed-edge profile files named in `plate.toml`, filled in by [`crate::io::load_case`].
     pub profiles: Vec<(Edge, PathBuf)>,
 }
 

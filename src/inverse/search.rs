@@ -203,7 +203,7 @@ impl Decomposition {
         };
         let lambda = t.exp();
         let p = eval(lambda);
-        if !(p.value <= fk) {
+        if p.value.is_nan() || p.value > fk {
             // the root found is not below the grid point (a maximum beside a minimum in
             // one grid step): leave it to the reference search
             st.last_t = None;

@@ -656,7 +656,7 @@ impl RowEstimator {
     /// Estimate one row. `readings` in kelvin indexed like `case.sensors`; `used` the sensors
     /// to fit (each must have a reading; at least [`Self::min_readings`]).
     ///
-    /// The row runs through named steps on its pattern ([`RowStep`]): the strength, the
+    /// The row runs through named steps on its pattern (`RowStep`): the strength, the
     /// fitted values and σ̂, the misfit check of a calibrated strength, the profile on the scan
     /// grid, the hottest point and its intervals, the exceedance probability and the sensor
     /// diagnostics. A calibrated row that misfits is then estimated again with the rule.
