@@ -54,11 +54,14 @@
 //! |---|---|
 //! | [`tikhonov`] | the decomposition (null-space elimination + one SVD), solutions, the fast path for new data |
 //! | [`strength`] | GCV, discrepancy, evidence (marginal likelihood), L-curve, fixed; grid + Brent |
+//! | [`search`] | the evidence rule's choice for one data vector after another, without the whole grid |
 
 pub mod fit;
+pub mod search;
 pub mod strength;
 pub mod tikhonov;
 
+pub use search::EvidenceSearch;
 pub use strength::{
     EvidenceKind, SelectOptions, Selection, Strength, StrengthGrid, StrengthMethod,
 };

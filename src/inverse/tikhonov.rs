@@ -479,6 +479,59 @@ impl Decomposition {
         Ok(())
     }
 
+    /// [`Self::coefficients_into`] with the filter applied once per singular value
+    /// (`φ_i = g_i β_i / (g_i² + λ)`, r divisions) instead of once per coefficient and
+    /// singular value (n·r divisions), and `V φ` summed a column of V at a time. The numbers
+    /// differ from [`Self::coefficients_into`]'s by rounding only. `work` is scratch (no
+    /// allocation once it has grown).
+    ///
+    /// # Errors
+    /// As [`Self::coefficients_into`].
+    pub fn coefficients_fast_into(
+        &self,
+        proj: &Projection,
+        lambda: f64,
+        work: &mut Vec<f64>,
+        c: &mut DVector<f64>,
+    ) -> Result<()> {
+        check_lambda(lambda)?;
+        if c.len() != self.p {
+            return Err(Error::invalid_field(
+                "inverse.coefficients",
+                format!("{} coefficients, expected {}", c.len(), self.p),
+            ));
+        }
+        let n = self.pen_idx.len();
+        work.clear();
+        work.resize(n, 0.0);
+        if n > 0 {
+            for ((col, &g), &b) in self
+                .v
+                .as_slice()
+                .chunks_exact(n)
+                .zip(self.g.iter())
+                .zip(proj.beta.iter())
+            {
+                let phi = g * b / (g * g + lambda);
+                for (w, &v) in work.iter_mut().zip(col) {
+                    *w += v * phi;
+                }
+            }
+        }
+        for (jj, &j) in self.pen_idx.iter().enumerate() {
+            work[jj] /= self.l_pen[jj];
+            c[j] = work[jj];
+        }
+        for (k, &j) in self.null_idx.iter().enumerate() {
+            let mut s = proj.null_coef[k];
+            for (jj, &cp) in work.iter().enumerate() {
+                s -= self.b[(k, jj)] * cp;
+            }
+            c[j] = s;
+        }
+        Ok(())
+    }
+
     /// The fitted data A c (without the known offset), written into `out` (length m).
     ///
     /// # Errors
@@ -561,6 +614,31 @@ impl Decomposition {
     /// The filter factors f_i = g_i² / (g_i² + λ).
     pub fn filter_factors(&self, lambda: f64) -> DVector<f64> {
         self.g.map(|g| g * g / (g * g + lambda))
+    }
+
+    /// The leverages diag(H) at λ (the diagonal of [`Self::influence_matrix`]) written into
+    /// `out` without forming H: `H_ii = Σ_k Q₁,ik² + Σ_j U_ij² f_j` (module doc), O(m·(q + r))
+    /// instead of O(m²·r).
+    ///
+    /// # Errors
+    /// [`Error::Invalid`] when λ is not positive and finite.
+    pub fn leverages_into(&self, lambda: f64, out: &mut Vec<f64>) -> Result<()> {
+        check_lambda(lambda)?;
+        out.clear();
+        out.resize(self.m, 0.0);
+        let m = self.m;
+        for col in self.q1.as_slice().chunks_exact(m.max(1)).take(self.q) {
+            for (o, &v) in out.iter_mut().zip(col) {
+                *o += v * v;
+            }
+        }
+        for (col, &g) in self.u.as_slice().chunks_exact(m.max(1)).zip(self.g.iter()) {
+            let f = g * g / (g * g + lambda);
+            for (o, &v) in out.iter_mut().zip(col) {
+                *o += v * v * f;
+            }
+        }
+        Ok(())
     }
 
     /// The influence matrix in data units, S = W⁻¹ H W with H = Q₁Q₁ᵀ + U diag(f) Uᵀ, so that

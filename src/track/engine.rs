@@ -65,7 +65,9 @@ use crate::estimate::fit::{fault_posterior, select_options};
 use crate::estimate::{AUTO_ORDERS, penalty, profile_positions, refined_max, stack};
 use crate::forward::LinearMap;
 use crate::geometry::{Edge, Point};
-use crate::inverse::{Decomposition, Problem, Projection, Strength, StrengthMethod};
+use crate::inverse::{
+    Decomposition, EvidenceSearch, Problem, Projection, Selection, Strength, StrengthMethod,
+};
 use crate::noise::{NoiseSpec, SigmaSource};
 use nalgebra::{DMatrix, DVector};
 use rand::SeedableRng;
@@ -179,8 +181,8 @@ struct Draws {
 /// ([`Decomposition::predictive_variance_parts`]), so that a row whose λ is chosen by the
 /// rule gets its band in O(r) per point instead of O(p·r).
 struct VarianceParts {
-    /// Column `j`: `Vᵀ w_j` of fine point `j` (r × n_fine_total).
-    proj: DMatrix<f64>,
+    /// Column `j`: `Vᵀ w_j` of fine point `j`, squared entry by entry (r × n_fine_total).
+    proj_sq: DMatrix<f64>,
     /// `‖V⊥ᵀ w_j‖²` per fine point.
     perp: Vec<f64>,
     /// `‖a_N R₁⁻¹‖²` per fine point.
@@ -191,23 +193,51 @@ impl VarianceParts {
     fn new(dec: &Decomposition, prof: &DMatrix<f64>) -> Result<Self> {
         let n = prof.nrows();
         let r = dec.singular_values().len();
-        let mut proj = DMatrix::zeros(r, n);
+        let mut proj_sq = DMatrix::zeros(r, n);
         let (mut perp, mut null) = (Vec::with_capacity(n), Vec::with_capacity(n));
         for j in 0..n {
             let (pv, pe, nu) = dec.predictive_variance_parts(&prof.row(j).transpose())?;
-            proj.set_column(j, &pv);
+            proj_sq.set_column(j, &pv.map(|v| v * v));
             perp.push(pe);
             null.push(nu);
         }
-        Ok(VarianceParts { proj, perp, null })
+        Ok(VarianceParts {
+            proj_sq,
+            perp,
+            null,
+        })
     }
 
-    /// The posterior standard deviation of fine point `j` at λ (unit σ scale): the same
-    /// number as `predictive_variances(row j, [λ])[0].max(0).sqrt()`.
-    fn sd(&self, dec: &Decomposition, j: usize, lambda: f64) -> f64 {
-        let r = self.proj.nrows();
-        let pv = &self.proj.as_slice()[j * r..(j + 1) * r];
-        dec.predictive_variance_at(pv, self.perp[j], self.null[j], lambda)
+    /// The reciprocals `1/(g_k² + λ)` and `1/λ` that [`Self::sd_with`] needs at λ (one
+    /// division per singular value per row, instead of one per singular value per point).
+    fn reciprocals(dec: &Decomposition, lambda: f64, inv: &mut Vec<f64>) -> f64 {
+        inv.clear();
+        inv.extend(dec.singular_values().iter().map(|g| 1.0 / (g * g + lambda)));
+        1.0 / lambda
+    }
+
+    /// The posterior standard deviation of fine point `j` at λ (unit σ scale), from the
+    /// reciprocals of [`Self::reciprocals`]:
+    /// `Σ_k (Vᵀw_j)_k² · 1/(g_k² + λ) + ‖V⊥ᵀ w_j‖² · 1/λ + ‖a_N R₁⁻¹‖²`, a multiplication where
+    /// [`Decomposition::predictive_variance_at`] divides (the two differ by rounding only,
+    /// a few units in the last place; the unit test checks 1e-14 relative).
+    fn sd_with(&self, j: usize, inv: &[f64], inv_lambda: f64) -> f64 {
+        let r = self.proj_sq.nrows();
+        let sq = &self.proj_sq.as_slice()[j * r..(j + 1) * r];
+        // four sums side by side (so that the additions overlap), then added pairwise
+        let mut acc = [0.0f64; 4];
+        let (sq4, inv4) = (sq.chunks_exact(4), inv.chunks_exact(4));
+        let (sq_rest, inv_rest) = (sq4.remainder(), inv4.remainder());
+        for (a, b) in sq4.zip(inv4) {
+            for l in 0..4 {
+                acc[l] += a[l] * b[l];
+            }
+        }
+        for (a, b) in sq_rest.iter().zip(inv_rest) {
+            acc[0] += a * b;
+        }
+        let seen = (acc[0] + acc[1]) + (acc[2] + acc[3]);
+        (seen + self.perp[j] * inv_lambda + self.null[j])
             .max(0.0)
             .sqrt()
     }
@@ -222,7 +252,27 @@ struct Pattern {
     draws: Option<Draws>,
     /// Built the first time a row of this pattern has its λ chosen by the rule.
     variance: Option<VarianceParts>,
+    /// Where the evidence rule's search ended on the pattern's previous row.
+    search: EvidenceSearch,
     last_use: u64,
+}
+
+impl Pattern {
+    /// The rule's choice for the data projected into `self.proj`: the evidence rule by the
+    /// search that does not evaluate the whole grid ([`Decomposition::select_evidence`],
+    /// the same choice), any other rule by [`Decomposition::select_for`].
+    /// With `reference`, every rule by [`Decomposition::select_for`] (the check path, see
+    /// [`RowEstimator::use_reference_path`]).
+    fn select(&mut self, strength: Strength, reference: bool) -> Result<Selection> {
+        let opts = select_options(false);
+        match strength {
+            Strength::Rule(StrengthMethod::Evidence) if !reference => {
+                self.dec
+                    .select_evidence(&self.proj, &opts, &mut self.search)
+            }
+            _ => self.dec.select_for(&self.proj, strength, &opts),
+        }
+    }
 }
 
 /// How a row's profile is formed.
@@ -310,6 +360,16 @@ pub struct RowEstimator {
     clock: u64,
     /// Per order, the running average of log λ (per-row mode) at which residuals are judged.
     ref_log_lambda: [Option<f64>; 3],
+    /// Per order, the evidence rule's λ for the current row, when `auto` smoothing chose the
+    /// order by it (so that the row's strength is not searched for twice).
+    row_evidence: [Option<f64>; 3],
+    /// `1/(g_k² + λ)` of the row's λ and `1/λ` ([`VarianceParts::reciprocals`]).
+    inv_den: Vec<f64>,
+    inv_lambda: f64,
+    /// Scratch of [`Decomposition::coefficients_fast_into`].
+    coef_work: Vec<f64>,
+    /// The check path of [`Self::use_reference_path`].
+    reference: bool,
     // scratch
     c_ref: DVector<f64>,
     fitted_ref: DVector<f64>,
@@ -419,6 +479,11 @@ impl RowEstimator {
             cache: HashMap::new(),
             clock: 0,
             ref_log_lambda: [None; 3],
+            row_evidence: [None; 3],
+            inv_den: Vec::new(),
+            inv_lambda: 0.0,
+            coef_work: Vec::new(),
+            reference: false,
             c_ref: DVector::zeros(0),
             lev: Vec::new(),
             bits: Vec::new(),
@@ -437,6 +502,17 @@ impl RowEstimator {
             loo_sd: Vec::new(),
             loo_good: Vec::new(),
         })
+    }
+
+    /// Switch to the check path (or back): in per-row mode every strength is chosen by
+    /// [`Decomposition::select_for`]'s search over the whole grid (once per order for `auto`
+    /// smoothing and once more for the row, nothing reused), the coefficients by
+    /// [`Decomposition::coefficients_into`] and the leverages from the explicit influence
+    /// matrix ([`Decomposition::influence_matrix`], O(m²r)): the per-row path as it was before
+    /// it was made fast, so that tests can compare the two on the same rows
+    /// (`tests/integration/track_per_row_speed.rs`). About thirty times slower.
+    pub fn use_reference_path(&mut self, on: bool) {
+        self.reference = on;
     }
 
     /// The fewest readings a row needs.
@@ -476,15 +552,18 @@ impl RowEstimator {
             .cache
             .get_mut(self.key.as_slice())
             .ok_or_else(internal)?;
+        if let (Strength::Rule(StrengthMethod::Evidence), Some(lambda), false) =
+            (strength, self.row_evidence[order], self.reference)
+        {
+            return Ok((order, lambda));
+        }
         fill_d(&mut self.d, used, readings, &self.sensor_map.offset);
         pat.dec.project_into(&self.d, &mut pat.proj)?;
-        let sel = pat
-            .dec
-            .select_for(&pat.proj, strength, &select_options(false))?;
-        Ok((order, sel.lambda))
+        Ok((order, pat.select(strength, self.reference)?.lambda))
     }
 
     fn order_for(&mut self, readings: &[Option<f64>], used: &[usize]) -> Result<usize> {
+        self.row_evidence = [None; 3];
         if let Some(o) = self.case.fit.smoothing.order() {
             return Ok(o);
         }
@@ -497,11 +576,8 @@ impl RowEstimator {
                 .ok_or_else(internal)?;
             fill_d(&mut self.d, used, readings, &self.sensor_map.offset);
             pat.dec.project_into(&self.d, &mut pat.proj)?;
-            if let Ok(sel) = pat.dec.select_for(
-                &pat.proj,
-                Strength::Rule(StrengthMethod::Evidence),
-                &select_options(false),
-            ) {
+            if let Ok(sel) = pat.select(Strength::Rule(StrengthMethod::Evidence), self.reference) {
+                self.row_evidence[order] = Some(sel.lambda);
                 let e = sel.criterion;
                 if e.is_finite() && best.is_none_or(|(b, _)| e < b) {
                     best = Some((e, order));
@@ -570,6 +646,7 @@ impl RowEstimator {
                 fixed: None,
                 draws: None,
                 variance: None,
+                search: EvidenceSearch::default(),
                 last_use: self.clock,
             },
         );
@@ -698,12 +775,14 @@ impl RowEstimator {
     fn choose_lambda(&mut self, pat: &mut Pattern, step: &mut RowStep<'_>) -> Result<()> {
         step.lambda = match step.strength {
             RowStrength::Fixed { lambda, .. } => lambda,
-            RowStrength::PerRow(s) => {
-                step.project(pat, &self.d)?;
-                pat.dec
-                    .select_for(&pat.proj, s, &select_options(false))?
-                    .lambda
-            }
+            RowStrength::PerRow(s) => match (s, self.row_evidence[step.order], self.reference) {
+                // `auto` smoothing chose the order by this very search on this row
+                (Strength::Rule(StrengthMethod::Evidence), Some(lambda), false) => lambda,
+                _ => {
+                    step.project(pat, &self.d)?;
+                    pat.select(s, self.reference)?.lambda
+                }
+            },
         };
         if step.mode == RowMode::Cached
             && pat.fixed.as_ref().is_none_or(|f| f.lambda != step.lambda)
@@ -731,8 +810,17 @@ impl RowEstimator {
             Some(fx) => self.fitted.gemv(1.0, &fx.smoother, &self.d, 0.0),
             None => {
                 step.project(pat, &self.d)?;
-                pat.dec
-                    .coefficients_into(&pat.proj, step.lambda, &mut self.c)?;
+                if self.reference {
+                    pat.dec
+                        .coefficients_into(&pat.proj, step.lambda, &mut self.c)?;
+                } else {
+                    pat.dec.coefficients_fast_into(
+                        &pat.proj,
+                        step.lambda,
+                        &mut self.coef_work,
+                        &mut self.c,
+                    )?;
+                }
                 pat.dec.predict_into(&self.c, &mut self.fitted)?;
                 step.coefficients = true;
             }
@@ -812,11 +900,11 @@ impl RowEstimator {
                 pat.variance = Some(VarianceParts::new(&pat.dec, &self.prof_matrix)?);
             }
             let vp = pat.variance.as_ref().ok_or_else(internal)?;
+            self.inv_lambda = VarianceParts::reciprocals(&pat.dec, step.lambda, &mut self.inv_den);
             for (j, &fi) in self.scan_index.iter().enumerate() {
-                self.scan_sd[j] = vp.sd(&pat.dec, fi, step.lambda) * s;
+                self.scan_sd[j] = vp.sd_with(fi, &self.inv_den, self.inv_lambda) * s;
             }
-            let h = pat.dec.influence_matrix(step.lambda)?;
-            leverage.extend((0..step.used.len()).map(|k| h[(k, k)]));
+            leverages(&pat.dec, step.lambda, self.reference, leverage)?;
         }
         Ok(())
     }
@@ -825,7 +913,8 @@ impl RowEstimator {
     /// the interval `[max L, max U]` of its temperature from the linear band, and the hull
     /// of the scan points that can hold the maximum.
     fn hottest(&mut self, pat: &Pattern, step: &RowStep<'_>) -> Result<RowHottest> {
-        let (z, s, lambda) = (self.z, step.s, step.lambda);
+        let (z, s) = (self.z, step.s);
+        let (inv_den, inv_lambda) = (&self.inv_den, self.inv_lambda);
         let n_scan = self.scan_index.len();
         let n = self.n_fine;
         let (mut best_j, mut best_v) = (0, f64::NEG_INFINITY);
@@ -906,7 +995,7 @@ impl RowEstimator {
                 Some(fx) => Ok(fx.fine_sd[j] * s),
                 None => {
                     let vp = pat.variance.as_ref().ok_or_else(internal)?;
-                    Ok(vp.sd(&pat.dec, j, lambda) * s)
+                    Ok(vp.sd_with(j, inv_den, inv_lambda) * s)
                 }
             }
         };
@@ -1020,12 +1109,19 @@ impl RowEstimator {
                 if self.fitted_ref.len() != m {
                     self.fitted_ref = DVector::zeros(m);
                 }
-                pat.dec
-                    .coefficients_into(&pat.proj, lref, &mut self.c_ref)?;
+                if self.reference {
+                    pat.dec
+                        .coefficients_into(&pat.proj, lref, &mut self.c_ref)?;
+                } else {
+                    pat.dec.coefficients_fast_into(
+                        &pat.proj,
+                        lref,
+                        &mut self.coef_work,
+                        &mut self.c_ref,
+                    )?;
+                }
                 pat.dec.predict_into(&self.c_ref, &mut self.fitted_ref)?;
-                let h = pat.dec.influence_matrix(lref)?;
-                leverage.clear();
-                leverage.extend((0..m).map(|k| h[(k, k)]));
+                leverages(&pat.dec, lref, self.reference, leverage)?;
             }
         }
         let fitted_d = if use_ref {
@@ -1201,6 +1297,19 @@ impl RowEstimator {
     /// The smoothing the case asks for (`None`: auto).
     pub fn smoothing(&self) -> Smoothing {
         self.case.fit.smoothing
+    }
+}
+
+/// The leverages at λ: diag H in O(m·(q + r)), or (the check path) from the explicit
+/// influence matrix.
+fn leverages(dec: &Decomposition, lambda: f64, reference: bool, out: &mut Vec<f64>) -> Result<()> {
+    if reference {
+        let h = dec.influence_matrix(lambda)?;
+        out.clear();
+        out.extend((0..h.nrows()).map(|k| h[(k, k)]));
+        Ok(())
+    } else {
+        dec.leverages_into(lambda, out)
     }
 }
 
@@ -1408,8 +1517,10 @@ mod tests {
     fn cached_variance_parts_give_the_same_numbers_as_predictive_variances() {
         // An invented 8 × 5 problem (two unpenalised columns, so V⊥ and the null part are
         // both exercised) and invented profile rows: the per-λ sd from the cached parts must
-        // be the very same floating-point number as the direct computation, because the
-        // per-row band written to track.csv must not change with the caching.
+        // be the direct computation's number to rounding. It multiplies by reciprocals
+        // formed once per row where the direct computation divides, so the two may differ
+        // in the last few units of the last place; 1e-14 relative (about 50 ulp) is far
+        // below the band's printed 1e-4 K on temperatures of order 1e2 K (1e-6 relative).
         let (m, p) = (8, 5);
         let a = DMatrix::from_fn(m, p, |i, j| ((i * 7 + j * 3) as f64 * 0.37).sin() + 0.1);
         let penalty = DVector::from_vec(vec![0.0, 0.0, 1.0, 4.0, 9.0]);
@@ -1426,10 +1537,12 @@ mod tests {
                     .max(0.0)
                     .sqrt();
                 assert!(direct > 0.0);
-                assert_eq!(
-                    parts.sd(&dec, j, lambda).to_bits(),
-                    direct.to_bits(),
-                    "λ {lambda}, row {j}"
+                let mut inv = Vec::new();
+                let inv_lambda = VarianceParts::reciprocals(&dec, lambda, &mut inv);
+                let cached = parts.sd_with(j, &inv, inv_lambda);
+                assert!(
+                    (cached - direct).abs() <= 1e-14 * direct,
+                    "λ {lambda}, row {j}: {cached} vs {direct}"
                 );
             }
         }

@@ -26,3 +26,4 @@ mod tikhonov_reference;
 mod track_alarms;
 mod track_cli;
 mod track_equality;
+mod track_per_row_speed;

@@ -1,0 +1,509 @@
+//! The evidence rule's strength search for one data vector after another on the same
+//! decomposition (the rows of a logger file): the same choice as
+//! [`Decomposition::select_for`], found without evaluating the criterion on the whole grid.
+//!
+//! ## What is the same
+//!
+//! [`Decomposition::select_for`] evaluates the criterion on its grid of log λ
+//! ([`Decomposition::lambda_grid`], 200 points), takes the best grid point `k*` and refines
+//! it by Brent's minimiser between its neighbours. This search finds the same `k*` and the
+//! same minimum between the neighbours:
+//!
+//! 1. **The best grid point, with most of the grid ruled out by a bound.** Write the
+//!    evidence (module [`super::strength`]) with `w_i = λ/(g_i² + λ) = 1 − f_i` as a function
+//!    of two sums, `ℓ(λ) = −Σ ln w_i` (the log-determinant) and `Q(λ) = δ₀ + Σ w_i β_i²` (the
+//!    quadratic form): `E = m' ln 2π + ℓ + Q` (known σ) or `E = m' (ln(2π Q/m') + 1) + ℓ`
+//!    (profiled scale). Each `w_i` rises with λ, so `ℓ` falls and `Q` rises, and `E` rises
+//!    with `Q` and with `ℓ`. Between two grid points `λ_i < λ_j` every grid value is
+//!    therefore at least `E(ℓ(λ_j), Q(λ_i))`. The search evaluates the grid points around the
+//!    previous data vector's choice and the two ends, then bisects the runs of grid points
+//!    between evaluated ones: a run whose bound exceeds the best value found so far (by more
+//!    than a rounding margin) cannot hold the best grid point and is dropped; the rest are
+//!    split at their middle point, which is evaluated. Every grid point not evaluated is thus
+//!    provably worse than the best one, so `k*` does not depend on where the search
+//!    started. Away from the optimum the evidence rises by many units, so a handful of
+//!    bisections rule out most of the grid.
+//! 2. **The minimum between the neighbours** of `k*`: the root of `dE/d ln λ`, which is a
+//!    rational function of λ (`Σ f_i (β_i² w_i − 1)` with known σ; with the profiled scale
+//!    `m' Σ β_i² f_i w_i / Q − Σ f_i`), by Newton's method safeguarded by bisection in the
+//!    bracket. It converges to `|Δ ln λ| < 1e-12`, tighter than the Brent refinement of
+//!    [`Decomposition::select_for`] (relative tolerance `√ε` on log₁₀ λ), so the two choices
+//!    agree to that tolerance (about 1e-7 relative in λ).
+//!
+//! The grid values are computed from a product (`ℓ` as one logarithm of the product of the
+//! `w_i`, instead of one logarithm per singular value), so they differ from
+//! [`Decomposition::select_for`]'s by rounding only: the two searches could pick different
+//! grid points only where two grid values tie to about 1e-13, which two points of the same
+//! valley around the minimum resolve to the same refined λ. When the bracket does not hold a
+//! sign change of the derivative (a grid minimum at a kink or a flat stretch), the search
+//! falls back to [`Decomposition::select_for`] itself.
+
+use super::strength::{EvidenceKind, SelectOptions, Selection, Strength, StrengthMethod};
+use super::tikhonov::{Decomposition, Projection};
+use crate::error::Result;
+
+/// Where the previous search on the same decomposition ended, and its scratch: reusable,
+/// no allocation after the first call.
+#[derive(Debug, Clone, Default)]
+pub struct EvidenceSearch {
+    /// Grid index of the previous choice.
+    last_k: Option<usize>,
+    /// ln λ of the previous choice.
+    last_t: Option<f64>,
+    /// Per grid point: `ℓ`, `Q`, `E`, and whether evaluated.
+    ell: Vec<f64>,
+    quad: Vec<f64>,
+    value: Vec<f64>,
+    done: Vec<bool>,
+    /// Runs of grid points still to examine.
+    stack: Vec<(usize, usize)>,
+    /// Grid points evaluated by the last search (for the benchmark's account).
+    pub evaluated: usize,
+}
+
+/// The two sums and the criterion at one λ.
+#[derive(Debug, Clone, Copy)]
+struct Point {
+    ell: f64,
+    quad: f64,
+    value: f64,
+}
+
+impl Decomposition {
+    /// Choose λ by the evidence rule for the projected data `proj`, the same choice as
+    /// `select_for(proj, Strength::Rule(StrengthMethod::Evidence), opts)` (module doc) at a
+    /// fraction of its cost. `state` carries the previous choice on this decomposition; it
+    /// only decides where the search starts, never what it finds. The curve is not kept
+    /// (`opts.keep_curve` set falls back to [`Self::select_for`]).
+    ///
+    /// # Errors
+    /// As [`Self::select_for`].
+    pub fn select_evidence(
+        &self,
+        proj: &Projection,
+        opts: &SelectOptions,
+        state: &mut EvidenceSearch,
+    ) -> Result<Selection> {
+        let strength = Strength::Rule(StrengthMethod::Evidence);
+        let r = self.g.len();
+        if opts.keep_curve || r == 0 {
+            return self.select_for(proj, strength, opts);
+        }
+        let kind = self.evidence_kind(opts);
+        let n = opts.grid_points.max(3);
+        let g_max = self.g[0];
+        let g_min = self.g[r - 1].max(g_max * 1e-8);
+        let lo = 2.0 * g_min.log10() - opts.margin_decades;
+        let hi = 2.0 * g_max.log10() + opts.margin_decades;
+        // the grid of `lambda_grid`, point by point (the same expression, so the same numbers)
+        let x_at = |k: usize| lo + (hi - lo) * k as f64 / (n - 1) as f64;
+        let mp = (self.m - self.q) as f64;
+        let eval = |lambda: f64| -> Point {
+            let (ell, quad) = self.sums(proj, lambda);
+            Point {
+                ell,
+                quad,
+                value: criterion(kind, mp, ell, quad),
+            }
+        };
+        let st = state;
+        st.ell.clear();
+        st.ell.resize(n, 0.0);
+        st.quad.clear();
+        st.quad.resize(n, 0.0);
+        st.value.clear();
+        st.value.resize(n, f64::INFINITY);
+        st.done.clear();
+        st.done.resize(n, false);
+        st.evaluated = 0;
+        let mut best = (f64::INFINITY, usize::MAX);
+        let visit = |st: &mut EvidenceSearch, k: usize, best: &mut (f64, usize)| {
+            if st.done[k] {
+                return;
+            }
+            let p = eval((x_at(k) * std::f64::consts::LN_10).exp());
+            st.ell[k] = p.ell;
+            st.quad[k] = p.quad;
+            st.value[k] = not_nan(p.value);
+            st.done[k] = true;
+            st.evaluated += 1;
+            let v = st.value[k];
+            if v < best.0 || (v <= best.0 && k < best.1) {
+                *best = (v, k);
+            }
+        };
+        // the previous choice's neighbourhood first (a good bound early), then the ends
+        let start = st.last_k.filter(|&k| k < n).unwrap_or(n / 2);
+        for k in [
+            start.saturating_sub(1),
+            start,
+            (start + 1).min(n - 1),
+            0,
+            n - 1,
+        ] {
+            visit(st, k, &mut best);
+        }
+        // the runs between evaluated points
+        st.stack.clear();
+        let mut prev = 0;
+        for k in 1..n {
+            if st.done[k] {
+                if k > prev + 1 {
+                    st.stack.push((prev, k));
+                }
+                prev = k;
+            }
+        }
+        while let Some((i, j)) = st.stack.pop() {
+            // every grid point strictly between i and j is at least this
+            let bound = criterion(kind, mp, st.ell[j], st.quad[i]);
+            let margin = 1e-9 * (1.0 + best.0.abs());
+            if bound > best.0 + margin {
+                continue;
+            }
+            let mid = (i + j) / 2;
+            visit(st, mid, &mut best);
+            if mid > i + 1 {
+                st.stack.push((i, mid));
+            }
+            if j > mid + 1 {
+                st.stack.push((mid, j));
+            }
+        }
+        // ties go to the first grid point, as in `select_for`: the unevaluated points are
+        // worse than `best` by more than the margin, so scanning the evaluated ones suffices
+        let (fk, k) = best;
+        let k = (0..n)
+            .find(|&j| st.done[j] && st.value[j].total_cmp(&fk).is_eq())
+            .unwrap_or(k);
+        st.last_k = Some(k);
+        let effective = |lambda: f64| {
+            self.q as f64 + self.g.iter().map(|g| g * g / (g * g + lambda)).sum::<f64>()
+        };
+        if k == 0 || k == n - 1 {
+            let lambda = 10f64.powf(x_at(k));
+            st.last_t = None;
+            return Ok(Selection {
+                strength,
+                lambda,
+                criterion: fk,
+                effective_parameters: effective(lambda),
+                grid: Vec::new(),
+                curve: Vec::new(),
+                at_grid_end: true,
+                target: None,
+                evidence_kind: Some(kind),
+            });
+        }
+        let ln10 = std::f64::consts::LN_10;
+        let (a, b) = (x_at(k - 1) * ln10, x_at(k + 1) * ln10);
+        let Some(t) = self.stationary(proj, kind, a, b, st.last_t) else {
+            st.last_t = None;
+            return self.select_for(proj, strength, opts);
+        };
+        let lambda = t.exp();
+        let p = eval(lambda);
+        if p.value.is_nan() || p.value > fk {
+            // the root found is not below the grid point (a maximum beside a minimum in
+            // one grid step): leave it to the reference search
+            st.last_t = None;
+            return self.select_for(proj, strength, opts);
+        }
+        st.last_t = Some(t);
+        Ok(Selection {
+            strength,
+            lambda,
+            criterion: p.value,
+            effective_parameters: effective(lambda),
+            grid: Vec::new(),
+            curve: Vec::new(),
+            at_grid_end: false,
+            target: None,
+            evidence_kind: Some(kind),
+        })
+    }
+
+    /// `ℓ(λ) = −Σ ln w_i` and `Q(λ) = δ₀ + Σ w_i β_i²`, `w_i = λ/(g_i² + λ)`. `ℓ` is one
+    /// logarithm of the product of the `w_i`, kept in range by moving its binary exponent
+    /// aside (each `w_i ≥ 1e-20` on the grid's range, so eight factors between
+    /// renormalisations cannot underflow); four lanes side by side so that the divisions
+    /// overlap.
+    fn sums(&self, proj: &Projection, lambda: f64) -> (f64, f64) {
+        const LANES: usize = 4;
+        let g = self.g.as_slice();
+        let beta = proj.beta.as_slice();
+        let mut prod = [1.0f64; LANES];
+        let mut quad = [0.0f64; LANES];
+        let mut exp2: i64 = 0;
+        let gc = g.chunks_exact(LANES);
+        let (g_rest, b_rest) = (gc.remainder(), &beta[g.len() - gc.remainder().len()..]);
+        for (ci, (gl, bl)) in gc.zip(beta.chunks_exact(LANES)).enumerate() {
+            for l in 0..LANES {
+                let w = lambda / (gl[l] * gl[l] + lambda);
+                prod[l] *= w;
+                quad[l] += w * bl[l] * bl[l];
+            }
+            if ci % 8 == 7 {
+                for p in &mut prod {
+                    exp2 += renormalise(p);
+                }
+            }
+        }
+        for (gi, bi) in g_rest.iter().zip(b_rest) {
+            let w = lambda / (gi * gi + lambda);
+            prod[0] *= w;
+            quad[0] += w * bi * bi;
+        }
+        let mut mant = 1.0;
+        for p in &mut prod {
+            exp2 += renormalise(p);
+            mant *= *p;
+        }
+        let ell = -(mant.ln() + exp2 as f64 * std::f64::consts::LN_2);
+        (
+            ell,
+            proj.delta0 + ((quad[0] + quad[1]) + (quad[2] + quad[3])),
+        )
+    }
+
+    /// `(dE/dt, d²E/dt²)` at `t = ln λ`: with `f_i = 1 − w_i`, `S₁ = Σ β_i² f_i w_i`
+    /// (`= dQ/dt`), `dS₁/dt = Σ β_i² f_i w_i (f_i − w_i)` and `d(Σ f_i)/dt = −Σ f_i w_i`:
+    /// known σ `(S₁ − Σ f_i, dS₁/dt + Σ f_i w_i)`; profiled scale
+    /// `(m' S₁/Q − Σ f_i, m' (dS₁/dt / Q − S₁²/Q²) + Σ f_i w_i)`.
+    fn derivatives(&self, proj: &Projection, kind: EvidenceKind, t: f64) -> (f64, f64) {
+        let mp = (self.m - self.q) as f64;
+        let lambda = t.exp();
+        let (mut sf, mut sfw, mut s1, mut s1p, mut quad) = (0.0, 0.0, 0.0, 0.0, proj.delta0);
+        for (gi, bi) in self.g.iter().zip(proj.beta.iter()) {
+            let g2 = gi * gi;
+            let inv = 1.0 / (g2 + lambda);
+            let (f, w) = (g2 * inv, lambda * inv);
+            let b2 = bi * bi;
+            let fw = f * w;
+            sf += f;
+            sfw += fw;
+            s1 += b2 * fw;
+            s1p += b2 * fw * (f - w);
+            quad += w * b2;
+        }
+        match kind {
+            EvidenceKind::KnownSigma => (s1 - sf, s1p + sfw),
+            EvidenceKind::ProfiledScale => (
+                mp * s1 / quad - sf,
+                mp * (s1p / quad - s1 * s1 / (quad * quad)) + sfw,
+            ),
+        }
+    }
+
+    /// The root of `dE/dt` (`t = ln λ`) in `[a, b]`, by Newton's method safeguarded by
+    /// bisection; `None` when the derivative does not go from negative to positive there.
+    fn stationary(
+        &self,
+        proj: &Projection,
+        kind: EvidenceKind,
+        a: f64,
+        b: f64,
+        warm: Option<f64>,
+    ) -> Option<f64> {
+        let deriv = |t: f64| self.derivatives(proj, kind, t);
+        let (da, _) = deriv(a);
+        let (db, _) = deriv(b);
+        if !(da < 0.0 && db > 0.0) {
+            return None;
+        }
+        let (mut lo, mut hi) = (a, b);
+        let mut t = warm.filter(|&t| t > a && t < b).unwrap_or(0.5 * (a + b));
+        for _ in 0..100 {
+            let (d, dd) = deriv(t);
+            if !d.is_finite() {
+                return None;
+            }
+            if d < 0.0 {
+                lo = t;
+            } else if d > 0.0 {
+                hi = t;
+            } else {
+                return Some(t);
+            }
+            let newton = t - d / dd;
+            let next = if dd > 0.0 && newton > lo && newton < hi {
+                newton
+            } else {
+                0.5 * (lo + hi)
+            };
+            let tol = 1e-12 * (1.0 + t.abs());
+            if (next - t).abs() < tol || hi - lo < tol {
+                return Some(next);
+            }
+            t = next;
+        }
+        Some(t)
+    }
+}
+
+fn criterion(kind: EvidenceKind, mp: f64, ell: f64, quad: f64) -> f64 {
+    let two_pi = 2.0 * std::f64::consts::PI;
+    match kind {
+        EvidenceKind::KnownSigma => mp * two_pi.ln() + ell + quad,
+        EvidenceKind::ProfiledScale => mp * ((two_pi * quad / mp).ln() + 1.0) + ell,
+    }
+}
+
+/// Write a positive normal `x` as `m · 2^e` with `m` in [1, 2): sets `x = m`, returns `e`.
+/// Anything else (zero, subnormal, not finite) is left as it is.
+fn renormalise(x: &mut f64) -> i64 {
+    if !x.is_normal() || *x < 0.0 {
+        return 0;
+    }
+    let bits = x.to_bits();
+    let e = ((bits >> 52) & 0x7ff) as i64 - 1023;
+    *x = f64::from_bits((bits & !(0x7ff << 52)) | (1023 << 52));
+    e
+}
+
+fn not_nan(v: f64) -> f64 {
+    if v.is_nan() { f64::INFINITY } else { v }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::inverse::Problem;
+    use nalgebra::{DMatrix, DVector};
+
+    /// An invented ill-posed problem (constant column + decaying cosine columns, the shape of
+    /// the strength module's test problem) and `n` invented data vectors drifting from row to
+    /// row, as a logger's rows do.
+    fn problem_and_rows(
+        m: usize,
+        p: usize,
+        sigma_stated: bool,
+        n: usize,
+    ) -> (Decomposition, Vec<DVector<f64>>) {
+        let mut a = DMatrix::zeros(m, p);
+        let mut penalty = DVector::zeros(p);
+        for i in 0..m {
+            let x = (i as f64 + 0.5) / m as f64;
+            let y = 0.15 + 0.04 * ((i * 3) % 5) as f64;
+            a[(i, 0)] = 1.0;
+            for j in 1..p {
+                let k = j as f64 * std::f64::consts::PI;
+                a[(i, j)] = (k * x).cos() * (-k * y).exp();
+            }
+        }
+        for j in 1..p {
+            penalty[j] = (j as f64 * std::f64::consts::PI).powi(2);
+        }
+        let sigma = DVector::from_fn(m, |i, _| {
+            if sigma_stated {
+                0.1 * (1.0 + 0.3 * (i as f64 * 1.7).cos())
+            } else {
+                1.0
+            }
+        });
+        let rows = (0..n)
+            .map(|r| {
+                let amp = 1.0 + 4.0 * (r as f64 * 0.05).sin().powi(2);
+                let truth = DVector::from_fn(p, |j, _| amp * 5.0 / (1.0 + j as f64).powi(2));
+                let mut d = &a * truth;
+                for i in 0..m {
+                    // a fixed pseudo-random sequence (fractional parts of a sine), scaled
+                    // like the reading noise
+                    d[i] += 0.1 * (((i + 31 * r) as f64 * 78.233).sin() * 43758.5453).fract();
+                }
+                d
+            })
+            .collect::<Vec<_>>();
+        let problem = Problem::new(a, rows[0].clone(), sigma, penalty, sigma_stated).unwrap();
+        (Decomposition::new(&problem).unwrap(), rows)
+    }
+
+    #[test]
+    fn same_choice_as_the_full_search_warm_or_cold() {
+        let opts = SelectOptions {
+            keep_curve: false,
+            ..SelectOptions::default()
+        };
+        for stated in [true, false] {
+            let (dec, rows) = problem_and_rows(16, 12, stated, 60);
+            let mut warm = EvidenceSearch::default();
+            let mut proj = dec.empty_projection();
+            let mut interior = 0;
+            for (r, d) in rows.iter().enumerate() {
+                dec.project_into(d, &mut proj).unwrap();
+                let full = dec
+                    .select_for(&proj, Strength::Rule(StrengthMethod::Evidence), &opts)
+                    .unwrap();
+                let fast = dec.select_evidence(&proj, &opts, &mut warm).unwrap();
+                let cold = dec
+                    .select_evidence(&proj, &opts, &mut EvidenceSearch::default())
+                    .unwrap();
+                // the full search's Brent step stops at √ε relative on log10 λ (≈ 1e-7
+                // relative in λ here); the fast one at 1e-12 in ln λ
+                let rel = (fast.lambda - full.lambda).abs() / full.lambda;
+                assert!(
+                    rel < 1e-6,
+                    "σ stated {stated}, row {r}: {} vs {}",
+                    fast.lambda,
+                    full.lambda
+                );
+                assert_eq!(fast.at_grid_end, full.at_grid_end);
+                assert_eq!(fast.evidence_kind, full.evidence_kind);
+                // the criterion at the optimum: equal to rounding (flat there)
+                assert!(
+                    (fast.criterion - full.criterion).abs() < 1e-9 * (1.0 + full.criterion.abs())
+                );
+                assert!((fast.effective_parameters - full.effective_parameters).abs() < 1e-5);
+                // where the search starts does not change what it finds, to the Newton
+                // step's tolerance (1e-12 (1 + |ln λ|) in ln λ, ln λ of order -10 here)
+                assert!(
+                    (cold.lambda.ln() - fast.lambda.ln()).abs()
+                        < 1e-11 * (1.0 + fast.lambda.ln().abs()),
+                    "σ stated {stated}, row {r}: {} vs {}",
+                    cold.lambda,
+                    fast.lambda
+                );
+                // and it evaluates a small part of the grid
+                assert!(warm.evaluated < 60, "{} grid points", warm.evaluated);
+                interior += usize::from(!full.at_grid_end);
+            }
+            assert!(interior > 50, "{interior} interior choices");
+        }
+    }
+
+    #[test]
+    fn derivative_matches_finite_differences_of_the_criterion() {
+        // the Newton step's dE/d ln λ and d²E/d ln λ² against central differences of the
+        // criterion itself (evaluated as the strength module does)
+        for stated in [true, false] {
+            let (dec, rows) = problem_and_rows(16, 12, stated, 3);
+            let proj = dec.projection(&rows[2]).unwrap();
+            let kind = dec.evidence_kind(&SelectOptions::default());
+            let e = |t: f64| {
+                dec.criterion(
+                    &proj,
+                    StrengthMethod::Evidence,
+                    t.exp(),
+                    &SelectOptions::default(),
+                )
+            };
+            for t in [-9.0f64, -5.0, -2.0, 1.0] {
+                let h = 1e-4;
+                let d_fd = (e(t + h) - e(t - h)) / (2.0 * h);
+                let dd_fd = (e(t + h) - 2.0 * e(t) + e(t - h)) / (h * h);
+                let (d, dd) = dec.derivatives(&proj, kind, t);
+                assert!(
+                    (d - d_fd).abs() < 1e-6 * (1.0 + d.abs()),
+                    "t {t}: {d} vs {d_fd}"
+                );
+                assert!(
+                    (dd - dd_fd).abs() < 1e-3 * (1.0 + dd.abs()),
+                    "t {t}: {dd} vs {dd_fd}"
+                );
+                let (ell, quad) = dec.sums(&proj, t.exp());
+                let mp = (dec.m - dec.q) as f64;
+                assert!((criterion(kind, mp, ell, quad) - e(t)).abs() < 1e-10 * (1.0 + e(t).abs()));
+            }
+        }
+    }
+}
