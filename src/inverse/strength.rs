@@ -615,17 +615,17 @@ impl Decomposition {
 
         let (x, crit, at_end, target) = match method {
             StrengthMethod::Gcv | StrengthMethod::Evidence => {
-                let (x, c, e) = grid_then_brent(&value, &xs, &curve);
+                let (x, c, e) = grid_then_brent(&value, xs, &curve);
                 (x, c, e, None)
             }
             StrengthMethod::LCurve => {
                 let neg: Vec<f64> = curve.iter().map(|k| -k).collect();
-                let (x, c, e) = grid_then_brent(&|x| -value(x), &xs, &neg);
+                let (x, c, e) = grid_then_brent(&|x| -value(x), xs, &neg);
                 (x, -c, e, None)
             }
             StrengthMethod::Discrepancy => {
                 let target = opts.tau * opts.tau * spec.m_prime();
-                let (x, c, e) = discrepancy_root(&value, &xs, &curve, target);
+                let (x, c, e) = discrepancy_root(&value, xs, &curve, target);
                 (x, c, e, Some(target))
             }
         };
