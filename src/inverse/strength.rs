@@ -298,7 +298,7 @@ impl Spectrum<'_> {
 /// point and no logarithm (the profiled evidence keeps one), so a search repeated for many
 /// data vectors on the same decomposition (the bootstrap's replicates, a logger pattern's
 /// rows) builds this once. Every value is computed with the same operations, in the same
-/// order, as [`Spectrum`]'s direct evaluation, so the criterion is the same number.
+/// order, as the direct evaluation of the criteria, so the criterion is the same number.
 #[derive(Debug, Clone)]
 pub struct StrengthGrid {
     /// log10 λ of the grid points.
