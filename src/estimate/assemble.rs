@@ -36,11 +36,21 @@ pub(super) fn assemble(
     // the profiles' errors in every replicate: the bands, the hottest point and the
     // exceedance all read them
     let prof_err = boot.errors_of(&maps.profile);
-    let (edges, hottest) = edge_results(problem, &fitted, &maps, &resampled, &prof_est, &prof_err)?;
+    // the same, one column per replicate (the hottest point and the exceedance read each
+    // replicate's profile whole)
+    let prof_err_by_replicate = prof_err.transpose();
+    let (edges, hottest) = edge_results(
+        problem,
+        &fitted,
+        &maps,
+        &resampled,
+        &prof_est,
+        (&prof_err, &prof_err_by_replicate),
+    )?;
     let field = field_result(&fitted, &maps, boot, confidence);
     let exceedance = options
         .limit
-        .map(|limit| exceedance(&prof_est, &prof_err, &fitted, limit, options));
+        .map(|limit| exceedance(&prof_est, &prof_err_by_replicate, &fitted, limit, options));
     let sensors = sensor_results(problem, &fitted)?;
     let fit_summary = fit_summary(problem, &fitted);
     let strength_summary = strength_summary(problem, &fitted);
@@ -83,7 +93,7 @@ fn edge_results(
     maps: &OutputMaps,
     resampled: &Resampled,
     prof_est: &[f64],
-    prof_err: &DMatrix<f64>,
+    (prof_err, prof_err_by_replicate): (&DMatrix<f64>, &DMatrix<f64>),
 ) -> Result<(Vec<EdgeResult>, Hottest)> {
     let case = problem.case;
     let boot = &resampled.output;
@@ -96,7 +106,13 @@ fn edge_results(
     let (s_lo, s_hi) = simultaneous_band(prof_est, prof_err, confidence);
     let heat_err = maps.heat.as_ref().map(|(m, _)| boot.errors_of(m));
     let prof_sd = linear_sd(&maps.profile, &fitted.fit.solution.covariance);
-    let mut hottest = hottest_point(&problem.edge_positions, prof_est, &p_lo, &p_hi, prof_err);
+    let mut hottest = hottest_point(
+        &problem.edge_positions,
+        prof_est,
+        &p_lo,
+        &p_hi,
+        prof_err_by_replicate,
+    );
     // A sensor kept under two explanations: the hotter one bounds the hottest temperature.
     for d in &fitted.doubts {
         hottest.temperature_interval[1] = hottest.temperature_interval[1].max(d.peak_temperature);
@@ -181,13 +197,12 @@ fn field_result(
 /// sensor crossing the limit raises the alarm too.
 fn exceedance(
     prof_est: &[f64],
-    prof_err: &DMatrix<f64>,
+    by_replicate: &DMatrix<f64>,
     fitted: &Fitted,
     limit: f64,
     options: &EstimateOptions,
 ) -> Exceedance {
-    let replicates = prof_err.nrows();
-    let by_replicate = prof_err.transpose();
+    let replicates = by_replicate.ncols();
     let over = (0..replicates)
         .filter(|&b| replicate_max(prof_est, by_replicate.column(b).as_slice()) > limit)
         .count();
@@ -295,7 +310,7 @@ fn hottest_point(
     est: &[f64],
     lower: &[f64],
     upper: &[f64],
-    errors: &DMatrix<f64>,
+    by_replicate: &DMatrix<f64>,
 ) -> Hottest {
     let n = edge_positions.first().map_or(0, |e| e.1.len());
     let locate = |val: &dyn Fn(usize) -> f64| -> (usize, f64, f64) {
@@ -319,11 +334,10 @@ fn hottest_point(
         .collect();
     let p_lo = candidates.first().copied().unwrap_or(pos0).min(pos0);
     let p_hi = candidates.last().copied().unwrap_or(pos0).max(pos0);
-    let b_count = errors.nrows();
+    let b_count = by_replicate.ncols();
     let mut counts = vec![0usize; edge_positions.len()];
     let mut inside = 0usize;
-    // replicate by replicate, each replicate's profile contiguous
-    let by_replicate = errors.transpose();
+    // replicate by replicate (column b: replicate b's profile errors, contiguous)
     let mut draw = vec![0.0; est.len()];
     for b in 0..b_count {
         for ((t, e), err) in draw.iter_mut().zip(est).zip(by_replicate.column(b).iter()) {

@@ -442,6 +442,17 @@ impl Decomposition {
         Ok(())
     }
 
+    /// A coefficient vector must have length p.
+    fn check_coefficient_len(&self, c: &DVector<f64>) -> Result<()> {
+        if c.len() != self.p {
+            return Err(Error::invalid_field(
+                "inverse.coefficients",
+                format!("{} coefficients, expected {}", c.len(), self.p),
+            ));
+        }
+        Ok(())
+    }
+
     /// The coefficients for a projected data vector at strength λ, written into `c`
     /// (length p) without allocating: equations (4) then (2). O(n·r + q·n).
     ///
@@ -454,12 +465,7 @@ impl Decomposition {
         c: &mut DVector<f64>,
     ) -> Result<()> {
         check_lambda(lambda)?;
-        if c.len() != self.p {
-            return Err(Error::invalid_field(
-                "inverse.coefficients",
-                format!("{} coefficients, expected {}", c.len(), self.p),
-            ));
-        }
+        self.check_coefficient_len(c)?;
         let r = self.g.len();
         for (jj, &j) in self.pen_idx.iter().enumerate() {
             let mut s = 0.0;
@@ -495,12 +501,7 @@ impl Decomposition {
         c: &mut DVector<f64>,
     ) -> Result<()> {
         check_lambda(lambda)?;
-        if c.len() != self.p {
-            return Err(Error::invalid_field(
-                "inverse.coefficients",
-                format!("{} coefficients, expected {}", c.len(), self.p),
-            ));
-        }
+        self.check_coefficient_len(c)?;
         let n = self.pen_idx.len();
         work.clear();
         work.resize(n, 0.0);
