@@ -34,6 +34,7 @@
 //! When σ was estimated from the residuals, the coverage statement is only approximate: the
 //! result records it ([`BoundsResult::approximate`]).
 
+pub mod dual;
 pub mod program;
 pub mod set;
 
@@ -205,9 +206,11 @@ struct Context<'a> {
     radius: f64,
     t_min: Option<f64>,
     t_max: Option<f64>,
+    /// The dual of the node programs, when no temperature limit is stated ([`dual`]).
+    dual: Option<dual::DualData>,
 }
 
-impl Context<'_> {
+impl<'a> Context<'a> {
     fn limits(&self, gradient: f64) -> Limits {
         Limits {
             gradient,
@@ -217,7 +220,32 @@ impl Context<'_> {
         }
     }
 
+    fn new(set: &'a AdmissibleSet, radius: f64, t_min: Option<f64>, t_max: Option<f64>) -> Self {
+        let dual = (t_min.is_none() && t_max.is_none()).then(|| dual::DualData::new(set));
+        Context {
+            set,
+            radius,
+            t_min,
+            t_max,
+            dual,
+        }
+    }
+
+    /// One program: a node bound through its dual when that applies and settles, else the
+    /// conic program.
     fn run(&self, gradient: f64, objective: Objective) -> Outcome {
+        if let Some(dual) = &self.dual {
+            let node = match objective {
+                Objective::MaxNode(j) => Some((j, true)),
+                Objective::MinNode(j) => Some((j, false)),
+                Objective::MinPeak | Objective::MinGradient => None,
+            };
+            if let Some((j, maximise)) = node {
+                if let Some(b) = dual.node_bound(j, maximise, gradient, self.radius) {
+                    return Outcome::Value(if maximise { b } else { -b });
+                }
+            }
+        }
         program::solve(self.set, self.limits(gradient), objective)
     }
 }
@@ -344,12 +372,12 @@ pub fn bounds_under(
         ));
     }
     let g = gradient_k_per_m;
-    let ctx = Context {
+    let ctx = Context::new(
         set,
-        radius: chi_square_radius(set.sensor_count(), input.confidence)?.sqrt(),
-        t_min: input.min_temperature_k,
-        t_max: input.max_temperature_k,
-    };
+        chi_square_radius(set.sensor_count(), input.confidence)?.sqrt(),
+        input.min_temperature_k,
+        input.max_temperature_k,
+    );
     // the peak's lower bound first: it also tells whether the set is empty
     let peak_low = match ctx.run(g, Objective::MinPeak) {
         Outcome::Value(v) => v,
@@ -461,12 +489,12 @@ pub fn min_required_gradient(
     set: &AdmissibleSet,
     input: &BoundsInput,
 ) -> Result<std::result::Result<Option<f64>, String>> {
-    let ctx = Context {
+    let ctx = Context::new(
         set,
-        radius: chi_square_radius(set.sensor_count(), input.confidence)?.sqrt(),
-        t_min: input.min_temperature_k,
-        t_max: input.max_temperature_k,
-    };
+        chi_square_radius(set.sensor_count(), input.confidence)?.sqrt(),
+        input.min_temperature_k,
+        input.max_temperature_k,
+    );
     Ok(match ctx.run(0.0, Objective::MinGradient) {
         Outcome::Value(g) => Ok(Some(g)),
         Outcome::Infeasible => Ok(None),
@@ -525,12 +553,12 @@ pub fn gradient_study(
             .fold(f64::INFINITY, |a, &b| a.min(b));
     let l_max = set.edges.iter().map(|e| e.length_m).fold(0.0, f64::max);
     let floor = 0.01 * spread_k.max(1e-3) / l_max.max(1e-9);
-    let ctx = Context {
+    let ctx = Context::new(
         set,
-        radius: chi_square_radius(set.sensor_count(), input.confidence)?.sqrt(),
-        t_min: input.min_temperature_k,
-        t_max: input.max_temperature_k,
-    };
+        chi_square_radius(set.sensor_count(), input.confidence)?.sqrt(),
+        input.min_temperature_k,
+        input.max_temperature_k,
+    );
     let h_max = set.edges.iter().map(|e| e.spacing_m).fold(0.0, f64::max);
     // the rows are independent: one Piyavskii–Shubert search each, in parallel
     let rows = study_gradients(g_min, floor, count)

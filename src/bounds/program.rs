@@ -2,15 +2,15 @@
 //! 2024, "Clarabel: an interior-point solver for conic programs with quadratic objectives",
 //! arXiv 2405.12762).
 //!
-//! Variables `x = (v', u, a, z)`: node values relative to a reference temperature `T_ref`
-//! (the mean reading, for conditioning), the per-sensor model-error allowance `u`, the
-//! auxiliary absolute values `a` of the series-tail terms (three per edge), and one extra
-//! scalar `z` (the peak level `t`, or the scaled gradient `γ = G L_ref`). Clarabel's standard
-//! form is `min qᵀx` subject to `A x + s = b`, `s ∈ K`; here `K` is a non-negative orthant for
+//! Variables `x = (v', u, z)`: node values relative to a reference temperature `T_ref`
+//! (the mean reading, for conditioning), the per-sensor model-error allowance `u`, and one
+//! extra scalar `z` (the peak level `t`, or the scaled gradient `γ = G L_ref`). Clarabel's
+//! standard form is `min qᵀx` subject to `A x + s = b`, `s ∈ K`; here `K` is a non-negative
+//! orthant for
 //!
 //! - `|v_{j+1} − v_j| ≤ G h_e` (every node cell of every hidden edge),
-//! - `a_k ≥ |αᵀv + α₀|` (tail terms),
-//! - `|u_i| ≤ G (ρ_i + Σ_e ε_{ie} L_e) + Σ_e ε_{ie} (a_{e,0} + a_{e,1} + a_{e,2})`,
+//! - `|u_i| ≤ G a_i + b_i` (the allowance of [`AdmissibleSet::allowance`]: quasi-interpolation
+//!   and series tail),
 //! - `T_min ≤ v_j ≤ T_max` when stated, and the objective's own rows,
 //!
 //! followed by one second-order cone `‖W (H v + o + u − d)‖ ≤ √q` with `W = diag(1/σ)`
@@ -86,13 +86,12 @@ impl Rows {
 }
 
 /// Where each variable of a bound program sits: node values `v'` (temperatures above
-/// `t_ref`) at `0..n`, model-error terms `u_i` at `iu + i`, tail auxiliaries at
-/// `aux_start[e] + k`, and the extra scalar (peak or gradient) at `iz`.
+/// `t_ref`) at `0..n`, model-error terms `u_i` at `iu + i`, and the extra scalar (peak or
+/// gradient) at `iz`.
 struct Layout {
     n: usize,
     m: usize,
     iu: usize,
-    aux_start: Vec<usize>,
     iz: usize,
     nvar: usize,
     /// The reference temperature the node values are taken from (the mean reading), kelvin.
@@ -112,19 +111,12 @@ impl Layout {
             .map(|e| e.length_m)
             .fold(0.0_f64, f64::max)
             .max(1e-9);
-        let mut aux_start = Vec::with_capacity(set.edges.len());
-        let mut next = n + m;
-        for terms in &set.tail_terms {
-            aux_start.push(next);
-            next += terms.len();
-        }
         Layout {
             n,
             m,
             iu: n,
-            aux_start,
-            iz: next,
-            nvar: next + 1,
+            iz: n + m,
+            nvar: n + m + 1,
             t_ref,
             l_ref,
         }
@@ -186,7 +178,7 @@ pub fn solve(set: &AdmissibleSet, limits: Limits, objective: Objective) -> Outco
 }
 
 /// The constraint rows `A x + s = b` of a bound program: first the non-negative orthant
-/// (slopes or the gradient variable, tail auxiliaries, the model-error allowance,
+/// (slopes or the gradient variable, the model-error allowance,
 /// temperature limits, the peak variable), then the second-order cone of the misfit.
 /// Returns the rows and the size of the orthant.
 fn constraints(
@@ -196,7 +188,7 @@ fn constraints(
     lay: &Layout,
 ) -> (Rows, usize) {
     let (n, m, iu, iz) = (lay.n, lay.m, lay.iu, lay.iz);
-    let (aux_start, t_ref, l_ref) = (&lay.aux_start, lay.t_ref, lay.l_ref);
+    let (t_ref, l_ref) = (lay.t_ref, lay.l_ref);
     let free_gradient = objective == Objective::MinGradient;
     let g = limits.gradient;
     let mut rows = Rows {
@@ -218,39 +210,14 @@ fn constraints(
             }
         }
     }
-    // tail auxiliaries
-    for (e, terms) in set.tail_terms.iter().enumerate() {
-        for (k, t) in terms.iter().enumerate() {
-            let c0 = t.constant + t_ref * t.coef.iter().map(|(_, c)| c).sum::<f64>();
-            let mut plus: Vec<(usize, f64)> = t.coef.clone();
-            plus.push((aux_start[e] + k, -1.0));
-            rows.push(&plus, -c0);
-            let mut minus: Vec<(usize, f64)> = t.coef.iter().map(|&(j, c)| (j, -c)).collect();
-            minus.push((aux_start[e] + k, -1.0));
-            rows.push(&minus, c0);
-        }
-    }
     // model-error allowance
+    let (per_gradient, fixed) = set.allowance();
     for i in 0..m {
-        let per_g = set.rho_m[i]
-            + set
-                .edges
-                .iter()
-                .enumerate()
-                .map(|(e, edge)| set.tail[i][e] * edge.length_m)
-                .sum::<f64>();
         for sign in [1.0, -1.0] {
-            let mut entries = vec![(iu + i, sign)];
-            for (e, terms) in set.tail_terms.iter().enumerate() {
-                for k in 0..terms.len() {
-                    entries.push((aux_start[e] + k, -set.tail[i][e]));
-                }
-            }
             if free_gradient {
-                entries.push((iz, -per_g / l_ref));
-                rows.push(&entries, 0.0);
+                rows.push(&[(iu + i, sign), (iz, -per_gradient[i] / l_ref)], fixed[i]);
             } else {
-                rows.push(&entries, g * per_g);
+                rows.push(&[(iu + i, sign)], g * per_gradient[i] + fixed[i]);
             }
         }
     }

@@ -20,14 +20,19 @@
 //! The readings of `g` are computed by superposition through the forward model with every
 //! hidden edge fixed at a hat (exact Fourier coefficients of piecewise-linear data,
 //! [`crate::forward::EdgeBasis::project`]); the series beyond `N` terms is bounded per sensor
-//! by `ε_{ie} S_e(v)` with
+//! by `ε_{ie} S_e` with
 //! `ε_{ie} = 4 e^{−k_c d_{ie}} / (k_c L_e (1 − e^{−π d_{ie} / L_e}))`, `k_c` the smaller of
 //! `N π / L_e` and the wavenumber where the series stops because `e^{−k d}` fell below
 //! [`NEGLIGIBLE_DECAY`], and
-//! `S_e = |u(0)| + |u(L_e)| + TV(u)`, `u = g − B` (integration by parts of the Fourier
-//! coefficient, `|a_n| ≤ 2 S_e / (k_n L_e)`, and `ψ_n(d) ≤ 2 e^{−k_n d}`; Carslaw & Jaeger
-//! §5.2 for the series). `S_e` is a convex function of the node values and enters the
-//! programs through auxiliary variables.
+//! `S_e = |u(0)| + |u(L_e)| + TV(u) ≤ G L_e + 3 T_span`, `u = g − B` the profile less the corner
+//! base (integration by parts of the Fourier coefficient, `|a_n| ≤ 2 S_e / (k_n L_e)`, and
+//! `ψ_n(d) ≤ 2 e^{−k_n d}`; Carslaw & Jaeger §5.2 for the series). The bound on `S_e` uses
+//! only that no two temperatures of the plate differ by more than [`TEMPERATURE_SPAN_K`]:
+//! `|u(0)|`, `|u(L_e)|` and `TV(B) = |B(L_e) − B(0)|` are each such a difference. It is a
+//! constant, so the allowance it adds to each reading is fixed: a convex program cannot use a
+//! sharper, profile-dependent `S_e` without letting the allowance grow without limit. On the
+//! sample layouts `ε` is about 1e-20 and the term is below 1e-15 K; a sensor very close to a
+//! hidden edge gets a wider allowance, and the bounds widen instead of failing.
 
 use crate::error::{Error, Result};
 use crate::forward::basis::NEGLIGIBLE_DECAY;
@@ -55,12 +60,9 @@ impl Default for Discretisation {
     }
 }
 
-/// One affine expression `coef · v + constant` in the node values (kelvin).
-#[derive(Debug, Clone)]
-pub(crate) struct Affine {
-    pub coef: Vec<(usize, f64)>,
-    pub constant: f64,
-}
+/// The largest difference between two temperatures anywhere on a plate, kelvin: twice the
+/// highest temperature any command accepts (5000 K). It bounds the series-tail term `S_e`.
+pub const TEMPERATURE_SPAN_K: f64 = 1.0e4;
 
 /// One hidden edge's nodes within the variable vector.
 #[derive(Debug, Clone)]
@@ -96,8 +98,6 @@ pub struct AdmissibleSet {
     pub(crate) rho_m: Vec<f64>,
     /// `ε_{ie}` per sensor and edge (dimensionless).
     pub(crate) tail: Vec<Vec<f64>>,
-    /// Per edge: the affine terms whose absolute values (plus `G L_e`) make `S_e`.
-    pub(crate) tail_terms: Vec<Vec<Affine>>,
     /// Largest `ε_{ie}` (reported).
     pub max_tail_factor: f64,
 }
@@ -152,9 +152,9 @@ impl AdmissibleSet {
             .iter()
             .map(|&e| (e, EdgeProfile::constant(0.0)))
             .collect();
-        let (offset, base0) = hat_response(plate, &zero, sensors, &edges, options)?;
+        let offset = hat_response(plate, &zero, sensors, options)?;
         // One column per node: the hat's readings minus the zero readings.
-        let columns: Vec<(Vec<f64>, Vec<[f64; 2]>)> = (0..node_count)
+        let columns: Vec<Vec<f64>> = (0..node_count)
             .into_par_iter()
             .map(|var| {
                 let mut profiles = zero.clone();
@@ -164,23 +164,16 @@ impl AdmissibleSet {
                 if let Some(slot) = profiles.iter_mut().find(|(x, _)| *x == e.edge) {
                     slot.1 = hat;
                 }
-                let (r, b) = hat_response(plate, &profiles, sensors, &edges, options)?;
-                Ok((
-                    r.iter().zip(&offset).map(|(a, o)| a - o).collect(),
-                    b.iter()
-                        .zip(&base0)
-                        .map(|(x, y)| [x[0] - y[0], x[1] - y[1]])
-                        .collect(),
-                ))
+                let r = hat_response(plate, &profiles, sensors, options)?;
+                Ok(r.iter().zip(&offset).map(|(a, o)| a - o).collect())
             })
             .collect::<Result<Vec<_>>>()?;
         let mut h = vec![0.0; m * node_count];
-        for (var, (col, _)) in columns.iter().enumerate() {
+        for (var, col) in columns.iter().enumerate() {
             for i in 0..m {
                 h[i * node_count + var] = col[i];
             }
         }
-        let tail_terms = tail_terms(&edges, &columns, &base0, k_nodes);
         let (tail, max_tail_factor) = tail_factors(&shape, sensors, &edges, options.known_terms);
         let rho_m = quasi_interpolation_allowance(plate, sensors, &edges)?;
         Ok(AdmissibleSet {
@@ -192,7 +185,6 @@ impl AdmissibleSet {
             sigmas: sigmas_k.to_vec(),
             rho_m,
             tail,
-            tail_terms,
             max_tail_factor,
         })
     }
@@ -266,7 +258,6 @@ impl AdmissibleSet {
             sigmas: sigmas_k,
             rho_m,
             tail: vec![vec![0.0]; m],
-            tail_terms: vec![Vec::new()],
             max_tail_factor: 0.0,
         })
     }
@@ -296,6 +287,25 @@ impl AdmissibleSet {
     pub fn rho_m(&self) -> &[f64] {
         &self.rho_m
     }
+
+    /// The model-error allowance of each reading, `|u_i| ≤ G a_i + b_i`: returns `(a, b)`
+    /// with `a_i = ρ_i + Σ_e ε_{ie} L_e` (metres: the quasi-interpolation and the tail's
+    /// `TV(g) ≤ G L_e`) and `b_i = 3 T_span Σ_e ε_{ie}` (kelvin: the rest of the tail bound).
+    pub(crate) fn allowance(&self) -> (Vec<f64>, Vec<f64>) {
+        (0..self.sensor_count())
+            .map(|i| {
+                let per_gradient = self.rho_m[i]
+                    + self
+                        .edges
+                        .iter()
+                        .zip(&self.tail[i])
+                        .map(|(e, eps)| eps * e.length_m)
+                        .sum::<f64>();
+                let fixed = 3.0 * TEMPERATURE_SPAN_K * self.tail[i].iter().sum::<f64>();
+                (per_gradient, fixed)
+            })
+            .unzip()
+    }
 }
 
 /// The hat function of node `j` as a piecewise-linear profile.
@@ -324,36 +334,16 @@ fn hat_profile(nodes: &[f64], j: usize) -> Result<EdgeProfile> {
     EdgeProfile::piecewise_linear(pos, val).map_err(Error::Internal)
 }
 
-/// Readings at `sensors` with the hidden edges fixed at `profiles`, and the corner base at the
-/// two ends of each hidden edge.
+/// Readings at `sensors` with the hidden edges fixed at `profiles`.
 fn hat_response(
     plate: &Plate,
     profiles: &[(Edge, EdgeProfile)],
     sensors: &[Point],
-    edges: &[EdgeNodes],
     options: SeriesOptions,
-) -> Result<(Vec<f64>, Vec<[f64; 2]>)> {
+) -> Result<Vec<f64>> {
     let fixed = plate.with_unknowns_fixed(profiles)?;
     let model = ForwardModel::new(&fixed, options)?;
-    let readings = sensors
-        .iter()
-        .map(|&p| model.temperature(&[], p))
-        .collect::<Result<Vec<f64>>>()?;
-    let shape = fixed.shape();
-    let base = edges
-        .iter()
-        .map(|e| {
-            [
-                model
-                    .base()
-                    .evaluate(shape.point_on(e.edge, 0.0), |_, _| {}),
-                model
-                    .base()
-                    .evaluate(shape.point_on(e.edge, e.length_m), |_, _| {}),
-            ]
-        })
-        .collect();
-    Ok((readings, base))
+    sensors.iter().map(|&p| model.temperature(&[], p)).collect()
 }
 
 /// `ρ_i = Σ_e ∫_0^{L_e} |R_{ie}(s)| ds` with `R_{ie}(s) = ∫_0^s (K_{ie} − Q K_{ie})`, metres,
@@ -510,51 +500,6 @@ fn sensors_off_hidden_edges(shape: &Shape, sensors: &[Point], edges: &[EdgeNodes
         }
     }
     Ok(())
-}
-
-/// The affine forms of the tail terms of every hidden edge, in the node values:
-/// `u(0) = v_0 − B(0)`, `u(L) = v_K − B(L)` and `TV(B) = |B(L) − B(0)|`, where `B` is the
-/// corner base (`columns[var].1[edge][end]` its response to node `var`).
-fn tail_terms(
-    edges: &[EdgeNodes],
-    columns: &[(Vec<f64>, Vec<[f64; 2]>)],
-    base0: &[[f64; 2]],
-    k_nodes: usize,
-) -> Vec<Vec<Affine>> {
-    let mut tail_terms = Vec::new();
-    for (ei, e) in edges.iter().enumerate() {
-        let base_at = |end: usize| -> Affine {
-            let coef: Vec<(usize, f64)> = columns
-                .iter()
-                .enumerate()
-                .map(|(var, (_, b))| (var, b[ei][end]))
-                .filter(|(_, c)| *c != 0.0)
-                .collect();
-            Affine {
-                coef,
-                constant: base0[ei][end],
-            }
-        };
-        let (b0, b1) = (base_at(0), base_at(1));
-        let minus = |a: &Affine, var: usize| -> Affine {
-            let mut coef: Vec<(usize, f64)> = a.coef.iter().map(|&(i, c)| (i, -c)).collect();
-            coef.push((var, 1.0));
-            Affine {
-                coef,
-                constant: -a.constant,
-            }
-        };
-        let u0 = minus(&b0, e.first);
-        let u1 = minus(&b1, e.first + k_nodes - 1);
-        let mut db: Vec<(usize, f64)> = b1.coef.clone();
-        db.extend(b0.coef.iter().map(|&(i, c)| (i, -c)));
-        let tv_b = Affine {
-            coef: db,
-            constant: b1.constant - b0.constant,
-        };
-        tail_terms.push(vec![u0, u1, tv_b]);
-    }
-    tail_terms
 }
 
 /// The tail factor `ε_{ie}` of every sensor and hidden edge (the share of a unit edge change

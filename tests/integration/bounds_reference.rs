@@ -11,6 +11,7 @@
 //! relative (both invert the regularised incomplete gamma function to machine accuracy).
 
 use edgetherm::bounds::AdmissibleSet;
+use edgetherm::bounds::dual::DualData;
 use edgetherm::bounds::program::{Limits, Objective, Outcome, solve};
 use edgetherm::geometry::Edge;
 use serde_json::Value;
@@ -91,4 +92,136 @@ fn programs_match_an_independent_solver() {
         checked += 1;
     }
     assert_eq!(checked, 15, "every reference program was compared");
+}
+
+/// The node bounds from the dual (`edgetherm::bounds::dual`) against the same ECOS optima.
+/// Any dual point gives a valid bound, so the dual may only be above the optimum: by at
+/// most its smoothing tolerance (1e-5 K per smoothed group, two groups) plus the optimum's
+/// own uncertainty (3e-6 K, above); 5e-5 K covers both. Below the optimum by more than the
+/// reference's uncertainty would be a false bound.
+#[test]
+fn dual_node_bounds_match_the_independent_solver() {
+    let f = fixture();
+    let nodes = f["nodes"].as_u64().expect("nodes") as usize;
+    let set = AdmissibleSet::from_matrix(
+        Edge::Bottom,
+        f["length_m"].as_f64().expect("length"),
+        nodes,
+        floats(&f["h"]),
+        floats(&f["offset"]),
+        floats(&f["readings"]),
+        floats(&f["sigma"]),
+        floats(&f["rho_m"]),
+    )
+    .expect("a consistent set");
+    let radius = f["chi2_quantile"].as_f64().expect("quantile").sqrt();
+    let dual = DualData::new(&set);
+    let mut checked = 0;
+    for p in f["programs"].as_array().expect("programs") {
+        let limited = p["t_min"].as_f64().is_some() || p["t_max"].as_f64().is_some();
+        let (Some(want), false) = (p["value"].as_f64(), limited) else {
+            continue;
+        };
+        let node = p["node"].as_u64().expect("node") as usize;
+        let gradient = p["gradient"].as_f64().unwrap_or(0.0);
+        let (maximise, sign) = match p["objective"].as_str().expect("objective") {
+            "max_node" => (true, 1.0),
+            "min_node" => (false, -1.0),
+            _ => continue,
+        };
+        let name = p["name"].as_str().expect("name");
+        let got = sign
+            * dual
+                .node_bound(node, maximise, gradient, radius)
+                .unwrap_or_else(|| panic!("{name}: the dual search did not settle"));
+        // an upper bound for max, a lower bound for min: how much looser than the optimum
+        let looser = sign * (got - want);
+        assert!(
+            (-3e-6..=5e-5).contains(&looser),
+            "{name}: dual {got} vs ECOS {want} (looser by {looser:e} K)"
+        );
+        checked += 1;
+    }
+    assert_eq!(checked, 10, "every unlimited node program was compared");
+}
+
+/// The dual against the conic programs on a set with two hidden edges meeting at a corner
+/// and a series tail (the conic solver is the independent method here: an interior-point
+/// method on the node values, against a Newton search over the sensors' multipliers).
+#[test]
+fn dual_node_bounds_match_the_conic_programs_on_two_edges() {
+    use edgetherm::geometry::{EdgeCondition, EdgeProfile, Plate, Point, Shape};
+    let mut conditions: [Option<EdgeCondition>; 4] = [None, None, None, None];
+    conditions[Edge::Bottom.index()] = Some(EdgeCondition::Unknown);
+    conditions[Edge::Left.index()] = Some(EdgeCondition::Unknown);
+    conditions[Edge::Top.index()] = Some(EdgeCondition::Fixed(EdgeProfile::constant(300.0)));
+    conditions[Edge::Right.index()] = Some(EdgeCondition::Insulated);
+    let plate = Plate::new(
+        Shape::Rectangle {
+            width_m: 0.06,
+            height_m: 0.04,
+        },
+        conditions,
+        None,
+    )
+    .expect("plate");
+    // invented layout and readings
+    let sensors: Vec<Point> = [
+        (0.01, 0.01),
+        (0.03, 0.008),
+        (0.05, 0.012),
+        (0.008, 0.03),
+        (0.035, 0.025),
+        (0.02, 0.018),
+    ]
+    .iter()
+    .map(|&(x, y)| Point::new(x, y))
+    .collect();
+    let readings = [312.0, 309.5, 306.0, 307.5, 304.0, 309.0];
+    let sigmas = [0.3; 6];
+    let set = AdmissibleSet::new(
+        &plate,
+        &sensors,
+        &readings,
+        &sigmas,
+        edgetherm::bounds::Discretisation {
+            nodes_per_edge: 31,
+            terms: 256,
+        },
+    )
+    .expect("set");
+    let m = sensors.len() as f64;
+    let radius = ChiSquared::new(m)
+        .expect("chi-square")
+        .inverse_cdf(0.95)
+        .sqrt();
+    let dual = DualData::new(&set);
+    let limits = Limits {
+        gradient: 600.0,
+        radius,
+        t_min: None,
+        t_max: None,
+    };
+    for node in [0, 7, 15, 30, 31, 45, 61] {
+        for (maximise, sign) in [(true, 1.0), (false, -1.0)] {
+            let objective = if maximise {
+                Objective::MaxNode(node)
+            } else {
+                Objective::MinNode(node)
+            };
+            let Outcome::Value(want) = solve(&set, limits, objective) else {
+                panic!("node {node}: the conic program has no value");
+            };
+            let got = sign
+                * dual
+                    .node_bound(node, maximise, limits.gradient, radius)
+                    .expect("the dual search settles");
+            let looser = sign * (got - want);
+            // Clarabel stops at a 1e-8 relative gap (3e-6 K here); see above for the dual
+            assert!(
+                (-3e-6..=5e-5).contains(&looser),
+                "node {node} max {maximise}: dual {got} vs conic {want} ({looser:e} K)"
+            );
+        }
+    }
 }
