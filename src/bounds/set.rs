@@ -36,6 +36,7 @@
 
 use crate::error::{Error, Result};
 use crate::forward::basis::NEGLIGIBLE_DECAY;
+use crate::forward::basis::Series;
 use crate::forward::{ForwardModel, SeriesOptions};
 use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Point, Shape};
 use rayon::prelude::*;
@@ -153,10 +154,24 @@ impl AdmissibleSet {
             .map(|&e| (e, EdgeProfile::constant(0.0)))
             .collect();
         let offset = hat_response(plate, &zero, sensors, options)?;
-        // One column per node: the hat's readings minus the zero readings.
-        let columns: Vec<Vec<f64>> = (0..node_count)
-            .into_par_iter()
-            .map(|var| {
+        // One column per node: the hat's readings minus the zero readings. An interior hat
+        // leaves the corner values alone, so its readings follow from the hidden edge's series
+        // alone (superposition); only the two end nodes of each edge move a corner.
+        let zero_model = ForwardModel::new(&plate.with_unknowns_fixed(&zero)?, options)?;
+        let mut columns: Vec<Vec<f64>> = vec![Vec::new(); node_count];
+        for e in &edges {
+            let interior = interior_hat_columns(&zero_model, &shape, e, sensors, options)?;
+            for (j, col) in interior.into_iter().enumerate() {
+                columns[e.first + 1 + j] = col;
+            }
+        }
+        let ends: Vec<usize> = edges
+            .iter()
+            .flat_map(|e| [e.first, e.first + k_nodes - 1])
+            .collect();
+        let end_columns = ends
+            .par_iter()
+            .map(|&var| {
                 let mut profiles = zero.clone();
                 let e = &edges[var / k_nodes];
                 let j = var - e.first;
@@ -167,7 +182,10 @@ impl AdmissibleSet {
                 let r = hat_response(plate, &profiles, sensors, options)?;
                 Ok(r.iter().zip(&offset).map(|(a, o)| a - o).collect())
             })
-            .collect::<Result<Vec<_>>>()?;
+            .collect::<Result<Vec<Vec<f64>>>>()?;
+        for (&var, col) in ends.iter().zip(end_columns) {
+            columns[var] = col;
+        }
         let mut h = vec![0.0; m * node_count];
         for (var, col) in columns.iter().enumerate() {
             for i in 0..m {
@@ -332,6 +350,70 @@ fn hat_profile(nodes: &[f64], j: usize) -> Result<EdgeProfile> {
         val.push(0.0);
     }
     EdgeProfile::piecewise_linear(pos, val).map_err(Error::Internal)
+}
+
+/// The readings of each interior hat of edge `e` (nodes `1..K−1`), one column per node: the
+/// hat's Fourier coefficients on the edge's basis times the modes at each sensor. A symmetric
+/// hat of half-width `h` at `s_j` has `∫ θ_j φ_n = φ_n(s_j) h sinc²(k_n h / 2)` (its odd part
+/// integrates to zero), which is what [`crate::forward::EdgeBasis::project`] gives for the
+/// two segments, at a fraction of the cost.
+fn interior_hat_columns(
+    zero_model: &ForwardModel,
+    shape: &Shape,
+    e: &EdgeNodes,
+    sensors: &[Point],
+    options: SeriesOptions,
+) -> Result<Vec<Vec<f64>>> {
+    let Some(series) = zero_model.series_of(e.edge) else {
+        return Err(Error::Internal(format!(
+            "strict bounds: the {} edge has no series",
+            e.edge
+        )));
+    };
+    let series = Series::new(series.basis, series.decay, options.known_terms);
+    let terms = series.terms();
+    let h = e.spacing_m;
+    // per sensor: modes φ_n(s_i) ψ_n(d_i), and how many matter
+    let mut modes = vec![0.0; sensors.len() * terms];
+    let mut used = 0;
+    for (i, &p) in sensors.iter().enumerate() {
+        let (s, d) = (shape.position_along(e.edge, p), shape.depth_from(e.edge, p));
+        used = used.max(series.modes_into(s, d, &mut modes[i * terms..(i + 1) * terms]));
+    }
+    // the hat's coefficient factor h sinc²(k h / 2) / ‖φ_n‖²
+    let factor: Vec<f64> = (0..used)
+        .map(|n| {
+            let half = 0.5 * series.wavenumber(n) * h;
+            let sinc = if half == 0.0 { 1.0 } else { half.sin() / half };
+            h * sinc * sinc / series.basis.norm_sq(n)
+        })
+        .collect();
+    let weighted: Vec<f64> = (0..sensors.len())
+        .flat_map(|i| {
+            modes[i * terms..i * terms + used]
+                .iter()
+                .zip(&factor)
+                .map(|(m, f)| m * f)
+                .collect::<Vec<f64>>()
+        })
+        .collect();
+    let last = e.positions_m.len() - 1;
+    Ok(e.positions_m[1..last]
+        .par_iter()
+        .map(|&s_j| {
+            let mut phi = vec![0.0; used];
+            series.basis.values_into(s_j, &mut phi);
+            (0..sensors.len())
+                .map(|i| {
+                    weighted[i * used..(i + 1) * used]
+                        .iter()
+                        .zip(&phi)
+                        .map(|(a, b)| a * b)
+                        .sum()
+                })
+                .collect()
+        })
+        .collect())
 }
 
 /// Readings at `sensors` with the hidden edges fixed at `profiles`.
