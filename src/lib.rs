@@ -35,6 +35,7 @@ pub mod estimate;
 pub mod forward;
 pub mod geometry;
 pub mod inverse;
+pub mod its90;
 pub mod io;
 pub mod noise;
 pub mod report;
