@@ -175,3 +175,61 @@ fn the_outputs_state_the_conversion_and_offsets() {
     let reading: f64 = tc02.split(',').nth(3).unwrap().parse().unwrap();
     assert!((reading - (rows[1].1 - 0.25)).abs() < 1e-3, "{tc02}");
 }
+
+/// `track` on a logger in mV with a `cold_junction` column gives the rows of the same logger
+/// in °C (numbers as written in track.csv, to their last decimal).
+#[test]
+fn track_on_a_voltage_logger_equals_track_on_temperatures() {
+    let rows = sample_readings();
+    let d = case_with(
+        "[thermocouple]\ntype = \"N\"\nsignal = \"emf_mv\"\ncold_junction = \"column\"\n",
+        "sensor,emf_mv\n",
+    );
+    let ty = Its90Type::N;
+    let ids: Vec<&str> = rows.iter().map(|(s, _)| s.as_str()).collect();
+    let mut log_t = format!("time,{}\n", ids.join(","));
+    let mut log_v = format!("time,cold_junction,{}\n", ids.join(","));
+    for r in 0..6 {
+        let cj = 22.0 + 0.5 * r as f64;
+        let ts: Vec<f64> = rows.iter().map(|(_, t)| t + 0.3 * r as f64).collect();
+        let cells_t: Vec<String> = ts.iter().map(|t| format!("{t:.4}")).collect();
+        let cells_v: Vec<String> = ts
+            .iter()
+            .map(|t| {
+                let t: f64 = format!("{t:.4}").parse().unwrap();
+                format!("{:e}", ty.emf_mv(t).unwrap() - ty.emf_mv(cj).unwrap())
+            })
+            .collect();
+        log_t.push_str(&format!("{},{}\n", 10 * r, cells_t.join(",")));
+        log_v.push_str(&format!("{},{cj},{}\n", 10 * r, cells_v.join(",")));
+    }
+    std::fs::write(d.path().join("log-t.csv"), log_t).unwrap();
+    std::fs::write(d.path().join("log-v.csv"), log_v).unwrap();
+    let run = |plate: &Path, log: &str, out: &str| {
+        let o = cargo_bin_cmd!("edgetherm")
+            .arg("--plate")
+            .arg(plate)
+            .args(["--quiet", "track", "--log"])
+            .arg(d.path().join(log))
+            .arg("--out")
+            .arg(d.path().join(out))
+            .arg(d.path())
+            .output()
+            .unwrap();
+        assert_eq!(o.status.code(), Some(0), "{}", String::from_utf8_lossy(&o.stderr));
+        std::fs::read_to_string(d.path().join(out).join("track.csv")).unwrap()
+    };
+    let track_v = run(&d.path().join("plate.toml"), "log-v.csv", "out-v");
+    let track_t = run(&Path::new(SAMPLE).join("plate.toml"), "log-t.csv", "out-t");
+    assert_eq!(track_v.lines().count(), 7);
+    for (a, b) in track_t.lines().zip(track_v.lines()) {
+        for (x, y) in a.split(',').zip(b.split(',')) {
+            match (x.parse::<f64>(), y.parse::<f64>()) {
+                (Ok(x), Ok(y)) => assert!((x - y).abs() <= 2e-4, "{a}\n{b}"),
+                _ => assert_eq!(x, y),
+            }
+        }
+    }
+    let summary = std::fs::read_to_string(d.path().join("out-v/summary.json")).unwrap();
+    assert!(summary.contains("\"cold_junction\": \"column\""), "{summary}");
+}
