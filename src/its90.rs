@@ -416,7 +416,9 @@ impl Its90Type {
     /// Parse the letter (either case, surrounding blanks ignored).
     pub fn parse(s: &str) -> Option<Self> {
         let s = s.trim();
-        ALL_TYPES.into_iter().find(|t| t.name().eq_ignore_ascii_case(s))
+        ALL_TYPES
+            .into_iter()
+            .find(|t| t.name().eq_ignore_ascii_case(s))
     }
 
     fn pieces(self) -> &'static [Piece] {

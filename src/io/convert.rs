@@ -44,7 +44,11 @@ pub(crate) fn cold_junction_k(case: &Case, t: f64) -> Result<f64, String> {
 /// A reading as written (a temperature in the case unit, or a voltage in mV) to kelvin,
 /// before the sensor's offset. `cold_junction_k` is the row's cold junction when the case
 /// takes it from a column.
-pub(crate) fn reading_k(case: &Case, value: f64, cold_junction_k: Option<f64>) -> Result<f64, String> {
+pub(crate) fn reading_k(
+    case: &Case,
+    value: f64,
+    cold_junction_k: Option<f64>,
+) -> Result<f64, String> {
     let units = &case.units;
     let Some(conv) = case.conversion() else {
         return crate::io::csv_files::absolute_temperature(units, value);

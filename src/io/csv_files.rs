@@ -408,7 +408,9 @@ pub(crate) fn read_sensors(path: &Path, units: &Units, shape: &Shape) -> Result<
             }
             s => s.map(|s| units.length_to_m(s)),
         };
-        let offset_k = table.opt_number(row, "offset")?.map(|o| units.dtemp_to_k(o));
+        let offset_k = table
+            .opt_number(row, "offset")?
+            .map(|o| units.dtemp_to_k(o));
         sensors.push(Sensor {
             id,
             position,
@@ -489,8 +491,8 @@ pub(crate) fn read_readings(path: &Path, case: &Case) -> Result<Vec<Option<f64>>
         } else {
             None
         };
-        let k = super::convert::reading_k(case, v, cj)
-            .map_err(|m| table.error(row.line, value, m))?;
+        let k =
+            super::convert::reading_k(case, v, cj).map_err(|m| table.error(row.line, value, m))?;
         values[i] = Some(super::convert::with_offset(case, i, k));
         lines[i] = row.line;
     }

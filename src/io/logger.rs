@@ -385,11 +385,11 @@ impl LoggerReader {
         // converted): its readings are all missing.
         let cold_junction = match self.cold_junction_column {
             Some(c) => match self.cell_value(&self.record[c], line, c)? {
-                Some(v) => Some(
-                    crate::io::convert::cold_junction_k(&self.case, v).map_err(|m| {
+                Some(v) => Some(crate::io::convert::cold_junction_k(&self.case, v).map_err(
+                    |m| {
                         Error::invalid_at(&self.path, Some(line as usize), Some("cold_junction"), m)
-                    })?,
-                ),
+                    },
+                )?),
                 None => return Ok(true),
             },
             None => None,
@@ -471,7 +471,9 @@ impl LoggerReader {
                 self.units.temperature
             )));
         }
-        Ok(Some(crate::io::convert::with_offset(&self.case, sensor, kelvin)))
+        Ok(Some(crate::io::convert::with_offset(
+            &self.case, sensor, kelvin,
+        )))
     }
 }
 

@@ -6,14 +6,14 @@
 //! found through [`TomlSpans`].
 
 use crate::case::{
-    BoundsSettings, CandidateSource, ColdJunction, Criterion, DesignSettings, FitSettings,
-    Region, Signal, Smoothing, StrengthRule, ThermocoupleSettings, UncertaintySettings,
+    BoundsSettings, CandidateSource, ColdJunction, Criterion, DesignSettings, FitSettings, Region,
+    Signal, Smoothing, StrengthRule, ThermocoupleSettings, UncertaintySettings,
 };
-use crate::its90::Its90Type;
 use crate::error::{Error, Result};
 use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Shape};
 use crate::io::csv_files::{self, absolute_temperature};
 use crate::io::spans::{TomlSpans, guess_field_on_line, header_name};
+use crate::its90::Its90Type;
 use crate::noise::{NoiseSpec, ThermocoupleType, ToleranceClass};
 use crate::units::{LengthUnit, TemperatureUnit, Units};
 use serde::Deserialize;

@@ -14,7 +14,10 @@ use edgetherm::io::{load_case, load_readings};
 use edgetherm::its90::Its90Type;
 use std::path::Path;
 
-const SAMPLE: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/sample-measurements/cold-plate");
+const SAMPLE: &str = concat!(
+    env!("CARGO_MANIFEST_DIR"),
+    "/sample-measurements/cold-plate"
+);
 
 /// The cold-plate sample with its readings (°C) as rows `(sensor, t)`.
 fn sample_readings() -> Vec<(String, f64)> {
@@ -97,7 +100,10 @@ fn voltages_give_the_estimate_of_their_temperatures() {
         }
         assert_eq!(
             r.sensors.iter().map(|s| s.flag.clone()).collect::<Vec<_>>(),
-            base.sensors.iter().map(|s| s.flag.clone()).collect::<Vec<_>>()
+            base.sensors
+                .iter()
+                .map(|s| s.flag.clone())
+                .collect::<Vec<_>>()
         );
         let c = r.conversion.expect("the conversion is stated");
         assert!(c.describe(&case_v.units).contains("type"), "{c:?}");
@@ -133,7 +139,10 @@ fn the_outputs_state_the_conversion_and_offsets() {
     let k = Its90Type::K;
     let mut text = String::from("sensor,emf_mv\n");
     for (s, t) in &rows {
-        text.push_str(&format!("{s},{:e}\n", k.emf_mv(*t).unwrap() - k.emf_mv(25.0).unwrap()));
+        text.push_str(&format!(
+            "{s},{:e}\n",
+            k.emf_mv(*t).unwrap() - k.emf_mv(25.0).unwrap()
+        ));
     }
     let d = case_with(
         "[thermocouple]\ntype = \"K\"\nsignal = \"emf_mv\"\ncold_junction = 25\n",
@@ -155,8 +164,16 @@ fn the_outputs_state_the_conversion_and_offsets() {
         .output()
         .unwrap();
     let stdout = String::from_utf8_lossy(&out.stdout);
-    assert_eq!(out.status.code(), Some(0), "{}", String::from_utf8_lossy(&out.stderr));
-    assert!(stdout.contains("converted from thermocouple voltages"), "{stdout}");
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(
+        stdout.contains("converted from thermocouple voltages"),
+        "{stdout}"
+    );
     assert!(stdout.contains("type K"), "{stdout}");
     assert!(stdout.contains("cold junction 25 °C"), "{stdout}");
     assert!(stdout.contains("TC02 0.25"), "{stdout}");
@@ -216,7 +233,12 @@ fn track_on_a_voltage_logger_equals_track_on_temperatures() {
             .arg(d.path())
             .output()
             .unwrap();
-        assert_eq!(o.status.code(), Some(0), "{}", String::from_utf8_lossy(&o.stderr));
+        assert_eq!(
+            o.status.code(),
+            Some(0),
+            "{}",
+            String::from_utf8_lossy(&o.stderr)
+        );
         std::fs::read_to_string(d.path().join(out).join("track.csv")).unwrap()
     };
     let track_v = run(&d.path().join("plate.toml"), "log-v.csv", "out-v");
@@ -231,5 +253,8 @@ fn track_on_a_voltage_logger_equals_track_on_temperatures() {
         }
     }
     let summary = std::fs::read_to_string(d.path().join("out-v/summary.json")).unwrap();
-    assert!(summary.contains("\"cold_junction\": \"column\""), "{summary}");
+    assert!(
+        summary.contains("\"cold_junction\": \"column\""),
+        "{summary}"
+    );
 }

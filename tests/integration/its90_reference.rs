@@ -86,7 +86,10 @@ fn monograph_table_values() {
         );
         // and back: the table value inverts to within the table's resolution in °C
         let back = tc(letter).temperature_c(e).unwrap_or(t);
-        assert!((back - t).abs() < 1e-6, "type {letter} at {t} °C: back {back}");
+        assert!(
+            (back - t).abs() < 1e-6,
+            "type {letter} at {t} °C: back {back}"
+        );
     }
 }
 
@@ -109,11 +112,17 @@ fn independent_implementation_over_whole_ranges() {
         let e = ty.emf_mv(t).unwrap();
         let s = ty.slope_mv_per_c(t).unwrap();
         assert!((e - e_ref).abs() < 1e-9, "{ty} at {t}: E {e} vs {e_ref}");
-        assert!((s - s_ref).abs() < 1e-9, "{ty} at {t}: slope {s} vs {s_ref}");
+        assert!(
+            (s - s_ref).abs() < 1e-9,
+            "{ty} at {t}: slope {s} vs {s_ref}"
+        );
         if !f[4].is_empty() {
             let t_ref: f64 = f[4].parse().unwrap();
             let back = ty.temperature_c(e_ref).unwrap();
-            assert!((back - t_ref).abs() < 1e-6, "{ty}: t({e_ref}) {back} vs {t_ref}");
+            assert!(
+                (back - t_ref).abs() < 1e-6,
+                "{ty}: t({e_ref}) {back} vs {t_ref}"
+            );
             inverses += 1;
         } else {
             assert!(ty == Its90Type::B && t < 50.0, "{line}");

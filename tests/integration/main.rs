@@ -4,11 +4,11 @@
 //! `cargo test --test integration GROUP::` (e.g. `cargo test --test integration
 //! calibration:: -- --nocapture` to see its printed figures).
 
+mod bench_readings;
 mod bounds_checks;
 mod bounds_reference;
 mod calibration;
 mod cli_bounds;
-mod bench_readings;
 mod cli_check;
 mod cli_estimate;
 mod cli_invalid_input;

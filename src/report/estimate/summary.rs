@@ -335,7 +335,10 @@ pub(crate) fn offsets_text(r: &EstimateResult) -> String {
     let u = CaseUnits::new(r.units);
     r.sensors
         .iter()
-        .filter_map(|s| s.offset.map(|o| format!("{} {}", s.sensor, u.dtemp_show(o))))
+        .filter_map(|s| {
+            s.offset
+                .map(|o| format!("{} {}", s.sensor, u.dtemp_show(o)))
+        })
         .collect::<Vec<_>>()
         .join(", ")
 }
