@@ -421,6 +421,11 @@ impl LoggerReader {
         let name = &self.column_names[k];
         let text = std::str::from_utf8(cell).map_err(|_| self.not_text(line, name))?;
         let err = |msg: String| Error::invalid_at(&self.path, Some(line as usize), Some(name), msg);
+        let what = if self.cold_junction_column != Some(k) && self.case.conversion().is_some() {
+            "voltage"
+        } else {
+            "temperature"
+        };
         let v = match text.parse::<f64>() {
             Ok(v) => v,
             Err(_) => {
@@ -428,7 +433,7 @@ impl LoggerReader {
                     return Ok(None);
                 }
                 return Err(err(format!(
-                    "`{}` is neither a number nor a known fault marker (empty, NaN, OPEN, \
+                    "`{}` is neither a {what} nor a known fault marker (empty, NaN, OPEN, \
                      OVER, ERR, ... see docs/track.md)",
                     shorten(text)
                 )));
@@ -442,7 +447,7 @@ impl LoggerReader {
         }
         if !v.is_finite() {
             return Err(err(format!(
-                "`{}` is not a finite number; write a reading, or leave the cell empty \
+                "`{}` is not a finite number; write a {what}, or leave the cell empty \
                  when there is no reading",
                 shorten(text)
             )));

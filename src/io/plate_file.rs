@@ -1061,6 +1061,102 @@ sigma = 0.5
     }
 
     #[test]
+    fn thermocouple_section() {
+        let no_noise = GOOD.replace("[noise]\nsigma = 0.5\n", "");
+        let f = parse(&format!(
+            "{no_noise}[thermocouple]\ntype = \"k\"\nsignal = \"emf_mv\"\ncold_junction = 23.4\n\
+             [noise]\ntolerance_class = \"iec-1\"\n"
+        ))
+        .unwrap();
+        let tc = f.thermocouple.unwrap();
+        assert_eq!(tc.tc_type, Its90Type::K);
+        assert_eq!(tc.signal, Signal::EmfMv);
+        match tc.cold_junction {
+            Some(ColdJunction::Fixed(k)) => assert!((k - 296.55).abs() < 1e-9),
+            other => panic!("{other:?}"),
+        }
+        // the tolerance class takes the [thermocouple] type
+        assert_eq!(
+            f.noise,
+            NoiseSpec::Tolerance {
+                class: ToleranceClass::Iec1,
+                tc_type: ThermocoupleType::K
+            }
+        );
+        let f = parse(&format!(
+            "{no_noise}[thermocouple]\ntype = \"S\"\nsignal = \"emf_mv\"\n\
+             cold_junction = \"column\"\n[noise]\nsigma_emf_mv = 0.002\n"
+        ))
+        .unwrap();
+        assert_eq!(
+            f.thermocouple.unwrap().cold_junction,
+            Some(ColdJunction::Column)
+        );
+        assert_eq!(
+            f.noise,
+            NoiseSpec::Emf {
+                sigma_mv: 0.002,
+                tc_type: Its90Type::S
+            }
+        );
+        let bad = [
+            (
+                "type = \"C\"\n",
+                "thermocouple.type",
+                "unknown thermocouple type",
+            ),
+            (
+                "type = \"K\"\nsignal = \"emf_mv\"\n",
+                "thermocouple.signal",
+                "cold_junction",
+            ),
+            (
+                "type = \"K\"\ncold_junction = 20\n",
+                "thermocouple.cold_junction",
+                "voltage readings only",
+            ),
+            (
+                "type = \"K\"\nsignal = \"volts\"\n",
+                "thermocouple.signal",
+                "unknown signal",
+            ),
+            (
+                "type = \"T\"\nsignal = \"emf_mv\"\ncold_junction = 500\n",
+                "thermocouple.cold_junction",
+                "outside the type T",
+            ),
+            (
+                "type = \"K\"\nsignal = \"emf_mv\"\ncold_junction = \"room\"\n",
+                "thermocouple.cold_junction",
+                "not a cold junction",
+            ),
+            (
+                "type = \"K\"\n[noise]\nsigma_emf_mv = 0.01\n",
+                "noise.sigma_emf_mv",
+                "needs voltage readings",
+            ),
+            (
+                "type = \"R\"\n[noise]\ntolerance_class = \"iec-1\"\n",
+                "noise.tolerance_class",
+                "not type R",
+            ),
+            (
+                "type = \"K\"\n[noise]\ntolerance_class = \"iec-1\"\ntype = \"J\"\n",
+                "noise.type",
+                "differs",
+            ),
+        ];
+        for (section, field, gist) in bad {
+            let text = format!("{no_noise}[thermocouple]\n{section}");
+            let e = parse(&text).unwrap_err();
+            let (line, f, m) = loc(&e);
+            assert_eq!(f.as_deref(), Some(field), "{section}: {e}");
+            assert!(line.is_some(), "{section}: {e}");
+            assert!(m.contains(gist), "{section}: {e}");
+        }
+    }
+
+    #[test]
     fn bounds_section_in_si_units() {
         let f = parse(GOOD).unwrap();
         assert_eq!(f.bounds, BoundsSettings::default());
