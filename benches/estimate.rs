@@ -28,6 +28,7 @@ fn main() {
             ),
             sigma_k: None,
             position_sigma_m: None,
+            offset_k: None,
             line: i + 2,
         })
         .collect();

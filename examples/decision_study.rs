@@ -42,6 +42,7 @@ fn case(xs: &[f64], depth: impl Fn(usize) -> f64) -> edgetherm::case::Case {
             position: Point::new(x, depth(i)),
             sigma_k: None,
             position_sigma_m: None,
+            offset_k: None,
             line: i + 2,
         })
         .collect();

@@ -24,8 +24,91 @@ pub struct Sensor {
     pub sigma_k: Option<f64>,
     /// The sensor's own position uncertainty, metres (the `position_sigma` column), if given.
     pub position_sigma_m: Option<f64>,
+    /// A calibration offset, kelvin (the `offset` column): subtracted from every reading of
+    /// the sensor (after any voltage conversion).
+    pub offset_k: Option<f64>,
     /// 1-based line of the sensor in `sensors.csv`, for messages.
     pub line: usize,
+}
+
+/// What the readings hold (`[thermocouple] signal`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Signal {
+    /// Temperatures in the case's unit (the default).
+    Temperature,
+    /// Thermoelectric voltages in millivolts, converted with the type's ITS-90 reference
+    /// function ([`crate::its90`]).
+    EmfMv,
+}
+
+/// Where the reference (cold) junction temperature of voltage readings comes from.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ColdJunction {
+    /// One temperature for every reading, kelvin.
+    Fixed(f64),
+    /// A `cold_junction` column of the readings (case temperature unit), row by row.
+    Column,
+}
+
+/// The `[thermocouple]` section: the type of the case's thermocouples and what the readings
+/// hold.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct ThermocoupleSettings {
+    /// The type (its ITS-90 reference function; also the type of `[noise] tolerance_class`).
+    pub tc_type: crate::its90::Its90Type,
+    /// Temperatures or voltages.
+    pub signal: Signal,
+    /// The cold junction, for voltage readings (`None` for temperatures).
+    pub cold_junction: Option<ColdJunction>,
+}
+
+impl ThermocoupleSettings {
+    /// The voltage conversion, when the readings are voltages.
+    pub fn conversion(&self) -> Option<ReadingConversion> {
+        match (self.signal, self.cold_junction) {
+            (Signal::EmfMv, Some(cold_junction)) => Some(ReadingConversion {
+                tc_type: self.tc_type,
+                cold_junction,
+            }),
+            _ => None,
+        }
+    }
+}
+
+/// How voltage readings were converted to temperatures, for the outputs.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct ReadingConversion {
+    /// The thermocouple type.
+    pub tc_type: crate::its90::Its90Type,
+    /// The cold junction used.
+    pub cold_junction: ColdJunction,
+}
+
+impl ReadingConversion {
+    /// One sentence for people, temperatures in `units`: "Readings converted from
+    /// thermocouple voltages (mV): type K, NIST ITS-90 reference function, cold junction
+    /// 23.4 °C."
+    pub fn describe(&self, units: &Units) -> String {
+        let cj = match self.cold_junction {
+            ColdJunction::Fixed(k) => {
+                let v = units.temp_from_k(k);
+                let v = format!("{v:.6}");
+                let v = v.trim_end_matches('0').trim_end_matches('.');
+                format!("cold junction {v} {}", degree_symbol(units))
+            }
+            ColdJunction::Column => {
+                "cold junction row by row from the `cold_junction` column".to_string()
+            }
+        };
+        format!(
+            "Readings converted from thermocouple voltages (mV) to {}: type {}, NIST ITS-90 \
+             reference function (NIST Monograph 175) solved to 1e-6 K, {cj}.",
+            degree_symbol(units),
+            self.tc_type
+        )
+    }
 }
 
 /// The penalised derivative of the edge profile (`docs/case-files.md`, plate.toml `smoothing`).
@@ -228,9 +311,27 @@ pub struct Case {
     pub design: DesignSettings,
     /// The `[bounds]` settings (strict bounds under a gradient limit).
     pub bounds: BoundsSettings,
+    /// The `[thermocouple]` section, if given.
+    pub thermocouple: Option<ThermocoupleSettings>,
     /// Where the case came from.
     pub files: CaseFiles,
 }
+/// The temperature unit as people write it: °C, K, °F.
+pub(crate) fn degree_symbol(units: &Units) -> &'static str {
+    match units.temperature {
+        crate::units::TemperatureUnit::Celsius => "°C",
+        crate::units::TemperatureUnit::Kelvin => "K",
+        crate::units::TemperatureUnit::Fahrenheit => "°F",
+    }
+}
+
+impl Case {
+    /// How the readings are converted from voltages, if they are voltages.
+    pub fn conversion(&self) -> Option<ReadingConversion> {
+        self.thermocouple.and_then(|t| t.conversion())
+    }
+}
+
 /// An axis-aligned rectangle of the plate, metres (`[design] allowed` and `keep_out`).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Region {

@@ -36,6 +36,7 @@ pub mod forward;
 pub mod geometry;
 pub mod inverse;
 pub mod io;
+pub mod its90;
 pub mod noise;
 pub mod report;
 pub mod simulate;

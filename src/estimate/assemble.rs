@@ -82,6 +82,7 @@ pub(super) fn assemble(
         seed: resampled.seed,
         bounds,
         cautions,
+        conversion: case.conversion(),
     })
 }
 
@@ -247,6 +248,7 @@ fn sensor_results(problem: &Problem<'_>, fitted: &Fitted) -> Result<Vec<SensorRe
                 sigma: reading.map(|_| problem.sigma_of[i] * fit.sigma_scale.unwrap_or(1.0)),
                 flag: fitted.flags.iter().find(|f| f.0 == i).map(|f| f.1.clone()),
                 doubtful: fitted.doubts.iter().any(|d| d.index == i),
+                offset: s.offset_k,
             })
         })
         .collect()

@@ -96,6 +96,8 @@ pub struct SensorResult {
     /// Whether the sensor was kept although its reading stands out (see
     /// [`EstimateResult::doubtful_sensors`]).
     pub doubtful: bool,
+    /// The calibration offset subtracted from the reading, kelvin (`sensors.csv` `offset`).
+    pub offset: Option<f64>,
 }
 
 /// A sensor kept although its reading stands out: a hot feature of a hidden edge explains
@@ -227,4 +229,6 @@ pub struct EstimateResult {
     pub bounds: Option<crate::bounds::BoundsResult>,
     /// Cautions for the reader.
     pub cautions: Vec<String>,
+    /// How the readings were converted from thermocouple voltages, when they were.
+    pub conversion: Option<crate::case::ReadingConversion>,
 }

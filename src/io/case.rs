@@ -45,6 +45,7 @@ fn load(files: &CaseFiles, with_sensors: bool) -> Result<Case> {
         uncertainty: pf.uncertainty,
         design: pf.design,
         bounds: pf.bounds,
+        thermocouple: pf.thermocouple,
         files,
     })
 }

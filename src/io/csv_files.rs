@@ -312,14 +312,15 @@ pub(crate) fn absolute_temperature(units: &Units, t: f64) -> std::result::Result
     Ok(k)
 }
 
-/// Read `sensors.csv`: `sensor,x,y` with optional `sigma` and `position_sigma`.
+/// Read `sensors.csv`: `sensor,x,y` with optional `sigma`, `position_sigma` and `offset` (a
+/// calibration offset in the temperature unit, subtracted from every reading of the sensor).
 #[allow(clippy::float_cmp)] // a position exactly on the right edge, as written in the file
 pub(crate) fn read_sensors(path: &Path, units: &Units, shape: &Shape) -> Result<Vec<Sensor>> {
     let table = CsvTable::read(
         path,
         &Columns {
             required: &["sensor", "x", "y"],
-            optional: &["sigma", "position_sigma"],
+            optional: &["sigma", "position_sigma", "offset"],
         },
     )?;
     if table.rows.is_empty() {
@@ -407,11 +408,15 @@ pub(crate) fn read_sensors(path: &Path, units: &Units, shape: &Shape) -> Result<
             }
             s => s.map(|s| units.length_to_m(s)),
         };
+        let offset_k = table
+            .opt_number(row, "offset")?
+            .map(|o| units.dtemp_to_k(o));
         sensors.push(Sensor {
             id,
             position,
             sigma_k,
             position_sigma_m,
+            offset_k,
             line: row.line,
         });
     }
@@ -421,10 +426,17 @@ pub(crate) fn read_sensors(path: &Path, units: &Units, shape: &Shape) -> Result<
 /// Read `readings.csv` (`sensor,temperature`, one reading per row) into kelvin, aligned with
 /// `case.sensors`; a sensor with no row gets `None`.
 pub(crate) fn read_readings(path: &Path, case: &Case) -> Result<Vec<Option<f64>>> {
+    let value = super::convert::value_column(case);
+    let with_cj = super::convert::cold_junction_column(case);
+    let required: &[&str] = if with_cj {
+        &["sensor", value, "cold_junction"]
+    } else {
+        &["sensor", value]
+    };
     let table = CsvTable::read(
         path,
         &Columns {
-            required: &["sensor", "temperature"],
+            required,
             optional: &[],
         },
     )?;
@@ -433,7 +445,7 @@ pub(crate) fn read_readings(path: &Path, case: &Case) -> Result<Vec<Option<f64>>
             path,
             None,
             None,
-            "the file holds no readings; add one row `sensor,temperature` per reading",
+            format!("the file holds no readings; add one row `sensor,{value}` per reading"),
         ));
     }
     let index: HashMap<&str, usize> = case
@@ -467,12 +479,21 @@ pub(crate) fn read_readings(path: &Path, case: &Case) -> Result<Vec<Option<f64>>
                 ),
             ));
         }
-        let t = table
-            .number(row, "temperature")
+        let v = table
+            .number(row, value)
             .map_err(|e| add_hint(e, "; leave the sensor's row out if it has no reading"))?;
-        let k = absolute_temperature(&case.units, t)
-            .map_err(|m| table.error(row.line, "temperature", m))?;
-        values[i] = Some(k);
+        let cj = if with_cj {
+            let c = table.number(row, "cold_junction")?;
+            Some(
+                super::convert::cold_junction_k(case, c)
+                    .map_err(|m| table.error(row.line, "cold_junction", m))?,
+            )
+        } else {
+            None
+        };
+        let k =
+            super::convert::reading_k(case, v, cj).map_err(|m| table.error(row.line, value, m))?;
+        values[i] = Some(super::convert::with_offset(case, i, k));
         lines[i] = row.line;
     }
     Ok(values)

@@ -31,7 +31,6 @@
 
 use crate::case::Case;
 use crate::error::{Error, Result};
-use crate::io::csv_files::absolute_temperature;
 use std::collections::HashMap;
 use std::io::{Read, Write};
 use std::path::{Path, PathBuf};
@@ -139,6 +138,10 @@ pub struct LoggerReader {
     time_column: usize,
     column_names: Vec<String>,
     units: crate::units::Units,
+    /// The case, for voltage conversion and sensor offsets.
+    case: Case,
+    /// The `cold_junction` column, when the case takes the cold junction from one.
+    cold_junction_column: Option<usize>,
     kind: Option<TimeKind>,
     last_time: Option<(f64, u64)>,
     sensor_count: usize,
@@ -216,6 +219,8 @@ impl LoggerReader {
         let mut time_column = None;
         let mut seen: HashMap<String, usize> = HashMap::new();
         let mut ignored = Vec::new();
+        let want_cj = crate::io::convert::cold_junction_column(case);
+        let mut cold_junction_column = None;
         for (k, raw) in header.iter().enumerate() {
             let name = std::str::from_utf8(raw)
                 .map_err(|_| {
@@ -243,6 +248,9 @@ impl LoggerReader {
             }
             if name.eq_ignore_ascii_case("time") {
                 time_column = Some(k);
+                column_sensor.push(None);
+            } else if want_cj && name.eq_ignore_ascii_case("cold_junction") {
+                cold_junction_column = Some(k);
                 column_sensor.push(None);
             } else if let Some(&i) = index.get(name.as_str()) {
                 column_sensor.push(Some(i));
@@ -272,6 +280,16 @@ impl LoggerReader {
                  the time in ISO 8601 or seconds",
             ));
         };
+        if want_cj && cold_junction_column.is_none() {
+            return Err(Error::invalid_at(
+                path,
+                Some(1),
+                Some("cold_junction"),
+                "plate.toml says cold_junction = \"column\", but the header has no \
+                 `cold_junction` column; add the reference-junction temperature of every row, \
+                 or give it once in [thermocouple] cold_junction",
+            ));
+        }
         let absent_sensors = (0..case.sensors.len())
             .filter(|i| !column_sensor.contains(&Some(*i)))
             .collect();
@@ -283,6 +301,8 @@ impl LoggerReader {
             time_column,
             column_names,
             units: case.units,
+            case: case.clone(),
+            cold_junction_column,
             kind: None,
             last_time: None,
             sensor_count: case.sensors.len(),
@@ -361,11 +381,24 @@ impl LoggerReader {
         row.time_s = t;
         row.time_text.clear();
         row.time_text.push_str(time_text);
+        // A row without its cold junction has no temperatures (the voltages cannot be
+        // converted): its readings are all missing.
+        let cold_junction = match self.cold_junction_column {
+            Some(c) => match self.cell_value(&self.record[c], line, c)? {
+                Some(v) => Some(crate::io::convert::cold_junction_k(&self.case, v).map_err(
+                    |m| {
+                        Error::invalid_at(&self.path, Some(line as usize), Some("cold_junction"), m)
+                    },
+                )?),
+                None => return Ok(true),
+            },
+            None => None,
+        };
         for (k, cell) in self.record.iter().enumerate() {
             let Some(i) = self.column_sensor[k] else {
                 continue;
             };
-            row.values[i] = self.reading(cell, line, k)?;
+            row.values[i] = self.reading(cell, line, k, i, cold_junction)?;
         }
         Ok(true)
     }
@@ -379,13 +412,20 @@ impl LoggerReader {
         )
     }
 
-    fn reading(&self, cell: &[u8], line: u64, k: usize) -> Result<Option<f64>> {
+    /// A cell as a number: `None` for an empty cell or a fault marker (see the module
+    /// documentation); an error for anything else that is not a finite number.
+    fn cell_value(&self, cell: &[u8], line: u64, k: usize) -> Result<Option<f64>> {
         if cell.is_empty() {
             return Ok(None);
         }
         let name = &self.column_names[k];
         let text = std::str::from_utf8(cell).map_err(|_| self.not_text(line, name))?;
         let err = |msg: String| Error::invalid_at(&self.path, Some(line as usize), Some(name), msg);
+        let what = if self.cold_junction_column != Some(k) && self.case.conversion().is_some() {
+            "voltage"
+        } else {
+            "temperature"
+        };
         let v = match text.parse::<f64>() {
             Ok(v) => v,
             Err(_) => {
@@ -393,7 +433,7 @@ impl LoggerReader {
                     return Ok(None);
                 }
                 return Err(err(format!(
-                    "`{}` is neither a temperature nor a known fault marker (empty, NaN, OPEN, \
+                    "`{}` is neither a {what} nor a known fault marker (empty, NaN, OPEN, \
                      OVER, ERR, ... see docs/track.md)",
                     shorten(text)
                 )));
@@ -407,21 +447,38 @@ impl LoggerReader {
         }
         if !v.is_finite() {
             return Err(err(format!(
-                "`{}` is not a finite number; write a temperature, or leave the cell empty \
+                "`{}` is not a finite number; write a {what}, or leave the cell empty \
                  when there is no reading",
                 shorten(text)
             )));
         }
-        let kelvin = absolute_temperature(&self.units, v).map_err(err)?;
+        Ok(Some(v))
+    }
+
+    fn reading(
+        &self,
+        cell: &[u8],
+        line: u64,
+        k: usize,
+        sensor: usize,
+        cold_junction_k: Option<f64>,
+    ) -> Result<Option<f64>> {
+        let Some(v) = self.cell_value(cell, line, k)? else {
+            return Ok(None);
+        };
+        let name = &self.column_names[k];
+        let err = |msg: String| Error::invalid_at(&self.path, Some(line as usize), Some(name), msg);
+        let kelvin = crate::io::convert::reading_k(&self.case, v, cold_junction_k).map_err(err)?;
         if kelvin > MAX_PLAUSIBLE_K {
             return Err(err(format!(
-                "{} {} is not a plausible reading (above {MAX_PLAUSIBLE_K} K); if the logger \
+                "{v} {} is not a plausible reading (above {MAX_PLAUSIBLE_K} K); if the logger \
                  writes it as an over-range code, replace it with an empty cell",
-                shorten(text),
                 self.units.temperature
             )));
         }
-        Ok(Some(kelvin))
+        Ok(Some(crate::io::convert::with_offset(
+            &self.case, sensor, kelvin,
+        )))
     }
 }
 

@@ -14,6 +14,7 @@
 //! | logger files for `track`, and `track.csv` written row by row | [`logger`] |
 
 pub mod case;
+mod convert;
 mod csv_files;
 pub mod logger;
 pub mod output;

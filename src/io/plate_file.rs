@@ -6,13 +6,14 @@
 //! found through [`TomlSpans`].
 
 use crate::case::{
-    BoundsSettings, CandidateSource, Criterion, DesignSettings, FitSettings, Region, Smoothing,
-    StrengthRule, UncertaintySettings,
+    BoundsSettings, CandidateSource, ColdJunction, Criterion, DesignSettings, FitSettings, Region,
+    Signal, Smoothing, StrengthRule, ThermocoupleSettings, UncertaintySettings,
 };
 use crate::error::{Error, Result};
 use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Shape};
 use crate::io::csv_files::{self, absolute_temperature};
 use crate::io::spans::{TomlSpans, guess_field_on_line, header_name};
+use crate::its90::Its90Type;
 use crate::noise::{NoiseSpec, ThermocoupleType, ToleranceClass};
 use crate::units::{LengthUnit, TemperatureUnit, Units};
 use serde::Deserialize;
@@ -49,6 +50,17 @@ struct RawFile {
     design: Option<RawDesign>,
     #[serde(default)]
     bounds: RawBounds,
+    thermocouple: Option<RawThermocouple>,
+}
+
+/// `[thermocouple]`: the type and what the readings hold.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawThermocouple {
+    #[serde(rename = "type")]
+    tc_type: String,
+    signal: Option<String>,
+    cold_junction: Option<NumberOrWord>,
 }
 
 /// `[bounds]`: the statement strict bounds rest on.
@@ -106,6 +118,7 @@ struct RawNoise {
     tolerance_class: Option<String>,
     #[serde(rename = "type")]
     tc_type: Option<String>,
+    sigma_emf_mv: Option<f64>,
 }
 
 #[derive(Debug, Default, Deserialize)]
@@ -185,6 +198,7 @@ pub(crate) struct PlateFile {
     pub uncertainty: UncertaintySettings,
     pub design: DesignSettings,
     pub bounds: BoundsSettings,
+    pub thermocouple: Option<ThermocoupleSettings>,
     /// The profile files the fixed edges refer to, resolved against the plate file's
     /// directory.
     pub profiles: Vec<(Edge, PathBuf)>,
@@ -354,11 +368,16 @@ impl Checker<'_> {
         }
         let plate = Plate::new(shape, conditions, raw.plate.conductivity)
             .map_err(|e| e.in_file(self.path, |f| self.spans.line_for_field(f)))?;
+        let thermocouple = raw
+            .thermocouple
+            .map(|t| self.thermocouple(t, &units))
+            .transpose()?;
         Ok(PlateFile {
             units,
             plate,
             fit: self.fit(raw.fit)?,
-            noise: self.noise(raw.noise, &units)?,
+            noise: self.noise(raw.noise, &units, thermocouple.as_ref())?,
+            thermocouple,
             uncertainty: self.uncertainty(raw.uncertainty, &units)?,
             design: match raw.design {
                 Some(d) => self.design(d, &units, &shape)?,
@@ -547,8 +566,161 @@ impl Checker<'_> {
         })
     }
 
-    fn noise(&self, raw: RawNoise, units: &Units) -> Result<NoiseSpec> {
-        match (raw.sigma, raw.tolerance_class, raw.tc_type) {
+    /// `[thermocouple]`: a known type, `signal` temperature (default) or `emf_mv`, and for
+    /// voltages a cold junction (a temperature in the case unit, or "column").
+    fn thermocouple(&self, raw: RawThermocouple, units: &Units) -> Result<ThermocoupleSettings> {
+        let tc_type = Its90Type::parse(&raw.tc_type).ok_or_else(|| {
+            self.err(
+                "thermocouple.type",
+                format!(
+                    "unknown thermocouple type `{}`; use B, E, J, K, N, R, S or T",
+                    raw.tc_type
+                ),
+            )
+        })?;
+        let signal = match raw.signal.as_deref().map(str::trim) {
+            None | Some("temperature") => Signal::Temperature,
+            Some("emf_mv") => Signal::EmfMv,
+            Some(other) => {
+                return Err(self.err(
+                    "thermocouple.signal",
+                    format!(
+                        "unknown signal `{other}`; use \"temperature\" (readings in the case's \
+                         temperature unit) or \"emf_mv\" (thermocouple voltages in mV)"
+                    ),
+                ));
+            }
+        };
+        let cold_junction = match (signal, raw.cold_junction) {
+            (Signal::Temperature, None) => None,
+            (Signal::Temperature, Some(_)) => {
+                return Err(self.err(
+                    "thermocouple.cold_junction",
+                    "a cold junction applies to voltage readings only; remove it or set \
+                     signal = \"emf_mv\"",
+                ));
+            }
+            (Signal::EmfMv, None) => {
+                return Err(self.err(
+                    "thermocouple.signal",
+                    "voltage readings need `cold_junction`: the reference-junction temperature \
+                     in the case's temperature unit, or \"column\" when the readings carry a \
+                     `cold_junction` column",
+                ));
+            }
+            (Signal::EmfMv, Some(NumberOrWord::Word(w))) if w.trim() == "column" => {
+                Some(ColdJunction::Column)
+            }
+            (Signal::EmfMv, Some(NumberOrWord::Word(w))) => {
+                return Err(self.err(
+                    "thermocouple.cold_junction",
+                    format!(
+                        "`{w}` is not a cold junction; give a temperature in the case's unit or \
+                         \"column\""
+                    ),
+                ));
+            }
+            (Signal::EmfMv, Some(NumberOrWord::Number(t))) => {
+                let t = self.finite("thermocouple.cold_junction", t)?;
+                let k = absolute_temperature(units, t)
+                    .map_err(|m| self.err("thermocouple.cold_junction", m))?;
+                let (lo, hi) = tc_type.range_c();
+                let c = k - 273.15;
+                if !(c >= lo && c <= hi) {
+                    return Err(self.err(
+                        "thermocouple.cold_junction",
+                        format!(
+                            "{t} {} is outside the type {tc_type} reference function ({lo} to \
+                             {hi} °C)",
+                            units.temperature
+                        ),
+                    ));
+                }
+                Some(ColdJunction::Fixed(k))
+            }
+        };
+        Ok(ThermocoupleSettings {
+            tc_type,
+            signal,
+            cold_junction,
+        })
+    }
+
+    fn noise(
+        &self,
+        raw: RawNoise,
+        units: &Units,
+        thermocouple: Option<&ThermocoupleSettings>,
+    ) -> Result<NoiseSpec> {
+        if let Some(s) = raw.sigma_emf_mv {
+            if raw.sigma.is_some() || raw.tolerance_class.is_some() {
+                return Err(self.err(
+                    "noise.sigma_emf_mv",
+                    "give one of `sigma`, `sigma_emf_mv` or `tolerance_class`, not several",
+                ));
+            }
+            let Some(tc) = thermocouple.filter(|t| t.signal == Signal::EmfMv) else {
+                return Err(self.err(
+                    "noise.sigma_emf_mv",
+                    "a voltage uncertainty needs voltage readings: add [thermocouple] with \
+                     `type` and signal = \"emf_mv\", or give `sigma` in the temperature unit",
+                ));
+            };
+            if let Some(t) = &raw.tc_type {
+                if Its90Type::parse(t) != Some(tc.tc_type) {
+                    return Err(self.err(
+                        "noise.type",
+                        format!(
+                            "[noise] type `{t}` differs from [thermocouple] type {}; state the \
+                             type once, in [thermocouple]",
+                            tc.tc_type
+                        ),
+                    ));
+                }
+            }
+            if !(s.is_finite() && s > 0.0) {
+                return Err(self.err(
+                    "noise.sigma_emf_mv",
+                    format!("the voltage uncertainty must be a positive number of mV, not {s}"),
+                ));
+            }
+            return Ok(NoiseSpec::Emf {
+                sigma_mv: s,
+                tc_type: tc.tc_type,
+            });
+        }
+        // The tolerance class takes the type of [thermocouple] when [noise] does not repeat it.
+        let tc_type = match (raw.tc_type, thermocouple) {
+            (Some(t), Some(tc)) => {
+                if Its90Type::parse(&t) != Some(tc.tc_type) {
+                    return Err(self.err(
+                        "noise.type",
+                        format!(
+                            "[noise] type `{t}` differs from [thermocouple] type {}; state the \
+                             type once, in [thermocouple]",
+                            tc.tc_type
+                        ),
+                    ));
+                }
+                Some(t)
+            }
+            (Some(t), None) => Some(t),
+            (None, Some(tc)) if raw.tolerance_class.is_some() => {
+                if ThermocoupleType::parse(tc.tc_type.name()).is_none() {
+                    return Err(self.err(
+                        "noise.tolerance_class",
+                        format!(
+                            "this version has tolerance tables for types K, J, T, N and E only, \
+                             not type {}; give [noise] sigma instead",
+                            tc.tc_type
+                        ),
+                    ));
+                }
+                Some(tc.tc_type.name().to_string())
+            }
+            (None, _) => None,
+        };
+        match (raw.sigma, raw.tolerance_class, tc_type) {
             (Some(_), Some(_), _) | (Some(_), None, Some(_)) => Err(self.err(
                 "noise.sigma",
                 "give either `sigma` or `tolerance_class` with `type`, not both",
@@ -885,6 +1057,102 @@ sigma = 0.5
                 (location.line, location.field.clone(), message.clone())
             }
             other => panic!("expected an invalid-input error, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn thermocouple_section() {
+        let no_noise = GOOD.replace("[noise]\nsigma = 0.5\n", "");
+        let f = parse(&format!(
+            "{no_noise}[thermocouple]\ntype = \"k\"\nsignal = \"emf_mv\"\ncold_junction = 23.4\n\
+             [noise]\ntolerance_class = \"iec-1\"\n"
+        ))
+        .unwrap();
+        let tc = f.thermocouple.unwrap();
+        assert_eq!(tc.tc_type, Its90Type::K);
+        assert_eq!(tc.signal, Signal::EmfMv);
+        match tc.cold_junction {
+            Some(ColdJunction::Fixed(k)) => assert!((k - 296.55).abs() < 1e-9),
+            other => panic!("{other:?}"),
+        }
+        // the tolerance class takes the [thermocouple] type
+        assert_eq!(
+            f.noise,
+            NoiseSpec::Tolerance {
+                class: ToleranceClass::Iec1,
+                tc_type: ThermocoupleType::K
+            }
+        );
+        let f = parse(&format!(
+            "{no_noise}[thermocouple]\ntype = \"S\"\nsignal = \"emf_mv\"\n\
+             cold_junction = \"column\"\n[noise]\nsigma_emf_mv = 0.002\n"
+        ))
+        .unwrap();
+        assert_eq!(
+            f.thermocouple.unwrap().cold_junction,
+            Some(ColdJunction::Column)
+        );
+        assert_eq!(
+            f.noise,
+            NoiseSpec::Emf {
+                sigma_mv: 0.002,
+                tc_type: Its90Type::S
+            }
+        );
+        let bad = [
+            (
+                "type = \"C\"\n",
+                "thermocouple.type",
+                "unknown thermocouple type",
+            ),
+            (
+                "type = \"K\"\nsignal = \"emf_mv\"\n",
+                "thermocouple.signal",
+                "cold_junction",
+            ),
+            (
+                "type = \"K\"\ncold_junction = 20\n",
+                "thermocouple.cold_junction",
+                "voltage readings only",
+            ),
+            (
+                "type = \"K\"\nsignal = \"volts\"\n",
+                "thermocouple.signal",
+                "unknown signal",
+            ),
+            (
+                "type = \"T\"\nsignal = \"emf_mv\"\ncold_junction = 500\n",
+                "thermocouple.cold_junction",
+                "outside the type T",
+            ),
+            (
+                "type = \"K\"\nsignal = \"emf_mv\"\ncold_junction = \"room\"\n",
+                "thermocouple.cold_junction",
+                "not a cold junction",
+            ),
+            (
+                "type = \"K\"\n[noise]\nsigma_emf_mv = 0.01\n",
+                "noise.sigma_emf_mv",
+                "needs voltage readings",
+            ),
+            (
+                "type = \"R\"\n[noise]\ntolerance_class = \"iec-1\"\n",
+                "noise.tolerance_class",
+                "not type R",
+            ),
+            (
+                "type = \"K\"\n[noise]\ntolerance_class = \"iec-1\"\ntype = \"J\"\n",
+                "noise.type",
+                "differs",
+            ),
+        ];
+        for (section, field, gist) in bad {
+            let text = format!("{no_noise}[thermocouple]\n{section}");
+            let e = parse(&text).unwrap_err();
+            let (line, f, m) = loc(&e);
+            assert_eq!(f.as_deref(), Some(field), "{section}: {e}");
+            assert!(line.is_some(), "{section}: {e}");
+            assert!(m.contains(gist), "{section}: {e}");
         }
     }
 

@@ -106,6 +106,15 @@ pub enum NoiseSpec {
         /// The thermocouple type.
         tc_type: ThermocoupleType,
     },
+    /// `[noise] sigma_emf_mv`: one standard uncertainty for every voltage reading, mV; a
+    /// reading's uncertainty in kelvin is `sigma_mv / (dE/dt)` at its temperature, the slope of
+    /// the type's ITS-90 reference function ([`crate::its90::Its90Type::slope_mv_per_c`]).
+    Emf {
+        /// The voltage uncertainty, mV.
+        sigma_mv: f64,
+        /// The thermocouple type.
+        tc_type: crate::its90::Its90Type,
+    },
     /// Nothing stated: estimate from the residuals (unless every sensor has its own sigma).
     Unstated,
 }
@@ -168,6 +177,19 @@ pub fn reading_sigmas(
             (None, NoiseSpec::Tolerance { class, tc_type }) => {
                 tolerance::standard_uncertainty(*class, *tc_type, t - 273.15).map_err(|m| (i, m))?
             }
+            (None, NoiseSpec::Emf { sigma_mv, tc_type }) => {
+                let slope = tc_type.slope_mv_per_c(t - 273.15).map_err(|_| {
+                    (
+                        i,
+                        format!(
+                            "the reading {:.3} K is outside the type {tc_type} reference \
+                             function, so its voltage uncertainty cannot be converted",
+                            t
+                        ),
+                    )
+                })?;
+                sigma_mv / slope
+            }
             (None, NoiseSpec::Unstated) if any_own => {
                 return Err((
                     i,
@@ -184,7 +206,7 @@ pub fn reading_sigmas(
         SigmaSource::Sensors
     } else {
         match spec {
-            NoiseSpec::Sigma(_) => SigmaSource::Stated,
+            NoiseSpec::Sigma(_) | NoiseSpec::Emf { .. } => SigmaSource::Stated,
             NoiseSpec::Tolerance { .. } => SigmaSource::ToleranceClass,
             NoiseSpec::Unstated => SigmaSource::Estimated,
         }
@@ -221,5 +243,17 @@ mod tests {
         let (s, src) = reading_sigmas(&spec, &[None], &[273.15 + 60.0]).unwrap();
         assert!((s[0] - 0.5 / 3f64.sqrt()).abs() < 1e-12);
         assert_eq!(src, SigmaSource::ToleranceClass);
+        // A voltage uncertainty through the slope: type K near 100 °C has dE/dt ≈ 0.0415
+        // mV/K (NIST Monograph 175 type K table: 4.096 mV at 100 °C, 4.138 mV at 101 °C —
+        // recalled from memory), so 0.01 mV is about 0.24 K.
+        let spec = NoiseSpec::Emf {
+            sigma_mv: 0.01,
+            tc_type: crate::its90::Its90Type::K,
+        };
+        let (s, src) = reading_sigmas(&spec, &[None], &[373.15]).unwrap();
+        let slope = crate::its90::Its90Type::K.slope_mv_per_c(100.0).unwrap();
+        assert!((s[0] - 0.01 / slope).abs() < 1e-12);
+        assert!((slope - 0.042).abs() < 0.001, "{slope}");
+        assert_eq!(src, SigmaSource::Stated);
     }
 }

@@ -283,6 +283,7 @@ impl CheckReport {
         });
         let (source, sigma, class, tc) = match case.noise {
             NoiseSpec::Sigma(k) => ("sigma", Some(u.dtemp_from_k(k)), None, None),
+            NoiseSpec::Emf { tc_type, .. } => ("sigma-emf", None, None, Some(tc_type.name())),
             NoiseSpec::Tolerance { class, tc_type } => {
                 ("tolerance", None, Some(class.name()), Some(tc_type.name()))
             }

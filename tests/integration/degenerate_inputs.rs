@@ -33,6 +33,7 @@ fn sensors(points: &[(f64, f64)]) -> Vec<Sensor> {
             position: Point::new(x, y),
             sigma_k: None,
             position_sigma_m: None,
+            offset_k: None,
             line: i + 2,
         })
         .collect()

@@ -44,6 +44,7 @@ fn as_sensors(layout: &[LayoutSensor]) -> Vec<Sensor> {
             position: s.position,
             sigma_k: None,
             position_sigma_m: None,
+            offset_k: None,
             line: i + 2,
         })
         .collect()

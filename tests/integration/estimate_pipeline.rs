@@ -167,6 +167,7 @@ fn square_plate_fact_holds_through_the_pipeline() {
             ),
             sigma_k: None,
             position_sigma_m: None,
+            offset_k: None,
             line: i + 2,
         })
         .collect();
@@ -442,6 +443,7 @@ fn two_unknown_edges_are_recovered_together() {
             position: p,
             sigma_k: None,
             position_sigma_m: None,
+            offset_k: None,
             line: i + 2,
         })
         .collect();
@@ -550,6 +552,7 @@ fn clamp_case(xs: &[f64], depth: impl Fn(usize) -> f64) -> Case {
             position: Point::new(x, depth(i)),
             sigma_k: None,
             position_sigma_m: None,
+            offset_k: None,
             line: i + 2,
         })
         .collect();

@@ -4,6 +4,7 @@
 //! `cargo test --test integration GROUP::` (e.g. `cargo test --test integration
 //! calibration:: -- --nocapture` to see its printed figures).
 
+mod bench_readings;
 mod bounds_checks;
 mod bounds_reference;
 mod calibration;
@@ -20,6 +21,7 @@ mod estimate_pipeline;
 mod forward_closed_forms;
 mod forward_fem_reference;
 mod forward_properties;
+mod its90_reference;
 mod report_outputs;
 mod snapshots_of_outputs;
 mod tikhonov_reference;

@@ -188,6 +188,7 @@ fn sensors(
                         .to_string()
                 }),
                 doubtful: false,
+                offset: None,
             }
         })
         .collect()
@@ -232,6 +233,7 @@ fn common(
         seed: 7,
         bounds: None,
         cautions: vec!["The peak is narrower than twice the resolution length: its height may be underestimated.".into()],
+        conversion: None,
     }
 }
 

@@ -479,6 +479,13 @@ fn case_html(o: &mut String, r: &EstimateResult) {
         "units",
         format!("{}, {}", u.len_symbol(), esc(u.temp_symbol())),
     ));
+    if let Some(c) = &r.conversion {
+        dl.push(("readings", esc(&c.describe(&r.units))));
+    }
+    let offsets = super::summary::offsets_text(r);
+    if !offsets.is_empty() {
+        dl.push(("calibration offsets", esc(&offsets)));
+    }
     dl.push((
         "field grid",
         format!("{} × {}", r.field.xs.len(), r.field.ys.len()),

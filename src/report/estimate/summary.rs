@@ -303,6 +303,44 @@ fn insert_run_json(r: &EstimateResult, out: &mut Map<String, Value>) {
     out.insert("seed".into(), json!(r.seed));
     out.insert("version".into(), json!(env!("CARGO_PKG_VERSION")));
     out.insert("cautions".into(), json!(cautions(r)));
+    if let Some(c) = &r.conversion {
+        let cold_junction = match c.cold_junction {
+            crate::case::ColdJunction::Fixed(k) => u.temp_json(k),
+            crate::case::ColdJunction::Column => json!("column"),
+        };
+        out.insert(
+            "readings_conversion".into(),
+            json!({
+                "signal": "emf_mv",
+                "type": c.tc_type.name(),
+                "reference_function": "NIST ITS-90 (NIST Monograph 175)",
+                "cold_junction": cold_junction,
+                "description": c.describe(&r.units),
+            }),
+        );
+    }
+    if r.sensors.iter().any(|s| s.offset.is_some()) {
+        let offsets: Map<String, Value> = r
+            .sensors
+            .iter()
+            .filter_map(|s| s.offset.map(|o| (s.sensor.clone(), u.dtemp_json(o))))
+            .collect();
+        out.insert("sensor_offsets".into(), Value::Object(offsets));
+    }
+}
+
+/// The calibration offsets of the sensors that have one ("TC01 0.3 °C, TC04 -0.2 °C"), empty
+/// when none has.
+pub(crate) fn offsets_text(r: &EstimateResult) -> String {
+    let u = CaseUnits::new(r.units);
+    r.sensors
+        .iter()
+        .filter_map(|s| {
+            s.offset
+                .map(|o| format!("{} {}", s.sensor, u.dtemp_show(o)))
+        })
+        .collect::<Vec<_>>()
+        .join(", ")
 }
 
 /// Width of the label column of the text summary.
@@ -329,6 +367,17 @@ pub fn text_summary(r: &EstimateResult) -> String {
         r.seed
     );
     out.push('\n');
+    if let Some(c) = &r.conversion {
+        line(&mut out, "Readings", &c.describe(&r.units));
+    }
+    let offsets = offsets_text(r);
+    if !offsets.is_empty() {
+        line(
+            &mut out,
+            "Offsets",
+            &format!("subtracted from the readings (sensors.csv): {offsets}"),
+        );
+    }
     hottest_text(r, &mut out);
     limit_text(r, &mut out);
     for (label, text) in super::bounds::bounds_text(r) {

@@ -104,9 +104,15 @@ pub(crate) fn field_csv(r: &EstimateResult) -> Result<Vec<u8>> {
 pub(crate) fn sensors_csv(r: &EstimateResult) -> Result<Vec<u8>> {
     let u = CaseUnits::new(r.units);
     let mut w = csv::Writer::from_writer(Vec::new());
-    w.write_record(SENSORS_HEADER).map_err(csv_error)?;
+    // The calibration offsets, when any sensor has one, in a last column.
+    let with_offset = r.sensors.iter().any(|s| s.offset.is_some());
+    let mut header: Vec<&str> = SENSORS_HEADER.to_vec();
+    if with_offset {
+        header.push("offset");
+    }
+    w.write_record(&header).map_err(csv_error)?;
     for s in &r.sensors {
-        w.write_record([
+        let mut record = vec![
             s.sensor.clone(),
             u.len_file(s.position.x),
             u.len_file(s.position.y),
@@ -121,8 +127,11 @@ pub(crate) fn sensors_csv(r: &EstimateResult) -> Result<Vec<u8>> {
                 .iter()
                 .find(|d| d.sensor == s.sensor && s.doubtful)
                 .map_or_else(String::new, |d| super::summary::doubt_message(r, d)),
-        ])
-        .map_err(csv_error)?;
+        ];
+        if with_offset {
+            record.push(s.offset.map_or_else(String::new, |v| u.dtemp_file(v)));
+        }
+        w.write_record(&record).map_err(csv_error)?;
     }
     finish(w)
 }

@@ -256,7 +256,7 @@ pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
             })
         })
         .collect();
-    json!({
+    let mut v = json!({
         "rows": s.counts.rows,
         "rows_fitted": s.counts.fitted,
         "rows_skipped": s.counts.skipped,
@@ -296,7 +296,20 @@ pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
         "seed": s.seed,
         "version": env!("CARGO_PKG_VERSION"),
         "cautions": s.cautions,
-    })
+    });
+    if let Some(c) = case.conversion() {
+        v["readings_conversion"] = json!({
+            "signal": "emf_mv",
+            "type": c.tc_type.name(),
+            "reference_function": "NIST ITS-90 (NIST Monograph 175)",
+            "cold_junction": match c.cold_junction {
+                crate::case::ColdJunction::Fixed(k) => u.temp_json(k),
+                crate::case::ColdJunction::Column => json!("column"),
+            },
+            "description": c.describe(&case.units),
+        });
+    }
+    v
 }
 
 /// The text summary printed at the end of a run.
@@ -312,6 +325,9 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
         s.first_time.as_deref().unwrap_or("-"),
         s.last_time.as_deref().unwrap_or("-")
     );
+    if let Some(c) = case.conversion() {
+        let _ = writeln!(out, "{}", c.describe(&case.units));
+    }
     match (s.strength_mode, s.lambda) {
         (m, Some(l)) => {
             let _ = writeln!(
