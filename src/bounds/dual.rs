@@ -130,7 +130,11 @@ struct Problem<'a> {
 impl<'a> Problem<'a> {
     fn new(data: &'a DualData, node: usize, sign: f64, gradient: f64, radius: f64) -> Option<Self> {
         let n = data.cum.len() / data.m.max(1);
-        if node >= n || !(gradient.is_finite() && gradient > 0.0) || radius.is_nan() || radius <= 0.0 {
+        if node >= n
+            || !(gradient.is_finite() && gradient > 0.0)
+            || radius.is_nan()
+            || radius <= 0.0
+        {
             return None;
         }
         let mut c_sum = vec![0.0; n];
@@ -224,6 +228,7 @@ impl<'a> Problem<'a> {
         let mut hess = DMatrix::<f64>::zeros(m + e, m + e);
         let mut trial = vec![0.0; m];
         let mut p_trial = vec![0.0; n];
+        let mut dp = vec![0.0; n];
         loop {
             // Newton on the smoothed F at this μ
             loop {
@@ -256,14 +261,22 @@ impl<'a> Problem<'a> {
                 let dy: Vec<f64> = step.iter().take(m).copied().collect();
                 let decrement: f64 = -dy.iter().zip(&grad).map(|(a, b)| a * b).sum::<f64>();
                 let f0 = self.value(&y, &p, Some(mu));
-                // backtracking line search (Armijo)
+                // backtracking line search (Armijo); along the line the partial sums move by
+                // α dP with dP = −cum · dy, so each trial costs O(n), not O(n m)
+                let m_ = self.data.m;
+                for (k, d) in dp.iter_mut().enumerate() {
+                    let row = &self.data.cum[k * m_..(k + 1) * m_];
+                    *d = -row.iter().zip(&dy).map(|(a, b)| a * b).sum::<f64>();
+                }
                 let mut alpha = 1.0;
                 let mut accepted = false;
                 for _ in 0..60 {
                     for i in 0..m {
                         trial[i] = y[i] + alpha * dy[i];
                     }
-                    self.partial_sums(&trial, &mut p_trial);
+                    for ((t, &p0), &d) in p_trial.iter_mut().zip(&p).zip(&dp) {
+                        *t = p0 + alpha * d;
+                    }
                     let f1 = self.value(&trial, &p_trial, Some(mu));
                     if f1.is_finite() && f1 <= f0 - 1e-4 * alpha * decrement.max(0.0) {
                         accepted = true;
@@ -275,7 +288,8 @@ impl<'a> Problem<'a> {
                     break;
                 }
                 y.copy_from_slice(&trial);
-                p.copy_from_slice(&p_trial);
+                // the exact partial sums at the new point (no drift from the updates)
+                self.partial_sums(&y, &mut p);
                 if !f0.is_finite() || f0 < -1e3 * TEMPERATURE_SPAN_K {
                     return None; // unbounded below: the set is empty
                 }
@@ -326,8 +340,11 @@ impl<'a> Problem<'a> {
             grad[i] += self.beta[i] * y[i] / h;
             hess[(i, i)] += self.beta[i] * mu_y * mu_y / (h * h * h);
         }
-        // Σ ω_k |P_k|, P_k = C_k − cum_k · y
-        let mut upper = vec![0.0; m * m];
+        // Σ ω_k |P_k|, P_k = C_k − cum_k · y. The Hessian terms ω μ² / (P² + μ²)^{3/2} fall
+        // off as |P|^{-3}: those below 1e-14 of the largest cannot change the Newton step and
+        // are left out; the rest are gathered as scaled rows for one product.
+        let mut curvature = vec![0.0; p.len()];
+        let mut largest = 0.0_f64;
         for (k, &pk) in p.iter().enumerate() {
             let om = self.omega[k];
             if om == 0.0 {
@@ -336,24 +353,27 @@ impl<'a> Problem<'a> {
             let h = (pk * pk + mu_p * mu_p).sqrt();
             let row = &self.data.cum[k * m..(k + 1) * m];
             let g1 = om * pk / h;
-            let g2 = om * mu_p * mu_p / (h * h * h);
-            for i in 0..m {
-                grad[i] -= g1 * row[i];
+            for (g, r) in grad.iter_mut().zip(row) {
+                *g -= g1 * r;
             }
-            if g2 > 0.0 {
-                for i in 0..m {
-                    let a = g2 * row[i];
-                    for j in i..m {
-                        upper[i * m + j] += a * row[j];
-                    }
-                }
-            }
+            curvature[k] = om * mu_p * mu_p / (h * h * h);
+            largest = largest.max(curvature[k]);
         }
-        for i in 0..m {
-            for j in i..m {
-                hess[(i, j)] += upper[i * m + j];
-                if j != i {
-                    hess[(j, i)] += upper[i * m + j];
+        let kept: Vec<usize> = (0..p.len())
+            .filter(|&k| curvature[k] > 1e-14 * largest)
+            .collect();
+        if !kept.is_empty() {
+            // the scaled rows as the columns of an m × kept matrix (contiguous copies)
+            let mut columns = Vec::with_capacity(kept.len() * m);
+            for &k in &kept {
+                let scale = curvature[k].sqrt();
+                columns.extend(self.data.cum[k * m..(k + 1) * m].iter().map(|c| scale * c));
+            }
+            let t = DMatrix::from_vec(m, kept.len(), columns);
+            let gram = &t * t.transpose();
+            for i in 0..m {
+                for j in 0..m {
+                    hess[(i, j)] += gram[(i, j)];
                 }
             }
         }
