@@ -27,3 +27,4 @@ mod track_alarms;
 mod track_cli;
 mod track_equality;
 mod track_per_row_speed;
+mod hard_inputs;
