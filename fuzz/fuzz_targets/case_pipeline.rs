@@ -10,9 +10,18 @@ use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {
     let mut parts = data.splitn(3, |&b| b == 0);
-    let plate = parts.next().filter(|p| !p.is_empty()).unwrap_or(PLATE.as_bytes());
-    let sensors = parts.next().filter(|p| !p.is_empty()).unwrap_or(SENSORS.as_bytes());
-    let readings = parts.next().filter(|p| !p.is_empty()).unwrap_or(READINGS.as_bytes());
+    let plate = parts
+        .next()
+        .filter(|p| !p.is_empty())
+        .unwrap_or(PLATE.as_bytes());
+    let sensors = parts
+        .next()
+        .filter(|p| !p.is_empty())
+        .unwrap_or(SENSORS.as_bytes());
+    let readings = parts
+        .next()
+        .filter(|p| !p.is_empty())
+        .unwrap_or(READINGS.as_bytes());
     let dir = scratch();
     write_case(&dir, plate, sensors, readings);
     let Some((case, readings)) = load_and_check(&dir) else {

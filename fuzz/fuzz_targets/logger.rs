@@ -7,7 +7,12 @@ use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {
     let dir = scratch();
-    write_case(&dir, PLATE.as_bytes(), SENSORS.as_bytes(), READINGS.as_bytes());
+    write_case(
+        &dir,
+        PLATE.as_bytes(),
+        SENSORS.as_bytes(),
+        READINGS.as_bytes(),
+    );
     let case = edgetherm::io::load_case(&edgetherm::case::CaseFiles::in_dir(&dir)).unwrap();
     let log = dir.join("log.csv");
     std::fs::write(&log, data).unwrap();
