@@ -26,6 +26,7 @@ use edgetherm::report::track::{
 };
 use edgetherm::track::{RowRecord, TrackOptions, Tracker};
 use edgetherm::{Error, Result};
+use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::sync::mpsc;
 use std::time::{Duration, Instant};
@@ -318,6 +319,8 @@ fn stream_rows(
     let mut last_write = Instant::now();
     let mut dirty = false;
     let mut rows_seen: u64 = 0;
+    // without a progress bar (stderr not a terminal), a line every 30 s says the run is alive
+    let mut last_note = Instant::now();
     loop {
         let msg = if args.follow {
             match rx.recv_timeout(Duration::from_millis(500)) {
@@ -345,6 +348,12 @@ fn stream_rows(
         rows_seen += rows.len() as u64;
         if let Some(b) = &bar {
             b.set_position(rows_seen);
+        } else if !global.quiet && last_note.elapsed() >= Duration::from_secs(30) {
+            let _ = writeln!(
+                std::io::stderr(),
+                "edgetherm: track: {rows_seen} rows processed so far"
+            );
+            last_note = Instant::now();
         }
         if args.follow {
             rows_out.writer.flush()?;
