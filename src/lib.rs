@@ -8,6 +8,7 @@
 //! | module | role |
 //! |---|---|
 //! | [`geometry`] | the plate, its edges and their conditions (SI units inside) |
+//! | [`budget`] | pre-flight cost: the memory and time a run will need, checked against a budget before anything large is allocated; input size limits |
 //! | [`case`] | the validated case a run takes: plate, sensors, fit / uncertainty / design / bounds settings, the field grid |
 //! | [`forward`] | steady conduction by separation of variables: the linear map from the unknown edge coefficients to temperatures anywhere |
 //! | [`inverse`] | weighted Tikhonov regularisation on that linear map (one SVD for every strength) and the rules that choose the strength |
@@ -20,6 +21,7 @@
 //! | [`track`] | a logger file row by row: per-row estimate with a pattern cache, hottest point through time, alarms, failing sensors |
 //! | [`report`] | every output in the case's units, one module per command (`estimate`, `design`, `track`, `check`) over shared drawing and number-format primitives: CSV tables, JSON, text summaries, SVG plots, the HTML page |
 //! | [`simulate`] | synthetic readings from a known edge profile (demos, tests, what-if) |
+//! | [`plausible`] | one documented plausibility range per physical quantity (temperatures 0 K to 5000 K, reading sigma, lengths, conductivity, gradient limits), checked by every command |
 //! | [`units`] | the length and temperature units of a case, converted once at the edge |
 //! | [`error`] | one error type whose messages name the file, line and field |
 //!
@@ -28,6 +30,7 @@
 //! The library never prints; the `edgetherm` binary is a thin layer over it.
 
 pub mod bounds;
+pub mod budget;
 pub mod case;
 pub mod design;
 pub mod error;
@@ -38,6 +41,7 @@ pub mod inverse;
 pub mod io;
 pub mod its90;
 pub mod noise;
+pub mod plausible;
 pub mod report;
 pub mod simulate;
 pub mod track;

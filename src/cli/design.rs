@@ -70,6 +70,31 @@ pub fn run(args: &DesignArgs, global: &GlobalOptions) -> Result<i32> {
         CandidateSource::Grid(_) => None,
     };
     let criterion = args.criterion.as_deref().and_then(Criterion::parse);
+    // the grid's size before it is built: a tiny candidate_spacing asks for billions
+    let (candidates, spacing_stated) = match (&case.design.candidates, &candidate_points) {
+        (_, Some(points)) => (points.len() as f64, false),
+        (CandidateSource::Grid(Some(h)), None) => {
+            let shape = case.plate.shape();
+            let y_top = case
+                .design
+                .allowed
+                .iter()
+                .map(|r| r.y_max)
+                .fold(0.0, f64::max);
+            let y_top = if y_top > 0.0 {
+                y_top
+            } else {
+                shape.height().unwrap_or(shape.width())
+            };
+            ((shape.width() / h).floor() * (y_top / h).floor(), true)
+        }
+        (_, None) => (edgetherm::design::candidates::DEFAULT_CANDIDATES, false),
+    };
+    let count = args.count.or(args.add).unwrap_or(case.sensors.len());
+    global.check_budget(
+        &edgetherm::budget::design_cost(&case, candidates, count, spacing_stated),
+        &case,
+    )?;
     let space = DesignSpace::new(&case, candidate_points.as_deref(), criterion)?;
     let mut inputs = case.files.inputs();
     if let CandidateSource::File(p) = &case.design.candidates {
@@ -78,7 +103,12 @@ pub fn run(args: &DesignArgs, global: &GlobalOptions) -> Result<i32> {
     for p in [&args.evaluate, &args.against].into_iter().flatten() {
         inputs.push(p);
     }
-    check_output_names(&args.out, &DESIGN_OUTPUT_FILE_NAMES, &inputs)?;
+    check_output_names(
+        &args.out,
+        &DESIGN_OUTPUT_FILE_NAMES,
+        &inputs,
+        global.overwrite,
+    )?;
     let against = args
         .against
         .as_ref()

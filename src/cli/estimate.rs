@@ -77,7 +77,7 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
     let files = global.case_files(&args.case_dir);
     let case = load_case(&files)?;
     let readings = load_readings(&case.files.readings, &case)?;
-    check_output_dir(&args.out, &case.files.inputs())?;
+    check_output_dir(&args.out, &case.files.inputs(), global.overwrite)?;
     let limit = parse_alarm(args.limit, args.probability, &case)?;
     if args.replicates == Some(0) {
         return Err(Error::invalid_field("--replicates", "must be at least 1"));
@@ -133,6 +133,16 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
     };
 
     let total = options.replicates.unwrap_or(case.uncertainty.replicates) as u64;
+    global.check_budget(
+        &edgetherm::budget::estimate_cost(
+            &case,
+            total as usize,
+            args.replicates.is_some(),
+            options.grid,
+            case.sensors.len(),
+        ),
+        &case,
+    )?;
     let bar = progress_bar(
         global,
         Some(total),

@@ -48,9 +48,79 @@ pub struct GlobalOptions {
     /// Print no progress and no text (errors still go to stderr).
     #[arg(long, global = true)]
     pub quiet: bool,
+    /// Replace existing output files that no earlier run of edgetherm wrote (by default
+    /// they are refused; an input of the run is never replaced).
+    #[arg(long, global = true)]
+    pub overwrite: bool,
+    /// Memory the run may use, in MB (10^6 bytes); a run estimated to need more is refused
+    /// before it starts, naming the setting to change [default: 2147, i.e. 2 GiB].
+    #[arg(long, global = true, value_name = "MB")]
+    pub memory_budget: Option<f64>,
+    /// Computing time the run may take, in seconds; a run estimated to take longer is
+    /// refused before it starts [default: 600].
+    #[arg(long, global = true, value_name = "S")]
+    pub time_budget: Option<f64>,
 }
 
 impl GlobalOptions {
+    /// Check the estimated `cost` of a run against `--memory-budget` / `--time-budget`
+    /// ([`edgetherm::budget`]); a long run says so on stderr before it starts (unless
+    /// `--quiet`).
+    pub fn check_budget(
+        &self,
+        cost: &edgetherm::budget::Cost,
+        case: &edgetherm::case::Case,
+    ) -> Result<()> {
+        use edgetherm::budget::{ANNOUNCE_SECONDS, Budget, human_bytes, human_seconds};
+        let mut budget = Budget::default();
+        for (flag, value, slot) in [
+            (
+                "--memory-budget",
+                self.memory_budget,
+                &mut budget.memory_bytes,
+            ),
+            ("--time-budget", self.time_budget, &mut budget.seconds),
+        ] {
+            if let Some(v) = value {
+                if !(v.is_finite() && v > 0.0) {
+                    return Err(Error::invalid_field(
+                        flag,
+                        format!("must be a positive number, not {v}"),
+                    ));
+                }
+                *slot = if flag == "--memory-budget" {
+                    v * 1e6
+                } else {
+                    v
+                };
+            }
+        }
+        budget.check(cost, case).map_err(|e| match e {
+            // a setting of the plate file (a flag has no file): add its line
+            Error::Invalid {
+                mut location,
+                message,
+            } => {
+                if let (Some(file), Some(field), None) =
+                    (&location.file, &location.field, location.line)
+                {
+                    location.line = edgetherm::io::plate_line_of(file, field);
+                }
+                Error::Invalid { location, message }
+            }
+            other => other,
+        })?;
+        if cost.seconds() > ANNOUNCE_SECONDS && !self.quiet {
+            let _ = writeln!(
+                std::io::stderr(),
+                "edgetherm: this run needs about {} of computation and {} of memory",
+                human_seconds(cost.seconds()),
+                human_bytes(cost.bytes())
+            );
+        }
+        Ok(())
+    }
+
     /// The files of the case in `dir`, with the `--plate/--sensors/--readings` overrides.
     pub fn case_files(&self, dir: &Path) -> CaseFiles {
         CaseFiles::in_dir(dir).with_overrides(
@@ -156,11 +226,9 @@ pub fn parse_alarm(
         ));
     }
     match limit {
-        Some(t) if t.is_finite() => Ok(Some(case.units.temp_to_k(t))),
-        Some(t) => Err(Error::invalid_field(
-            "--limit",
-            format!("must be a finite temperature, not {t}"),
-        )),
+        Some(t) => edgetherm::plausible::temperature_k(&case.units, t)
+            .map(Some)
+            .map_err(|m| Error::invalid_field("--limit", m)),
         None => Ok(None),
     }
 }
@@ -192,13 +260,9 @@ pub fn progress_bar(
 /// `--max-gradient G` in the case's temperature unit per length unit, as K/m.
 pub fn parse_max_gradient(g: Option<f64>, case: &edgetherm::case::Case) -> Result<Option<f64>> {
     match g {
-        Some(g) if g.is_finite() && g > 0.0 => {
-            Ok(Some(case.units.dtemp_to_k(g) / case.units.length_to_m(1.0)))
-        }
-        Some(g) => Err(Error::invalid_field(
-            "--max-gradient",
-            format!("must be a positive number (temperature unit per length unit), not {g}"),
-        )),
+        Some(g) => edgetherm::plausible::gradient_k_per_m(&case.units, g)
+            .map(Some)
+            .map_err(|m| Error::invalid_field("--max-gradient", m)),
         None => Ok(None),
     }
 }

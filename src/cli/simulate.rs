@@ -62,12 +62,17 @@ pub fn run(args: &SimulateArgs, global: &GlobalOptions) -> Result<i32> {
             ),
         ));
     }
+    if args.noise > 0.0 {
+        edgetherm::plausible::sigma_k(&case.units, args.noise)
+            .map_err(|m| Error::invalid_field("--noise", format!("{m}; or 0 for no noise")))?;
+    }
     let (nx, ny) = match &args.grid {
         Some(g) => parse_grid(g)?,
         None => DEFAULT_GRID,
     };
     // simulate reads the plate, the sensors, the fixed-edge profiles and the truth; an old
-    // readings.csv is not among its inputs and may be replaced by --out
+    // readings.csv is not among its inputs and may be replaced by --out, but only with
+    // --overwrite (it may hold measurements)
     let mut inputs: Vec<&std::path::Path> = case
         .files
         .inputs()
@@ -77,7 +82,7 @@ pub fn run(args: &SimulateArgs, global: &GlobalOptions) -> Result<i32> {
     inputs.push(&args.truth);
     for (path, flag) in [(&args.out, "--out"), (&args.field, "--field")] {
         if let Some(p) = path {
-            check_output_file(p, flag, &inputs)?;
+            check_output_file(p, flag, &inputs, global.overwrite)?;
         }
     }
 

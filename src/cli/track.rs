@@ -3,8 +3,11 @@
 //!
 //! The log is read on a second thread (CSV parsing and the fits then run side by side) and
 //! handed over in bounded batches, so memory stays constant. `track.csv` is written row by
-//! row (see [`edgetherm::io::StreamWriter`] for what a kill leaves); the other outputs are
-//! written atomically at the end, and with `--follow` also whenever the log goes quiet.
+//! row into a staging folder (see [`edgetherm::io::StreamWriter`]); the whole set is moved
+//! into place at the end ([`edgetherm::io::OutputSet`]), so a reader never sees a mix of an
+//! earlier run's files and this one's. With `--follow`, `track.csv` is written in place and
+//! the other outputs are rewritten whenever the log goes quiet; the manifest is removed at
+//! the start and written at the end.
 //!
 //! Exit status: 0 done; 3 when `--limit` is given and an alarm episode occurred; 2 invalid
 //! input; 1 internal error.
@@ -15,7 +18,7 @@ use super::{
 use edgetherm::case::Case;
 use edgetherm::io::logger::Follow;
 use edgetherm::io::{
-    LoggerOptions, LoggerReader, LoggerRow, StreamWriter, check_track_outputs, create_output_dir,
+    LoggerOptions, LoggerReader, LoggerRow, OutputSet, StreamWriter, check_track_outputs,
     load_case, write_atomic,
 };
 use edgetherm::report::track::{
@@ -23,6 +26,7 @@ use edgetherm::report::track::{
 };
 use edgetherm::track::{RowRecord, TrackOptions, Tracker};
 use edgetherm::{Error, Result};
+use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::sync::mpsc;
 use std::time::{Duration, Instant};
@@ -105,13 +109,43 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
     let case = load_case(&files)?;
     let mut inputs = case.files.inputs();
     inputs.push(&args.log);
-    check_track_outputs(&args.out, &inputs)?;
+    check_track_outputs(&args.out, &inputs, global.overwrite)?;
     let (options, idle_exit) = track_options(args, &case)?;
     let limit = options.limit;
+    let mut cost = edgetherm::budget::track_cost(
+        &case,
+        options.draws,
+        options.stride,
+        edgetherm::track::engine::PATTERN_CACHE,
+    );
+    if options.bootstrap {
+        let replicates = options.replicates.unwrap_or(case.uncertainty.replicates);
+        let per_row = edgetherm::budget::estimate_cost(
+            &case,
+            replicates,
+            args.replicates.is_some(),
+            (2, 2),
+            case.sensors.len(),
+        );
+        cost.items.extend(
+            per_row
+                .items
+                .into_iter()
+                .filter(|i| i.field.ends_with("replicates")),
+        );
+    }
+    global.check_budget(&cost, &case)?;
     let mut tracker = Tracker::new(&case, options)?;
     let reader = open_log(args, &case, global, idle_exit)?;
-    create_output_dir(&args.out)?;
-    let writer = StreamWriter::create(&args.out.join("track.csv"), TRACK_CSV_HEADER, args.follow)?;
+    // the whole set is staged and moved into place at the end (io::OutputSet); with
+    // --follow, track.csv is written where it can be watched while the log grows
+    let mut set = OutputSet::begin(&args.out, "track")?;
+    let csv_path = if args.follow {
+        set.live_path("track.csv")?
+    } else {
+        set.staging_path("track.csv")
+    };
+    let writer = StreamWriter::create(&csv_path, TRACK_CSV_HEADER, args.follow)?;
     let (rx, handle) = spawn_reader(reader, if args.follow { 1 } else { BATCH });
     let mut rows_out = RowsOut {
         case: tracker.case().clone(),
@@ -122,7 +156,9 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
     let _ = handle.join();
     let writer = rows_out.writer;
     writer.finish()?;
-    let summary = write_summaries(&tracker, &args.out)?;
+    set.record("track.csv")?;
+    let summary = write_summaries(&tracker, &mut set)?;
+    set.commit()?;
     if global.json {
         print_stdout(&format!("{:#}\n", summary_json(&case, &summary)))?;
     } else if !global.quiet {
@@ -283,6 +319,8 @@ fn stream_rows(
     let mut last_write = Instant::now();
     let mut dirty = false;
     let mut rows_seen: u64 = 0;
+    // without a progress bar (stderr not a terminal), a line every 30 s says the run is alive
+    let mut last_note = Instant::now();
     loop {
         let msg = if args.follow {
             match rx.recv_timeout(Duration::from_millis(500)) {
@@ -291,7 +329,7 @@ fn stream_rows(
                     // the log is quiet: make every output current (once)
                     if dirty {
                         rows_out.writer.flush()?;
-                        write_summaries(tracker, &args.out)?;
+                        write_live_summaries(tracker, &args.out)?;
                         last_write = Instant::now();
                         dirty = false;
                     }
@@ -310,12 +348,18 @@ fn stream_rows(
         rows_seen += rows.len() as u64;
         if let Some(b) = &bar {
             b.set_position(rows_seen);
+        } else if !global.quiet && last_note.elapsed() >= Duration::from_secs(30) {
+            let _ = writeln!(
+                std::io::stderr(),
+                "edgetherm: track: {rows_seen} rows processed so far"
+            );
+            last_note = Instant::now();
         }
         if args.follow {
             rows_out.writer.flush()?;
             dirty = true;
             if last_write.elapsed() >= Duration::from_secs(2) {
-                write_summaries(tracker, &args.out)?;
+                write_live_summaries(tracker, &args.out)?;
                 last_write = Instant::now();
                 dirty = false;
             }
@@ -340,8 +384,10 @@ impl RowsOut {
     }
 }
 
-/// Write alarms.csv, sensors-health.csv, summary.json and track.svg atomically.
-fn write_summaries(tracker: &Tracker, out: &Path) -> Result<edgetherm::track::TrackSummary> {
+/// With `--follow`, while the log is read: alarms.csv, sensors-health.csv, summary.json and
+/// track.svg written straight into the output directory, each atomically (the set's
+/// manifest is absent until the run ends, which tells a reader that the set is live).
+fn write_live_summaries(tracker: &Tracker, out: &Path) -> Result<()> {
     let case = tracker.case();
     let s = tracker.snapshot();
     write_atomic(&out.join("alarms.csv"), &alarms_csv(case, &s))?;
@@ -350,5 +396,21 @@ fn write_summaries(tracker: &Tracker, out: &Path) -> Result<edgetherm::track::Tr
     write_atomic(&out.join("summary.json"), json.as_bytes())?;
     let svg = plot::track_svg(case, &s, &tracker.series().bins())?;
     write_atomic(&out.join("track.svg"), svg.as_bytes())?;
+    Ok(())
+}
+
+/// Write alarms.csv, sensors-health.csv, summary.json and track.svg into the set.
+fn write_summaries(
+    tracker: &Tracker,
+    set: &mut OutputSet,
+) -> Result<edgetherm::track::TrackSummary> {
+    let case = tracker.case();
+    let s = tracker.snapshot();
+    set.write("alarms.csv", &alarms_csv(case, &s))?;
+    set.write("sensors-health.csv", &health_csv(case, &s))?;
+    let json = format!("{:#}\n", summary_json(case, &s));
+    set.write("summary.json", json.as_bytes())?;
+    let svg = plot::track_svg(case, &s, &tracker.series().bins())?;
+    set.write("track.svg", svg.as_bytes())?;
     Ok(s)
 }

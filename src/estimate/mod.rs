@@ -146,7 +146,9 @@ pub fn estimate(
     });
     let maps = OutputMaps::new(&problem, options.grid)?;
     let resampled = outputs::resample(&problem, &fitted, options, progress)?;
-    assemble::assemble(&problem, fitted, maps, resampled, bounds, options)
+    let result = assemble::assemble(&problem, fitted, maps, resampled, bounds, options)?;
+    result.check_finite()?;
+    Ok(result)
 }
 
 /// The forward model an estimate fits: the case's plate with `case.fit.terms` series terms per

@@ -232,3 +232,68 @@ pub struct EstimateResult {
     /// How the readings were converted from thermocouple voltages, when they were.
     pub conversion: Option<crate::case::ReadingConversion>,
 }
+
+impl EstimateResult {
+    /// Check that every number a verdict or a reader relies on is finite: the hottest point
+    /// and its intervals, the exceedance probability, each edge's estimate and pointwise and
+    /// simultaneous bands, the field and its band, the fitted values, the strength and the
+    /// fit's sigma. [`crate::estimate::estimate`] calls it before returning, so no hottest
+    /// point, exceedance verdict or exit status is ever made from a non-finite number.
+    ///
+    /// # Errors
+    /// [`crate::Error::Internal`] naming the first quantity that is not finite.
+    pub fn check_finite(&self) -> crate::Result<()> {
+        fn all(v: &[f64]) -> bool {
+            v.iter().all(|x| x.is_finite())
+        }
+        let h = &self.hottest;
+        let mut checks: Vec<(String, bool)> = vec![
+            (
+                "the hottest temperature and its interval".into(),
+                h.temperature.is_finite() && all(&h.temperature_interval),
+            ),
+            (
+                "the hottest position and its interval".into(),
+                h.position.is_finite() && all(&h.position_interval),
+            ),
+            (
+                "the exceedance probability".into(),
+                self.exceedance
+                    .as_ref()
+                    .is_none_or(|e| e.probability.is_finite()),
+            ),
+            (
+                "the regularisation strength".into(),
+                self.strength.value.is_finite(),
+            ),
+            ("the reading sigma".into(), self.fit.sigma.is_finite()),
+            (
+                "the fitted values".into(),
+                self.sensors.iter().all(|s| s.fitted.is_finite()),
+            ),
+            (
+                "the field and its band".into(),
+                all(&self.field.estimate) && all(&self.field.lower) && all(&self.field.upper),
+            ),
+        ];
+        for e in &self.edges {
+            checks.push((
+                format!("the {} edge's profile and its bands", e.edge),
+                all(&e.estimate)
+                    && all(&e.lower)
+                    && all(&e.upper)
+                    && all(&e.simultaneous_lower)
+                    && all(&e.simultaneous_upper),
+            ));
+        }
+        match checks.into_iter().find(|(_, ok)| !ok) {
+            None => Ok(()),
+            Some((what, _)) => Err(crate::Error::Internal(format!(
+                "the computation gave a non-finite value for {what}, so no hottest point or \
+                 verdict is given; the readings, their uncertainties or the settings are \
+                 beyond what the method can compute in double precision (docs/case-files.md, \
+                 plausible ranges)"
+            ))),
+        }
+    }
+}

@@ -630,6 +630,14 @@ impl Decomposition {
             }
         };
         let lambda = 10f64.powf(x);
+        if !(lambda.is_finite() && lambda > 0.0) || crit.is_nan() {
+            return Err(Error::Internal(format!(
+                "the {} rule found no finite strength (criterion {crit} at strength {lambda}): \
+                 the weighted readings overflow or underflow; check the reading uncertainties \
+                 (sigma) and the readings",
+                method.name()
+            )));
+        }
         let (grid, curve) = if opts.keep_curve {
             (grid.lambdas.clone(), curve)
         } else {
@@ -664,10 +672,11 @@ fn discrepancy_root(
     if values[n - 1] <= target {
         return (xs[n - 1], values[n - 1], true);
     }
-    let k = values
-        .iter()
-        .position(|v| *v >= target)
-        .expect("bracketed above");
+    // χ² is monotone in λ, so the first grid value at or above the target brackets the root;
+    // a curve that overflowed (NaN) has none, and the caller sees a non-finite χ².
+    let Some(k) = values.iter().position(|v| *v >= target).filter(|&k| k > 0) else {
+        return (xs[n - 1], f64::NAN, true);
+    };
     let phi = |x: f64| chi2(x).ln() - target.ln();
     let solver = BrentRoot::new(xs[k - 1], xs[k], 1e-13);
     let run = Executor::new(Cost(phi), solver)
@@ -906,6 +915,20 @@ mod tests {
             assert_eq!(StrengthMethod::parse(m).unwrap().name(), m);
         }
         assert!(StrengthMethod::parse("aic").is_none());
+    }
+
+    /// A chi-square curve that overflowed (NaN everywhere, as with a reading sigma of 1e-200)
+    /// brackets no root: a non-finite result the caller reports, never a panic.
+    #[test]
+    fn discrepancy_root_on_an_overflowed_curve() {
+        let xs = [-2.0, -1.0, 0.0, 1.0];
+        let nan = [f64::NAN; 4];
+        let (_, c, at_end) = discrepancy_root(&|_| f64::NAN, &xs, &nan, 4.0);
+        assert!(c.is_nan() && at_end);
+        // a finite monotone curve still finds its root: chi2 = 10^x, target 3 -> x = log10 3
+        let vals: Vec<f64> = xs.iter().map(|x| 10f64.powf(*x)).collect();
+        let (x, c, at_end) = discrepancy_root(&|x| 10f64.powf(x), &xs, &vals, 3.0);
+        assert!(!at_end && (x - 3f64.log10()).abs() < 1e-9 && (c - 3.0).abs() < 1e-8);
     }
 
     /// Re-selecting for new data on the same decomposition equals a fresh decomposition.

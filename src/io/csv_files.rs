@@ -53,11 +53,40 @@ pub(crate) struct CsvTable {
 
 /// Read a whole input file; a missing or unreadable file is an input error (exit status 2).
 pub(crate) fn read_input(path: &Path) -> Result<Vec<u8>> {
-    std::fs::read(path).map_err(|source| Error::Io {
+    use crate::budget::MAX_INPUT_BYTES;
+    use std::io::Read;
+    let io_err = |source| Error::Io {
         path: path.to_path_buf(),
         source,
         input: true,
-    })
+    };
+    let file = std::fs::File::open(path).map_err(io_err)?;
+    if file.metadata().is_ok_and(|m| m.is_dir()) {
+        return Err(Error::invalid_at(
+            path,
+            None,
+            None,
+            "this is a directory, not a file; give the path of the file",
+        ));
+    }
+    // read at most one byte past the limit, so a device or an endless pipe stops here
+    let mut bytes = Vec::new();
+    file.take(MAX_INPUT_BYTES + 1)
+        .read_to_end(&mut bytes)
+        .map_err(io_err)?;
+    if bytes.len() as u64 > MAX_INPUT_BYTES {
+        return Err(Error::invalid_at(
+            path,
+            None,
+            None,
+            format!(
+                "this file is larger than {} MiB (or a device that never ends), far larger \
+                 than any case file; check the path",
+                MAX_INPUT_BYTES / (1024 * 1024)
+            ),
+        ));
+    }
+    Ok(bytes)
 }
 
 /// Check that `bytes` are UTF-8 text; the error names the line of the first bad byte.
@@ -299,17 +328,10 @@ fn tidy(v: f64) -> String {
     format!("{v:.9e}").parse::<f64>().unwrap_or(v).to_string()
 }
 
-/// An absolute temperature in the case unit, checked against absolute zero, in kelvin.
+/// An absolute temperature in the case unit, checked against the plausible range
+/// ([`crate::plausible::temperature_k`]: absolute zero to 5000 K), in kelvin.
 pub(crate) fn absolute_temperature(units: &Units, t: f64) -> std::result::Result<f64, String> {
-    let k = units.temp_to_k(t);
-    if k < 0.0 {
-        let zero = tidy(units.temp_from_k(0.0));
-        let u = units.temperature;
-        return Err(format!(
-            "{t} {u} is below absolute zero ({zero} {u}); check the value and temperature_unit"
-        ));
-    }
-    Ok(k)
+    crate::plausible::temperature_k(units, t)
 }
 
 /// Read `sensors.csv`: `sensor,x,y` with optional `sigma`, `position_sigma` and `offset` (a
@@ -388,15 +410,37 @@ pub(crate) fn read_sensors(path: &Path, units: &Units, shape: &Shape) -> Result<
                 ),
             ));
         }
+        if matches!(shape, Shape::Strip { .. }) && position.y > crate::plausible::MAX_LENGTH_M {
+            return Err(table.error(
+                row.line,
+                "y",
+                format!(
+                    "sensor `{id}` is {} {l} deep in the strip, beyond the plausible {} m; \
+                     check the value and length_unit",
+                    crate::plausible::short(y),
+                    crate::plausible::MAX_LENGTH_M
+                ),
+            ));
+        }
         let sigma_k = match table.opt_number(row, "sigma")? {
             Some(s) if s <= 0.0 => {
                 return Err(table.error(
                     row.line,
                     "sigma",
-                    format!("the standard uncertainty must be positive, not {s}; leave the cell empty to use [noise]"),
+                    format!(
+                        "the standard uncertainty must be positive, not {s}; leave the cell \
+                         empty to use [noise]"
+                    ),
                 ));
             }
-            s => s.map(|s| units.dtemp_to_k(s)),
+            Some(s) => Some(crate::plausible::sigma_k(units, s).map_err(|m| {
+                table.error(
+                    row.line,
+                    "sigma",
+                    format!("{m}; leave the cell empty to use [noise]"),
+                )
+            })?),
+            None => None,
         };
         let position_sigma_m = match table.opt_number(row, "position_sigma")? {
             Some(s) if s < 0.0 => {
@@ -406,7 +450,12 @@ pub(crate) fn read_sensors(path: &Path, units: &Units, shape: &Shape) -> Result<
                     format!("the position uncertainty cannot be negative ({s})"),
                 ));
             }
-            s => s.map(|s| units.length_to_m(s)),
+            Some(0.0) => Some(0.0),
+            Some(s) => Some(
+                crate::plausible::length_m(units, s, "the position uncertainty")
+                    .map_err(|m| table.error(row.line, "position_sigma", m))?,
+            ),
+            None => None,
         };
         let offset_k = table
             .opt_number(row, "offset")?
@@ -759,6 +808,18 @@ mod tests {
             ("sensor,x,z\nA,10,3\n", 1, "z", "unknown column"),
             ("sensor,x\nA,10\n", 1, "y", "missing column `y`"),
             ("sensor,x,y,sigma\nA,10,3,0\n", 2, "sigma", "positive"),
+            (
+                "sensor,x,y,sigma\nA,10,3,1e-300\n",
+                2,
+                "sigma",
+                "plausible range",
+            ),
+            (
+                "sensor,x,y,position_sigma\nA,10,3,1e300\n",
+                2,
+                "position_sigma",
+                "plausible range",
+            ),
         ];
         for (text, line, field, gist) in cases {
             let p = file(&d, "s.csv", text);

@@ -54,7 +54,7 @@ pub const FAULT_CODES: [f64; 10] = [
 
 /// Readings above this many kelvin are refused as implausible (no thermocouple type in
 /// IEC 60584-1 reaches it; a number this large is a corrupted cell, not a temperature).
-pub const MAX_PLAUSIBLE_K: f64 = 5000.0;
+pub const MAX_PLAUSIBLE_K: f64 = crate::plausible::MAX_TEMPERATURE_K;
 
 /// How a logger's time column is written (fixed by the first row).
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -107,6 +107,10 @@ struct FollowRead<R> {
     inner: R,
     follow: Option<Follow>,
     last_data: Instant,
+    /// Bytes since the last line end: a line longer than
+    /// [`crate::budget::MAX_LINE_BYTES`] (a device such as `/dev/zero`, a binary file) is an
+    /// error, so the CSV reader never buffers without limit.
+    line_bytes: usize,
 }
 
 impl<R: Read> Read for FollowRead<R> {
@@ -115,6 +119,20 @@ impl<R: Read> Read for FollowRead<R> {
             let n = self.inner.read(buf)?;
             if n > 0 || buf.is_empty() {
                 self.last_data = Instant::now();
+                self.line_bytes = match buf[..n].iter().rposition(|&b| b == b'\n') {
+                    Some(k) => n - k - 1,
+                    None => self.line_bytes + n,
+                };
+                if self.line_bytes > crate::budget::MAX_LINE_BYTES {
+                    return Err(std::io::Error::new(
+                        std::io::ErrorKind::InvalidData,
+                        format!(
+                            "a line longer than {} MiB: this is not a logger file (a device or \
+                             binary data?)",
+                            crate::budget::MAX_LINE_BYTES / (1024 * 1024)
+                        ),
+                    ));
+                }
                 return Ok(n);
             }
             let Some(f) = self.follow else {
@@ -176,6 +194,7 @@ impl LoggerReader {
             inner: file,
             follow: options.follow,
             last_data: Instant::now(),
+            line_bytes: 0,
         };
         let mut reader = csv::ReaderBuilder::new()
             .has_headers(true)
@@ -468,14 +487,15 @@ impl LoggerReader {
         };
         let name = &self.column_names[k];
         let err = |msg: String| Error::invalid_at(&self.path, Some(line as usize), Some(name), msg);
-        let kelvin = crate::io::convert::reading_k(&self.case, v, cold_junction_k).map_err(err)?;
-        if kelvin > MAX_PLAUSIBLE_K {
+        if self.case.conversion().is_none() && self.units.temp_to_k(v) > MAX_PLAUSIBLE_K {
             return Err(err(format!(
-                "{v} {} is not a plausible reading (above {MAX_PLAUSIBLE_K} K); if the logger \
+                "{} {} is not a plausible reading (above {MAX_PLAUSIBLE_K} K); if the logger \
                  writes it as an over-range code, replace it with an empty cell",
+                crate::plausible::short(v),
                 self.units.temperature
             )));
         }
+        let kelvin = crate::io::convert::reading_k(&self.case, v, cold_junction_k).map_err(err)?;
         Ok(Some(crate::io::convert::with_offset(
             &self.case, sensor, kelvin,
         )))
@@ -670,7 +690,7 @@ impl StreamWriter {
             (None, Some(std::fs::File::create(path).map_err(io_err)?))
         } else {
             let tmp = tempfile::Builder::new()
-                .prefix(".edgetherm-")
+                .prefix(&crate::io::output::temp_prefix())
                 .suffix(".tmp")
                 .tempfile_in(dir)
                 .map_err(io_err)?;
@@ -777,15 +797,13 @@ pub const TRACK_OUTPUT_FILE_NAMES: [&str; 5] = [
     "summary.json",
 ];
 
-/// Refuse an output directory where a `track` output would replace one of `inputs`.
+/// Refuse an output directory where a `track` output would replace one of `inputs`, or an
+/// existing file no earlier run wrote unless `overwrite` ([`crate::io::output::check_output_names`]).
 ///
 /// # Errors
 /// [`Error::Invalid`] naming `--out`.
-pub fn check_track_outputs(out: &Path, inputs: &[&Path]) -> Result<()> {
-    for name in TRACK_OUTPUT_FILE_NAMES {
-        crate::io::check_output_file(&out.join(name), "option.out", inputs)?;
-    }
-    crate::io::check_output_file(out, "option.out", inputs)
+pub fn check_track_outputs(out: &Path, inputs: &[&Path], overwrite: bool) -> Result<()> {
+    crate::io::output::check_output_names(out, &TRACK_OUTPUT_FILE_NAMES, inputs, overwrite)
 }
 
 #[cfg(test)]

@@ -27,8 +27,10 @@ pub use logger::{
     check_track_outputs,
 };
 pub use output::{
-    OUTPUT_FILE_NAMES, check_output_dir, check_output_file, create_output_dir, write_atomic,
+    MANIFEST_NAME, OUTPUT_FILE_NAMES, OutputSet, check_output_dir, check_output_file,
+    clean_stale_temporaries, create_output_dir, verify_manifest, write_atomic,
 };
 pub use plate_file::{
     DEFAULT_CONFIDENCE, DEFAULT_REPLICATES, DEFAULT_SEED, DEFAULT_TERMS, MAX_REPLICATES, MAX_TERMS,
+    plate_line_of,
 };

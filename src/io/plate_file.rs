@@ -15,6 +15,7 @@ use crate::io::csv_files::{self, absolute_temperature};
 use crate::io::spans::{TomlSpans, guess_field_on_line, header_name};
 use crate::its90::Its90Type;
 use crate::noise::{NoiseSpec, ThermocoupleType, ToleranceClass};
+use crate::plausible::MAX_LENGTH_M;
 use crate::units::{LengthUnit, TemperatureUnit, Units};
 use serde::Deserialize;
 use std::fmt;
@@ -204,6 +205,14 @@ pub(crate) struct PlateFile {
     pub profiles: Vec<(Edge, PathBuf)>,
 }
 
+/// The line of the key `field` (`uncertainty.replicates`) in the plate file at `path`, when the
+/// file gives it (for messages about settings checked after loading, such as budgets).
+pub fn plate_line_of(path: &Path, field: &str) -> Option<usize> {
+    let bytes = csv_files::read_input(path).ok()?;
+    let text = std::str::from_utf8(&bytes).ok()?;
+    TomlSpans::new(text).line_of_key(field)
+}
+
 /// Read and validate `plate.toml`.
 pub(crate) fn read_plate_file(path: &Path) -> Result<PlateFile> {
     let bytes = csv_files::read_input(path)?;
@@ -325,18 +334,20 @@ impl Checker<'_> {
             length: raw.plate.length_unit,
             temperature: raw.plate.temperature_unit,
         };
-        let width = self.finite("plate.width", raw.plate.width)?;
-        let shape = match &raw.plate.height {
-            NumberOrWord::Number(h) => {
-                let h = self.finite("plate.height", *h)?;
-                Shape::Rectangle {
-                    width_m: units.length_to_m(width),
-                    height_m: units.length_to_m(h),
-                }
+        let length = |field: &str, v: f64, what: &str| -> Result<f64> {
+            let v = self.finite(field, v)?;
+            if v <= 0.0 {
+                return Err(self.err(field, format!("{what} must be a positive number, not {v}")));
             }
-            NumberOrWord::Word(w) if w == "infinite" => Shape::Strip {
-                width_m: units.length_to_m(width),
+            crate::plausible::length_m(&units, v, what).map_err(|m| self.err(field, m))
+        };
+        let width_m = length("plate.width", raw.plate.width, "the width")?;
+        let shape = match &raw.plate.height {
+            NumberOrWord::Number(h) => Shape::Rectangle {
+                width_m,
+                height_m: length("plate.height", *h, "the height")?,
             },
+            NumberOrWord::Word(w) if w == "infinite" => Shape::Strip { width_m },
             NumberOrWord::Word(w) => {
                 return Err(self.err(
                     "plate.height",
@@ -348,6 +359,9 @@ impl Checker<'_> {
         };
         if let Some(k) = raw.plate.conductivity {
             self.finite("plate.conductivity", k)?;
+            if k > 0.0 {
+                crate::plausible::conductivity(k).map_err(|m| self.err("plate.conductivity", m))?;
+            }
         }
         let mut conditions: [Option<EdgeCondition>; 4] = [None, None, None, None];
         let mut profiles = Vec::new();
@@ -393,18 +407,10 @@ impl Checker<'_> {
     fn bounds(&self, raw: RawBounds, units: &Units) -> Result<BoundsSettings> {
         let max_gradient_k_per_m = match raw.max_gradient {
             None => None,
-            Some(g) if g.is_finite() && g > 0.0 => {
-                Some(units.dtemp_to_k(g) / units.length_to_m(1.0))
-            }
-            Some(g) => {
-                return Err(self.err(
-                    "bounds.max_gradient",
-                    format!(
-                        "the gradient limit must be a positive number (temperature unit per \
-                         length unit), not {g}"
-                    ),
-                ));
-            }
+            Some(g) => Some(
+                crate::plausible::gradient_k_per_m(units, g)
+                    .map_err(|m| self.err("bounds.max_gradient", m))?,
+            ),
         };
         let temperature = |field: &str, v: Option<f64>| -> Result<Option<f64>> {
             match v {
@@ -455,6 +461,18 @@ impl Checker<'_> {
                 &field,
                 "convective edges (h, ambient) are not supported in this version; use fixed, \
                  insulated or unknown",
+            ));
+        }
+        if !matches!(condition, "fixed" | "insulated" | "unknown") {
+            let hint = match condition.to_ascii_lowercase().as_str() {
+                c @ ("fixed" | "insulated" | "unknown") => {
+                    format!(" (conditions are written in lower case: `{c}`)")
+                }
+                _ => String::new(),
+            };
+            return Err(self.err(
+                &key("condition"),
+                format!("unknown condition `{condition}`; use fixed, insulated or unknown{hint}"),
             ));
         }
         if condition != "fixed" {
@@ -732,7 +750,9 @@ impl Checker<'_> {
                         format!("the standard uncertainty must be a positive number, not {s}"),
                     ));
                 }
-                Ok(NoiseSpec::Sigma(units.dtemp_to_k(s)))
+                crate::plausible::sigma_k(units, s)
+                    .map(NoiseSpec::Sigma)
+                    .map_err(|m| self.err("noise.sigma", m))
             }
             (None, Some(c), Some(t)) => {
                 let class = ToleranceClass::parse(c.trim()).ok_or_else(|| {
@@ -803,7 +823,9 @@ impl Checker<'_> {
         let positive_dt = |field: &str, v: Option<f64>, what: &str| -> Result<Option<f64>> {
             match v {
                 None => Ok(None),
-                Some(v) if v.is_finite() && v > 0.0 => Ok(Some(units.dtemp_to_k(v))),
+                Some(v) if v.is_finite() && v > 0.0 => crate::plausible::sigma_k(units, v)
+                    .map(Some)
+                    .map_err(|m| self.err(field, format!("{what}: {m}"))),
                 Some(v) => Err(self.err(
                     field,
                     format!("{what} must be a positive temperature difference, not {v}"),
@@ -923,7 +945,9 @@ impl Checker<'_> {
                         format!("the candidate spacing must be a positive length, not {s}"),
                     ));
                 }
-                CandidateSource::Grid(Some(units.length_to_m(s)))
+                let m = crate::plausible::length_m(units, s, "the candidate spacing")
+                    .map_err(|m| self.err("design.candidate_spacing", m))?;
+                CandidateSource::Grid(Some(m))
             }
             (None, Some(f)) => {
                 let base = self.path.parent().unwrap_or(Path::new(""));
@@ -997,11 +1021,16 @@ impl Checker<'_> {
         };
         let position_sigma_m = match raw.position_sigma {
             None => None,
-            Some(s) if s.is_finite() && s >= 0.0 => Some(units.length_to_m(s)),
+            Some(s) if s.is_finite() && s >= 0.0 && units.length_to_m(s) <= MAX_LENGTH_M => {
+                Some(units.length_to_m(s))
+            }
             Some(s) => {
                 return Err(self.err(
                     "uncertainty.position_sigma",
-                    format!("the position uncertainty must be a number 0 or larger, not {s}"),
+                    format!(
+                        "the position uncertainty must be a number 0 or larger, up to \
+                         {MAX_LENGTH_M} m, not {s}"
+                    ),
                 ));
             }
         };

@@ -166,6 +166,10 @@ pub(crate) fn fixed(v: f64, decimals: usize) -> String {
     if !v.is_finite() {
         return String::new();
     }
+    if v.abs() >= 1e15 {
+        // three hundred digits help no reader: a value this large is written in exponent form
+        return format!("{v:.decimals$e}");
+    }
     let s = format!("{v:.decimals$}");
     if s.starts_with('-') && s[1..].chars().all(|c| c == '0' || c == '.') {
         s[1..].to_string()
@@ -307,6 +311,8 @@ mod tests {
     #[test]
     fn fixed_precision_and_missing_values() {
         assert_eq!(fixed(1.23456, 3), "1.235");
+        assert_eq!(fixed(1e308, 2), "1.00e308");
+        assert_eq!(fixed(-2.5e20, 1), "-2.5e20");
         assert_eq!(fixed(-0.00001, 3), "0.000");
         assert_eq!(fixed(f64::NAN, 3), "");
         assert_eq!(fixed(f64::INFINITY, 1), "");

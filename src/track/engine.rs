@@ -714,6 +714,20 @@ impl RowEstimator {
             out.diagnostics = diagnostics;
             out.refitted = true;
         }
+        // no hottest point and no alarm from a non-finite number: such a row is skipped
+        // with this message
+        let finite = out.temperature.is_finite()
+            && out.temperature_interval.iter().all(|v| v.is_finite())
+            && out.position.is_finite()
+            && out.exceedance.is_none_or(f64::is_finite);
+        if !finite {
+            return Err(Error::Internal(
+                "the row's estimate is not a finite number (the readings or their \
+                 uncertainties are beyond what the method computes in double precision); \
+                 no hottest point or alarm from this row"
+                    .into(),
+            ));
+        }
         Ok(())
     }
 

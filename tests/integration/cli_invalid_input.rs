@@ -837,14 +837,15 @@ fn output_dir_may_not_be_the_case_dir() {
     let dir = case(&[]);
     let case = load_case(&CaseFiles::in_dir(dir.path())).unwrap();
     let inputs = case.files.inputs();
-    let e = check_output_dir(dir.path(), &inputs).unwrap_err();
+    // an input is refused even with overwrite on
+    let e = check_output_dir(dir.path(), &inputs, true).unwrap_err();
     assert_eq!(e.exit_code(), 2);
     let msg = e.to_string();
     assert!(
         msg.contains("sensors.csv") && msg.contains("never overwritten"),
         "{msg}"
     );
-    assert!(check_output_dir(&dir.path().join("edgetherm-out"), &inputs).is_ok());
+    assert!(check_output_dir(&dir.path().join("edgetherm-out"), &inputs, false).is_ok());
 }
 
 // ---- [bounds] -------------------------------------------------------------------------------

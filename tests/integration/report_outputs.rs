@@ -1009,9 +1009,15 @@ fn write_outputs_creates_the_directory_and_writes_every_file() {
     for p in &paths {
         assert!(std::fs::metadata(p).unwrap().len() > 0, "{}", p.display());
     }
-    // again, over the previous run: replaced, no temporary files left
+    // again, over the previous run: replaced, no temporary files left (the seven outputs
+    // and the manifest, which lists them; nothing beside the directory either)
     write_outputs(&r, &out).unwrap();
-    assert_eq!(std::fs::read_dir(&out).unwrap().count(), 7);
+    assert_eq!(std::fs::read_dir(&out).unwrap().count(), 8);
+    assert_eq!(
+        edgetherm::io::verify_manifest(&out).unwrap(),
+        edgetherm::io::OUTPUT_FILE_NAMES
+    );
+    assert_eq!(std::fs::read_dir(out.parent().unwrap()).unwrap().count(), 1);
     // same result, same bytes
     let a = std::fs::read(out.join("field.svg")).unwrap();
     let b = render_outputs(&r).unwrap()[5].bytes.clone();

@@ -7,7 +7,6 @@ mod svg;
 
 use crate::design::{Comparison, Criterion, DesignResult, LayoutScore, LayoutSensor, z_of};
 use crate::error::{Error, Result};
-use crate::io::{create_output_dir, write_atomic};
 use crate::report::format::{CaseUnits, edge_coordinate, rounded, significant};
 use serde_json::{Value, json};
 use std::fmt::Write as _;
@@ -311,17 +310,14 @@ pub fn render_design_outputs(r: &DesignResult) -> Result<Vec<(&'static str, Vec<
     ])
 }
 
-/// Render every output and write it into `out_dir` (created if needed), each file
-/// atomically; nothing is written unless every output rendered. The caller must first check
+/// Render every output and write it into `out_dir` (created if needed) as one set
+/// ([`crate::io::OutputSet`]); nothing is written unless every output rendered. The caller must first check
 /// with [`crate::io::output::check_output_names`] that no output would replace an input.
 pub fn write_design_outputs(r: &DesignResult, out_dir: &Path) -> Result<Vec<PathBuf>> {
     let outputs = render_design_outputs(r)?;
-    create_output_dir(out_dir)?;
-    let mut written = Vec::new();
+    let mut set = crate::io::OutputSet::begin(out_dir, "design")?;
     for (name, bytes) in outputs {
-        let path = out_dir.join(name);
-        write_atomic(&path, &bytes)?;
-        written.push(path);
+        set.write(name, &bytes)?;
     }
-    Ok(written)
+    set.commit()
 }

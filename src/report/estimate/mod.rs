@@ -27,7 +27,7 @@ pub use summary::{SAFETY_CAUTION, cautions, summary_json, text_summary};
 
 use crate::error::{Error, Result};
 use crate::estimate::EstimateResult;
-use crate::io::{OUTPUT_FILE_NAMES, create_output_dir, write_atomic};
+use crate::io::{OUTPUT_FILE_NAMES, OutputSet};
 use std::path::{Path, PathBuf};
 
 /// One rendered output: its file name (one of [`OUTPUT_FILE_NAMES`]) and its bytes.
@@ -67,19 +67,16 @@ pub fn render_outputs(result: &EstimateResult) -> Result<Vec<Output>> {
     Ok(out)
 }
 
-/// Render every output and write it into `out_dir` (created if needed), each file
-/// atomically. Returns the paths written, in the order of [`OUTPUT_FILE_NAMES`].
+/// Render every output and write it into `out_dir` (created if needed) as one set
+/// ([`OutputSet`]: a reader never sees a mix of an earlier set and this one). Returns the paths written, in the order of [`OUTPUT_FILE_NAMES`].
 ///
 /// Nothing is written unless every output rendered. The caller must first check with
 /// [`crate::io::check_output_dir`] that no output would replace an input.
 pub fn write_outputs(result: &EstimateResult, out_dir: &Path) -> Result<Vec<PathBuf>> {
     let outputs = render_outputs(result)?;
-    create_output_dir(out_dir)?;
-    let mut written = Vec::with_capacity(outputs.len());
+    let mut set = OutputSet::begin(out_dir, "estimate")?;
     for o in outputs {
-        let path = out_dir.join(o.name);
-        write_atomic(&path, &o.bytes)?;
-        written.push(path);
+        set.write(o.name, &o.bytes)?;
     }
-    Ok(written)
+    set.commit()
 }

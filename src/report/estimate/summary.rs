@@ -482,6 +482,7 @@ fn sensors_text(r: &EstimateResult, out: &mut String) {
             let s = &r.sensors[*k];
             let loo = s
                 .loo_residual
+                .filter(|v| v.is_finite())
                 .map(|v| format!(" (standardised LOO residual {})", fixed(v, 2)))
                 .unwrap_or_default();
             let label = if n == 0 { "Flagged sensors" } else { "" };
