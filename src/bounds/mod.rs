@@ -234,6 +234,13 @@ impl<'a> Context<'a> {
     /// One program: a node bound through its dual when that applies and settles, else the
     /// conic program.
     fn run(&self, gradient: f64, objective: Objective) -> Outcome {
+        self.run_node(gradient, objective).0
+    }
+
+    /// One program, and for a node program solved through its dual, the bounds the same dual
+    /// point gives every node of the edge (`(first node, values)`: upper bounds of each node
+    /// for a maximum, lower bounds for a minimum, kelvin).
+    fn run_node(&self, gradient: f64, objective: Objective) -> (Outcome, Option<NodeBounds>) {
         if let Some(dual) = &self.dual {
             let node = match objective {
                 Objective::MaxNode(j) => Some((j, true)),
@@ -241,12 +248,94 @@ impl<'a> Context<'a> {
                 Objective::MinPeak | Objective::MinGradient => None,
             };
             if let Some((j, maximise)) = node {
-                if let Some(b) = dual.node_bound(j, maximise, gradient, self.radius) {
-                    return Outcome::Value(if maximise { b } else { -b });
+                if let Some(sol) = dual.node_solution(j, maximise, gradient, self.radius) {
+                    let sign = if maximise { 1.0 } else { -1.0 };
+                    let values = sol.edge_bounds.iter().map(|b| sign * b).collect();
+                    return (Outcome::Value(sign * sol.bound), Some((sol.first, values)));
                 }
             }
         }
-        program::solve(self.set, self.limits(gradient), objective)
+        (
+            program::solve(self.set, self.limits(gradient), objective),
+            None,
+        )
+    }
+}
+
+/// Bounds on every node of one edge from one dual point: the edge's first node and one value
+/// per node.
+type NodeBounds = (usize, Vec<f64>);
+
+/// Per edge, the tightest bound known at every node (upper bounds for `max`, lower for
+/// `min`), from dual points and from the Lipschitz tents of evaluated nodes.
+#[derive(Debug, Clone)]
+struct Envelope {
+    max: bool,
+    nodes: Vec<Vec<f64>>,
+}
+
+impl Envelope {
+    fn new(set: &AdmissibleSet, max: bool) -> Self {
+        let start = if max {
+            f64::INFINITY
+        } else {
+            f64::NEG_INFINITY
+        };
+        Envelope {
+            max,
+            nodes: set
+                .edges
+                .iter()
+                .map(|e| vec![start; e.positions_m.len()])
+                .collect(),
+        }
+    }
+
+    fn tighten(&mut self, k: usize, e: usize, v: f64) {
+        let slot = &mut self.nodes[e][k];
+        *slot = if self.max { slot.min(v) } else { slot.max(v) };
+    }
+
+    /// Add the exact value `v` of node `j` of edge `e` (its tent, slope `g`) and, when given,
+    /// the bounds its dual point gives the whole edge.
+    fn add(
+        &mut self,
+        set: &AdmissibleSet,
+        g: f64,
+        e: usize,
+        j: usize,
+        v: f64,
+        dual: Option<&NodeBounds>,
+    ) {
+        let edge = &set.edges[e];
+        let sign = if self.max { 1.0 } else { -1.0 };
+        for k in 0..edge.positions_m.len() {
+            let tent = v + sign * g * (edge.positions_m[k] - edge.positions_m[j]).abs();
+            self.tighten(k, e, tent);
+        }
+        if let Some((first, values)) = dual {
+            if *first == edge.first && values.len() == edge.positions_m.len() {
+                for (k, &b) in values.iter().enumerate() {
+                    self.tighten(k, e, b);
+                }
+            }
+        }
+    }
+
+    /// The bound at position `s` of edge `e`: the tightest node bound carried there along the
+    /// slope `g`.
+    fn at(&self, set: &AdmissibleSet, g: f64, e: usize, s: f64) -> f64 {
+        let edge = &set.edges[e];
+        let sign = if self.max { 1.0 } else { -1.0 };
+        let carried = self.nodes[e]
+            .iter()
+            .zip(&edge.positions_m)
+            .map(|(&b, &x)| b + sign * g * (s - x).abs());
+        if self.max {
+            carried.fold(f64::INFINITY, f64::min)
+        } else {
+            carried.fold(f64::NEG_INFINITY, f64::max)
+        }
     }
 }
 
@@ -271,12 +360,13 @@ fn spread(count: usize, points: usize) -> Vec<usize> {
 
 /// Run `objective` for every `(edge, node)` in parallel; the order of the output follows the
 /// input, so the result does not depend on the thread count.
+#[allow(clippy::type_complexity)]
 fn run_all(
     ctx: &Context,
     gradient: f64,
     jobs: &[(usize, usize)],
     max: bool,
-) -> Vec<((usize, usize), Outcome)> {
+) -> Vec<((usize, usize), Outcome, Option<NodeBounds>)> {
     jobs.par_iter()
         .map(|&(e, j)| {
             let var = ctx.set.edges[e].first + j;
@@ -285,24 +375,31 @@ fn run_all(
             } else {
                 Objective::MinNode(var)
             };
-            ((e, j), ctx.run(gradient, obj))
+            let (out, bounds) = ctx.run_node(gradient, obj);
+            ((e, j), out, bounds)
         })
         .collect()
 }
 
-/// Piyavskii–Shubert search for the largest pointwise upper bound. Returns the evaluated
-/// node upper bounds per edge, the peak's upper bound (before the `G h / 3` allowance) and the
+/// Piyavskii–Shubert search for the largest pointwise upper bound. Returns the upper
+/// envelope at every node, the peak's upper bound (before the `G h / 3` allowance) and the
 /// number of programs, or the first non-value outcome.
-#[allow(clippy::type_complexity)]
+///
+/// Each evaluated node bounds its neighbours by its Lipschitz tent; a node solved through
+/// its dual also bounds every node of its edge through the same dual point
+/// ([`dual::DualData::node_solution`]), which is never looser than the tent. The next nodes
+/// evaluated are the four whose bound is highest, until no unevaluated node's bound exceeds
+/// the best evaluated value by more than `tolerance`.
 fn peak_upper(
     ctx: &Context,
     gradient: f64,
     start_points: usize,
     tolerance: f64,
     max_rounds: usize,
-) -> std::result::Result<(Vec<BTreeMap<usize, f64>>, f64, usize), Outcome> {
+) -> std::result::Result<(Envelope, f64, usize), Outcome> {
     let set = ctx.set;
     let mut known: Vec<BTreeMap<usize, f64>> = vec![BTreeMap::new(); set.edges.len()];
+    let mut envelope = Envelope::new(set, true);
     let mut jobs: Vec<(usize, usize)> = Vec::new();
     for (e, edge) in set.edges.iter().enumerate() {
         for j in spread(edge.positions_m.len(), start_points) {
@@ -312,39 +409,53 @@ fn peak_upper(
     let mut programs = 0;
     for round in 0..=max_rounds {
         programs += jobs.len();
-        for ((e, j), out) in run_all(ctx, gradient, &jobs, true) {
+        for ((e, j), out, bounds) in run_all(ctx, gradient, &jobs, true) {
             match out {
                 Outcome::Value(u) => {
                     known[e].insert(j, u);
+                    envelope.add(set, gradient, e, j, u, bounds.as_ref());
                 }
                 other => return Err(other),
             }
         }
-        // tents between consecutive evaluated nodes
         let best = known
             .iter()
             .flat_map(|k| k.values().copied())
             .fold(f64::NEG_INFINITY, f64::max);
+        // the highest point between any two neighbouring nodes, and the nodes worth a program
         let mut candidates: Vec<(f64, usize, usize)> = Vec::new();
         let mut top = best;
-        for (e, k) in known.iter().enumerate() {
+        for (e, nodes) in envelope.nodes.iter().enumerate() {
             let h = set.edges[e].spacing_m;
-            let pts: Vec<(usize, f64)> = k.iter().map(|(&j, &u)| (j, u)).collect();
-            for w in pts.windows(2) {
-                let ((ja, ua), (jb, ub)) = (w[0], w[1]);
-                let t = tent(ua, ub, gradient, (jb - ja) as f64 * h);
-                top = top.max(t);
-                if jb - ja >= 2 && t > best + tolerance {
-                    candidates.push((t, e, (ja + jb) / 2));
+            for (k, w) in nodes.windows(2).enumerate() {
+                top = top.max(tent(w[0], w[1], gradient, h));
+                if k == 0 && w[0] > best + tolerance && !known[e].contains_key(&0) {
+                    candidates.push((w[0], e, 0));
+                }
+                if w[1] > best + tolerance && !known[e].contains_key(&(k + 1)) {
+                    candidates.push((w[1], e, k + 1));
                 }
             }
         }
         if candidates.is_empty() || round == max_rounds {
-            return Ok((known, top, programs));
+            return Ok((envelope, top, programs));
         }
-        // the four highest tents, ties broken by edge and position: deterministic
+        // the four highest bounds, ties broken by edge and position (deterministic), a few
+        // nodes apart: one dual point already bounds its close neighbours well
         candidates.sort_by(|a, b| b.0.total_cmp(&a.0).then(a.1.cmp(&b.1)).then(a.2.cmp(&b.2)));
-        jobs = candidates.iter().take(4).map(|&(_, e, j)| (e, j)).collect();
+        jobs.clear();
+        for &(_, e, j) in &candidates {
+            let apart = (set.edges[e].positions_m.len() / 48).max(1);
+            if jobs
+                .iter()
+                .all(|&(e2, j2)| e2 != e || j2.abs_diff(j) > apart)
+            {
+                jobs.push((e, j));
+            }
+            if jobs.len() == 4 {
+                break;
+            }
+        }
     }
     Err(Outcome::Failed(
         "the peak search ended without a bound".into(),
@@ -413,11 +524,11 @@ pub fn bounds_under(
         })
         .collect();
     programs += jobs.len();
-    let mut lower_nodes: Vec<BTreeMap<usize, f64>> = vec![BTreeMap::new(); set.edges.len()];
-    for ((e, j), out) in run_all(&ctx, g, &jobs, false) {
+    let mut lower_nodes = Envelope::new(set, false);
+    for ((e, j), out, bounds) in run_all(&ctx, g, &jobs, false) {
         match out {
             Outcome::Value(v) => {
-                lower_nodes[e].insert(j, v);
+                lower_nodes.add(set, g, e, j, v, bounds.as_ref());
             }
             Outcome::Infeasible => return Ok(BoundsOutcome::Empty),
             Outcome::Failed(reason) => return Ok(BoundsOutcome::Failed { reason }),
@@ -440,20 +551,14 @@ pub fn bounds_under(
         let upper: Vec<f64> = pos
             .iter()
             .map(|&s| {
-                let u = upper_nodes[e]
-                    .iter()
-                    .map(|(&j, &u)| u + g * (s - edge.positions_m[j]).abs())
-                    .fold(f64::INFINITY, f64::min);
+                let u = upper_nodes.at(set, g, e, s);
                 clip_hi(u + slack)
             })
             .collect();
         let lower: Vec<f64> = pos
             .iter()
             .map(|&s| {
-                let l = lower_nodes[e]
-                    .iter()
-                    .map(|(&j, &l)| l - g * (s - edge.positions_m[j]).abs())
-                    .fold(f64::NEG_INFINITY, f64::max);
+                let l = lower_nodes.at(set, g, e, s);
                 clip_lo(l - slack)
             })
             .collect();

@@ -225,3 +225,71 @@ fn dual_node_bounds_match_the_conic_programs_on_two_edges() {
         }
     }
 }
+
+/// One dual point bounds every node of its edge (`DualData::node_solution`): each of those
+/// bounds must hold against the node's own optimum (the conic program), equal the node's
+/// bound at the node itself, and be no looser than the Lipschitz tent `U_j + G |s − s_j|`
+/// (triangle inequality on the partial sums; docs/method.md §4).
+#[test]
+fn one_dual_point_bounds_its_whole_edge() {
+    let f = fixture();
+    let nodes = f["nodes"].as_u64().expect("nodes") as usize;
+    let length = f["length_m"].as_f64().expect("length");
+    let set = AdmissibleSet::from_matrix(
+        Edge::Bottom,
+        length,
+        nodes,
+        floats(&f["h"]),
+        floats(&f["offset"]),
+        floats(&f["readings"]),
+        floats(&f["sigma"]),
+        floats(&f["rho_m"]),
+    )
+    .expect("a consistent set");
+    let radius = f["chi2_quantile"].as_f64().expect("quantile").sqrt();
+    let dual = DualData::new(&set);
+    let gradient = 800.0;
+    let h = length / (nodes - 1) as f64;
+    let limits = Limits {
+        gradient,
+        radius,
+        t_min: None,
+        t_max: None,
+    };
+    let mut tighter_than_tent = 0;
+    for (j, maximise) in [(6, true), (12, false), (20, true)] {
+        let sign = if maximise { 1.0 } else { -1.0 };
+        let sol = dual
+            .node_solution(j, maximise, gradient, radius)
+            .expect("the dual search settles");
+        assert_eq!(sol.first, 0);
+        assert_eq!(sol.edge_bounds.len(), nodes);
+        assert!((sol.edge_bounds[j] - sol.bound).abs() < 1e-9);
+        for k in 0..nodes {
+            let objective = if maximise {
+                Objective::MaxNode(k)
+            } else {
+                Objective::MinNode(k)
+            };
+            let Outcome::Value(want) = solve(&set, limits, objective) else {
+                panic!("node {k}: no value");
+            };
+            let got = sign * sol.edge_bounds[k];
+            let looser = sign * (got - want);
+            assert!(
+                looser >= -3e-6,
+                "node {k} from node {j}: {got} is not a bound of the optimum {want}"
+            );
+            let tent = sol.bound + gradient * h * k.abs_diff(j) as f64;
+            assert!(
+                sol.edge_bounds[k] <= tent + 1e-9,
+                "node {k}: looser than the tent"
+            );
+            if sol.edge_bounds[k] < tent - 1e-3 {
+                tighter_than_tent += 1;
+            }
+        }
+    }
+    // the point of the construction: it beats the tent somewhere
+    assert!(tighter_than_tent > 0);
+}
