@@ -130,7 +130,11 @@ struct Problem<'a> {
 impl<'a> Problem<'a> {
     fn new(data: &'a DualData, node: usize, sign: f64, gradient: f64, radius: f64) -> Option<Self> {
         let n = data.cum.len() / data.m.max(1);
-        if node >= n || !(gradient.is_finite() && gradient > 0.0) || radius.is_nan() || radius <= 0.0 {
+        if node >= n
+            || !(gradient.is_finite() && gradient > 0.0)
+            || radius.is_nan()
+            || radius <= 0.0
+        {
             return None;
         }
         let mut c_sum = vec![0.0; n];

@@ -27,7 +27,10 @@ impl DialectArgs {
         Ok(DialectOptions {
             // clap has checked the names against the same lists
             separator: self.separator.as_deref().and_then(Separator::from_name),
-            decimal_mark: self.decimal_mark.as_deref().and_then(DecimalMark::from_name),
+            decimal_mark: self
+                .decimal_mark
+                .as_deref()
+                .and_then(DecimalMark::from_name),
             skip_lines: self.skip_lines,
             time_format: time_format.and_then(TimeFormat::from_name),
         })

@@ -32,7 +32,8 @@ fn load(files: &CaseFiles, with_sensors: bool) -> Result<Case> {
     let pf = plate_file::read_plate_file(&files.plate)?;
     let mut read_as = Vec::new();
     let sensors = if with_sensors {
-        let (sensors, how) = csv_files::read_sensors_as(&files.sensors, &pf.units, pf.plate.shape())?;
+        let (sensors, how) =
+            csv_files::read_sensors_as(&files.sensors, &pf.units, pf.plate.shape())?;
         read_as.push(how);
         sensors
     } else {

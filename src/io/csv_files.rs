@@ -6,9 +6,9 @@
 //! [`Error::Invalid`] naming the file, the line and the column.
 
 use crate::case::{Case, ReadAs, Sensor};
-use crate::io::dialect::{self, ColumnUnit, Dialect, DialectOptions};
 use crate::error::{Error, Result};
 use crate::geometry::{Edge, EdgeProfile, Point, Shape};
+use crate::io::dialect::{self, ColumnUnit, Dialect, DialectOptions};
 use crate::units::Units;
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
@@ -233,7 +233,11 @@ impl CsvTable {
             .number_text(cell)
             .map_err(|m| self.error(row.line, name, m))?;
         parse_finite(&text).map_err(|m| {
-            self.error(row.line, name, format!("{m}{}", self.dialect.number_hint(cell)))
+            self.error(
+                row.line,
+                name,
+                format!("{m}{}", self.dialect.number_hint(cell)),
+            )
         })
     }
 

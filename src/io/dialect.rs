@@ -170,8 +170,12 @@ fn decimal_comma_number(cell: &str) -> bool {
     c.matches(',').count() == 1
         && !c.contains('.')
         && c.split(',').all(|p| !p.is_empty())
-        && c.bytes().next().is_some_and(|b| b.is_ascii_digit() || b == b'-' || b == b'+')
-        && c.replacen(',', ".", 1).parse::<f64>().is_ok_and(f64::is_finite)
+        && c.bytes()
+            .next()
+            .is_some_and(|b| b.is_ascii_digit() || b == b'-' || b == b'+')
+        && c.replacen(',', ".", 1)
+            .parse::<f64>()
+            .is_ok_and(f64::is_finite)
 }
 
 /// What a unit word in a units row means.
@@ -289,7 +293,10 @@ pub(crate) fn detect(
             path,
             None,
             None,
-            format!("the file is empty; it must start with the header {}", expect.header),
+            format!(
+                "the file is empty; it must start with the header {}",
+                expect.header
+            ),
         ));
     };
     let (idx, separator) = match options.skip_lines {
@@ -317,7 +324,11 @@ pub(crate) fn detect(
             });
             (i, sep)
         }
-        None => match lines.iter().enumerate().find_map(|(i, l)| header_sep(&l.1).map(|s| (i, s))) {
+        None => match lines
+            .iter()
+            .enumerate()
+            .find_map(|(i, l)| header_sep(&l.1).map(|s| (i, s)))
+        {
             Some(found) => found,
             None => {
                 let seen = first_text.map_or(String::new(), |l| shorten(&l.1));
@@ -408,7 +419,10 @@ pub(crate) fn detect(
 impl Dialect {
     /// A number cell in this dialect's decimal mark. With a decimal comma, the comma becomes
     /// a point and a cell with a point is refused (a thousands separator would be misread).
-    pub(crate) fn number_text<'a>(&self, cell: &'a str) -> std::result::Result<std::borrow::Cow<'a, str>, String> {
+    pub(crate) fn number_text<'a>(
+        &self,
+        cell: &'a str,
+    ) -> std::result::Result<std::borrow::Cow<'a, str>, String> {
         if !self.decimal_comma {
             return Ok(std::borrow::Cow::Borrowed(cell));
         }
@@ -470,9 +484,10 @@ impl Dialect {
             description.push_str(&format!(" (declared: {})", self.declared.join(", ")));
         }
         ReadAs {
-            file: path
-                .file_name()
-                .map_or_else(|| path.display().to_string(), |n| n.to_string_lossy().into_owned()),
+            file: path.file_name().map_or_else(
+                || path.display().to_string(),
+                |n| n.to_string_lossy().into_owned(),
+            ),
             separator: self.separator.name().to_string(),
             decimal_mark: if self.decimal_comma { "comma" } else { "point" }.to_string(),
             byte_order_mark: self.bom,
@@ -582,7 +597,10 @@ mod tests {
         assert_eq!(d.separator, Separator::Semicolon);
         assert!(d.decimal_comma && d.bom && d.crlf);
         assert_eq!(d.header_line, 4);
-        assert_eq!(d.units_row.as_deref(), Some(&["s".into(), "°C".into(), "°C".into()][..]));
+        assert_eq!(
+            d.units_row.as_deref(),
+            Some(&["s".into(), "°C".into(), "°C".into()][..])
+        );
         assert_eq!(d.sample_rows.len(), 1);
         let text = "\u{feff}Logger 7;serial 123\r\nexported 01.03.2026\r\n\r\n";
         assert_eq!(d.header_offset, text.len());
@@ -595,7 +613,11 @@ mod tests {
         let s = det("time;A\n1;2\n", &DialectOptions::default()).unwrap();
         assert!(!s.decimal_comma);
         // quoted header cells
-        let q = det("\"time\";\"TC 01\"\n1;\"2,5\"\n", &DialectOptions::default()).unwrap();
+        let q = det(
+            "\"time\";\"TC 01\"\n1;\"2,5\"\n",
+            &DialectOptions::default(),
+        )
+        .unwrap();
         assert_eq!(q.separator, Separator::Semicolon);
         assert!(q.decimal_comma);
     }
@@ -612,7 +634,11 @@ mod tests {
         let d = det("time;x\nmore\ntime;A\n1;2,5\n", &o).unwrap();
         assert_eq!(d.header_line, 3);
         assert!(!d.decimal_comma);
-        assert!(d.read_as(Path::new("a/log.csv"), None).description.contains("declared"));
+        assert!(
+            d.read_as(Path::new("a/log.csv"), None)
+                .description
+                .contains("declared")
+        );
         let e = det(
             "time,A\n1,2\n",
             &DialectOptions {
@@ -621,7 +647,10 @@ mod tests {
             },
         )
         .unwrap_err();
-        assert!(e.to_string().contains("decimal comma cannot be read"), "{e}");
+        assert!(
+            e.to_string().contains("decimal comma cannot be read"),
+            "{e}"
+        );
     }
 
     #[test]
@@ -637,15 +666,26 @@ mod tests {
     #[test]
     fn units_rows() {
         let u = |s| unit_word(s);
-        assert_eq!(u("[°C]"), Some(UnitWord::Temperature(TemperatureUnit::Celsius)));
-        assert_eq!(u("degF"), Some(UnitWord::Temperature(TemperatureUnit::Fahrenheit)));
+        assert_eq!(
+            u("[°C]"),
+            Some(UnitWord::Temperature(TemperatureUnit::Celsius))
+        );
+        assert_eq!(
+            u("degF"),
+            Some(UnitWord::Temperature(TemperatureUnit::Fahrenheit))
+        );
         assert_eq!(u("mV"), Some(UnitWord::Millivolt));
         assert_eq!(u("TC01"), None);
         // a row of fault markers is data, not units
-        let d = det("time,A\n2026-03-01T07:00:00,OPEN\n", &DialectOptions::default()).unwrap();
+        let d = det(
+            "time,A\n2026-03-01T07:00:00,OPEN\n",
+            &DialectOptions::default(),
+        )
+        .unwrap();
         assert!(d.units_row.is_none());
         let cols = vec!["time".to_string(), "A".to_string()];
-        let c = |name: &str| (name == "A").then_some(ColumnUnit::Temperature(TemperatureUnit::Celsius));
+        let c =
+            |name: &str| (name == "A").then_some(ColumnUnit::Temperature(TemperatureUnit::Celsius));
         let p = Path::new("log.csv");
         assert!(check_units(p, 2, &cols, &["s".into(), "°C".into()], c).is_ok());
         let e = check_units(p, 2, &cols, &["s".into(), "°F".into()], c).unwrap_err();

@@ -31,8 +31,8 @@
 
 use crate::case::Case;
 use crate::error::{Error, Result};
-use std::collections::HashMap;
 use crate::io::dialect::{ColumnUnit, Dialect};
+use std::collections::HashMap;
 use std::io::{Read, Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
 use std::time::{Duration, Instant};
@@ -356,7 +356,11 @@ impl LoggerReader {
                         crate::io::times::detect(&cells, dialect.decimal_comma).map_err(|m| {
                             Error::invalid_at(
                                 path,
-                                Some(dialect.header_line + 1 + usize::from(dialect.units_row.is_some())),
+                                Some(
+                                    dialect.header_line
+                                        + 1
+                                        + usize::from(dialect.units_row.is_some()),
+                                ),
                                 Some("time"),
                                 format!("{m}{TIME_FORMAT_HINT}"),
                             )
@@ -654,7 +658,10 @@ pub const TIME_FORMAT_HINT: &str =
 /// and whether they are the whole file. When following a file that is still being written,
 /// wait (as [`Follow`] says) until it holds at least three whole lines (a header, perhaps a
 /// units row, a row), so that the dialect is found from real rows.
-fn read_prefix(file: &mut std::fs::File, follow: Option<Follow>) -> std::io::Result<(Vec<u8>, bool)> {
+fn read_prefix(
+    file: &mut std::fs::File,
+    follow: Option<Follow>,
+) -> std::io::Result<(Vec<u8>, bool)> {
     let limit = crate::io::dialect::PREFIX_BYTES;
     let mut buf = Vec::with_capacity(8192);
     let start = Instant::now();

@@ -27,7 +27,6 @@ pub mod times;
 
 pub use case::{load_case, load_readings, load_readings_as, read_truth_profiles};
 pub use dialect::{DecimalMark, DialectOptions, Separator};
-pub use times::TimeFormat;
 pub use logger::{
     LoggerOptions, LoggerReader, LoggerRow, StreamWriter, TRACK_OUTPUT_FILE_NAMES,
     check_track_outputs,
@@ -38,3 +37,4 @@ pub use output::{
 pub use plate_file::{
     DEFAULT_CONFIDENCE, DEFAULT_REPLICATES, DEFAULT_SEED, DEFAULT_TERMS, MAX_REPLICATES, MAX_TERMS,
 };
+pub use times::TimeFormat;

@@ -153,7 +153,8 @@ fn number(s: &str, decimal_comma: bool) -> Option<f64> {
 /// bracketed zone name).
 fn parse_iso(s: &str) -> Option<(f64, TimeKind)> {
     let b = s.as_bytes();
-    let digits = |r: std::ops::Range<usize>| b.get(r).is_some_and(|d| d.iter().all(u8::is_ascii_digit));
+    let digits =
+        |r: std::ops::Range<usize>| b.get(r).is_some_and(|d| d.iter().all(u8::is_ascii_digit));
     let shape = b.len() >= 16
         && digits(0..4)
         && b[4] == b'-'
@@ -185,10 +186,13 @@ fn parse_civil(s: &str, date_format: &str) -> Option<(f64, TimeKind)> {
         2 => "%H:%M:%S%.f",
         _ => return None,
     };
-    let dt = strtime::parse(format!("{date_format} {time_format}"), format!("{day} {time}"))
-        .ok()?
-        .to_datetime()
-        .ok()?;
+    let dt = strtime::parse(
+        format!("{date_format} {time_format}"),
+        format!("{day} {time}"),
+    )
+    .ok()?
+    .to_datetime()
+    .ok()?;
     seconds_since_1970(dt).map(|t| (t, TimeKind::Naive))
 }
 
@@ -269,21 +273,56 @@ mod tests {
 
     /// The instant of an ISO text as jiff reads it directly (the independent statement).
     fn jiff_utc(iso: &str) -> f64 {
-        iso.parse::<Timestamp>().unwrap().as_duration().as_secs_f64()
+        iso.parse::<Timestamp>()
+            .unwrap()
+            .as_duration()
+            .as_secs_f64()
     }
 
     #[test]
     fn each_format_against_the_iso_instant() {
         let cases = [
-            (TimeFormat::Iso, "2026-03-01T07:00:00", "2026-03-01T07:00:00Z"),
-            (TimeFormat::Iso, "2026-03-01 07:00:00.5", "2026-03-01T07:00:00.5Z"),
-            (TimeFormat::Iso, "2026-03-01T08:30:00+01:30", "2026-03-01T07:00:00Z"),
+            (
+                TimeFormat::Iso,
+                "2026-03-01T07:00:00",
+                "2026-03-01T07:00:00Z",
+            ),
+            (
+                TimeFormat::Iso,
+                "2026-03-01 07:00:00.5",
+                "2026-03-01T07:00:00.5Z",
+            ),
+            (
+                TimeFormat::Iso,
+                "2026-03-01T08:30:00+01:30",
+                "2026-03-01T07:00:00Z",
+            ),
             (TimeFormat::Iso, "2026-03-01T07:00", "2026-03-01T07:00:00Z"),
-            (TimeFormat::DayMonthYearDot, "01.03.2026 07:00:00", "2026-03-01T07:00:00Z"),
-            (TimeFormat::DayMonthYearDot, "1.3.2026 07:00", "2026-03-01T07:00:00Z"),
-            (TimeFormat::DayMonthYearDot, "29.02.2024 23:59:59.25", "2024-02-29T23:59:59.25Z"),
-            (TimeFormat::DayMonthYearSlash, "13/03/2026 07:00:00", "2026-03-13T07:00:00Z"),
-            (TimeFormat::MonthDayYearSlash, "03/13/2026 07:00:00", "2026-03-13T07:00:00Z"),
+            (
+                TimeFormat::DayMonthYearDot,
+                "01.03.2026 07:00:00",
+                "2026-03-01T07:00:00Z",
+            ),
+            (
+                TimeFormat::DayMonthYearDot,
+                "1.3.2026 07:00",
+                "2026-03-01T07:00:00Z",
+            ),
+            (
+                TimeFormat::DayMonthYearDot,
+                "29.02.2024 23:59:59.25",
+                "2024-02-29T23:59:59.25Z",
+            ),
+            (
+                TimeFormat::DayMonthYearSlash,
+                "13/03/2026 07:00:00",
+                "2026-03-13T07:00:00Z",
+            ),
+            (
+                TimeFormat::MonthDayYearSlash,
+                "03/13/2026 07:00:00",
+                "2026-03-13T07:00:00Z",
+            ),
         ];
         for (f, text, iso) in cases {
             let (t, _) = f.parse(text, false).unwrap_or_else(|| panic!("{text}"));
@@ -291,7 +330,9 @@ mod tests {
         }
         // Stated epoch seconds, independent of jiff: `date -u -d @1772348400` (GNU coreutils)
         // prints Sun Mar  1 07:00:00 UTC 2026.
-        let (t, k) = TimeFormat::Iso.parse("2026-03-01T07:00:00Z", false).unwrap();
+        let (t, k) = TimeFormat::Iso
+            .parse("2026-03-01T07:00:00Z", false)
+            .unwrap();
         assert_eq!((t, k), (1_772_348_400.0, TimeKind::Zoned));
         let (t, k) = TimeFormat::DayMonthYearDot
             .parse("01.03.2026 07:00:00", false)
@@ -331,16 +372,30 @@ mod tests {
         }
         assert!(TimeFormat::Seconds.parse("inf", false).is_none());
         assert!(TimeFormat::Seconds.parse("1.5", true).is_none());
-        assert_eq!(TimeFormat::Seconds.parse("1,5", true), Some((1.5, TimeKind::Seconds)));
-        assert!(TimeFormat::DayMonthYearDot.parse("31.02.2026 07:00:00", false).is_none());
-        assert!(TimeFormat::DayMonthYearDot.parse("01.03.2026 07:00:00 x", false).is_none());
+        assert_eq!(
+            TimeFormat::Seconds.parse("1,5", true),
+            Some((1.5, TimeKind::Seconds))
+        );
+        assert!(
+            TimeFormat::DayMonthYearDot
+                .parse("31.02.2026 07:00:00", false)
+                .is_none()
+        );
+        assert!(
+            TimeFormat::DayMonthYearDot
+                .parse("01.03.2026 07:00:00 x", false)
+                .is_none()
+        );
     }
 
     #[test]
     fn detection() {
         assert_eq!(detect(&["12.5", "13"], false), Ok(TimeFormat::Seconds));
         assert_eq!(detect(&["2026-03-01 07:00:00"], false), Ok(TimeFormat::Iso));
-        assert_eq!(detect(&["01.03.2026 07:00:00"], false), Ok(TimeFormat::DayMonthYearDot));
+        assert_eq!(
+            detect(&["01.03.2026 07:00:00"], false),
+            Ok(TimeFormat::DayMonthYearDot)
+        );
         assert_eq!(
             detect(&["03/04/2026 07:00:00", "13/04/2026 07:00:00"], false),
             Ok(TimeFormat::DayMonthYearSlash)

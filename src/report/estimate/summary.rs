@@ -371,7 +371,11 @@ pub fn text_summary(r: &EstimateResult) -> String {
     );
     out.push('\n');
     for how in &r.read_as {
-        line(&mut out, "Read as", &format!("{}: {}", how.file, how.description));
+        line(
+            &mut out,
+            "Read as",
+            &format!("{}: {}", how.file, how.description),
+        );
     }
     if let Some(c) = &r.conversion {
         line(&mut out, "Readings", &c.describe(&r.units));
