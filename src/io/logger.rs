@@ -200,7 +200,10 @@ impl LoggerReader {
             .delimiter(dialect.separator.byte())
             .trim(csv::Trim::All)
             .from_reader(follow);
-        let line_offset = dialect.header_line as u64 - 1;
+        // The csv reader numbers a record by where it starts looking for it, which after a
+        // CRLF line end is still on the line before (it counts the `\n` with the next
+        // record): one more line in CRLF files.
+        let line_offset = dialect.header_line as u64 - 1 + u64::from(dialect.crlf);
         let header_line = dialect.header_line;
         let header = reader
             .byte_headers()
