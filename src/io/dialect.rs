@@ -340,12 +340,13 @@ pub(crate) fn detect(
                 return Err(Error::invalid_at(
                     path,
                     Some(first_idx + 1),
-                    None,
+                    expect.keys.first().copied(),
                     format!(
-                        "no header found: no line in the first {} KB, {seps_text}, has a \
-                         {} column; the first line reads `{seen}`; the header must be {}{how}",
-                        PREFIX_BYTES / 1024,
+                        "no header found: no {} column on any line of the first {} KB \
+                         ({seps_text}); the first line reads `{seen}`; the header must be \
+                         {}{how}",
                         keys.join(" or "),
+                        PREFIX_BYTES / 1024,
                         expect.header
                     ),
                 ));
