@@ -291,7 +291,7 @@ pub(crate) fn detect(
     let Some((first_idx, _)) = lines.iter().enumerate().find(|(_, l)| !blank(&l.1)) else {
         return Err(Error::invalid_at(
             path,
-            None,
+            Some(1),
             None,
             format!(
                 "the file is empty; it must start with the header {}",
