@@ -464,8 +464,8 @@ impl LoggerReader {
                     Some(line as usize),
                     Some("time"),
                     format!(
-                        "`{}` is not a time in the file's format, {}{}; every row must write \
-                         its time the same way{TIME_FORMAT_HINT}",
+                        "`{}` is not a time in the file's format, {}{}; use one kind of time \
+                         throughout the file{TIME_FORMAT_HINT}",
                         shorten(time_text),
                         format.label(),
                         if self.dialect.declared.contains(&"time format") {
