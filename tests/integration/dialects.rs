@@ -195,6 +195,16 @@ fn logger_dialects_read_as_their_comma_version() {
     }
 }
 
+/// A time rewrite, the file's style, the declared format, the time tolerance (s) and what the
+/// echo must say.
+type TimeCase<'a> = (
+    &'a dyn Fn(&str) -> String,
+    Style,
+    Option<TimeFormat>,
+    f64,
+    &'static str,
+);
+
 #[test]
 fn logger_time_formats_read_as_the_iso_times() {
     let case = load_case(&CaseFiles::in_dir(sample("busbar-clamp"))).unwrap();
@@ -241,16 +251,10 @@ fn logger_time_formats_read_as_the_iso_times() {
         decimal_comma: true,
         ..PLAIN
     };
-    let cases: [(
-        &dyn Fn(&str) -> String,
-        Style,
-        Option<TimeFormat>,
-        f64,
-        &str,
-    ); 5] = [
+    let cases: [TimeCase<'_>; 5] = [
         (&dot, semi, None, 0.0, "times DD.MM.YYYY hh:mm:ss"),
         (&space, PLAIN, None, 0.0, "times ISO 8601"),
-        // the 12 minutes of rows have days 01 and months 03: only a declaration settles it
+        // every row is on 1 March (day 01, month 03): only a declaration settles it
         (
             &mdy,
             PLAIN,
