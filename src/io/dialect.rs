@@ -17,7 +17,7 @@
 //!    containing the key word; when several do, the one giving the most cells (a tie keeps
 //!    the earlier in that order). A declared separator is used as given.
 //! 4. **Units row.** The line directly under the header is a units row when none of its
-//!    cells is a number and at least one is a unit word ([`unit_word`]: `s`, `°C`, `K`,
+//!    cells is a number and at least one is a unit word (`s`, `°C`, `K`,
 //!    `°F`, `mV`, `mm`, ...). It is skipped, echoed, and checked: a temperature unit that is
 //!    not the case's, or volts where temperatures are expected (and the reverse), is refused.
 //! 5. **Decimal mark.** A comma when the separator is not a comma and a data cell in the
