@@ -315,6 +315,36 @@ pub struct Case {
     pub thermocouple: Option<ThermocoupleSettings>,
     /// Where the case came from.
     pub files: CaseFiles,
+    /// How each table file read so far was written (separator, decimal mark, ...), in the
+    /// order read: `sensors.csv` by [`crate::io::load_case`], then what a command adds
+    /// (readings, a logger file). Echoed in the outputs so that a misread file is noticed.
+    pub read_as: Vec<ReadAs>,
+}
+
+/// How one input table was read: its CSV dialect, detected or declared
+/// (`docs/case-files.md`, CSV dialects).
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+pub struct ReadAs {
+    /// The file's name (without its directory).
+    pub file: String,
+    /// `comma`, `semicolon` or `tab`.
+    pub separator: String,
+    /// `point` or `comma`.
+    pub decimal_mark: String,
+    /// Whether the file starts with a UTF-8 byte-order mark.
+    pub byte_order_mark: bool,
+    /// `LF` or `CRLF`.
+    pub line_ends: String,
+    /// Lines skipped before the header.
+    pub lines_before_header: usize,
+    /// The units row under the header, if there was one.
+    pub units_row: Option<Vec<String>>,
+    /// The time format of a logger file.
+    pub time_format: Option<String>,
+    /// What the command line declared rather than detection found.
+    pub declared: Vec<String>,
+    /// All of it in words ("semicolon-separated, decimal comma, times DD.MM.YYYY hh:mm:ss").
+    pub description: String,
 }
 /// The temperature unit as people write it: °C, K, °F.
 pub(crate) fn degree_symbol(units: &Units) -> &'static str {

@@ -9,7 +9,7 @@
 //! orthant for
 //!
 //! - `|v_{j+1} − v_j| ≤ G h_e` (every node cell of every hidden edge),
-//! - `|u_i| ≤ G a_i + b_i` (the allowance of [`AdmissibleSet::allowance`]: quasi-interpolation
+//! - `|u_i| ≤ G a_i + b_i` (the allowance of `AdmissibleSet::allowance`: quasi-interpolation
 //!   and series tail),
 //! - `T_min ≤ v_j ≤ T_max` when stated, and the objective's own rows,
 //!

@@ -12,7 +12,7 @@ use super::{
     progress_bar,
 };
 use edgetherm::estimate::{EstimateOptions, estimate};
-use edgetherm::io::{check_output_dir, load_case, load_readings};
+use edgetherm::io::{check_output_dir, load_case, load_readings_as};
 use edgetherm::report::estimate::{
     bounds_hottest_interval, summary_json, text_summary, write_outputs,
 };
@@ -70,13 +70,18 @@ pub struct EstimateArgs {
     /// Skip the strict bounds and the gradient study (they cost a few seconds).
     #[arg(long)]
     pub no_bounds: bool,
+    /// How readings.csv is written, when detection should not decide.
+    #[command(flatten)]
+    pub dialect: super::dialect::DialectArgs,
 }
 
 /// Run `estimate`.
 pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
     let files = global.case_files(&args.case_dir);
-    let case = load_case(&files)?;
-    let readings = load_readings(&case.files.readings, &case)?;
+    let mut case = load_case(&files)?;
+    let (readings, read_as) =
+        load_readings_as(&case.files.readings, &case, &args.dialect.options(None)?)?;
+    case.read_as.push(read_as);
     check_output_dir(&args.out, &case.files.inputs(), global.overwrite)?;
     let limit = parse_alarm(args.limit, args.probability, &case)?;
     if args.replicates == Some(0) {

@@ -7,6 +7,7 @@
 
 mod check;
 mod design;
+mod dialect;
 mod estimate;
 mod simulate;
 mod track;

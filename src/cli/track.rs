@@ -100,13 +100,21 @@ pub struct TrackArgs {
     /// With --follow: stop after this many seconds without new rows [default: never].
     #[arg(long, value_name = "SECONDS", requires = "follow")]
     pub idle_exit: Option<f64>,
+    /// How the log is written, when detection should not decide.
+    #[command(flatten)]
+    pub dialect: super::dialect::DialectArgs,
+    /// Format of the log's time column; `excel-days` (spreadsheet serial days) and an
+    /// ambiguous `mm/dd/yyyy` or `dd/mm/yyyy` must be declared [default: detected from the
+    /// first rows].
+    #[arg(long, value_name = "FORMAT", value_parser = ["seconds", "iso", "dd.mm.yyyy", "dd/mm/yyyy", "mm/dd/yyyy", "excel-days"])]
+    pub time_format: Option<String>,
 }
 
 /// Run `track`: validate the flags, open the log, stream its rows through the tracker
 /// (a reading thread feeds batches), then write the summaries and print the verdict.
 pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
     let files = global.case_files(&args.case_dir);
-    let case = load_case(&files)?;
+    let mut case = load_case(&files)?;
     let mut inputs = case.files.inputs();
     inputs.push(&args.log);
     check_track_outputs(&args.out, &inputs, global.overwrite)?;
@@ -135,8 +143,9 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
         );
     }
     global.check_budget(&cost, &case)?;
-    let mut tracker = Tracker::new(&case, options)?;
     let reader = open_log(args, &case, global, idle_exit)?;
+    case.read_as.push(reader.read_as());
+    let mut tracker = Tracker::new(&case, options)?;
     // the whole set is staged and moved into place at the end (io::OutputSet); with
     // --follow, track.csv is written where it can be watched while the log grows
     let mut set = OutputSet::begin(&args.out, "track")?;
@@ -235,6 +244,7 @@ fn open_log(
                 poll: Duration::from_millis(250),
                 idle_exit,
             }),
+            dialect: args.dialect.options(args.time_format.as_deref())?,
         },
     )
     .map_err(|e| match e {

@@ -83,6 +83,7 @@ pub(super) fn assemble(
         bounds,
         cautions,
         conversion: case.conversion(),
+        read_as: case.read_as.clone(),
     })
 }
 

@@ -231,6 +231,8 @@ pub struct EstimateResult {
     pub cautions: Vec<String>,
     /// How the readings were converted from thermocouple voltages, when they were.
     pub conversion: Option<crate::case::ReadingConversion>,
+    /// How the input tables were read (CSV dialects), from [`crate::case::Case::read_as`].
+    pub read_as: Vec<crate::case::ReadAs>,
 }
 
 impl EstimateResult {

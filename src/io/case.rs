@@ -8,6 +8,7 @@
 use crate::case::{Case, CaseFiles, Sensor};
 use crate::error::Result;
 use crate::geometry::{Edge, EdgeProfile, Point};
+use crate::io::dialect::DialectOptions;
 use crate::io::{csv_files, plate_file};
 use std::path::Path;
 
@@ -29,8 +30,12 @@ pub fn load_design_case(files: &CaseFiles) -> Result<Case> {
 /// Read `plate.toml` and, when `with_sensors`, `sensors.csv`.
 fn load(files: &CaseFiles, with_sensors: bool) -> Result<Case> {
     let pf = plate_file::read_plate_file(&files.plate)?;
+    let mut read_as = Vec::new();
     let sensors = if with_sensors {
-        csv_files::read_sensors(&files.sensors, &pf.units, pf.plate.shape())?
+        let (sensors, how) =
+            csv_files::read_sensors_as(&files.sensors, &pf.units, pf.plate.shape())?;
+        read_as.push(how);
+        sensors
     } else {
         Vec::new()
     };
@@ -47,6 +52,7 @@ fn load(files: &CaseFiles, with_sensors: bool) -> Result<Case> {
         bounds: pf.bounds,
         thermocouple: pf.thermocouple,
         files,
+        read_as,
     })
 }
 
@@ -99,7 +105,18 @@ pub fn read_candidates(path: &Path, case: &Case) -> Result<Vec<(Point, usize)>> 
 /// Read a readings file (`sensor,temperature`, one reading per row, case temperature unit)
 /// into kelvin, aligned with `case.sensors`; a sensor with no reading gets `None`.
 pub fn load_readings(path: &Path, case: &Case) -> Result<Vec<Option<f64>>> {
-    csv_files::read_readings(path, case)
+    csv_files::read_readings(path, case, &DialectOptions::default()).map(|(v, _)| v)
+}
+
+/// [`load_readings`] with the file's dialect declared in part or whole (`options`; what is
+/// not declared is detected), returning also how the file was read, for the outputs (push it
+/// onto [`Case::read_as`]).
+pub fn load_readings_as(
+    path: &Path,
+    case: &Case,
+    options: &DialectOptions,
+) -> Result<(Vec<Option<f64>>, crate::case::ReadAs)> {
+    csv_files::read_readings(path, case, options)
 }
 
 /// Read truth profiles (`edge,position,temperature`, case units; the `edge` column may be

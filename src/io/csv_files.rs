@@ -5,9 +5,10 @@
 //! are converted to metres and kelvin here, once. Every problem is an
 //! [`Error::Invalid`] naming the file, the line and the column.
 
-use crate::case::{Case, Sensor};
+use crate::case::{Case, ReadAs, Sensor};
 use crate::error::{Error, Result};
 use crate::geometry::{Edge, EdgeProfile, Point, Shape};
+use crate::io::dialect::{self, ColumnUnit, Dialect, DialectOptions};
 use crate::units::Units;
 use std::collections::HashMap;
 use std::path::{Path, PathBuf};
@@ -49,6 +50,8 @@ pub(crate) struct CsvTable {
     /// Lower-case column names, in file order.
     pub columns: Vec<String>,
     pub rows: Vec<CsvRow>,
+    /// How the file is written.
+    pub dialect: Dialect,
 }
 
 /// Read a whole input file; a missing or unreadable file is an input error (exit status 2).
@@ -113,46 +116,65 @@ pub(crate) fn utf8_text<'a>(path: &Path, bytes: &'a [u8], expect: &str) -> Resul
 }
 
 impl CsvTable {
-    /// Read and split a CSV file, checking its header against `columns`.
+    /// Read and split a CSV file, checking its header against `columns`; the dialect is
+    /// detected (`crate::io::dialect`).
     pub(crate) fn read(path: &Path, columns: &Columns<'_>) -> Result<CsvTable> {
+        Self::read_with(path, columns, &DialectOptions::default(), false)
+    }
+
+    /// [`CsvTable::read`] with the dialect declared in part (`options`); `declarable`: the
+    /// command line can declare it (the messages then say so).
+    pub(crate) fn read_with(
+        path: &Path,
+        columns: &Columns<'_>,
+        options: &DialectOptions,
+        declarable: bool,
+    ) -> Result<CsvTable> {
         let bytes = read_input(path)?;
         let what = format!("a CSV file with the header {}", columns.describe());
-        let text = utf8_text(path, &bytes, &what)?;
+        utf8_text(path, &bytes, &what)?;
         let err = |line: Option<usize>, field: Option<&str>, msg: String| {
             Error::invalid_at(path, line, field, msg)
         };
-        if text.trim().is_empty() {
-            return Err(err(
-                None,
-                None,
-                format!(
-                    "the file is empty; it must start with the header {}",
-                    columns.describe()
-                ),
-            ));
-        }
+        let prefix = &bytes[..bytes.len().min(dialect::PREFIX_BYTES)];
+        let dialect = dialect::detect(
+            path,
+            prefix,
+            prefix.len() == bytes.len(),
+            &dialect::Expect {
+                keys: columns.required,
+                header: &columns.describe(),
+                declarable,
+            },
+            options,
+        )?;
+        // the header starts a line, so this is a character boundary of valid UTF-8
+        let text = std::str::from_utf8(&bytes[dialect.header_offset..]).unwrap_or_default();
+        let line_of = |offset: usize| record_line(text, offset) + dialect.header_line - 1;
         let mut reader = csv::ReaderBuilder::new()
             .has_headers(false)
             .flexible(true)
+            .delimiter(dialect.separator.byte())
             .trim(csv::Trim::All)
             .comment(Some(b'#'))
             .from_reader(text.as_bytes());
         let mut header: Option<(usize, Vec<String>)> = None;
+        let mut units_skipped = dialect.units_row.is_none();
         let mut rows = Vec::new();
         for record in reader.records() {
             let record = record.map_err(|e| {
-                let line = e.position().map(|p| record_line(text, p.byte() as usize));
+                let line = e.position().map(|p| line_of(p.byte() as usize));
                 err(line, None, format!("cannot read this CSV line: {e}"))
             })?;
-            let line = record
-                .position()
-                .map_or(0, |p| record_line(text, p.byte() as usize));
+            let line = record.position().map_or(0, |p| line_of(p.byte() as usize));
             let cells: Vec<String> = record.iter().map(|c| c.trim().to_string()).collect();
             if cells.iter().all(String::is_empty) {
                 continue;
             }
             if header.is_none() {
                 header = Some((line, cells.iter().map(|c| c.to_lowercase()).collect()));
+            } else if !units_skipped {
+                units_skipped = true;
             } else {
                 rows.push(CsvRow { line, cells });
             }
@@ -187,7 +209,30 @@ impl CsvTable {
             path: path.to_path_buf(),
             columns: names,
             rows,
+            dialect,
         })
+    }
+
+    /// How the file was read, for the outputs.
+    pub(crate) fn read_as(&self) -> ReadAs {
+        self.dialect.read_as(&self.path, None)
+    }
+
+    /// Check the units row, if any, against what each column holds (`expected`).
+    pub(crate) fn check_units(
+        &self,
+        expected: impl Fn(&str) -> Option<dialect::ColumnUnit>,
+    ) -> Result<()> {
+        match &self.dialect.units_row {
+            Some(u) => dialect::check_units(
+                &self.path,
+                self.dialect.header_line + 1,
+                &self.columns,
+                u,
+                expected,
+            ),
+            None => Ok(()),
+        }
     }
 
     /// Index of a column, if the file has it.
@@ -207,8 +252,22 @@ impl CsvTable {
 
     /// A required number: present, parseable and finite.
     pub(crate) fn number(&self, row: &CsvRow, name: &str) -> Result<f64> {
-        let cell = self.text(row, name);
-        parse_finite(cell).map_err(|m| self.error(row.line, name, m))
+        self.parse_number(row, name, self.text(row, name))
+    }
+
+    /// A cell as a finite number in the file's decimal mark.
+    fn parse_number(&self, row: &CsvRow, name: &str, cell: &str) -> Result<f64> {
+        let text = self
+            .dialect
+            .number_text(cell)
+            .map_err(|m| self.error(row.line, name, m))?;
+        parse_finite(&text).map_err(|m| {
+            self.error(
+                row.line,
+                name,
+                format!("{m}{}", self.dialect.number_hint(cell)),
+            )
+        })
     }
 
     /// An optional number: `None` when the column is absent or the cell empty.
@@ -216,9 +275,7 @@ impl CsvTable {
         match self.col(name) {
             None => Ok(None),
             Some(i) if row.cells[i].is_empty() => Ok(None),
-            Some(i) => parse_finite(&row.cells[i])
-                .map(Some)
-                .map_err(|m| self.error(row.line, name, m)),
+            Some(i) => self.parse_number(row, name, &row.cells[i]).map(Some),
         }
     }
 }
@@ -254,15 +311,10 @@ fn check_header(path: &Path, line: usize, names: &[String], columns: &Columns<'_
         .any(|r| names.iter().any(|n| n == r))
     {
         let found = names.join(",");
-        let hint = if names.len() == 1 && found.contains(';') {
-            "; the columns must be separated by commas, not semicolons"
-        } else {
-            ""
-        };
         return Err(err(
             None,
             format!(
-                "the first line must be the header {}; found `{found}`{hint}",
+                "this line must be the header {}; found `{found}`",
                 columns.describe()
             ),
         ));
@@ -336,8 +388,17 @@ pub(crate) fn absolute_temperature(units: &Units, t: f64) -> std::result::Result
 
 /// Read `sensors.csv`: `sensor,x,y` with optional `sigma`, `position_sigma` and `offset` (a
 /// calibration offset in the temperature unit, subtracted from every reading of the sensor).
-#[allow(clippy::float_cmp)] // a position exactly on the right edge, as written in the file
 pub(crate) fn read_sensors(path: &Path, units: &Units, shape: &Shape) -> Result<Vec<Sensor>> {
+    read_sensors_as(path, units, shape).map(|(s, _)| s)
+}
+
+/// [`read_sensors`], with how the file was read.
+#[allow(clippy::float_cmp)] // a position exactly on the right edge, as written in the file
+pub(crate) fn read_sensors_as(
+    path: &Path,
+    units: &Units,
+    shape: &Shape,
+) -> Result<(Vec<Sensor>, ReadAs)> {
     let table = CsvTable::read(
         path,
         &Columns {
@@ -345,6 +406,11 @@ pub(crate) fn read_sensors(path: &Path, units: &Units, shape: &Shape) -> Result<
             optional: &["sigma", "position_sigma", "offset"],
         },
     )?;
+    table.check_units(|c| match c {
+        "x" | "y" | "position_sigma" => Some(ColumnUnit::Length(units.length)),
+        "sigma" | "offset" => Some(ColumnUnit::Temperature(units.temperature)),
+        _ => None,
+    })?;
     if table.rows.is_empty() {
         return Err(Error::invalid_at(
             path,
@@ -469,12 +535,17 @@ pub(crate) fn read_sensors(path: &Path, units: &Units, shape: &Shape) -> Result<
             line: row.line,
         });
     }
-    Ok(sensors)
+    Ok((sensors, table.read_as()))
 }
 
 /// Read `readings.csv` (`sensor,temperature`, one reading per row) into kelvin, aligned with
-/// `case.sensors`; a sensor with no row gets `None`.
-pub(crate) fn read_readings(path: &Path, case: &Case) -> Result<Vec<Option<f64>>> {
+/// `case.sensors`; a sensor with no row gets `None`. The dialect is detected, except what
+/// `options` declares; how the file was read is returned for the outputs.
+pub(crate) fn read_readings(
+    path: &Path,
+    case: &Case,
+    options: &DialectOptions,
+) -> Result<(Vec<Option<f64>>, ReadAs)> {
     let value = super::convert::value_column(case);
     let with_cj = super::convert::cold_junction_column(case);
     let required: &[&str] = if with_cj {
@@ -482,13 +553,21 @@ pub(crate) fn read_readings(path: &Path, case: &Case) -> Result<Vec<Option<f64>>
     } else {
         &["sensor", value]
     };
-    let table = CsvTable::read(
+    let table = CsvTable::read_with(
         path,
         &Columns {
             required,
             optional: &[],
         },
+        options,
+        true,
     )?;
+    let temperature = ColumnUnit::Temperature(case.units.temperature);
+    table.check_units(|c| match c {
+        "temperature" | "cold_junction" => Some(temperature),
+        "emf_mv" => Some(ColumnUnit::Millivolt),
+        _ => None,
+    })?;
     if table.rows.is_empty() {
         return Err(Error::invalid_at(
             path,
@@ -545,7 +624,7 @@ pub(crate) fn read_readings(path: &Path, case: &Case) -> Result<Vec<Option<f64>>
         values[i] = Some(super::convert::with_offset(case, i, k));
         lines[i] = row.line;
     }
-    Ok(values)
+    Ok((values, table.read_as()))
 }
 
 fn add_hint(e: Error, hint: &str) -> Error {

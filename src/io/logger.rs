@@ -31,8 +31,9 @@
 
 use crate::case::Case;
 use crate::error::{Error, Result};
+use crate::io::dialect::{ColumnUnit, Dialect};
 use std::collections::HashMap;
-use std::io::{Read, Write};
+use std::io::{Read, Seek, SeekFrom, Write};
 use std::path::{Path, PathBuf};
 use std::time::{Duration, Instant};
 
@@ -56,16 +57,7 @@ pub const FAULT_CODES: [f64; 10] = [
 /// IEC 60584-1 reaches it; a number this large is a corrupted cell, not a temperature).
 pub const MAX_PLAUSIBLE_K: f64 = crate::plausible::MAX_TEMPERATURE_K;
 
-/// How a logger's time column is written (fixed by the first row).
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum TimeKind {
-    /// A plain number of seconds.
-    Seconds,
-    /// ISO 8601 without a zone (local time of the logger).
-    Naive,
-    /// ISO 8601 with a zone, converted to UTC.
-    Zoned,
-}
+pub use crate::io::times::{TimeFormat, TimeKind};
 
 /// The end of the message for a column that is not a sensor: what to do besides fixing the
 /// header. The command line appends the flag that does it.
@@ -78,6 +70,8 @@ pub struct LoggerOptions {
     pub ignore_extra: bool,
     /// Keep reading a file that is still being written.
     pub follow: Option<Follow>,
+    /// What is declared about the file's dialect (the rest is detected).
+    pub dialect: crate::io::dialect::DialectOptions,
 }
 
 /// Live-monitoring settings.
@@ -161,6 +155,12 @@ pub struct LoggerReader {
     /// The `cold_junction` column, when the case takes the cold junction from one.
     cold_junction_column: Option<usize>,
     kind: Option<TimeKind>,
+    /// The dialect (separator, decimal mark, lines before the header, units row).
+    dialect: Dialect,
+    /// The time format (found from the first rows, declared, or from the first row read).
+    time_format: Option<TimeFormat>,
+    /// Lines of the file before the header (added to the csv reader's line numbers).
+    line_offset: u64,
     last_time: Option<(f64, u64)>,
     sensor_count: usize,
     /// Sensors of the case with no column in the file.
@@ -185,33 +185,62 @@ impl LoggerReader {
     /// header without `time`, a duplicated column, or (without `ignore_extra`) a column for
     /// an unknown sensor.
     pub fn open(path: &Path, case: &Case, options: &LoggerOptions) -> Result<Self> {
-        let file = std::fs::File::open(path).map_err(|source| Error::Io {
+        let io_err = |source| Error::Io {
             path: path.to_path_buf(),
             source,
             input: true,
-        })?;
+        };
+        let mut file = std::fs::File::open(path).map_err(io_err)?;
+        let (prefix, complete) = read_prefix(&mut file, options.follow).map_err(io_err)?;
+        let dialect = crate::io::dialect::detect(
+            path,
+            &prefix,
+            complete,
+            &crate::io::dialect::Expect {
+                keys: &["time"],
+                header: "`time,<sensor ids>`",
+                declarable: true,
+            },
+            &options.dialect,
+        )?;
+        file.seek(SeekFrom::Start(dialect.header_offset as u64))
+            .map_err(io_err)?;
         let follow = FollowRead {
             inner: file,
             follow: options.follow,
             last_data: Instant::now(),
             line_bytes: 0,
         };
+        // flexible: a units row may be shorter than the header; row lengths are checked in
+        // `next_row`
         let mut reader = csv::ReaderBuilder::new()
             .has_headers(true)
-            .flexible(false)
+            .flexible(true)
+            .delimiter(dialect.separator.byte())
             .trim(csv::Trim::All)
             .from_reader(follow);
+        // The csv reader numbers a record by where it starts looking for it, which after a
+        // CRLF line end is still on the line before (it counts the `\n` with the next
+        // record): one more line in CRLF files.
+        let line_offset = dialect.header_line as u64 - 1 + u64::from(dialect.crlf);
+        let header_line = dialect.header_line;
         let header = reader
             .byte_headers()
-            .map_err(|e| csv_error(path, e))?
+            .map_err(|e| csv_error(path, e, line_offset))?
             .clone();
         if header.is_empty() || (header.len() == 1 && header[0].is_empty()) {
             return Err(Error::invalid_at(
                 path,
-                Some(1),
+                Some(dialect.header_line),
                 None,
                 "the file is empty; a logger file starts with a header `time,<sensor ids>`",
             ));
+        }
+        if dialect.units_row.is_some() {
+            let mut units = csv::ByteRecord::new();
+            reader
+                .read_byte_record(&mut units)
+                .map_err(|e| csv_error(path, e, line_offset))?;
         }
         let index: HashMap<&str, usize> = case
             .sensors
@@ -227,7 +256,7 @@ impl LoggerReader {
         }) {
             return Err(Error::invalid_at(
                 path,
-                Some(1),
+                Some(header_line),
                 Some("time"),
                 "the header has no `time` column; a logger file is `time,<sensor ids>` with \
                  the time in ISO 8601 or seconds",
@@ -245,7 +274,7 @@ impl LoggerReader {
                 .map_err(|_| {
                     Error::invalid_at(
                         path,
-                        Some(1),
+                        Some(header_line),
                         Some(&format!("column {}", k + 1)),
                         "the header is not UTF-8 text; is this a logger CSV file?",
                     )
@@ -255,7 +284,7 @@ impl LoggerReader {
             if let Some(first) = seen.insert(name.clone(), k) {
                 return Err(Error::invalid_at(
                     path,
-                    Some(1),
+                    Some(header_line),
                     Some(&name),
                     format!(
                         "column `{name}` appears twice (columns {} and {}); give each sensor \
@@ -279,7 +308,7 @@ impl LoggerReader {
             } else {
                 return Err(Error::invalid_at(
                     path,
-                    Some(1),
+                    Some(header_line),
                     Some(&name),
                     format!(
                         "column `{name}` is not a sensor in {}; check the header (it must be \
@@ -293,7 +322,7 @@ impl LoggerReader {
         let Some(time_column) = time_column else {
             return Err(Error::invalid_at(
                 path,
-                Some(1),
+                Some(header_line),
                 Some("time"),
                 "the header has no `time` column; a logger file is `time,<sensor ids>` with \
                  the time in ISO 8601 or seconds",
@@ -302,7 +331,7 @@ impl LoggerReader {
         if want_cj && cold_junction_column.is_none() {
             return Err(Error::invalid_at(
                 path,
-                Some(1),
+                Some(header_line),
                 Some("cold_junction"),
                 "plate.toml says cold_junction = \"column\", but the header has no \
                  `cold_junction` column; add the reference-junction temperature of every row, \
@@ -312,6 +341,56 @@ impl LoggerReader {
         let absent_sensors = (0..case.sensors.len())
             .filter(|i| !column_sensor.contains(&Some(*i)))
             .collect();
+        if let Some(units) = &dialect.units_row {
+            let temperature = ColumnUnit::Temperature(case.units.temperature);
+            let reading = if case.conversion().is_some() {
+                ColumnUnit::Millivolt
+            } else {
+                temperature
+            };
+            crate::io::dialect::check_units(
+                path,
+                dialect.header_line + 1,
+                &column_names,
+                units,
+                |c| {
+                    if Some(c) == cold_junction_column.map(|k| column_names[k].as_str()) {
+                        Some(temperature)
+                    } else {
+                        let k = column_names.iter().position(|n| n == c)?;
+                        column_sensor[k].map(|_| reading)
+                    }
+                },
+            )?;
+        }
+        let time_format = match options.dialect.time_format {
+            Some(f) => Some(f),
+            None => {
+                let cells: Vec<&str> = dialect
+                    .sample_rows
+                    .iter()
+                    .filter_map(|r| r.get(time_column).map(String::as_str))
+                    .collect();
+                if cells.is_empty() {
+                    None
+                } else {
+                    Some(
+                        crate::io::times::detect(&cells, dialect.decimal_comma).map_err(|m| {
+                            Error::invalid_at(
+                                path,
+                                Some(
+                                    dialect.header_line
+                                        + 1
+                                        + usize::from(dialect.units_row.is_some()),
+                                ),
+                                Some("time"),
+                                format!("{m}{TIME_FORMAT_HINT}"),
+                            )
+                        })?,
+                    )
+                }
+            }
+        };
         Ok(LoggerReader {
             path: path.to_path_buf(),
             reader,
@@ -323,6 +402,9 @@ impl LoggerReader {
             case: case.clone(),
             cold_junction_column,
             kind: None,
+            dialect,
+            time_format,
+            line_offset,
             last_time: None,
             sensor_count: case.sensors.len(),
             absent_sensors,
@@ -335,6 +417,17 @@ impl LoggerReader {
         self.kind
     }
 
+    /// The format of the time column (from the first rows, or declared); `None` until a row
+    /// is read when the file had no rows when it was opened.
+    pub fn time_format(&self) -> Option<TimeFormat> {
+        self.time_format
+    }
+
+    /// How the file is read (separator, decimal mark, time format, ...), for the outputs.
+    pub fn read_as(&self) -> crate::case::ReadAs {
+        self.dialect.read_as(&self.path, self.time_format)
+    }
+
     /// Read the next row into `row`; `Ok(false)` at the end of the file.
     ///
     /// # Errors
@@ -345,26 +438,63 @@ impl LoggerReader {
         match self.reader.read_byte_record(&mut self.record) {
             Ok(false) => return Ok(false),
             Ok(true) => {}
-            Err(e) => return Err(csv_error(&self.path, e)),
+            Err(e) => return Err(csv_error(&self.path, e, self.line_offset)),
         }
-        let line = self.record.position().map_or(0, |p| p.line());
+        let line = self.record.position().map_or(0, |p| p.line()) + self.line_offset;
+        if self.record.len() != self.column_names.len() {
+            return Err(Error::invalid_at(
+                &self.path,
+                Some(line as usize),
+                None,
+                format!(
+                    "this row has {} cells but the header has {}; every row needs one cell per \
+                     column (leave a cell empty for a missing reading)",
+                    self.record.len(),
+                    self.column_names.len()
+                ),
+            ));
+        }
         row.line = line;
         row.values.clear();
         row.values.resize(self.sensor_count, None);
         let time_raw = &self.record[self.time_column];
         let time_text = std::str::from_utf8(time_raw).map_err(|_| self.not_text(line, "time"))?;
-        let (t, kind) = parse_time(time_text).ok_or_else(|| {
-            Error::invalid_at(
-                &self.path,
-                Some(line as usize),
-                Some("time"),
-                format!(
-                    "`{}` is not a time; write ISO 8601 (2026-03-14T08:30:00, optionally with \
-                     Z or +01:00) or a number of seconds",
-                    shorten(time_text)
-                ),
-            )
-        })?;
+        let format = match self.time_format {
+            Some(f) => f,
+            None => {
+                let f = crate::io::times::detect(&[time_text], self.dialect.decimal_comma)
+                    .map_err(|m| {
+                        Error::invalid_at(
+                            &self.path,
+                            Some(line as usize),
+                            Some("time"),
+                            format!("{m}{TIME_FORMAT_HINT}"),
+                        )
+                    })?;
+                self.time_format = Some(f);
+                f
+            }
+        };
+        let (t, kind) = format
+            .parse(time_text, self.dialect.decimal_comma)
+            .ok_or_else(|| {
+                Error::invalid_at(
+                    &self.path,
+                    Some(line as usize),
+                    Some("time"),
+                    format!(
+                        "`{}` is not a time in the file's format, {}{}; use one kind of time \
+                         throughout the file{TIME_FORMAT_HINT}",
+                        shorten(time_text),
+                        format.label(),
+                        if self.dialect.declared.contains(&"time format") {
+                            " (declared)"
+                        } else {
+                            " (found from the first rows)"
+                        },
+                    ),
+                )
+            })?;
         match self.kind {
             None => self.kind = Some(kind),
             Some(k) if k != kind => {
@@ -375,8 +505,8 @@ impl LoggerReader {
                     format!(
                         "`{time_text}` is written as {} but the first row's time is {}; use \
                          one kind of time throughout the file",
-                        kind_name(kind),
-                        kind_name(k)
+                        kind.name(),
+                        k.name()
                     ),
                 ));
             }
@@ -445,16 +575,18 @@ impl LoggerReader {
         } else {
             "temperature"
         };
-        let v = match text.parse::<f64>() {
+        if FAULT_MARKERS.iter().any(|m| m.eq_ignore_ascii_case(text)) {
+            return Ok(None);
+        }
+        let number = self.dialect.number_text(text).map_err(err)?;
+        let v = match number.parse::<f64>() {
             Ok(v) => v,
             Err(_) => {
-                if FAULT_MARKERS.iter().any(|m| m.eq_ignore_ascii_case(text)) {
-                    return Ok(None);
-                }
                 return Err(err(format!(
                     "`{}` is neither a {what} nor a known fault marker (empty, NaN, OPEN, \
-                     OVER, ERR, ... see docs/track.md)",
-                    shorten(text)
+                     OVER, ERR, ... see docs/track.md){}",
+                    shorten(text),
+                    self.dialect.number_hint(text)
                 )));
             }
         };
@@ -502,14 +634,6 @@ impl LoggerReader {
     }
 }
 
-fn kind_name(k: TimeKind) -> &'static str {
-    match k {
-        TimeKind::Seconds => "seconds",
-        TimeKind::Naive => "ISO 8601 without a zone",
-        TimeKind::Zoned => "ISO 8601 with a zone",
-    }
-}
-
 fn shorten(s: &str) -> String {
     if s.chars().count() > 40 {
         format!("{}…", s.chars().take(40).collect::<String>())
@@ -518,8 +642,8 @@ fn shorten(s: &str) -> String {
     }
 }
 
-fn csv_error(path: &Path, e: csv::Error) -> Error {
-    let line = e.position().map(|p| p.line() as usize);
+fn csv_error(path: &Path, e: csv::Error, line_offset: u64) -> Error {
+    let line = e.position().map(|p| (p.line() + line_offset) as usize);
     let message = match e.kind() {
         csv::ErrorKind::UnequalLengths {
             expected_len, len, ..
@@ -539,116 +663,52 @@ fn csv_error(path: &Path, e: csv::Error) -> Error {
     Error::invalid_at(path, line, None, message)
 }
 
-/// Parse a logger time: seconds, or ISO 8601 with or without a zone. Returns seconds (since
-/// 1970-01-01T00:00:00 for ISO times, UTC when a zone is given) and the kind.
+/// Parse a logger time the way a file without a declared format is read when its first
+/// row is seconds or ISO 8601: seconds (as written), or ISO 8601 with or without a zone
+/// (seconds since 1970-01-01T00:00:00, UTC when a zone is given). Other formats:
+/// [`TimeFormat::parse`].
 pub fn parse_time(s: &str) -> Option<(f64, TimeKind)> {
-    let s = s.trim();
-    if let Ok(v) = s.parse::<f64>() {
-        return v.is_finite().then_some((v, TimeKind::Seconds));
-    }
-    let b = s.as_bytes();
-    if b.len() < 16 {
-        return None;
-    }
-    let num = |r: std::ops::Range<usize>| -> Option<i64> {
-        let t = s.get(r)?;
-        if !t.bytes().all(|c| c.is_ascii_digit()) {
-            return None;
+    TimeFormat::Seconds
+        .parse(s, false)
+        .or_else(|| TimeFormat::Iso.parse(s, false))
+}
+
+/// The end of a message about the time column: how to declare the format.
+pub const TIME_FORMAT_HINT: &str =
+    " (time formats: seconds, iso, dd.mm.yyyy, dd/mm/yyyy, mm/dd/yyyy, excel-days)";
+
+/// The first [`PREFIX_BYTES`](crate::io::dialect::PREFIX_BYTES) of the file, for the dialect,
+/// and whether they are the whole file. When following a file that is still being written,
+/// wait (as [`Follow`] says) until it holds at least three whole lines (a header, perhaps a
+/// units row, a row), so that the dialect is found from real rows.
+fn read_prefix(
+    file: &mut std::fs::File,
+    follow: Option<Follow>,
+) -> std::io::Result<(Vec<u8>, bool)> {
+    let limit = crate::io::dialect::PREFIX_BYTES;
+    let mut buf = Vec::with_capacity(8192);
+    let start = Instant::now();
+    loop {
+        let mut chunk = [0u8; 8192];
+        let want = (limit - buf.len()).min(chunk.len());
+        let n = file.read(&mut chunk[..want])?;
+        buf.extend_from_slice(&chunk[..n]);
+        if buf.len() >= limit {
+            return Ok((buf, false));
         }
-        t.parse().ok()
-    };
-    let year = num(0..4)?;
-    let month = num(5..7)?;
-    let day = num(8..10)?;
-    if b[4] != b'-' || b[7] != b'-' || !(b[10] == b'T' || b[10] == b't' || b[10] == b' ') {
-        return None;
-    }
-    let hour = num(11..13)?;
-    if b[13] != b':' {
-        return None;
-    }
-    let minute = num(14..16)?;
-    let mut pos = 16;
-    let mut second = 0.0;
-    if b.len() > pos && b[pos] == b':' {
-        let sec = num(pos + 1..pos + 3)?;
-        pos += 3;
-        let mut end = pos;
-        if b.len() > pos && (b[pos] == b'.' || b[pos] == b',') {
-            end = pos + 1;
-            while end < b.len() && b[end].is_ascii_digit() {
-                end += 1;
-            }
-            if end == pos + 1 {
-                return None;
-            }
+        if n > 0 {
+            continue;
         }
-        let frac: f64 = if end > pos {
-            format!("0.{}", &s[pos + 1..end]).parse().ok()?
-        } else {
-            0.0
+        let Some(f) = follow else {
+            return Ok((buf, true));
         };
-        second = sec as f64 + frac;
-        pos = end;
-    }
-    let (offset, kind) = match &s[pos..] {
-        "" => (0, TimeKind::Naive),
-        "Z" | "z" => (0, TimeKind::Zoned),
-        zone => {
-            let zb = zone.as_bytes();
-            let sign = match zb[0] {
-                b'+' => 1,
-                b'-' => -1,
-                _ => return None,
-            };
-            let digits: String = zone[1..].chars().filter(|c| *c != ':').collect();
-            if digits.len() != 4 || !digits.bytes().all(|c| c.is_ascii_digit()) {
-                return None;
-            }
-            if zone.len() == 6 && zb[3] != b':' {
-                return None;
-            }
-            let h: i64 = digits[..2].parse().ok()?;
-            let m: i64 = digits[2..].parse().ok()?;
-            if h > 18 || m > 59 {
-                return None;
-            }
-            (sign * (h * 3600 + m * 60), TimeKind::Zoned)
+        let lines = buf.iter().filter(|&&b| b == b'\n').count();
+        if lines >= 3 || f.idle_exit.is_some_and(|d| start.elapsed() >= d) {
+            // a growing file: a last line without its end is not looked at
+            return Ok((buf, false));
         }
-    };
-    if !(1..=12).contains(&month)
-        || day < 1
-        || day > days_in_month(year, month)
-        || hour > 23
-        || minute > 59
-        || second >= 61.0
-    {
-        return None;
+        std::thread::sleep(f.poll);
     }
-    let days = days_from_civil(year, month, day);
-    let t = (days * 86400 + hour * 3600 + minute * 60 - offset) as f64 + second;
-    Some((t, kind))
-}
-
-fn days_in_month(y: i64, m: i64) -> i64 {
-    match m {
-        1 | 3 | 5 | 7 | 8 | 10 | 12 => 31,
-        4 | 6 | 9 | 11 => 30,
-        _ if (y % 4 == 0 && y % 100 != 0) || y % 400 == 0 => 29,
-        _ => 28,
-    }
-}
-
-/// Days since 1970-01-01 of a proleptic Gregorian date (the standard civil-from-days
-/// inversion, H. Hinnant, "chrono-compatible low-level date algorithms", public domain).
-fn days_from_civil(y: i64, m: i64, d: i64) -> i64 {
-    let y = if m <= 2 { y - 1 } else { y };
-    let era = if y >= 0 { y } else { y - 399 } / 400;
-    let yoe = y - era * 400;
-    let mp = (m + 9) % 12;
-    let doy = (153 * mp + 2) / 5 + d - 1;
-    let doe = yoe * 365 + yoe / 4 - yoe / 100 + doy;
-    era * 146_097 + doe - 719_468
 }
 
 /// A CSV output written row by row.

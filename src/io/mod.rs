@@ -12,16 +12,21 @@
 //! | the assembled case (its types live in `crate::case`) | [`case`] |
 //! | results, written atomically, never over an input | [`output`] |
 //! | logger files for `track`, and `track.csv` written row by row | [`logger`] |
+//! | CSV dialects (separator, decimal mark, metadata lines, units row) of every table | [`dialect`] |
+//! | the time column of a logger file | [`times`] |
 
 pub mod case;
 mod convert;
 mod csv_files;
+pub mod dialect;
 pub mod logger;
 pub mod output;
 mod plate_file;
 mod spans;
+pub mod times;
 
-pub use case::{load_case, load_readings, read_truth_profiles};
+pub use case::{load_case, load_readings, load_readings_as, read_truth_profiles};
+pub use dialect::{DecimalMark, DialectOptions, Separator};
 pub use logger::{
     LoggerOptions, LoggerReader, LoggerRow, StreamWriter, TRACK_OUTPUT_FILE_NAMES,
     check_track_outputs,
@@ -34,3 +39,4 @@ pub use plate_file::{
     DEFAULT_CONFIDENCE, DEFAULT_REPLICATES, DEFAULT_SEED, DEFAULT_TERMS, MAX_REPLICATES, MAX_TERMS,
     plate_line_of,
 };
+pub use times::TimeFormat;

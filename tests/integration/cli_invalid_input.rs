@@ -345,15 +345,8 @@ fn bad_sensor_headers_and_rows() {
         "unknown column `sigam`",
     );
     let dir = case(&[("sensors.csv", Some("TC01,20,8\nTC02,75,10\n"))]);
-    assert_invalid(
-        &dir,
-        "sensors.csv",
-        Some(1),
-        None,
-        "first line must be the header",
-    );
-    let dir = case(&[("sensors.csv", Some("sensor;x;y\nTC01;20;8\n"))]);
-    assert_invalid(&dir, "sensors.csv", Some(1), None, "commas, not semicolons");
+    assert_invalid(&dir, "sensors.csv", Some(1), None, "no header found");
+    // (a file written with semicolons is read since issue 14: tests/integration/dialects.rs)
     let dir = case(&[("sensors.csv", Some("sensor,x,y\nTC01,20,8\nTC02,75\n"))]);
     assert_invalid(
         &dir,

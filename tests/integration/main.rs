@@ -17,6 +17,7 @@ mod degenerate_inputs;
 mod design_checks;
 mod design_cli;
 mod design_search;
+mod dialects;
 mod estimate_pipeline;
 mod finite_answers;
 mod forward_closed_forms;

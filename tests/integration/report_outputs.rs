@@ -234,6 +234,7 @@ fn common(
         bounds: None,
         cautions: vec!["The peak is narrower than twice the resolution length: its height may be underestimated.".into()],
         conversion: None,
+        read_as: Vec::new(),
     }
 }
 

@@ -319,6 +319,9 @@ fn insert_run_json(r: &EstimateResult, out: &mut Map<String, Value>) {
             }),
         );
     }
+    if !r.read_as.is_empty() {
+        out.insert("inputs_read_as".into(), json!(r.read_as));
+    }
     if r.sensors.iter().any(|s| s.offset.is_some()) {
         let offsets: Map<String, Value> = r
             .sensors
@@ -367,6 +370,13 @@ pub fn text_summary(r: &EstimateResult) -> String {
         r.seed
     );
     out.push('\n');
+    for how in &r.read_as {
+        line(
+            &mut out,
+            "Read as",
+            &format!("{}: {}", how.file, how.description),
+        );
+    }
     if let Some(c) = &r.conversion {
         line(&mut out, "Readings", &c.describe(&r.units));
     }

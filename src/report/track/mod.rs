@@ -297,6 +297,9 @@ pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
         "version": env!("CARGO_PKG_VERSION"),
         "cautions": s.cautions,
     });
+    if !case.read_as.is_empty() {
+        v["inputs_read_as"] = json!(case.read_as);
+    }
     if let Some(c) = case.conversion() {
         v["readings_conversion"] = json!({
             "signal": "emf_mv",
@@ -325,6 +328,9 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
         s.first_time.as_deref().unwrap_or("-"),
         s.last_time.as_deref().unwrap_or("-")
     );
+    for how in &case.read_as {
+        let _ = writeln!(out, "Read {} as: {}.", how.file, how.description);
+    }
     if let Some(c) = case.conversion() {
         let _ = writeln!(out, "{}", c.describe(&case.units));
     }
