@@ -245,6 +245,9 @@ pub(crate) fn field_svg(r: &EstimateResult) -> Result<String> {
             "{outside} sensor(s) lie beyond the region shown and are not drawn."
         ));
     }
+    if let Some(c) = &r.conversion {
+        captions.push(c.describe(&r.units));
+    }
     captions.push(PLOT_SAFETY_NOTE.to_string());
     let legend_items = legend_items(r);
     let rows = legend_rows(&legend_items, f64::from(WIDTH) - 2.0 * 16.0);

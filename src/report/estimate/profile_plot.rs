@@ -112,7 +112,9 @@ fn header(r: &EstimateResult) -> Header {
 pub(crate) fn profile_svg(r: &EstimateResult) -> Result<String> {
     let head = header(r);
     let blocks = r.edges.len().max(1) as f64;
-    let height = head.height + blocks * (CAPTION_H + TEMP_H + DEPTH_H + BLOCK_GAP) + FOOTER_H;
+    let footers = if r.conversion.is_some() { 2.0 } else { 1.0 };
+    let height =
+        head.height + blocks * (CAPTION_H + TEMP_H + DEPTH_H + BLOCK_GAP) + footers * FOOTER_H;
     let mut buf = String::new();
     {
         let root =
@@ -177,6 +179,17 @@ fn draw(root: &Area<'_>, r: &EstimateResult, head: &Header) -> DrawResult {
     for e in &r.edges {
         draw_edge(root, r, e, top)?;
         top += CAPTION_H + TEMP_H + DEPTH_H + BLOCK_GAP;
+    }
+    // readings converted from voltages say so on the picture too
+    if let Some(c) = &r.conversion {
+        text(
+            root,
+            &c.describe(&r.units),
+            MARGIN,
+            top + 4.0,
+            TextOpts::new(TEXT_PX, Anchor::TopLeft),
+        )?;
+        top += FOOTER_H;
     }
     text(
         root,
