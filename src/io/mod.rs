@@ -20,6 +20,7 @@ pub mod logger;
 pub mod output;
 mod plate_file;
 mod spans;
+pub mod suggest;
 
 pub use case::{load_case, load_readings, read_truth_profiles};
 pub use logger::{

@@ -19,6 +19,7 @@ mod design_cli;
 mod design_search;
 mod estimate_pipeline;
 mod finite_answers;
+mod first_hour;
 mod forward_closed_forms;
 mod forward_fem_reference;
 mod forward_properties;

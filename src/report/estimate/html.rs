@@ -196,8 +196,9 @@ fn cards_html(o: &mut String, r: &EstimateResult) {
     let p = p_value_text(r);
     let _ = writeln!(
         o,
-        "<div class=\"card\"><h3>Fit</h3><p>chi-square {} on {} degrees of freedom, p = {}</p>\
-         <p>strength {} by {}, {} effective parameters</p></div>",
+        "<div class=\"card\"><h3>Fit</h3><p><strong>{}</strong></p><p>chi-square {} on {} \
+         degrees of freedom, p = {}</p><p>strength {} by {}, {} effective parameters</p></div>",
+        esc(fit_verdict(r)),
         fixed(r.fit.chi_square, 2),
         fixed(r.fit.dof, 1),
         esc(&p),
@@ -206,6 +207,26 @@ fn cards_html(o: &mut String, r: &EstimateResult) {
         fixed(r.strength.effective_parameters, 1)
     );
     o.push_str("</div>\n");
+}
+
+/// The fit in plain words, for the fit card.
+fn fit_verdict(r: &EstimateResult) -> &'static str {
+    match r.fit.p_value {
+        _ if r.fit.dof < super::summary::MIN_CHECKING_DOF => {
+            "The readings cannot check the model: too few readings for the smoothness chosen \
+             (see the cautions)."
+        }
+        Some(p) if p < 0.01 => {
+            "The readings scatter more than their stated uncertainty explains: the model, an \
+             edge condition or sigma is doubtful."
+        }
+        Some(p) if p > 0.99 => {
+            "The readings scatter less than their stated uncertainty suggests: sigma may be \
+             stated too large."
+        }
+        Some(_) => "The readings agree with the model within their uncertainty.",
+        None => "No check of the fit is available.",
+    }
 }
 
 /// The two pictures, inlined, with their captions (and the strict bounds' block between them).
