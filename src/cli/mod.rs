@@ -458,8 +458,15 @@ mod flag_tests {
 
     #[test]
     fn temperature_flag_takes_negatives_and_refuses_units() {
-        assert_eq!(temperature_arg("-10").unwrap(), -10.0);
-        assert_eq!(temperature_arg(" 70.5 ").unwrap(), 70.5);
+        // parsing is exact: compare the bits
+        assert_eq!(
+            temperature_arg("-10").unwrap().to_bits(),
+            (-10.0f64).to_bits()
+        );
+        assert_eq!(
+            temperature_arg(" 70.5 ").unwrap().to_bits(),
+            70.5f64.to_bits()
+        );
         for with_unit in ["400F", "70C", "70 °C", "70degC", "300K", "-5 c"] {
             let e = temperature_arg(with_unit).unwrap_err();
             assert!(e.contains("give the number alone"), "{with_unit}: {e}");

@@ -118,7 +118,8 @@ pub struct TrackArgs {
 /// (a reading thread feeds batches), then write the summaries and print the verdict.
 pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
     let files = global.case_files(&args.case_dir, true, false)?;
-    if !args.log.is_file() {
+    // (a device or a pipe is a log too: only a path that is missing or a folder is refused)
+    if !args.log.exists() || args.log.is_dir() {
         return Err(Error::invalid_at(
             &args.log,
             None,
