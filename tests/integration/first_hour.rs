@@ -48,6 +48,15 @@ fn a_negative_limit_is_a_limit() {
     assert!(stdout.contains("cannot check the model"), "{stdout}");
     let summary = fs::read_to_string(out.path().join("summary.json")).unwrap();
     assert!(summary.contains("cannot check the model"), "{summary}");
+    // the report states the safety caution once (the inlined pictures drop their short
+    // note; the SVG files keep it)
+    let html = fs::read_to_string(out.path().join("report.html")).unwrap();
+    assert_eq!(html.matches("not measurements").count(), 1, "{html}");
+    assert!(html.contains("<strong>The readings cannot check the model"));
+    for svg in ["profile.svg", "field.svg"] {
+        let text = fs::read_to_string(out.path().join(svg)).unwrap();
+        assert_eq!(text.matches("not measurements").count(), 1, "{svg}");
+    }
 }
 
 /// Where a negative value means nothing, the message says why (not clap's `-- -1` tip).

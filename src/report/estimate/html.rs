@@ -233,7 +233,7 @@ fn fit_verdict(r: &EstimateResult) -> &'static str {
 fn figures_html(o: &mut String, r: &EstimateResult, profile_svg: &str, field_svg: &str) {
     let conf = percent(r.confidence);
     o.push_str("<h2>Edge profile</h2>\n<figure>\n");
-    o.push_str(strip_xml_declaration(profile_svg));
+    o.push_str(&inline_svg(profile_svg));
     let _ = writeln!(
         o,
         "<figcaption>Reconstructed temperature along each unknown edge: shaded, the {conf} \
@@ -247,7 +247,7 @@ fn figures_html(o: &mut String, r: &EstimateResult, profile_svg: &str, field_svg
     );
     o.push_str(&super::bounds::bounds_html(r));
     o.push_str("<h2>Temperature field</h2>\n<figure>\n");
-    o.push_str(strip_xml_declaration(field_svg));
+    o.push_str(&inline_svg(field_svg));
     o.push_str(
         "<figcaption>Estimated steady temperature over the plate with isotherms; the \
          pointwise bands of every grid point are in <code>field.csv</code>.</figcaption>\n\
@@ -524,6 +524,24 @@ fn case_html(o: &mut String, r: &EstimateResult) {
         let _ = writeln!(o, "<dt>{k}</dt><dd>{v}</dd>");
     }
     o.push_str("</dl>\n");
+}
+
+/// An SVG to inline in the report: without its XML declaration and without the short safety
+/// note under the plot (the page states the caution once, in full, at the top; the SVG files
+/// keep their note, since an image can travel without its report).
+fn inline_svg(svg: &str) -> String {
+    let s = strip_xml_declaration(svg);
+    let note = crate::report::draw::PLOT_SAFETY_NOTE;
+    match s.find(note) {
+        Some(k) => {
+            let start = s[..k].rfind("<text").unwrap_or(k);
+            let end = s[k..]
+                .find("</text>")
+                .map_or(k + note.len(), |e| k + e + "</text>".len());
+            format!("{}{}", &s[..start], &s[end..])
+        }
+        None => s.to_string(),
+    }
 }
 
 /// An SVG document without its XML declaration, ready to inline in HTML.
