@@ -134,9 +134,20 @@ pub fn run(args: &DesignArgs, global: &GlobalOptions) -> Result<i32> {
         .as_ref()
         .map(|p| -> Result<(String, Vec<LayoutSensor>)> {
             let l = read_layout(p, &case)?;
+            // the file name, unless it would read like this run's own layout (`layout.csv`,
+            // or the --evaluate file's name): then the path as given
             let name = p
                 .file_name()
-                .map_or_else(|| p.display().to_string(), |n| n.to_string_lossy().into());
+                .map(|n| n.to_string_lossy().into_owned())
+                .filter(|n| {
+                    n != "layout.csv"
+                        && args
+                            .evaluate
+                            .as_ref()
+                            .and_then(|e| e.file_name())
+                            .is_none_or(|e| e.to_string_lossy() != *n)
+                })
+                .unwrap_or_else(|| p.display().to_string());
             Ok((
                 name,
                 l.iter()

@@ -388,3 +388,32 @@ fn no_noise_stated_runs_on_an_assumed_noise_and_says_so() {
         ))
         .stdout(predicate::str::contains("hidden profile 5 °C (10 times"));
 }
+
+/// `--against` a file that is also called `layout.csv`: it is named by its path, so the two
+/// layouts of the comparison do not carry the same label.
+#[test]
+fn against_a_file_of_the_same_name_is_named_by_its_path() {
+    let dir = tempfile::tempdir().unwrap();
+    let (a, b) = (dir.path().join("a"), dir.path().join("b"));
+    for d in [&a, &b] {
+        fs::create_dir(d).unwrap();
+    }
+    fs::copy(sample().join("sensors.csv"), a.join("layout.csv")).unwrap();
+    fs::copy(sample().join("sensors.csv"), b.join("layout.csv")).unwrap();
+    let out = dir.path().join("out");
+    design(
+        &sample(),
+        &out,
+        &[
+            "--evaluate",
+            a.join("layout.csv").to_str().unwrap(),
+            "--against",
+            b.join("layout.csv").to_str().unwrap(),
+        ],
+    )
+    .success();
+    let json: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.join("design.json")).unwrap()).unwrap();
+    let name = json["against"]["name"].as_str().unwrap();
+    assert_eq!(name, b.join("layout.csv").display().to_string());
+}
