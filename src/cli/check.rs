@@ -23,7 +23,7 @@ pub struct CheckArgs {
 
 /// Run `check`; exit status 0 when every input is valid (errors carry their own status).
 pub fn run(args: &CheckArgs, global: &GlobalOptions) -> Result<i32> {
-    let files = global.case_files(&args.case_dir);
+    let files = global.case_files(&args.case_dir, true, false)?;
     let case = load_case(&files)?;
     // Readings are optional for `check`, but a file that exists (or is named by --readings)
     // must be valid.

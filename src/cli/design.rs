@@ -20,14 +20,15 @@ use std::path::PathBuf;
 /// Arguments of `edgetherm design`.
 #[derive(Debug, clap::Args)]
 pub struct DesignArgs {
-    /// The case directory (plate.toml with a [design] section; sensors.csv only for --add).
+    /// The case directory (plate.toml; its [design] section is optional, every setting has
+    /// a default; sensors.csv only for --add).
     #[arg(value_name = "CASE_DIR")]
     pub case_dir: PathBuf,
     /// Number of sensors to choose.
-    #[arg(long, value_name = "K", conflicts_with_all = ["add", "evaluate"])]
+    #[arg(long, value_name = "K", conflicts_with_all = ["add", "evaluate"], allow_negative_numbers = true, value_parser = super::count_arg)]
     pub count: Option<usize>,
     /// Keep the sensors of sensors.csv where they are and add K new ones.
-    #[arg(long, value_name = "K", conflicts_with = "evaluate")]
+    #[arg(long, value_name = "K", conflicts_with = "evaluate", allow_negative_numbers = true, value_parser = super::count_arg)]
     pub add: Option<usize>,
     /// Score this layout (`sensor,x,y`, case units) instead of choosing one.
     #[arg(long, value_name = "LAYOUT.csv")]
@@ -40,8 +41,13 @@ pub struct DesignArgs {
     /// case's [design] criterion, else edge].
     #[arg(long, value_name = "C", value_parser = ["information", "edge", "worst"])]
     pub criterion: Option<String>,
+    /// Expected variation of the hidden profile about its level, as a standard deviation in
+    /// the case's temperature unit (e.g. 4 for "about ±4 degrees") [default: [design]
+    /// variation, else 10 times the reading noise].
+    #[arg(long, value_name = "V", allow_negative_numbers = true)]
+    pub variation: Option<f64>,
     /// Directory for layout.csv, design.json and design.svg (created if needed).
-    #[arg(long, value_name = "DIR", default_value = "edgetherm-out")]
+    #[arg(long, value_name = "DIR", default_value = "edgetherm-design")]
     pub out: PathBuf,
 }
 
@@ -54,8 +60,22 @@ pub fn run(args: &DesignArgs, global: &GlobalOptions) -> Result<i32> {
              (--add K), or which layout to score (--evaluate LAYOUT.csv)",
         ));
     }
-    let files = global.case_files(&args.case_dir);
-    let case = load_design_case(&files)?;
+    let files = global.case_files(&args.case_dir, false, false)?;
+    let mut case = load_design_case(&files)?;
+    if let Some(v) = args.variation {
+        if !(v.is_finite() && v > 0.0) {
+            return Err(Error::invalid_field(
+                "--variation",
+                format!(
+                    "the expected variation is a standard deviation, a positive temperature \
+                     difference in the case's unit ({}), not {v}",
+                    case.units.temperature.symbol()
+                ),
+            ));
+        }
+    }
+    let variation_k = args.variation.map(|v| case.units.dtemp_to_k(v));
+    let defaults = edgetherm::design::apply_defaults(&mut case, variation_k)?;
     if args.add.is_some() && case.sensors.is_empty() {
         return Err(Error::invalid_at(
             &case.files.sensors,
@@ -114,9 +134,20 @@ pub fn run(args: &DesignArgs, global: &GlobalOptions) -> Result<i32> {
         .as_ref()
         .map(|p| -> Result<(String, Vec<LayoutSensor>)> {
             let l = read_layout(p, &case)?;
+            // the file name, unless it would read like this run's own layout (`layout.csv`,
+            // or the --evaluate file's name): then the path as given
             let name = p
                 .file_name()
-                .map_or_else(|| p.display().to_string(), |n| n.to_string_lossy().into());
+                .map(|n| n.to_string_lossy().into_owned())
+                .filter(|n| {
+                    n != "layout.csv"
+                        && args
+                            .evaluate
+                            .as_ref()
+                            .and_then(|e| e.file_name())
+                            .is_none_or(|e| e.to_string_lossy() != *n)
+                })
+                .unwrap_or_else(|| p.display().to_string());
             Ok((
                 name,
                 l.iter()
@@ -126,7 +157,7 @@ pub fn run(args: &DesignArgs, global: &GlobalOptions) -> Result<i32> {
         })
         .transpose()?;
 
-    let result = if let Some(path) = &args.evaluate {
+    let mut result = if let Some(path) = &args.evaluate {
         let layout: Vec<LayoutSensor> = read_layout(path, &case)?
             .iter()
             .map(|s| LayoutSensor::from_sensor(s, false))
@@ -163,6 +194,7 @@ pub fn run(args: &DesignArgs, global: &GlobalOptions) -> Result<i32> {
         }
         space.result(&case, layout, Some(summary), against)?
     };
+    result.defaults = defaults;
     let written = write_design_outputs(&result, &args.out)?;
     if global.json {
         print_stdout(&format!("{:#}\n", design_json(&result)))?;

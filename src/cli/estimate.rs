@@ -28,14 +28,21 @@ pub struct EstimateArgs {
     pub case_dir: PathBuf,
     /// Directory for the output files (created if needed; never an input's directory if an
     /// output would replace an input).
-    #[arg(long, value_name = "DIR", default_value = "edgetherm-out")]
+    #[arg(long, value_name = "DIR", default_value = "edgetherm-estimate")]
     pub out: PathBuf,
-    /// Alarm limit for the hidden edges, in the case's temperature unit: report the
-    /// probability that any point of a hidden edge exceeds it.
-    #[arg(long, value_name = "T")]
+    /// Alarm limit for the hidden edges: a number in the case's temperature unit (no unit
+    /// suffix; negative values are limits too): report the probability that any point of a
+    /// hidden edge exceeds it.
+    #[arg(long, value_name = "T", allow_negative_numbers = true, value_parser = super::temperature_arg)]
     pub limit: Option<f64>,
-    /// Exit with status 3 when the probability of exceeding --limit is above this.
-    #[arg(long, value_name = "P", default_value_t = 0.05)]
+    /// Exit with status 3 when the probability of exceeding --limit is above this (a
+    /// fraction between 0 and 1: 0.05 for 5 %).
+    #[arg(
+        long,
+        value_name = "P",
+        default_value_t = 0.05,
+        allow_negative_numbers = true
+    )]
     pub probability: f64,
     /// Keep every sensor: do not leave out sensors that look faulty.
     #[arg(long)]
@@ -50,10 +57,10 @@ pub struct EstimateArgs {
     #[arg(long, value_name = "MODE", value_parser = ["parametric", "residual"])]
     pub bootstrap: Option<String>,
     /// Bootstrap replicates [default: the case's [uncertainty] replicates, else 2000].
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_negative_numbers = true, value_parser = super::count_arg)]
     pub replicates: Option<usize>,
     /// Seed of the bootstrap [default: the case's [uncertainty] seed].
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_negative_numbers = true, value_parser = super::seed_arg)]
     pub seed: Option<u64>,
     /// Smoothing strength rule, overriding the case: gcv, discrepancy, evidence, lcurve, or a
     /// positive number (fixed).
@@ -65,7 +72,7 @@ pub struct EstimateArgs {
     /// Steepest credible change of a hidden edge's temperature along it, in the case's
     /// temperature unit per length unit: strict bounds that hold for every edge obeying it
     /// [default: the case's [bounds] max_gradient].
-    #[arg(long, value_name = "G")]
+    #[arg(long, value_name = "G", allow_negative_numbers = true)]
     pub max_gradient: Option<f64>,
     /// Skip the strict bounds and the gradient study (they cost a few seconds).
     #[arg(long)]
@@ -77,7 +84,7 @@ pub struct EstimateArgs {
 
 /// Run `estimate`.
 pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
-    let files = global.case_files(&args.case_dir);
+    let files = global.case_files(&args.case_dir, true, true)?;
     let mut case = load_case(&files)?;
     let (readings, read_as) =
         load_readings_as(&case.files.readings, &case, &args.dialect.options(None)?)?;
@@ -99,9 +106,13 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
                     Error::invalid_field(
                         "--exclude",
                         format!(
-                            "no sensor {:?} in {}",
+                            "no sensor {:?} in {}{}",
                             id.trim(),
-                            case.files.sensors.display()
+                            case.files.sensors.display(),
+                            edgetherm::io::suggest::did_you_mean(
+                                id,
+                                case.sensors.iter().map(|s| s.id.as_str())
+                            )
                         ),
                     )
                 })

@@ -55,11 +55,11 @@ pub struct GlobalOptions {
     pub overwrite: bool,
     /// Memory the run may use, in MB (10^6 bytes); a run estimated to need more is refused
     /// before it starts, naming the setting to change [default: 2147, i.e. 2 GiB].
-    #[arg(long, global = true, value_name = "MB")]
+    #[arg(long, global = true, value_name = "MB", allow_negative_numbers = true)]
     pub memory_budget: Option<f64>,
     /// Computing time the run may take, in seconds; a run estimated to take longer is
     /// refused before it starts [default: 600].
-    #[arg(long, global = true, value_name = "S")]
+    #[arg(long, global = true, value_name = "S", allow_negative_numbers = true)]
     pub time_budget: Option<f64>,
 }
 
@@ -122,14 +122,98 @@ impl GlobalOptions {
         Ok(())
     }
 
-    /// The files of the case in `dir`, with the `--plate/--sensors/--readings` overrides.
-    pub fn case_files(&self, dir: &Path) -> CaseFiles {
-        CaseFiles::in_dir(dir).with_overrides(
+    /// The files of the case in `dir`, with the `--plate/--sensors/--readings` overrides,
+    /// checked to exist before anything is read, so that a wrong path gets a message that
+    /// says which file is missing and what to do (not a bare "No such file"): the case folder
+    /// itself, `plate.toml`, and `sensors.csv` / `readings.csv` when the command needs them.
+    pub fn case_files(&self, dir: &Path, sensors: bool, readings: bool) -> Result<CaseFiles> {
+        let files = CaseFiles::in_dir(dir).with_overrides(
             self.plate.clone(),
             self.sensors.clone(),
             self.readings.clone(),
-        )
+        );
+        check_case_files(dir, &files, sensors, readings)?;
+        Ok(files)
     }
+}
+
+/// The checks of [`GlobalOptions::case_files`].
+fn check_case_files(dir: &Path, files: &CaseFiles, sensors: bool, readings: bool) -> Result<()> {
+    let folder_needed = [
+        (true, &files.plate),
+        (sensors, &files.sensors),
+        (readings, &files.readings),
+    ]
+    .iter()
+    .any(|(needed, p)| *needed && p.starts_with(dir));
+    if dir.is_file() {
+        let parent = dir
+            .parent()
+            .filter(|p| !p.as_os_str().is_empty())
+            .unwrap_or(Path::new("."));
+        return Err(Error::invalid_at(
+            dir,
+            None,
+            Some("CASE_DIR"),
+            format!(
+                "this is a file, but CASE_DIR is the folder that holds plate.toml, sensors.csv \
+                 and readings.csv; give the folder (here perhaps `{}`), or name single files \
+                 with --plate, --sensors and --readings",
+                parent.display()
+            ),
+        ));
+    }
+    if folder_needed && !dir.exists() {
+        let cwd = std::env::current_dir()
+            .map(|d| format!(" (relative paths start from {})", d.display()))
+            .unwrap_or_default();
+        return Err(Error::invalid_at(
+            dir,
+            None,
+            Some("CASE_DIR"),
+            format!(
+                "the case folder does not exist{cwd}; check the path, e.g. \
+                 `sample-measurements/cold-plate` from the repository's top folder"
+            ),
+        ));
+    }
+    let missing = |path: &Path, what: &str, fix: &str| -> Result<()> {
+        if path.exists() {
+            return Ok(());
+        }
+        Err(Error::invalid_at(
+            path,
+            None,
+            None,
+            format!("not found: {what}; {fix}"),
+        ))
+    };
+    missing(
+        &files.plate,
+        "every case needs plate.toml (the plate's size, units and edge conditions; \
+         docs/case-files.md)",
+        "write one in the case folder, or name one with --plate FILE",
+    )?;
+    if sensors {
+        missing(
+            &files.sensors,
+            "this command needs the sensor positions, one row `sensor,x,y` per thermocouple \
+             in the case's length unit (docs/case-files.md)",
+            "write sensors.csv in the case folder or name the file with --sensors FILE \
+             (to choose positions first, run `edgetherm design CASE_DIR --count K`)",
+        )?;
+    }
+    if readings {
+        missing(
+            &files.readings,
+            "this command needs the readings, one row `sensor,temperature` per sensor in the \
+             case's temperature unit (docs/case-files.md)",
+            "write readings.csv in the case folder or name the file with --readings FILE \
+             (`edgetherm simulate` makes synthetic ones from a truth profile; a logger file \
+             of many rows goes to `edgetherm track --log`)",
+        )?;
+    }
+    Ok(())
 }
 
 #[derive(Debug, Subcommand)]
@@ -174,6 +258,58 @@ pub fn run() -> i32 {
             e.exit_code()
         }
     }
+}
+
+/// clap value parser of a temperature flag (`--limit T`): a number, in the case's
+/// temperature unit. A number with a unit attached (`400F`, `70°C`) is refused with a message
+/// saying that the unit comes from the case.
+pub fn temperature_arg(text: &str) -> std::result::Result<f64, String> {
+    let t = text.trim();
+    if let Ok(v) = t.parse::<f64>() {
+        return if v.is_finite() {
+            Ok(v)
+        } else {
+            Err(format!("`{text}` is not a finite temperature"))
+        };
+    }
+    let lower = t.to_ascii_lowercase();
+    let number = lower
+        .trim_end_matches(['c', 'f', 'k'])
+        .trim_end_matches("deg")
+        .trim_end_matches('°')
+        .trim_end();
+    match number.parse::<f64>() {
+        Ok(v) if v.is_finite() && number.len() < lower.len() => Err(format!(
+            "give the number alone (`{}`): the unit is the case's, `temperature_unit` in \
+             plate.toml's [plate] section; convert the value to that unit first if it differs",
+            number
+        )),
+        _ => Err(format!(
+            "expected a number in the case's temperature unit (`temperature_unit` in \
+             plate.toml), got `{text}`"
+        )),
+    }
+}
+
+/// clap value parser of a count flag (`--replicates N`, `--count K`, ...): a whole number 0
+/// or more, with a message that says so for a negative or fractional value.
+pub fn count_arg(text: &str) -> std::result::Result<usize, String> {
+    let t = text.trim();
+    t.parse::<usize>().map_err(|_| {
+        if t.starts_with('-') {
+            format!("`{text}` is negative; this is a count, a whole number 0 or more")
+        } else {
+            format!("expected a whole number 0 or more, got `{text}`")
+        }
+    })
+}
+
+/// clap value parser of a seed (`--seed N`): a whole number 0 to 2^64 − 1.
+pub fn seed_arg(text: &str) -> std::result::Result<u64, String> {
+    let t = text.trim();
+    t.parse::<u64>().map_err(|_| {
+        format!("expected a whole number from 0 to 18446744073709551615 as a seed, got `{text}`")
+    })
 }
 
 /// Parse `--grid NX,NY` (each between 2 and [`edgetherm::case::MAX_GRID`]).
@@ -223,7 +359,10 @@ pub fn parse_alarm(
     if !(probability > 0.0 && probability < 1.0) {
         return Err(Error::invalid_field(
             "--probability",
-            format!("must lie strictly between 0 and 1, not {probability}"),
+            format!(
+                "must lie strictly between 0 and 1, not {probability}: it is a fraction \
+                 (0.05 for 5 %)"
+            ),
         ));
     }
     match limit {
@@ -316,6 +455,36 @@ mod flag_tests {
         for bad in ["41", "1,5", "a,b", "5,99999", "-3,4", ""] {
             assert!(parse_grid(bad).is_err(), "{bad}");
         }
+    }
+
+    #[test]
+    fn temperature_flag_takes_negatives_and_refuses_units() {
+        // parsing is exact: compare the bits
+        assert_eq!(
+            temperature_arg("-10").unwrap().to_bits(),
+            (-10.0f64).to_bits()
+        );
+        assert_eq!(
+            temperature_arg(" 70.5 ").unwrap().to_bits(),
+            70.5f64.to_bits()
+        );
+        for with_unit in ["400F", "70C", "70 °C", "70degC", "300K", "-5 c"] {
+            let e = temperature_arg(with_unit).unwrap_err();
+            assert!(e.contains("give the number alone"), "{with_unit}: {e}");
+            assert!(e.contains("temperature_unit"), "{with_unit}: {e}");
+        }
+        let e = temperature_arg("hot").unwrap_err();
+        assert!(e.contains("expected a number"), "{e}");
+        assert!(temperature_arg("inf").is_err());
+        assert!(temperature_arg("NaN").is_err());
+    }
+
+    #[test]
+    fn count_flag_explains_a_negative() {
+        assert_eq!(count_arg("8").unwrap(), 8);
+        assert!(count_arg("-1").unwrap_err().contains("is negative"));
+        assert!(count_arg("2.5").unwrap_err().contains("whole number"));
+        assert!(seed_arg("-3").unwrap_err().contains("whole number"));
     }
 
     #[test]

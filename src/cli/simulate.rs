@@ -24,10 +24,15 @@ pub struct SimulateArgs {
     pub truth: PathBuf,
     /// Standard deviation of the Gaussian noise added to every reading, in the case's
     /// temperature unit; 0 gives the exact forward values.
-    #[arg(long, value_name = "SIGMA", default_value_t = 0.0)]
+    #[arg(
+        long,
+        value_name = "SIGMA",
+        default_value_t = 0.0,
+        allow_negative_numbers = true
+    )]
     pub noise: f64,
     /// Seed of the noise generator [default: the case's [uncertainty] seed].
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_negative_numbers = true, value_parser = super::seed_arg)]
     pub seed: Option<u64>,
     /// Write the readings here instead of stdout.
     #[arg(long, value_name = "FILE")]
@@ -35,14 +40,15 @@ pub struct SimulateArgs {
     /// Also write the true field on a grid (`x,y,temperature`) to this file.
     #[arg(long, value_name = "FILE")]
     pub field: Option<PathBuf>,
-    /// Grid for --field: NX,NY points, edges included (a strip's grid is one width deep).
+    /// Grid for --field: NX,NY points, edges included (a strip's grid is one width deep)
+    /// [default: 41,41].
     #[arg(long, value_name = "NX,NY")]
     pub grid: Option<String>,
 }
 
 /// Run `simulate`.
 pub fn run(args: &SimulateArgs, global: &GlobalOptions) -> Result<i32> {
-    let files = global.case_files(&args.case_dir);
+    let files = global.case_files(&args.case_dir, true, false)?;
     let case = load_case(&files)?;
     if case.plate.unknown_edges().is_empty() {
         return Err(Error::invalid_at(
@@ -57,7 +63,8 @@ pub fn run(args: &SimulateArgs, global: &GlobalOptions) -> Result<i32> {
         return Err(Error::invalid_field(
             "--noise",
             format!(
-                "the noise must be a finite standard deviation >= 0, not {}",
+                "the noise is a standard deviation, a finite number 0 or more in the case's \
+                 temperature unit (0 for exact readings); {} means nothing here",
                 args.noise
             ),
         ));

@@ -49,18 +49,25 @@ pub struct TrackArgs {
     /// summary.json).
     #[arg(long, value_name = "DIR", default_value = "edgetherm-track")]
     pub out: PathBuf,
-    /// Alarm limit for the hidden edges, in the case's temperature unit.
-    #[arg(long, value_name = "T")]
+    /// Alarm limit for the hidden edges: a number in the case's temperature unit (no unit
+    /// suffix; negative values are limits too).
+    #[arg(long, value_name = "T", allow_negative_numbers = true, value_parser = super::temperature_arg)]
     pub limit: Option<f64>,
-    /// A row is in alarm when the probability of exceeding --limit is above this.
-    #[arg(long, value_name = "P", default_value_t = 0.05)]
+    /// A row is in alarm when the probability of exceeding --limit is above this (a
+    /// fraction between 0 and 1: 0.05 for 5 %).
+    #[arg(
+        long,
+        value_name = "P",
+        default_value_t = 0.05,
+        allow_negative_numbers = true
+    )]
     pub probability: f64,
     /// An alarm episode ends after this many rows in a row at or below --probability.
-    #[arg(long, value_name = "N", default_value_t = 10)]
+    #[arg(long, value_name = "N", default_value_t = 10, allow_negative_numbers = true, value_parser = super::count_arg)]
     pub clear: usize,
     /// Choose the smoothing and its strength once, on the first N usable rows, then keep
     /// them fixed [default: chosen on every row].
-    #[arg(long, value_name = "FIRST_N_ROWS")]
+    #[arg(long, value_name = "FIRST_N_ROWS", allow_negative_numbers = true, value_parser = super::count_arg)]
     pub calibrate: Option<usize>,
     /// Smoothing strength rule, overriding the case: gcv, discrepancy, evidence, lcurve, or
     /// a positive number (fixed).
@@ -71,13 +78,13 @@ pub struct TrackArgs {
     #[arg(long)]
     pub bootstrap: bool,
     /// Bootstrap replicates per row with --bootstrap [default: the case's].
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_negative_numbers = true, value_parser = super::count_arg)]
     pub replicates: Option<usize>,
     /// Posterior draws per sensor pattern for the exceedance probability.
-    #[arg(long, value_name = "N", default_value_t = edgetherm::track::engine::DEFAULT_DRAWS)]
+    #[arg(long, value_name = "N", default_value_t = edgetherm::track::engine::DEFAULT_DRAWS, allow_negative_numbers = true, value_parser = super::count_arg)]
     pub draws: usize,
     /// Seed of the draws and of the bootstrap [default: the case's [uncertainty] seed].
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_negative_numbers = true, value_parser = super::seed_arg)]
     pub seed: Option<u64>,
     /// Never leave out a sensor that has a reading (problems are still reported).
     #[arg(long)]
@@ -85,11 +92,11 @@ pub struct TrackArgs {
     /// Strict bounds on the hottest temperature of rows, for every hidden edge changing by
     /// at most G (case temperature unit per length unit) along it [default: the case's
     /// [bounds] max_gradient, else none]. A row bounded above --limit is in alarm.
-    #[arg(long, value_name = "G")]
+    #[arg(long, value_name = "G", allow_negative_numbers = true)]
     pub max_gradient: Option<f64>,
     /// With strict bounds: bound every N-th fitted row (and each row that opens an alarm
     /// episode); each bounded row costs conic programs (tenths of a second).
-    #[arg(long, value_name = "N", default_value_t = edgetherm::track::bounds::DEFAULT_BOUNDS_EVERY)]
+    #[arg(long, value_name = "N", default_value_t = edgetherm::track::bounds::DEFAULT_BOUNDS_EVERY, allow_negative_numbers = true, value_parser = super::count_arg)]
     pub bounds_every: usize,
     /// Ignore logger columns that are not sensors of the case (else they are an error).
     #[arg(long)]
@@ -98,7 +105,12 @@ pub struct TrackArgs {
     #[arg(long)]
     pub follow: bool,
     /// With --follow: stop after this many seconds without new rows [default: never].
-    #[arg(long, value_name = "SECONDS", requires = "follow")]
+    #[arg(
+        long,
+        value_name = "SECONDS",
+        requires = "follow",
+        allow_negative_numbers = true
+    )]
     pub idle_exit: Option<f64>,
     /// How the log is written, when detection should not decide.
     #[command(flatten)]
@@ -113,7 +125,22 @@ pub struct TrackArgs {
 /// Run `track`: validate the flags, open the log, stream its rows through the tracker
 /// (a reading thread feeds batches), then write the summaries and print the verdict.
 pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
-    let files = global.case_files(&args.case_dir);
+    let files = global.case_files(&args.case_dir, true, false)?;
+    // (a device or a pipe is a log too: only a path that is missing or a folder is refused)
+    if !args.log.exists() || args.log.is_dir() {
+        return Err(Error::invalid_at(
+            &args.log,
+            None,
+            Some("--log"),
+            if args.log.is_dir() {
+                "this is a folder; --log takes the logger file itself (a CSV with a `time` \
+                 column and one column per sensor id, docs/track.md)"
+            } else {
+                "not found: --log takes the logger file (a CSV with a `time` column and one \
+                 column per sensor id, docs/track.md); check the path"
+            },
+        ));
+    }
     let mut case = load_case(&files)?;
     let mut inputs = case.files.inputs();
     inputs.push(&args.log);
@@ -160,9 +187,16 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
         case: tracker.case().clone(),
         writer,
     };
-    stream_rows(args, global, &mut tracker, &mut rows_out, &rx)?;
+    if args.follow {
+        stop::install();
+    }
+    let interrupted = stream_rows(args, global, &mut tracker, &mut rows_out, &rx)?;
     tracker.finish(&mut |rec| rows_out.write(rec))?;
-    let _ = handle.join();
+    if !interrupted {
+        // (after a signal the reading thread may be waiting for the log to grow: it is left
+        // to end with the process)
+        let _ = handle.join();
+    }
     let writer = rows_out.writer;
     writer.finish()?;
     set.record("track.csv")?;
@@ -270,8 +304,9 @@ fn open_log(
             .map(|&i| case.sensors[i].id.as_str())
             .collect();
         eprintln!(
-            "edgetherm: the log has no column for {}; tracking without them",
-            ids.join(", ")
+            "edgetherm: the log has no column for {}; tracking without {}",
+            ids.join(", "),
+            if ids.len() == 1 { "it" } else { "them" }
         );
     }
     Ok(reader)
@@ -317,21 +352,34 @@ fn spawn_reader(
 }
 
 /// Push every row through the tracker into `track.csv`, with a progress bar; with
-/// `--follow`, keep every output current while the log is quiet and at most every 2 s.
+/// `--follow`, keep every output current while the log is quiet and at most every 2 s, and
+/// stop after the row in hand on SIGINT or SIGTERM (returns `true` then).
 fn stream_rows(
     args: &TrackArgs,
     global: &GlobalOptions,
     tracker: &mut Tracker,
     rows_out: &mut RowsOut,
     rx: &RowBatches,
-) -> Result<()> {
+) -> Result<bool> {
     let bar = progress_bar(global, None, "track {spinner} {pos} rows ({per_sec})");
     let mut last_write = Instant::now();
     let mut dirty = false;
     let mut rows_seen: u64 = 0;
     // without a progress bar (stderr not a terminal), a line every 30 s says the run is alive
     let mut last_note = Instant::now();
+    let mut interrupted = false;
     loop {
+        if args.follow && stop::requested() {
+            interrupted = true;
+            if !global.quiet {
+                let _ = writeln!(
+                    std::io::stderr(),
+                    "edgetherm: track: stopped by a signal after {rows_seen} rows; writing the \
+                     outputs and the summary"
+                );
+            }
+            break;
+        }
         let msg = if args.follow {
             match rx.recv_timeout(Duration::from_millis(500)) {
                 Ok(m) => Some(m),
@@ -353,7 +401,14 @@ fn stream_rows(
         let Some(msg) = msg else { break };
         let rows = msg?;
         for row in &rows {
+            let (was_open, closed_before) = (
+                tracker.open_alarm().is_some(),
+                tracker.closed_alarms().len(),
+            );
             tracker.push(row, &mut |rec| rows_out.write(rec))?;
+            if args.follow && !global.quiet {
+                alarm_news(tracker, was_open, closed_before, bar.as_ref());
+            }
         }
         rows_seen += rows.len() as u64;
         if let Some(b) = &bar {
@@ -378,7 +433,91 @@ fn stream_rows(
     if let Some(b) = &bar {
         b.finish_and_clear();
     }
-    Ok(())
+    Ok(interrupted)
+}
+
+/// SIGINT and SIGTERM during `track --follow`: the handler only records the request (an
+/// atomic store, safe in a signal handler) and restores the default action, so a second
+/// signal ends the process at once; the loop stops after the row in hand and the run ends
+/// as usual (outputs, summary, exit status).
+mod stop {
+    use std::sync::atomic::{AtomicBool, Ordering};
+
+    static STOP: AtomicBool = AtomicBool::new(false);
+
+    #[cfg(unix)]
+    extern "C" fn on_signal(sig: libc::c_int) {
+        STOP.store(true, Ordering::SeqCst);
+        // SAFETY: signal(2) is async-signal-safe; SIG_DFL is a valid disposition.
+        unsafe {
+            libc::signal(sig, libc::SIG_DFL);
+        }
+    }
+
+    /// Install the handlers (a no-op off Unix: Ctrl-C then ends the process as before).
+    pub fn install() {
+        #[cfg(unix)]
+        {
+            let handler = on_signal as extern "C" fn(libc::c_int) as libc::sighandler_t;
+            // SAFETY: the handler only touches an atomic and calls signal(2).
+            unsafe {
+                libc::signal(libc::SIGINT, handler);
+                libc::signal(libc::SIGTERM, handler);
+            }
+        }
+    }
+
+    /// Whether a stop was requested.
+    pub fn requested() -> bool {
+        STOP.load(Ordering::SeqCst)
+    }
+}
+
+/// With `--follow`: a line on stderr when an alarm episode starts or ends, as it happens
+/// (through the progress bar when there is one, so that the two do not overprint).
+fn alarm_news(
+    tracker: &Tracker,
+    was_open: bool,
+    closed_before: usize,
+    bar: Option<&indicatif::ProgressBar>,
+) {
+    let case = tracker.case();
+    let sym = match case.units.temperature.symbol() {
+        "K" => "K".to_string(),
+        s => format!("°{s}"),
+    };
+    let show = |k: f64| format!("{:.2} {sym}", case.units.temp_from_k(k));
+    let mut lines = Vec::new();
+    for ep in tracker.closed_alarms().iter().skip(closed_before) {
+        lines.push(format!(
+            "edgetherm: ALARM ENDED: the episode that started at {} ended at {} (peak {} at {})",
+            ep.start,
+            ep.end.as_deref().unwrap_or("-"),
+            show(ep.peak_temperature),
+            ep.peak_time
+        ));
+    }
+    let now_open = tracker.open_alarm();
+    // an episode open now that was not open before, or one that closed and reopened
+    if let Some(ep) = now_open {
+        if !was_open || tracker.closed_alarms().len() > closed_before {
+            lines.push(format!(
+                "edgetherm: ALARM STARTED at {} (log line {}): the probability of exceeding the \
+                 limit is above P; hottest {} (these are estimates, not measurements)",
+                ep.start,
+                ep.start_line,
+                show(ep.peak_temperature)
+            ));
+        }
+    }
+    for l in lines {
+        match bar {
+            Some(b) => b.println(&l),
+            None => {
+                let _ = writeln!(std::io::stderr(), "{l}");
+            }
+        }
+    }
 }
 
 /// Where `track.csv` rows go.

@@ -208,6 +208,159 @@ pub struct DesignResult {
     pub against: Option<Comparison>,
     /// Cautions for the reader.
     pub cautions: Vec<String>,
+    /// The design settings that took their default, one sentence each ([`apply_defaults`]).
+    pub defaults: Vec<String>,
+}
+
+/// Default minimum distance from the edges when `plate.toml` has no `[design]` section, as
+/// a fraction of the plate's smaller side (a long strip: its width).
+pub const DEFAULT_EDGE_DISTANCE_FRACTION: f64 = 0.05;
+/// Default minimum spacing between sensors when `plate.toml` has no `[design]` section, as
+/// a fraction of the plate's smaller side (a long strip: its width).
+pub const DEFAULT_SPACING_FRACTION: f64 = 0.10;
+/// Default expected variation of the hidden profile, as a multiple of the reading noise,
+/// when neither `--variation` nor `[design] variation` states it.
+pub const DEFAULT_VARIATION_PER_NOISE: f64 = 10.0;
+/// The room temperature at which a tolerance class gives the design's default noise when
+/// nothing else states it, degrees Celsius.
+const DEFAULT_NOISE_AT_C: f64 = 25.0;
+/// The reading noise a design assumes when nothing states one, kelvin: a thermocouple reading
+/// with its offset calibrated out is commonly good to a few tenths of a kelvin (common
+/// practice, not a measured value). The layout depends on the ratio of variation to noise,
+/// which the default variation fixes at [`DEFAULT_VARIATION_PER_NOISE`]; the predicted bands
+/// scale with this value.
+pub const DEFAULT_NOISE_K: f64 = 0.5;
+
+/// Fill every design setting the case leaves open with its documented default
+/// (`docs/design.md`, "Defaults") and say which ones were used, one sentence each, in the
+/// case's units.
+///
+/// * no `[design]` section: the whole plate is allowed, the minimum distance from the edges
+///   is [`DEFAULT_EDGE_DISTANCE_FRACTION`] and the minimum spacing
+///   [`DEFAULT_SPACING_FRACTION`] of the plate's smaller side (a section that exists keeps
+///   its own defaults of 0 for keys it leaves out);
+/// * the reading noise: `[design] noise`, else `[noise] sigma`, else a tolerance class's
+///   standard uncertainty (or a voltage uncertainty through the type's slope) at 25 °C,
+///   else [`DEFAULT_NOISE_K`] when no sensor states its own sigma;
+/// * the variation: `variation_k` (from `--variation`), else `[design] variation`, else
+///   [`DEFAULT_VARIATION_PER_NOISE`] times the reading noise.
+///
+/// # Errors
+/// [`Error::Invalid`] when a stated `--variation` is not a positive finite difference.
+pub fn apply_defaults(case: &mut Case, variation_k: Option<f64>) -> Result<Vec<String>> {
+    let u = case.units;
+    let t_sym = temp_symbol(u);
+    let l_sym = u.length.symbol();
+    let len = |m: f64| format!("{} {l_sym}", tidy(u.length_from_m(m)));
+    let dt = |k: f64| format!("{} {t_sym}", tidy(u.dtemp_from_k(k)));
+    let mut used = Vec::new();
+    let ds = &mut case.design;
+    if !ds.present {
+        let shape = case.plate.shape();
+        let side = shape
+            .height()
+            .map_or(shape.width(), |h| h.min(shape.width()));
+        ds.edge_distance_m = DEFAULT_EDGE_DISTANCE_FRACTION * side;
+        ds.sensor_spacing_m = DEFAULT_SPACING_FRACTION * side;
+        used.push(
+            "no [design] section in plate.toml: sensors may go anywhere on the plate".to_string(),
+        );
+        used.push(format!(
+            "minimum distance from the edges {} ({:.0} % of the plate's smaller side; set \
+             [design] edge_distance to the closest a hole can really come)",
+            len(ds.edge_distance_m),
+            100.0 * DEFAULT_EDGE_DISTANCE_FRACTION
+        ));
+        used.push(format!(
+            "minimum spacing between sensors {} ({:.0} % of the plate's smaller side; set \
+             [design] sensor_spacing)",
+            len(ds.sensor_spacing_m),
+            100.0 * DEFAULT_SPACING_FRACTION
+        ));
+        ds.present = true;
+    }
+    if ds.noise_k.is_none() {
+        let stated = match &case.noise {
+            NoiseSpec::Emf { sigma_mv, tc_type } => tc_type
+                .slope_mv_per_c(DEFAULT_NOISE_AT_C)
+                .ok()
+                .map(|slope| (sigma_mv / slope, "the voltage uncertainty at 25 °C")),
+            NoiseSpec::Unstated if !case.sensors.iter().any(|s| s.sigma_k.is_some()) => Some((
+                DEFAULT_NOISE_K,
+                "nothing states it: an assumed value; the predicted bands scale with it",
+            )),
+            _ => None,
+        };
+        if let Some((s, why)) = stated {
+            ds.noise_k = Some(s);
+            used.push(format!(
+                "reading noise {} ({why}; set [noise] sigma or [design] noise)",
+                dt(s)
+            ));
+        }
+        if let NoiseSpec::Tolerance { class, tc_type } = &case.noise {
+            let s =
+                crate::noise::tolerance::standard_uncertainty(*class, *tc_type, DEFAULT_NOISE_AT_C)
+                    .map_err(|m| Error::invalid_at(&case.files.plate, None, Some("noise"), m))?;
+            ds.noise_k = Some(s);
+            used.push(format!(
+                "reading noise {} (the tolerance class's standard uncertainty at 25 °C; set \
+                 [design] noise to state it)",
+                dt(s)
+            ));
+        }
+    }
+    if let Some(v) = variation_k {
+        if !(v.is_finite() && v > 0.0) {
+            return Err(Error::invalid_field(
+                "--variation",
+                format!("must be a positive temperature difference, not {v}"),
+            ));
+        }
+        ds.variation_k = Some(v);
+    } else if ds.variation_k.is_none() {
+        let noise = match (ds.noise_k, &case.noise) {
+            (Some(s), _) => Some(s),
+            (None, NoiseSpec::Sigma(s)) => Some(*s),
+            _ => None,
+        };
+        if let Some(s) = noise {
+            let v = DEFAULT_VARIATION_PER_NOISE * s;
+            ds.variation_k = Some(v);
+            used.push(format!(
+                "expected variation of the hidden profile {} ({} times the reading noise {}; \
+                 state what you expect with --variation or [design] variation: a larger \
+                 variation favours positions close to the hidden edge)",
+                dt(v),
+                tidy(DEFAULT_VARIATION_PER_NOISE),
+                dt(s)
+            ));
+        }
+    }
+    Ok(used)
+}
+
+/// The temperature unit as printed: °C, °F or K.
+fn temp_symbol(u: Units) -> String {
+    match u.temperature.symbol() {
+        "K" => "K".to_string(),
+        s => format!("°{s}"),
+    }
+}
+
+/// A number with at most four significant digits and no trailing zeros.
+fn tidy(v: f64) -> String {
+    if v == 0.0 || !v.is_finite() {
+        return format!("{v}");
+    }
+    let mag = v.abs().log10().floor() as i32;
+    let prec = (3 - mag).clamp(0, 12) as usize;
+    let s = format!("{v:.prec$}");
+    if s.contains('.') {
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        s
+    }
 }
 
 /// Everything a design needs, computed once from a case: the model, the prior, the noise,
@@ -277,8 +430,10 @@ impl DesignSpace {
         let Some(variation_k) = ds.variation_k else {
             return Err(err(
                 "design.variation",
-                "[design] needs `variation`: how much the hidden profile is expected to vary \
-                 about its level, as a standard deviation in the case's temperature unit"
+                "the design needs the expected variation of the hidden profile about its \
+                 level, as a standard deviation in the case's temperature unit: give \
+                 --variation V or [design] variation (without a reading noise to derive it \
+                 from, it has no default)"
                     .into(),
             ));
         };
@@ -691,9 +846,9 @@ impl DesignSpace {
              about {:.3} {} with the smoothness of the {} prior; a real edge with sharper \
              features is resolved less well than predicted.",
             u.dtemp_from_k(self.noise_k),
-            u.temperature,
+            temp_symbol(u),
             u.dtemp_from_k(self.prior.variation_k),
-            u.temperature,
+            temp_symbol(u),
             crate::case::Smoothing::of_penalty_order(self.prior.order).name(),
         ));
         for v in self.violations(&layout) {
@@ -726,6 +881,7 @@ impl DesignSpace {
             search,
             against,
             cautions,
+            defaults: Vec::new(),
         })
     }
 

@@ -467,12 +467,27 @@ pub(crate) fn read_sensors_as(
                 Some(edge) => format!("exactly on an edge (the {edge} edge)"),
                 None => "outside the plate".to_string(),
             };
+            // a position that fits when read in another length unit: likely a unit mix-up
+            use crate::units::LengthUnit;
+            let fits_in = [LengthUnit::Millimetre, LengthUnit::Inch, LengthUnit::Metre]
+                .into_iter()
+                .filter(|u| *u != units.length)
+                .find(|u| shape.contains_strictly(Point::new(u.metres() * x, u.metres() * y)));
+            let hint = match (on_edge, fits_in) {
+                (None, Some(u)) => format!(
+                    "; it would lie inside if the file were in {}: a unit mistake is the likely \
+                     cause (the case's length_unit in plate.toml is {l}); convert the positions \
+                     or correct length_unit",
+                    u.symbol()
+                ),
+                _ => String::new(),
+            };
             return Err(table.error(
                 row.line,
                 if x_bad { "x" } else { "y" },
                 format!(
                     "sensor `{id}` at ({x}, {y}) {l} is {where_}; a sensor must lie strictly \
-                     inside the plate ({extent})"
+                     inside the plate ({extent}){hint}"
                 ),
             ));
         }
@@ -591,8 +606,9 @@ pub(crate) fn read_readings(
                 row.line,
                 "sensor",
                 format!(
-                    "a reading for `{id}`, which is not in {}; check the id or add the sensor",
-                    case.files.sensors.display()
+                    "a reading for `{id}`, which is not in {}{}; check the id or add the sensor",
+                    case.files.sensors.display(),
+                    super::suggest::did_you_mean(id, case.sensors.iter().map(|s| s.id.as_str()))
                 ),
             ));
         };
@@ -792,8 +808,13 @@ fn build_profile(
             format!(
                 "the {edge} edge's profile {what}: it covers {first} to {last} {l} but the edge \
                  runs from 0 to {} {l}; give rows at both ends of the edge (positions are \
-                 measured along the edge, in {l})",
-                tidy(len)
+                 measured along the edge, in {})",
+                tidy(len),
+                if l == crate::units::LengthUnit::Inch {
+                    "inches"
+                } else {
+                    l.symbol()
+                }
             )
         };
         if first.abs() <= tol {
@@ -871,6 +892,25 @@ mod tests {
         assert_eq!(s[1].sigma_k, None);
         assert_eq!(s[0].line, 3);
         assert_eq!(s[1].line, 6);
+    }
+
+    /// Positions written in mm in an inch case (150 mm × 60 mm is 5.9 in × 2.36 in): the
+    /// message names the unit mix-up; a position outside in every unit does not.
+    #[test]
+    fn sensors_in_the_wrong_length_unit_are_called_a_unit_mistake() {
+        let d = tempfile::tempdir().unwrap();
+        let inch = Units {
+            length: LengthUnit::Inch,
+            temperature: TemperatureUnit::Celsius,
+        };
+        let p = file(&d, "s.csv", "sensor,x,y\nA,2,1\nB,120,20\n");
+        let e = read_sensors(&p, &inch, &rect()).unwrap_err().to_string();
+        assert!(e.contains("line 3"), "{e}");
+        assert!(e.contains("if the file were in mm"), "{e}");
+        assert!(e.contains("unit mistake"), "{e}");
+        let p = file(&d, "t.csv", "sensor,x,y\nA,-5,1\n");
+        let e = read_sensors(&p, &inch, &rect()).unwrap_err().to_string();
+        assert!(!e.contains("unit mistake"), "{e}");
     }
 
     #[test]

@@ -23,6 +23,7 @@ pub mod logger;
 pub mod output;
 mod plate_file;
 mod spans;
+pub mod suggest;
 pub mod times;
 
 pub use case::{load_case, load_readings, load_readings_as, read_truth_profiles};

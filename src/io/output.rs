@@ -197,7 +197,7 @@ pub fn check_output_names(
             Some("option.out"),
             format!(
                 "{what} {}, an input; inputs are never overwritten, so choose another output \
-                 directory (the default is ./edgetherm-out)",
+                 directory (--out DIR)",
                 input.display()
             ),
         )

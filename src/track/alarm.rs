@@ -123,6 +123,16 @@ impl AlarmTracker {
         }
     }
 
+    /// The episode open now, if any.
+    pub fn current(&self) -> Option<&Episode> {
+        self.current.as_ref()
+    }
+
+    /// The episodes closed so far, oldest first.
+    pub fn closed(&self) -> &[Episode] {
+        &self.closed
+    }
+
     /// Whether an episode opened on the last update.
     pub fn just_opened(&self) -> bool {
         self.current.is_some() && self.since_start == 1

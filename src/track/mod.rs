@@ -640,6 +640,16 @@ impl Tracker {
         &self.case
     }
 
+    /// The alarm episode open now, if any (`--follow` prints its start as it happens).
+    pub fn open_alarm(&self) -> Option<&alarm::Episode> {
+        self.alarms.current()
+    }
+
+    /// The alarm episodes closed so far, oldest first.
+    pub fn closed_alarms(&self) -> &[alarm::Episode] {
+        self.alarms.closed()
+    }
+
     /// Whether any alarm episode has started.
     pub fn any_alarm(&self) -> bool {
         self.alarms.any()

@@ -807,12 +807,18 @@ fn profile_file_missing() {
 
 #[test]
 fn missing_files() {
-    for name in ["plate.toml", "sensors.csv"] {
+    // the message says what is missing and how to supply it, not a bare "No such file"
+    for (name, fix) in [
+        ("plate.toml", "--plate FILE"),
+        ("sensors.csv", "--sensors FILE"),
+    ] {
         let dir = case(&[(name, None)]);
-        assert_invalid(&dir, name, None, None, "No such file");
+        assert_invalid(&dir, name, None, None, "not found");
+        assert_invalid(&dir, name, None, None, fix);
     }
     let (code, _, err) = check(Path::new("/nonexistent/edgetherm-case"), &[]);
     assert_eq!(code, 2, "{err}");
+    assert!(err.contains("the case folder does not exist"), "{err}");
 }
 
 #[test]

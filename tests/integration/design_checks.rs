@@ -348,3 +348,77 @@ fn designed_layout_beats_the_uniform_grid_through_estimate_with_its_default_rule
     );
     assert!(e_ours < e_grid, "designed {e_ours} vs grid {e_grid}");
 }
+
+/// A plate file with no `[design]` section: every setting takes its default
+/// (`edgetherm::design::apply_defaults`), the defaults are reported, and the designed layout
+/// still beats a uniform grid of the same size, both by the predicted criterion and by the
+/// Monte Carlo error over prior draws (common random numbers, as above). The candidate grid
+/// is coarsened to 2 mm to keep the test short; the CLI uses the default grid.
+#[test]
+fn without_a_design_section_the_defaults_still_beat_a_uniform_grid() {
+    let mut case = sample();
+    case.design = edgetherm::case::DesignSettings::default();
+    let used = edgetherm::design::apply_defaults(&mut case, None).unwrap();
+    let text = used.join("\n");
+    for what in [
+        "no [design] section",
+        "edges 1.4 mm",
+        "sensors 2.8 mm",
+        "1.5 °C",
+    ] {
+        assert!(
+            text.contains(what),
+            "{what} missing from the defaults: {text}"
+        );
+    }
+    assert!((case.design.edge_distance_m - 0.0014).abs() < 1e-12);
+    assert!((case.design.sensor_spacing_m - 0.0028).abs() < 1e-12);
+    assert_eq!(case.design.variation_k, Some(1.5));
+    case.design.candidates = edgetherm::case::CandidateSource::Grid(Some(0.002));
+    let space = DesignSpace::new(&case, None, None).unwrap();
+    let k = 8;
+    let ours = designed(&space, k);
+    let cands = space.candidates();
+    let grid: Vec<LayoutSensor> = uniform_layout(space.constraints(), cands, k)
+        .unwrap()
+        .iter()
+        .map(|&i| LayoutSensor {
+            id: format!("C{i}"),
+            position: cands[i],
+            sigma_k: None,
+            fixed: false,
+        })
+        .collect();
+    assert!(space.violations(&ours).is_empty());
+    assert!(space.violations(&grid).is_empty());
+    let (p_ours, p_grid) = (
+        space.evaluate(&ours).unwrap().edge_mean_variance,
+        space.evaluate(&grid).unwrap().edge_mean_variance,
+    );
+    let draws = 200;
+    let mut rng = ChaCha8Rng::seed_from_u64(13);
+    let truths: Vec<DVector<f64>> = (0..draws)
+        .map(|_| prior_draw(&space, LEVEL_K, || StandardNormal.sample(&mut rng)))
+        .collect();
+    let noise: Vec<Vec<f64>> = (0..draws)
+        .map(|_| (0..k).map(|_| StandardNormal.sample(&mut rng)).collect())
+        .collect();
+    let e_ours = monte_carlo_error(&space, &ours, &truths, &noise);
+    let e_grid = monte_carlo_error(&space, &grid, &truths, &noise);
+    println!(
+        "no [design] section: predicted RMS sd designed {:.4} K, grid {:.4} K; Monte Carlo \
+         RMS error designed {:.4} K, grid {:.4} K",
+        p_ours.sqrt(),
+        p_grid.sqrt(),
+        e_ours.sqrt(),
+        e_grid.sqrt()
+    );
+    assert!(
+        p_ours < p_grid,
+        "predicted: designed {p_ours} vs grid {p_grid}"
+    );
+    assert!(
+        e_ours < e_grid,
+        "Monte Carlo: designed {e_ours} vs grid {e_grid}"
+    );
+}

@@ -241,11 +241,6 @@ fn impossible_constraints_are_input_errors() {
             "could place only 2 new sensors",
         ),
         (
-            "[design]\ncandidate_spacing = 2\n",
-            vec!["--count", "3"],
-            "needs `variation`",
-        ),
-        (
             "[design]\nvariation = 4\nedge_distance = 14\n",
             vec!["--count", "3"],
             "no room",
@@ -270,7 +265,6 @@ fn impossible_constraints_are_input_errors() {
             vec!["--count", "0"],
             "at least one sensor",
         ),
-        ("", vec!["--count", "3"], "no [design] section"),
     ];
     for (section, args, gist) in cases {
         let dir = tempfile::tempdir().unwrap();
@@ -337,4 +331,89 @@ fn refuses_to_overwrite_an_input_and_needs_a_count() {
     design(&sample(), dir.path(), &[])
         .code(2)
         .stderr(predicate::str::contains("--count"));
+}
+
+/// No `[design]` section: the design runs with its documented defaults and says which were
+/// used, in the text, in `design.json` and on stdout's JSON.
+#[test]
+fn no_design_section_runs_on_defaults_and_says_which() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = tempfile::tempdir().unwrap();
+    case_with_design(dir.path(), "");
+    let output = design(dir.path(), out.path(), &["--count", "4"])
+        .success()
+        .get_output()
+        .stdout
+        .clone();
+    let text = String::from_utf8_lossy(&output);
+    assert!(text.contains("Defaults used"), "{text}");
+    assert!(text.contains("no [design] section"), "{text}");
+    assert!(text.contains("edges 1.4 mm"), "{text}");
+    assert!(text.contains("10 times the reading noise"), "{text}");
+    let json: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.path().join("design.json")).unwrap()).unwrap();
+    assert_eq!(json["defaults_used"].as_array().unwrap().len(), 4, "{json}");
+    assert_eq!(rows(&out.path().join("layout.csv")).len(), 4);
+    // a stated variation replaces the default, and is not listed as one
+    let out2 = tempfile::tempdir().unwrap();
+    let output = design(
+        dir.path(),
+        out2.path(),
+        &["--count", "4", "--variation", "4"],
+    )
+    .success()
+    .get_output()
+    .stdout
+    .clone();
+    let text = String::from_utf8_lossy(&output);
+    assert!(!text.contains("times the reading noise"), "{text}");
+    assert!(text.contains("by about 4.000 °C"), "{text}");
+}
+
+/// Without a reading noise (no `[noise]`, no `[design]`): an assumed noise of 0.5 K, said to
+/// be assumed, and a variation of ten times it; `--variation` replaces the latter.
+#[test]
+fn no_noise_stated_runs_on_an_assumed_noise_and_says_so() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = tempfile::tempdir().unwrap();
+    case_with_design(dir.path(), "");
+    let plate = fs::read_to_string(dir.path().join("plate.toml")).unwrap();
+    let plate = plate.replace("[noise]\nsigma = 0.15", "");
+    assert!(!plate.contains("[noise]"), "{plate}");
+    fs::write(dir.path().join("plate.toml"), plate).unwrap();
+    design(dir.path(), out.path(), &["--count", "3"])
+        .success()
+        .stdout(predicate::str::contains(
+            "reading noise 0.5 °C (nothing states it",
+        ))
+        .stdout(predicate::str::contains("hidden profile 5 °C (10 times"));
+}
+
+/// `--against` a file that is also called `layout.csv`: it is named by its path, so the two
+/// layouts of the comparison do not carry the same label.
+#[test]
+fn against_a_file_of_the_same_name_is_named_by_its_path() {
+    let dir = tempfile::tempdir().unwrap();
+    let (a, b) = (dir.path().join("a"), dir.path().join("b"));
+    for d in [&a, &b] {
+        fs::create_dir(d).unwrap();
+    }
+    fs::copy(sample().join("sensors.csv"), a.join("layout.csv")).unwrap();
+    fs::copy(sample().join("sensors.csv"), b.join("layout.csv")).unwrap();
+    let out = dir.path().join("out");
+    design(
+        &sample(),
+        &out,
+        &[
+            "--evaluate",
+            a.join("layout.csv").to_str().unwrap(),
+            "--against",
+            b.join("layout.csv").to_str().unwrap(),
+        ],
+    )
+    .success();
+    let json: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(out.join("design.json")).unwrap()).unwrap();
+    let name = json["against"]["name"].as_str().unwrap();
+    assert_eq!(name, b.join("layout.csv").display().to_string());
 }

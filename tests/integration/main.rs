@@ -20,6 +20,7 @@ mod design_search;
 mod dialects;
 mod estimate_pipeline;
 mod finite_answers;
+mod first_hour;
 mod forward_closed_forms;
 mod forward_fem_reference;
 mod forward_properties;

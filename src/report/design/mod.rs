@@ -132,6 +132,7 @@ pub fn design_json(r: &DesignResult) -> Value {
         "units": {"length": r.units.length.symbol(), "temperature": r.units.temperature.symbol()},
         "version": env!("CARGO_PKG_VERSION"),
         "cautions": r.cautions,
+        "defaults_used": r.defaults,
     })
 }
 
@@ -172,6 +173,20 @@ pub fn design_text(r: &DesignResult) -> String {
         r.criterion.describe()
     );
     out.push('\n');
+    let _ = writeln!(
+        out,
+        "Units: inputs read in {} and {} (plate.toml: length_unit, temperature_unit).",
+        lu,
+        u.temp_symbol()
+    );
+    out.push('\n');
+    if !r.defaults.is_empty() {
+        let _ = writeln!(out, "Defaults used (not stated in the case):");
+        for d in &r.defaults {
+            let _ = writeln!(out, "  - {d}");
+        }
+        out.push('\n');
+    }
     if let Some(s) = &r.search {
         let _ = writeln!(
             out,

@@ -196,8 +196,9 @@ fn cards_html(o: &mut String, r: &EstimateResult) {
     let p = p_value_text(r);
     let _ = writeln!(
         o,
-        "<div class=\"card\"><h3>Fit</h3><p>chi-square {} on {} degrees of freedom, p = {}</p>\
-         <p>strength {} by {}, {} effective parameters</p></div>",
+        "<div class=\"card\"><h3>Fit</h3><p><strong>{}</strong></p><p>chi-square {} on {} \
+         degrees of freedom, p = {}</p><p>strength {} by {}, {} effective parameters</p></div>",
+        esc(fit_verdict(r)),
         fixed(r.fit.chi_square, 2),
         fixed(r.fit.dof, 1),
         esc(&p),
@@ -208,11 +209,31 @@ fn cards_html(o: &mut String, r: &EstimateResult) {
     o.push_str("</div>\n");
 }
 
+/// The fit in plain words, for the fit card.
+fn fit_verdict(r: &EstimateResult) -> &'static str {
+    match r.fit.p_value {
+        _ if r.fit.dof < super::summary::MIN_CHECKING_DOF => {
+            "The readings cannot check the model: too few readings for the smoothness chosen \
+             (see the cautions)."
+        }
+        Some(p) if p < 0.01 => {
+            "The readings scatter more than their stated uncertainty explains: the model, an \
+             edge condition or sigma is doubtful."
+        }
+        Some(p) if p > 0.99 => {
+            "The readings scatter less than their stated uncertainty suggests: sigma may be \
+             stated too large."
+        }
+        Some(_) => "The readings agree with the model within their uncertainty.",
+        None => "No check of the fit is available.",
+    }
+}
+
 /// The two pictures, inlined, with their captions (and the strict bounds' block between them).
 fn figures_html(o: &mut String, r: &EstimateResult, profile_svg: &str, field_svg: &str) {
     let conf = percent(r.confidence);
     o.push_str("<h2>Edge profile</h2>\n<figure>\n");
-    o.push_str(strip_xml_declaration(profile_svg));
+    o.push_str(&inline_svg(profile_svg));
     let _ = writeln!(
         o,
         "<figcaption>Reconstructed temperature along each unknown edge: shaded, the {conf} \
@@ -226,7 +247,7 @@ fn figures_html(o: &mut String, r: &EstimateResult, profile_svg: &str, field_svg
     );
     o.push_str(&super::bounds::bounds_html(r));
     o.push_str("<h2>Temperature field</h2>\n<figure>\n");
-    o.push_str(strip_xml_declaration(field_svg));
+    o.push_str(&inline_svg(field_svg));
     o.push_str(
         "<figcaption>Estimated steady temperature over the plate with isotherms; the \
          pointwise bands of every grid point are in <code>field.csv</code>.</figcaption>\n\
@@ -503,6 +524,24 @@ fn case_html(o: &mut String, r: &EstimateResult) {
         let _ = writeln!(o, "<dt>{k}</dt><dd>{v}</dd>");
     }
     o.push_str("</dl>\n");
+}
+
+/// An SVG to inline in the report: without its XML declaration and without the short safety
+/// note under the plot (the page states the caution once, in full, at the top; the SVG files
+/// keep their note, since an image can travel without its report).
+fn inline_svg(svg: &str) -> String {
+    let s = strip_xml_declaration(svg);
+    let note = crate::report::draw::PLOT_SAFETY_NOTE;
+    match s.find(note) {
+        Some(k) => {
+            let start = s[..k].rfind("<text").unwrap_or(k);
+            let end = s[k..]
+                .find("</text>")
+                .map_or(k + note.len(), |e| k + e + "</text>".len());
+            format!("{}{}", &s[..start], &s[end..])
+        }
+        None => s.to_string(),
+    }
 }
 
 /// An SVG document without its XML declaration, ready to inline in HTML.

@@ -27,13 +27,42 @@ fn is_safety_caution(c: &str) -> bool {
 /// wording of it is replaced by [`SAFETY_CAUTION`]).
 pub fn cautions(r: &EstimateResult) -> Vec<String> {
     let mut out: Vec<String> = Vec::new();
-    for c in r.cautions.iter().chain(&super::bounds::bounds_cautions(r)) {
+    let untested = untestable_fit(r);
+    for c in r
+        .cautions
+        .iter()
+        .chain(&super::bounds::bounds_cautions(r))
+        .chain(&untested)
+    {
         if !is_safety_caution(c) && !out.contains(c) {
             out.push(c.clone());
         }
     }
     out.push(SAFETY_CAUTION.to_string());
     out
+}
+
+/// Below this many degrees of freedom of the residuals (readings less effective parameters)
+/// the chi-square of the fit has nearly nothing to test: the readings cannot check the model.
+pub const MIN_CHECKING_DOF: f64 = 1.0;
+
+/// The caution for a fit that leaves under [`MIN_CHECKING_DOF`] degrees of freedom: the
+/// smoothness chosen lets the model follow every reading, so the readings cannot check it.
+pub(crate) fn untestable_fit(r: &EstimateResult) -> Option<String> {
+    (r.fit.dof < MIN_CHECKING_DOF).then(|| {
+        format!(
+            "The readings cannot check the model: {} readings against {} effective parameters \
+             leave {} degrees of freedom, so the fitted profile passes through almost every \
+             reading and the chi-square and p-value say next to nothing (too few sensors for \
+             the smoothness the data chose). More sensors, a repeat set of readings, or a \
+             stated stiffer smoothing ([fit] smoothing = \"curvature\" with a fixed \
+             strength) would leave room for a check; until then the bands rest on the model and \
+             the stated sigma, which these readings cannot confirm.",
+            r.fit.readings_used,
+            fixed(r.strength.effective_parameters, 2),
+            fixed(r.fit.dof, 2)
+        )
+    })
 }
 
 /// The sensors left out of the fit or marked as suspect: `(index, reason)`.
@@ -370,6 +399,16 @@ pub fn text_summary(r: &EstimateResult) -> String {
         r.seed
     );
     out.push('\n');
+    let u = CaseUnits::new(r.units);
+    line(
+        &mut out,
+        "Units",
+        &format!(
+            "inputs read in {} and {} (plate.toml: length_unit, temperature_unit)",
+            u.len_symbol(),
+            u.temp_symbol()
+        ),
+    );
     for how in &r.read_as {
         line(
             &mut out,
@@ -534,6 +573,9 @@ fn fit_text(r: &EstimateResult, out: &mut String) {
         |p| format!("p = {}", significant_text(p, 2)),
     );
     let quality = match r.fit.p_value {
+        _ if r.fit.dof < MIN_CHECKING_DOF => {
+            " - under one degree of freedom: the readings cannot check the model (see Cautions)"
+        }
         Some(p) if p < 0.01 => " - the readings scatter more than sigma explains",
         Some(p) if p > 0.99 => " - the readings scatter less than sigma suggests",
         _ => "",

@@ -321,6 +321,12 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
     let mut out = String::new();
     let _ = writeln!(
         out,
+        "Units: inputs read in {} and {} (plate.toml: length_unit, temperature_unit).",
+        u.len_symbol(),
+        u.temp_symbol()
+    );
+    let _ = writeln!(
+        out,
         "Tracked {} rows ({} fitted, {} skipped) from {} to {}.",
         s.counts.rows,
         s.counts.fitted,
@@ -440,7 +446,7 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
             };
             let _ = writeln!(
                 out,
-                "  {} {} from {} to {} ({} rows, left out of {}){kept}",
+                "  {} {} from {} to {} ({} rows; left out of the fit in {} of them){kept}",
                 case.sensors[e.sensor].id,
                 e.problem.name(),
                 e.start,

@@ -110,11 +110,14 @@ fn draw(root: &Area<'_>, case: &Case, s: &TrackSummary, bins: &[Bin]) -> DrawRes
     text(
         root,
         &format!(
-            "{} rows from {} to {}  ·  {conf} % {band_word} interval  ·  {} rows per point",
+            "{} rows from {} to {}  ·  {conf} % {band_word} interval  ·  {}",
             s.counts.rows,
             s.first_time.as_deref().unwrap_or("-"),
             s.last_time.as_deref().unwrap_or("-"),
-            bins.iter().map(|b| b.fitted + b.skipped).max().unwrap_or(1)
+            match bins.iter().map(|b| b.fitted + b.skipped).max().unwrap_or(1) {
+                1 => "one row per point".to_string(),
+                n => format!("up to {n} rows per point"),
+            }
         ),
         16.0,
         44.0,
