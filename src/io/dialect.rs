@@ -287,6 +287,20 @@ pub(crate) fn detect(
     } else {
         ""
     };
+    if lines.is_empty() && prefix.len() > usize::from(bom) * 3 {
+        // bytes, but no complete line in the whole prefix
+        return Err(Error::invalid_at(
+            path,
+            Some(1),
+            None,
+            format!(
+                "no line ends in the first {} KB: this is not a text table read line by line \
+                 (binary data, a device, or one enormous line); it must start with the header {}",
+                PREFIX_BYTES / 1024,
+                expect.header
+            ),
+        ));
+    }
     let first_text = lines.iter().find(|l| !blank(&l.1));
     let Some((first_idx, _)) = lines.iter().enumerate().find(|(_, l)| !blank(&l.1)) else {
         return Err(Error::invalid_at(

@@ -28,6 +28,9 @@ pub struct CheckReport {
     readings: Option<ReadingsReport>,
     fit: FitReport,
     noise: NoiseReport,
+    /// How voltage readings are converted to temperatures, when they are voltages.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    readings_conversion: Option<String>,
     uncertainty: UncertaintyReport,
     /// The forward model: filled in by [`forward_model`].
     #[serde(skip_serializing_if = "Option::is_none")]
@@ -116,8 +119,9 @@ struct FitReport {
 
 #[derive(Debug, Serialize)]
 struct NoiseReport {
-    /// `sigma`, `tolerance` or `unstated`.
+    /// `sigma`, `sigma-emf`, `tolerance` or `unstated`.
     source: &'static str,
+    /// The stated sigma: in the case's temperature unit, or in mV for `sigma-emf`.
     sigma: Option<f64>,
     tolerance_class: Option<&'static str>,
     thermocouple_type: Option<&'static str>,
@@ -283,7 +287,9 @@ impl CheckReport {
         });
         let (source, sigma, class, tc) = match case.noise {
             NoiseSpec::Sigma(k) => ("sigma", Some(u.dtemp_from_k(k)), None, None),
-            NoiseSpec::Emf { tc_type, .. } => ("sigma-emf", None, None, Some(tc_type.name())),
+            NoiseSpec::Emf { sigma_mv, tc_type } => {
+                ("sigma-emf", Some(sigma_mv), None, Some(tc_type.name()))
+            }
             NoiseSpec::Tolerance { class, tc_type } => {
                 ("tolerance", None, Some(class.name()), Some(tc_type.name()))
             }
@@ -330,6 +336,7 @@ impl CheckReport {
                 thermocouple_type: tc,
                 sensors_with_own_sigma: case.sensors.iter().filter(|s| s.sigma_k.is_some()).count(),
             },
+            readings_conversion: case.conversion().map(|c| c.describe(&case.units)),
             uncertainty: UncertaintyReport {
                 replicates: case.uncertainty.replicates,
                 confidence: case.uncertainty.confidence,
@@ -511,6 +518,12 @@ impl CheckReport {
         let n = &self.noise;
         let noise = match (n.source, n.sigma) {
             ("sigma", Some(sg)) => format!("sigma {} {tu} for every reading", num(sg)),
+            ("sigma-emf", Some(mv)) => format!(
+                "sigma {} mV for every voltage reading, in temperature through the slope of \
+                 the type {} reference function",
+                num(mv),
+                n.thermocouple_type.unwrap_or("?")
+            ),
             ("tolerance", _) => format!(
                 "thermocouple tolerance class {}, type {}",
                 n.tolerance_class.unwrap_or("?"),
@@ -527,6 +540,9 @@ impl CheckReport {
             String::new()
         };
         let _ = writeln!(s, "Noise: {noise}{own}");
+        if let Some(c) = &self.readings_conversion {
+            let _ = writeln!(s, "Readings: {c}");
+        }
         let un = &self.uncertainty;
         let pos = un.position_sigma.map_or(String::new(), |p| {
             format!(", position sigma {} {lu}", num(p))
