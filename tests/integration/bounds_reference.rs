@@ -31,21 +31,25 @@ fn floats(v: &Value) -> Vec<f64> {
         .collect()
 }
 
-#[test]
-fn programs_match_an_independent_solver() {
-    let f = fixture();
-    let nodes = f["nodes"].as_u64().expect("nodes") as usize;
-    let set = AdmissibleSet::from_matrix(
+/// The fixture's set: one hidden edge given by its matrices.
+fn fixture_set(f: &Value) -> AdmissibleSet {
+    AdmissibleSet::from_matrix(
         Edge::Bottom,
         f["length_m"].as_f64().expect("length"),
-        nodes,
+        f["nodes"].as_u64().expect("nodes") as usize,
         floats(&f["h"]),
         floats(&f["offset"]),
         floats(&f["readings"]),
         floats(&f["sigma"]),
         floats(&f["rho_m"]),
     )
-    .expect("a consistent set");
+    .expect("a consistent set")
+}
+
+#[test]
+fn programs_match_an_independent_solver() {
+    let f = fixture();
+    let set = fixture_set(&f);
     let m = set.sensor_count();
     let confidence = f["confidence"].as_f64().expect("confidence");
     let q = ChiSquared::new(m as f64)
@@ -102,18 +106,7 @@ fn programs_match_an_independent_solver() {
 #[test]
 fn dual_node_bounds_match_the_independent_solver() {
     let f = fixture();
-    let nodes = f["nodes"].as_u64().expect("nodes") as usize;
-    let set = AdmissibleSet::from_matrix(
-        Edge::Bottom,
-        f["length_m"].as_f64().expect("length"),
-        nodes,
-        floats(&f["h"]),
-        floats(&f["offset"]),
-        floats(&f["readings"]),
-        floats(&f["sigma"]),
-        floats(&f["rho_m"]),
-    )
-    .expect("a consistent set");
+    let set = fixture_set(&f);
     let radius = f["chi2_quantile"].as_f64().expect("quantile").sqrt();
     let dual = DualData::new(&set);
     let mut checked = 0;
@@ -235,17 +228,7 @@ fn one_dual_point_bounds_its_whole_edge() {
     let f = fixture();
     let nodes = f["nodes"].as_u64().expect("nodes") as usize;
     let length = f["length_m"].as_f64().expect("length");
-    let set = AdmissibleSet::from_matrix(
-        Edge::Bottom,
-        length,
-        nodes,
-        floats(&f["h"]),
-        floats(&f["offset"]),
-        floats(&f["readings"]),
-        floats(&f["sigma"]),
-        floats(&f["rho_m"]),
-    )
-    .expect("a consistent set");
+    let set = fixture_set(&f);
     let radius = f["chi2_quantile"].as_f64().expect("quantile").sqrt();
     let dual = DualData::new(&set);
     let gradient = 800.0;
