@@ -369,10 +369,9 @@ fn not_nan(v: f64) -> f64 {
 mod tests {
     use super::*;
     use crate::inverse::Problem;
-    use nalgebra::{DMatrix, DVector};
+    use nalgebra::DVector;
 
-    /// An invented ill-posed problem (constant column + decaying cosine columns, the shape of
-    /// the strength module's test problem) and `n` invented data vectors drifting from row to
+    /// The strength module's invented ill-posed problem and `n` invented data vectors drifting from row to
     /// row, as a logger's rows do.
     fn problem_and_rows(
         m: usize,
@@ -380,27 +379,7 @@ mod tests {
         sigma_stated: bool,
         n: usize,
     ) -> (Decomposition, Vec<DVector<f64>>) {
-        let mut a = DMatrix::zeros(m, p);
-        let mut penalty = DVector::zeros(p);
-        for i in 0..m {
-            let x = (i as f64 + 0.5) / m as f64;
-            let y = 0.15 + 0.04 * ((i * 3) % 5) as f64;
-            a[(i, 0)] = 1.0;
-            for j in 1..p {
-                let k = j as f64 * std::f64::consts::PI;
-                a[(i, j)] = (k * x).cos() * (-k * y).exp();
-            }
-        }
-        for j in 1..p {
-            penalty[j] = (j as f64 * std::f64::consts::PI).powi(2);
-        }
-        let sigma = DVector::from_fn(m, |i, _| {
-            if sigma_stated {
-                0.1 * (1.0 + 0.3 * (i as f64 * 1.7).cos())
-            } else {
-                1.0
-            }
-        });
+        let (a, sigma, penalty) = crate::inverse::strength::fixture::matrices(m, p, sigma_stated);
         let rows = (0..n)
             .map(|r| {
                 let amp = 1.0 + 4.0 * (r as f64 * 0.05).sin().powi(2);

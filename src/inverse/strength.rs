@@ -690,15 +690,18 @@ fn discrepancy_root(
     (x, chi2(x), false)
 }
 
+/// The test problem shared by the strength and search tests.
 #[cfg(test)]
-#[allow(clippy::float_cmp)] // the checked values are exact by construction
-mod tests {
-    use super::*;
-    use crate::inverse::Problem;
+pub(crate) mod fixture {
     use nalgebra::{DMatrix, DVector};
 
-    /// An invented ill-posed problem: constant column + decaying cosine columns, σ unequal.
-    fn problem(m: usize, p: usize, sigma_stated: bool) -> Problem {
+    /// An invented ill-posed problem's matrix, σ and penalty: a constant column and decaying
+    /// cosine columns, σ unequal when stated (all 1 otherwise).
+    pub(crate) fn matrices(
+        m: usize,
+        p: usize,
+        sigma_stated: bool,
+    ) -> (DMatrix<f64>, DVector<f64>, DVector<f64>) {
         let mut a = DMatrix::zeros(m, p);
         let mut sigma = DVector::zeros(m);
         let mut penalty = DVector::zeros(p);
@@ -719,6 +722,20 @@ mod tests {
         for j in 1..p {
             penalty[j] = (j as f64 * std::f64::consts::PI).powi(2);
         }
+        (a, sigma, penalty)
+    }
+}
+
+#[cfg(test)]
+#[allow(clippy::float_cmp)] // the checked values are exact by construction
+mod tests {
+    use super::*;
+    use crate::inverse::Problem;
+    use nalgebra::{DMatrix, DVector};
+
+    /// An invented ill-posed problem: constant column + decaying cosine columns, σ unequal.
+    fn problem(m: usize, p: usize, sigma_stated: bool) -> Problem {
+        let (a, sigma, penalty) = fixture::matrices(m, p, sigma_stated);
         let truth = DVector::from_iterator(p, (0..p).map(|j| 5.0 / (1.0 + j as f64).powi(2)));
         let mut d = &a * truth;
         for i in 0..m {
