@@ -14,6 +14,7 @@
 //! | reading standard uncertainty (`sigma`, `--noise`) | 1e-6 K to 1000 K | a micro-kelvin is below any thermocouple's resolution (common practice); 1000 K is a fifth of the whole temperature range; within it the weighted residuals `(d − Ac)/σ` stay far from overflow and underflow |
 //! | plate size, sensor depth along a strip, candidate spacing, position uncertainty | 1 µm to 1 km | smaller is below machining tolerance, larger is not a plate (common practice); keeps lengths, positions and their ratios far from overflow |
 //! | conductivity | 1e-4 to 1e5 W/(m K) | still air is about 0.026 W/(m K) and diamond about 2000 W/(m K) (Incropera et al., appendix A; recalled from memory) |
+//! | heat transfer coefficient (`h`, `h_range`) | 1e-3 to 1e7 W/(m² K) | free convection in gases is about 2–25 W/(m² K) and boiling or condensation up to about 1e5 W/(m² K) (Incropera et al., Table 1.1; recalled from memory); outside the range `h/κ` over any plausible plate is either no exchange at all or a held temperature |
 //! | gradient limit (`max_gradient`) | 1e-9 K/m to 5e12 K/m | the whole temperature range over the smallest length, and a gradient too small to matter |
 //!
 //! Each check returns the value in SI units or a message for the caller to attach to a file,
@@ -37,6 +38,10 @@ pub const MAX_LENGTH_M: f64 = 1e3;
 pub const MIN_CONDUCTIVITY: f64 = 1e-4;
 /// Largest plausible conductivity, W/(m K).
 pub const MAX_CONDUCTIVITY: f64 = 1e5;
+/// Smallest plausible heat transfer coefficient, W/(m² K).
+pub const MIN_HEAT_TRANSFER: f64 = 1e-3;
+/// Largest plausible heat transfer coefficient, W/(m² K).
+pub const MAX_HEAT_TRANSFER: f64 = 1e7;
 /// Smallest plausible gradient limit, K/m.
 pub const MIN_GRADIENT_K_PER_M: f64 = 1e-9;
 /// Largest plausible gradient limit, K/m.
@@ -141,6 +146,22 @@ pub fn conductivity(k: f64) -> Result<f64, String> {
         "a conductivity of {} W/(m K) is outside the plausible range {MIN_CONDUCTIVITY:e} to \
          {MAX_CONDUCTIVITY:e} W/(m K)",
         short(k)
+    ))
+}
+
+/// A heat transfer coefficient in W/(m² K), checked against
+/// [`MIN_HEAT_TRANSFER`]..=[`MAX_HEAT_TRANSFER`].
+///
+/// # Errors
+/// A message giving the range.
+pub fn heat_transfer(h: f64) -> Result<f64, String> {
+    if h.is_finite() && (MIN_HEAT_TRANSFER..=MAX_HEAT_TRANSFER).contains(&h) {
+        return Ok(h);
+    }
+    Err(format!(
+        "a heat transfer coefficient of {} W/(m^2 K) is outside the plausible range \
+         {MIN_HEAT_TRANSFER:e} to {MAX_HEAT_TRANSFER:e} W/(m^2 K)",
+        short(h)
     ))
 }
 

@@ -489,11 +489,14 @@ pub fn bounds_under(
         input.min_temperature_k,
         input.max_temperature_k,
     );
-    // the peak's lower bound first: it also tells whether the set is empty
+    // the peak's lower bound first: it also tells whether the set is empty. When the conic
+    // solver stalls on it (it has, rarely, on near-degenerate draws), the highest node lower
+    // bound below stands in: max f ≥ f(s) ≥ lower(s) at every s, so it is still a strict
+    // bound on the lowest possible peak, only a looser one.
     let peak_low = match ctx.run(g, Objective::MinPeak) {
-        Outcome::Value(v) => v,
+        Outcome::Value(v) => Some(v),
         Outcome::Infeasible => return Ok(BoundsOutcome::Empty),
-        Outcome::Failed(reason) => return Ok(BoundsOutcome::Failed { reason }),
+        Outcome::Failed(_) => None,
     };
     let (upper_nodes, top, mut programs) = match peak_upper(
         &ctx,
@@ -516,7 +519,9 @@ pub fn bounds_under(
         .edges
         .iter()
         .enumerate()
-        .filter(|(_, edge)| positions_m.iter().any(|(x, _)| *x == edge.edge))
+        .filter(|(_, edge)| {
+            peak_low.is_none() || positions_m.iter().any(|(x, _)| *x == edge.edge)
+        })
         .flat_map(|(e, edge)| {
             spread(edge.positions_m.len(), options.envelope_points)
                 .into_iter()
@@ -537,11 +542,6 @@ pub fn bounds_under(
     let h_max = set.edges.iter().map(|e| e.spacing_m).fold(0.0, f64::max);
     let clip_hi = |t: f64| input.max_temperature_k.map_or(t, |m| t.min(m));
     let clip_lo = |t: f64| input.min_temperature_k.map_or(t, |m| t.max(m));
-    // max f ≥ max_j f(s_j) ≥ max_j v_j − G h / 3; max f ≤ max_s U(s) + G h / 3
-    let hottest = [
-        clip_lo(peak_low - g * h_max / 3.0),
-        clip_hi(top + g * h_max / 3.0),
-    ];
     let mut edges = Vec::new();
     for (e, edge) in set.edges.iter().enumerate() {
         let Some((_, pos)) = positions_m.iter().find(|(x, _)| *x == edge.edge) else {
@@ -569,6 +569,23 @@ pub fn bounds_under(
             upper_k: upper,
         });
     }
+    // max f ≥ max_j f(s_j) ≥ max_j v_j − G h / 3; max f ≤ max_s U(s) + G h / 3
+    let low = match peak_low {
+        Some(v) => clip_lo(v - g * h_max / 3.0),
+        None => set
+            .edges
+            .iter()
+            .enumerate()
+            .flat_map(|(e, edge)| {
+                let slack = g * edge.spacing_m / 3.0;
+                let lower = &lower_nodes;
+                edge.positions_m
+                    .iter()
+                    .map(move |&s| clip_lo(lower.at(set, g, e, s) - slack))
+            })
+            .fold(f64::NEG_INFINITY, f64::max),
+    };
+    let hottest = [low, clip_hi(top + g * h_max / 3.0)];
     if hottest.iter().any(|v| !v.is_finite())
         || edges
             .iter()

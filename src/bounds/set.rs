@@ -385,7 +385,7 @@ fn interior_hat_columns(
         .map(|n| {
             let half = 0.5 * series.wavenumber(n) * h;
             let sinc = if half == 0.0 { 1.0 } else { half.sin() / half };
-            h * sinc * sinc / series.basis.norm_sq(n)
+            h * sinc * sinc / series.norm_sq(n)
         })
         .collect();
     let weighted: Vec<f64> = (0..sensors.len())
@@ -402,7 +402,7 @@ fn interior_hat_columns(
         .par_iter()
         .map(|&s_j| {
             let mut phi = vec![0.0; used];
-            series.basis.values_into(s_j, &mut phi);
+            series.phi_into(s_j, &mut phi);
             (0..sensors.len())
                 .map(|i| {
                     weighted[i * used..(i + 1) * used]
@@ -470,9 +470,9 @@ fn quasi_interpolation_allowance(
         // φ_n at the fine points, divided by ‖φ_n‖².
         let mut phi = vec![0.0; fine.len() * n];
         for (k, &s) in fine.iter().enumerate() {
-            series.basis.values_into(s, &mut phi[k * n..(k + 1) * n]);
+            series.phi_into(s, &mut phi[k * n..(k + 1) * n]);
             for (t, v) in phi[k * n..(k + 1) * n].iter_mut().enumerate() {
-                *v /= series.basis.norm_sq(t);
+                *v /= series.norm_sq(t);
             }
         }
         let per_sensor: Vec<f64> = sensors

@@ -72,7 +72,7 @@ impl Prior {
                     if let (Some(series), Some(len)) =
                         (model.series_of(edge), shape.edge_length(edge))
                     {
-                        sum += series.basis.norm_sq(n) / (len * l[j] * l[j]);
+                        sum += series.norm_sq(n) / (len * l[j] * l[j]);
                     }
                 }
                 if !edges.contains(&edge) {

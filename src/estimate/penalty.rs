@@ -14,6 +14,12 @@
 //! and corner temperatures enter only through the linear lift: both are unpenalised (the null
 //! space of the penalty), for every order. For `p = 0` this makes the penalty shrink the
 //! profile toward its level rather than toward zero kelvin.
+//!
+//! Next to a convective edge the eigenfunctions meet a Robin condition, and the derivatives
+//! of different modes are then not exactly orthogonal (boundary terms `β φ_m φ_n` at the
+//! convective end). The diagonal weights `k_n^{2p} ‖φ_n‖²` are kept there as the smoothness
+//! prior: they are what the penalty means mode by mode, and the estimate does not need the
+//! penalty to be the exact derivative norm.
 
 use crate::forward::{ForwardModel, Parameter};
 use nalgebra::DVector;
@@ -26,10 +32,12 @@ pub fn penalty_weights(model: &ForwardModel, order: usize) -> DVector<f64> {
         model.parameter_count(),
         model.parameters().iter().map(|p| match *p {
             Parameter::Mode {
-                edge, wavenumber, ..
+                edge,
+                n,
+                wavenumber,
             } => {
                 let len = shape.edge_length(edge).unwrap_or(l_ref);
-                let norm_sq = if wavenumber == 0.0 { len } else { 0.5 * len };
+                let norm_sq = model.series_of(edge).map_or(0.5 * len, |s| s.norm_sq(n));
                 let mode = wavenumber * l_ref / std::f64::consts::PI;
                 if wavenumber == 0.0 {
                     // the level of the edge: never shrunk (toward 0 K it would be nonsense)

@@ -148,9 +148,8 @@ impl Kernels {
                 _ => None,
             })
             .unzip();
-        let basis = series.basis;
         let phi = DMatrix::from_fn(positions.len(), orders.len(), |i, k| {
-            basis.value(orders[k], positions[i]) / basis.norm_sq(orders[k])
+            series.phi(orders[k], positions[i]) / series.norm_sq(orders[k])
         });
         // (P[s₀] R) restricted to the edge's modes, one row per point
         let v = map.matrix.select_rows(points) * resolution;

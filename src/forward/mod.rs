@@ -33,12 +33,13 @@ pub mod base;
 pub mod basis;
 
 pub use base::{Base, Corner, CornerValue};
-pub use basis::{BasisKind, Decay, EdgeBasis, Series};
+pub use basis::{BasisKind, Decay, EdgeBasis, End, Series};
 
 use crate::error::{Error, Result};
 use crate::geometry::{Edge, EdgeCondition, Plate, Point};
 use nalgebra::{DMatrix, DVector};
 use serde::Serialize;
+use std::borrow::Cow;
 
 /// Series lengths.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -92,8 +93,12 @@ pub struct LinearMap {
 struct EdgeSeries {
     edge: Edge,
     series: Series,
-    /// Known edges: the Fourier coefficients of (data − B). Unknown edges: empty.
+    /// Known edges: the Fourier coefficients of (data − B); for a convective edge, of its
+    /// Robin data `T∞ − (B − B_d/β)` (the known corners' share). Unknown edges: empty.
     known: Vec<f64>,
+    /// Convective edges: per corner parameter `i` of the base, the coefficients its unit value
+    /// adds (through `−(B − B_d/β)`); the series' coefficients are `known + Σ c_i · these`.
+    corner_terms: Vec<(usize, Vec<f64>)>,
     /// Unknown edges: the index of the first mode's parameter.
     first_parameter: Option<usize>,
 }
@@ -107,11 +112,68 @@ pub struct ForwardModel {
     parameters: Vec<Parameter>,
 }
 
+/// `Σ a_i b_i` over the shorter of the two.
+fn dot(a: &[f64], b: &[f64]) -> f64 {
+    a.iter().zip(b).map(|(x, y)| x * y).sum()
+}
+
 /// A point closer than this fraction of the width to an edge lies on it.
 const ON_EDGE: f64 = 1e-12;
 
 /// Relative size below which trailing coefficients of a known edge are dropped.
 const NEGLIGIBLE_COEFFICIENT: f64 = 1e-15;
+
+/// How many leading coefficients matter: trailing ones below [`NEGLIGIBLE_COEFFICIENT`] of
+/// the largest (over all the given vectors) are dropped.
+fn significant_terms(vectors: &[&[f64]]) -> usize {
+    let scale = vectors
+        .iter()
+        .flat_map(|v| v.iter())
+        .fold(0.0_f64, |m, a| m.max(a.abs()));
+    vectors
+        .iter()
+        .map(|v| {
+            v.iter()
+                .rposition(|a| a.abs() > NEGLIGIBLE_COEFFICIENT * scale.max(1e-300))
+                .map_or(0, |i| i + 1)
+        })
+        .max()
+        .unwrap_or(0)
+}
+
+/// The condition `neighbour` imposes on the eigenfunctions of an edge it ends.
+fn end_of(plate: &Plate, neighbour: Edge) -> End {
+    match plate.condition(neighbour) {
+        Some(EdgeCondition::Insulated) => End::Insulated,
+        Some(EdgeCondition::Convective(_)) => match plate.convective_beta(neighbour) {
+            Some(beta) => End::Convective { beta },
+            // refused by `convective_beta` when the series is built; held is a placeholder
+            None => End::Held,
+        },
+        // the missing top of a strip: no series runs along a strip's side
+        None => End::Insulated,
+        Some(_) => End::Held,
+    }
+}
+
+/// `β = h/κ` of a convective edge, or an error when `h` is still unknown.
+fn convective_beta(plate: &Plate, edge: Edge) -> Result<f64> {
+    plate.convective_beta(edge).ok_or_else(|| {
+        Error::Internal(format!(
+            "the heat transfer coefficient of the {edge} edge must be fixed before a model is built"
+        ))
+    })
+}
+
+/// The inward unit normal of `edge`, `(x, y)`.
+fn inward_normal(edge: Edge) -> (f64, f64) {
+    match edge {
+        Edge::Bottom => (0.0, 1.0),
+        Edge::Top => (0.0, -1.0),
+        Edge::Left => (1.0, 0.0),
+        Edge::Right => (-1.0, 0.0),
+    }
+}
 
 impl ForwardModel {
     /// Build the model of `plate` with the given series lengths.
@@ -146,7 +208,7 @@ impl ForwardModel {
             let Some(condition) = plate.condition(edge) else {
                 continue;
             };
-            if !condition.is_dirichlet() {
+            if matches!(condition, EdgeCondition::Insulated) {
                 continue;
             }
             let Some(length) = shape.edge_length(edge) else {
@@ -154,8 +216,7 @@ impl ForwardModel {
                 continue;
             };
             let (start, end) = edge.neighbours();
-            let kind = BasisKind::from_ends(plate.is_dirichlet(start), plate.is_dirichlet(end));
-            let basis = EdgeBasis { kind, length };
+            let basis = EdgeBasis::new(end_of(plate, start), end_of(plate, end), length);
             let opposite = edge.opposite();
             let depth = match edge {
                 Edge::Bottom | Edge::Top => shape.height(),
@@ -164,6 +225,10 @@ impl ForwardModel {
             let decay = match (depth, plate.condition(opposite)) {
                 (None, _) | (_, None) => Decay::Unbounded,
                 (Some(depth), Some(c)) if c.is_dirichlet() => Decay::Dirichlet { depth },
+                (Some(depth), Some(EdgeCondition::Convective(_))) => Decay::Convective {
+                    depth,
+                    beta: convective_beta(plate, opposite)?,
+                },
                 (Some(depth), Some(_)) => Decay::Insulated { depth },
             };
             match condition {
@@ -178,6 +243,7 @@ impl ForwardModel {
                         edge,
                         series: s,
                         known: Vec::new(),
+                        corner_terms: Vec::new(),
                         first_parameter: Some(next_mode),
                     });
                     next_mode += options.unknown_terms;
@@ -193,17 +259,69 @@ impl ForwardModel {
                             (s0, s1, g0 - b0, g1 - b1)
                         })
                         .collect();
-                    let mut known = basis.project(&segments, options.known_terms);
-                    let scale = known.iter().fold(0.0_f64, |m, a| m.max(a.abs()));
-                    let keep = known
-                        .iter()
-                        .rposition(|a| a.abs() > NEGLIGIBLE_COEFFICIENT * scale.max(1e-300))
-                        .map_or(0, |i| i + 1);
+                    let full = Series::new(basis, decay, options.known_terms);
+                    let mut known = full.project(&segments);
+                    let keep = significant_terms(&[&known]);
                     known.truncate(keep);
                     series.push(EdgeSeries {
                         edge,
                         series: Series::new(basis, decay, keep),
                         known,
+                        corner_terms: Vec::new(),
+                        first_parameter: None,
+                    });
+                }
+                EdgeCondition::Convective(conv) => {
+                    let beta = convective_beta(plate, edge)?;
+                    let full =
+                        Series::with_own_condition(basis, decay, options.known_terms, Some(beta));
+                    // Robin data g = T∞ − (B − B_d/β): linear along the edge, since B and its
+                    // normal derivative are (the base is at most bilinear).
+                    let robin_weights = |s: f64| {
+                        let p = shape.point_on(edge, s);
+                        let w = base.weights(p);
+                        let gw = base.gradient_weights(p);
+                        let n = inward_normal(edge);
+                        let mut r = [0.0; 4];
+                        for c in 0..4 {
+                            r[c] = w[c] - (gw[c].0 * n.0 + gw[c].1 * n.1) / beta;
+                        }
+                        r
+                    };
+                    let (r0, r1) = (robin_weights(0.0), robin_weights(length));
+                    let mut known_ends = (conv.ambient_k, conv.ambient_k);
+                    let mut corner_ends = Vec::new();
+                    for (c, v) in base.values().iter().enumerate() {
+                        match *v {
+                            CornerValue::Unused => {}
+                            CornerValue::Known(t) => {
+                                known_ends.0 -= r0[c] * t;
+                                known_ends.1 -= r1[c] * t;
+                            }
+                            CornerValue::Parameter(i) => {
+                                if r0[c] != 0.0 || r1[c] != 0.0 {
+                                    corner_ends.push((i, -r0[c], -r1[c]));
+                                }
+                            }
+                        }
+                    }
+                    let mut known = full.project(&[(0.0, length, known_ends.0, known_ends.1)]);
+                    let mut corner_terms: Vec<(usize, Vec<f64>)> = corner_ends
+                        .into_iter()
+                        .map(|(i, g0, g1)| (i, full.project(&[(0.0, length, g0, g1)])))
+                        .collect();
+                    let mut all: Vec<&[f64]> = vec![&known];
+                    all.extend(corner_terms.iter().map(|(_, a)| a.as_slice()));
+                    let keep = significant_terms(&all);
+                    known.truncate(keep);
+                    for (_, a) in &mut corner_terms {
+                        a.truncate(keep);
+                    }
+                    series.push(EdgeSeries {
+                        edge,
+                        series: Series::with_own_condition(basis, decay, keep, Some(beta)),
+                        known,
+                        corner_terms,
                         first_parameter: None,
                     });
                 }
@@ -276,11 +394,10 @@ impl ForwardModel {
             match es.first_parameter {
                 Some(first) => row[first..first + n].copy_from_slice(&scratch[..n]),
                 None => {
-                    offset += scratch[..used]
-                        .iter()
-                        .zip(&es.known)
-                        .map(|(m, a)| m * a)
-                        .sum::<f64>();
+                    offset += dot(&scratch[..used], &es.known);
+                    for (i, a) in &es.corner_terms {
+                        row[*i] += dot(&scratch[..used], a);
+                    }
                 }
             }
         }
@@ -330,15 +447,7 @@ impl ForwardModel {
             let n = es.series.terms();
             scratch.resize(n, 0.0);
             let used = es.series.modes_into(s, d, &mut scratch[..n]);
-            let coeffs: &[f64] = match es.first_parameter {
-                Some(first) => &c[first..first + n],
-                None => &es.known,
-            };
-            t += scratch[..used]
-                .iter()
-                .zip(coeffs)
-                .map(|(m, a)| m * a)
-                .sum::<f64>();
+            t += dot(&scratch[..used], &self.coefficients(es, c));
         }
         t
     }
@@ -389,12 +498,7 @@ impl ForwardModel {
     /// `∇B · n_in` at `p` on `edge`, K/m: the corner base's share of the inward gradient.
     fn base_inward_gradient(&self, edge: Edge, c: &[f64], p: Point) -> f64 {
         let gw = self.base.gradient_weights(p);
-        let normal = match edge {
-            Edge::Bottom => (0.0, 1.0),
-            Edge::Top => (0.0, -1.0),
-            Edge::Left => (1.0, 0.0),
-            Edge::Right => (-1.0, 0.0),
-        };
+        let normal = inward_normal(edge);
         let mut g = 0.0;
         for (ci, v) in self.base.values().iter().enumerate() {
             let val = match v {
@@ -407,11 +511,21 @@ impl ForwardModel {
         g
     }
 
-    /// The coefficients of a series: the unknowns' slice of `c`, or a fixed edge's own.
-    fn coefficients<'a>(&'a self, es: &'a EdgeSeries, c: &'a [f64]) -> &'a [f64] {
+    /// The coefficients of a series: the unknowns' slice of `c`, a fixed edge's own, or a
+    /// convective edge's known part plus its corner parameters' shares.
+    fn coefficients<'a>(&'a self, es: &'a EdgeSeries, c: &'a [f64]) -> Cow<'a, [f64]> {
         match es.first_parameter {
-            Some(first) => &c[first..first + es.series.terms()],
-            None => &es.known,
+            Some(first) => Cow::Borrowed(&c[first..first + es.series.terms()]),
+            None if es.corner_terms.is_empty() => Cow::Borrowed(&es.known),
+            None => {
+                let mut a = es.known.clone();
+                for (i, t) in &es.corner_terms {
+                    for (x, y) in a.iter_mut().zip(t) {
+                        *x += c[*i] * y;
+                    }
+                }
+                Cow::Owned(a)
+            }
         }
     }
 
@@ -423,36 +537,31 @@ impl ForwardModel {
         let mut g = self.base_inward_gradient(edge, c, p);
         for es in &self.series {
             let coeffs = self.coefficients(es, c);
-            let b = es.series.basis;
-            let decay = es.series.decay;
+            let series = &es.series;
             if es.edge == edge {
                 // own series: Σ a_n φ_n(s) ψ_n'(0)
                 for (n, a) in coeffs.iter().enumerate() {
-                    let k = es.series.wavenumber(n);
-                    g += a * b.value(n, s) * decay.slope(k, 0.0);
+                    g += a * series.phi(n, s) * series.psi_slope(n, 0.0);
                 }
             } else if es.edge == edge.opposite() {
                 // opposite series at its far side: the inward normal of `edge` points back
                 // toward `es.edge`, i.e. along −d.
-                let depth = match decay {
-                    Decay::Dirichlet { depth } | Decay::Insulated { depth } => depth,
-                    Decay::Unbounded => continue,
+                let Some(depth) = series.decay.depth() else {
+                    continue;
                 };
                 for (n, a) in coeffs.iter().enumerate() {
-                    let k = es.series.wavenumber(n);
-                    g -= a * b.value(n, s) * decay.slope(k, depth);
+                    g -= a * series.phi(n, s) * series.psi_slope(n, depth);
                 }
             } else {
                 // adjacent series: the inward normal of `edge` runs along that series' s.
                 let (sn, d) = self.local(es.edge, p);
                 let sign = if sn > 0.0 { -1.0 } else { 1.0 };
                 for (n, a) in coeffs.iter().enumerate() {
-                    let k = es.series.wavenumber(n);
-                    let psi = decay.value(k, d);
+                    let psi = series.psi(n, d);
                     if psi.abs() < basis::NEGLIGIBLE_DECAY {
                         break;
                     }
-                    g += sign * a * b.slope(n, sn) * psi;
+                    g += sign * a * series.phi_slope(n, sn) * psi;
                 }
             }
         }
@@ -479,6 +588,12 @@ impl ForwardModel {
         if self.plate.is_insulated(edge) {
             return Ok(Some(vec![0.0; positions.len()]));
         }
+        if let Some(conv) = self.plate.convection(edge) {
+            // the Robin condition itself: −κ ∂T/∂n_out = h (T − T∞) leaves the plate
+            let h = conv.known_h().unwrap_or(0.0);
+            let t = self.edge_profile(edge, c, positions)?;
+            return Ok(Some(t.iter().map(|t| -h * (t - conv.ambient_k)).collect()));
+        }
         Ok(Some(
             positions
                 .iter()
@@ -487,9 +602,46 @@ impl ForwardModel {
         ))
     }
 
+    /// `∫ T ds` along `edge` (finite), kelvin metres, from the term-by-term integrals of every
+    /// series (exact per term; they converge faster than the series of the flux).
+    fn edge_integral(&self, edge: Edge, c: &[f64], length: f64) -> f64 {
+        let shape = *self.plate.shape();
+        let mid = 0.5 * length;
+        // base: linear along the edge, so the midpoint rule is exact
+        let mut corners = 0.0;
+        let known = self
+            .base
+            .evaluate(shape.point_on(edge, mid), |i, w| corners += w * c[i]);
+        let mut total = (known + corners) * length;
+        for es in &self.series {
+            let coeffs = self.coefficients(es, c);
+            let series = &es.series;
+            if es.edge == edge {
+                for (n, a) in coeffs.iter().enumerate() {
+                    total += a * series.psi(n, 0.0) * series.phi_integral(n);
+                }
+            } else if es.edge == edge.opposite() {
+                let Some(depth) = series.decay.depth() else {
+                    continue;
+                };
+                for (n, a) in coeffs.iter().enumerate() {
+                    total += a * series.psi(n, depth) * series.phi_integral(n);
+                }
+            } else {
+                let (sn, _) = self.local(es.edge, shape.point_on(edge, mid));
+                for (n, a) in coeffs.iter().enumerate() {
+                    total += a * series.phi(n, sn) * series.psi_integral(n);
+                }
+            }
+        }
+        total
+    }
+
     /// Heat flow into the plate through `edge` per unit depth, W/m, for unknowns `c`, from
-    /// the term-by-term integrals of the flux (exact per term). `None` without conductivity,
-    /// or for the infinite sides of a strip.
+    /// the term-by-term integrals of the flux (exact per term). Through a convective edge it
+    /// is `−h ∫ (T − T∞) ds`, from the term-by-term integrals of the temperature: that form
+    /// converges much faster than the flux series next to the edge's held ends. `None`
+    /// without conductivity, or for the infinite sides of a strip.
     pub fn heat_flow(&self, edge: Edge, c: &[f64]) -> Result<Option<f64>> {
         self.check_parameters(c)?;
         let Some(kc) = self.plate.conductivity() else {
@@ -502,34 +654,34 @@ impl ForwardModel {
         if self.plate.is_insulated(edge) {
             return Ok(Some(0.0));
         }
+        if let Some(conv) = self.plate.convection(edge) {
+            let h = conv.known_h().unwrap_or(0.0);
+            let integral = self.edge_integral(edge, c, length);
+            return Ok(Some(-h * (integral - conv.ambient_k * length)));
+        }
         // base: its normal gradient is linear along the edge, so the midpoint rule is exact
         let mid = 0.5 * length;
         let mut total = self.base_inward_gradient(edge, c, shape.point_on(edge, mid)) * length;
         for es in &self.series {
             let coeffs = self.coefficients(es, c);
-            let b = es.series.basis;
-            let decay = es.series.decay;
+            let series = &es.series;
             if es.edge == edge {
                 for (n, a) in coeffs.iter().enumerate() {
-                    let k = es.series.wavenumber(n);
-                    total += a * decay.slope(k, 0.0) * b.integral(n);
+                    total += a * series.psi_slope(n, 0.0) * series.phi_integral(n);
                 }
             } else if es.edge == edge.opposite() {
-                let depth = match decay {
-                    Decay::Dirichlet { depth } | Decay::Insulated { depth } => depth,
-                    Decay::Unbounded => continue,
+                let Some(depth) = series.decay.depth() else {
+                    continue;
                 };
                 for (n, a) in coeffs.iter().enumerate() {
-                    let k = es.series.wavenumber(n);
-                    total -= a * decay.slope(k, depth) * b.integral(n);
+                    total -= a * series.psi_slope(n, depth) * series.phi_integral(n);
                 }
             } else {
                 let p = shape.point_on(edge, mid);
                 let (sn, _) = self.local(es.edge, p);
                 let sign = if sn > 0.0 { -1.0 } else { 1.0 };
                 for (n, a) in coeffs.iter().enumerate() {
-                    let k = es.series.wavenumber(n);
-                    total += sign * a * b.slope(n, sn) * decay.integral(k);
+                    total += sign * a * series.phi_slope(n, sn) * series.psi_integral(n);
                 }
             }
         }
@@ -546,7 +698,7 @@ impl ForwardModel {
                 Some(EdgeDescription {
                     edge,
                     condition: condition.name(),
-                    basis: series.map(|s| s.series.basis.kind.describe()),
+                    basis: series.map(|s| s.series.basis.kind().describe()),
                     decay: series.map(|s| s.series.decay.describe()),
                     terms: series.map_or(0, |s| s.series.terms()),
                     unknowns: series

@@ -202,11 +202,53 @@ pub enum EdgeCondition {
     Insulated,
     /// The temperature profile to reconstruct.
     Unknown,
+    /// Heat leaves to (or comes from) a fluid through a heat transfer coefficient: the Robin
+    /// condition `−κ ∂T/∂n_out = h (T − T∞)`.
+    Convective(Convection),
+}
+
+/// The heat transfer coefficient of a convective edge.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub enum HeatTransfer {
+    /// Known, W/(m² K).
+    Known(f64),
+    /// To be estimated from the readings, within `[low, high]` W/(m² K).
+    Unknown {
+        /// Lower end of the search range, W/(m² K).
+        low: f64,
+        /// Upper end of the search range, W/(m² K).
+        high: f64,
+    },
+}
+
+/// A convective edge's data.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct Convection {
+    /// The heat transfer coefficient.
+    pub h: HeatTransfer,
+    /// The fluid temperature `T∞`, kelvin.
+    pub ambient_k: f64,
+}
+
+impl Convection {
+    /// The known coefficient, W/(m² K); `None` while it is unknown.
+    pub fn known_h(&self) -> Option<f64> {
+        match self.h {
+            HeatTransfer::Known(h) => Some(h),
+            HeatTransfer::Unknown { .. } => None,
+        }
+    }
 }
 
 impl EdgeCondition {
     /// Whether the edge prescribes a temperature (fixed or unknown): a Dirichlet edge.
     pub fn is_dirichlet(&self) -> bool {
+        matches!(self, EdgeCondition::Fixed(_) | EdgeCondition::Unknown)
+    }
+
+    /// Whether the edge ties the temperature level: it holds a temperature or exchanges heat
+    /// with a fluid.
+    pub fn fixes_level(&self) -> bool {
         !matches!(self, EdgeCondition::Insulated)
     }
 
@@ -216,6 +258,7 @@ impl EdgeCondition {
             EdgeCondition::Fixed(_) => "fixed",
             EdgeCondition::Insulated => "insulated",
             EdgeCondition::Unknown => "unknown",
+            EdgeCondition::Convective(_) => "convective",
         }
     }
 }
@@ -227,6 +270,49 @@ pub struct Plate {
     /// Indexed by [`Edge::index`]; the top of a strip is `None`.
     conditions: [Option<EdgeCondition>; 4],
     conductivity: Option<f64>,
+}
+
+/// Check a convective edge's numbers: a conductivity to divide by, a finite positive `h`
+/// (or a valid search range) and a finite fluid temperature.
+fn validate_convection(edge: Edge, conv: &Convection, conductivity: Option<f64>) -> Result<()> {
+    if conductivity.is_none() {
+        return Err(Error::invalid_field(
+            "plate.conductivity",
+            format!(
+                "the {edge} edge is convective, so the plate needs its conductivity in W/(m K) \
+                 (add conductivity = ... under [plate]): h/conductivity sets the edge's condition"
+            ),
+        ));
+    }
+    match conv.h {
+        HeatTransfer::Known(h) if !(h.is_finite() && h > 0.0) => {
+            return Err(Error::invalid_field(
+                format!("edges.{edge}.h"),
+                format!(
+                    "the heat transfer coefficient must be a positive number in W/(m^2 K), not {h}"
+                ),
+            ));
+        }
+        HeatTransfer::Unknown { low, high }
+            if !(low.is_finite() && high.is_finite() && low > 0.0 && high > low) =>
+        {
+            return Err(Error::invalid_field(
+                format!("edges.{edge}.h_range"),
+                format!(
+                    "the search range for h must be two positive numbers in W/(m^2 K), the \
+                     second larger, not [{low}, {high}]"
+                ),
+            ));
+        }
+        _ => {}
+    }
+    if !conv.ambient_k.is_finite() {
+        return Err(Error::invalid_field(
+            format!("edges.{edge}.ambient"),
+            "the fluid temperature must be a finite number",
+        ));
+    }
+    Ok(())
 }
 
 impl Plate {
@@ -304,6 +390,19 @@ impl Plate {
                     ));
                 }
             }
+            if let Some(EdgeCondition::Convective(conv)) = c {
+                validate_convection(edge, conv, conductivity)?;
+                if shape.edge_length(edge).is_none() {
+                    return Err(Error::invalid_field(
+                        format!("edges.{edge}.condition"),
+                        format!(
+                            "the {edge} side of a long strip is infinite; a convective side of a \
+                             strip is not supported in this version (only the bottom of a strip \
+                             may be convective): use a finite height, or a fixed or insulated side"
+                        ),
+                    ));
+                }
+            }
             if matches!(c, Some(EdgeCondition::Unknown)) && shape.edge_length(edge).is_none() {
                 return Err(Error::invalid_field(
                     format!("edges.{edge}.condition"),
@@ -314,12 +413,12 @@ impl Plate {
                 ));
             }
         }
-        let fixes_level = conditions.iter().flatten().any(EdgeCondition::is_dirichlet);
+        let fixes_level = conditions.iter().flatten().any(EdgeCondition::fixes_level);
         if !fixes_level {
             return Err(Error::invalid_field(
                 "edges",
                 "every edge is insulated, so nothing fixes the temperature level and the \
-                 problem has no unique answer; make at least one edge fixed or unknown",
+                 problem has no unique answer; make at least one edge fixed, unknown or convective",
             ));
         }
         Ok(Plate {
@@ -356,6 +455,47 @@ impl Plate {
     pub fn is_dirichlet(&self, edge: Edge) -> bool {
         self.condition(edge)
             .is_some_and(EdgeCondition::is_dirichlet)
+    }
+
+    /// The convection data of `edge`, when it is convective.
+    pub fn convection(&self, edge: Edge) -> Option<&Convection> {
+        match self.condition(edge) {
+            Some(EdgeCondition::Convective(c)) => Some(c),
+            _ => None,
+        }
+    }
+
+    /// `β = h/κ` of a convective edge whose coefficient is known, 1/m.
+    pub fn convective_beta(&self, edge: Edge) -> Option<f64> {
+        let h = self.convection(edge)?.known_h()?;
+        Some(h / self.conductivity?)
+    }
+
+    /// The convective edges whose heat transfer coefficient is to be estimated, with their
+    /// search ranges (W/(m² K)).
+    pub fn unknown_heat_transfer(&self) -> Vec<(Edge, f64, f64)> {
+        Edge::ALL
+            .into_iter()
+            .filter_map(|e| match self.convection(e)?.h {
+                HeatTransfer::Unknown { low, high } => Some((e, low, high)),
+                HeatTransfer::Known(_) => None,
+            })
+            .collect()
+    }
+
+    /// A copy of this plate with the heat transfer coefficient of the convective `edge` set to
+    /// `h` (W/(m² K)).
+    pub fn with_heat_transfer(&self, edge: Edge, h: f64) -> Result<Plate> {
+        let mut conditions = self.conditions.clone();
+        match &mut conditions[edge.index()] {
+            Some(EdgeCondition::Convective(c)) => c.h = HeatTransfer::Known(h),
+            _ => {
+                return Err(Error::Internal(format!(
+                    "the {edge} edge is not convective"
+                )));
+            }
+        }
+        Plate::new(self.shape, conditions, self.conductivity)
     }
 
     /// Whether `edge` exists and is insulated.

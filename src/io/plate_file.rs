@@ -10,7 +10,7 @@ use crate::case::{
     Signal, Smoothing, StrengthRule, ThermocoupleSettings, UncertaintySettings,
 };
 use crate::error::{Error, Result};
-use crate::geometry::{Edge, EdgeCondition, EdgeProfile, Plate, Shape};
+use crate::geometry::{Convection, Edge, EdgeCondition, EdgeProfile, HeatTransfer, Plate, Shape};
 use crate::io::csv_files::{self, absolute_temperature};
 use crate::io::spans::{TomlSpans, guess_field_on_line, header_name};
 use crate::its90::Its90Type;
@@ -35,6 +35,11 @@ pub const DEFAULT_CONFIDENCE: f64 = 0.95;
 pub const DEFAULT_SEED: u64 = 7;
 
 // ---- stage one: the file as written -------------------------------------------------------
+
+/// The search range of an unknown heat transfer coefficient when `h_range` is not given,
+/// W/(m² K): from free convection in gases to forced convection in liquids (Incropera et
+/// al., Table 1.1; recalled from memory).
+pub const DEFAULT_H_RANGE: (f64, f64) = (1.0, 1e5);
 
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -98,10 +103,11 @@ struct RawEdge {
     condition: String,
     temperature: Option<f64>,
     profile: Option<String>,
-    // Keys of the planned convective condition, accepted here only to answer them with a
-    // clear "not supported in this version" rather than "unknown key".
+    // Convective edges: a number in W/(m^2 K) or the word "unknown"; the fluid temperature;
+    // the search range of an unknown h.
     h: Option<toml::Value>,
     ambient: Option<toml::Value>,
+    h_range: Option<toml::Value>,
 }
 
 #[derive(Debug, Default, Deserialize)]
@@ -449,30 +455,37 @@ impl Checker<'_> {
     ) -> Result<(EdgeCondition, Option<PathBuf>)> {
         let key = |k: &str| format!("edges.{edge}.{k}");
         let condition = r.condition.trim();
-        if condition == "convective" || r.h.is_some() || r.ambient.is_some() {
-            let field = if condition == "convective" {
-                key("condition")
-            } else if r.h.is_some() {
-                key("h")
-            } else {
-                key("ambient")
-            };
-            return Err(self.err(
-                &field,
-                "convective edges (h, ambient) are not supported in this version; use fixed, \
-                 insulated or unknown",
-            ));
+        if condition == "convective" {
+            return self.convective(edge, &r, units).map(|c| (c, None));
+        }
+        for (given, k) in [
+            (r.h.is_some(), "h"),
+            (r.ambient.is_some(), "ambient"),
+            (r.h_range.is_some(), "h_range"),
+        ] {
+            if given {
+                return Err(self.err(
+                    &key(k),
+                    format!(
+                        "`{k}` applies to a convective edge only, but the {edge} edge is \
+                         `{condition}`; remove it or set condition = \"convective\""
+                    ),
+                ));
+            }
         }
         if !matches!(condition, "fixed" | "insulated" | "unknown") {
             let hint = match condition.to_ascii_lowercase().as_str() {
-                c @ ("fixed" | "insulated" | "unknown") => {
+                c @ ("fixed" | "insulated" | "unknown" | "convective") => {
                     format!(" (conditions are written in lower case: `{c}`)")
                 }
                 _ => String::new(),
             };
             return Err(self.err(
                 &key("condition"),
-                format!("unknown condition `{condition}`; use fixed, insulated or unknown{hint}"),
+                format!(
+                    "unknown condition `{condition}`; use fixed, insulated, unknown or \
+                     convective{hint}"
+                ),
             ));
         }
         if condition != "fixed" {
@@ -532,9 +545,115 @@ impl Checker<'_> {
             },
             other => Err(self.err(
                 &key("condition"),
-                format!("unknown condition `{other}`; use fixed, insulated or unknown"),
+                format!("unknown condition `{other}`; use fixed, insulated, unknown or convective"),
             )),
         }
+    }
+
+    /// A convective edge: `h` (a number in W/(m² K), or "unknown" with an optional
+    /// `h_range`) and `ambient` (the fluid temperature in the case's unit).
+    fn convective(&self, edge: Edge, r: &RawEdge, units: &Units) -> Result<EdgeCondition> {
+        let key = |k: &str| format!("edges.{edge}.{k}");
+        for (given, k) in [
+            (r.temperature.is_some(), "temperature"),
+            (r.profile.is_some(), "profile"),
+        ] {
+            if given {
+                return Err(self.err(
+                    &key(k),
+                    format!(
+                        "`{k}` applies to a fixed edge only; a convective edge takes `h` and \
+                         `ambient` (the fluid temperature)"
+                    ),
+                ));
+            }
+        }
+        let number = |k: &str, v: &toml::Value| -> Result<f64> {
+            match v {
+                toml::Value::Float(f) => self.finite(&key(k), *f),
+                toml::Value::Integer(i) => Ok(*i as f64),
+                other => Err(self.err(
+                    &key(k),
+                    format!("expected a number, found {}", other.type_str()),
+                )),
+            }
+        };
+        let ambient = match &r.ambient {
+            None => {
+                return Err(self.err(
+                    &key("condition"),
+                    format!(
+                        "the convective {edge} edge needs `ambient = <fluid temperature>` in the \
+                         case's temperature unit"
+                    ),
+                ));
+            }
+            Some(v) => {
+                let t = number("ambient", v)?;
+                absolute_temperature(units, t).map_err(|m| self.err(&key("ambient"), m))?
+            }
+        };
+        let plausible_h =
+            |k: &str, v: f64| crate::plausible::heat_transfer(v).map_err(|m| self.err(&key(k), m));
+        let h = match &r.h {
+            None => {
+                return Err(self.err(
+                    &key("condition"),
+                    format!(
+                        "the convective {edge} edge needs `h = <W/(m^2 K)>`, or h = \"unknown\" \
+                         to estimate it from the readings"
+                    ),
+                ));
+            }
+            Some(toml::Value::String(w)) if w.trim() == "unknown" => {
+                let (low, high) = match &r.h_range {
+                    None => (DEFAULT_H_RANGE.0, DEFAULT_H_RANGE.1),
+                    Some(toml::Value::Array(a)) if a.len() == 2 => {
+                        let lo = plausible_h("h_range", number("h_range", &a[0])?)?;
+                        let hi = plausible_h("h_range", number("h_range", &a[1])?)?;
+                        if hi <= lo {
+                            return Err(self.err(
+                                &key("h_range"),
+                                format!(
+                                    "the search range [{lo}, {hi}] must have its larger value \
+                                     second"
+                                ),
+                            ));
+                        }
+                        (lo, hi)
+                    }
+                    Some(_) => {
+                        return Err(self.err(
+                            &key("h_range"),
+                            "h_range takes two numbers in W/(m^2 K): h_range = [low, high]",
+                        ));
+                    }
+                };
+                HeatTransfer::Unknown { low, high }
+            }
+            Some(toml::Value::String(w)) => {
+                return Err(self.err(
+                    &key("h"),
+                    format!(
+                        "`{w}` is not a heat transfer coefficient: give a number in W/(m^2 K) \
+                         or \"unknown\""
+                    ),
+                ));
+            }
+            Some(v) => {
+                if r.h_range.is_some() {
+                    return Err(self.err(
+                        &key("h_range"),
+                        "h_range applies only when h = \"unknown\"; remove it or set h = \"unknown\"",
+                    ));
+                }
+                HeatTransfer::Known(plausible_h("h", number("h", v)?)?)
+            }
+        };
+        Ok(EdgeCondition::Convective(Convection {
+            h,
+            ambient_k: ambient,
+        }))
     }
 
     fn fit(&self, raw: RawFit) -> Result<FitSettings> {
@@ -1269,7 +1388,7 @@ sigma = 0.5
                 ),
                 Some(17),
                 "edges.left.condition",
-                "not supported",
+                "needs `ambient",
             ),
             (
                 GOOD.replace("[edges.left]\ncondition = \"insulated\"\n", ""),

@@ -628,19 +628,84 @@ fn long_strip_with_unknown_sides() {
     );
 }
 
+/// Convective edges: each missing or absurd key is refused naming its line and field.
 #[test]
-fn convective_is_not_supported_yet() {
+fn bad_convective_edges() {
+    let conv = |keys: &str| {
+        plate_with(
+            "[edges.right]\ncondition = \"insulated\"",
+            &format!("[edges.right]\ncondition = \"convective\"\n{keys}"),
+        )
+    };
+    let cases: [(String, usize, &str, &str); 7] = [
+        (
+            conv("h = 10"),
+            19,
+            "edges.right.condition",
+            "needs `ambient",
+        ),
+        (
+            conv("ambient = 20"),
+            19,
+            "edges.right.condition",
+            "needs `h",
+        ),
+        (
+            conv("h = -5\nambient = 20"),
+            20,
+            "edges.right.h",
+            "plausible range",
+        ),
+        (
+            conv("h = 1e9\nambient = 20"),
+            20,
+            "edges.right.h",
+            "plausible range",
+        ),
+        (
+            conv("h = \"high\"\nambient = 20"),
+            20,
+            "edges.right.h",
+            "not a heat transfer",
+        ),
+        (
+            conv("h = \"unknown\"\nh_range = [50.0, 5.0]\nambient = 20"),
+            21,
+            "edges.right.h_range",
+            "larger value",
+        ),
+        (
+            conv("h = 10\nambient = -400"),
+            21,
+            "edges.right.ambient",
+            "absolute zero",
+        ),
+    ];
+    for (plate, line, field, gist) in cases {
+        let dir = case(&[("plate.toml", Some(&plate))]);
+        assert_invalid(&dir, "plate.toml", Some(line), Some(field), gist);
+    }
+    // no conductivity: h/κ is undefined
+    let plate = conv("h = 10\nambient = 20").replace("conductivity = 205.0\n", "");
+    let dir = case(&[("plate.toml", Some(&plate))]);
+    let (code, _, err) = check(dir.path(), &[]);
+    assert_eq!(code, 2, "{err}");
+    assert!(
+        err.contains("plate.conductivity") && err.contains("convective"),
+        "{err}"
+    );
+    // a key of the convective condition on another kind of edge
     let plate = plate_with(
         "[edges.right]\ncondition = \"insulated\"",
-        "[edges.right]\ncondition = \"convective\"\nh = 10\nambient = 20",
+        "[edges.right]\ncondition = \"insulated\"\nh = 10",
     );
     let dir = case(&[("plate.toml", Some(&plate))]);
     assert_invalid(
         &dir,
         "plate.toml",
-        Some(19),
-        Some("edges.right.condition"),
-        "not supported in this version",
+        Some(20),
+        Some("edges.right.h"),
+        "convective edge only",
     );
 }
 

@@ -22,6 +22,7 @@ mod estimate_pipeline;
 mod finite_answers;
 mod first_hour;
 mod forward_closed_forms;
+mod forward_convective;
 mod forward_fem_reference;
 mod forward_properties;
 mod hard_inputs;

@@ -154,6 +154,9 @@ fn edge_conditions(r: &EstimateResult, u: &CaseUnits) -> String {
             Some(match c {
                 EdgeCondition::Unknown => format!("{e} unknown (thick line)"),
                 EdgeCondition::Insulated => format!("{e} insulated"),
+                EdgeCondition::Convective(cv) => {
+                    format!("{e} convective to {}", u.temp_show(cv.ambient_k))
+                }
                 EdgeCondition::Fixed(p) if p.is_constant() => {
                     format!("{e} fixed at {}", u.temp_show(p.temperatures()[0]))
                 }

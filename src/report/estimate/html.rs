@@ -478,6 +478,17 @@ fn case_html(o: &mut String, r: &EstimateResult) {
             let d = match c {
                 EdgeCondition::Unknown => "unknown (reconstructed)".to_string(),
                 EdgeCondition::Insulated => "insulated".to_string(),
+                EdgeCondition::Convective(cv) => match cv.known_h() {
+                    Some(h) => format!(
+                        "convective, h = {} W/(m² K), fluid at {}",
+                        significant_text(h, 3),
+                        u.temp_show(cv.ambient_k)
+                    ),
+                    None => format!(
+                        "convective, h estimated from the readings, fluid at {}",
+                        u.temp_show(cv.ambient_k)
+                    ),
+                },
                 EdgeCondition::Fixed(p) if p.is_constant() => {
                     format!("fixed at {}", u.temp_show(p.temperatures()[0]))
                 }
