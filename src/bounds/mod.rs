@@ -519,9 +519,7 @@ pub fn bounds_under(
         .edges
         .iter()
         .enumerate()
-        .filter(|(_, edge)| {
-            peak_low.is_none() || positions_m.iter().any(|(x, _)| *x == edge.edge)
-        })
+        .filter(|(_, edge)| peak_low.is_none() || positions_m.iter().any(|(x, _)| *x == edge.edge))
         .flat_map(|(e, edge)| {
             spread(edge.positions_m.len(), options.envelope_points)
                 .into_iter()

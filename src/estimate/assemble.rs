@@ -84,6 +84,7 @@ pub(super) fn assemble(
         cautions,
         conversion: case.conversion(),
         read_as: case.read_as.clone(),
+        convection: Vec::new(),
     })
 }
 
@@ -452,7 +453,7 @@ fn cautions(
     out
 }
 /// `v` with three significant digits, for cautions a person reads.
-fn significant3(v: f64) -> String {
+pub(super) fn significant3(v: f64) -> String {
     if v == 0.0 || !v.is_finite() {
         return format!("{v}");
     }

@@ -19,6 +19,7 @@
 
 mod assemble;
 pub mod calibration;
+pub mod convection;
 pub mod explain;
 mod faults;
 pub mod fit;
@@ -124,7 +125,23 @@ pub fn profile_points(terms: usize) -> usize {
 
 /// Run the estimate. `readings` are kelvin, aligned with `case.sensors` (`None`: no reading).
 /// `progress` is called with the number of bootstrap replicates done.
+///
+/// A convective edge with `h = "unknown"` has its `h` profiled first ([`convection`]).
 pub fn estimate(
+    case: &Case,
+    readings: &[Option<f64>],
+    options: &EstimateOptions,
+    progress: Option<&(dyn Fn(usize) + Sync)>,
+) -> Result<EstimateResult> {
+    if case.plate.unknown_heat_transfer().is_empty() {
+        estimate_known_h(case, readings, options, progress)
+    } else {
+        convection::estimate_unknown_h(case, readings, options, progress)
+    }
+}
+
+/// [`estimate`] on a case whose every `h` is known.
+fn estimate_known_h(
     case: &Case,
     readings: &[Option<f64>],
     options: &EstimateOptions,

@@ -233,6 +233,9 @@ pub struct EstimateResult {
     pub conversion: Option<crate::case::ReadingConversion>,
     /// How the input tables were read (CSV dialects), from [`crate::case::Case::read_as`].
     pub read_as: Vec<crate::case::ReadAs>,
+    /// Heat transfer coefficients estimated from the readings (convective edges with
+    /// `h = "unknown"`); empty otherwise.
+    pub convection: Vec<super::convection::ConvectionEstimate>,
 }
 
 impl EstimateResult {

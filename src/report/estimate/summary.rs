@@ -142,7 +142,31 @@ pub fn summary_json(r: &EstimateResult) -> Value {
     if let Some(g) = super::bounds::gradient_study_json(r) {
         out.insert("gradient_study".into(), g);
     }
+    if !r.convection.is_empty() {
+        out.insert("convection".into(), convection_json(r));
+    }
     insert_run_json(r, &mut out);
+    Value::Object(out)
+}
+
+/// `convection`: per convective edge whose `h` was estimated, `h` and its interval in
+/// W/(m² K) (four significant digits), the search range, and whether the readings bound `h`
+/// on each side.
+fn convection_json(r: &EstimateResult) -> Value {
+    let mut out = Map::new();
+    for c in &r.convection {
+        out.insert(
+            c.edge.name().into(),
+            json!({
+                "h": significant(c.h, 4),
+                "h_interval": [significant(c.h_interval[0], 4), significant(c.h_interval[1], 4)],
+                "h_range": [significant(c.h_range[0], 4), significant(c.h_range[1], 4)],
+                "bounded_below": !c.open_below,
+                "bounded_above": !c.open_above,
+                "unit": "W/(m^2 K)",
+            }),
+        );
+    }
     Value::Object(out)
 }
 
@@ -435,6 +459,7 @@ pub fn text_summary(r: &EstimateResult) -> String {
     sensors_text(r, &mut out);
     resolution_text(r, &mut out);
     fit_text(r, &mut out);
+    convection_text(r, &mut out);
     heat_flow_text(r, &mut out);
     out.push('\n');
     out.push_str("Cautions\n");
@@ -624,6 +649,31 @@ fn fit_text(r: &EstimateResult, out: &mut String) {
 }
 
 /// The heat flow into the plate through each edge that has one, with its interval.
+/// `Convection`: each estimated heat transfer coefficient with its interval.
+fn convection_text(r: &EstimateResult, out: &mut String) {
+    let conf = percent(r.confidence);
+    for (n, c) in r.convection.iter().enumerate() {
+        let label = if n == 0 { "Convection" } else { "" };
+        let open = match (c.open_below, c.open_above) {
+            (true, true) => " - not identified by these readings (the whole search range)",
+            (true, false) => " - unbounded below within the search range",
+            (false, true) => " - unbounded above within the search range",
+            (false, false) => "",
+        };
+        line(
+            out,
+            label,
+            &format!(
+                "{} edge h = {} W/(m² K)   {conf} interval [{}, {}] (estimated from the readings){open}",
+                c.edge,
+                significant_text(c.h, 3),
+                significant_text(c.h_interval[0], 3),
+                significant_text(c.h_interval[1], 3),
+            ),
+        );
+    }
+}
+
 fn heat_flow_text(r: &EstimateResult, out: &mut String) {
     let conf = percent(r.confidence);
     let flows: Vec<&EdgeResult> = r.edges.iter().filter(|e| e.heat_flow.is_some()).collect();
