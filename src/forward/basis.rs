@@ -106,7 +106,7 @@ impl BasisKind {
                 "quarter-wave cosines (insulated at the start, held at the end)"
             }
             BasisKind::Robin => {
-                "Robin eigenfunctions sin(k s + θ) (a convective neighbour; k from k L + θ₀ + θ_L = (n+1)π)"
+                "Robin eigenfunctions sin(k s + θ) (a convective neighbour)"
             }
         }
     }

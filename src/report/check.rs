@@ -72,6 +72,22 @@ struct EdgeReport {
     temperature: Option<f64>,
     /// A fixed edge's profile file.
     profile: Option<ProfileReport>,
+    /// A convective edge's data.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    convection: Option<ConvectionReport>,
+}
+
+#[derive(Debug, Serialize)]
+struct ConvectionReport {
+    /// `h`, W/(m² K); `None` when it is to be estimated.
+    h: Option<f64>,
+    /// The search range of an unknown `h`, W/(m² K).
+    h_range: Option<[f64; 2]>,
+    /// The fluid temperature, in the case's unit.
+    ambient: f64,
+    /// The Biot number `h L / κ` over the distance to the opposite edge (`None` for a
+    /// strip's bottom or an unknown `h`).
+    biot: Option<f64>,
 }
 
 #[derive(Debug, Serialize)]
@@ -169,20 +185,25 @@ fn forward_model(case: &Case) -> Result<ForwardModelReport> {
         unknown_terms: case.fit.terms,
         ..SeriesOptions::default()
     };
-    let model = ForwardModel::new(&case.plate, options)?;
+    // an unknown h is described at the geometric middle of its search range
+    let mut plate = case.plate.clone();
+    for (edge, lo, hi) in case.plate.unknown_heat_transfer() {
+        plate = plate.with_heat_transfer(edge, (lo * hi).sqrt())?;
+    }
+    let model = ForwardModel::new(&plate, options)?;
     let description = model.describe();
     let u = &case.units;
     let len = |m: f64| u.length_from_m(m);
     let mut lines = Vec::new();
     for e in &description.edges {
-        let mut line = format!("{:<7}{:<10}", e.edge.name(), e.condition);
+        let mut line = format!("{:<7}{:<11}", e.edge.name(), e.condition);
         match (e.basis, e.decay) {
             (Some(b), Some(d)) => {
                 let plural = if e.terms == 1 { "" } else { "s" };
                 let _ = write!(line, "{} term{plural} of {b}; decay: {d}", e.terms);
                 if e.terms == 0 {
                     line = format!(
-                        "{:<7}{:<10}carried by the corner base (no series needed)",
+                        "{:<7}{:<11}carried by the corner base (no series needed)",
                         e.edge.name(),
                         e.condition
                     );
@@ -437,6 +458,34 @@ impl CheckReport {
                     num(pr.min_temperature),
                     num(pr.max_temperature)
                 ),
+                ("convective", ..) => match &e.convection {
+                Some(ConvectionReport {
+                    h: Some(h),
+                    ambient,
+                    biot,
+                    ..
+                }) => format!(
+                    "convective, h {} W/(m^2 K) to fluid at {} {tu}{}",
+                    num(*h),
+                    num(*ambient),
+                    biot.map_or(String::new(), |b| format!(
+                        " (Biot number across the plate h L/k = {})",
+                        num(b)
+                    ))
+                ),
+                Some(ConvectionReport {
+                    h_range: Some([lo, hi]),
+                    ambient,
+                    ..
+                }) => format!(
+                    "convective, h unknown (estimated from the readings within {} to {} \
+                     W/(m^2 K)), fluid at {} {tu}",
+                    num(*lo),
+                    num(*hi),
+                    num(*ambient)
+                ),
+                _ => "convective".to_string(),
+            },
                 (c, ..) => c.to_string(),
             };
             let head = if e.condition == "absent" {
@@ -597,12 +646,32 @@ fn edge_report(case: &Case, edge: Edge) -> EdgeReport {
         }
         Some(c) => (c.name(), None, None),
     };
+    let convection = case.plate.convection(edge).map(|c| {
+        let depth = match edge {
+            Edge::Bottom | Edge::Top => shape.height(),
+            Edge::Left | Edge::Right => Some(shape.width()),
+        };
+        let h_range = match c.h {
+            crate::geometry::HeatTransfer::Unknown { low, high } => Some([low, high]),
+            crate::geometry::HeatTransfer::Known(_) => None,
+        };
+        ConvectionReport {
+            h: c.known_h(),
+            h_range,
+            ambient: u.temp_from_k(c.ambient_k),
+            biot: match (c.known_h(), depth, case.plate.conductivity()) {
+                (Some(h), Some(d), Some(k)) => Some(h * d / k),
+                _ => None,
+            },
+        }
+    });
     EdgeReport {
         edge,
         condition,
         length,
         temperature,
         profile,
+        convection,
     }
 }
 
