@@ -4,7 +4,7 @@
 Regenerates ``tests/fixtures/robin/roots.json``, which the Rust tests of the convective
 series model (issue 10) check against.
 
-How to run (from the repository root; about 10 seconds on one core):
+How to run (from the repository root; a few seconds on one core):
 
     python3 -m pip install -r scripts/requirements-robin.txt
     python3 scripts/robin_roots.py                      # (re)writes the fixture
