@@ -86,7 +86,8 @@ tolerance and below the estimate):
 - verify-robin-slab: bottom fixed at T0, sides insulated, top convective:
   T(y) = T0 + (T_inf - T0) (beta y) / (1 + beta H), the plane wall with one
   convective face (Incropera et al., Fundamentals of Heat and Mass Transfer,
-  sections 3.1 and 3.4: conduction and convection resistances in series). T is
+  sections 3.1 and 3.4, section numbers recalled from memory: conduction and
+  convection resistances in series). T is
   linear, so it lies in both element spaces and both errors are round-off:
   "below the estimate" is then judged against a ROUNDOFF floor; the check is
   that the true error is round-off (a wrong sign or factor in the Robin term
@@ -643,7 +644,8 @@ def build_robin_verifications() -> list[Case]:
     # 1. One-dimensional slab: bottom fixed at T0, sides insulated, top
     #    convective. T(y) = T0 + (T_inf - T0) (beta y) / (1 + beta H): the plane
     #    wall with one convective face (Incropera et al., Fundamentals of Heat
-    #    and Mass Transfer, sections 3.1 and 3.4: a conduction resistance H/k in
+    #    and Mass Transfer, sections 3.1 and 3.4 (numbers recalled from memory):
+    #    a conduction resistance H/k in
     #    series with the convection resistance 1/h). Heat flow into the plate
     #    through the top: beta (T_inf - T0) / (1 + beta H) per unit length of
     #    edge, times W. T is linear in y, so it lies in both finite-element

@@ -25,7 +25,9 @@ symmetry s -> L - s the end condition is the same with thetaL in place of theta0
 sin(k L + theta0) = sin(pi - thetaL) up to sign, so the eigenvalues are the roots of
     F(k) = k L + theta0(k) + thetaL(k) - (n + 1) pi = 0,   n = 0, 1, 2, ...
 (derived here; the classical form for insulated-convective is xi tan xi = Bi with xi = k L
-and Bi = beta L, Carslaw & Jaeger, Conduction of Heat in Solids, 2nd ed., sections 3.9-3.10).
+and Bi = beta L, Carslaw & Jaeger, Conduction of Heat in Solids, 2nd ed., chapter III, the
+slab with radiation (convective) boundary conditions; section numbers recalled from memory,
+not checked against the book).
 F is strictly increasing in k (theta = atan(k / beta) is increasing) and the n-th root lies
 in its own branch: k L in [n pi, (n + 1) pi] (F <= 0 at the left end since each theta is
 at most pi/2, F >= 0 at the right end since each theta is at least 0), with the strict
@@ -45,11 +47,12 @@ Checks (all must pass; each names its source):
    xi tan xi = Bi (the Newton step |g / g'| of g = xi tan xi - Bi, which measures the
    distance to the root whatever the conditioning; a relative residual of g alone is
    4e-11 at Bi = 0.01 for the 20th root, since g' ~ xi there) with xi in (n pi, n pi +
-   pi/2) -- the classical equation (Carslaw & Jaeger section 3.10).
+   pi/2) -- the classical equation (Carslaw & Jaeger, chapter III, as above).
 3. Insulated-convective against printed tables of the roots of xi tan xi = C, to the
    printed 4 decimals (|difference| <= 5e-5 plus 1e-9):
-   - R. G. Watts, Essentials of Applied Mathematics for Scientists and Engineers (Morgan &
-     Claypool, 2007), Appendix A, Table A.1 (first six roots; read at
+   - Essentials of Applied Mathematics for Scientists and Engineers (2007; the author, R. G.
+     Watts, and the publisher, Morgan & Claypool, are recalled from memory: the page shows
+     only the title, the table and the date), Appendix A, Table A.1 (first six roots; read at
      https://digilib.universitaspertamina.ac.id/ebook/Essentials%20of%20applied%20mathematics%20for%20scientists%20and%20engineers/files/basic-html/page169.html
      and page170.html) for C = 0.01, 0.1, 1, 10. The page heads the table "alpha tan
      alpha + C = 0" but its values are roots of alpha tan alpha = C (0.8603 tan 0.8603 =
