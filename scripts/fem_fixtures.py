@@ -1060,9 +1060,9 @@ def write_case(case: Case, res: Result, root: Path) -> list[Path]:
                               "its own edge's facets.")
         corner_note += (
             f" Convective (Robin) edges, -k dT/dn = h (T - ambient) with k = {case.conductivity:g} "
-            f"W/(m K), enter the weak form as integral (h/k) T v ds on the left side and integral "
-            f"(h/k) ambient v ds on the right side; the corner shared with a fixed or unknown edge "
-            f"takes that edge's value.{robin_corner} `heat-flow.csv` gives the heat flow into "
+            f"W/(m K), enter the weak form as the boundary bilinear term integral (h/k) T v ds and "
+            f"the boundary load integral (h/k) ambient v ds over the convective edges; a corner "
+            f"shared with a fixed or unknown edge takes that edge's value.{robin_corner} `heat-flow.csv` gives the heat flow into "
             f"the plate through each convective edge, h times the integral of (ambient - T) along "
             f"it, in W per metre of plate depth (temperature differences in kelvin): {parts}. "
             f"The interior values lie within the range of the fixed values, truth and ambients "
