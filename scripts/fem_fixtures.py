@@ -4,10 +4,13 @@
 Regenerates the test fixtures under ``tests/fixtures/fem/``: one directory per
 case holding ``plate.toml``, ``sensors.csv``, ``truth.csv`` (cases with unknown
 edges), ``expected.csv`` (the reference temperature at every sensor), any fixed
-edge profile CSV, and a ``README.md``. The formats are those of docs/case-files.md. The Rust series model is checked against ``expected.csv``.
+edge profile CSV, ``heat-flow.csv`` (cases with convective edges) and a
+``README.md``. The formats are those of docs/case-files.md (the convective keys
+``conductivity``, ``h`` and ``ambient`` as issue 10 fixes them). The Rust series model is checked against ``expected.csv``.
 
-How to run (from the repository root; about 1.5 minutes and 2.6 GB of memory
-on 2 cores):
+How to run (from the repository root; about 4 minutes and 3.8 GB of memory
+on 2 cores, 4.6 minutes with the cores shared with a build; the five cases
+without convective edges alone took 1.5 minutes and 2.6 GB):
 
     python3 -m pip install -r scripts/requirements-fixtures.txt
     python3 scripts/fem_fixtures.py                 # (re)writes tests/fixtures/fem/
@@ -24,7 +27,25 @@ with T = g on fixed edges (a constant or a piecewise-linear profile) and on
 unknown edges (held at their truth profile, piecewise linear through the rows
 of truth.csv, exactly as the Rust `simulate` command treats them), and
 dT/dn = 0 on insulated edges (the natural boundary condition of the weak form
-    find T in g + V0:  integral grad T . grad v dA = 0  for all v in V0).
+    find T in g + V0:  integral grad T . grad v dA = 0  for all v in V0),
+and, on convective (Robin) edges Gc, -k dT/dn = h (T - T_inf) with n the
+outward normal, k the conductivity (W/(m K)), h the heat transfer coefficient
+(W/(m^2 K)) and T_inf the ambient (heat leaves to the fluid when the edge is
+hotter). Integrating by parts, the boundary term -integral dT/dn v ds becomes
+integral beta (T - T_inf) v ds with beta = h / k, so the weak form gains
+    integral_Gc beta T v ds        on the left (a FacetBasis over the
+                                   convective facets, BilinearForm u v), and
+    integral_Gc beta T_inf v ds    on the right (LinearForm v),
+with beta converted to the case's length unit (h/k is per metre; x 1e-3 per
+mm, x 0.0254 per inch). The Robin condition is linear in temperature
+differences, so the temperature unit needs no conversion (degF included).
+Where a convective edge meets a fixed or unknown edge, the corner node takes
+the Dirichlet value; where two convective edges meet, nothing is imposed at
+the corner (each Robin term acts on its own facets). The heat flow into the
+plate through a convective edge, h times the integral of (T_inf - T) along it
+(W per metre of depth, lengths in metres and temperature differences in
+kelvin), is computed from the same boundary load vector and written to
+heat-flow.csv with its own |P4 - P3| estimate.
 
 Discretisation. Continuous Lagrange triangles (scikit-fem; Gustafsson &
 McBain, "scikit-fem: A Python package for finite element assembly", JOSS 5(52)
@@ -59,9 +80,48 @@ degree-4 values must stay below the tolerance and below the largest estimate.
 One fixture case (insulated-sides) has the same series solution and is checked
 against it too.
 
+Robin verification problems (conductivity 1, h = beta, dimensionless), checked
+the same way (true error of the degree-4 values and of the heat flows below the
+tolerance and below the estimate):
+- verify-robin-slab: bottom fixed at T0, sides insulated, top convective:
+  T(y) = T0 + (T_inf - T0) (beta y) / (1 + beta H), the plane wall with one
+  convective face (Incropera et al., Fundamentals of Heat and Mass Transfer,
+  sections 3.1 and 3.4, section numbers recalled from memory: conduction and
+  convection resistances in series). T is
+  linear, so it lies in both element spaces and both errors are round-off:
+  "below the estimate" is then judged against a ROUNDOFF floor; the check is
+  that the true error is round-off (a wrong sign or factor in the Robin term
+  gives an error of order 1).
+- verify-robin-separable: bottom fixed at sin(pi x/W) + 0.35 sin(3 pi x/W),
+  sides fixed at 0, top convective with ambient 0:
+  T = sum_j A_j sin(k_j x) [k_j cosh(k_j (H-y)) + beta sinh(k_j (H-y))]
+                         / [k_j cosh(k_j H) + beta sinh(k_j H)],  k_j = j pi/W
+  (derived in robin_decay). Its estimate, 9.2e-7 of the range, is the closest
+  to the tolerance of all problems (the true error is 9e-9): the degree-3
+  companion resolves the 3 pi/W mode less well on a mesh whose size is set by
+  the corner grading.
+- verify-robin-corner: left insulated, right and top convective with
+  different beta (3.0 and 0.8) and a common ambient Ta, bottom fixed at
+  Ta + cos(mu_1 x) - 0.3 cos(mu_2 x), mu_n W the n-th root of xi tan xi =
+  beta_right W (brentq): T = Ta + sum_n A_n cos(mu_n x) Y_n(y) with Y_n as
+  above with beta_top; it satisfies both Robin conditions up to the corner
+  where they meet (derived in build_robin_verifications).
+
 Sensors. A 12 x 8 grid spanning [m, W - m] x [m, H - m] with m = 2 % of the
 width W (so it includes points exactly 2 % from an edge and from two edges near
-each corner), plus six deep points.
+each corner), plus six deep points (eight to ten in the convective cases, with
+extra points close to the convective edges and their corners).
+
+Units. convective-corner (mm, K) and convective-side (in, degF) are solved a
+second time in metres and kelvin (degree 3, 30 to 50 s together): the values
+must agree to UNIT_TOL = 1e-9 of the range (round-off: measured 5e-11), which
+checks the conversion of h/k to the case's length unit and the handling of the
+ambient in the case's temperature unit (the dimensionless verification
+problems cannot).
+
+Maximum principle. Interior values must lie within the range of the Dirichlet
+data and the ambients of convective edges (at a boundary maximum on a
+convective edge, dT/dn >= 0, so T <= T_inf there), checked for every case.
 
 Everything is deterministic: no random numbers; profiles are sampled from
 fixed smooth functions and rounded, and the rounded values written to the
@@ -71,6 +131,7 @@ files are the ones the finite-element model uses.
 from __future__ import annotations
 
 import argparse
+import copy
 import math
 import os
 import platform
@@ -84,8 +145,10 @@ import numpy as np
 import scipy
 import scipy.sparse.linalg as sla
 import skfem
+from scipy.optimize import brentq
 from scipy.spatial import cKDTree
-from skfem import Basis, ElementTriP3, ElementTriP4, MeshTri, asm, condense
+from skfem import (Basis, BilinearForm, ElementTriP3, ElementTriP4, FacetBasis, LinearForm,
+                   MeshTri, asm, condense)
 from skfem.models.poisson import laplace
 
 # ---------------------------------------------------------------------------
@@ -117,6 +180,16 @@ HSTOP_KNOT = 1e-3
 SERIES_TERMS = 4000
 
 SIDES = ("bottom", "top", "left", "right")
+#: Metres per case length unit (h is always W/(m^2 K) and conductivity W/(m K),
+#: so beta = h / conductivity is per metre and is converted to per length unit).
+#: "-" marks the dimensionless verification problems (h and conductivity given
+#: directly as beta and 1).
+METRES_PER_UNIT = {"m": 1.0, "mm": 1e-3, "in": 0.0254, "-": 1.0}
+#: Round-off floor for the verification check "true error <= estimate" when the
+#: exact solution lies in both finite-element spaces (the 1-D slab is linear in
+#: y): both errors are then round-off, and the check is the size of the true
+#: error alone (a wrong sign or factor in the Robin term gives an O(1) error).
+ROUNDOFF = 1e-11
 
 
 # ---------------------------------------------------------------------------
@@ -134,11 +207,18 @@ class Edge:
     profile in ``knots``/``values``.
     """
 
-    condition: str  # "fixed" | "insulated" | "unknown"
+    condition: str  # "fixed" | "insulated" | "unknown" | "convective"
     constant: float | None = None
     knots: np.ndarray | None = None
     values: np.ndarray | None = None
     profile_file: str | None = None  # fixed profile: CSV file name
+    # Convective (Robin) edge: -conductivity dT/dn_out = h (T - ambient).
+    h: float | None = None  # W/(m^2 K), always SI
+    ambient: float | None = None  # fluid temperature, case temperature unit
+    # Verification problems only: a smooth fixed profile T = func(position),
+    # with its values on a fine sampling (for the temperature range).
+    func: Callable[[np.ndarray], np.ndarray] | None = None
+    func_samples: np.ndarray | None = None
 
     @property
     def dirichlet(self) -> bool:
@@ -148,11 +228,17 @@ class Edge:
         """Boundary temperature at positions along the edge."""
         if self.constant is not None:
             return np.full(np.shape(pos), self.constant, dtype=float)
+        if self.func is not None:
+            return self.func(np.asarray(pos, dtype=float))
         return np.interp(pos, self.knots, self.values)
 
     def data_values(self) -> np.ndarray:
+        if self.condition == "convective":
+            return np.array([self.ambient])
         if self.constant is not None:
             return np.array([self.constant])
+        if self.func is not None:
+            return np.asarray(self.func_samples)
         return np.asarray(self.values)
 
 
@@ -168,16 +254,30 @@ class Case:
     pos_decimals: int  # decimals for sensor coordinates
     deep_points: list[tuple[float, float]] = field(default_factory=list)
     exact: Callable[[np.ndarray, np.ndarray], np.ndarray] | None = None  # verification only
+    conductivity: float | None = None  # W/(m K); required with a convective edge
+    exact_flow: dict[str, float] | None = None  # verification only: heat flows in
 
     def edge_length(self, side: str) -> float:
         return self.width if side in ("bottom", "top") else self.height
 
+    def beta(self, side: str) -> float:
+        """h / conductivity of a convective edge, per case length unit."""
+        e = self.edges[side]
+        assert e.condition == "convective" and self.conductivity, f"{self.name}: {side}"
+        return e.h / self.conductivity * METRES_PER_UNIT[self.length_unit]
+
+    def convective(self) -> list[str]:
+        return [s for s in SIDES if self.edges[s].condition == "convective"]
+
     def temperature_range(self) -> float:
-        vals = np.concatenate([e.data_values() for e in self.edges.values() if e.dirichlet])
-        return float(vals.max() - vals.min())
+        """Range of the boundary data: Dirichlet values and the ambients of
+        convective edges (the bounds of the maximum principle)."""
+        lo, hi = self.data_bounds()
+        return hi - lo
 
     def data_bounds(self) -> tuple[float, float]:
-        vals = np.concatenate([e.data_values() for e in self.edges.values() if e.dirichlet])
+        vals = np.concatenate([e.data_values() for e in self.edges.values()
+                               if e.dirichlet or e.condition == "convective"])
         return float(vals.min()), float(vals.max())
 
 
@@ -338,6 +438,86 @@ def build_cases() -> list[Case]:
                "right": Edge("fixed", constant=95.3)},
         pos_decimals=5,
         deep_points=[(0.5, 0.5), (0.47, 0.7), (0.2, 0.4), (0.8, 0.6), (0.35, 0.2), (0.65, 0.85)]))
+
+    # Convective (Robin) edges: -conductivity dT/dn_out = h (T - ambient). The
+    # deep points add sensors close to the convective edges and their corners.
+
+    # f. Stainless die plate in m and degC: a hidden heater face (bottom), an
+    #    air-jet-cooled top face, a heated clamp on the left, a free right end.
+    #    Biot number of the top across the plate: h H / k = 780 x 0.042 / 16.2 = 2.02.
+    w, h = 0.126, 0.042
+    k, v = sampled_profile(
+        w, 43,
+        lambda s: 148.6 + 31.2 * gauss(s, 0.38, 0.11) - 12.5 * s + 1.4 * np.sin(2 * np.pi * 1.1 * s + 0.3),
+        pos_decimals=7)
+    cases.append(Case(
+        name="convective-top",
+        description=("A stainless-steel die plate (conductivity 16.2 W/(m K)), 0.126 x 0.042 m "
+                     "(lengths in m, temperatures in degC): the bottom edge is unknown (it faces a "
+                     "heater; truth with a hot zone near x = 0.048 m, 43 knots), the top edge is "
+                     "convective (an air jet, h = 780 W/(m^2 K), ambient 21.5 degC; Biot number "
+                     "h H / k = 2.02), the left edge is fixed at 139.25 degC (a heated clamp), the "
+                     "right edge is insulated"),
+        width=w, height=h, length_unit="m", temperature_unit="C",
+        edges={"bottom": Edge("unknown", knots=k, values=v),
+               "top": Edge("convective", h=780.0, ambient=21.5),
+               "left": Edge("fixed", constant=139.25),
+               "right": Edge("insulated")},
+        pos_decimals=7, conductivity=16.2,
+        deep_points=[(0.5, 0.5), (0.38, 0.3), (0.38, 0.93), (0.7, 0.93), (0.05, 0.93),
+                     (0.97, 0.93), (0.2, 0.6), (0.85, 0.4)]))
+
+    # g. Carbon-steel bracket in mm and K: a hidden weld seam (bottom), a clamp
+    #    on the left, and two convective faces meeting at the top-right corner
+    #    with different coolants. Biot numbers: top h H / k = 1250 x 0.0575 / 48.5
+    #    = 1.48; right h W / k = 340 x 0.074 / 48.5 = 0.52.
+    w, h = 74.0, 57.5
+    k, v = sampled_profile(
+        w, 37,
+        lambda s: 402.3 + 27.8 * gauss(s, 0.58, 0.13) + 6.0 * s - 2.2 * np.cos(2.7 * s),
+        pos_decimals=4)
+    cases.append(Case(
+        name="convective-corner",
+        description=("A carbon-steel bracket (conductivity 48.5 W/(m K)), 74.0 x 57.5 mm (lengths "
+                     "in mm, temperatures in K): the bottom edge is unknown (a weld seam; truth "
+                     "with a hot zone near x = 43 mm, 37 knots), the left edge is fixed at 371.65 K "
+                     "(a clamp), and two convective edges meet at the top-right corner: the top "
+                     "(a water spray, h = 1250 W/(m^2 K), ambient 291.4 K; h H / k = 1.48) and the "
+                     "right (an air stream, h = 340 W/(m^2 K), ambient 305.9 K; h W / k = 0.52)"),
+        width=w, height=h, length_unit="mm", temperature_unit="K",
+        edges={"bottom": Edge("unknown", knots=k, values=v),
+               "top": Edge("convective", h=1250.0, ambient=291.4),
+               "left": Edge("fixed", constant=371.65),
+               "right": Edge("convective", h=340.0, ambient=305.9)},
+        pos_decimals=4, conductivity=48.5,
+        deep_points=[(0.5, 0.5), (0.58, 0.25), (0.96, 0.96), (0.9, 0.96), (0.96, 0.88),
+                     (0.93, 0.93), (0.96, 0.5), (0.96, 0.06), (0.5, 0.96), (0.3, 0.7)]))
+
+    # h. Brass manifold block in inches and degF: a hidden hot face (bottom),
+    #    a water channel along the left side (convective, next to the hidden
+    #    edge), a free right side and a top held by a chilled plate. Biot number
+    #    along the hidden edge: h W / k = 2900 x 0.09525 / 121 = 2.28.
+    w, h = 3.75, 2.6
+    k, v = sampled_profile(
+        w, 39,
+        lambda s: 266.0 + 41.5 * gauss(s, 0.3, 0.12) + 14.2 * gauss(s, 0.74, 0.08) - 18.0 * s,
+        pos_decimals=5)
+    cases.append(Case(
+        name="convective-side",
+        description=("A brass manifold block (conductivity 121 W/(m K)), 3.75 x 2.6 in (lengths in "
+                     "inches, temperatures in degF): the bottom edge is unknown (truth with warm "
+                     "zones near x = 1.1 in and 2.8 in, 39 knots), the left edge is convective (a "
+                     "water channel, h = 2900 W/(m^2 K), ambient 59.0 degF; h W / k = 2.28 along "
+                     "the unknown edge), the right edge is insulated, the top edge is fixed at "
+                     "131.8 degF (a chilled plate)"),
+        width=w, height=h, length_unit="in", temperature_unit="F",
+        edges={"bottom": Edge("unknown", knots=k, values=v),
+               "top": Edge("fixed", constant=131.8),
+               "left": Edge("convective", h=2900.0, ambient=59.0),
+               "right": Edge("insulated")},
+        pos_decimals=5, conductivity=121.0,
+        deep_points=[(0.5, 0.5), (0.3, 0.25), (0.74, 0.25), (0.03, 0.05), (0.03, 0.5),
+                     (0.03, 0.95), (0.06, 0.2), (0.1, 0.75), (0.97, 0.5)]))
     return cases
 
 
@@ -419,6 +599,122 @@ def build_verifications() -> list[Case]:
                "left": Edge("insulated"), "right": Edge("insulated")},
         pos_decimals=6, deep_points=[(0.5, 0.5), (0.35, 0.3)],
         exact=lambda x, y, k=k2, v=v2: series_insulated_sides(w2, h2, k, v, top2, x, y)))
+    out.extend(build_robin_verifications())
+    return out
+
+
+# ---------------------------------------------------------------------------
+# Verification problems with convective (Robin) edges and closed forms
+# ---------------------------------------------------------------------------
+
+
+def robin_decay(mu: float, beta: float, H: float, y: np.ndarray) -> np.ndarray:
+    """Y(y) with Y'' = mu^2 Y, Y(0) = 1 and the Robin condition -Y'(H) = beta Y(H)
+    at the top (derived here):
+        Y(y) = [mu cosh(mu (H - y)) + beta sinh(mu (H - y))]
+               / [mu cosh(mu H) + beta sinh(mu H)].
+    Y(0) = 1 by construction; Y'(y) = -mu [mu sinh(mu (H-y)) + beta cosh(mu (H-y))] / D,
+    so -Y'(H) = mu beta / D = beta Y(H). (mu H stays below 5 here: no overflow.)
+    """
+    d = mu * np.cosh(mu * H) + beta * np.sinh(mu * H)
+    return (mu * np.cosh(mu * (H - y)) + beta * np.sinh(mu * (H - y))) / d
+
+
+def robin_decay_integral(mu: float, beta: float, H: float) -> float:
+    """Integral of robin_decay over 0 <= y <= H:
+    [sinh(mu H) + beta (cosh(mu H) - 1) / mu] / [mu cosh(mu H) + beta sinh(mu H)]."""
+    d = mu * np.cosh(mu * H) + beta * np.sinh(mu * H)
+    return float((np.sinh(mu * H) + beta * (np.cosh(mu * H) - 1.0) / mu) / d)
+
+
+def xi_tan_xi_root(bi: float, n: int) -> float:
+    """n-th positive root (n = 1, 2, ...) of xi tan xi = Bi, in ((n-1) pi, (n-1) pi + pi/2),
+    by brentq on xi sin xi - Bi cos xi (continuous, opposite signs at the ends)."""
+    f = lambda xi: xi * math.sin(xi) - bi * math.cos(xi)
+    a, b = (n - 1) * math.pi, (n - 1) * math.pi + math.pi / 2
+    return brentq(f, a, b, xtol=1e-15, rtol=4 * np.finfo(float).eps, maxiter=200)
+
+
+def build_robin_verifications() -> list[Case]:
+    """Three problems with closed forms that exercise the Robin terms; in all
+    of them the conductivity is 1 and h is the Robin coefficient beta itself
+    (dimensionless lengths and temperatures)."""
+    out = []
+
+    # 1. One-dimensional slab: bottom fixed at T0, sides insulated, top
+    #    convective. T(y) = T0 + (T_inf - T0) (beta y) / (1 + beta H): the plane
+    #    wall with one convective face (Incropera et al., Fundamentals of Heat
+    #    and Mass Transfer, sections 3.1 and 3.4 (numbers recalled from memory):
+    #    a conduction resistance H/k in
+    #    series with the convection resistance 1/h). Heat flow into the plate
+    #    through the top: beta (T_inf - T0) / (1 + beta H) per unit length of
+    #    edge, times W. T is linear in y, so it lies in both finite-element
+    #    spaces: the errors are round-off (see ROUNDOFF).
+    w, h, t0, tinf, beta = 1.7, 0.8, 0.9, -0.35, 2.5
+    out.append(Case(
+        name="verify-robin-slab",
+        description="1-D slab, top convective (Incropera et al. sections 3.1/3.4)",
+        width=w, height=h, length_unit="-", temperature_unit="-",
+        edges={"bottom": Edge("fixed", constant=t0), "top": Edge("convective", h=beta, ambient=tinf),
+               "left": Edge("insulated"), "right": Edge("insulated")},
+        pos_decimals=6, deep_points=[(0.5, 0.5), (0.3, 0.95)], conductivity=1.0,
+        exact=lambda x, y, t0=t0, tinf=tinf, beta=beta, h=h: t0 + (tinf - t0) * beta * y / (1.0 + beta * h),
+        exact_flow={"top": beta * (tinf - t0) / (1.0 + beta * h) * w}))
+
+    # 2. Separable, two modes: bottom fixed at sum_j A_j sin(k_j x), k_j = j pi / W
+    #    (j = 1, 3), sides fixed at 0, top convective with ambient 0. Separation
+    #    of variables (derived here):
+    #        T = sum_j A_j sin(k_j x) Y_j(y),  Y_j = robin_decay(k_j, beta, H, y).
+    #    Heat flow in through the top: -beta sum_j A_j Y_j(H) int_0^W sin(k_j x) dx
+    #    = -beta sum_j A_j Y_j(H) 2 / k_j (j odd).
+    w, h, beta = 2.4, 1.3, 1.6
+    modes = [(1, 1.0), (3, 0.35)]
+    kk = [(j * math.pi / w, a) for j, a in modes]
+    f_bottom = lambda s, kk=kk: sum(a * np.sin(k * s) for k, a in kk)
+    out.append(Case(
+        name="verify-robin-separable",
+        description="separable, sides 0, top convective (derived closed form)",
+        width=w, height=h, length_unit="-", temperature_unit="-",
+        edges={"bottom": Edge("fixed", func=f_bottom, func_samples=f_bottom(np.linspace(0, w, 4001))),
+               "top": Edge("convective", h=beta, ambient=0.0),
+               "left": Edge("fixed", constant=0.0), "right": Edge("fixed", constant=0.0)},
+        pos_decimals=6, deep_points=[(0.5, 0.5), (0.5, 0.96), (0.03, 0.96)], conductivity=1.0,
+        exact=lambda x, y, kk=kk, beta=beta, h=h: sum(a * np.sin(k * x) * robin_decay(k, beta, h, y)
+                                                      for k, a in kk),
+        exact_flow={"top": -beta * sum(a * robin_decay(k, beta, h, np.array(h)) * 2.0 / k
+                                       for k, a in kk)}))
+
+    # 3. Two convective edges meeting at a corner (different beta, common
+    #    ambient Ta): left insulated, right convective (beta_r), top convective
+    #    (beta_t), bottom fixed at Ta + sum_n A_n cos(mu_n x), where mu_n W is
+    #    the n-th root of xi tan xi = beta_r W (so cos(mu_n x) has zero slope at
+    #    x = 0 and -phi'(W) = beta_r phi(W) at x = W). Separation of variables
+    #    (derived here):
+    #        T = Ta + sum_n A_n cos(mu_n x) Y_n(y),  Y_n = robin_decay(mu_n, beta_t, H, y),
+    #    satisfies both Robin conditions, including at the top-right corner
+    #    where they meet. Heat flows in: top -beta_t sum A_n Y_n(H) sin(mu_n W) / mu_n;
+    #    right -beta_r sum A_n cos(mu_n W) int_0^H Y_n dy.
+    w, h, beta_r, beta_t, ta = 1.5, 1.1, 3.0, 0.8, 0.2
+    mus = [(xi_tan_xi_root(beta_r * w, n) / w, a) for n, a in ((1, 1.0), (2, -0.3))]
+    for mu, _ in mus:
+        assert abs(mu * math.tan(mu * w) - beta_r) < 1e-12 * beta_r
+    g_bottom = lambda s, mus=mus, ta=ta: ta + sum(a * np.cos(mu * s) for mu, a in mus)
+    out.append(Case(
+        name="verify-robin-corner",
+        description="two convective edges at a corner (derived closed form)",
+        width=w, height=h, length_unit="-", temperature_unit="-",
+        edges={"bottom": Edge("fixed", func=g_bottom, func_samples=g_bottom(np.linspace(0, w, 4001))),
+               "top": Edge("convective", h=beta_t, ambient=ta),
+               "left": Edge("insulated"), "right": Edge("convective", h=beta_r, ambient=ta)},
+        pos_decimals=6, deep_points=[(0.5, 0.5), (0.97, 0.96), (0.9, 0.9), (0.97, 0.5)],
+        conductivity=1.0,
+        exact=lambda x, y, mus=mus, ta=ta, beta_t=beta_t, h=h: ta + sum(
+            a * np.cos(mu * x) * robin_decay(mu, beta_t, h, y) for mu, a in mus),
+        exact_flow={
+            "top": -beta_t * sum(a * robin_decay(mu, beta_t, h, np.array(h)) * math.sin(mu * w) / mu
+                                 for mu, a in mus),
+            "right": -beta_r * sum(a * math.cos(mu * w) * robin_decay_integral(mu, beta_t, h)
+                                   for mu, a in mus)}))
     return out
 
 
@@ -494,8 +790,28 @@ def dirichlet_values(case: Case, xy: np.ndarray) -> np.ndarray:
     return total / count
 
 
+@BilinearForm
+def robin_mass(u, v, _):
+    """Boundary mass form: integral over the convective facets of u v ds."""
+    return u * v
+
+
+@LinearForm
+def robin_load(v, _):
+    """Boundary load form: integral over the convective facets of v ds."""
+    return v
+
+
 def solve_fem(case: Case, mesh: MeshTri, element, px: np.ndarray, py: np.ndarray):
-    """Galerkin solution of the Laplace problem; values at (px, py) and DOF count."""
+    """Galerkin solution of the Laplace problem.
+
+    Returns the values at (px, py), the DOF count and, per convective edge, the
+    integral of T along it (length unit x temperature unit).
+
+    A convective edge adds the Robin terms of the weak form (see the module
+    doc): integral (h/k) T v ds to the left side and integral (h/k) T_inf v ds
+    to the right side, assembled on a FacetBasis over that edge's facets.
+    """
     W, H = case.width, case.height
     tol = 1e-9 * max(W, H)
     basis = Basis(mesh, element)
@@ -507,7 +823,20 @@ def solve_fem(case: Case, mesh: MeshTri, element, px: np.ndarray, py: np.ndarray
     D = np.unique(basis.get_dofs(facets).all())
     u = np.zeros(basis.N)
     u[D] = dirichlet_values(case, basis.doflocs[:, D])
-    Ac, bc, _, I = condense(A, x=u, D=D)
+    convective = case.convective()
+    edge_load = {}
+    if convective:
+        b = np.zeros(basis.N)
+        for side in convective:
+            fb = FacetBasis(mesh, element,
+                            facets=mesh.facets_satisfying(tests[side], boundaries_only=True))
+            beta, ambient = case.beta(side), case.edges[side].ambient
+            A = A + beta * asm(robin_mass, fb)
+            edge_load[side] = asm(robin_load, fb)
+            b += beta * ambient * edge_load[side]
+        Ac, bc, _, I = condense(A, b, x=u, D=D)
+    else:
+        Ac, bc, _, I = condense(A, x=u, D=D)
     # Symmetric positive definite system: symmetric-mode sparse LU with a
     # minimum-degree ordering on A + A^T (SuperLU).
     lu = sla.splu(Ac.tocsc(), permc_spec="MMD_AT_PLUS_A", diag_pivot_thresh=0.0,
@@ -516,7 +845,8 @@ def solve_fem(case: Case, mesh: MeshTri, element, px: np.ndarray, py: np.ndarray
     residual = np.abs(Ac @ u[I] - bc).max() / max(np.abs(bc).max(), 1e-300)
     assert residual < 1e-10, f"{case.name}: linear solve residual {residual:.1e}"
     values = basis.probes(np.vstack([px, py])) @ u
-    return values, basis.N
+    edge_integrals = {side: float(load @ u) for side, load in edge_load.items()}
+    return values, basis.N, edge_integrals
 
 
 @dataclass
@@ -529,15 +859,84 @@ class Result:
     ndofs: int
     nelements: int
     seconds: float
+    # Per convective edge: heat flow into the plate through it, W per metre of
+    # plate depth, and its estimate |P4 - P3|.
+    heat_flow: dict[str, tuple[float, float]] = field(default_factory=dict)
+
+
+#: Kelvin per case temperature unit, for temperature differences.
+KELVIN_PER_UNIT = {"C": 1.0, "K": 1.0, "F": 5.0 / 9.0, "-": 1.0}
+
+
+def heat_flow_into(case: Case, side: str, integral: float) -> float:
+    """Heat flow into the plate through a convective edge, W/m of depth:
+    h * integral (T_inf - T) ds, with ds in metres and T in kelvin differences
+    (the edge's length times T_inf minus the integral of T)."""
+    e = case.edges[side]
+    length = case.edge_length(side)
+    return (e.h * (e.ambient * length - integral) * METRES_PER_UNIT[case.length_unit]
+            * KELVIN_PER_UNIT[case.temperature_unit])
+
+
+def heat_flow_scale(case: Case, side: str) -> float:
+    """h x (temperature range) x (edge length), W/m: the size against which a
+    convective heat flow's error is judged."""
+    return (case.edges[side].h * case.temperature_range() * KELVIN_PER_UNIT[case.temperature_unit]
+            * case.edge_length(side) * METRES_PER_UNIT[case.length_unit])
 
 
 def run_case(case: Case) -> Result:
     t0 = time.perf_counter()
     ids, px, py = sensor_points(case)
     mesh = build_mesh(case)
-    u3, _ = solve_fem(case, mesh, ElementTriP3(), px, py)
-    u4, n4 = solve_fem(case, mesh, ElementTriP4(), px, py)
-    return Result(ids, px, py, u4, np.abs(u4 - u3), n4, mesh.nelements, time.perf_counter() - t0)
+    u3, _, i3 = solve_fem(case, mesh, ElementTriP3(), px, py)
+    u4, n4, i4 = solve_fem(case, mesh, ElementTriP4(), px, py)
+    flows = {}
+    for side in i4:
+        q4, q3 = heat_flow_into(case, side, i4[side]), heat_flow_into(case, side, i3[side])
+        flows[side] = (q4, abs(q4 - q3))
+    return Result(ids, px, py, u4, np.abs(u4 - u3), n4, mesh.nelements,
+                  time.perf_counter() - t0, flows)
+
+
+def to_kelvin(t: np.ndarray | float, unit: str):
+    return {"C": lambda v: v + 273.15, "K": lambda v: v,
+            "F": lambda v: (v - 32.0) * 5.0 / 9.0 + 273.15}[unit](t)
+
+
+#: Convective cases re-solved in metres and kelvin (see unit_check).
+UNIT_CHECK_CASES = ("convective-corner", "convective-side")
+#: Largest allowed difference between the two, as a fraction of the range. The
+#: difference is round-off of two large linear solves on meshes that are equal
+#: only up to rounding (measured 4.8e-11 and 8.5e-12; ROUNDOFF = 1e-11 was too
+#: tight for the 1.4 million unknowns of convective-corner). A wrong conversion
+#: gives far more: h/k off by 1 % changes the temperatures by about 1e-3 of the
+#: range, a missing mm -> m factor or degF offset by order 1.
+UNIT_TOL = 1e-9
+
+
+def unit_check(case: Case) -> float:
+    """Re-solve a case in metres and kelvin and compare (degree 3, same mesh up
+    to scale): the largest difference at the sensors, as a fraction of the
+    range. The Robin coefficient h/k is per metre and must be converted to the
+    case's length unit; the verification problems (dimensionless) cannot catch
+    a wrong conversion, this check can. The meshes are similar, so the two
+    solutions agree to round-off when the conversion is right."""
+    f = METRES_PER_UNIT[case.length_unit]
+    ids, px, py = sensor_points(case)
+    u, _, _ = solve_fem(case, build_mesh(case), ElementTriP3(), px, py)
+    si = copy.deepcopy(case)
+    si.width, si.height, si.length_unit, si.temperature_unit = case.width * f, case.height * f, "m", "K"
+    for e in si.edges.values():
+        if e.constant is not None:
+            e.constant = to_kelvin(e.constant, case.temperature_unit)
+        if e.ambient is not None:
+            e.ambient = to_kelvin(e.ambient, case.temperature_unit)
+        if e.knots is not None:
+            e.knots, e.values = e.knots * f, to_kelvin(e.values, case.temperature_unit)
+    u_si, _, _ = solve_fem(si, build_mesh(si), ElementTriP3(), px * f, py * f)
+    diff = np.abs(to_kelvin(u, case.temperature_unit) - u_si).max()
+    return float(diff / (case.temperature_range() * KELVIN_PER_UNIT[case.temperature_unit]))
 
 
 # ---------------------------------------------------------------------------
@@ -585,6 +984,8 @@ def write_case(case: Case, res: Result, root: Path) -> list[Path]:
             f"height = {num(case.height)}",
             f'length_unit = "{case.length_unit}"',
             f'temperature_unit = "{case.temperature_unit}"']
+    if case.conductivity is not None:
+        toml.append(f"conductivity = {num(case.conductivity)}")
     for side in SIDES:
         e = case.edges[side]
         toml += ["", f"[edges.{side}]", f'condition = "{e.condition}"']
@@ -592,6 +993,8 @@ def write_case(case: Case, res: Result, root: Path) -> list[Path]:
             toml.append(f"temperature = {num(e.constant)}")
         elif e.condition == "fixed":
             toml.append(f'profile = "{e.profile_file}"')
+        elif e.condition == "convective":
+            toml += [f"h = {num(e.h)}", f"ambient = {num(e.ambient)}"]
     write_atomic(d / "plate.toml", "\n".join(toml) + "\n")
     written.append(d / "plate.toml")
 
@@ -619,6 +1022,12 @@ def write_case(case: Case, res: Result, root: Path) -> list[Path]:
     write_atomic(d / "expected.csv", "\n".join(rows) + "\n")
     written.append(d / "expected.csv")
 
+    if res.heat_flow:
+        rows = ["edge,heat_flow_w_per_m,estimated_error_w_per_m"]
+        rows += [f"{side},{q:.12g},{e:.2g}" for side, (q, e) in res.heat_flow.items()]
+        write_atomic(d / "heat-flow.csv", "\n".join(rows) + "\n")
+        written.append(d / "heat-flow.csv")
+
     rng = case.temperature_range()
     unit = {"C": "degC", "K": "K", "F": "degF"}[case.temperature_unit]
     jumps = corner_jumps(case)
@@ -630,6 +1039,34 @@ def write_case(case: Case, res: Result, root: Path) -> list[Path]:
                        f"corner{'s' if len(jumps) > 1 else ''}.")
     else:
         corner_note = " No corner has a temperature jump."
+    convective = case.convective()
+    if convective:
+        parts = []
+        for side in convective:
+            e = case.edges[side]
+            q, q_est = res.heat_flow[side]
+            parts.append(f"the {side} edge (h = {e.h:g} W/(m^2 K), ambient {e.ambient:g} {unit}, "
+                         f"h/k = {case.beta(side):.6g} per {case.length_unit}) takes in "
+                         f"{q:.6g} W/m (estimated error {q_est:.1e} W/m)")
+        parts = parts[0] if len(parts) == 1 else ", ".join(parts[:-1]) + " and " + parts[-1]
+        pairs = [(a, b) for a, b in (("bottom", "left"), ("bottom", "right"), ("top", "left"),
+                                     ("top", "right"))
+                 if case.edges[a].condition == "convective" and case.edges[b].condition == "convective"]
+        robin_corner = ""
+        if pairs:
+            robin_corner = (" Where two convective edges meet (the "
+                            + " and ".join(f"{a}-{b}" for a, b in pairs)
+                            + " corner), nothing is imposed at the corner: each Robin term acts on "
+                              "its own edge's facets.")
+        corner_note += (
+            f" Convective (Robin) edges, -k dT/dn = h (T - ambient) with k = {case.conductivity:g} "
+            f"W/(m K), enter the weak form as the boundary bilinear term integral (h/k) T v ds and "
+            f"the boundary load integral (h/k) ambient v ds over the convective edges; a corner "
+            f"shared with a fixed or unknown edge takes that edge's value.{robin_corner} `heat-flow.csv` gives the heat flow into "
+            f"the plate through each convective edge, h times the integral of (ambient - T) along "
+            f"it, in W per metre of plate depth (temperature differences in kelvin): {parts}. "
+            f"The interior values lie within the range of the fixed values, truth and ambients "
+            f"(maximum principle, checked).")
     truth_note = ""
     if unknown:
         truth_note = (f" The unknown edge{'s are' if len(unknown) > 1 else ' is'} held at "
@@ -674,13 +1111,23 @@ def main() -> int:
         true_err = np.abs(res.values - exact)
         rng = case.temperature_range()
         est_max = res.estimate.max()
-        passed = true_err.max() <= TOLERANCE * rng and true_err.max() <= est_max \
-            and est_max <= TOLERANCE * rng
+        passed = true_err.max() <= TOLERANCE * rng \
+            and true_err.max() <= max(est_max, ROUNDOFF * rng) and est_max <= TOLERANCE * rng
+        flow_note = ""
+        for side, exact_q in (case.exact_flow or {}).items():
+            # Heat flows: scale h x range x edge length (metres, kelvin).
+            q, q_est = res.heat_flow[side]
+            scale = heat_flow_scale(case, side)
+            q_err = abs(q - exact_q)
+            passed &= q_err <= TOLERANCE * scale and q_err <= max(q_est, ROUNDOFF * scale) \
+                and q_est <= TOLERANCE * scale
+            flow_note += (f"; {side} heat flow true error {q_err / scale:.1e}, "
+                          f"estimate {q_est / scale:.1e} of h x range x length")
         ok &= passed
         covered = int(np.sum(true_err <= res.estimate))
         print(f"  {case.name:18s} true error of P4 {true_err.max() / rng:.1e}, "
               f"estimate |P4-P3| {est_max / rng:.1e} (fractions of range; pointwise "
-              f"true <= estimate at {covered}/{len(true_err)} points), "
+              f"true <= estimate at {covered}/{len(true_err)} points){flow_note}, "
               f"{res.ndofs} dofs, {res.seconds:.1f} s  {'ok' if passed else 'FAIL'}")
 
     cases = build_cases()
@@ -717,6 +1164,13 @@ def main() -> int:
               f"{res.ndofs} dofs{series_note}, {res.seconds:.1f} s  "
               f"{'ok' if passed else 'FAIL' + ('' if in_range else ' (outside data range)')}")
         results.append((case, res))
+        if case.name in UNIT_CHECK_CASES:
+            t0 = time.perf_counter()
+            d = unit_check(case)
+            good = d <= UNIT_TOL
+            ok &= good
+            print(f"  {'':18s} same case in m and K (degree 3): largest difference {d:.1e} of "
+                  f"range, {time.perf_counter() - t0:.1f} s  {'ok' if good else 'FAIL'}")
 
     elapsed = time.perf_counter() - t_start
     if not ok:
