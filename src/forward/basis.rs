@@ -105,9 +105,7 @@ impl BasisKind {
             BasisKind::QuarterCosine => {
                 "quarter-wave cosines (insulated at the start, held at the end)"
             }
-            BasisKind::Robin => {
-                "Robin eigenfunctions sin(k s + θ) (a convective neighbour)"
-            }
+            BasisKind::Robin => "Robin eigenfunctions sin(k s + θ) (a convective neighbour)",
         }
     }
 }

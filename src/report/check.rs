@@ -459,33 +459,33 @@ impl CheckReport {
                     num(pr.max_temperature)
                 ),
                 ("convective", ..) => match &e.convection {
-                Some(ConvectionReport {
-                    h: Some(h),
-                    ambient,
-                    biot,
-                    ..
-                }) => format!(
-                    "convective, h {} W/(m^2 K) to fluid at {} {tu}{}",
-                    num(*h),
-                    num(*ambient),
-                    biot.map_or(String::new(), |b| format!(
-                        " (Biot number across the plate h L/k = {})",
-                        num(b)
-                    ))
-                ),
-                Some(ConvectionReport {
-                    h_range: Some([lo, hi]),
-                    ambient,
-                    ..
-                }) => format!(
-                    "convective, h unknown (estimated from the readings within {} to {} \
+                    Some(ConvectionReport {
+                        h: Some(h),
+                        ambient,
+                        biot,
+                        ..
+                    }) => format!(
+                        "convective, h {} W/(m^2 K) to fluid at {} {tu}{}",
+                        num(*h),
+                        num(*ambient),
+                        biot.map_or(String::new(), |b| format!(
+                            " (Biot number across the plate h L/k = {})",
+                            num(b)
+                        ))
+                    ),
+                    Some(ConvectionReport {
+                        h_range: Some([lo, hi]),
+                        ambient,
+                        ..
+                    }) => format!(
+                        "convective, h unknown (estimated from the readings within {} to {} \
                      W/(m^2 K)), fluid at {} {tu}",
-                    num(*lo),
-                    num(*hi),
-                    num(*ambient)
-                ),
-                _ => "convective".to_string(),
-            },
+                        num(*lo),
+                        num(*hi),
+                        num(*ambient)
+                    ),
+                    _ => "convective".to_string(),
+                },
                 (c, ..) => c.to_string(),
             };
             let head = if e.condition == "absent" {

@@ -12,6 +12,10 @@
 //! - The Robin condition itself, `κ ∂T/∂n_in = h (T − T∞)`, by finite differences of the model
 //!   on the edge, including the corner where two convective edges meet.
 //! - The limits `h → 0` (insulated) and `h → ∞` (held at the fluid temperature).
+//! - Robin eigenvalues and norms against `tests/fixtures/robin/roots.json`, made by
+//!   `scripts/robin_roots.py` with scipy's `brentq` on each branch and `quad` for the norms
+//!   (the script checks its insulated–convective roots against `ξ tan ξ = Bi` and a printed
+//!   table of those roots).
 //! - Steady state without sources: the heat flows through all edges sum to zero, and the flow
 //!   through a convective edge is `−∫ h (T − T∞) ds`.
 
@@ -432,4 +436,47 @@ fn convective_edges_need_a_conductivity_and_sane_numbers() {
         Some(KAPPA),
     );
     assert!(strip.is_err());
+}
+
+#[test]
+fn robin_roots_match_the_scipy_fixture() {
+    use edgetherm::forward::{EdgeBasis, End};
+    let path = concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/fixtures/robin/roots.json"
+    );
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(path).unwrap()).unwrap();
+    let end = |v: &serde_json::Value| match v["condition"].as_str().unwrap() {
+        "held" => End::Held,
+        "insulated" => End::Insulated,
+        "convective" => End::Convective {
+            beta: v["beta"].as_f64().unwrap(),
+        },
+        other => panic!("unknown end {other}"),
+    };
+    let combinations = json["combinations"].as_array().unwrap();
+    assert!(combinations.len() >= 8);
+    for c in combinations {
+        let l = c["length"].as_f64().unwrap();
+        let b = EdgeBasis::new(end(&c["start"]), end(&c["end"]), l);
+        let roots = c["kL"].as_array().unwrap();
+        let norms = c["norm_quad"].as_array().unwrap();
+        assert!(roots.len() >= 20);
+        for (n, (x, q)) in roots.iter().zip(norms).enumerate() {
+            let (x, q) = (x.as_f64().unwrap(), q.as_f64().unwrap());
+            let k = b.wavenumber(n);
+            assert!(
+                (k * l - x).abs() < 1e-12 * x.max(1.0),
+                "{} n={n}: {} vs {x}",
+                c["name"],
+                k * l
+            );
+            assert!(
+                (b.norm_sq(k) - q).abs() < 1e-12 * q,
+                "{} n={n} norm",
+                c["name"]
+            );
+        }
+    }
 }

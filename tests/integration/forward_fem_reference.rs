@@ -5,9 +5,14 @@
 //! its error below 1e-6 of the boundary temperature range) and writes
 //! `tests/fixtures/fem/<case>/expected.csv`. The cases cover insulated sides, a non-constant
 //! fixed profile, two unknown edges given truth profiles, a plate in metres and kelvin, and
-//! one in inches and degrees Fahrenheit. Every point lies at least 2 % of the width from
-//! every edge; there the series must agree with the reference to 1e-4 of the range of the
-//! boundary temperatures (issue bar).
+//! one in inches and degrees Fahrenheit, and three plates with convective (Robin) edges: a
+//! convective top over a hidden bottom, two convective edges meeting at a corner, and a
+//! convective side next to the hidden edge (the script adds the Robin boundary form
+//! `∫ (h/κ) T v ds`; its Robin machinery is verified against a slab and two separable closed
+//! forms). Every point lies at least 2 % of the width from every edge; there the series must
+//! agree with the reference to 1e-4 of the range of the boundary temperatures, fluid
+//! temperatures included (issue bar). The heat flows through the convective edges
+//! (`heat-flow.csv`, `h ∫ (T∞ − T) ds` from the finite-element solution) must agree to 1e-4.
 
 use edgetherm::case::CaseFiles;
 use edgetherm::geometry::{Edge, EdgeCondition};
@@ -32,11 +37,18 @@ fn check_case(name: &str) -> f64 {
     // the range of the boundary data, kelvin
     let (mut lo, mut hi) = (f64::INFINITY, f64::NEG_INFINITY);
     for edge in Edge::ALL {
-        if let Some(EdgeCondition::Fixed(p)) = model.plate().condition(edge) {
-            for &t in p.temperatures() {
-                lo = lo.min(t);
-                hi = hi.max(t);
+        match model.plate().condition(edge) {
+            Some(EdgeCondition::Fixed(p)) => {
+                for &t in p.temperatures() {
+                    lo = lo.min(t);
+                    hi = hi.max(t);
+                }
             }
+            Some(EdgeCondition::Convective(c)) => {
+                lo = lo.min(c.ambient_k);
+                hi = hi.max(c.ambient_k);
+            }
+            _ => {}
         }
     }
     let range = hi - lo;
@@ -59,6 +71,23 @@ fn check_case(name: &str) -> f64 {
         );
     }
     eprintln!("{name}: worst difference {worst:.2e} of the boundary range");
+
+    let flows = dir.join("heat-flow.csv");
+    if flows.exists() {
+        let text = std::fs::read_to_string(flows).unwrap();
+        let mut checked = 0;
+        for line in text.lines().skip(1) {
+            let cells: Vec<&str> = line.split(',').collect();
+            let edge = Edge::parse(cells[0]).unwrap();
+            let fem: f64 = cells[1].trim().parse().unwrap();
+            let series = model.heat_flow(edge, &[]).unwrap().unwrap();
+            let rel = (series - fem).abs() / fem.abs();
+            eprintln!("{name} {edge}: heat flow {series:.6} vs FEM {fem:.6} W/m ({rel:.1e})");
+            assert!(rel < 1e-4, "{name} {edge}: {series} vs {fem} W/m");
+            checked += 1;
+        }
+        assert!(checked > 0);
+    }
     worst
 }
 
@@ -85,4 +114,19 @@ fn metres_and_kelvin() {
 #[test]
 fn inches_and_fahrenheit() {
     check_case("inch-fahrenheit");
+}
+
+#[test]
+fn convective_top() {
+    assert!(check_case("convective-top") < 1e-4);
+}
+
+#[test]
+fn convective_corner() {
+    assert!(check_case("convective-corner") < 1e-4);
+}
+
+#[test]
+fn convective_side() {
+    assert!(check_case("convective-side") < 1e-4);
 }

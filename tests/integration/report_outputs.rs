@@ -235,6 +235,7 @@ fn common(
         cautions: vec!["The peak is narrower than twice the resolution length: its height may be underestimated.".into()],
         conversion: None,
         read_as: Vec::new(),
+        convection: Vec::new(),
     }
 }
 
