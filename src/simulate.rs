@@ -16,7 +16,21 @@ use rand_chacha::ChaCha8Rng;
 use rand_distr::Normal;
 
 /// The true plate behind a simulation: `plate` with each unknown edge fixed at its truth.
+///
+/// # Errors
+/// [`crate::Error::Invalid`] when a convective edge's `h` is unknown: a simulation needs the
+/// true `h` behind the readings.
 pub fn truth_model(plate: &Plate, truths: &[(Edge, EdgeProfile)]) -> Result<ForwardModel> {
+    if let Some((edge, ..)) = plate.unknown_heat_transfer().first() {
+        return Err(crate::Error::invalid_field(
+            format!("edges.{edge}.h"),
+            format!(
+                "a simulation needs the true heat transfer coefficient of the convective \
+                 {edge} edge: state h = <W/(m^2 K)> (h = \"unknown\" is for estimate, design \
+                 and track)"
+            ),
+        ));
+    }
     let truth_plate = plate.with_unknowns_fixed(truths)?;
     ForwardModel::new(&truth_plate, SeriesOptions::default())
 }

@@ -94,7 +94,11 @@ pub fn run(args: &SimulateArgs, global: &GlobalOptions) -> Result<i32> {
     }
 
     let truths = read_truth_profiles(&args.truth, &case)?;
-    let model = truth_model(&case.plate, &truths)?;
+    let model = truth_model(&case.plate, &truths).map_err(|e| {
+        e.in_file(&case.files.plate, |f| {
+            edgetherm::io::plate_line_of(&case.files.plate, f)
+        })
+    })?;
     let points: Vec<_> = case.sensors.iter().map(|s| s.position).collect();
     let exact = exact_readings(&model, &points)?;
     let seed = args.seed.unwrap_or(case.uncertainty.seed);

@@ -243,7 +243,9 @@ pub const DEFAULT_NOISE_K: f64 = 0.5;
 ///   standard uncertainty (or a voltage uncertainty through the type's slope) at 25 °C,
 ///   else [`DEFAULT_NOISE_K`] when no sensor states its own sigma;
 /// * the variation: `variation_k` (from `--variation`), else `[design] variation`, else
-///   [`DEFAULT_VARIATION_PER_NOISE`] times the reading noise.
+///   [`DEFAULT_VARIATION_PER_NOISE`] times the reading noise;
+/// * an unknown heat transfer coefficient (`h = "unknown"`): the geometric middle of its
+///   search range, `√(low · high)` (the middle on the log scale the estimate searches).
 ///
 /// # Errors
 /// [`Error::Invalid`] when a stated `--variation` is not a positive finite difference.
@@ -254,6 +256,18 @@ pub fn apply_defaults(case: &mut Case, variation_k: Option<f64>) -> Result<Vec<S
     let len = |m: f64| format!("{} {l_sym}", tidy(u.length_from_m(m)));
     let dt = |k: f64| format!("{} {t_sym}", tidy(u.dtemp_from_k(k)));
     let mut used = Vec::new();
+    for (edge, low, high) in case.plate.unknown_heat_transfer() {
+        let h = (low * high).sqrt();
+        case.plate = case.plate.with_heat_transfer(edge, h)?;
+        used.push(format!(
+            "heat transfer coefficient of the convective {edge} edge {} W/(m^2 K), the \
+             geometric middle of its search range [{}, {}] (h = \"unknown\"; state h to \
+             design for the value you expect)",
+            tidy(h),
+            tidy(low),
+            tidy(high)
+        ));
+    }
     let ds = &mut case.design;
     if !ds.present {
         let shape = case.plate.shape();
