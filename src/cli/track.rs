@@ -124,6 +124,9 @@ pub struct TrackArgs {
 
 /// Run `track`: validate the flags, open the log, stream its rows through the tracker
 /// (a reading thread feeds batches), then write the summaries and print the verdict.
+/// Rows an unknown `h` is estimated from when `--calibrate` is not given.
+const H_DEFAULT_ROWS: usize = 200;
+
 pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
     let files = global.case_files(&args.case_dir, true, false)?;
     // (a device or a pipe is a log too: only a path that is missing or a folder is refused)
@@ -145,7 +148,38 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
     let mut inputs = case.files.inputs();
     inputs.push(&args.log);
     check_track_outputs(&args.out, &inputs, global.overwrite)?;
-    let (options, idle_exit) = track_options(args, &case)?;
+    let (mut options, idle_exit) = track_options(args, &case)?;
+    if !case.plate.unknown_heat_transfer().is_empty() {
+        // h = "unknown": estimated once from the first rows (the calibration rows with
+        // --calibrate), then fixed for the whole log (docs/track.md)
+        let wanted = args.calibrate.unwrap_or(H_DEFAULT_ROWS).max(1);
+        let mut first = LoggerReader::open(
+            &args.log,
+            &case,
+            &LoggerOptions {
+                ignore_extra: true,
+                follow: None,
+                dialect: args.dialect.options(args.time_format.as_deref())?,
+            },
+        )?;
+        let mut row = edgetherm::io::LoggerRow::default();
+        let mut rows = Vec::new();
+        while rows.len() < wanted && first.next_row(&mut row)? {
+            rows.push(row.values.clone());
+        }
+        let conv = edgetherm::track::estimate_h_from_rows(&case, &rows)
+            .map_err(|e| e.in_file(&args.log, |_| None))?;
+        if !global.quiet {
+            eprintln!(
+                "edgetherm: h of the {} edge estimated from the first {} rows: {} W/(m^2 K)",
+                conv.edge,
+                rows.len(),
+                edgetherm::estimate::convection::three_digits(conv.h)
+            );
+        }
+        case.plate = case.plate.with_heat_transfer(conv.edge, conv.h)?;
+        options.convection = Some(conv);
+    }
     let limit = options.limit;
     let mut cost = edgetherm::budget::track_cost(
         &case,

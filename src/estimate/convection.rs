@@ -6,12 +6,13 @@
 //! order under `auto`), is therefore a function of `h` alone:
 //! `E(h) = min_λ −2 log p(d | h, λ)`, the same criterion that chooses the strength. It is
 //! evaluated on a grid of [`GRID_POINTS`] values spaced evenly in `log h` over the search
-//! range, and refined by a parabola through the best grid point and its neighbours.
+//! range; the minimum is refined by Brent's method between the best grid point's neighbours
+//! and each end of the interval by Brent's root finder (argmin), all in `log h`.
 //!
 //! - Estimate: `ĥ = argmin E(h)`.
 //! - Interval: the profile-likelihood interval `{h : E(h) ≤ E(ĥ) + χ²₁(γ)}` at the case's
-//!   confidence `γ` (Wilks' theorem; e.g. Pawitan, *In All Likelihood*, §2.6 and §3.4), its
-//!   ends found by linear interpolation of `E` between grid points. An end that reaches the
+//!   confidence `γ` (Wilks' theorem; e.g. Pawitan, *In All Likelihood*, §2.6 and §3.4;
+//!   section numbers recalled from memory). An end that reaches the
 //!   search range means the readings do not bound `h` on that side: the interval is then the
 //!   range's end and the result says so.
 //! - Bands: the estimate is run at `ĥ` and at both ends of the interval, and every band and
@@ -27,12 +28,26 @@ use crate::error::{Error, Result};
 use crate::estimate::fit::fit;
 use crate::geometry::Edge;
 use crate::inverse::{Strength, StrengthMethod};
+use argmin::core::{CostFunction, Executor};
+use argmin::solver::brent::{BrentOpt, BrentRoot};
 use rayon::prelude::*;
 use serde::Serialize;
 use statrs::distribution::{ChiSquared, ContinuousCDF};
 
-/// Grid points over the search range of `h` (log-spaced).
-pub const GRID_POINTS: usize = 41;
+/// Grid points over the search range of `h` (log-spaced); the optimum and the interval's
+/// ends are then refined with exact evaluations.
+pub const GRID_POINTS: usize = 25;
+
+/// A function of `log h` as an argmin cost.
+struct Curve<'a>(&'a dyn Fn(f64) -> f64);
+
+impl CostFunction for Curve<'_> {
+    type Param = f64;
+    type Output = f64;
+    fn cost(&self, x: &f64) -> std::result::Result<f64, argmin::core::Error> {
+        Ok((self.0)(*x))
+    }
+}
 
 /// The estimated heat transfer coefficient of one convective edge.
 #[derive(Debug, Clone, Serialize)]
@@ -62,37 +77,46 @@ impl ConvectionEstimate {
     }
 }
 
-/// `E(h)` for one `h`: the case with `h` set, its problem, and the evidence fit.
+/// `E(h)` for one `h`, summed over sets of readings taken under the same `h` (one set for
+/// an estimate; several logger rows for `track`): the case with `h` set, its model built
+/// once, and the evidence fit of each set.
 fn criterion(
     case: &Case,
     edge: Edge,
     h: f64,
-    readings: &[Option<f64>],
+    readings: &[Vec<Option<f64>>],
     options: &EstimateOptions,
 ) -> Result<f64> {
     let mut trial = case.clone();
     trial.plate = case.plate.with_heat_transfer(edge, h)?;
-    let problem = super::problem::Problem::new(&trial, readings, options)?;
-    let rows: Vec<usize> = problem
-        .with_reading
-        .iter()
-        .copied()
-        .filter(|i| !options.exclude.contains(i))
-        .collect();
-    let f = fit(
-        &problem.input(&rows),
-        Strength::Rule(StrengthMethod::Evidence),
-    )?;
-    Ok(f.selection.criterion)
+    let model = super::case_model(&trial)?;
+    let mut total = 0.0;
+    for set in readings {
+        let problem = super::problem::Problem::with_model(&trial, set, options, model.clone())?;
+        let rows: Vec<usize> = problem
+            .with_reading
+            .iter()
+            .copied()
+            .filter(|i| !options.exclude.contains(i))
+            .collect();
+        let f = fit(
+            &problem.input(&rows),
+            Strength::Rule(StrengthMethod::Evidence),
+        )?;
+        total += f.selection.criterion;
+    }
+    Ok(total)
 }
 
-/// Profile `E(h)` over the search range of the case's unknown `h`.
+/// Profile `E(h)` over the search range of the case's unknown `h`, from one set of readings
+/// (kelvin, aligned with `case.sensors`) or several taken under the same `h` (their
+/// criteria add: independent readings, one edge profile each).
 ///
 /// # Errors
 /// Refuses more than one unknown `h`; errors of the problem (too few readings, ...).
 pub fn profile_h(
     case: &Case,
-    readings: &[Option<f64>],
+    readings: &[Vec<Option<f64>>],
     options: &EstimateOptions,
 ) -> Result<ConvectionEstimate> {
     let unknown = case.plate.unknown_heat_transfer();
@@ -134,17 +158,25 @@ pub fn profile_h(
             "the marginal likelihood is not finite for any h in the search range".into(),
         ));
     }
-    // parabola through the best grid point and its neighbours, in log h
-    let step = (l1 - l0) / (GRID_POINTS - 1) as f64;
-    let (mut log_h, mut e_min) = (hs[k].ln(), e_best);
+    // refine in log h with exact evaluations: the minimum by Brent's method between the
+    // best grid point's neighbours, each end of the interval by Brent's root finder between
+    // the optimum and the nearest grid point above the level
+    let xs: Vec<f64> = hs.iter().map(|h| h.ln()).collect();
+    let e_at =
+        |x: f64| finite(criterion(case, edge, x.exp(), readings, options).unwrap_or(f64::NAN));
+    let (mut x_hat, mut e_min) = (xs[k], e_best);
     if k > 0 && k + 1 < GRID_POINTS {
-        let (a, b, c) = (finite(values[k - 1]), e_best, finite(values[k + 1]));
-        let den = a - 2.0 * b + c;
-        if den > 0.0 && den.is_finite() {
-            let shift = 0.5 * (a - c) / den;
-            if shift.abs() <= 1.0 {
-                log_h += shift * step;
-                e_min = b - 0.25 * (a - c) * shift;
+        let solver = BrentOpt::new(xs[k - 1], xs[k + 1]).set_tolerance(1e-5, 1e-6);
+        if let Ok(res) = Executor::new(Curve(&e_at), solver)
+            .configure(|st| st.param(xs[k]).max_iters(40))
+            .ctrlc(false)
+            .run()
+        {
+            let st = res.state();
+            if let Some(x) = st.best_param {
+                if st.best_cost < e_min {
+                    (x_hat, e_min) = (x, st.best_cost);
+                }
             }
         }
     }
@@ -152,31 +184,30 @@ pub fn profile_h(
         .map_err(|e| Error::Internal(format!("chi-square distribution: {e}")))?
         .inverse_cdf(case.uncertainty.confidence);
     let level = e_min + cut;
-    // walk out from the best grid point to where E crosses the level
-    let cross = |i: usize, j: usize| {
-        let (ei, ej) = (finite(values[i]), finite(values[j]));
-        let t = if ej.is_finite() && ej != ei {
-            ((level - ei) / (ej - ei)).clamp(0.0, 1.0)
+    let crossing = |outer: f64| -> f64 {
+        let (a, b) = if outer < x_hat {
+            (outer, x_hat)
         } else {
-            0.5
+            (x_hat, outer)
         };
-        (hs[i].ln() + t * (hs[j].ln() - hs[i].ln())).exp()
+        let above = |x: f64| e_at(x) - level;
+        let solver = BrentRoot::new(a, b, 1e-5);
+        Executor::new(Curve(&above), solver)
+            .configure(|st| st.param(0.5 * (a + b)).max_iters(40))
+            .ctrlc(false)
+            .run()
+            .ok()
+            .and_then(|r| r.state().best_param)
+            .unwrap_or(outer)
     };
-    let mut lo = None;
-    for i in (0..k).rev() {
-        if finite(values[i]) > level {
-            lo = Some(cross(i + 1, i));
-            break;
-        }
-    }
-    let mut hi = None;
-    for i in k + 1..GRID_POINTS {
-        if finite(values[i]) > level {
-            hi = Some(cross(i - 1, i));
-            break;
-        }
-    }
-    let h = log_h.exp().clamp(low, high);
+    let lo = (0..GRID_POINTS)
+        .rev()
+        .find(|&i| xs[i] < x_hat && values[i].is_finite() && values[i] > level)
+        .map(|i| crossing(xs[i]).exp());
+    let hi = (0..GRID_POINTS)
+        .find(|&i| xs[i] > x_hat && values[i].is_finite() && values[i] > level)
+        .map(|i| crossing(xs[i]).exp());
+    let h = x_hat.exp().clamp(low, high);
     Ok(ConvectionEstimate {
         edge,
         h,
@@ -200,7 +231,7 @@ pub(super) fn estimate_unknown_h(
     options: &EstimateOptions,
     progress: Option<&(dyn Fn(usize) + Sync)>,
 ) -> Result<EstimateResult> {
-    let conv = profile_h(case, readings, options)?;
+    let conv = profile_h(case, &[readings.to_vec()], options)?;
     let at = |h: f64, progress: Option<&(dyn Fn(usize) + Sync)>| -> Result<EstimateResult> {
         let mut trial = case.clone();
         trial.plate = case.plate.with_heat_transfer(conv.edge, h)?;
@@ -219,7 +250,7 @@ pub(super) fn estimate_unknown_h(
         widen(&mut result, &other);
     }
     result.plate = case.plate.clone();
-    let show = |v: f64| super::assemble::significant3(v);
+    let show = three_digits;
     let mut caution = format!(
         "The heat transfer coefficient of the {} edge was estimated from the readings: h = {} \
          W/(m² K), {:.0} % interval [{}, {}] W/(m² K) (profile likelihood). Every band and \
@@ -288,4 +319,12 @@ fn widen(r: &mut EstimateResult, other: &EstimateResult) {
         x.probability = x.probability.max(y.probability);
         x.alarm = x.probability > x.alarm_probability;
     }
+}
+
+/// `v` with three significant digits (`2930`, `31.6`, `1.00e5`), for messages.
+pub fn three_digits(v: f64) -> String {
+    if v != 0.0 && v.is_finite() && !(1e-3..1e5).contains(&v.abs()) {
+        return format!("{v:.2e}");
+    }
+    super::assemble::significant3(v)
 }

@@ -53,7 +53,17 @@ impl<'a> Problem<'a> {
         readings: &'a [Option<f64>],
         options: &EstimateOptions,
     ) -> Result<Self> {
-        let model = case_model(case)?;
+        Problem::with_model(case, readings, options, case_model(case)?)
+    }
+
+    /// [`Problem::new`] with the case's forward model already built (it must be
+    /// [`case_model`] of `case`), for callers that fit many readings on one model.
+    pub fn with_model(
+        case: &'a Case,
+        readings: &'a [Option<f64>],
+        options: &EstimateOptions,
+        model: ForwardModel,
+    ) -> Result<Self> {
         let with_reading: Vec<usize> = (0..case.sensors.len())
             .filter(|&i| readings.get(i).copied().flatten().is_some())
             .collect();

@@ -77,6 +77,10 @@ pub struct TrackOptions {
     pub max_gradient_k_per_m: Option<f64>,
     /// Bound every this many fitted rows (and the row that opens an episode).
     pub bounds_every: usize,
+    /// The heat transfer coefficient estimated once from the first rows, when the case has
+    /// `h = "unknown"` ([`estimate_h_from_rows`]); the case given to [`Tracker::new`] then
+    /// carries `ĥ`.
+    pub convection: Option<crate::estimate::convection::ConvectionEstimate>,
 }
 
 impl Default for TrackOptions {
@@ -95,6 +99,7 @@ impl Default for TrackOptions {
             replicates: None,
             max_gradient_k_per_m: None,
             bounds_every: bounds::DEFAULT_BOUNDS_EVERY,
+            convection: None,
         }
     }
 }
@@ -592,6 +597,26 @@ impl Tracker {
              so a trend across rows is better known than any single row."
                 .to_string(),
         );
+        if let Some(c) = &self.options.convection {
+            let three = |v: f64| crate::estimate::convection::three_digits(v);
+            cautions.push(format!(
+                "The heat transfer coefficient of the {} edge was estimated once, from the \
+                 first rows of the log: h = {} W/(m² K), {:.0} % interval [{}, {}] W/(m² K){}. \
+                 Every row is fitted with that h; the per-row bands do not include its \
+                 uncertainty. If the coolant flow changes during the log, state h or split the \
+                 log.",
+                c.edge,
+                three(c.h),
+                100.0 * self.case.uncertainty.confidence,
+                three(c.h_interval[0]),
+                three(c.h_interval[1]),
+                if c.identified() {
+                    ""
+                } else {
+                    " - the rows do not pin h down (the whole search range)"
+                }
+            ));
+        }
         if self.counts.skipped > 0 {
             cautions.push(format!(
                 "{} rows were skipped (too few usable readings); see the status column of \
@@ -627,6 +652,7 @@ impl Tracker {
                 empty: b.empty,
             }),
             cautions,
+            convection: self.options.convection.clone(),
         }
     }
 
@@ -773,6 +799,9 @@ pub struct TrackSummary {
     pub bounds: Option<BoundsCounts>,
     /// Cautions.
     pub cautions: Vec<String>,
+    /// The heat transfer coefficient estimated from the first rows, if the case had
+    /// `h = "unknown"`.
+    pub convection: Option<crate::estimate::convection::ConvectionEstimate>,
 }
 
 /// What the strict bounds found over a log ([`bounds`]).
@@ -790,4 +819,37 @@ pub struct BoundsCounts {
     pub limit_ruled_out: u64,
     /// Bounded rows whose admissible set was empty (the gradient limit contradicts them).
     pub empty: u64,
+}
+
+/// Rows the estimate of an unknown `h` uses at most (spread evenly over the rows read).
+pub const H_ROWS: usize = 25;
+
+/// Estimate a case's unknown heat transfer coefficient once from logger rows (readings in
+/// kelvin, aligned with `case.sensors`): up to [`H_ROWS`] of them, spread evenly, their
+/// marginal likelihoods added ([`crate::estimate::convection::profile_h`]). Rows with too few
+/// readings for a fit are passed over.
+///
+/// # Errors
+/// [`crate::Error::Invalid`] when no row has enough readings; errors of the profile.
+pub fn estimate_h_from_rows(
+    case: &Case,
+    rows: &[Vec<Option<f64>>],
+) -> Result<crate::estimate::convection::ConvectionEstimate> {
+    let needed = case.sensors.len().min(3);
+    let usable: Vec<&Vec<Option<f64>>> = rows
+        .iter()
+        .filter(|r| r.iter().filter(|v| v.is_some()).count() >= needed)
+        .collect();
+    if usable.is_empty() {
+        return Err(crate::Error::invalid_field(
+            "--log",
+            "the log has no row with enough readings to estimate the unknown heat transfer \
+             coefficient (h = \"unknown\"); state h in plate.toml",
+        ));
+    }
+    let take = usable.len().min(H_ROWS);
+    let chosen: Vec<Vec<Option<f64>>> = (0..take)
+        .map(|i| usable[i * usable.len() / take].clone())
+        .collect();
+    crate::estimate::convection::profile_h(case, &chosen, &EstimateOptions::default())
 }

@@ -297,6 +297,20 @@ pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
         "version": env!("CARGO_PKG_VERSION"),
         "cautions": s.cautions,
     });
+    if let Some(c) = &s.convection {
+        let sig = |x: f64| significant(x, 4);
+        v["convection"] = json!({
+            c.edge.name(): {
+                "h": sig(c.h),
+                "h_interval": [sig(c.h_interval[0]), sig(c.h_interval[1])],
+                "h_range": [sig(c.h_range[0]), sig(c.h_range[1])],
+                "bounded_below": !c.open_below,
+                "bounded_above": !c.open_above,
+                "unit": "W/(m^2 K)",
+                "estimated_from": "the first rows of the log, once",
+            }
+        });
+    }
     if !case.read_as.is_empty() {
         v["inputs_read_as"] = json!(case.read_as);
     }
