@@ -10,6 +10,7 @@ mod bounds_reference;
 mod calibration;
 mod cli_bounds;
 mod cli_check;
+mod cli_convective;
 mod cli_estimate;
 mod cli_invalid_input;
 mod cli_simulate;
