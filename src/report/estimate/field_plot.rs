@@ -154,9 +154,17 @@ fn edge_conditions(r: &EstimateResult, u: &CaseUnits) -> String {
             Some(match c {
                 EdgeCondition::Unknown => format!("{e} unknown (thick line)"),
                 EdgeCondition::Insulated => format!("{e} insulated"),
-                EdgeCondition::Convective(cv) => {
-                    format!("{e} convective to {}", u.temp_show(cv.ambient_k))
-                }
+                EdgeCondition::Convective(cv) => match cv.known_h() {
+                    Some(h) => format!(
+                        "{e} convective (h {} W/(m² K)) to {}",
+                        crate::report::format::significant_text(h, 3),
+                        u.temp_show(cv.ambient_k)
+                    ),
+                    None => format!(
+                        "{e} convective (h estimated) to {}",
+                        u.temp_show(cv.ambient_k)
+                    ),
+                },
                 EdgeCondition::Fixed(p) if p.is_constant() => {
                     format!("{e} fixed at {}", u.temp_show(p.temperatures()[0]))
                 }

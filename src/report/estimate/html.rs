@@ -484,10 +484,26 @@ fn case_html(o: &mut String, r: &EstimateResult) {
                         significant_text(h, 3),
                         u.temp_show(cv.ambient_k)
                     ),
-                    None => format!(
-                        "convective, h estimated from the readings, fluid at {}",
-                        u.temp_show(cv.ambient_k)
-                    ),
+                    None => match r.convection.iter().find(|c| c.edge == e) {
+                        Some(c) => format!(
+                            "convective, fluid at {}; h estimated from the readings: {} W/(m² K), \
+                             {} interval [{}, {}] W/(m² K){}",
+                            u.temp_show(cv.ambient_k),
+                            significant_text(c.h, 3),
+                            super::summary::percent(r.confidence),
+                            significant_text(c.h_interval[0], 3),
+                            significant_text(c.h_interval[1], 3),
+                            if c.identified() {
+                                ""
+                            } else {
+                                " (not identified by these readings: the whole search range)"
+                            }
+                        ),
+                        None => format!(
+                            "convective, h estimated from the readings, fluid at {}",
+                            u.temp_show(cv.ambient_k)
+                        ),
+                    },
                 },
                 EdgeCondition::Fixed(p) if p.is_constant() => {
                     format!("fixed at {}", u.temp_show(p.temperatures()[0]))
