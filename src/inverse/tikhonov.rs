@@ -141,6 +141,8 @@ pub struct Decomposition {
     v_perp: DMatrix<f64>,
     pub(crate) sigma_stated: bool,
     data: Projection,
+    /// `Σ_k Q₁,ik²` per datum: the λ-independent part of the leverages.
+    lev_null: Vec<f64>,
 }
 
 /// The regularised solution at one λ, with its diagnostics. Quantities named "weighted" use
@@ -350,7 +352,15 @@ impl Decomposition {
             v_perp,
             sigma_stated: problem.sigma_stated(),
             data,
+            lev_null: Vec::new(),
         };
+        let mut lev_null = vec![0.0; m];
+        for col in dec.q1.as_slice().chunks_exact(m.max(1)).take(dec.q) {
+            for (o, &v) in lev_null.iter_mut().zip(col) {
+                *o += v * v;
+            }
+        }
+        dec.lev_null = lev_null;
         let mut proj = dec.empty_projection();
         dec.project_into(problem.d(), &mut proj)?;
         dec.data = proj;
@@ -626,13 +636,9 @@ impl Decomposition {
     pub fn leverages_into(&self, lambda: f64, out: &mut Vec<f64>) -> Result<()> {
         check_lambda(lambda)?;
         out.clear();
-        out.resize(self.m, 0.0);
+        // the null-space part, summed once at construction in this same order
+        out.extend_from_slice(&self.lev_null);
         let m = self.m;
-        for col in self.q1.as_slice().chunks_exact(m.max(1)).take(self.q) {
-            for (o, &v) in out.iter_mut().zip(col) {
-                *o += v * v;
-            }
-        }
         for (col, &g) in self.u.as_slice().chunks_exact(m.max(1)).zip(self.g.iter()) {
             let f = g * g / (g * g + lambda);
             for (o, &v) in out.iter_mut().zip(col) {

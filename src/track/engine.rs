@@ -255,6 +255,9 @@ struct Pattern {
     /// Where the evidence rule's search ended on the pattern's previous row.
     search: EvidenceSearch,
     last_use: u64,
+    /// The row (`RowEstimator::row_serial`) whose data `proj` holds, if `auto` smoothing's
+    /// order choice projected them.
+    projected_row: u64,
 }
 
 impl Pattern {
@@ -363,6 +366,9 @@ pub struct RowEstimator {
     /// Per order, the evidence rule's λ for the current row, when `auto` smoothing chose the
     /// order by it (so that the row's strength is not searched for twice).
     row_evidence: [Option<f64>; 3],
+    /// Counts the rows through [`Self::order_for`] (from 1), so that a pattern knows whether
+    /// its projection holds the current row's data (`Pattern::projected_row`).
+    row_serial: u64,
     /// `1/(g_k² + λ)` of the row's λ and `1/λ` ([`VarianceParts::reciprocals`]).
     inv_den: Vec<f64>,
     inv_lambda: f64,
@@ -480,6 +486,7 @@ impl RowEstimator {
             clock: 0,
             ref_log_lambda: [None; 3],
             row_evidence: [None; 3],
+            row_serial: 0,
             inv_den: Vec::new(),
             inv_lambda: 0.0,
             coef_work: Vec::new(),
@@ -564,6 +571,7 @@ impl RowEstimator {
 
     fn order_for(&mut self, readings: &[Option<f64>], used: &[usize]) -> Result<usize> {
         self.row_evidence = [None; 3];
+        self.row_serial += 1;
         if let Some(o) = self.case.fit.smoothing.order() {
             return Ok(o);
         }
@@ -576,6 +584,7 @@ impl RowEstimator {
                 .ok_or_else(internal)?;
             fill_d(&mut self.d, used, readings, &self.sensor_map.offset);
             pat.dec.project_into(&self.d, &mut pat.proj)?;
+            pat.projected_row = self.row_serial;
             if let Ok(sel) = pat.select(Strength::Rule(StrengthMethod::Evidence), self.reference) {
                 self.row_evidence[order] = Some(sel.lambda);
                 let e = sel.criterion;
@@ -648,6 +657,7 @@ impl RowEstimator {
                 variance: None,
                 search: EvidenceSearch::default(),
                 last_use: self.clock,
+                projected_row: 0,
             },
         );
         Ok(())
@@ -679,9 +689,9 @@ impl RowEstimator {
                 self.q_null,
             ));
         }
-        let order = match strength {
-            RowStrength::Fixed { order, .. } => order,
-            RowStrength::PerRow(_) => self.order_for(readings, used)?,
+        let (order, serial) = match strength {
+            RowStrength::Fixed { order, .. } => (order, None),
+            RowStrength::PerRow(_) => (self.order_for(readings, used)?, Some(self.row_serial)),
         };
         self.pattern_key(readings, used, order)?;
         // The pattern leaves the cache for the row (so that the steps can borrow it beside
@@ -700,7 +710,8 @@ impl RowEstimator {
                 RowStrength::PerRow(_) => RowMode::Chosen,
             },
             lambda: 0.0,
-            projected: false,
+            // the order choice projected this very row onto the pattern's basis already
+            projected: serial.is_some_and(|s| pat.projected_row == s),
             coefficients: false,
             s: 1.0,
         };
@@ -889,7 +900,8 @@ impl RowEstimator {
         }
     }
 
-    /// Step 5: the profile and its posterior sd on the scan grid, and the leverages.
+    /// Step 5: the profile and its posterior sd on the scan grid, and at a fixed λ the
+    /// leverages (at a chosen λ the diagnostics form them at the λ they judge at).
     fn scan_profile(
         &mut self,
         pat: &mut Pattern,
@@ -918,7 +930,7 @@ impl RowEstimator {
             for (j, &fi) in self.scan_index.iter().enumerate() {
                 self.scan_sd[j] = vp.sd_with(fi, &self.inv_den, self.inv_lambda) * s;
             }
-            leverages(&pat.dec, step.lambda, self.reference, leverage)?;
+            // the leverages are formed by the diagnostics, at the λ they are judged at
         }
         Ok(())
     }
@@ -1136,6 +1148,8 @@ impl RowEstimator {
                 }
                 pat.dec.predict_into(&self.c_ref, &mut self.fitted_ref)?;
                 leverages(&pat.dec, lref, self.reference, leverage)?;
+            } else {
+                leverages(&pat.dec, lambda, self.reference, leverage)?;
             }
         }
         let fitted_d = if use_ref {
