@@ -54,7 +54,10 @@ pub struct EvidenceSearch {
     ell: Vec<f64>,
     quad: Vec<f64>,
     value: Vec<f64>,
-    done: Vec<bool>,
+    /// `done[k] == id`: grid point `k` was evaluated by the search under way (no clearing of
+    /// the arrays between searches; the values of other points are never read).
+    done: Vec<u32>,
+    id: u32,
     /// Runs of grid points still to examine.
     stack: Vec<(usize, usize)>,
     /// Grid points evaluated by the last search (for the benchmark's account).
@@ -64,8 +67,8 @@ pub struct EvidenceSearch {
     table: Option<GridTable>,
 }
 
-/// Per grid point `k`, the weights `w_i = λ_k/(g_i² + λ_k)` (row `k` of `w`, r values) and
-/// `ℓ(λ_k)`, computed by the same expressions as [`Decomposition::sums`], so that a grid
+/// Per grid point `k`, the weights `w_i = λ_k/(g_i² + λ_k)` (row `k` of `w`, r values),
+/// `1/(g_i² + λ_k)` and `ℓ(λ_k)`, computed by the same expressions as [`Decomposition::sums`], so that a grid
 /// value read from the table is the same number as one computed afresh: the search then
 /// costs one multiply-add pass over r values per grid point instead of r divisions and a
 /// logarithm. Valid for one decomposition and grid (`key`).
@@ -75,7 +78,11 @@ struct GridTable {
     key: (usize, u64, u64),
     g: Vec<f64>,
     w: Vec<f64>,
+    /// Row `k`: `1/(g_i² + λ_k)` (the Newton step's sums at the bracket's ends).
+    inv: Vec<f64>,
     ell: Vec<f64>,
+    /// `λ_k`.
+    lambda: Vec<f64>,
 }
 
 /// The two sums and the criterion at one λ.
@@ -130,19 +137,29 @@ impl Decomposition {
     fn grid_table(&self, key: (usize, u64, u64), lambda: impl Fn(usize) -> f64) -> GridTable {
         let (n, r) = (key.0, self.g.len());
         let mut w = Vec::with_capacity(n * r);
+        let mut inv = Vec::with_capacity(n * r);
         let mut ell = Vec::with_capacity(n);
+        let mut lambdas = Vec::with_capacity(n);
         let zero = self.empty_projection();
         for k in 0..n {
             let lam = lambda(k);
-            // the same expression as `sums` (w = λ/(g² + λ)), and ℓ from `sums` itself
+            // the same expressions as `sums` (w = λ/(g² + λ)) and `derivatives`
+            // (1/(g² + λ)), and ℓ from `sums` itself
             w.extend(self.g.iter().map(|g| lam / (g * g + lam)));
+            inv.extend(self.g.iter().map(|g| {
+                let g2 = g * g;
+                1.0 / (g2 + lam)
+            }));
             ell.push(self.sums(&zero, lam).0);
+            lambdas.push(lam);
         }
         GridTable {
             key,
             g: self.g.as_slice().to_vec(),
             w,
+            inv,
             ell,
+            lambda: lambdas,
         }
     }
 
@@ -177,25 +194,26 @@ impl Decomposition {
                 value: criterion(kind, mp, ell, quad),
             }
         };
-        st.ell.clear();
-        st.ell.resize(n, 0.0);
-        st.quad.clear();
-        st.quad.resize(n, 0.0);
-        st.value.clear();
-        st.value.resize(n, f64::INFINITY);
-        st.done.clear();
-        st.done.resize(n, false);
+        st.id = st.id.wrapping_add(1);
+        if st.done.len() != n || st.id == 0 {
+            st.ell = vec![0.0; n];
+            st.quad = vec![0.0; n];
+            st.value = vec![f64::INFINITY; n];
+            st.done = vec![0; n];
+            st.id = 1;
+        }
+        let id = st.id;
         st.evaluated = 0;
         let mut best = (f64::INFINITY, usize::MAX);
         let visit = |st: &mut EvidenceSearch, k: usize, best: &mut (f64, usize)| {
-            if st.done[k] {
+            if st.done[k] == id {
                 return;
             }
             let p = eval_grid(k);
             st.ell[k] = p.ell;
             st.quad[k] = p.quad;
             st.value[k] = not_nan(p.value);
-            st.done[k] = true;
+            st.done[k] = id;
             st.evaluated += 1;
             let v = st.value[k];
             if v < best.0 || (v <= best.0 && k < best.1) {
@@ -217,7 +235,7 @@ impl Decomposition {
         st.stack.clear();
         let mut prev = 0;
         for k in 1..n {
-            if st.done[k] {
+            if st.done[k] == id {
                 if k > prev + 1 {
                     st.stack.push((prev, k));
                 }
@@ -244,7 +262,7 @@ impl Decomposition {
         // worse than `best` by more than the margin, so scanning the evaluated ones suffices
         let (fk, k) = best;
         let k = (0..n)
-            .find(|&j| st.done[j] && st.value[j].total_cmp(&fk).is_eq())
+            .find(|&j| st.done[j] == id && st.value[j].total_cmp(&fk).is_eq())
             .unwrap_or(k);
         st.last_k = Some(k);
         let effective = |lambda: f64| {
@@ -267,7 +285,21 @@ impl Decomposition {
         }
         let ln10 = std::f64::consts::LN_10;
         let (a, b) = (x_at(k - 1) * ln10, x_at(k + 1) * ln10);
-        let Some(t) = self.stationary(proj, kind, a, b, st.last_t) else {
+        // dE/dt at the bracket's ends (grid points: from the table)
+        let at_grid = |k: usize| {
+            let mut inv = table.inv[k * r..(k + 1) * r].iter();
+            self.derivatives_with(proj, kind, table.lambda[k], |_| {
+                inv.next().copied().unwrap_or(f64::NAN)
+            })
+            .0
+        };
+        let Some(t) = self.stationary(
+            proj,
+            kind,
+            (a, at_grid(k - 1)),
+            (b, at_grid(k + 1)),
+            st.last_t,
+        ) else {
             st.last_t = None;
             return self.select_for(proj, strength, opts);
         };
@@ -342,12 +374,25 @@ impl Decomposition {
     /// known σ `(S₁ − Σ f_i, dS₁/dt + Σ f_i w_i)`; profiled scale
     /// `(m' S₁/Q − Σ f_i, m' (dS₁/dt / Q − S₁²/Q²) + Σ f_i w_i)`.
     fn derivatives(&self, proj: &Projection, kind: EvidenceKind, t: f64) -> (f64, f64) {
-        let mp = (self.m - self.q) as f64;
         let lambda = t.exp();
+        self.derivatives_with(proj, kind, lambda, |g2| 1.0 / (g2 + lambda))
+    }
+
+    /// [`Self::derivatives`] at `λ = e^t`, with `inv(g_i²)` giving `1/(g_i² + λ)` (computed,
+    /// or read from the grid's table: the same numbers).
+    #[inline]
+    fn derivatives_with(
+        &self,
+        proj: &Projection,
+        kind: EvidenceKind,
+        lambda: f64,
+        mut inv_of: impl FnMut(f64) -> f64,
+    ) -> (f64, f64) {
+        let mp = (self.m - self.q) as f64;
         let (mut sf, mut sfw, mut s1, mut s1p, mut quad) = (0.0, 0.0, 0.0, 0.0, proj.delta0);
         for (gi, bi) in self.g.iter().zip(proj.beta.iter()) {
             let g2 = gi * gi;
-            let inv = 1.0 / (g2 + lambda);
+            let inv = inv_of(g2);
             let (f, w) = (g2 * inv, lambda * inv);
             let b2 = bi * bi;
             let fw = f * w;
@@ -372,13 +417,11 @@ impl Decomposition {
         &self,
         proj: &Projection,
         kind: EvidenceKind,
-        a: f64,
-        b: f64,
+        (a, da): (f64, f64),
+        (b, db): (f64, f64),
         warm: Option<f64>,
     ) -> Option<f64> {
         let deriv = |t: f64| self.derivatives(proj, kind, t);
-        let (da, _) = deriv(a);
-        let (db, _) = deriv(b);
         if !(da < 0.0 && db > 0.0) {
             return None;
         }
