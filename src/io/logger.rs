@@ -575,7 +575,9 @@ impl LoggerReader {
         } else {
             "temperature"
         };
-        if FAULT_MARKERS.iter().any(|m| m.eq_ignore_ascii_case(text)) {
+        // no marker starts with a digit: a cell that does (most readings) skips the list
+        if !cell[0].is_ascii_digit() && FAULT_MARKERS.iter().any(|m| m.eq_ignore_ascii_case(text))
+        {
             return Ok(None);
         }
         let number = self.dialect.number_text(text).map_err(err)?;
@@ -869,6 +871,14 @@ pub fn check_track_outputs(out: &Path, inputs: &[&Path], overwrite: bool) -> Res
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn no_fault_marker_starts_with_a_digit() {
+        // `cell_value` skips the marker list for a cell that starts with a digit
+        for m in FAULT_MARKERS {
+            assert!(!m.as_bytes()[0].is_ascii_digit(), "{m}");
+        }
+    }
 
     #[test]
     fn times_in_every_form() {
