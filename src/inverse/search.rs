@@ -585,6 +585,54 @@ mod tests {
     }
 
     #[test]
+    fn grid_table_gives_the_numbers_computed_afresh() {
+        // the table's ℓ, Q and 1/(g² + λ) at every grid point, bit for bit against `sums`
+        // and `derivatives` evaluated at that λ (so the tabled search finds what the
+        // untabled one found)
+        for stated in [true, false] {
+            let (dec, rows) = problem_and_rows(16, 12, stated, 3);
+            let opts = SelectOptions {
+                keep_curve: false,
+                ..SelectOptions::default()
+            };
+            let mut st = EvidenceSearch::default();
+            let proj = dec.projection(&rows[1]).unwrap();
+            dec.select_evidence(&proj, &opts, &mut st).unwrap();
+            let table = st.table.as_ref().unwrap();
+            let r = dec.g.len();
+            let grid = dec.lambda_grid(&opts).unwrap();
+            assert_eq!(table.lambda.len(), grid.len());
+            let kind = dec.evidence_kind(&opts);
+            for (k, &lam) in table.lambda.iter().enumerate() {
+                // the grid is in log10 λ
+                let x = lam.log10();
+                assert!((x - grid[k]).abs() <= 1e-12 * (1.0 + grid[k].abs()), "{k}");
+                let (ell, quad) = dec.sums(&proj, lam);
+                assert_eq!(table.ell[k].to_bits(), ell.to_bits(), "{k}");
+                let q2 = quad_sum(&table.w[k * r..(k + 1) * r], &proj);
+                assert_eq!(q2.to_bits(), quad.to_bits(), "{k}");
+                let mut inv = table.inv[k * r..(k + 1) * r].iter();
+                let from_table = dec.derivatives_with(&proj, kind, lam, |_| *inv.next().unwrap());
+                // what `derivatives` computes once it has λ
+                let fresh = dec.derivatives_with(&proj, kind, lam, |g2| 1.0 / (g2 + lam));
+                assert_eq!(from_table.0.to_bits(), fresh.0.to_bits(), "{k}");
+                assert_eq!(from_table.1.to_bits(), fresh.1.to_bits(), "{k}");
+            }
+            // a different decomposition through the same state: the table is rebuilt (a
+            // stale one would put the grid minimum elsewhere); the warm start differs, so the
+            // two agree to the Newton step's tolerance
+            let (dec2, rows2) = problem_and_rows(14, 12, stated, 2);
+            let proj2 = dec2.projection(&rows2[1]).unwrap();
+            let a = dec2.select_evidence(&proj2, &opts, &mut st).unwrap();
+            let b = dec2
+                .select_evidence(&proj2, &opts, &mut EvidenceSearch::default())
+                .unwrap();
+            assert!((a.lambda.ln() - b.lambda.ln()).abs() < 1e-10);
+            assert_eq!(st.table.as_ref().unwrap().g, dec2.g.as_slice());
+        }
+    }
+
+    #[test]
     fn derivative_matches_finite_differences_of_the_criterion() {
         // the Newton step's dE/d ln λ and d²E/d ln λ² against central differences of the
         // criterion itself (evaluated as the strength module does)

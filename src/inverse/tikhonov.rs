@@ -1033,6 +1033,44 @@ mod tests {
     }
 
     #[test]
+    fn maps_in_the_singular_basis_match_the_map_times_the_coefficients() {
+        // [M K | M_N] x(λ) against M c(λ), c from `coefficients_into`, for an arbitrary map
+        // M (a profile grid of a different size than the data), over- and under-determined,
+        // with and without an unpenalised block, at strengths across the spectrum
+        for (m, p, q) in [(8, 14, 2), (20, 12, 1), (10, 10, 0)] {
+            let pr = problem(m, p, q, 1.0);
+            let dec = Decomposition::new(&pr).unwrap();
+            let map = DMatrix::from_fn(37, p, |i, j| ((i * 3 + j * 7) as f64 * 0.37).sin());
+            let basis = dec.basis_map(&map).unwrap();
+            assert_eq!(basis.shape(), (37, dec.singular_values().len() + q));
+            let sensors = dec.basis_map(pr.a()).unwrap();
+            let proj = dec.projection(pr.d()).unwrap();
+            let (mut c, mut x) = (DVector::zeros(p), DVector::zeros(0));
+            for lambda in [1e-8, 1e-4, 1e-1, 10.0, 1e4] {
+                dec.coefficients_into(&proj, lambda, &mut c).unwrap();
+                dec.basis_weights_into(&proj, lambda, &mut x).unwrap();
+                let (want, got) = (&map * &c, &basis * &x);
+                let scale = want.amax().max(c.amax());
+                assert!(
+                    (&want - &got).amax() < 1e-11 * scale,
+                    "{m} {p} {q} λ {lambda}"
+                );
+                let mut fit = DVector::zeros(m);
+                dec.predict_into(&c, &mut fit).unwrap();
+                let fit2 = &sensors * &x;
+                assert!((&fit - &fit2).amax() < 1e-11 * fit.amax().max(scale));
+            }
+        }
+        let dec = Decomposition::new(&problem(8, 14, 2, 1.0)).unwrap();
+        assert!(dec.basis_map(&DMatrix::zeros(3, 13)).is_err());
+        let mut x = DVector::zeros(0);
+        assert!(
+            dec.basis_weights_into(&dec.empty_projection(), 0.0, &mut x)
+                .is_err()
+        );
+    }
+
+    #[test]
     fn fast_path_matches_full_solution_for_new_data() {
         let pr = problem(8, 14, 2, 1.0);
         let dec = Decomposition::new(&pr).unwrap();

@@ -15,7 +15,13 @@
 //! only when the coefficients are needed). When λ is chosen by the rule on every row, the
 //! pattern instead keeps the λ-independent parts of the posterior variance of every fine
 //! profile point ([`Decomposition::predictive_variance_parts`]), so the band costs O(r) per
-//! point instead of O(p·r). The cache is bounded
+//! point instead of O(p·r), and the sensors', scan grid's and fine grid's maps in the singular
+//! basis ([`Decomposition::basis_map`]): the row's fitted values and profile are those maps
+//! times the weights `x(λ)` (r + q numbers, [`Decomposition::basis_weights_into`]) instead of
+//! the coefficients through the p-column maps; the coefficients themselves are formed only
+//! for a row with a sensor left out. The evidence search keeps its grid's data-independent
+//! parts in a table (`EvidenceSearch`), and the order choice's projection of the row is
+//! reused for the row. The cache is bounded
 //! ([`PATTERN_CACHE`] entries, least recently used evicted), so memory does not grow with the
 //! log.
 //!
