@@ -54,11 +54,35 @@ pub struct EvidenceSearch {
     ell: Vec<f64>,
     quad: Vec<f64>,
     value: Vec<f64>,
-    done: Vec<bool>,
+    /// `done[k] == id`: grid point `k` was evaluated by the search under way (no clearing of
+    /// the arrays between searches; the values of other points are never read).
+    done: Vec<u32>,
+    id: u32,
     /// Runs of grid points still to examine.
     stack: Vec<(usize, usize)>,
     /// Grid points evaluated by the last search (for the benchmark's account).
     pub evaluated: usize,
+    /// The data-independent parts of the criterion on the grid, built on the first search
+    /// (and again if the grid changes): per grid point the `w_i` and `ℓ`.
+    table: Option<GridTable>,
+}
+
+/// Per grid point `k`, the weights `w_i = λ_k/(g_i² + λ_k)` (row `k` of `w`, r values),
+/// `1/(g_i² + λ_k)` and `ℓ(λ_k)`, computed by the same expressions as [`Decomposition::sums`], so that a grid
+/// value read from the table is the same number as one computed afresh: the search then
+/// costs one multiply-add pass over r values per grid point instead of r divisions and a
+/// logarithm. Valid for one decomposition and grid (`key`).
+#[derive(Debug, Clone)]
+struct GridTable {
+    /// `(n, lo bits, hi bits)` of the grid, and the singular values it was made for.
+    key: (usize, u64, u64),
+    g: Vec<f64>,
+    w: Vec<f64>,
+    /// Row `k`: `1/(g_i² + λ_k)` (the Newton step's sums at the bracket's ends).
+    inv: Vec<f64>,
+    ell: Vec<f64>,
+    /// `λ_k`.
+    lambda: Vec<f64>,
 }
 
 /// The two sums and the criterion at one λ.
@@ -98,6 +122,60 @@ impl Decomposition {
         // the grid of `lambda_grid`, point by point (the same expression, so the same numbers)
         let x_at = |k: usize| lo + (hi - lo) * k as f64 / (n - 1) as f64;
         let mp = (self.m - self.q) as f64;
+        let st = state;
+        let key = (n, lo.to_bits(), hi.to_bits());
+        let table = match st.table.take() {
+            Some(tb) if tb.key == key && tb.g == self.g.as_slice() => tb,
+            _ => self.grid_table(key, |k| (x_at(k) * std::f64::consts::LN_10).exp()),
+        };
+        let sel = self.select_on_grid(proj, opts, st, &table, kind, (lo, hi, n, mp));
+        st.table = Some(table);
+        sel
+    }
+
+    /// The table of [`GridTable`] for grid points `λ(k)`, `k < key.0`.
+    fn grid_table(&self, key: (usize, u64, u64), lambda: impl Fn(usize) -> f64) -> GridTable {
+        let (n, r) = (key.0, self.g.len());
+        let mut w = Vec::with_capacity(n * r);
+        let mut inv = Vec::with_capacity(n * r);
+        let mut ell = Vec::with_capacity(n);
+        let mut lambdas = Vec::with_capacity(n);
+        let zero = self.empty_projection();
+        for k in 0..n {
+            let lam = lambda(k);
+            // the same expressions as `sums` (w = λ/(g² + λ)) and `derivatives`
+            // (1/(g² + λ)), and ℓ from `sums` itself
+            w.extend(self.g.iter().map(|g| lam / (g * g + lam)));
+            inv.extend(self.g.iter().map(|g| {
+                let g2 = g * g;
+                1.0 / (g2 + lam)
+            }));
+            ell.push(self.sums(&zero, lam).0);
+            lambdas.push(lam);
+        }
+        GridTable {
+            key,
+            g: self.g.as_slice().to_vec(),
+            w,
+            inv,
+            ell,
+            lambda: lambdas,
+        }
+    }
+
+    /// [`Self::select_evidence`] on its grid, with the grid's table.
+    fn select_on_grid(
+        &self,
+        proj: &Projection,
+        opts: &SelectOptions,
+        st: &mut EvidenceSearch,
+        table: &GridTable,
+        kind: EvidenceKind,
+        (lo, hi, n, mp): (f64, f64, usize, f64),
+    ) -> Result<Selection> {
+        let strength = Strength::Rule(StrengthMethod::Evidence);
+        let r = self.g.len();
+        let x_at = |k: usize| lo + (hi - lo) * k as f64 / (n - 1) as f64;
         let eval = |lambda: f64| -> Point {
             let (ell, quad) = self.sums(proj, lambda);
             Point {
@@ -106,26 +184,36 @@ impl Decomposition {
                 value: criterion(kind, mp, ell, quad),
             }
         };
-        let st = state;
-        st.ell.clear();
-        st.ell.resize(n, 0.0);
-        st.quad.clear();
-        st.quad.resize(n, 0.0);
-        st.value.clear();
-        st.value.resize(n, f64::INFINITY);
-        st.done.clear();
-        st.done.resize(n, false);
+        // a grid point from the table: the same numbers as `eval` at its λ
+        let eval_grid = |k: usize| -> Point {
+            let ell = table.ell[k];
+            let quad = quad_sum(&table.w[k * r..(k + 1) * r], proj);
+            Point {
+                ell,
+                quad,
+                value: criterion(kind, mp, ell, quad),
+            }
+        };
+        st.id = st.id.wrapping_add(1);
+        if st.done.len() != n || st.id == 0 {
+            st.ell = vec![0.0; n];
+            st.quad = vec![0.0; n];
+            st.value = vec![f64::INFINITY; n];
+            st.done = vec![0; n];
+            st.id = 1;
+        }
+        let id = st.id;
         st.evaluated = 0;
         let mut best = (f64::INFINITY, usize::MAX);
         let visit = |st: &mut EvidenceSearch, k: usize, best: &mut (f64, usize)| {
-            if st.done[k] {
+            if st.done[k] == id {
                 return;
             }
-            let p = eval((x_at(k) * std::f64::consts::LN_10).exp());
+            let p = eval_grid(k);
             st.ell[k] = p.ell;
             st.quad[k] = p.quad;
             st.value[k] = not_nan(p.value);
-            st.done[k] = true;
+            st.done[k] = id;
             st.evaluated += 1;
             let v = st.value[k];
             if v < best.0 || (v <= best.0 && k < best.1) {
@@ -147,7 +235,7 @@ impl Decomposition {
         st.stack.clear();
         let mut prev = 0;
         for k in 1..n {
-            if st.done[k] {
+            if st.done[k] == id {
                 if k > prev + 1 {
                     st.stack.push((prev, k));
                 }
@@ -174,7 +262,7 @@ impl Decomposition {
         // worse than `best` by more than the margin, so scanning the evaluated ones suffices
         let (fk, k) = best;
         let k = (0..n)
-            .find(|&j| st.done[j] && st.value[j].total_cmp(&fk).is_eq())
+            .find(|&j| st.done[j] == id && st.value[j].total_cmp(&fk).is_eq())
             .unwrap_or(k);
         st.last_k = Some(k);
         let effective = |lambda: f64| {
@@ -197,7 +285,21 @@ impl Decomposition {
         }
         let ln10 = std::f64::consts::LN_10;
         let (a, b) = (x_at(k - 1) * ln10, x_at(k + 1) * ln10);
-        let Some(t) = self.stationary(proj, kind, a, b, st.last_t) else {
+        // dE/dt at the bracket's ends (grid points: from the table)
+        let at_grid = |k: usize| {
+            let mut inv = table.inv[k * r..(k + 1) * r].iter();
+            self.derivatives_with(proj, kind, table.lambda[k], |_| {
+                inv.next().copied().unwrap_or(f64::NAN)
+            })
+            .0
+        };
+        let Some(t) = self.stationary(
+            proj,
+            kind,
+            (a, at_grid(k - 1)),
+            (b, at_grid(k + 1)),
+            st.last_t,
+        ) else {
             st.last_t = None;
             return self.select_for(proj, strength, opts);
         };
@@ -223,7 +325,8 @@ impl Decomposition {
         })
     }
 
-    /// `ℓ(λ) = −Σ ln w_i` and `Q(λ) = δ₀ + Σ w_i β_i²`, `w_i = λ/(g_i² + λ)`. `ℓ` is one
+    /// `ℓ(λ) = −Σ ln w_i` and `Q(λ) = δ₀ + Σ w_i β_i²`, `w_i = λ/(g_i² + λ)` (`Q` summed as
+    /// [`quad_sum`] sums it). `ℓ` is one
     /// logarithm of the product of the `w_i`, kept in range by moving its binary exponent
     /// aside (each `w_i ≥ 1e-20` on the grid's range, so eight factors between
     /// renormalisations cannot underflow); four lanes side by side so that the divisions
@@ -271,12 +374,25 @@ impl Decomposition {
     /// known σ `(S₁ − Σ f_i, dS₁/dt + Σ f_i w_i)`; profiled scale
     /// `(m' S₁/Q − Σ f_i, m' (dS₁/dt / Q − S₁²/Q²) + Σ f_i w_i)`.
     fn derivatives(&self, proj: &Projection, kind: EvidenceKind, t: f64) -> (f64, f64) {
-        let mp = (self.m - self.q) as f64;
         let lambda = t.exp();
+        self.derivatives_with(proj, kind, lambda, |g2| 1.0 / (g2 + lambda))
+    }
+
+    /// [`Self::derivatives`] at `λ = e^t`, with `inv(g_i²)` giving `1/(g_i² + λ)` (computed,
+    /// or read from the grid's table: the same numbers).
+    #[inline]
+    fn derivatives_with(
+        &self,
+        proj: &Projection,
+        kind: EvidenceKind,
+        lambda: f64,
+        mut inv_of: impl FnMut(f64) -> f64,
+    ) -> (f64, f64) {
+        let mp = (self.m - self.q) as f64;
         let (mut sf, mut sfw, mut s1, mut s1p, mut quad) = (0.0, 0.0, 0.0, 0.0, proj.delta0);
         for (gi, bi) in self.g.iter().zip(proj.beta.iter()) {
             let g2 = gi * gi;
-            let inv = 1.0 / (g2 + lambda);
+            let inv = inv_of(g2);
             let (f, w) = (g2 * inv, lambda * inv);
             let b2 = bi * bi;
             let fw = f * w;
@@ -301,13 +417,11 @@ impl Decomposition {
         &self,
         proj: &Projection,
         kind: EvidenceKind,
-        a: f64,
-        b: f64,
+        (a, da): (f64, f64),
+        (b, db): (f64, f64),
         warm: Option<f64>,
     ) -> Option<f64> {
         let deriv = |t: f64| self.derivatives(proj, kind, t);
-        let (da, _) = deriv(a);
-        let (db, _) = deriv(b);
         if !(da < 0.0 && db > 0.0) {
             return None;
         }
@@ -339,6 +453,26 @@ impl Decomposition {
         }
         Some(t)
     }
+}
+
+/// `Q = δ₀ + Σ w_i β_i²` from given weights, in the order of [`Decomposition::sums`]: four
+/// lanes (`i mod 4` within the whole chunks of four, the remainder on lane 0), each term
+/// `(w_i β_i) β_i`, the lanes added pairwise. The same number as `sums` gives.
+fn quad_sum(w: &[f64], proj: &Projection) -> f64 {
+    const LANES: usize = 4;
+    let beta = proj.beta.as_slice();
+    let mut quad = [0.0f64; LANES];
+    let wc = w.chunks_exact(LANES);
+    let (w_rest, b_rest) = (wc.remainder(), &beta[w.len() - wc.remainder().len()..]);
+    for (wl, bl) in wc.zip(beta.chunks_exact(LANES)) {
+        for l in 0..LANES {
+            quad[l] += wl[l] * bl[l] * bl[l];
+        }
+    }
+    for (wi, bi) in w_rest.iter().zip(b_rest) {
+        quad[0] += wi * bi * bi;
+    }
+    proj.delta0 + ((quad[0] + quad[1]) + (quad[2] + quad[3]))
 }
 
 fn criterion(kind: EvidenceKind, mp: f64, ell: f64, quad: f64) -> f64 {
@@ -447,6 +581,54 @@ mod tests {
                 interior += usize::from(!full.at_grid_end);
             }
             assert!(interior > 50, "{interior} interior choices");
+        }
+    }
+
+    #[test]
+    fn grid_table_gives_the_numbers_computed_afresh() {
+        // the table's ℓ, Q and 1/(g² + λ) at every grid point, bit for bit against `sums`
+        // and `derivatives` evaluated at that λ (so the tabled search finds what the
+        // untabled one found)
+        for stated in [true, false] {
+            let (dec, rows) = problem_and_rows(16, 12, stated, 3);
+            let opts = SelectOptions {
+                keep_curve: false,
+                ..SelectOptions::default()
+            };
+            let mut st = EvidenceSearch::default();
+            let proj = dec.projection(&rows[1]).unwrap();
+            dec.select_evidence(&proj, &opts, &mut st).unwrap();
+            let table = st.table.as_ref().unwrap();
+            let r = dec.g.len();
+            let grid = dec.lambda_grid(&opts).unwrap();
+            assert_eq!(table.lambda.len(), grid.len());
+            let kind = dec.evidence_kind(&opts);
+            for (k, &lam) in table.lambda.iter().enumerate() {
+                // the grid is in log10 λ
+                let x = lam.log10();
+                assert!((x - grid[k]).abs() <= 1e-12 * (1.0 + grid[k].abs()), "{k}");
+                let (ell, quad) = dec.sums(&proj, lam);
+                assert_eq!(table.ell[k].to_bits(), ell.to_bits(), "{k}");
+                let q2 = quad_sum(&table.w[k * r..(k + 1) * r], &proj);
+                assert_eq!(q2.to_bits(), quad.to_bits(), "{k}");
+                let mut inv = table.inv[k * r..(k + 1) * r].iter();
+                let from_table = dec.derivatives_with(&proj, kind, lam, |_| *inv.next().unwrap());
+                // what `derivatives` computes once it has λ
+                let fresh = dec.derivatives_with(&proj, kind, lam, |g2| 1.0 / (g2 + lam));
+                assert_eq!(from_table.0.to_bits(), fresh.0.to_bits(), "{k}");
+                assert_eq!(from_table.1.to_bits(), fresh.1.to_bits(), "{k}");
+            }
+            // a different decomposition through the same state: the table is rebuilt (a
+            // stale one would put the grid minimum elsewhere); the warm start differs, so the
+            // two agree to the Newton step's tolerance
+            let (dec2, rows2) = problem_and_rows(14, 12, stated, 2);
+            let proj2 = dec2.projection(&rows2[1]).unwrap();
+            let a = dec2.select_evidence(&proj2, &opts, &mut st).unwrap();
+            let b = dec2
+                .select_evidence(&proj2, &opts, &mut EvidenceSearch::default())
+                .unwrap();
+            assert!((a.lambda.ln() - b.lambda.ln()).abs() < 1e-10);
+            assert_eq!(st.table.as_ref().unwrap().g, dec2.g.as_slice());
         }
     }
 

@@ -15,7 +15,13 @@
 //! only when the coefficients are needed). When λ is chosen by the rule on every row, the
 //! pattern instead keeps the λ-independent parts of the posterior variance of every fine
 //! profile point ([`Decomposition::predictive_variance_parts`]), so the band costs O(r) per
-//! point instead of O(p·r). The cache is bounded
+//! point instead of O(p·r), and the sensors', scan grid's and fine grid's maps in the singular
+//! basis ([`Decomposition::basis_map`]): the row's fitted values and profile are those maps
+//! times the weights `x(λ)` (r + q numbers, [`Decomposition::basis_weights_into`]) instead of
+//! the coefficients through the p-column maps; the coefficients themselves are formed only
+//! for a row with a sensor left out. The evidence search keeps its grid's data-independent
+//! parts in a table (`EvidenceSearch`), and the order choice's projection of the row is
+//! reused for the row. The cache is bounded
 //! ([`PATTERN_CACHE`] entries, least recently used evicted), so memory does not grow with the
 //! log.
 //!
@@ -252,9 +258,15 @@ struct Pattern {
     draws: Option<Draws>,
     /// Built the first time a row of this pattern has its λ chosen by the rule.
     variance: Option<VarianceParts>,
+    /// The fitted values', scan grid's and fine grid's maps in the singular basis, built
+    /// with `variance` (not on the check path).
+    basis: Option<BasisMaps>,
     /// Where the evidence rule's search ended on the pattern's previous row.
     search: EvidenceSearch,
     last_use: u64,
+    /// The row (`RowEstimator::row_serial`) whose data `proj` holds, if `auto` smoothing's
+    /// order choice projected them.
+    projected_row: u64,
 }
 
 impl Pattern {
@@ -273,6 +285,18 @@ impl Pattern {
             _ => self.dec.select_for(&self.proj, strength, &opts),
         }
     }
+}
+
+/// The maps of a pattern in the singular basis ([`Decomposition::basis_map`]): each times
+/// the row's weights `x(λ)` ([`Decomposition::basis_weights_into`]) gives the same numbers
+/// as the map times the coefficients `c(λ)` (to rounding), with r + q columns instead of p.
+struct BasisMaps {
+    /// The sensors' map (m × (r + q)): the fitted values.
+    fitted: DMatrix<f64>,
+    /// The scan grid's profile map (n_scan × (r + q)).
+    scan: DMatrix<f64>,
+    /// The fine grid's profile map (n_fine_total × (r + q)): the window around the maximum.
+    fine: DMatrix<f64>,
 }
 
 /// How a row's profile is formed.
@@ -297,6 +321,9 @@ struct RowStep<'r> {
     projected: bool,
     /// Whether the estimator's coefficients are this row's at `lambda`.
     coefficients: bool,
+    /// Whether the estimator's basis weights `x` are this row's at `lambda` (the profile is
+    /// then formed through the pattern's [`BasisMaps`]).
+    basis: bool,
     /// σ̂ of the row, 1 when σ is stated.
     s: f64,
 }
@@ -363,6 +390,9 @@ pub struct RowEstimator {
     /// Per order, the evidence rule's λ for the current row, when `auto` smoothing chose the
     /// order by it (so that the row's strength is not searched for twice).
     row_evidence: [Option<f64>; 3],
+    /// Counts the rows through [`Self::order_for`] (from 1), so that a pattern knows whether
+    /// its projection holds the current row's data (`Pattern::projected_row`).
+    row_serial: u64,
     /// `1/(g_k² + λ)` of the row's λ and `1/λ` ([`VarianceParts::reciprocals`]).
     inv_den: Vec<f64>,
     inv_lambda: f64,
@@ -371,6 +401,9 @@ pub struct RowEstimator {
     /// The check path of [`Self::use_reference_path`].
     reference: bool,
     // scratch
+    /// The row's basis weights at its λ and at the diagnostics' reference λ.
+    x: DVector<f64>,
+    x_ref: DVector<f64>,
     c_ref: DVector<f64>,
     fitted_ref: DVector<f64>,
     lev: Vec<f64>,
@@ -480,10 +513,13 @@ impl RowEstimator {
             clock: 0,
             ref_log_lambda: [None; 3],
             row_evidence: [None; 3],
+            row_serial: 0,
             inv_den: Vec::new(),
             inv_lambda: 0.0,
             coef_work: Vec::new(),
             reference: false,
+            x: DVector::zeros(0),
+            x_ref: DVector::zeros(0),
             c_ref: DVector::zeros(0),
             lev: Vec::new(),
             bits: Vec::new(),
@@ -564,6 +600,7 @@ impl RowEstimator {
 
     fn order_for(&mut self, readings: &[Option<f64>], used: &[usize]) -> Result<usize> {
         self.row_evidence = [None; 3];
+        self.row_serial += 1;
         if let Some(o) = self.case.fit.smoothing.order() {
             return Ok(o);
         }
@@ -576,6 +613,7 @@ impl RowEstimator {
                 .ok_or_else(internal)?;
             fill_d(&mut self.d, used, readings, &self.sensor_map.offset);
             pat.dec.project_into(&self.d, &mut pat.proj)?;
+            pat.projected_row = self.row_serial;
             if let Ok(sel) = pat.select(Strength::Rule(StrengthMethod::Evidence), self.reference) {
                 self.row_evidence[order] = Some(sel.lambda);
                 let e = sel.criterion;
@@ -646,8 +684,10 @@ impl RowEstimator {
                 fixed: None,
                 draws: None,
                 variance: None,
+                basis: None,
                 search: EvidenceSearch::default(),
                 last_use: self.clock,
+                projected_row: 0,
             },
         );
         Ok(())
@@ -679,9 +719,9 @@ impl RowEstimator {
                 self.q_null,
             ));
         }
-        let order = match strength {
-            RowStrength::Fixed { order, .. } => order,
-            RowStrength::PerRow(_) => self.order_for(readings, used)?,
+        let (order, serial) = match strength {
+            RowStrength::Fixed { order, .. } => (order, None),
+            RowStrength::PerRow(_) => (self.order_for(readings, used)?, Some(self.row_serial)),
         };
         self.pattern_key(readings, used, order)?;
         // The pattern leaves the cache for the row (so that the steps can borrow it beside
@@ -700,8 +740,10 @@ impl RowEstimator {
                 RowStrength::PerRow(_) => RowMode::Chosen,
             },
             lambda: 0.0,
-            projected: false,
+            // the order choice projected this very row onto the pattern's basis already
+            projected: serial.is_some_and(|s| pat.projected_row == s),
             coefficients: false,
+            basis: false,
             s: 1.0,
         };
         let refit = self.fit_pattern_row(&mut pat, &mut step, limit, out);
@@ -822,6 +864,16 @@ impl RowEstimator {
         }
         match cached(pat, step.mode) {
             Some(fx) => self.fitted.gemv(1.0, &fx.smoother, &self.d, 0.0),
+            None if !self.reference => {
+                // through the singular basis: the weights x(λ), then the maps
+                step.project(pat, &self.d)?;
+                self.pattern_maps(pat)?;
+                let basis = pat.basis.as_ref().ok_or_else(internal)?;
+                pat.dec
+                    .basis_weights_into(&pat.proj, step.lambda, &mut self.x)?;
+                self.fitted.gemv(1.0, &basis.fitted, &self.x, 0.0);
+                step.basis = true;
+            }
             None => {
                 step.project(pat, &self.d)?;
                 if self.reference {
@@ -889,7 +941,8 @@ impl RowEstimator {
         }
     }
 
-    /// Step 5: the profile and its posterior sd on the scan grid, and the leverages.
+    /// Step 5: the profile and its posterior sd on the scan grid, and at a fixed λ the
+    /// leverages (at a chosen λ the diagnostics form them at the λ they judge at).
     fn scan_profile(
         &mut self,
         pat: &mut Pattern,
@@ -908,17 +961,37 @@ impl RowEstimator {
             }
             leverage.extend_from_slice(&fx.leverage);
         } else {
-            self.scan_est.gemv(1.0, &self.scan_matrix, &self.c, 0.0);
-            self.scan_est += &self.scan_offset;
-            if pat.variance.is_none() {
-                pat.variance = Some(VarianceParts::new(&pat.dec, &self.prof_matrix)?);
+            match pat.basis.as_ref().filter(|_| step.basis) {
+                Some(b) => self.scan_est.gemv(1.0, &b.scan, &self.x, 0.0),
+                None => self.scan_est.gemv(1.0, &self.scan_matrix, &self.c, 0.0),
             }
+            self.scan_est += &self.scan_offset;
+            self.pattern_maps(pat)?;
             let vp = pat.variance.as_ref().ok_or_else(internal)?;
             self.inv_lambda = VarianceParts::reciprocals(&pat.dec, step.lambda, &mut self.inv_den);
             for (j, &fi) in self.scan_index.iter().enumerate() {
                 self.scan_sd[j] = vp.sd_with(fi, &self.inv_den, self.inv_lambda) * s;
             }
-            leverages(&pat.dec, step.lambda, self.reference, leverage)?;
+            // the leverages are formed by the diagnostics, at the λ they are judged at
+        }
+        Ok(())
+    }
+
+    /// Build the pattern's λ-independent parts for rows whose λ is chosen: the variance parts
+    /// and (off the check path) the maps in the singular basis.
+    fn pattern_maps(&self, pat: &mut Pattern) -> Result<()> {
+        if pat.variance.is_none() {
+            pat.variance = Some(VarianceParts::new(&pat.dec, &self.prof_matrix)?);
+        }
+        if pat.basis.is_none() && !self.reference {
+            let fine = pat.dec.basis_map(&self.prof_matrix)?;
+            pat.basis = Some(BasisMaps {
+                fitted: pat
+                    .dec
+                    .basis_map(&self.sensor_map.matrix.select_rows(&pat.rows))?,
+                scan: fine.select_rows(&self.scan_index),
+                fine,
+            });
         }
         Ok(())
     }
@@ -944,9 +1017,10 @@ impl RowEstimator {
         let hi = ((edge_k + 1) * n).min(fi + self.stride + 2);
         // the fine profile is the data through the cached map at a fixed λ, else the
         // coefficients through the profile map
-        let (fine_map, fine_x) = match cached(pat, step.mode) {
-            Some(fx) => (&fx.fine_pg, &self.d),
-            None => (&self.prof_matrix, &self.c),
+        let (fine_map, fine_x) = match (cached(pat, step.mode), &pat.basis) {
+            (Some(fx), _) => (&fx.fine_pg, &self.d),
+            (None, Some(b)) if step.basis => (&b.fine, &self.x),
+            (None, _) => (&self.prof_matrix, &self.c),
         };
         let mut vals = std::mem::take(&mut self.window);
         let win = lo..hi;
@@ -1123,19 +1197,28 @@ impl RowEstimator {
                 if self.fitted_ref.len() != m {
                     self.fitted_ref = DVector::zeros(m);
                 }
-                if self.reference {
+                if let Some(b) = pat.basis.as_ref().filter(|_| step.basis) {
+                    // the coefficients at lref only if a sensor left out needs them (below)
                     pat.dec
-                        .coefficients_into(&pat.proj, lref, &mut self.c_ref)?;
+                        .basis_weights_into(&pat.proj, lref, &mut self.x_ref)?;
+                    self.fitted_ref.gemv(1.0, &b.fitted, &self.x_ref, 0.0);
                 } else {
-                    pat.dec.coefficients_fast_into(
-                        &pat.proj,
-                        lref,
-                        &mut self.coef_work,
-                        &mut self.c_ref,
-                    )?;
+                    if self.reference {
+                        pat.dec
+                            .coefficients_into(&pat.proj, lref, &mut self.c_ref)?;
+                    } else {
+                        pat.dec.coefficients_fast_into(
+                            &pat.proj,
+                            lref,
+                            &mut self.coef_work,
+                            &mut self.c_ref,
+                        )?;
+                    }
+                    pat.dec.predict_into(&self.c_ref, &mut self.fitted_ref)?;
                 }
-                pat.dec.predict_into(&self.c_ref, &mut self.fitted_ref)?;
                 leverages(&pat.dec, lref, self.reference, leverage)?;
+            } else {
+                leverages(&pat.dec, lambda, self.reference, leverage)?;
             }
         }
         let fitted_d = if use_ref {
@@ -1165,10 +1248,30 @@ impl RowEstimator {
             let good = gauss[k] / (sds[k] * (2.0 * std::f64::consts::PI).sqrt());
             out.diagnostics[i] = Some((xs[k], fault_posterior(good)));
         }
-        // The sensors left out: the coefficients are needed now if no step formed them.
-        if !step.coefficients && !use_ref && readings.iter().flatten().count() > m {
-            step.project(pat, &self.d)?;
-            pat.dec.coefficients_into(&pat.proj, lambda, &mut self.c)?;
+        // The sensors left out: the coefficients are needed now if no step formed them
+        // (by the same computation as the step that would have: `coefficients_fast_into` at a
+        // chosen λ, `coefficients_into` at a fixed one).
+        if readings.iter().flatten().count() > m {
+            if use_ref && step.basis {
+                pat.dec.coefficients_fast_into(
+                    &pat.proj,
+                    lambda_d,
+                    &mut self.coef_work,
+                    &mut self.c_ref,
+                )?;
+            } else if !step.coefficients && !use_ref {
+                step.project(pat, &self.d)?;
+                if step.basis {
+                    pat.dec.coefficients_fast_into(
+                        &pat.proj,
+                        lambda,
+                        &mut self.coef_work,
+                        &mut self.c,
+                    )?;
+                } else {
+                    pat.dec.coefficients_into(&pat.proj, lambda, &mut self.c)?;
+                }
+            }
         }
         let c_d = if use_ref { &self.c_ref } else { &self.c };
         self.in_use.clear();
