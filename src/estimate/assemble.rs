@@ -47,6 +47,7 @@ pub(super) fn assemble(
         &prof_est,
         (&prof_err, &prof_err_by_replicate),
     )?;
+    let convective_heat_flows = convective_flows(problem, &fitted, &maps, &resampled);
     let field = field_result(&fitted, &maps, boot, confidence);
     let exceedance = options
         .limit
@@ -85,7 +86,44 @@ pub(super) fn assemble(
         conversion: case.conversion(),
         read_as: case.read_as.clone(),
         convection: Vec::new(),
+        convective_heat_flows,
     })
+}
+
+/// Heat flow through each convective edge with its interval, from the rows that follow the
+/// unknown edges' in the heat-flow map ([`super::outputs::flow_edges`]).
+fn convective_flows(
+    problem: &Problem<'_>,
+    fitted: &Fitted,
+    maps: &OutputMaps,
+    resampled: &Resampled,
+) -> Vec<(crate::geometry::Edge, Interval)> {
+    let Some((m, off)) = maps.heat.as_ref() else {
+        return Vec::new();
+    };
+    let confidence = problem.case.uncertainty.confidence;
+    let c_hat = &fitted.fit.solution.coefficients;
+    let edges = super::outputs::flow_edges(&problem.case.plate);
+    let first = problem.case.plate.unknown_edges().len();
+    let err = resampled.output.errors_of(m);
+    (first..edges.len())
+        .map(|k| {
+            let est = (m.row(k) * c_hat)[0] + off[k];
+            let mut draws: Vec<f64> = (0..resampled.replicates)
+                .map(|b| est - err[(b, k)])
+                .collect();
+            let lower = quantile(&mut draws, (1.0 - confidence) / 2.0);
+            let upper = quantile(&mut draws, (1.0 + confidence) / 2.0);
+            (
+                edges[k],
+                Interval {
+                    value: est,
+                    lower,
+                    upper,
+                },
+            )
+        })
+        .collect()
 }
 
 /// The profiles of the unknown edges with their bands, resolution lengths and heat flows,

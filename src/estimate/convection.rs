@@ -306,6 +306,13 @@ fn widen(r: &mut EstimateResult, other: &EstimateResult) {
             widen_interval(q, p);
         }
     }
+    for ((_, q), (_, p)) in r
+        .convective_heat_flows
+        .iter_mut()
+        .zip(&other.convective_heat_flows)
+    {
+        widen_interval(q, p);
+    }
     union(&mut r.field.lower, &other.field.lower, f64::min);
     union(&mut r.field.upper, &other.field.upper, f64::max);
     let (h, o) = (&mut r.hottest, &other.hottest);

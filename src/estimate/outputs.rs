@@ -45,7 +45,7 @@ impl OutputMaps {
             .flat_map(|&y| xs.iter().map(move |&x| Point::new(x, y)))
             .collect();
         let field = model.sensor_map(&grid_points);
-        let heat = heat_flow_rows(model, &problem.case.plate.unknown_edges())?;
+        let heat = heat_flow_rows(model, &flow_edges(&problem.case.plate))?;
         Ok(OutputMaps {
             profile,
             profile_offset,
@@ -138,7 +138,19 @@ pub(super) fn resample(
     })
 }
 
-/// Rows `h_e` and offsets with heat flow through unknown edge `e` = `h_e · c + h0_e`
+/// The edges whose heat flow an estimate reports: the unknown edges, then the convective
+/// ones.
+pub(super) fn flow_edges(plate: &crate::geometry::Plate) -> Vec<Edge> {
+    let mut edges = plate.unknown_edges();
+    edges.extend(
+        Edge::ALL
+            .into_iter()
+            .filter(|&e| plate.convection(e).is_some()),
+    );
+    edges
+}
+
+/// Rows `h_e` and offsets with heat flow through edge `e` = `h_e · c + h0_e`
 /// (W/m); `None` without conductivity. The heat flow is affine in the unknowns, so its rows
 /// are read off by evaluating it at zero and at each unit vector.
 fn heat_flow_rows(

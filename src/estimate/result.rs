@@ -236,6 +236,9 @@ pub struct EstimateResult {
     /// Heat transfer coefficients estimated from the readings (convective edges with
     /// `h = "unknown"`); empty otherwise.
     pub convection: Vec<super::convection::ConvectionEstimate>,
+    /// Heat flow into the plate through each convective edge per unit depth, W/m (negative:
+    /// heat leaves to the fluid), with its interval; empty without conductivity.
+    pub convective_heat_flows: Vec<(Edge, Interval)>,
 }
 
 impl EstimateResult {

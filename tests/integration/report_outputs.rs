@@ -236,6 +236,7 @@ fn common(
         conversion: None,
         read_as: Vec::new(),
         convection: Vec::new(),
+        convective_heat_flows: Vec::new(),
     }
 }
 

@@ -263,17 +263,22 @@ fn insert_edges_json(r: &EstimateResult, out: &mut Map<String, Value>) {
             }))
         }),
     );
-    out.insert(
-        "heat_flow".into(),
-        edge_map(&|e| {
-            e.heat_flow.map(|q| {
-                json!({
-                    "value": rounded(q.value, 3),
-                    "interval": [rounded(q.lower, 3), rounded(q.upper, 3)],
-                })
+    let mut flows = edge_map(&|e| {
+        e.heat_flow.map(|q| {
+            json!({
+                "value": rounded(q.value, 3),
+                "interval": [rounded(q.lower, 3), rounded(q.upper, 3)],
             })
-        }),
-    );
+        })
+    });
+    // convective edges too: −h ∫ (T − T∞) along each, negative when heat leaves
+    for (edge, q) in &r.convective_heat_flows {
+        flows[edge.name()] = json!({
+            "value": rounded(q.value, 3),
+            "interval": [rounded(q.lower, 3), rounded(q.upper, 3)],
+        });
+    }
+    out.insert("heat_flow".into(), flows);
     out.insert(
         "heat_flow_unit".into(),
         json!(format!(
@@ -676,19 +681,28 @@ fn convection_text(r: &EstimateResult, out: &mut String) {
 
 fn heat_flow_text(r: &EstimateResult, out: &mut String) {
     let conf = percent(r.confidence);
-    let flows: Vec<&EdgeResult> = r.edges.iter().filter(|e| e.heat_flow.is_some()).collect();
-    for (n, e) in flows.iter().enumerate() {
-        let q = e.heat_flow.expect("filtered");
+    let mut flows: Vec<(crate::geometry::Edge, crate::estimate::Interval)> = r
+        .edges
+        .iter()
+        .filter_map(|e| e.heat_flow.map(|q| (e.edge, q)))
+        .collect();
+    flows.extend(r.convective_heat_flows.iter().copied());
+    for (n, (edge, q)) in flows.iter().enumerate() {
         let label = if n == 0 { "Heat flow in" } else { "" };
         line(
             out,
             label,
             &format!(
-                "{} edge {} {HEAT_FLOW_UNIT}   {conf} interval [{}, {}] (per unit depth)",
-                e.edge,
+                "{} edge {} {HEAT_FLOW_UNIT}   {conf} interval [{}, {}] (per unit depth){}",
+                edge,
                 fixed(q.value, 1),
                 fixed(q.lower, 1),
-                fixed(q.upper, 1)
+                fixed(q.upper, 1),
+                if r.plate.convection(*edge).is_some() {
+                    ", convective: -h (T - T∞) along it"
+                } else {
+                    ""
+                }
             ),
         );
     }
