@@ -9,7 +9,7 @@
 
 use super::{GlobalOptions, print_stdout};
 use edgetherm::Result;
-use edgetherm::io::{load_case, load_readings};
+use edgetherm::io::{load_case, load_readings_as};
 use edgetherm::report::check::CheckReport;
 use std::path::PathBuf;
 
@@ -19,16 +19,22 @@ pub struct CheckArgs {
     /// The case directory (plate.toml, sensors.csv and optionally readings.csv).
     #[arg(value_name = "CASE_DIR")]
     pub case_dir: PathBuf,
+    /// How readings.csv is written, when detection should not decide.
+    #[command(flatten)]
+    pub dialect: super::dialect::DialectArgs,
 }
 
 /// Run `check`; exit status 0 when every input is valid (errors carry their own status).
 pub fn run(args: &CheckArgs, global: &GlobalOptions) -> Result<i32> {
     let files = global.case_files(&args.case_dir, true, false)?;
-    let case = load_case(&files)?;
+    let mut case = load_case(&files)?;
     // Readings are optional for `check`, but a file that exists (or is named by --readings)
     // must be valid.
     let readings = if global.readings.is_some() || case.files.readings.exists() {
-        Some(load_readings(&case.files.readings, &case)?)
+        let (r, read_as) =
+            load_readings_as(&case.files.readings, &case, &args.dialect.options(None)?)?;
+        case.read_as.push(read_as);
+        Some(r)
     } else {
         None
     };

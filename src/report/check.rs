@@ -32,6 +32,9 @@ pub struct CheckReport {
     #[serde(skip_serializing_if = "Option::is_none")]
     readings_conversion: Option<String>,
     uncertainty: UncertaintyReport,
+    /// How each table was read (separator, decimal mark, ...), so that a misread file is
+    /// noticed.
+    read_as: Vec<crate::case::ReadAs>,
     /// The forward model: filled in by [`forward_model`].
     #[serde(skip_serializing_if = "Option::is_none")]
     model: Option<ForwardModelReport>,
@@ -317,6 +320,7 @@ impl CheckReport {
             NoiseSpec::Unstated => ("unstated", None, None, None),
         };
         Ok(CheckReport {
+            read_as: case.read_as.clone(),
             valid: true,
             files: FilesReport {
                 plate: case.files.plate.clone(),
@@ -395,6 +399,9 @@ impl CheckReport {
             None => {
                 let _ = writeln!(s, "  readings  none (estimate needs a readings.csv)");
             }
+        }
+        for how in &self.read_as {
+            let _ = writeln!(s, "  read as   {}: {}", how.file, how.description);
         }
         let _ = writeln!(s);
     }

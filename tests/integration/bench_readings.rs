@@ -257,4 +257,12 @@ fn track_on_a_voltage_logger_equals_track_on_temperatures() {
         summary.contains("\"cold_junction\": \"column\""),
         "{summary}"
     );
+    // the picture says so too, above the safety note; the temperature log's does not
+    let svg = std::fs::read_to_string(d.path().join("out-v/track.svg")).unwrap();
+    assert!(
+        svg.contains("converted from thermocouple voltages"),
+        "track.svg"
+    );
+    let svg_t = std::fs::read_to_string(d.path().join("out-t/track.svg")).unwrap();
+    assert!(!svg_t.contains("converted from thermocouple voltages"));
 }

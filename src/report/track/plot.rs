@@ -40,12 +40,17 @@ const LEFT_OUT: RGBColor = RGBColor(0x3a, 0x2a, 0x5c);
 pub fn track_svg(case: &Case, summary: &TrackSummary, bins: &[Bin]) -> Result<String> {
     let mut buf = String::new();
     {
-        let root = SVGBackend::with_string(&mut buf, (WIDTH, HEIGHT)).into_drawing_area();
+        let root = SVGBackend::with_string(&mut buf, (WIDTH, height(case))).into_drawing_area();
         draw(&root, case, summary, bins)
             .and_then(|()| root.present().map_err(Into::into))
             .map_err(|e| Error::Internal(format!("cannot draw track.svg: {e}")))?;
     }
     Ok(buf)
+}
+
+/// The picture's height: one more line when the readings were converted from voltages.
+fn height(case: &Case) -> u32 {
+    HEIGHT + if case.conversion().is_some() { 20 } else { 0 }
 }
 
 /// A "nice" tick step (1, 2 or 5 × 10ⁿ) giving about `target` ticks over `range`.
@@ -353,11 +358,21 @@ fn draw(root: &Area<'_>, case: &Case, s: &TrackSummary, bins: &[Bin]) -> DrawRes
         py1 + 40.0,
         TextOpts::new(AXIS_PX, Anchor::Centre),
     )?;
+    // readings converted from voltages say so on the picture too
+    if let Some(c) = case.conversion() {
+        text(
+            root,
+            &c.describe(&case.units),
+            16.0,
+            f64::from(height(case)) - 46.0,
+            TextOpts::new(TEXT_PX, Anchor::TopLeft),
+        )?;
+    }
     text(
         root,
         PLOT_SAFETY_NOTE,
         16.0,
-        f64::from(HEIGHT) - 26.0,
+        f64::from(height(case)) - 26.0,
         TextOpts::new(TEXT_PX, Anchor::TopLeft),
     )?;
     Ok(())
