@@ -6,12 +6,17 @@
 //! order under `auto`), is therefore a function of `h` alone:
 //! `E(h) = min_λ −2 log p(d | h, λ)`, the same criterion that chooses the strength. It is
 //! evaluated on a grid of [`GRID_POINTS`] values spaced evenly in `log h` over the search
-//! range, and refined by a parabola through the best grid point and its neighbours.
+//! range, and refined by Brent's minimiser (argmin) between the best grid point's neighbours.
 //!
 //! - Estimate: `ĥ = argmin E(h)`.
 //! - Interval: the profile-likelihood interval `{h : E(h) ≤ E(ĥ) + χ²₁(γ)}` at the case's
-//!   confidence `γ` (Wilks' theorem; e.g. Pawitan, *In All Likelihood*, §2.6 and §3.4), its
-//!   ends found by linear interpolation of `E` between grid points. An end that reaches the
+//!   confidence `γ` (Wilks' theorem; e.g. Pawitan, *In All Likelihood*, §2.6 and §3.4). Each
+//!   end is bracketed by walking out from `ĥ` over the grid to the first point above the
+//!   level, and found by Brent's root finder (argmin) on `E − level` in `log h`, to a
+//!   relative 1e-4 in `h`. A layout that pins `h` down gives an interval narrower than one
+//!   grid step (a factor 1.33 in h with the default range 1–1e5), and `E` is sharply V-shaped
+//!   there, so neither a parabola through grid points nor linear interpolation between them
+//!   is enough (`docs/calibration.md`, "Convective edge and an unknown h"). An end that reaches the
 //!   search range means the readings do not bound `h` on that side: the interval is then the
 //!   range's end and the result says so.
 //! - Bands: the estimate is run at `ĥ` and at both ends of the interval, and every band and
@@ -27,6 +32,8 @@ use crate::error::{Error, Result};
 use crate::estimate::fit::fit;
 use crate::geometry::Edge;
 use crate::inverse::{Strength, StrengthMethod};
+use argmin::core::{CostFunction, Executor};
+use argmin::solver::brent::{BrentOpt, BrentRoot};
 use rayon::prelude::*;
 use serde::Serialize;
 use statrs::distribution::{ChiSquared, ContinuousCDF};
@@ -134,17 +141,18 @@ pub fn profile_h(
             "the marginal likelihood is not finite for any h in the search range".into(),
         ));
     }
-    // parabola through the best grid point and its neighbours, in log h
-    let step = (l1 - l0) / (GRID_POINTS - 1) as f64;
+    // refine: Brent's minimiser between the best grid point's neighbours, in log h. A
+    // parabola through three grid points is not enough: E(h) is sharply V-shaped near its
+    // minimum when the layout pins h down (the strength re-chosen at every h absorbs part of
+    // the misfit away from ĥ), and a well-identified h has an interval narrower than one
+    // grid step.
+    let e_at =
+        |x: f64| finite(criterion(case, edge, x.exp(), readings, options).unwrap_or(f64::NAN));
     let (mut log_h, mut e_min) = (hs[k].ln(), e_best);
     if k > 0 && k + 1 < GRID_POINTS {
-        let (a, b, c) = (finite(values[k - 1]), e_best, finite(values[k + 1]));
-        let den = a - 2.0 * b + c;
-        if den > 0.0 && den.is_finite() {
-            let shift = 0.5 * (a - c) / den;
-            if shift.abs() <= 1.0 {
-                log_h += shift * step;
-                e_min = b - 0.25 * (a - c) * shift;
+        if let Some((x, e)) = brent_min(&e_at, hs[k - 1].ln(), hs[k + 1].ln()) {
+            if e < e_min {
+                (log_h, e_min) = (x, e);
             }
         }
     }
@@ -152,29 +160,38 @@ pub fn profile_h(
         .map_err(|e| Error::Internal(format!("chi-square distribution: {e}")))?
         .inverse_cdf(case.uncertainty.confidence);
     let level = e_min + cut;
-    // walk out from the best grid point to where E crosses the level
-    let cross = |i: usize, j: usize| {
-        let (ei, ej) = (finite(values[i]), finite(values[j]));
-        let t = if ej.is_finite() && ej != ei {
-            ((level - ei) / (ej - ei)).clamp(0.0, 1.0)
-        } else {
-            0.5
-        };
-        (hs[i].ln() + t * (hs[j].ln() - hs[i].ln())).exp()
+    // walk out from ĥ over the grid to the first point above the level, and find the
+    // crossing between it and the last point known below the level (ĥ itself, or a grid
+    // point) with Brent's root finder on E − level, in log h
+    let crossing = |inside: f64, outside: f64| {
+        brent_root(&|x: f64| e_at(x) - level, inside, outside).unwrap_or_else(|| {
+            // fall back to linear interpolation of E between the two points
+            let (ei, eo) = (e_at(inside), e_at(outside));
+            let t = if eo.is_finite() && ei.is_finite() && (eo - ei).abs() > 0.0 {
+                ((level - ei) / (eo - ei)).clamp(0.0, 1.0)
+            } else {
+                0.5
+            };
+            inside + t * (outside - inside)
+        })
     };
     let mut lo = None;
-    for i in (0..k).rev() {
+    let mut inside = log_h;
+    for i in (0..GRID_POINTS).rev().filter(|&i| hs[i].ln() < log_h) {
         if finite(values[i]) > level {
-            lo = Some(cross(i + 1, i));
+            lo = Some(crossing(inside, hs[i].ln()).exp());
             break;
         }
+        inside = hs[i].ln();
     }
     let mut hi = None;
-    for i in k + 1..GRID_POINTS {
+    let mut inside = log_h;
+    for i in (0..GRID_POINTS).filter(|&i| hs[i].ln() > log_h) {
         if finite(values[i]) > level {
-            hi = Some(cross(i - 1, i));
+            hi = Some(crossing(inside, hs[i].ln()).exp());
             break;
         }
+        inside = hs[i].ln();
     }
     let h = log_h.exp().clamp(low, high);
     Ok(ConvectionEstimate {
@@ -190,6 +207,45 @@ pub fn profile_h(
             .map(|(&h, &e)| (h, finite(e) - e_min))
             .collect(),
     })
+}
+
+/// A 1-D function as an argmin cost.
+struct Cost<F: Fn(f64) -> f64>(F);
+
+impl<F: Fn(f64) -> f64> CostFunction for Cost<F> {
+    type Param = f64;
+    type Output = f64;
+    fn cost(&self, x: &f64) -> std::result::Result<f64, argmin::core::Error> {
+        Ok((self.0)(*x))
+    }
+}
+
+/// Tolerance of the refinements in `log h` (a relative 1e-4 in h).
+const LOG_H_TOL: f64 = 1e-4;
+
+/// Brent's minimiser of `f` on `[a, b]`: `(x, f(x))`, or `None` when it fails.
+fn brent_min(f: &dyn Fn(f64) -> f64, a: f64, b: f64) -> Option<(f64, f64)> {
+    let solver = BrentOpt::new(a, b).set_tolerance(LOG_H_TOL, 1e-12);
+    let res = Executor::new(Cost(f), solver)
+        .configure(|s| s.max_iters(100))
+        .ctrlc(false)
+        .run()
+        .ok()?;
+    let st = res.state();
+    st.best_param
+        .filter(|_| st.best_cost.is_finite())
+        .map(|x| (x, st.best_cost))
+}
+
+/// Brent's root finder for `f` between `a` and `b` (a sign change): the root, or `None`.
+fn brent_root(f: &dyn Fn(f64) -> f64, a: f64, b: f64) -> Option<f64> {
+    let (lo, hi) = if a < b { (a, b) } else { (b, a) };
+    let res = Executor::new(Cost(f), BrentRoot::new(lo, hi, LOG_H_TOL))
+        .configure(|s| s.max_iters(100))
+        .ctrlc(false)
+        .run()
+        .ok()?;
+    res.state().best_param.filter(|x| x.is_finite())
 }
 
 /// The estimate with the case's unknown `h` profiled: the estimate at `ĥ` with every band
