@@ -7,8 +7,10 @@
 //! σ = 0.15 K): seeded noise draws of a smooth truth on the bottom edge, estimated with h known,
 //! with h unknown (two rows of sensors, 8 and 24 mm above the hidden edge), and with h unknown
 //! on a layout that cannot identify it (one row 6 mm above the hidden edge). STUDIES is a
-//! comma-separated subset of `known,unknown,deep` (default: all). Prints the figures of
-//! docs/calibration.md, "Convective edge and an unknown h".
+//! comma-separated subset of `known,unknown,deep` (default: all); `H_TRUE=<W/(m² K)>` sets
+//! another true h; `H_CAL_VERBOSE=1` also prints every draw's h and interval and the first
+//! draw's criterion curve `E(h) − E(ĥ)`. Prints the figures of docs/calibration.md,
+//! "Convective edge and an unknown h".
 
 use edgetherm::case::{Case, CaseFiles};
 use edgetherm::estimate::EstimateOptions;
@@ -16,7 +18,7 @@ use edgetherm::estimate::calibration::{Coverage, coverage_study, coverage_study_
 use edgetherm::geometry::{Edge, EdgeProfile};
 use edgetherm::io::load_case;
 
-/// The true heat transfer coefficient of the scenario, W/(m² K).
+/// The true heat transfer coefficient of the scenario, W/(m² K) (`H_TRUE` overrides it).
 const TRUE_H: f64 = 400.0;
 
 fn fixture(sensors: &str) -> Case {
@@ -82,12 +84,13 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     };
     let truths = [(Edge::Bottom, smooth_truth())];
     let seed = 2026_1202;
+    let true_h: f64 = std::env::var("H_TRUE").map_or(TRUE_H, |s| s.parse().unwrap());
     for study in studies.split(',') {
         let t = std::time::Instant::now();
         match study {
             "known" => {
                 let mut case = fixture("sensors.csv");
-                case.plate = case.plate.with_heat_transfer(Edge::Top, TRUE_H)?;
+                case.plate = case.plate.with_heat_transfer(Edge::Top, true_h)?;
                 let c = coverage_study(&case, &truths, 0.15, draws, seed, &opts)?;
                 line("known", &c, t.elapsed().as_secs_f64());
             }
@@ -98,7 +101,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
                     "sensors.csv"
                 };
                 let case = fixture(sensors);
-                let c = coverage_study_unknown_h(&case, TRUE_H, &truths, 0.15, draws, seed, &opts)?;
+                let c = coverage_study_unknown_h(&case, true_h, &truths, 0.15, draws, seed, &opts)?;
                 line(study, &c.coverage, t.elapsed().as_secs_f64());
                 println!(
                     "{study:8} h interval holds true h {:.3}  median h/h_true {:.3}  median \
