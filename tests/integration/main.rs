@@ -26,6 +26,7 @@ mod forward_closed_forms;
 mod forward_convective;
 mod forward_fem_reference;
 mod forward_properties;
+mod h_calibration;
 mod hard_inputs;
 mod its90_reference;
 mod report_outputs;
