@@ -4,7 +4,8 @@
 //! With `h` fixed the model is linear in the edge coefficients and the inversion is the usual
 //! one. The readings' marginal likelihood, maximised over the strength (and the smoothing
 //! order under `auto`), is therefore a function of `h` alone:
-//! `E(h) = min_λ −2 log p(d | h, λ)`, the same criterion that chooses the strength. It is
+//! `E(h) = min_λ −2 log p(d | h, λ)`, the same criterion that chooses the strength (plus the
+//! term that makes it comparable across `h`: see `null_space_log_det`). It is
 //! evaluated on a grid of [`GRID_POINTS`] values spaced evenly in `log h` over the search
 //! range; the minimum is refined by Brent's method between the best grid point's neighbours
 //! and each end of the interval by Brent's root finder (argmin), all in `log h`.
@@ -99,13 +100,35 @@ fn criterion(
             .copied()
             .filter(|i| !options.exclude.contains(i))
             .collect();
-        let f = fit(
-            &problem.input(&rows),
-            Strength::Rule(StrengthMethod::Evidence),
-        )?;
-        total += f.selection.criterion;
+        let input = problem.input(&rows);
+        let f = fit(&input, Strength::Rule(StrengthMethod::Evidence))?;
+        total += f.selection.criterion + null_space_log_det(&input, &f.sigma);
     }
     Ok(total)
+}
+
+/// `log det(XᵀX)` of the weighted unpenalised columns `X = W^{1/2} A_null` (edge levels and
+/// corner temperatures, in kelvin whatever `h` is). The evidence of the strength search is
+/// the restricted likelihood, taken on the complement of `X`; that complement moves with `h`
+/// (the columns' decay across the plate depends on it), so restricted likelihoods at two `h`
+/// are not comparable as they are. Adding this term gives the likelihood integrated over a
+/// flat prior on those coefficients, `−2 log L = −2 log L_R + log det(XᵀX)` (from
+/// `det(Q₂ᵀVQ₂) = det V · det(XᵀV⁻¹X) / det(XᵀX)`; Harville 1974, recalled from memory):
+/// the coefficients mean the same kelvins at every `h`.
+fn null_space_log_det(input: &super::fit::FitInput, sigma: &nalgebra::DVector<f64>) -> f64 {
+    let null: Vec<usize> = (0..input.penalty.len())
+        .filter(|&j| input.penalty[j] == 0.0)
+        .collect();
+    if null.is_empty() {
+        return 0.0;
+    }
+    let x = nalgebra::DMatrix::from_fn(input.a.nrows(), null.len(), |i, k| {
+        input.a[(i, null[k])] / sigma[i]
+    });
+    match (x.transpose() * &x).cholesky() {
+        Some(c) => 2.0 * c.l().diagonal().iter().map(|v| v.ln()).sum::<f64>(),
+        None => f64::INFINITY,
+    }
 }
 
 /// Profile `E(h)` over the search range of the case's unknown `h`, from one set of readings
