@@ -30,7 +30,7 @@ pub fn load_design_case(files: &CaseFiles) -> Result<Case> {
 /// Read `plate.toml` and, when `with_sensors`, `sensors.csv`.
 fn load(files: &CaseFiles, with_sensors: bool) -> Result<Case> {
     let pf = plate_file::read_plate_file(&files.plate)?;
-    let mut read_as = Vec::new();
+    let mut read_as = pf.profiles_read_as.clone();
     let sensors = if with_sensors {
         let (sensors, how) =
             csv_files::read_sensors_as(&files.sensors, &pf.units, pf.plate.shape())?;

@@ -656,15 +656,26 @@ fn add_hint(e: Error, hint: &str) -> Error {
 /// Rows of a profile for one edge: `(line, position, temperature)` in case units.
 type ProfileRows = Vec<(usize, f64, f64)>;
 
-/// Read one fixed-edge profile file (`position,temperature`) for `edge`. `length` is the
-/// edge's length in the case unit (`None` for a side of a strip, whose checks the plate
-/// makes).
+/// `read_edge_profile_as` without the dialect (the tests' shorthand).
+#[cfg(test)]
 pub(crate) fn read_edge_profile(
     path: &Path,
     units: &Units,
     edge: Edge,
     length: Option<f64>,
 ) -> Result<EdgeProfile> {
+    read_edge_profile_as(path, units, edge, length).map(|(p, _)| p)
+}
+
+/// Read one fixed-edge profile file (`position,temperature`) for `edge`, and how it was read
+/// (for the outputs' echo). `length` is the edge's length in the case unit (`None` for a side
+/// of a strip, whose checks the plate makes).
+pub(crate) fn read_edge_profile_as(
+    path: &Path,
+    units: &Units,
+    edge: Edge,
+    length: Option<f64>,
+) -> Result<(EdgeProfile, ReadAs)> {
     let table = CsvTable::read(
         path,
         &Columns {
@@ -678,7 +689,8 @@ pub(crate) fn read_edge_profile(
         let t = table.number(row, "temperature")?;
         rows.push((row.line, s, t));
     }
-    build_profile(&table, units, edge, length, rows)
+    let profile = build_profile(&table, units, edge, length, rows)?;
+    Ok((profile, table.read_as()))
 }
 
 /// Read truth profiles (`edge,position,temperature`; the `edge` column may be left out when

@@ -209,6 +209,8 @@ pub(crate) struct PlateFile {
     /// The profile files the fixed edges refer to, resolved against the plate file's
     /// directory.
     pub profiles: Vec<(Edge, PathBuf)>,
+    /// How each profile file was read (separator, decimal mark, ...), for the outputs.
+    pub profiles_read_as: Vec<crate::case::ReadAs>,
 }
 
 /// The line of the key `field` (`uncertainty.replicates`) in the plate file at `path`, when the
@@ -371,6 +373,7 @@ impl Checker<'_> {
         }
         let mut conditions: [Option<EdgeCondition>; 4] = [None, None, None, None];
         let mut profiles = Vec::new();
+        let mut profiles_read_as = Vec::new();
         let raw_edges = [
             (Edge::Bottom, raw.edges.bottom),
             (Edge::Right, raw.edges.right),
@@ -381,8 +384,9 @@ impl Checker<'_> {
             if let Some(r) = raw_edge {
                 let (cond, file) = self.edge(edge, r, &units, &shape)?;
                 conditions[edge.index()] = Some(cond);
-                if let Some(f) = file {
+                if let Some((f, how)) = file {
                     profiles.push((edge, f));
+                    profiles_read_as.push(how);
                 }
             }
         }
@@ -405,6 +409,7 @@ impl Checker<'_> {
             },
             bounds: self.bounds(raw.bounds, &units)?,
             profiles,
+            profiles_read_as,
         })
     }
 
@@ -452,7 +457,7 @@ impl Checker<'_> {
         r: RawEdge,
         units: &Units,
         shape: &Shape,
-    ) -> Result<(EdgeCondition, Option<PathBuf>)> {
+    ) -> Result<(EdgeCondition, Option<(PathBuf, crate::case::ReadAs)>)> {
         let key = |k: &str| format!("edges.{edge}.{k}");
         let condition = r.condition.trim();
         if condition == "convective" {
@@ -529,18 +534,20 @@ impl Checker<'_> {
                     let base = self.path.parent().unwrap_or(Path::new(""));
                     let file_path = base.join(&file);
                     let length = shape.edge_length(edge).map(|m| units.length_from_m(m));
-                    let profile = csv_files::read_edge_profile(&file_path, units, edge, length)
-                        .map_err(|e| match e {
-                            Error::Io { source, .. } => self.err(
-                                &key("profile"),
-                                format!(
-                                    "cannot read the profile file {}: {source}",
-                                    file_path.display()
-                                ),
+                    let (profile, how) = csv_files::read_edge_profile_as(
+                        &file_path, units, edge, length,
+                    )
+                    .map_err(|e| match e {
+                        Error::Io { source, .. } => self.err(
+                            &key("profile"),
+                            format!(
+                                "cannot read the profile file {}: {source}",
+                                file_path.display()
                             ),
-                            other => other,
-                        })?;
-                    Ok((EdgeCondition::Fixed(profile), Some(file_path)))
+                        ),
+                        other => other,
+                    })?;
+                    Ok((EdgeCondition::Fixed(profile), Some((file_path, how))))
                 }
             },
             other => Err(self.err(

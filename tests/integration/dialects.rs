@@ -515,3 +515,41 @@ fn unreadable_logs_are_refused_with_file_line_and_field() {
         );
     }
 }
+
+/// A fixed edge's profile file in a semicolon / decimal-comma dialect reads as its comma
+/// version (the same profile, so the same model), and `check` echoes how it was read.
+#[test]
+fn profile_files_read_in_any_dialect_and_are_echoed() {
+    let comma = "position,temperature\n0,24.0\n90,26.5\n180,24.0\n";
+    let semi = "position;temperature\r\n0;24,0\r\n90;26,5\r\n180;24,0\r\n";
+    let mut profiles = Vec::new();
+    for (name, text) in [("comma", comma), ("semi", semi)] {
+        let dir = tempfile::tempdir().unwrap();
+        for f in ["sensors.csv", "readings.csv"] {
+            std::fs::copy(sample("cold-plate").join(f), dir.path().join(f)).unwrap();
+        }
+        let plate = std::fs::read_to_string(sample("cold-plate/plate.toml"))
+            .unwrap()
+            .replace(
+                "temperature = 24.0       # coolant-held face",
+                "profile = \"top.csv\"",
+            );
+        std::fs::write(dir.path().join("plate.toml"), plate).unwrap();
+        std::fs::write(dir.path().join("top.csv"), text).unwrap();
+        let case = load_case(&CaseFiles::in_dir(dir.path())).unwrap();
+        profiles.push(format!("{:?}", case.plate));
+        let out = cargo_bin_cmd!("edgetherm")
+            .arg("check")
+            .arg(dir.path())
+            .output()
+            .unwrap();
+        let text = String::from_utf8_lossy(&out.stdout).into_owned();
+        let expected = if name == "semi" {
+            "read as   top.csv: semicolon-separated, decimal comma"
+        } else {
+            "read as   top.csv: comma-separated, decimal point"
+        };
+        assert!(text.contains(expected), "{text}");
+    }
+    assert_eq!(profiles[0], profiles[1]);
+}
