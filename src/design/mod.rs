@@ -24,7 +24,9 @@
 //!
 //! The predicted spread is that of the posterior-mean estimate with the strength fixed at
 //! the prior's equivalent `λ = 1/τ²`, for profiles drawn from the prior; `estimate` chooses
-//! its strength from the readings, so its bands differ somewhat (`docs/design.md`).
+//! its strength from the readings, so its bands differ: [`DesignSpace::estimate_check`]
+//! states by how much, on simulated readings of prior-like and of rougher edges
+//! (`docs/design.md`, "What `estimate` will give").
 
 pub mod candidates;
 pub mod prior;
@@ -210,7 +212,31 @@ pub struct DesignResult {
     pub cautions: Vec<String>,
     /// The design settings that took their default, one sentence each ([`apply_defaults`]).
     pub defaults: Vec<String>,
+    /// What `estimate` would give on readings from this layout
+    /// ([`DesignSpace::estimate_check`]); `None` when no simulated fit succeeded.
+    pub estimate_check: Option<EstimateCheck>,
 }
+
+/// Simulated `estimate` fits on a layout: the band `estimate` would give, as opposed to the
+/// design's prediction at the prior's strength.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct EstimateCheck {
+    /// Simulated readings sets fitted.
+    pub draws: usize,
+    /// The strength rule used (the case's).
+    pub rule: String,
+    /// Per unknown edge: the median over the draws of the root-mean-square half-width of the
+    /// linear band at the case's confidence, kelvin, for profiles drawn from the design's
+    /// prior.
+    pub edges: Vec<(Edge, f64)>,
+    /// The same for rougher profiles: drawn from the prior one smoothing order lower (slope
+    /// instead of curvature, size instead of slope) with the same variation; `None` when the
+    /// prior is already of order 0.
+    pub rough_edges: Option<Vec<(Edge, f64)>>,
+}
+
+/// Simulated readings sets behind [`EstimateCheck`].
+pub const ESTIMATE_CHECK_DRAWS: usize = 40;
 
 /// Default minimum distance from the edges when `plate.toml` has no `[design]` section, as
 /// a fraction of the plate's smaller side (a long strip: its width).
@@ -352,6 +378,11 @@ pub fn apply_defaults(case: &mut Case, variation_k: Option<f64>) -> Result<Vec<S
         }
     }
     Ok(used)
+}
+
+/// A temperature difference in the case's unit, three significant digits.
+fn show_dt(u: Units, k: f64) -> String {
+    format!("±{} {}", tidy(u.dtemp_from_k(k)), temp_symbol(u))
 }
 
 /// The temperature unit as printed: °C, °F or K.
@@ -602,6 +633,110 @@ impl DesignSpace {
             .sum::<f64>()
             + self.prior.variances.iter().map(|v| v.ln()).sum::<f64>();
         Ok((chol.inverse(), logdet, h))
+    }
+
+    /// What `estimate` gives on readings from `sensors`: [`ESTIMATE_CHECK_DRAWS`] profiles
+    /// drawn from the prior, readings with the design's noise, each fitted with the case's
+    /// strength rule and smoothing (`auto`: chosen per draw) as `estimate` fits; per edge the
+    /// median root-mean-square half-width of the linear band (`estimate`'s cross-check band,
+    /// at the chosen strength). The design's own prediction fixes the strength at the prior's
+    /// equivalent; readings choose a weaker smoothing when they can, which widens the band.
+    ///
+    /// # Errors
+    /// None in practice: draws whose fit fails are skipped; `Ok(None)` when none succeeds.
+    pub fn estimate_check(
+        &self,
+        case: &Case,
+        sensors: &[LayoutSensor],
+    ) -> Result<Option<EstimateCheck>> {
+        if sensors.is_empty() {
+            return Ok(None);
+        }
+        let strength = crate::estimate::strength_of(case.fit.strength);
+        let Some(edges) = self.simulated_bands(case, sensors, &self.prior.variances) else {
+            return Ok(None);
+        };
+        let rough_edges = (self.prior.order > 0)
+            .then(|| {
+                let rough = Prior::new(&self.model, self.prior.order - 1, self.prior.variation_k);
+                self.simulated_bands(case, sensors, &rough.variances)
+            })
+            .flatten();
+        Ok(Some(EstimateCheck {
+            draws: ESTIMATE_CHECK_DRAWS,
+            rule: strength.name().to_string(),
+            edges,
+            rough_edges,
+        }))
+    }
+
+    /// Median linear-band half-widths per edge of `estimate`-style fits on readings of
+    /// profiles drawn with the prior `variances` ([`DesignSpace::estimate_check`]).
+    fn simulated_bands(
+        &self,
+        case: &Case,
+        sensors: &[LayoutSensor],
+        variances: &DVector<f64>,
+    ) -> Option<Vec<(Edge, f64)>> {
+        use rand::SeedableRng;
+        use rand_distr::{Distribution, StandardNormal};
+        let points: Vec<Point> = sensors.iter().map(|s| s.position).collect();
+        let a = self.model.sensor_map(&points).matrix;
+        let sigma = DVector::from_iterator(
+            sensors.len(),
+            sensors.iter().map(|s| s.sigma_k.unwrap_or(self.noise_k)),
+        );
+        let strength = crate::estimate::strength_of(case.fit.strength);
+        let z = Normal::standard().inverse_cdf(0.5 + self.confidence / 2.0);
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(case.uncertainty.seed);
+        let mut widths: Vec<Vec<f64>> = vec![Vec::new(); self.maps.len()];
+        for _ in 0..ESTIMATE_CHECK_DRAWS {
+            let c = DVector::from_iterator(
+                variances.len(),
+                variances.iter().map(|v| {
+                    let n: f64 = StandardNormal.sample(&mut rng);
+                    v.sqrt() * n
+                }),
+            );
+            let mut d = &a * c;
+            for (i, di) in d.iter_mut().enumerate() {
+                let n: f64 = StandardNormal.sample(&mut rng);
+                *di += sigma[i] * n;
+            }
+            let order = case.fit.smoothing.order().unwrap_or(self.prior.order);
+            let mut input = crate::estimate::fit::FitInput {
+                a: a.clone(),
+                d,
+                sigma: sigma.clone(),
+                sigma_stated: true,
+                penalty: crate::estimate::penalty::penalty_weights(&self.model, order),
+            };
+            if case.fit.smoothing == crate::case::Smoothing::Auto {
+                if let Ok(o) = crate::estimate::choose_order(&input, &self.model) {
+                    input.penalty = crate::estimate::penalty::penalty_weights(&self.model, o);
+                }
+            }
+            let Ok(fit) = crate::estimate::fit::fit(&input, strength) else {
+                continue;
+            };
+            for (k, map) in self.maps.iter().enumerate() {
+                let sd = crate::estimate::linear_sd(&map.matrix, &fit.solution.covariance);
+                let rms = (sd.iter().map(|v| v * v).sum::<f64>() / sd.len().max(1) as f64).sqrt();
+                if rms.is_finite() {
+                    widths[k].push(z * rms);
+                }
+            }
+        }
+        let mut edges = Vec::new();
+        for (k, (edge, _)) in self.edges.iter().enumerate() {
+            let w = &mut widths[k];
+            if w.is_empty() {
+                return None;
+            }
+            w.sort_by(f64::total_cmp);
+            edges.push((*edge, w[w.len() / 2]));
+        }
+        Some(edges)
     }
 
     /// Score a layout: predicted uncertainty along the edges, resolution lengths, criteria,
@@ -865,6 +1000,28 @@ impl DesignSpace {
             temp_symbol(u),
             crate::case::Smoothing::of_penalty_order(self.prior.order).name(),
         ));
+        let estimate_check = self.estimate_check(case, &layout)?;
+        if let Some(check) = &estimate_check {
+            let z = Normal::standard().inverse_cdf(0.5 + self.confidence / 2.0);
+            for ((edge, w), e) in check.edges.iter().zip(&score.edges) {
+                let predicted = z * e.rms_sd;
+                if *w > 1.5 * predicted {
+                    cautions.push(format!(
+                        "On the {edge} edge, `estimate` gives bands about {:.1} times wider than \
+                         predicted here ({} against {} on average, median of {} simulated \
+                         readings fitted as `estimate` fits them): the prediction fixes the \
+                         smoothing at the prior's, while `estimate` chooses it from the readings \
+                         ({} rule) and, with few degrees of freedom left, chooses it weaker. \
+                         Compare layouts by the prediction; expect the estimate's band.",
+                        w / predicted,
+                        show_dt(u, *w),
+                        show_dt(u, predicted),
+                        check.draws,
+                        check.rule
+                    ));
+                }
+            }
+        }
         for v in self.violations(&layout) {
             let whose = if search.is_some() {
                 "A sensor kept from the existing layout breaks a constraint: "
@@ -896,6 +1053,7 @@ impl DesignSpace {
             against,
             cautions,
             defaults: Vec::new(),
+            estimate_check,
         })
     }
 

@@ -417,3 +417,69 @@ fn against_a_file_of_the_same_name_is_named_by_its_path() {
     let name = json["against"]["name"].as_str().unwrap();
     assert_eq!(name, b.join("layout.csv").display().to_string());
 }
+
+/// The design states what `estimate` will give on its layout (issue 13: the promise and the
+/// result must agree, or the difference be stated): on the cold-plate sample's own layout the
+/// simulated `estimate` band for prior-like edges is within 30 % of the prediction, a rougher
+/// edge gives a wider band, and `estimate` on the sample's readings (a rougher edge than the
+/// prior) falls between the prediction and twice the rough-edge figure.
+#[test]
+fn design_states_what_estimate_will_give() {
+    let out = tempfile::tempdir().unwrap();
+    let layout = sample().join("sensors.csv");
+    design(
+        &sample(),
+        out.path(),
+        &["--evaluate", layout.to_str().unwrap()],
+    )
+    .success()
+    .stdout(predicates::str::contains(
+        "what `estimate` gives on readings from this layout",
+    ));
+    let json: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(out.path().join("design.json")).unwrap())
+            .unwrap();
+    let check = &json["estimate_check"];
+    let smooth = check["band_half_width"]["bottom"].as_f64().unwrap();
+    let rough = check["band_half_width_rough"]["bottom"].as_f64().unwrap();
+    let edges = json["score"]["edges"].as_array().unwrap();
+    // the 95 % half-width: z = 1.959964 (the standard normal's 97.5 % point) times the sd
+    let predicted = 1.959_964 * edges[0]["rms_sd"].as_f64().unwrap();
+    eprintln!("predicted {predicted}, estimate smooth {smooth}, rough {rough}");
+    assert!(
+        (smooth / predicted - 1.0).abs() < 0.3,
+        "{predicted} vs {smooth}"
+    );
+    assert!(rough > 2.0 * smooth, "{smooth} vs {rough}");
+    // estimate on the sample's readings
+    let est = tempfile::tempdir().unwrap();
+    assert_cmd::cargo::cargo_bin_cmd!("edgetherm")
+        .args([
+            "estimate",
+            sample().to_str().unwrap(),
+            "--no-bounds",
+            "--replicates",
+            "50",
+        ])
+        .arg("--out")
+        .arg(est.path())
+        .assert()
+        .success();
+    let text = std::fs::read_to_string(est.path().join("profile.csv")).unwrap();
+    let mut lines = text.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let col = |name: &str| header.iter().position(|h| *h == name).unwrap();
+    let (lo, hi) = (col("linear_lower"), col("linear_upper"));
+    let w: Vec<f64> = lines
+        .map(|l| {
+            let c: Vec<&str> = l.split(',').collect();
+            0.5 * (c[hi].parse::<f64>().unwrap() - c[lo].parse::<f64>().unwrap())
+        })
+        .collect();
+    let rms = (w.iter().map(|v| v * v).sum::<f64>() / w.len() as f64).sqrt();
+    eprintln!("estimate on the sample's readings: {rms}");
+    assert!(
+        rms > predicted && rms < 2.0 * rough,
+        "{predicted} {rough} {rms}"
+    );
+}

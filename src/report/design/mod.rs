@@ -133,6 +133,12 @@ pub fn design_json(r: &DesignResult) -> Value {
         "version": env!("CARGO_PKG_VERSION"),
         "cautions": r.cautions,
         "defaults_used": r.defaults,
+        "estimate_check": r.estimate_check.as_ref().map(|c| json!({
+            "draws": c.draws,
+            "strength_rule": c.rule,
+            "band_half_width": c.edges.iter().map(|(e, w)| (e.name().to_string(), u.dtemp_json(*w))).collect::<serde_json::Map<String, Value>>(),
+            "band_half_width_rough": c.rough_edges.as_ref().map(|v| v.iter().map(|(e, w)| (e.name().to_string(), u.dtemp_json(*w))).collect::<serde_json::Map<String, Value>>()),
+        })),
     })
 }
 
@@ -275,6 +281,34 @@ pub fn design_text(r: &DesignResult) -> String {
         "The scored layout".to_string()
     };
     score_lines(&mut out, &name, &r.score);
+    if let Some(check) = &r.estimate_check {
+        let rough_name = match r.prior.order {
+            2 => "slope",
+            _ => "size",
+        };
+        for (k, (edge, w)) in check.edges.iter().enumerate() {
+            let rough = check.rough_edges.as_ref().and_then(|v| v.get(k)).map_or(
+                String::new(),
+                |(_, x)| {
+                    format!(
+                        "; about {} for a rougher edge (profiles drawn from the {rough_name} prior \
+                         with the same variation)",
+                        u.dtemp_show(*x)
+                    )
+                },
+            );
+            let _ = writeln!(
+                out,
+                "  {edge} edge: what `estimate` gives on readings from this layout: {conf} band \
+                 half-width about {} on average for an edge like the prior{rough} (medians of {} \
+                 simulated readings each, smoothing chosen by the {} rule from the readings, as \
+                 `estimate` does; the prediction above fixes it at the prior's)",
+                u.dtemp_show(*w),
+                check.draws,
+                check.rule
+            );
+        }
+    }
     if let Some(a) = &r.against {
         out.push('\n');
         score_lines(
