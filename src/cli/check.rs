@@ -19,6 +19,9 @@ pub struct CheckArgs {
     /// The case directory (plate.toml, sensors.csv and optionally readings.csv).
     #[arg(value_name = "CASE_DIR")]
     pub case_dir: PathBuf,
+    /// Readings to use instead of CASE_DIR/readings.csv.
+    #[arg(long, value_name = "FILE")]
+    pub readings: Option<PathBuf>,
     /// How readings.csv is written, when detection should not decide.
     #[command(flatten)]
     pub dialect: super::dialect::DialectArgs,
@@ -26,11 +29,11 @@ pub struct CheckArgs {
 
 /// Run `check`; exit status 0 when every input is valid (errors carry their own status).
 pub fn run(args: &CheckArgs, global: &GlobalOptions) -> Result<i32> {
-    let files = global.case_files(&args.case_dir, true, false)?;
+    let files = global.case_files(&args.case_dir, true, false, args.readings.clone())?;
     let mut case = load_case(&files)?;
     // Readings are optional for `check`, but a file that exists (or is named by --readings)
     // must be valid.
-    let readings = if global.readings.is_some() || case.files.readings.exists() {
+    let readings = if args.readings.is_some() || case.files.readings.exists() {
         let (r, read_as) =
             load_readings_as(&case.files.readings, &case, &args.dialect.options(None)?)?;
         case.read_as.push(read_as);

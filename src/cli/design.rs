@@ -60,7 +60,7 @@ pub fn run(args: &DesignArgs, global: &GlobalOptions) -> Result<i32> {
              (--add K), or which layout to score (--evaluate LAYOUT.csv)",
         ));
     }
-    let files = global.case_files(&args.case_dir, false, false)?;
+    let files = global.case_files(&args.case_dir, false, false, None)?;
     let mut case = load_design_case(&files)?;
     if let Some(v) = args.variation {
         if !(v.is_finite() && v > 0.0) {

@@ -26,6 +26,9 @@ pub struct EstimateArgs {
     /// The case directory (plate.toml, sensors.csv, readings.csv).
     #[arg(value_name = "CASE_DIR")]
     pub case_dir: PathBuf,
+    /// Readings to use instead of CASE_DIR/readings.csv.
+    #[arg(long, value_name = "FILE")]
+    pub readings: Option<PathBuf>,
     /// Directory for the output files (created if needed; never an input's directory if an
     /// output would replace an input).
     #[arg(long, value_name = "DIR", default_value = "edgetherm-estimate")]
@@ -84,7 +87,7 @@ pub struct EstimateArgs {
 
 /// Run `estimate`.
 pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
-    let files = global.case_files(&args.case_dir, true, true)?;
+    let files = global.case_files(&args.case_dir, true, true, args.readings.clone())?;
     let mut case = load_case(&files)?;
     let (readings, read_as) =
         load_readings_as(&case.files.readings, &case, &args.dialect.options(None)?)?;

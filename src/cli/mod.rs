@@ -31,35 +31,36 @@ struct Cli {
     command: Command,
 }
 
+/// The help heading of the options every command takes (listed apart from each command's
+/// own).
+const GLOBAL: &str = "Options of every command";
+
 /// Flags that every command accepts.
 #[derive(Debug, Args)]
 pub struct GlobalOptions {
     /// Plate file to use instead of CASE_DIR/plate.toml.
-    #[arg(long, global = true, value_name = "FILE")]
+    #[arg(long, global = true, value_name = "FILE", help_heading = GLOBAL)]
     pub plate: Option<PathBuf>,
     /// Sensor layout to use instead of CASE_DIR/sensors.csv.
-    #[arg(long, global = true, value_name = "FILE")]
+    #[arg(long, global = true, value_name = "FILE", help_heading = GLOBAL)]
     pub sensors: Option<PathBuf>,
-    /// Readings to use instead of CASE_DIR/readings.csv.
-    #[arg(long, global = true, value_name = "FILE")]
-    pub readings: Option<PathBuf>,
     /// Print the summary as JSON on stdout instead of text.
-    #[arg(long, global = true)]
+    #[arg(long, global = true, help_heading = GLOBAL)]
     pub json: bool,
     /// Print no progress and no text (errors still go to stderr).
-    #[arg(long, global = true)]
+    #[arg(long, global = true, help_heading = GLOBAL)]
     pub quiet: bool,
     /// Replace existing output files that no earlier run of edgetherm wrote (by default
     /// they are refused; an input of the run is never replaced).
-    #[arg(long, global = true)]
+    #[arg(long, global = true, help_heading = GLOBAL)]
     pub overwrite: bool,
     /// Memory the run may use, in MB (10^6 bytes); a run estimated to need more is refused
     /// before it starts, naming the setting to change [default: 2147, i.e. 2 GiB].
-    #[arg(long, global = true, value_name = "MB", allow_negative_numbers = true)]
+    #[arg(long, global = true, value_name = "MB", allow_negative_numbers = true, help_heading = GLOBAL)]
     pub memory_budget: Option<f64>,
     /// Computing time the run may take, in seconds; a run estimated to take longer is
     /// refused before it starts [default: 600].
-    #[arg(long, global = true, value_name = "S", allow_negative_numbers = true)]
+    #[arg(long, global = true, value_name = "S", allow_negative_numbers = true, help_heading = GLOBAL)]
     pub time_budget: Option<f64>,
 }
 
@@ -126,11 +127,20 @@ impl GlobalOptions {
     /// checked to exist before anything is read, so that a wrong path gets a message that
     /// says which file is missing and what to do (not a bare "No such file"): the case folder
     /// itself, `plate.toml`, and `sensors.csv` / `readings.csv` when the command needs them.
-    pub fn case_files(&self, dir: &Path, sensors: bool, readings: bool) -> Result<CaseFiles> {
+    ///
+    /// `readings_override` is the command's `--readings FILE` (`check` and `estimate`, the
+    /// commands that read a readings file).
+    pub fn case_files(
+        &self,
+        dir: &Path,
+        sensors: bool,
+        readings: bool,
+        readings_override: Option<PathBuf>,
+    ) -> Result<CaseFiles> {
         let files = CaseFiles::in_dir(dir).with_overrides(
             self.plate.clone(),
             self.sensors.clone(),
-            self.readings.clone(),
+            readings_override,
         );
         check_case_files(dir, &files, sensors, readings)?;
         Ok(files)

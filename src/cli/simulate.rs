@@ -48,7 +48,7 @@ pub struct SimulateArgs {
 
 /// Run `simulate`.
 pub fn run(args: &SimulateArgs, global: &GlobalOptions) -> Result<i32> {
-    let files = global.case_files(&args.case_dir, true, false)?;
+    let files = global.case_files(&args.case_dir, true, false, None)?;
     let case = load_case(&files)?;
     if case.plate.unknown_edges().is_empty() {
         return Err(Error::invalid_at(

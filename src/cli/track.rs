@@ -128,7 +128,7 @@ pub struct TrackArgs {
 const H_DEFAULT_ROWS: usize = 200;
 
 pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
-    let files = global.case_files(&args.case_dir, true, false)?;
+    let files = global.case_files(&args.case_dir, true, false, None)?;
     // (a device or a pipe is a log too: only a path that is missing or a folder is refused)
     if !args.log.exists() || args.log.is_dir() {
         return Err(Error::invalid_at(
