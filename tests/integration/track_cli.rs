@@ -252,3 +252,72 @@ fn follow_reads_rows_appended_while_running() {
             .starts_with(lines[101].split(',').next().unwrap())
     );
 }
+
+/// `track --follow` as a person runs it on a live logger: an alarm start is announced on
+/// stderr as it happens, and SIGTERM (what a service manager sends; SIGINT takes the same
+/// path) ends the run after the row in hand with every output written and the status the
+/// run earned (3: an alarm was raised).
+#[cfg(unix)]
+#[test]
+fn follow_announces_alarms_and_stops_cleanly_on_a_signal() {
+    let dir = tempfile::tempdir().unwrap();
+    let log = dir.path().join("log.csv");
+    let text = std::fs::read_to_string(sample().join("log.csv")).unwrap();
+    let lines: Vec<&str> = text.lines().collect();
+    let mut f = std::fs::File::create(&log).unwrap();
+    for l in &lines[..lines.len().min(400)] {
+        writeln!(f, "{l}").unwrap();
+    }
+    f.flush().unwrap();
+    let out = dir.path().join("out");
+    let bin = assert_cmd::cargo::cargo_bin!("edgetherm");
+    let child = std::process::Command::new(bin)
+        .arg("track")
+        .arg(sample())
+        .arg("--log")
+        .arg(&log)
+        .arg("--out")
+        .arg(&out)
+        // a limit the busbar joint exceeds within the log
+        .args(["--follow", "--limit", "40", "--calibrate", "20"])
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    // let it read what is there and wait for more: track.csv is written live, so wait
+    // (up to a minute on a loaded machine) until it holds every row
+    let want = lines.len().min(400);
+    let start = std::time::Instant::now();
+    while start.elapsed() < std::time::Duration::from_secs(60) {
+        let n = std::fs::read_to_string(out.join("track.csv")).map_or(0, |t| t.lines().count());
+        if n >= want {
+            break;
+        }
+        std::thread::sleep(std::time::Duration::from_millis(100));
+    }
+    let pid = i32::try_from(child.id()).unwrap();
+    // SAFETY: kill(2) on the child we spawned; no memory is shared.
+    let sent = unsafe { libc::kill(pid, libc::SIGTERM) };
+    assert_eq!(sent, 0);
+    let output = child.wait_with_output().unwrap();
+    let stderr = String::from_utf8_lossy(&output.stderr);
+    let stdout = String::from_utf8_lossy(&output.stdout);
+    assert_eq!(output.status.code(), Some(3), "{stderr}\n{stdout}");
+    assert!(stderr.contains("ALARM STARTED"), "{stderr}");
+    assert!(stdout.contains("Tracked"), "{stdout}");
+    for f in [
+        "track.csv",
+        "alarms.csv",
+        "sensors-health.csv",
+        "summary.json",
+        "track.svg",
+    ] {
+        assert!(out.join(f).exists(), "{f} missing after the signal");
+    }
+    let csv = std::fs::read_to_string(out.join("track.csv")).unwrap();
+    assert_eq!(
+        csv.lines().count(),
+        lines.len().min(400),
+        "every row of the log so far"
+    );
+}
