@@ -149,20 +149,30 @@ fn estimate_known_h(
 ) -> Result<EstimateResult> {
     let problem = Problem::new(case, readings, options)?;
     let fitted = faults::fit_leaving_out_faults(&problem, options)?;
-    let bounds = options.strict_bounds.then(|| {
-        crate::bounds::estimate_bounds(
-            case,
-            &problem.points,
-            readings,
-            &fitted.used,
-            fitted.fit.sigma.as_slice(),
-            problem.stated,
-            options.max_gradient_k_per_m,
-            &problem.edge_positions,
-        )
-    });
-    let maps = OutputMaps::new(&problem, options.grid)?;
-    let resampled = outputs::resample(&problem, &fitted, options, progress)?;
+    // the strict bounds and the bootstrap are independent (neither draws from the other's
+    // random numbers): run them side by side
+    let (bounds, outputs) = rayon::join(
+        || {
+            options.strict_bounds.then(|| {
+                crate::bounds::estimate_bounds(
+                    case,
+                    &problem.points,
+                    readings,
+                    &fitted.used,
+                    fitted.fit.sigma.as_slice(),
+                    problem.stated,
+                    options.max_gradient_k_per_m,
+                    &problem.edge_positions,
+                )
+            })
+        },
+        || -> Result<_> {
+            let maps = OutputMaps::new(&problem, options.grid)?;
+            let resampled = outputs::resample(&problem, &fitted, options, progress)?;
+            Ok((maps, resampled))
+        },
+    );
+    let (maps, resampled) = outputs?;
     let result = assemble::assemble(&problem, fitted, maps, resampled, bounds, options)?;
     result.check_finite()?;
     Ok(result)
