@@ -94,6 +94,18 @@ fn criterion(
     let mut total = 0.0;
     for set in readings {
         let problem = super::problem::Problem::with_model(&trial, set, options, model.clone())?;
+        if !problem.stated {
+            return Err(Error::invalid_at(
+                &case.files.plate,
+                None,
+                Some(&format!("edges.{edge}.h")),
+                "h = \"unknown\" needs the reading uncertainty stated ([noise] sigma, a \
+                 tolerance class, or a sigma column in sensors.csv): with the noise estimated \
+                 from the same readings, a lower h and a larger noise explain them equally well, \
+                 and the estimate can then miss a hot edge (docs/calibration.md); state the \
+                 uncertainty, or state h",
+            ));
+        }
         let rows: Vec<usize> = problem
             .with_reading
             .iter()

@@ -232,3 +232,28 @@ fn track_estimates_h_from_the_first_rows() {
     assert!(lo < TRUE_H && TRUE_H < hi, "{c}");
     assert!(summary["cautions"].to_string().contains("estimated once"));
 }
+
+/// With the reading uncertainty not stated, a lower h and a larger noise explain the readings
+/// equally well (measured on the demo: h = 200 at the range's end, the hottest interval
+/// [94, 135] °C below the invented true 147 °C): an unknown h then needs a stated
+/// uncertainty, and the refusal says so (exit 2).
+#[test]
+fn unknown_h_needs_a_stated_uncertainty() {
+    let dir = tempfile::tempdir().unwrap();
+    for f in ["sensors.csv", "readings.csv"] {
+        fs::copy(demo().join(f), dir.path().join(f)).unwrap();
+    }
+    let plate = fs::read_to_string(demo().join("plate.toml")).unwrap();
+    let without: String = plate
+        .lines()
+        .filter(|l| !l.starts_with("sigma"))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    fs::write(dir.path().join("plate.toml"), without).unwrap();
+    let (code, _, err) = run(&["estimate", s(dir.path()), "--out", s(&dir.path().join("o"))]);
+    assert_eq!(code, Some(2), "{err}");
+    assert!(
+        err.contains("field `edges.top.h`") && err.contains("needs the reading uncertainty"),
+        "{err}"
+    );
+}
