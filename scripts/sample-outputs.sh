@@ -23,7 +23,8 @@ run() {
   "$B" "$@" >"$O/$name.stdout" 2>"$O/$name.stderr"
   echo "exit $?" >>"$O/$name.stdout"
 }
-for c in cold-plate fin-root busbar-clamp; do run "check-$c" check "$S/$c"; done
+for c in cold-plate fin-root busbar-clamp mould-insert; do run "check-$c" check "$S/$c"; done
+run est-mould estimate "$S/mould-insert" --out "$O/est-mould" --limit 150
 run est-cold estimate "$S/cold-plate" --out "$O/est-cold" --limit 45
 run est-cold-nb estimate "$S/cold-plate" --out "$O/est-cold-nb" --no-bounds
 run est-cold-mg estimate "$S/cold-plate" --out "$O/est-cold-mg" --max-gradient 2 --strength gcv
