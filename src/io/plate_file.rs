@@ -463,21 +463,16 @@ impl Checker<'_> {
         if condition == "convective" {
             return self.convective(edge, &r, units).map(|c| (c, None));
         }
-        for (given, k) in [
-            (r.h.is_some(), "h"),
-            (r.ambient.is_some(), "ambient"),
-            (r.h_range.is_some(), "h_range"),
-        ] {
-            if given {
-                return Err(self.err(
-                    &key(k),
-                    format!(
-                        "`{k}` applies to a convective edge only, but the {edge} edge is \
-                         `{condition}`; remove it or set condition = \"convective\""
-                    ),
-                ));
-            }
-        }
+        self.refuse_keys(
+            edge,
+            condition,
+            "convective",
+            &[
+                (r.h.is_some(), "h"),
+                (r.ambient.is_some(), "ambient"),
+                (r.h_range.is_some(), "h_range"),
+            ],
+        )?;
         if !matches!(condition, "fixed" | "insulated" | "unknown") {
             let hint = match condition.to_ascii_lowercase().as_str() {
                 c @ ("fixed" | "insulated" | "unknown" | "convective") => {
@@ -494,20 +489,15 @@ impl Checker<'_> {
             ));
         }
         if condition != "fixed" {
-            for (given, k) in [
-                (r.temperature.is_some(), "temperature"),
-                (r.profile.is_some(), "profile"),
-            ] {
-                if given {
-                    return Err(self.err(
-                        &key(k),
-                        format!(
-                            "`{k}` applies to a fixed edge only, but the {edge} edge is \
-                             `{condition}`; remove it or set condition = \"fixed\""
-                        ),
-                    ));
-                }
-            }
+            self.refuse_keys(
+                edge,
+                condition,
+                "fixed",
+                &[
+                    (r.temperature.is_some(), "temperature"),
+                    (r.profile.is_some(), "profile"),
+                ],
+            )?;
         }
         match condition {
             "insulated" => Ok((EdgeCondition::Insulated, None)),
@@ -554,6 +544,27 @@ impl Checker<'_> {
                 &key("condition"),
                 format!("unknown condition `{other}`; use fixed, insulated, unknown or convective"),
             )),
+        }
+    }
+
+    /// Refuse the keys of another condition (`owner`) given on an edge that is `condition`:
+    /// `(given, key)` pairs.
+    fn refuse_keys(
+        &self,
+        edge: Edge,
+        condition: &str,
+        owner: &str,
+        keys: &[(bool, &str)],
+    ) -> Result<()> {
+        match keys.iter().find(|(given, _)| *given) {
+            Some((_, k)) => Err(self.err(
+                &format!("edges.{edge}.{k}"),
+                format!(
+                    "`{k}` applies to a {owner} edge only, but the {edge} edge is \
+                     `{condition}`; remove it or set condition = \"{owner}\""
+                ),
+            )),
+            None => Ok(()),
         }
     }
 
