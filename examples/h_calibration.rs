@@ -29,17 +29,12 @@ fn fixture(sensors: &str) -> Case {
     load_case(&files).unwrap()
 }
 
-/// The invented smooth truth on the hidden bottom edge: 180 °C, a 6 K rise toward mid-plate
-/// and a 3 K tilt.
-fn smooth_truth() -> EdgeProfile {
-    let w = 0.16;
-    let n = 241;
-    let s: Vec<f64> = (0..n).map(|i| w * i as f64 / (n - 1) as f64).collect();
-    let t = s
-        .iter()
-        .map(|&x| 273.15 + 180.0 + 6.0 * (std::f64::consts::PI * x / w).sin() + 3.0 * x / w)
-        .collect();
-    EdgeProfile::piecewise_linear(s, t).unwrap()
+/// The invented smooth truth on the hidden bottom edge (`truth.csv` beside the case): 180 °C,
+/// a 6 K rise toward mid-plate and a 3 K tilt, 241 points.
+fn smooth_truth(case: &Case) -> Vec<(Edge, EdgeProfile)> {
+    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/fixtures/convective-calibration");
+    edgetherm::io::read_truth_profiles(&dir.join("truth.csv"), case).unwrap()
 }
 
 fn line(label: &str, c: &Coverage, secs: f64) {
@@ -82,7 +77,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         replicates: Some(reps),
         ..EstimateOptions::default()
     };
-    let truths = [(Edge::Bottom, smooth_truth())];
+    let truths = smooth_truth(&fixture("sensors.csv"));
     let seed = 2026_1202;
     let true_h: f64 = std::env::var("H_TRUE").map_or(TRUE_H, |s| s.parse().unwrap());
     for study in studies.split(',') {

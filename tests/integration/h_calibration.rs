@@ -35,17 +35,12 @@ fn fixture(sensors: &str) -> Case {
     load_case(&files).unwrap()
 }
 
-/// The invented smooth truth on the hidden bottom edge: 180 °C, a 6 K rise toward mid-plate
-/// and a 3 K tilt (the same as `examples/h_calibration.rs`).
-fn smooth_truth() -> EdgeProfile {
-    let w = 0.16;
-    let n = 241;
-    let s: Vec<f64> = (0..n).map(|i| w * i as f64 / (n - 1) as f64).collect();
-    let t = s
-        .iter()
-        .map(|&x| 273.15 + 180.0 + 6.0 * (std::f64::consts::PI * x / w).sin() + 3.0 * x / w)
-        .collect();
-    EdgeProfile::piecewise_linear(s, t).unwrap()
+/// The invented smooth truth on the hidden bottom edge (`truth.csv` beside the case): 180 °C,
+/// a 6 K rise toward mid-plate and a 3 K tilt, 241 points.
+fn smooth_truth(case: &Case) -> Vec<(Edge, EdgeProfile)> {
+    let dir = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/fixtures/convective-calibration");
+    edgetherm::io::read_truth_profiles(&dir.join("truth.csv"), case).unwrap()
 }
 
 fn options() -> EstimateOptions {
@@ -63,11 +58,11 @@ fn count(share: f64, n: usize) -> usize {
 #[test]
 fn unknown_h_interval_and_bands_are_calibrated_on_a_smooth_truth() {
     const DRAWS: usize = 40;
-    let truths = [(Edge::Bottom, smooth_truth())];
     let opts = options();
 
     // h known: the bands alone
     let mut known = fixture("sensors.csv");
+    let truths = smooth_truth(&known);
     known.plate = known.plate.with_heat_transfer(Edge::Top, TRUE_H).unwrap();
     let k = coverage_study(&known, &truths, SIGMA, DRAWS, SEED, &opts).unwrap();
     eprintln!(
@@ -167,8 +162,8 @@ fn unknown_h_interval_and_bands_are_calibrated_on_a_smooth_truth() {
 #[test]
 fn unknown_h_is_reported_open_when_no_sensor_sees_the_convective_edge() {
     const DRAWS: usize = 10;
-    let truths = [(Edge::Bottom, smooth_truth())];
     let case = fixture("sensors-deep.csv");
+    let truths = smooth_truth(&case);
     let opts = options();
     let u = coverage_study_unknown_h(&case, TRUE_H, &truths, SIGMA, DRAWS, SEED, &opts).unwrap();
     let c = &u.coverage;
