@@ -13,7 +13,8 @@
 //! - Estimate: `ĥ = argmin E(h)`.
 //! - Interval: the profile-likelihood interval `{h : E(h) ≤ E(ĥ) + χ²₁(γ)}` at the case's
 //!   confidence `γ` (Wilks' theorem; e.g. Pawitan, *In All Likelihood*, §2.6 and §3.4;
-//!   section numbers recalled from memory). An end that reaches the
+//!   section numbers recalled from memory), taken as the hull of that set so that a second
+//!   dip of `E` is kept rather than cut off. An end that reaches the
 //!   search range means the readings do not bound `h` on that side: the interval is then the
 //!   range's end and the result says so.
 //! - Bands: the estimate is run at `ĥ` and at both ends of the interval, and every band and
@@ -219,12 +220,9 @@ pub fn profile_h(
         .map_err(|e| Error::Internal(format!("chi-square distribution: {e}")))?
         .inverse_cdf(case.uncertainty.confidence);
     let level = e_min + cut;
-    let crossing = |outer: f64| -> f64 {
-        let (a, b) = if outer < x_hat {
-            (outer, x_hat)
-        } else {
-            (x_hat, outer)
-        };
+    // E − level changes sign on [a, b]: where it crosses, by Brent's root finder (the end
+    // outside the set if the finder fails: wider, never narrower)
+    let crossing = |a: f64, b: f64, outside: f64| -> f64 {
         let above = |x: f64| e_at(x) - level;
         let solver = BrentRoot::new(a, b, 1e-5);
         Executor::new(Curve(&above), solver)
@@ -233,15 +231,27 @@ pub fn profile_h(
             .run()
             .ok()
             .and_then(|r| r.state().best_param)
-            .unwrap_or(outer)
+            .unwrap_or(outside)
     };
-    let lo = (0..GRID_POINTS)
-        .rev()
-        .find(|&i| xs[i] < x_hat && values[i].is_finite() && values[i] > level)
-        .map(|i| crossing(xs[i]).exp());
-    let hi = (0..GRID_POINTS)
-        .find(|&i| xs[i] > x_hat && values[i].is_finite() && values[i] > level)
-        .map(|i| crossing(xs[i]).exp());
+    // The interval is the hull of the set {E ≤ level}: from the outermost grid points below
+    // the level (a second dip of E is kept, never cut off), or from the optimum when no grid
+    // point on that side is below it. An end at the range's is open.
+    let below = |i: usize| values[i].is_finite() && values[i] <= level;
+    let lo = match (0..GRID_POINTS).find(|&i| below(i) && xs[i] <= x_hat) {
+        Some(0) => None,
+        Some(i) => Some(crossing(xs[i - 1], xs[i], xs[i - 1]).exp()),
+        None => (0..GRID_POINTS)
+            .rev()
+            .find(|&i| xs[i] < x_hat)
+            .map(|i| crossing(xs[i], x_hat, xs[i]).exp()),
+    };
+    let hi = match (0..GRID_POINTS).rev().find(|&i| below(i) && xs[i] >= x_hat) {
+        Some(i) if i == GRID_POINTS - 1 => None,
+        Some(i) => Some(crossing(xs[i], xs[i + 1], xs[i + 1]).exp()),
+        None => (0..GRID_POINTS)
+            .find(|&i| xs[i] > x_hat)
+            .map(|i| crossing(x_hat, xs[i], xs[i]).exp()),
+    };
     let h = x_hat.exp().clamp(low, high);
     Ok(ConvectionEstimate {
         edge,
