@@ -47,6 +47,7 @@
 use crate::error::{Error, Result};
 use crate::geometry::Point;
 use nalgebra::{DMatrix, DVector};
+use rayon::prelude::*;
 
 /// The most exchange passes a search makes.
 pub const MAX_PASSES: usize = 25;
@@ -85,7 +86,7 @@ pub struct SearchInput<'a> {
     /// How many sensors to add.
     pub count: usize,
     /// Whether two positions are far enough apart.
-    pub spaced: &'a dyn Fn(Point, Point) -> bool,
+    pub spaced: &'a (dyn Fn(Point, Point) -> bool + Sync),
 }
 
 /// What the search found.
@@ -272,14 +273,17 @@ impl<'a> State<'a> {
         }
     }
 
-    /// The best feasible candidate to add, with its loss.
+    /// The best feasible candidate to add, with its loss. The losses are computed in
+    /// parallel, the choice is made in candidate order: the same winner with any thread count.
     fn best(&self) -> Option<(usize, Loss)> {
+        let losses: Vec<Option<Loss>> = (0..self.d.len())
+            .into_par_iter()
+            .with_min_len(256)
+            .map(|i| self.feasible(i).then(|| self.loss_with(i)))
+            .collect();
         let mut best: Option<(usize, Loss)> = None;
-        for i in 0..self.d.len() {
-            if !self.feasible(i) {
-                continue;
-            }
-            let l = self.loss_with(i);
+        for (i, l) in losses.into_iter().enumerate() {
+            let Some(l) = l else { continue };
             if best.is_none_or(|(_, b)| better(l, b)) {
                 best = Some((i, l));
             }
@@ -298,27 +302,42 @@ impl<'a> State<'a> {
             .collect();
         let worst = self.inp.goal == Goal::Worst;
         let n_pts = self.n_pts;
-        for i in 0..self.d.len() {
-            let hi = &self.h[i * p..(i + 1) * p];
-            let ui = &mut self.u[i * p..(i + 1) * p];
+        // every candidate's update is independent of the others': in parallel, with the same
+        // operations in the same order as one thread would make them
+        let update = |hi: &[f64], ui: &mut [f64], ti: &mut f64, di: &mut f64| -> f64 {
             let mut a = 0.0;
             let mut b = 0.0;
             for j in 0..p {
                 a += w[j] * hi[j];
                 b += qw[j] * ui[j];
             }
-            self.t[i] += 2.0 * s * a * b + a * a * wqw;
-            self.d[i] += s * a * a;
+            *ti += 2.0 * s * a * b + a * a * wqw;
+            *di += s * a * a;
             let sa = s * a;
             for j in 0..p {
                 ui[j] += sa * w[j];
             }
-            if worst {
-                let ei = &mut self.e[i * n_pts..(i + 1) * n_pts];
-                for k in 0..n_pts {
-                    ei[k] += sa * pw[k];
-                }
-            }
+            sa
+        };
+        let rows = self
+            .h
+            .par_chunks(p)
+            .zip(self.u.par_chunks_mut(p))
+            .zip(self.t.par_iter_mut())
+            .zip(self.d.par_iter_mut())
+            .with_min_len(64);
+        if worst {
+            rows.zip(self.e.par_chunks_mut(n_pts))
+                .for_each(|((((hi, ui), ti), di), ei)| {
+                    let sa = update(hi, ui, ti, di);
+                    for k in 0..n_pts {
+                        ei[k] += sa * pw[k];
+                    }
+                });
+        } else {
+            rows.for_each(|(((hi, ui), ti), di)| {
+                update(hi, ui, ti, di);
+            });
         }
         for (v, pwk) in self.v.iter_mut().zip(&pw) {
             *v += s * pwk * pwk;
