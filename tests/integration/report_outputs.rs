@@ -866,6 +866,117 @@ fn profile_svg_is_well_formed_with_the_expected_elements() {
     );
 }
 
+/// The box `(x0, y0, x1, y1)` of the white rect drawn just before the first `<text>` whose
+/// content starts with `prefix` (labels on the plots sit on such a box).
+fn label_rect(doc: &roxmltree::Document<'_>, prefix: &str) -> (f64, f64, f64, f64) {
+    let t = doc
+        .descendants()
+        .find(|n| n.has_tag_name("text") && n.text().unwrap_or("").trim().starts_with(prefix))
+        .unwrap_or_else(|| panic!("no text starting {prefix:?}"));
+    let r = t
+        .prev_sibling_element()
+        .filter(|n| n.has_tag_name("rect"))
+        .unwrap_or_else(|| panic!("{prefix:?} has no box"));
+    let a = |k: &str| r.attribute(k).unwrap().parse::<f64>().unwrap();
+    (a("x"), a("y"), a("x") + a("width"), a("y") + a("height"))
+}
+
+/// Bounding boxes of the polylines drawn with the given stroke colour.
+fn polyline_boxes(doc: &roxmltree::Document<'_>, stroke: &str) -> Vec<(f64, f64, f64, f64)> {
+    doc.descendants()
+        .filter(|n| n.has_tag_name("polyline") && n.attribute("stroke") == Some(stroke))
+        .map(|n| {
+            let pts: Vec<(f64, f64)> = n
+                .attribute("points")
+                .unwrap()
+                .split_whitespace()
+                .map(|p| {
+                    let (x, y) = p.split_once(',').unwrap();
+                    (x.parse().unwrap(), y.parse().unwrap())
+                })
+                .collect();
+            pts.iter().fold(
+                (
+                    f64::INFINITY,
+                    f64::INFINITY,
+                    f64::NEG_INFINITY,
+                    f64::NEG_INFINITY,
+                ),
+                |b, &(x, y)| (b.0.min(x), b.1.min(y), b.2.max(x), b.3.max(y)),
+            )
+        })
+        .collect()
+}
+
+fn boxes_overlap(a: (f64, f64, f64, f64), b: (f64, f64, f64, f64)) -> bool {
+    a.0 < b.2 && b.0 < a.2 && a.1 < b.3 && b.1 < a.3
+}
+
+#[test]
+fn profile_svg_keeps_the_limit_label_off_the_hottest_whisker() {
+    // The hottest point near the right end, the limit inside its temperature interval: the
+    // label's usual place (above the line, flush right) would cover the whisker.
+    let mut r = cold_plate();
+    let w = 0.18;
+    r.hottest.position = 0.85 * w;
+    r.hottest.position_interval = [0.8 * w, 0.9 * w];
+    r.exceedance = Some(Exceedance {
+        limit: r.hottest.temperature + 1.5,
+        probability: 0.3,
+        alarm_probability: 0.5,
+        alarm: false,
+    });
+    let svg = output(&r, "profile.svg");
+    let doc = parse_svg(&svg);
+    let label = label_rect(&doc, "limit 79.50 °C  ·  P(exceeded)");
+    // the hottest point's bars: the polylines in its colour that are not the legend's
+    let bars: Vec<_> = polyline_boxes(&doc, "#C8431A")
+        .into_iter()
+        .filter(|b| b.1 > 140.0)
+        .collect();
+    assert!(bars.len() >= 2, "{bars:?}");
+    for b in bars {
+        assert!(!boxes_overlap(label, b), "label {label:?} over bar {b:?}");
+    }
+}
+
+#[test]
+fn profile_svg_marks_a_flagged_sensor_on_the_temperature_chart() {
+    let r = cold_plate(); // TC07 flagged
+    let svg = output(&r, "profile.svg");
+    let doc = parse_svg(&svg);
+    let y_of = |s: &str| -> f64 {
+        doc.descendants()
+            .find(|n| n.has_tag_name("text") && n.text().unwrap_or("").trim() == s)
+            .unwrap_or_else(|| panic!("no text {s:?}"))
+            .attribute("y")
+            .unwrap()
+            .parse()
+            .unwrap()
+    };
+    let on_chart = y_of("TC07 flagged");
+    let in_depth_panel = y_of("TC07");
+    let axis = y_of("depth [mm]");
+    assert!(on_chart < in_depth_panel, "{on_chart} vs {in_depth_panel}");
+    assert!(
+        on_chart < axis - 60.0,
+        "above the depth panel: {on_chart} vs {axis}"
+    );
+    assert!(
+        !texts(&doc).iter().any(|s| s == "TC01 flagged"),
+        "only the flagged one"
+    );
+}
+
+#[test]
+fn profile_svg_says_when_the_position_interval_spans_the_edge() {
+    let mut r = cold_plate();
+    let note = "position interval spans the whole edge";
+    assert!(!output(&r, "profile.svg").contains(note));
+    r.hottest.position_interval = [0.0, 0.18];
+    assert!(output(&r, "profile.svg").contains(note));
+}
+
 #[test]
 fn profile_svg_has_one_panel_per_unknown_edge() {
     let r = two_edges();
