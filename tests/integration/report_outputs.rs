@@ -1038,6 +1038,65 @@ fn field_svg_is_well_formed_with_map_isotherms_and_markers() {
     );
 }
 
+/// The boxes of `field.svg`'s labels drawn on a white box of the given opacity (isotherm
+/// labels 0.8, sensor labels 0.75, the bold labels 0.85), with their text.
+fn field_labels(
+    doc: &roxmltree::Document<'_>,
+    opacity: &str,
+) -> Vec<(String, (f64, f64, f64, f64))> {
+    doc.descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .filter_map(|t| {
+            let r = t.prev_sibling_element()?;
+            (r.has_tag_name("rect")
+                && r.attribute("opacity") == Some(opacity)
+                && r.attribute("fill") == Some("#FFFFFF"))
+            .then(|| {
+                let a = |k: &str| r.attribute(k).unwrap().parse::<f64>().unwrap();
+                (
+                    t.text().unwrap_or("").trim().to_string(),
+                    (a("x"), a("y"), a("x") + a("width"), a("y") + a("height")),
+                )
+            })
+        })
+        .collect()
+}
+
+#[test]
+fn field_svg_labels_keep_apart_and_the_hottest_leaves_the_isotherms_labelled() {
+    let r = cold_plate();
+    let svg = output(&r, "field.svg");
+    let doc = parse_svg(&svg);
+    let iso = field_labels(&doc, "0.8");
+    let sensors = field_labels(&doc, "0.75");
+    let bold = field_labels(&doc, "0.85");
+    assert!(iso.len() >= 5, "{iso:?}");
+    assert_eq!(sensors.len(), 10, "{sensors:?}");
+    let hottest = bold
+        .iter()
+        .find(|(t, _)| t.starts_with("hottest"))
+        .expect("hottest labelled")
+        .1;
+    let grow = |b: (f64, f64, f64, f64), g: f64| (b.0 - g, b.1 - g, b.2 + g, b.3 + g);
+    for (t, b) in &iso {
+        assert!(!boxes_overlap(*b, hottest), "{t} under the hottest label");
+        for (s, sb) in &sensors {
+            // a gap of at least 2 px (the placer keeps 3) between an isotherm's label and a
+            // sensor's
+            assert!(
+                !boxes_overlap(grow(*b, 2.0), *sb),
+                "{t} touches {s}: {b:?} {sb:?}"
+            );
+        }
+    }
+    // the hottest label leaves the isotherms next to the peak labelled: the field peaks at
+    // 78 °C with isotherms every 5 °C; the 70 and 75 °C loops are too small to carry a
+    // label, and the 65 °C label sits just above the peak, where the hottest label went
+    // before it learned to look for a place clear of the isotherm labels
+    let levels: Vec<f64> = iso.iter().filter_map(|(t, _)| t.parse().ok()).collect();
+    assert!(levels.iter().any(|&v| v >= 65.0), "{levels:?}");
+}
+
 #[test]
 fn field_svg_of_a_strip_says_where_it_stops() {
     let r = strip();
