@@ -1098,6 +1098,20 @@ fn field_svg_labels_keep_apart_and_the_hottest_leaves_the_isotherms_labelled() {
 }
 
 #[test]
+fn field_svg_labels_the_far_end_of_the_plate() {
+    // 130 mm: the round ticks (every 20 mm) stop at 120, and the end gets its own label
+    let r = cold_plate_in(mm(), 0.130, 0.028);
+    let doc_text = output(&r, "field.svg");
+    let t = texts(&parse_svg(&doc_text));
+    assert_eq!(t.iter().filter(|s| *s == "130").count(), 1, "{t:?}");
+    assert_eq!(t.iter().filter(|s| *s == "120").count(), 1, "{t:?}");
+    // 180 mm: the end is a round tick already, labelled once
+    let doc_text = output(&cold_plate(), "field.svg");
+    let t = texts(&parse_svg(&doc_text));
+    assert_eq!(t.iter().filter(|s| *s == "180").count(), 1, "{t:?}");
+}
+
+#[test]
 fn field_svg_of_a_strip_says_where_it_stops() {
     let r = strip();
     let doc_text = output(&r, "field.svg");

@@ -396,6 +396,36 @@ fn draw(
     };
     let (mx0, my1) = to_px(0.0, 0.0);
     let (mx1, my0) = to_px(lay.width, lay.height);
+    // The plate's far end gets its own tick when the round ticks stop short of it (a 130 mm
+    // plate with ticks every 20 mm), so that the reader sees where the plate ends; not when
+    // its label would run into the last round one.
+    {
+        use plotters::coord::ranged1d::Ranged;
+        let x_range: plotters::coord::types::RangedCoordf64 = (0.0..lay.width).into();
+        let last = x_range
+            .key_points(((lay.map_w / 70.0) as usize).max(3))
+            .last()
+            .copied();
+        if let Some(last) = last {
+            let (lx, _) = to_px(last, 0.0);
+            let end = tick(lay.width);
+            let room = 0.5 * (text_width(&end, TEXT_PX) + text_width(&tick(last), TEXT_PX)) + 6.0;
+            if lay.width - last > 1e-9 * lay.width && mx1 - lx > room {
+                line(
+                    root,
+                    &[(mx1, my1 + 1.0), (mx1, my1 + 6.0)],
+                    INK.stroke_width(1),
+                )?;
+                text(
+                    root,
+                    &end,
+                    mx1,
+                    my1 + 18.0,
+                    TextOpts::new(TEXT_PX, Anchor::Centre),
+                )?;
+            }
+        }
+    }
 
     // Colour cells.
     let mut level_list = Vec::new();
