@@ -1112,6 +1112,18 @@ fn field_svg_labels_the_far_end_of_the_plate() {
 }
 
 #[test]
+fn field_svg_points_a_side_edge_label_at_its_edge() {
+    // a side edge's level label carries an arrow toward its edge, so that it does not read
+    // as the label of the edge along which it lies
+    let t = texts(&parse_svg(&output(&two_edges(), "field.svg")));
+    assert!(
+        t.iter().any(|s| s == "\u{2190} left edge: unknown"),
+        "{t:?}"
+    );
+    assert!(t.iter().any(|s| s == "bottom edge: unknown"), "{t:?}");
+}
+
+#[test]
 fn field_svg_of_a_strip_says_where_it_stops() {
     let r = strip();
     let doc_text = output(&r, "field.svg");

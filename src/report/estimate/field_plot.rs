@@ -660,12 +660,22 @@ fn draw(
     }
 
     // Unknown edge labels, inside along the edge.
+    // A side edge's label is set level, so it points at its edge with an arrow and prefers
+    // the middle of the edge: in a corner it would read as the label of the other edge.
     for &e in &unknown {
-        let label = format!("{e} edge: unknown");
+        let label = match e {
+            Edge::Left => format!("\u{2190} {e} edge: unknown"),
+            Edge::Right => format!("{e} edge: unknown \u{2192}"),
+            Edge::Bottom | Edge::Top => format!("{e} edge: unknown"),
+        };
         let (w, hgt) = (bold_text_width(&label, TEXT_PX) + 6.0, 17.0);
         let [(ax, ay), (bx, by)] = edge_px(e);
         let inset = 12.0;
-        let cands: Vec<Rect> = [0.04, 0.96, 0.5, 0.25, 0.75]
+        let fractions: &[f64] = match e {
+            Edge::Left | Edge::Right => &[0.5, 0.35, 0.65, 0.2, 0.8, 0.04, 0.96],
+            Edge::Bottom | Edge::Top => &[0.04, 0.96, 0.5, 0.25, 0.75],
+        };
+        let cands: Vec<Rect> = fractions
             .iter()
             .map(|&f| {
                 let (x, y) = (ax + f * (bx - ax), ay + f * (by - ay));
