@@ -483,3 +483,83 @@ fn design_states_what_estimate_will_give() {
         "{predicted} {rough} {rms}"
     );
 }
+
+/// Bounding boxes `(x0, y0, x1, y1)` of the polylines of `design.svg` stroked in `colour`.
+fn polyline_boxes(doc: &roxmltree::Document<'_>, colour: &str) -> Vec<[f64; 4]> {
+    doc.descendants()
+        .filter(|n| n.has_tag_name("polyline") && n.attribute("stroke") == Some(colour))
+        .map(|n| {
+            let mut b = [
+                f64::INFINITY,
+                f64::INFINITY,
+                f64::NEG_INFINITY,
+                f64::NEG_INFINITY,
+            ];
+            for p in n.attribute("points").unwrap().split_whitespace() {
+                let (x, y) = p.split_once(',').unwrap();
+                let (x, y): (f64, f64) = (x.parse().unwrap(), y.parse().unwrap());
+                b = [b[0].min(x), b[1].min(y), b[2].max(x), b[3].max(y)];
+            }
+            b
+        })
+        .collect()
+}
+
+/// The sensor numbers on the plate keep off the dashed minimum-distance line and the
+/// hatching of the keep-outs (on the sample the chosen sensors sit on that line, so a
+/// number to their right or left would lie on it); with `--against`, the legend tells the
+/// two layouts apart.
+#[test]
+fn design_svg_numbers_keep_off_the_margin_line_and_the_hatching() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("out");
+    let other = dir.path().join("other");
+    fs::create_dir(&other).unwrap();
+    fs::copy(sample().join("sensors.csv"), other.join("layout.csv")).unwrap();
+    design(
+        &sample(),
+        &out,
+        &[
+            "--count",
+            "6",
+            "--against",
+            other.join("layout.csv").to_str().unwrap(),
+        ],
+    )
+    .success();
+    let svg = fs::read_to_string(out.join("design.svg")).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    // dashes of the margin line and hatching strokes: grey, one pixel
+    let grey: Vec<[f64; 4]> = polyline_boxes(&doc, "#555555");
+    assert!(
+        grey.len() > 20,
+        "margin dashes and hatching drawn: {}",
+        grey.len()
+    );
+    let mut numbers = 0;
+    for k in 1..=6 {
+        let t = doc
+            .descendants()
+            .find(|n| n.has_tag_name("text") && n.text().unwrap_or("").trim() == k.to_string())
+            .unwrap_or_else(|| panic!("sensor {k} numbered"));
+        let r = t.prev_sibling_element().unwrap();
+        assert!(r.has_tag_name("rect"), "number {k} sits on a box");
+        let a = |s: &str| r.attribute(s).unwrap().parse::<f64>().unwrap();
+        let b = [a("x"), a("y"), a("x") + a("width"), a("y") + a("height")];
+        for g in &grey {
+            let overlap = b[0] < g[2] && g[0] < b[2] && b[1] < g[3] && g[1] < b[3];
+            assert!(!overlap, "number {k} at {b:?} over a grey line at {g:?}");
+        }
+        numbers += 1;
+    }
+    assert_eq!(numbers, 6);
+    let texts: Vec<&str> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .filter_map(|n| n.text())
+        .map(str::trim)
+        .collect();
+    let path = other.join("layout.csv").display().to_string();
+    assert!(texts.iter().any(|t| t.contains(&path)), "{texts:?}");
+    assert!(texts.iter().any(|t| t.contains("this layout")), "{texts:?}");
+}

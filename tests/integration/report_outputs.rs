@@ -866,6 +866,117 @@ fn profile_svg_is_well_formed_with_the_expected_elements() {
     );
 }
 
+/// The box `(x0, y0, x1, y1)` of the white rect drawn just before the first `<text>` whose
+/// content starts with `prefix` (labels on the plots sit on such a box).
+fn label_rect(doc: &roxmltree::Document<'_>, prefix: &str) -> (f64, f64, f64, f64) {
+    let t = doc
+        .descendants()
+        .find(|n| n.has_tag_name("text") && n.text().unwrap_or("").trim().starts_with(prefix))
+        .unwrap_or_else(|| panic!("no text starting {prefix:?}"));
+    let r = t
+        .prev_sibling_element()
+        .filter(|n| n.has_tag_name("rect"))
+        .unwrap_or_else(|| panic!("{prefix:?} has no box"));
+    let a = |k: &str| r.attribute(k).unwrap().parse::<f64>().unwrap();
+    (a("x"), a("y"), a("x") + a("width"), a("y") + a("height"))
+}
+
+/// Bounding boxes of the polylines drawn with the given stroke colour.
+fn polyline_boxes(doc: &roxmltree::Document<'_>, stroke: &str) -> Vec<(f64, f64, f64, f64)> {
+    doc.descendants()
+        .filter(|n| n.has_tag_name("polyline") && n.attribute("stroke") == Some(stroke))
+        .map(|n| {
+            let pts: Vec<(f64, f64)> = n
+                .attribute("points")
+                .unwrap()
+                .split_whitespace()
+                .map(|p| {
+                    let (x, y) = p.split_once(',').unwrap();
+                    (x.parse().unwrap(), y.parse().unwrap())
+                })
+                .collect();
+            pts.iter().fold(
+                (
+                    f64::INFINITY,
+                    f64::INFINITY,
+                    f64::NEG_INFINITY,
+                    f64::NEG_INFINITY,
+                ),
+                |b, &(x, y)| (b.0.min(x), b.1.min(y), b.2.max(x), b.3.max(y)),
+            )
+        })
+        .collect()
+}
+
+fn boxes_overlap(a: (f64, f64, f64, f64), b: (f64, f64, f64, f64)) -> bool {
+    a.0 < b.2 && b.0 < a.2 && a.1 < b.3 && b.1 < a.3
+}
+
+#[test]
+fn profile_svg_keeps_the_limit_label_off_the_hottest_whisker() {
+    // The hottest point near the right end, the limit inside its temperature interval: the
+    // label's usual place (above the line, flush right) would cover the whisker.
+    let mut r = cold_plate();
+    let w = 0.18;
+    r.hottest.position = 0.85 * w;
+    r.hottest.position_interval = [0.8 * w, 0.9 * w];
+    r.exceedance = Some(Exceedance {
+        limit: r.hottest.temperature + 1.5,
+        probability: 0.3,
+        alarm_probability: 0.5,
+        alarm: false,
+    });
+    let svg = output(&r, "profile.svg");
+    let doc = parse_svg(&svg);
+    let label = label_rect(&doc, "limit 79.50 °C  ·  P(exceeded)");
+    // the hottest point's bars: the polylines in its colour that are not the legend's
+    let bars: Vec<_> = polyline_boxes(&doc, "#C8431A")
+        .into_iter()
+        .filter(|b| b.1 > 140.0)
+        .collect();
+    assert!(bars.len() >= 2, "{bars:?}");
+    for b in bars {
+        assert!(!boxes_overlap(label, b), "label {label:?} over bar {b:?}");
+    }
+}
+
+#[test]
+fn profile_svg_marks_a_flagged_sensor_on_the_temperature_chart() {
+    let r = cold_plate(); // TC07 flagged
+    let svg = output(&r, "profile.svg");
+    let doc = parse_svg(&svg);
+    let y_of = |s: &str| -> f64 {
+        doc.descendants()
+            .find(|n| n.has_tag_name("text") && n.text().unwrap_or("").trim() == s)
+            .unwrap_or_else(|| panic!("no text {s:?}"))
+            .attribute("y")
+            .unwrap()
+            .parse()
+            .unwrap()
+    };
+    let on_chart = y_of("TC07 flagged");
+    let in_depth_panel = y_of("TC07");
+    let axis = y_of("depth [mm]");
+    assert!(on_chart < in_depth_panel, "{on_chart} vs {in_depth_panel}");
+    assert!(
+        on_chart < axis - 60.0,
+        "above the depth panel: {on_chart} vs {axis}"
+    );
+    assert!(
+        !texts(&doc).iter().any(|s| s == "TC01 flagged"),
+        "only the flagged one"
+    );
+}
+
+#[test]
+fn profile_svg_says_when_the_position_interval_spans_the_edge() {
+    let mut r = cold_plate();
+    let note = "position interval spans the whole edge";
+    assert!(!output(&r, "profile.svg").contains(note));
+    r.hottest.position_interval = [0.0, 0.18];
+    assert!(output(&r, "profile.svg").contains(note));
+}
+
 #[test]
 fn profile_svg_has_one_panel_per_unknown_edge() {
     let r = two_edges();
@@ -925,6 +1036,91 @@ fn field_svg_is_well_formed_with_map_isotherms_and_markers() {
         t.iter().any(|s| s.starts_with("Depth drawn")),
         "a 180 × 28 plate is stretched"
     );
+}
+
+/// The boxes of `field.svg`'s labels drawn on a white box of the given opacity (isotherm
+/// labels 0.8, sensor labels 0.75, the bold labels 0.85), with their text.
+fn field_labels(
+    doc: &roxmltree::Document<'_>,
+    opacity: &str,
+) -> Vec<(String, (f64, f64, f64, f64))> {
+    doc.descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .filter_map(|t| {
+            let r = t.prev_sibling_element()?;
+            (r.has_tag_name("rect")
+                && r.attribute("opacity") == Some(opacity)
+                && r.attribute("fill") == Some("#FFFFFF"))
+            .then(|| {
+                let a = |k: &str| r.attribute(k).unwrap().parse::<f64>().unwrap();
+                (
+                    t.text().unwrap_or("").trim().to_string(),
+                    (a("x"), a("y"), a("x") + a("width"), a("y") + a("height")),
+                )
+            })
+        })
+        .collect()
+}
+
+#[test]
+fn field_svg_labels_keep_apart_and_the_hottest_leaves_the_isotherms_labelled() {
+    let r = cold_plate();
+    let svg = output(&r, "field.svg");
+    let doc = parse_svg(&svg);
+    let iso = field_labels(&doc, "0.8");
+    let sensors = field_labels(&doc, "0.75");
+    let bold = field_labels(&doc, "0.85");
+    assert!(iso.len() >= 5, "{iso:?}");
+    assert_eq!(sensors.len(), 10, "{sensors:?}");
+    let hottest = bold
+        .iter()
+        .find(|(t, _)| t.starts_with("hottest"))
+        .expect("hottest labelled")
+        .1;
+    let grow = |b: (f64, f64, f64, f64), g: f64| (b.0 - g, b.1 - g, b.2 + g, b.3 + g);
+    for (t, b) in &iso {
+        assert!(!boxes_overlap(*b, hottest), "{t} under the hottest label");
+        for (s, sb) in &sensors {
+            // a gap of at least 2 px (the placer keeps 3) between an isotherm's label and a
+            // sensor's
+            assert!(
+                !boxes_overlap(grow(*b, 2.0), *sb),
+                "{t} touches {s}: {b:?} {sb:?}"
+            );
+        }
+    }
+    // the hottest label leaves the isotherms next to the peak labelled: the field peaks at
+    // 78 °C with isotherms every 5 °C; the 70 and 75 °C loops are too small to carry a
+    // label, and the 65 °C label sits just above the peak, where the hottest label went
+    // before it learned to look for a place clear of the isotherm labels
+    let levels: Vec<f64> = iso.iter().filter_map(|(t, _)| t.parse().ok()).collect();
+    assert!(levels.iter().any(|&v| v >= 65.0), "{levels:?}");
+}
+
+#[test]
+fn field_svg_labels_the_far_end_of_the_plate() {
+    // 130 mm: the round ticks (every 20 mm) stop at 120, and the end gets its own label
+    let r = cold_plate_in(mm(), 0.130, 0.028);
+    let doc_text = output(&r, "field.svg");
+    let t = texts(&parse_svg(&doc_text));
+    assert_eq!(t.iter().filter(|s| *s == "130").count(), 1, "{t:?}");
+    assert_eq!(t.iter().filter(|s| *s == "120").count(), 1, "{t:?}");
+    // 180 mm: the end is a round tick already, labelled once
+    let doc_text = output(&cold_plate(), "field.svg");
+    let t = texts(&parse_svg(&doc_text));
+    assert_eq!(t.iter().filter(|s| *s == "180").count(), 1, "{t:?}");
+}
+
+#[test]
+fn field_svg_points_a_side_edge_label_at_its_edge() {
+    // a side edge's level label carries an arrow toward its edge, so that it does not read
+    // as the label of the edge along which it lies
+    let t = texts(&parse_svg(&output(&two_edges(), "field.svg")));
+    assert!(
+        t.iter().any(|s| s == "\u{2190} left edge: unknown"),
+        "{t:?}"
+    );
+    assert!(t.iter().any(|s| s == "bottom edge: unknown"), "{t:?}");
 }
 
 #[test]

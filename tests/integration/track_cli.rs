@@ -321,3 +321,65 @@ fn follow_announces_alarms_and_stops_cleanly_on_a_signal() {
         "every row of the log so far"
     );
 }
+
+/// `track.svg` in the terms of the text: clock time on the time axis when the log gives
+/// dates and times; skipped rows marked; alarm stretches carry a dark strip along the top
+/// of the panel, so that in greyscale they read apart from the band.
+#[test]
+fn track_svg_uses_clock_time_and_marks_skipped_rows_and_alarms() {
+    let dir = tempfile::tempdir().unwrap();
+    let text = std::fs::read_to_string(sample().join("log.csv")).unwrap();
+    let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
+    // rows 301..=400: time only, every reading missing (a logger dropout)
+    for l in &mut lines[301..=400] {
+        let cells = l.split(',').count();
+        let time = l.split(',').next().unwrap().to_string();
+        *l = format!("{time}{}", ",".repeat(cells - 1));
+    }
+    let log = dir.path().join("log.csv");
+    std::fs::write(&log, lines.join("\n") + "\n").unwrap();
+    let out = dir.path().join("out");
+    // exit status 3: the run ends in alarm
+    track(&log, &out, &["--limit", "70"]).code(3);
+    let svg = std::fs::read_to_string(out.join("track.svg")).unwrap();
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let texts: Vec<&str> = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .filter_map(|n| n.text())
+        .map(str::trim)
+        .collect();
+    assert!(
+        texts
+            .iter()
+            .any(|t| t.starts_with("clock time (UTC, HH:MM)")),
+        "{texts:?}"
+    );
+    // the sample log runs 07:00 to 14:59:50 UTC: hourly ticks, twice (both panels)
+    for hh in ["07:00", "10:00", "14:00"] {
+        assert_eq!(
+            texts.iter().filter(|t| **t == hh).count(),
+            2,
+            "{hh}: {texts:?}"
+        );
+    }
+    assert!(
+        !texts
+            .iter()
+            .any(|t| t.starts_with("time since the first row"))
+    );
+    assert!(
+        texts.iter().any(|t| t.starts_with("rows skipped")),
+        "{texts:?}"
+    );
+    let fills = |c: &str| {
+        doc.descendants()
+            .filter(|n| n.has_tag_name("rect") && n.attribute("fill") == Some(c))
+            .count()
+    };
+    assert!(
+        fills("#555555") >= 2,
+        "skipped rows marked (and in the legend)"
+    );
+    assert!(fills("#9B111E") >= 1, "the alarm strip");
+}

@@ -303,6 +303,7 @@ fn draw_plate(root: &Area<'_>, r: &DesignResult, top: f64, plate_h: f64) -> Draw
         }
         rect(root, x0, y0, x1, y1, GREY.stroke_width(1))?;
     }
+    let mut margin_line: Vec<(f64, f64)> = Vec::new();
     if c.edge_distance_m > 0.0 {
         let d = c.edge_distance_m;
         let (x0, _) = to_px(u.len(d), 0.0);
@@ -319,6 +320,7 @@ fn draw_plate(root: &Area<'_>, r: &DesignResult, top: f64, plate_h: f64) -> Draw
             }
         };
         dashed(root, &pts, 5, 4, GREY.stroke_width(1))?;
+        margin_line = pts;
     }
     // Plate outline and hidden edges.
     let (px0, py0) = to_px(0.0, h);
@@ -348,6 +350,26 @@ fn draw_plate(root: &Area<'_>, r: &DesignResult, top: f64, plate_h: f64) -> Draw
         x1: px1 - 1.0,
         y1: py1 - 1.0,
     });
+    // Sensor numbers keep off the dashed margin line and the hatched keep-outs.
+    for seg in margin_line.windows(2) {
+        let ((ax, ay), (bx, by)) = (seg[0], seg[1]);
+        placer.block(Rect {
+            x0: ax.min(bx) - 2.0,
+            y0: ay.min(by) - 2.0,
+            x1: ax.max(bx) + 2.0,
+            y1: ay.max(by) + 2.0,
+        });
+    }
+    for g in &c.keep_out {
+        let (x0, y0) = to_px(u.len(g.x_min), u.len(g.y_max.min(h_m)));
+        let (x1, y1) = to_px(u.len(g.x_max), u.len(g.y_min));
+        placer.block(Rect {
+            x0: x0.min(x1),
+            y0: y0.min(y1),
+            x1: x0.max(x1),
+            y1: y0.max(y1),
+        });
+    }
     // The comparison layout: hollow circles, no numbers.
     if let Some(a) = &r.against {
         for s in &a.layout {
@@ -375,7 +397,17 @@ fn draw_plate(root: &Area<'_>, r: &DesignResult, top: f64, plate_h: f64) -> Draw
     for (k, &(x, y)) in pts.iter().enumerate() {
         let label = format!("{}", k + 1);
         let tw = text_width(&label, TEXT_PX);
-        if let Some(b) = placer.place_best(&around_marker(x, y, 6.0, tw, 15.0)) {
+        // beside the marker, else a little farther out (a neighbour, the margin line or a
+        // keep-out can take all the near places)
+        let mut cands = around_marker(x, y, 6.0, tw, 15.0);
+        cands.extend(around_marker(x, y, 16.0, tw, 15.0));
+        cands.extend(around_marker(x, y, 28.0, tw, 15.0));
+        if let Some(b) = placer.place_best(&cands) {
+            if cands[8..].contains(&b) {
+                // away from its marker: a leader ties them
+                let (lx, ly) = (x.clamp(b.x0, b.x1), y.clamp(b.y0, b.y1));
+                line(root, &[(x, y), (lx, ly)], INK.stroke_width(1))?;
+            }
             crate::report::draw::label_box(root, &b, 0.8)?;
             text(
                 root,
@@ -423,17 +455,19 @@ fn draw_edge(
     )?;
     let prior_rms =
         (e.prior_sd.iter().map(|v| v * v).sum::<f64>() / e.prior_sd.len().max(1) as f64).sqrt();
-    let mut details = format!(
-        "resolution length {} (worst)",
-        u.len_show(e.resolution_worst.1)
-    );
-    if let Some((o, name)) = other {
+    let mut details = format!("resolution {} (worst", u.len_show(e.resolution_worst.1));
+    // The compared layout is named in the legend; its path, which can be long, stays out
+    // of this line so that the line keeps clear of the title.
+    if let Some((o, _)) = other {
         if let Some(oe) = o.edges.get(k) {
-            details.push_str(&format!(" ({name}: {})", u.len_show(oe.resolution_worst.1)));
+            details.push_str(&format!(
+                "; compared layout {}",
+                u.len_show(oe.resolution_worst.1)
+            ));
         }
     }
     details.push_str(&format!(
-        "  ·  expected variation before any reading ±{}",
+        ")  ·  variation before any reading ±{}",
         u.dtemp_show(z * prior_rms)
     ));
     text(

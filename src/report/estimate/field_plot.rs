@@ -191,6 +191,9 @@ fn edge_conditions(r: &EstimateResult, u: &CaseUnits) -> String {
     format!("Edges: {}.", parts.join("  ·  "))
 }
 
+/// Gap kept round an isotherm label, px.
+const ISO_GAP: f64 = 3.0;
+
 /// A bold label in a box, at the best free place among `cands` (left out when none is free).
 fn boxed_bold_label(
     root: &Area<'_>,
@@ -393,6 +396,36 @@ fn draw(
     };
     let (mx0, my1) = to_px(0.0, 0.0);
     let (mx1, my0) = to_px(lay.width, lay.height);
+    // The plate's far end gets its own tick when the round ticks stop short of it (a 130 mm
+    // plate with ticks every 20 mm), so that the reader sees where the plate ends; not when
+    // its label would run into the last round one.
+    {
+        use plotters::coord::ranged1d::Ranged;
+        let x_range: plotters::coord::types::RangedCoordf64 = (0.0..lay.width).into();
+        let last = x_range
+            .key_points(((lay.map_w / 70.0) as usize).max(3))
+            .last()
+            .copied();
+        if let Some(last) = last {
+            let (lx, _) = to_px(last, 0.0);
+            let end = tick(lay.width);
+            let room = 0.5 * (text_width(&end, TEXT_PX) + text_width(&tick(last), TEXT_PX)) + 6.0;
+            if lay.width - last > 1e-9 * lay.width && mx1 - lx > room {
+                line(
+                    root,
+                    &[(mx1, my1 + 1.0), (mx1, my1 + 6.0)],
+                    INK.stroke_width(1),
+                )?;
+                text(
+                    root,
+                    &end,
+                    mx1,
+                    my1 + 18.0,
+                    TextOpts::new(TEXT_PX, Anchor::Centre),
+                )?;
+            }
+        }
+    }
 
     // Colour cells.
     let mut level_list = Vec::new();
@@ -556,26 +589,93 @@ fn draw(
         }
     }
 
-    // Hottest point and its label.
+    // Isotherm label candidates, on each level's longest line, where there is room; each box
+    // carries a gap of ISO_GAP px so that it does not touch a sensor's label.
+    let iso_cands: Vec<(String, Vec<Rect>)> = isotherms
+        .iter()
+        .filter_map(|(level, lines)| {
+            let longest = lines
+                .iter()
+                .max_by(|a, b| length(a, (1.0, 1.0)).total_cmp(&length(b, (1.0, 1.0))))?;
+            let total = length(longest, (1.0, 1.0));
+            if total < 50.0 {
+                return None;
+            }
+            let label = fixed(*level, decimals);
+            let (w, hgt) = (
+                text_width(&label, TEXT_PX - 1.0) + 4.0 + 2.0 * ISO_GAP,
+                15.0 + 2.0 * ISO_GAP,
+            );
+            let cands = [0.5, 0.3, 0.7, 0.15, 0.85]
+                .iter()
+                .map(|&f| {
+                    let (x, y) = point_at(longest, f * total);
+                    Rect::anchored(x, y, w, hgt, 0.5, 0.5)
+                })
+                .collect();
+            Some((label, cands))
+        })
+        .collect();
+
+    // Hottest point and its label: where it leaves the isotherm labels their places if it
+    // can (the hottest isotherms crowd round the hottest point), else where it fits.
     if let Some((x, y)) = hot_px {
         marker(root, Marker::Hottest, x, y, 6.0)?;
         let label = format!("hottest {}", u.temp_show(h.temperature));
         let (w, hgt) = (bold_text_width(&label, TEXT_PX) + 6.0, 17.0);
-        boxed_bold_label(
-            root,
-            &mut placer,
-            &around_marker(x, y, 12.0, w, hgt),
-            &label,
-        )?;
+        let near = around_marker(x, y, 12.0, w, hgt);
+        // farther off, tied to the marker by a thin leader line
+        let mut far = Vec::new();
+        for dy in [34.0, 58.0, 82.0] {
+            for dx in [0.0, 50.0, -50.0, 100.0, -100.0, 150.0, -150.0] {
+                far.push(Rect::anchored(x + dx, y - dy, w, hgt, 0.5, 0.5));
+                far.push(Rect::anchored(x + dx, y + dy, w, hgt, 0.5, 0.5));
+            }
+        }
+        let mut trial = placer.clone();
+        for (_, c) in &iso_cands {
+            trial.place(c);
+        }
+        let clear = near.iter().chain(&far).copied().find(|c| trial.is_free(c));
+        let chosen = match clear {
+            Some(c) => placer.place(&[c]),
+            None => placer.place_best(&near),
+        };
+        if let Some(b) = chosen {
+            if near.iter().all(|n| n != &b) {
+                // a leader from the marker to the nearest point of the box
+                let (lx, ly) = (x.clamp(b.x0, b.x1), y.clamp(b.y0, b.y1));
+                line(root, &[(x, y), (lx, ly)], INK.stroke_width(1))?;
+            }
+            label_box(root, &b, 0.85)?;
+            let (cx, cy) = b.centre();
+            text(
+                root,
+                &label,
+                cx,
+                cy,
+                TextOpts::new(TEXT_PX, Anchor::Centre).bold(),
+            )?;
+        }
     }
 
     // Unknown edge labels, inside along the edge.
+    // A side edge's label is set level, so it points at its edge with an arrow and prefers
+    // the middle of the edge: in a corner it would read as the label of the other edge.
     for &e in &unknown {
-        let label = format!("{e} edge: unknown");
+        let label = match e {
+            Edge::Left => format!("\u{2190} {e} edge: unknown"),
+            Edge::Right => format!("{e} edge: unknown \u{2192}"),
+            Edge::Bottom | Edge::Top => format!("{e} edge: unknown"),
+        };
         let (w, hgt) = (bold_text_width(&label, TEXT_PX) + 6.0, 17.0);
         let [(ax, ay), (bx, by)] = edge_px(e);
         let inset = 12.0;
-        let cands: Vec<Rect> = [0.04, 0.96, 0.5, 0.25, 0.75]
+        let fractions: &[f64] = match e {
+            Edge::Left | Edge::Right => &[0.5, 0.35, 0.65, 0.2, 0.8, 0.04, 0.96],
+            Edge::Bottom | Edge::Top => &[0.04, 0.96, 0.5, 0.25, 0.75],
+        };
+        let cands: Vec<Rect> = fractions
             .iter()
             .map(|&f| {
                 let (x, y) = (ax + f * (bx - ax), ay + f * (by - ay));
@@ -590,33 +690,20 @@ fn draw(
         boxed_bold_label(root, &mut placer, &cands, &label)?;
     }
 
-    // Isotherm labels, on each level's longest line, where there is room.
-    for (level, lines) in &isotherms {
-        let Some(longest) = lines
-            .iter()
-            .max_by(|a, b| length(a, (1.0, 1.0)).total_cmp(&length(b, (1.0, 1.0))))
-        else {
-            continue;
-        };
-        let total = length(longest, (1.0, 1.0));
-        if total < 50.0 {
-            continue;
-        }
-        let label = fixed(*level, decimals);
-        let (w, hgt) = (text_width(&label, TEXT_PX - 1.0) + 4.0, 15.0);
-        let cands: Vec<Rect> = [0.5, 0.3, 0.7, 0.15, 0.85]
-            .iter()
-            .map(|&f| {
-                let (x, y) = point_at(longest, f * total);
-                Rect::anchored(x, y, w, hgt, 0.5, 0.5)
-            })
-            .collect();
-        if let Some(b) = placer.place(&cands) {
-            label_box(root, &b, 0.8)?;
-            let (cx, cy) = b.centre();
+    // Isotherm labels, drawn inside their gap.
+    for (label, cands) in &iso_cands {
+        if let Some(b) = placer.place(cands) {
+            let inner = Rect {
+                x0: b.x0 + ISO_GAP,
+                y0: b.y0 + ISO_GAP,
+                x1: b.x1 - ISO_GAP,
+                y1: b.y1 - ISO_GAP,
+            };
+            label_box(root, &inner, 0.8)?;
+            let (cx, cy) = inner.centre();
             text(
                 root,
-                &label,
+                label,
                 cx,
                 cy,
                 TextOpts::new(TEXT_PX - 1.0, Anchor::Centre),

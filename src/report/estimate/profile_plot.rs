@@ -370,7 +370,7 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
         }
     }
     // Limit.
-    let mut limit_label: Option<(String, f64, f64)> = None;
+    let mut limit_label: Option<(String, f64, f64, f64)> = None;
     if let Some(x) = &r.exceedance {
         let lim = u.temp(x.limit);
         if lim.is_finite() {
@@ -380,6 +380,7 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
                 5,
                 LIMIT.stroke_width(2),
             )))?;
+            let (px0, _) = chart.backend_coord(&(0.0, lim));
             let (px1, py) = chart.backend_coord(&(x_max, lim));
             // drawn last, on a white box, clear of the hottest point's bars where it can be
             limit_label = Some((
@@ -389,6 +390,7 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
                     fixed(x.probability, 3),
                     if x.alarm { "  ·  ALARM" } else { "" }
                 ),
+                f64::from(px0) + 6.0,
                 f64::from(px1) - 6.0,
                 f64::from(py),
             ));
@@ -407,16 +409,40 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
         let (x, y) = chart.backend_coord(&p);
         (f64::from(x), f64::from(y))
     };
+    // Boxes the limit label must keep clear of.
+    let mut taken: Vec<Rect> = Vec::new();
+    // A flagged sensor is marked on this chart too, with its marker in place of the rug
+    // triangle and its name: a reader of the profile alone sees that it was left out.
+    let mut flagged_at: Vec<(f64, f64, &str)> = Vec::new();
     for sensor in &r.sensors {
         let pos = u.len(shape.position_along(e.edge, sensor.position));
         if (0.0..=x_max).contains(&pos) {
             let (x, y) = to_px((pos, y_lo));
-            marker(root, Marker::Rug, x, y - 1.0, 4.0)?;
+            if sensor.flag.is_some() {
+                flagged_at.push((x, y, sensor.sensor.as_str()));
+            } else {
+                marker(root, Marker::Rug, x, y - 1.0, 4.0)?;
+            }
         }
+    }
+    for &(x, y, id) in &flagged_at {
+        marker(root, Marker::Flagged, x, y - 8.0, 5.0)?;
+        let label = format!("{id} flagged");
+        let w = crate::report::labels::bold_text_width(&label, TEXT_PX) + 6.0;
+        let b = Rect::anchored(x, y - 26.0, w, TEXT_PX + 4.0, 0.5, 0.5);
+        label_box(root, &b, 0.85)?;
+        text(
+            root,
+            &label,
+            b.x0 + 3.0,
+            y - 25.0,
+            TextOpts::new(TEXT_PX, Anchor::Left).bold(),
+        )?;
+        taken.push(b);
+        taken.push(Rect::around(x, y - 8.0, 8.0));
     }
     // The hottest point with its intervals.
     let h = &r.hottest;
-    let mut hottest_box: Option<Rect> = None;
     if h.edge == e.edge {
         let (p, t) = (u.len(h.position), u.temp(h.temperature));
         let (p0, p1) = (u.len(h.position_interval[0]), u.len(h.position_interval[1]));
@@ -447,37 +473,83 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
             let (xb, _) = to_px((p1.min(x_max), t));
             let (_, ya) = to_px((p, t1));
             let (_, yb) = to_px((p, t0));
-            hottest_box = Some(Rect {
+            // the position bar and the temperature whisker as two boxes, so that a label
+            // can sit in a corner between them
+            taken.push(Rect {
                 x0: xa.min(cx - cap).min(xb) - 2.0,
                 x1: xb.max(cx + cap).max(xa) + 2.0,
+                y0: cy - cap - 2.0,
+                y1: cy + cap + 2.0,
+            });
+            taken.push(Rect {
+                x0: cx - cap - 2.0,
+                x1: cx + cap + 2.0,
                 y0: ya.min(yb).min(cy - cap) - 2.0,
                 y1: ya.max(yb).max(cy + cap) + 2.0,
             });
+            // An interval that runs off both ends of the edge is no location at all: say so,
+            // rather than leave a full-width bar to be read as one.
+            let spans_edge =
+                p0.is_finite() && p1.is_finite() && p0 <= 0.02 * x_max && p1 >= 0.98 * x_max;
+            if spans_edge {
+                let note = "position interval spans the whole edge: the readings cannot say \
+                            where along it the hottest point lies";
+                let w = text_width(note, TEXT_PX) + 6.0;
+                let (mid, _) = to_px((0.5 * x_max, t));
+                let b = Rect::anchored(mid, cy + cap + 14.0, w, TEXT_PX + 4.0, 0.5, 0.5);
+                label_box(root, &b, 0.85)?;
+                text(
+                    root,
+                    note,
+                    b.x0 + 3.0,
+                    cy + cap + 15.0,
+                    TextOpts::new(TEXT_PX, Anchor::Left).colour(HOTTEST),
+                )?;
+                taken.push(b);
+            }
         }
     }
-    if let Some((label, x, y)) = limit_label {
+    if let Some((label, xl, xr, y)) = limit_label {
         let w = crate::report::labels::bold_text_width(&label, TEXT_PX) + 6.0;
         let h = TEXT_PX + 4.0;
-        // the boxes stop 3 px short of the limit line, which stays whole
-        let above = Rect::anchored(x + 3.0, y - 11.0, w, h, 1.0, 0.5);
-        let below = Rect::anchored(x + 3.0, y + 12.0, w, h, 1.0, 0.5);
-        let hits = |b: &Rect| {
-            hottest_box
-                .as_ref()
-                .is_some_and(|o| b.x0 < o.x1 && o.x0 < b.x1 && b.y0 < o.y1 && o.y0 < b.y1)
+        // Candidates: above or below the line, flush right, then flush left; the boxes stop
+        // 3 px short of the limit line, which stays whole. The first clear of the hottest
+        // point's bars (and of the flagged-sensor labels) wins; when none is, the one that
+        // covers the least of the bars.
+        let cands = [
+            (Rect::anchored(xr + 3.0, y - 11.0, w, h, 1.0, 0.5), y - 10.0),
+            (Rect::anchored(xr + 3.0, y + 12.0, w, h, 1.0, 0.5), y + 12.0),
+            (Rect::anchored(xl - 3.0, y - 11.0, w, h, 0.0, 0.5), y - 10.0),
+            (Rect::anchored(xl - 3.0, y + 12.0, w, h, 0.0, 0.5), y + 12.0),
+        ];
+        let cover = |b: &Rect| -> f64 {
+            taken
+                .iter()
+                .map(|o| {
+                    let dx = b.x1.min(o.x1) - b.x0.max(o.x0);
+                    let dy = b.y1.min(o.y1) - b.y0.max(o.y0);
+                    if dx > 0.0 && dy > 0.0 { dx * dy } else { 0.0 }
+                })
+                .sum()
         };
-        let (boxed, ty) = if hits(&above) && !hits(&below) {
-            (below, y + 12.0)
-        } else {
-            (above, y - 10.0)
-        };
+        let (boxed, ty) = cands
+            .iter()
+            .copied()
+            .find(|(b, _)| cover(b) == 0.0)
+            .unwrap_or_else(|| {
+                cands
+                    .iter()
+                    .copied()
+                    .min_by(|a, b| cover(&a.0).total_cmp(&cover(&b.0)))
+                    .unwrap_or(cands[0])
+            });
         label_box(root, &boxed, 0.85)?;
         text(
             root,
             &label,
-            x,
+            boxed.x0 + 3.0,
             ty,
-            TextOpts::new(TEXT_PX, Anchor::Right).colour(LIMIT).bold(),
+            TextOpts::new(TEXT_PX, Anchor::Left).colour(LIMIT).bold(),
         )?;
     }
 

@@ -80,6 +80,19 @@ fn ticks(lo: f64, hi: f64, target: f64) -> (Vec<f64>, f64) {
     (v, step)
 }
 
+/// A clock-time tick step, seconds, giving at most about eight ticks over `span` seconds.
+fn clock_step(span: f64) -> f64 {
+    const STEPS: [f64; 14] = [
+        60.0, 120.0, 300.0, 600.0, 900.0, 1800.0, 3600.0, 7200.0, 10_800.0, 21_600.0, 43_200.0,
+        86_400.0, 172_800.0, 604_800.0,
+    ];
+    STEPS
+        .iter()
+        .copied()
+        .find(|st| span / st <= 8.0)
+        .unwrap_or((span / 8.0 / 86_400.0).ceil() * 86_400.0)
+}
+
 fn decimals(step: f64) -> usize {
     if step >= 1.0 {
         0
@@ -143,7 +156,13 @@ fn draw(root: &Area<'_>, case: &Case, s: &TrackSummary, bins: &[Bin]) -> DrawRes
         items.push((Glyph::Dashed(LIMIT, 2), format!("limit {}", u.temp_show(l))));
         items.push((
             Glyph::Swatch(ALARM_SHADE),
-            "alarm (paler: fewer of a point's rows)".to_string(),
+            "alarm (dark strip on top; paler shade: fewer rows)".to_string(),
+        ));
+    }
+    if bins.iter().any(|b| b.skipped > 0) {
+        items.push((
+            Glyph::Swatch(GREY),
+            "rows skipped (grey, at the foot)".to_string(),
         ));
     }
     if bins.iter().any(|b| b.left_out_rows > 0) {
@@ -185,6 +204,18 @@ fn draw(root: &Area<'_>, case: &Case, s: &TrackSummary, bins: &[Bin]) -> DrawRes
     for &(a, c, share) in &stretches {
         let (a, c) = (xmap(a), xmap(c).max(xmap(a) + 1.0));
         rect(root, a, ty0, c, ty1, ALARM_SHADE.mix(share).filled())?;
+    }
+    // and a dark strip along the panel's top, so that alarm reads apart from the band in
+    // greyscale too (the two shades are close in lightness)
+    for &(a, c, _) in &stretches {
+        let (a, c) = (xmap(a), xmap(c).max(xmap(a) + 1.0));
+        rect(root, a, ty0, c, ty0 + 7.0, LIMIT.filled())?;
+    }
+    // rows skipped (a dropout: no usable row in them, or some of a point's rows): a grey
+    // strip just above the foot, so that a gap in the line is not read as a quiet spell
+    for b in bins.iter().filter(|b| b.skipped > 0) {
+        let (a, c) = (xmap(b.t0), xmap(b.t1).max(xmap(b.t0) + 1.5));
+        rect(root, a, ty1 - 15.0, c, ty1 - 9.0, GREY.filled())?;
     }
     // rows with a sensor left out: a dark strip along the foot of the panel
     for b in bins.iter().filter(|b| b.left_out_rows > 0) {
@@ -325,35 +356,63 @@ fn draw(root: &Area<'_>, case: &Case, s: &TrackSummary, bins: &[Bin]) -> DrawRes
         py0 - 12.0,
         TextOpts::new(TEXT_PX + 1.0, Anchor::Left).colour(GREY),
     )?;
-    // time axis (both panels)
-    let (xt, xstep) = ticks(0.0, span / per, 8.0);
-    for &v in &xt {
-        let x = x0 + v * per / span * (x1 - x0);
-        for (a, c) in [TOP_PANEL, POS_PANEL] {
-            line(root, &[(x, c), (x, c + 5.0)], INK.stroke_width(1))?;
-            let _ = a;
+    // time axis (both panels): clock time when the log's times are dates and times (as the
+    // header and the text output give them), else time since the first row
+    let clock = s
+        .first_time
+        .as_deref()
+        .is_some_and(|t| t.contains('-') && t.contains(':'));
+    let (xt, title): (Vec<(f64, String)>, String) = if clock {
+        let step = clock_step(span);
+        let mut v = Vec::new();
+        let mut t = (t_first / step).ceil() * step;
+        while t <= t_last + 1e-6 {
+            let iso = crate::track::synthetic::iso_time(t);
+            // HH:MM, with the day when it changes within the log
+            let label = if span > 86_400.0 && t.rem_euclid(86_400.0) < 1.0 {
+                format!("{} {}", &iso[5..10], &iso[11..16])
+            } else {
+                iso[11..16].to_string()
+            };
+            v.push((t - t_first, label));
+            t += step;
         }
-        text(
-            root,
-            &fixed(v, decimals(xstep)),
-            x,
-            ty1 + 16.0,
-            TextOpts::new(TEXT_PX, Anchor::Centre),
-        )?;
-        text(
-            root,
-            &fixed(v, decimals(xstep)),
-            x,
-            py1 + 16.0,
-            TextOpts::new(TEXT_PX, Anchor::Centre),
-        )?;
+        let zone = if s.first_time.as_deref().is_some_and(|t| t.ends_with('Z')) {
+            "UTC"
+        } else {
+            "as in the log"
+        };
+        (
+            v,
+            format!(
+                "clock time ({zone}, HH:MM), first row {}",
+                s.first_time.as_deref().unwrap_or("-")
+            ),
+        )
+    } else {
+        let (xt, xstep) = ticks(0.0, span / per, 8.0);
+        (
+            xt.iter()
+                .map(|&v| (v * per, fixed(v, decimals(xstep))))
+                .collect(),
+            format!(
+                "time since the first row ({unit}), first row {}",
+                s.first_time.as_deref().unwrap_or("-")
+            ),
+        )
+    };
+    for (dt, label) in &xt {
+        let x = x0 + dt / span * (x1 - x0);
+        for (_, c) in [TOP_PANEL, POS_PANEL] {
+            line(root, &[(x, c), (x, c + 5.0)], INK.stroke_width(1))?;
+        }
+        for y in [ty1 + 16.0, py1 + 16.0] {
+            text(root, label, x, y, TextOpts::new(TEXT_PX, Anchor::Centre))?;
+        }
     }
     text(
         root,
-        &format!(
-            "time since the first row ({unit}), first row {}",
-            s.first_time.as_deref().unwrap_or("-")
-        ),
+        &title,
         0.5 * (x0 + x1),
         py1 + 40.0,
         TextOpts::new(AXIS_PX, Anchor::Centre),
