@@ -151,7 +151,7 @@ fn draw(
     let new = r.layout.iter().filter(|s| !s.fixed).count();
     let title = if r.search.is_some() {
         format!(
-            "Sensor layout: {new} sensors chosen for the `{}` criterion",
+            "Sensor layout: {new} sensors chosen for the \"{}\" criterion",
             r.criterion.name()
         )
     } else {
