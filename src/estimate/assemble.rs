@@ -56,7 +56,7 @@ pub(super) fn assemble(
     let fit_summary = fit_summary(problem, &fitted);
     let strength_summary = strength_summary(problem, &fitted);
     let flagged: Vec<usize> = fitted.flags.iter().map(|f| f.0).collect();
-    let cautions = cautions(
+    let mut cautions = cautions(
         case,
         &fit_summary,
         &strength_summary,
@@ -66,6 +66,9 @@ pub(super) fn assemble(
         &fitted.doubts,
         boot.fallbacks,
     );
+    if let Some(hint) = temperature_unit_hint(case, problem.readings) {
+        cautions.insert(1, hint);
+    }
     Ok(EstimateResult {
         units: case.units,
         plate: case.plate.clone(),
@@ -490,6 +493,87 @@ fn cautions(
     }
     out
 }
+/// A hint that the readings may be in another temperature unit than the case states: when
+/// the plate has known temperatures (fixed edges, fluid temperatures), the readings as
+/// stated all lie far outside them (more than 30 K and twice their spread beyond), and every
+/// reading taken in one of the other units would lie near them (within 25 K, or their
+/// spread, and three times nearer than as stated). A hot hidden edge can put
+/// the readings above every known temperature, so this never changes an answer; it names
+/// the coincidence and the key to check (issue 13: unit mix-ups).
+pub(super) fn temperature_unit_hint(case: &Case, readings: &[Option<f64>]) -> Option<String> {
+    use crate::geometry::{Edge, EdgeCondition};
+    use crate::units::TemperatureUnit;
+    let mut known: Vec<f64> = Vec::new();
+    for e in Edge::ALL {
+        match case.plate.condition(e) {
+            Some(EdgeCondition::Fixed(p)) => known.extend_from_slice(p.temperatures()),
+            Some(EdgeCondition::Convective(c)) => known.push(c.ambient_k),
+            _ => {}
+        }
+    }
+    let values: Vec<f64> = readings.iter().flatten().copied().collect();
+    if known.is_empty() || values.is_empty() {
+        return None;
+    }
+    let lo = known.iter().copied().fold(f64::INFINITY, f64::min);
+    let hi = known.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+    let spread = hi - lo;
+    let stated = case.units.temperature;
+    let beyond = |t: f64| (t - hi).max(lo - t);
+    let nearest = values
+        .iter()
+        .map(|&t| beyond(t))
+        .fold(f64::INFINITY, f64::min);
+    // as stated, every reading far from every known temperature
+    if nearest <= 30.0_f64.max(2.0 * spread) {
+        return None;
+    }
+    for other in [
+        TemperatureUnit::Celsius,
+        TemperatureUnit::Fahrenheit,
+        TemperatureUnit::Kelvin,
+    ] {
+        if other == stated {
+            continue;
+        }
+        // each reading as written in the file, read in the other unit: all of them near the
+        // known temperatures, several times nearer than as stated
+        let farthest = values
+            .iter()
+            .map(|&k| beyond(other.to_kelvin(stated.from_kelvin(k))))
+            .fold(f64::NEG_INFINITY, f64::max);
+        if farthest < 25.0_f64.max(spread) && farthest < nearest / 3.0 {
+            let side = if values[0] > hi { "above" } else { "below" };
+            let sym = |unit: TemperatureUnit| match unit {
+                TemperatureUnit::Kelvin => "K".to_string(),
+                u => format!("°{}", u.symbol()),
+            };
+            let range = if spread > 0.0 {
+                format!(
+                    "{} to {} {}",
+                    significant3(stated.from_kelvin(lo)),
+                    significant3(stated.from_kelvin(hi)),
+                    sym(stated)
+                )
+            } else {
+                format!("{} {}", significant3(stated.from_kelvin(lo)), sym(stated))
+            };
+            return Some(format!(
+                "Every reading lies more than {} K {side} every known temperature of the plate \
+                 (the fixed edges and fluids: {range}); read as {} instead of {} they would \
+                 all lie within {} K of them. A hidden edge far hotter or colder than the rest \
+                 can do this, but so can a unit mix-up: check the readings' unit against \
+                 temperature_unit in plate.toml.",
+                significant3(nearest),
+                sym(other),
+                sym(stated),
+                significant3(farthest),
+            ));
+        }
+    }
+    None
+}
+
 /// `v` with three significant digits, for cautions a person reads.
 pub(super) fn significant3(v: f64) -> String {
     if v == 0.0 || !v.is_finite() {

@@ -164,3 +164,38 @@ fn missing_inputs_say_what_is_missing_and_what_to_do() {
     assert!(stderr.contains("field `sensor`"), "{stderr}");
     assert!(stderr.contains("did you mean `TC03`?"), "{stderr}");
 }
+
+/// Readings written in °F in a °C case (the cold-plate sample's readings converted, an
+/// invented mix-up): every reading lies far above the coolant-held face, and read as °F they
+/// would lie near it, so the outputs name the likely unit mix-up (the answer itself is not
+/// changed: a very hot hidden edge can do the same). The sample as it is gets no such hint.
+#[test]
+fn readings_in_another_temperature_unit_are_called_a_possible_mix_up() {
+    let dir = tempfile::tempdir().unwrap();
+    let case = dir.path().join("case");
+    fs::create_dir(&case).unwrap();
+    for f in ["plate.toml", "sensors.csv"] {
+        fs::copy(sample().join(f), case.join(f)).unwrap();
+    }
+    let text = fs::read_to_string(sample().join("readings.csv")).unwrap();
+    let mut lines = text.lines();
+    let mut out = format!("{}\n", lines.next().unwrap());
+    for l in lines {
+        let (id, t) = l.split_once(',').unwrap();
+        let c: f64 = t.trim().parse().unwrap();
+        out.push_str(&format!("{id},{:.4}\n", c * 1.8 + 32.0));
+    }
+    fs::write(case.join("readings.csv"), out).unwrap();
+    let o = dir.path().join("o");
+    let (code, stdout, stderr) = run(&["estimate", s(&case), "--out", s(&o), "--no-bounds"]);
+    assert_eq!(code, Some(0), "{stderr}");
+    assert!(stdout.contains("read as °F instead of °C"), "{stdout}");
+    assert!(
+        stdout.contains("temperature_unit in plate.toml"),
+        "{stdout}"
+    );
+    let o2 = dir.path().join("o2");
+    let (code, stdout, stderr) = run(&["estimate", s(&sample()), "--out", s(&o2), "--no-bounds"]);
+    assert_eq!(code, Some(0), "{stderr}");
+    assert!(!stdout.contains("unit mix-up"), "{stdout}");
+}
