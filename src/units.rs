@@ -82,6 +82,14 @@ impl TemperatureUnit {
             TemperatureUnit::Fahrenheit => "F",
         }
     }
+    /// The symbol as a reader writes it: `°C`, `K`, `°F`.
+    pub fn reader_symbol(self) -> &'static str {
+        match self {
+            TemperatureUnit::Celsius => "°C",
+            TemperatureUnit::Kelvin => "K",
+            TemperatureUnit::Fahrenheit => "°F",
+        }
+    }
     /// Kelvin per degree of this scale (the factor for differences).
     pub fn kelvin_per_degree(self) -> f64 {
         match self {

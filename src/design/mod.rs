@@ -386,11 +386,8 @@ fn show_dt(u: Units, k: f64) -> String {
 }
 
 /// The temperature unit as printed: °C, °F or K.
-fn temp_symbol(u: Units) -> String {
-    match u.temperature.symbol() {
-        "K" => "K".to_string(),
-        s => format!("°{s}"),
-    }
+fn temp_symbol(u: Units) -> &'static str {
+    u.temperature.reader_symbol()
 }
 
 /// A number with at most four significant digits and no trailing zeros.
@@ -653,7 +650,8 @@ impl DesignSpace {
             return Ok(None);
         }
         let strength = crate::estimate::strength_of(case.fit.strength);
-        let Some(edges) = self.simulated_bands(case, sensors, &self.prior.variances) else {
+        let Some((edges, mut draws)) = self.simulated_bands(case, sensors, &self.prior.variances)
+        else {
             return Ok(None);
         };
         let rough_edges = (self.prior.order > 0)
@@ -661,9 +659,13 @@ impl DesignSpace {
                 let rough = Prior::new(&self.model, self.prior.order - 1, self.prior.variation_k);
                 self.simulated_bands(case, sensors, &rough.variances)
             })
-            .flatten();
+            .flatten()
+            .map(|(bands, n)| {
+                draws = draws.min(n);
+                bands
+            });
         Ok(Some(EstimateCheck {
-            draws: ESTIMATE_CHECK_DRAWS,
+            draws,
             rule: strength.name().to_string(),
             edges,
             rough_edges,
@@ -671,13 +673,14 @@ impl DesignSpace {
     }
 
     /// Median linear-band half-widths per edge of `estimate`-style fits on readings of
-    /// profiles drawn with the prior `variances` ([`DesignSpace::estimate_check`]).
+    /// profiles drawn with the prior `variances` ([`DesignSpace::estimate_check`]), and how
+    /// many of the draws' fits succeeded.
     fn simulated_bands(
         &self,
         case: &Case,
         sensors: &[LayoutSensor],
         variances: &DVector<f64>,
-    ) -> Option<Vec<(Edge, f64)>> {
+    ) -> Option<(Vec<(Edge, f64)>, usize)> {
         use rand::SeedableRng;
         use rand_distr::{Distribution, StandardNormal};
         let points: Vec<Point> = sensors.iter().map(|s| s.position).collect();
@@ -689,7 +692,10 @@ impl DesignSpace {
         let strength = crate::estimate::strength_of(case.fit.strength);
         let z = Normal::standard().inverse_cdf(0.5 + self.confidence / 2.0);
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(case.uncertainty.seed);
+        let stated_order = case.fit.smoothing.order().unwrap_or(self.prior.order);
+        let stated_penalty = crate::estimate::penalty::penalty_weights(&self.model, stated_order);
         let mut widths: Vec<Vec<f64>> = vec![Vec::new(); self.maps.len()];
+        let mut fitted = 0;
         for _ in 0..ESTIMATE_CHECK_DRAWS {
             let c = DVector::from_iterator(
                 variances.len(),
@@ -703,13 +709,12 @@ impl DesignSpace {
                 let n: f64 = StandardNormal.sample(&mut rng);
                 *di += sigma[i] * n;
             }
-            let order = case.fit.smoothing.order().unwrap_or(self.prior.order);
             let mut input = crate::estimate::fit::FitInput {
                 a: a.clone(),
                 d,
                 sigma: sigma.clone(),
                 sigma_stated: true,
-                penalty: crate::estimate::penalty::penalty_weights(&self.model, order),
+                penalty: stated_penalty.clone(),
             };
             if case.fit.smoothing == crate::case::Smoothing::Auto {
                 if let Ok(o) = crate::estimate::choose_order(&input, &self.model) {
@@ -719,6 +724,7 @@ impl DesignSpace {
             let Ok(fit) = crate::estimate::fit::fit(&input, strength) else {
                 continue;
             };
+            fitted += 1;
             for (k, map) in self.maps.iter().enumerate() {
                 let sd = crate::estimate::linear_sd(&map.matrix, &fit.solution.covariance);
                 let rms = (sd.iter().map(|v| v * v).sum::<f64>() / sd.len().max(1) as f64).sqrt();
@@ -736,7 +742,7 @@ impl DesignSpace {
             w.sort_by(f64::total_cmp);
             edges.push((*edge, w[w.len() / 2]));
         }
-        Some(edges)
+        Some((edges, fitted))
     }
 
     /// Score a layout: predicted uncertainty along the edges, resolution lengths, criteria,

@@ -255,20 +255,33 @@ impl<'a> State<'a> {
                 self.mean_var - self.t[i] / (1.0 + d),
                 -(self.info + d.ln_1p()),
             ),
-            Goal::Worst => {
-                let ui = &self.u[i * self.p..(i + 1) * self.p];
-                let worst = self
-                    .v
-                    .iter()
-                    .enumerate()
-                    .map(|(k, v)| {
-                        let e = self.e_at(k, ui);
-                        v - e * e / (1.0 + d)
-                    })
-                    .fold(f64::NEG_INFINITY, f64::max);
-                (worst, self.mean_var - self.t[i] / (1.0 + d))
-            }
+            Goal::Worst => self
+                .worst_loss_with(i, 0..self.n_pts, None)
+                .unwrap_or((f64::INFINITY, f64::INFINITY)),
         }
+    }
+
+    /// `worst`: the loss if candidate `i` were added, its terms `v_k − e_ik²/(1 + d_i)`
+    /// formed over the edge points in `order`; `None` as soon as one exceeds `cut` (the
+    /// candidate then cannot have a loss below it).
+    fn worst_loss_with(
+        &self,
+        i: usize,
+        order: impl IntoIterator<Item = usize>,
+        cut: Option<f64>,
+    ) -> Option<Loss> {
+        let ui = &self.u[i * self.p..(i + 1) * self.p];
+        let scale = 1.0 / (1.0 + self.d[i]);
+        let mut worst = f64::NEG_INFINITY;
+        for k in order {
+            let e = self.e_at(k, ui);
+            let term = self.v[k] - e * e * scale;
+            if cut.is_some_and(|c| term > c) {
+                return None;
+            }
+            worst = worst.max(term);
+        }
+        Some((worst, self.mean_var - self.t[i] * scale))
     }
 
     /// `e_ik = p_k · u_i`: how much candidate `i` would tell about edge point `k`.
@@ -292,25 +305,16 @@ impl<'a> State<'a> {
         order.sort_by(|&a, &b| self.v[b].total_cmp(&self.v[a]).then(a.cmp(&b)));
         let v_max = order.first().map_or(0.0, |&k| self.v[k]);
         let mut best: Option<(usize, Loss)> = None;
-        'candidates: for i in 0..self.d.len() {
+        for i in 0..self.d.len() {
             if !self.feasible(i) {
                 continue;
             }
-            let ui = &self.u[i * self.p..(i + 1) * self.p];
-            let scale = 1.0 / (1.0 + self.d[i]);
             let cut = best.map(|(_, b)| {
                 b.0 + SWAP_TOLERANCE * v_max.abs().max(b.0.abs()).max(f64::MIN_POSITIVE)
             });
-            let mut worst = f64::NEG_INFINITY;
-            for &k in &order {
-                let e = self.e_at(k, ui);
-                let term = self.v[k] - e * e * scale;
-                if cut.is_some_and(|c| term > c) {
-                    continue 'candidates;
-                }
-                worst = worst.max(term);
-            }
-            let l = (worst, self.mean_var - self.t[i] * scale);
+            let Some(l) = self.worst_loss_with(i, order.iter().copied(), cut) else {
+                continue;
+            };
             if best.is_none_or(|(_, b)| better(l, b)) {
                 best = Some((i, l));
             }
@@ -350,7 +354,7 @@ impl<'a> State<'a> {
             .collect();
         // every candidate's update is independent of the others': in parallel, with the same
         // operations in the same order as one thread would make them
-        let update = |hi: &[f64], ui: &mut [f64], ti: &mut f64, di: &mut f64| -> f64 {
+        let update = |hi: &[f64], ui: &mut [f64], ti: &mut f64, di: &mut f64| {
             let mut a = 0.0;
             let mut b = 0.0;
             for j in 0..p {
@@ -363,7 +367,6 @@ impl<'a> State<'a> {
             for j in 0..p {
                 ui[j] += sa * w[j];
             }
-            sa
         };
         let rows = self
             .h
@@ -372,9 +375,7 @@ impl<'a> State<'a> {
             .zip(self.t.par_iter_mut())
             .zip(self.d.par_iter_mut())
             .with_min_len(64);
-        rows.for_each(|(((hi, ui), ti), di)| {
-            update(hi, ui, ti, di);
-        });
+        rows.for_each(|(((hi, ui), ti), di)| update(hi, ui, ti, di));
         for (v, pwk) in self.v.iter_mut().zip(&pw) {
             *v += s * pwk * pwk;
         }

@@ -544,10 +544,7 @@ pub(super) fn temperature_unit_hint(case: &Case, readings: &[Option<f64>]) -> Op
             .fold(f64::NEG_INFINITY, f64::max);
         if farthest < 25.0_f64.max(spread) && farthest < nearest / 3.0 {
             let side = if values[0] > hi { "above" } else { "below" };
-            let sym = |unit: TemperatureUnit| match unit {
-                TemperatureUnit::Kelvin => "K".to_string(),
-                u => format!("°{}", u.symbol()),
-            };
+            let sym = TemperatureUnit::reader_symbol;
             let range = if spread > 0.0 {
                 format!(
                     "{} to {} {}",

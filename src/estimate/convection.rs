@@ -79,6 +79,13 @@ impl ConvectionEstimate {
     }
 }
 
+/// `case` with the coefficient of its convective `edge` set to `h`.
+fn with_h(case: &Case, edge: Edge, h: f64) -> Result<Case> {
+    let mut trial = case.clone();
+    trial.plate = case.plate.with_heat_transfer(edge, h)?;
+    Ok(trial)
+}
+
 /// `E(h)` for one `h`, summed over sets of readings taken under the same `h` (one set for
 /// an estimate; several logger rows for `track`): the case with `h` set, its model built
 /// once, and the evidence fit of each set.
@@ -89,8 +96,7 @@ fn criterion(
     readings: &[Vec<Option<f64>>],
     options: &EstimateOptions,
 ) -> Result<f64> {
-    let mut trial = case.clone();
-    trial.plate = case.plate.with_heat_transfer(edge, h)?;
+    let trial = with_h(case, edge, h)?;
     let model = super::case_model(&trial)?;
     let mut total = 0.0;
     for set in readings {
@@ -277,41 +283,38 @@ pub(super) fn estimate_unknown_h(
     progress: Option<&(dyn Fn(usize) + Sync)>,
 ) -> Result<EstimateResult> {
     let conv = profile_h(case, &[readings.to_vec()], options)?;
-    let at = |h: f64, progress: Option<&(dyn Fn(usize) + Sync)>| -> Result<EstimateResult> {
-        let mut trial = case.clone();
-        trial.plate = case.plate.with_heat_transfer(conv.edge, h)?;
-        estimate_known_h(&trial, readings, options, progress)
-    };
-    let mut result = at(conv.h, progress)?;
+    let mut result = estimate_known_h(
+        &with_h(case, conv.edge, conv.h)?,
+        readings,
+        options,
+        progress,
+    )?;
     // the ends: no strict bounds there (the gradient study at ĥ is reported as it is)
     let quiet = EstimateOptions {
         strict_bounds: false,
         ..options.clone()
     };
     for h_end in conv.h_interval {
-        let mut trial = case.clone();
-        trial.plate = case.plate.with_heat_transfer(conv.edge, h_end)?;
-        let other = estimate_known_h(&trial, readings, &quiet, None)?;
+        let other = estimate_known_h(&with_h(case, conv.edge, h_end)?, readings, &quiet, None)?;
         widen(&mut result, &other);
     }
     result.plate = case.plate.clone();
-    let show = three_digits;
     let mut caution = format!(
         "The heat transfer coefficient of the {} edge was estimated from the readings: h = {} \
          W/(m² K), {:.0} % interval [{}, {}] W/(m² K) (profile likelihood). Every band and \
          interval here holds the estimates at both ends of that interval.",
         conv.edge,
-        show(conv.h),
+        three_digits(conv.h),
         100.0 * case.uncertainty.confidence,
-        show(conv.h_interval[0]),
-        show(conv.h_interval[1]),
+        three_digits(conv.h_interval[0]),
+        three_digits(conv.h_interval[1]),
     );
     if !conv.identified() {
         caution.push_str(&format!(
             " The readings do not pin h down: the interval is the whole search range [{}, {}] \
              W/(m² K). Sensors nearer the {} edge, or a stated h, would.",
-            show(conv.h_range[0]),
-            show(conv.h_range[1]),
+            three_digits(conv.h_range[0]),
+            three_digits(conv.h_range[1]),
             conv.edge
         ));
     } else if conv.open_below || conv.open_above {

@@ -94,6 +94,17 @@ pub enum BasisKind {
 }
 
 impl BasisKind {
+    /// `n₀` in the closed form `k_n = (n + n₀) π / L` of the families without a convective
+    /// end; `None` for [`BasisKind::Robin`], whose wavenumbers are roots.
+    fn index_offset(self) -> Option<f64> {
+        match self {
+            BasisKind::Sine => Some(1.0),
+            BasisKind::Cosine => Some(0.0),
+            BasisKind::QuarterSine | BasisKind::QuarterCosine => Some(0.5),
+            BasisKind::Robin => None,
+        }
+    }
+
     /// A short description for people.
     pub fn describe(self) -> &'static str {
         match self {
@@ -129,12 +140,18 @@ struct Branch {
     target: f64,
 }
 
+impl Branch {
+    fn value(&self, x: f64) -> f64 {
+        let k = x / self.length;
+        x + self.start.phase(k) + self.end.phase(k) - self.target
+    }
+}
+
 impl CostFunction for Branch {
     type Param = f64;
     type Output = f64;
     fn cost(&self, x: &f64) -> Result<f64, argmin::core::Error> {
-        let k = x / self.length;
-        Ok(x + self.start.phase(k) + self.end.phase(k) - self.target)
+        Ok(self.value(*x))
     }
 }
 
@@ -161,29 +178,28 @@ impl EdgeBasis {
         self.kind() != BasisKind::Robin
     }
 
-    /// Wavenumber `k_n`, 1/m: closed form, or the root of branch `n` (see the module notes).
+    /// Wavenumber `k_n`, 1/m: the closed form without a convective end, else the root of
+    /// branch `n` (see the module notes).
     pub fn wavenumber(&self, n: usize) -> f64 {
+        if let Some(n0) = self.kind().index_offset() {
+            return (n as f64 + n0) * PI / self.length;
+        }
         let target = (n as f64 + 1.0) * PI;
-        let g = |x: f64| {
-            let k = x / self.length;
-            x + self.start.phase(k) + self.end.phase(k) - target
-        };
-        let (lo, hi) = (n as f64 * PI, target);
-        let (glo, ghi) = (g(lo), g(hi));
-        // exact roots at the bracket's ends (Dirichlet and insulated ends have constant phase)
-        if glo >= 0.0 {
-            return lo / self.length;
-        }
-        if ghi <= 0.0 {
-            return hi / self.length;
-        }
-        let solver = BrentRoot::new(lo, hi, 1e-15 * hi.max(1.0));
         let problem = Branch {
             start: self.start,
             end: self.end,
             length: self.length,
             target,
         };
+        let (lo, hi) = (n as f64 * PI, target);
+        // a root at a bracket's end (a phase that does not grow near it)
+        if problem.value(lo) >= 0.0 {
+            return lo / self.length;
+        }
+        if problem.value(hi) <= 0.0 {
+            return hi / self.length;
+        }
+        let solver = BrentRoot::new(lo, hi, 1e-15 * hi.max(1.0));
         let x = Executor::new(problem, solver)
             .configure(|s| s.param(0.5 * (lo + hi)).max_iters(200))
             .ctrlc(false)
@@ -231,12 +247,7 @@ impl EdgeBasis {
     /// Write `φ_n(s)` for the uniform families (`n = 0..out.len()`) into `out`, by
     /// recurrence; `None` (and `out` untouched) for a basis with a convective end.
     fn uniform_values_into(&self, s: f64, out: &mut [f64]) -> Option<()> {
-        let n0 = match self.kind() {
-            BasisKind::Sine => 1.0,
-            BasisKind::Cosine => 0.0,
-            BasisKind::QuarterSine | BasisKind::QuarterCosine => 0.5,
-            BasisKind::Robin => return None,
-        };
+        let n0 = self.kind().index_offset()?;
         let theta = PI * s / self.length;
         let phase = self.start.phase(1.0);
         let two_cos = 2.0 * theta.cos();
@@ -511,6 +522,16 @@ impl Series {
             gains,
             uniform,
         }
+    }
+
+    /// The first `terms` modes of this series: its tables cut, no root found again.
+    pub fn truncated(mut self, terms: usize) -> Self {
+        self.wavenumbers.truncate(terms);
+        self.phases.truncate(terms);
+        self.norms.truncate(terms);
+        self.inv_denominator.truncate(terms);
+        self.gains.truncate(terms);
+        self
     }
 
     /// Number of terms.

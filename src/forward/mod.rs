@@ -158,11 +158,14 @@ fn end_of(plate: &Plate, neighbour: Edge) -> End {
 
 /// `β = h/κ` of a convective edge, or an error when `h` is still unknown.
 fn convective_beta(plate: &Plate, edge: Edge) -> Result<f64> {
-    plate.convective_beta(edge).ok_or_else(|| {
-        Error::Internal(format!(
-            "the heat transfer coefficient of the {edge} edge must be fixed before a model is built"
-        ))
-    })
+    plate.convective_beta(edge).ok_or_else(|| unknown_h(edge))
+}
+
+/// A model was asked for with `h` still unknown (the estimate fixes it first).
+fn unknown_h(edge: Edge) -> Error {
+    Error::Internal(format!(
+        "the heat transfer coefficient of the {edge} edge must be fixed before a model is built"
+    ))
 }
 
 /// The inward unit normal of `edge`, `(x, y)`.
@@ -218,10 +221,7 @@ impl ForwardModel {
             let (start, end) = edge.neighbours();
             let basis = EdgeBasis::new(end_of(plate, start), end_of(plate, end), length);
             let opposite = edge.opposite();
-            let depth = match edge {
-                Edge::Bottom | Edge::Top => shape.height(),
-                Edge::Left | Edge::Right => Some(shape.width()),
-            };
+            let depth = shape.across(edge);
             let decay = match (depth, plate.condition(opposite)) {
                 (None, _) | (_, None) => Decay::Unbounded,
                 (Some(depth), Some(c)) if c.is_dirichlet() => Decay::Dirichlet { depth },
@@ -265,7 +265,7 @@ impl ForwardModel {
                     known.truncate(keep);
                     series.push(EdgeSeries {
                         edge,
-                        series: Series::new(basis, decay, keep),
+                        series: full.truncated(keep),
                         known,
                         corner_terms: Vec::new(),
                         first_parameter: None,
@@ -319,7 +319,7 @@ impl ForwardModel {
                     }
                     series.push(EdgeSeries {
                         edge,
-                        series: Series::with_own_condition(basis, decay, keep, Some(beta)),
+                        series: full.truncated(keep),
                         known,
                         corner_terms,
                         first_parameter: None,
@@ -590,7 +590,7 @@ impl ForwardModel {
         }
         if let Some(conv) = self.plate.convection(edge) {
             // the Robin condition itself: −κ ∂T/∂n_out = h (T − T∞) leaves the plate
-            let h = conv.known_h().unwrap_or(0.0);
+            let h = conv.known_h().ok_or_else(|| unknown_h(edge))?;
             let t = self.edge_profile(edge, c, positions)?;
             return Ok(Some(t.iter().map(|t| -h * (t - conv.ambient_k)).collect()));
         }
@@ -655,7 +655,7 @@ impl ForwardModel {
             return Ok(Some(0.0));
         }
         if let Some(conv) = self.plate.convection(edge) {
-            let h = conv.known_h().unwrap_or(0.0);
+            let h = conv.known_h().ok_or_else(|| unknown_h(edge))?;
             let integral = self.edge_integral(edge, c, length);
             return Ok(Some(-h * (integral - conv.ambient_k * length)));
         }

@@ -160,6 +160,16 @@ impl Shape {
         }
     }
 
+    /// Distance from `edge` to the edge across the plate, metres; `None` from the bottom of a
+    /// strip (nothing across it).
+    pub fn across(&self, edge: Edge) -> Option<f64> {
+        if edge.runs_along_x() {
+            self.height()
+        } else {
+            Some(self.width())
+        }
+    }
+
     /// Distance from `p` to `edge`, measured into the plate, metres.
     pub fn depth_from(&self, edge: Edge, p: Point) -> f64 {
         match edge {

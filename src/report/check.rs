@@ -654,10 +654,7 @@ fn edge_report(case: &Case, edge: Edge) -> EdgeReport {
         Some(c) => (c.name(), None, None),
     };
     let convection = case.plate.convection(edge).map(|c| {
-        let depth = match edge {
-            Edge::Bottom | Edge::Top => shape.height(),
-            Edge::Left | Edge::Right => Some(shape.width()),
-        };
+        let depth = shape.across(edge);
         let h_range = match c.h {
             crate::geometry::HeatTransfer::Unknown { low, high } => Some([low, high]),
             crate::geometry::HeatTransfer::Known(_) => None,

@@ -3,7 +3,7 @@
 //! (JSON), and text escaped for HTML and SVG.
 
 use crate::geometry::Edge;
-use crate::units::{LengthUnit, TemperatureUnit, Units};
+use crate::units::{LengthUnit, Units};
 use serde_json::Value;
 
 /// Decimals of a temperature (or temperature difference) in the data files: 0.1 mK in
@@ -51,11 +51,7 @@ impl CaseUnits {
 
     /// Temperature unit as a reader writes it (`°C`, `K`, `°F`).
     pub(crate) fn temp_symbol(&self) -> &'static str {
-        match self.units.temperature {
-            TemperatureUnit::Celsius => "°C",
-            TemperatureUnit::Kelvin => "K",
-            TemperatureUnit::Fahrenheit => "°F",
-        }
+        self.units.temperature.reader_symbol()
     }
 
     /// Temperature unit as written in case files (`C`, `K`, `F`).
@@ -307,6 +303,7 @@ pub fn num(v: f64) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::units::TemperatureUnit;
 
     #[test]
     fn fixed_precision_and_missing_values() {

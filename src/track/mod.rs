@@ -598,7 +598,7 @@ impl Tracker {
                 .to_string(),
         );
         if let Some(c) = &self.options.convection {
-            let three = |v: f64| crate::estimate::convection::three_digits(v);
+            let three = crate::estimate::convection::three_digits;
             cautions.push(format!(
                 "The heat transfer coefficient of the {} edge was estimated once, from the \
                  first rows of the log: h = {} W/(m² K), {:.0} % interval [{}, {}] W/(m² K){}. \
