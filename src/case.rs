@@ -501,11 +501,41 @@ pub const MAX_GRID: usize = 2001;
 /// Grid coordinates in metres: `nx` points across the width and `ny` up the height, edges
 /// included. A long strip has no height: its grid runs from the bottom to one width up,
 /// where the field has relaxed to within `e^{-π}` (4 %) of its far value.
+///
+/// A round part has a polar grid: the first coordinate is the angle (radians, `nx` points
+/// evenly round the circle from 0, the full turn left out since it is 0 again), the second
+/// the radius (`ny` points from the inner radius, or the centre of a disk, to the outer
+/// radius, both included); [`grid_point`] gives the point of a pair.
 pub fn grid_coordinates(shape: &Shape, nx: usize, ny: usize) -> (Vec<f64>, Vec<f64>) {
+    match *shape {
+        Shape::Disk { radius_m } => return polar_grid(0.0, radius_m, nx, ny),
+        Shape::Annulus { inner_m, outer_m } => return polar_grid(inner_m, outer_m, nx, ny),
+        _ => {}
+    }
     let w = shape.width();
     let h = shape.height().unwrap_or(w);
     let lin = |len: f64, n: usize| (0..n).map(|i| len * i as f64 / (n - 1) as f64).collect();
     (lin(w, nx), lin(h, ny))
+}
+
+fn polar_grid(r0: f64, r1: f64, na: usize, nr: usize) -> (Vec<f64>, Vec<f64>) {
+    let angles = (0..na)
+        .map(|i| std::f64::consts::TAU * i as f64 / na as f64)
+        .collect();
+    let radii = (0..nr)
+        .map(|j| r0 + (r1 - r0) * j as f64 / (nr - 1) as f64)
+        .collect();
+    (angles, radii)
+}
+
+/// The point of grid coordinates `(gx, gy)` of [`grid_coordinates`]: `(x, y)` itself, or
+/// `(r cos θ, r sin θ)` for the polar grid of a round part.
+pub fn grid_point(shape: &Shape, gx: f64, gy: f64) -> crate::geometry::Point {
+    if shape.is_round() {
+        crate::geometry::Point::new(gy * gx.cos(), gy * gx.sin())
+    } else {
+        crate::geometry::Point::new(gx, gy)
+    }
 }
 
 #[cfg(test)]

@@ -118,18 +118,28 @@ pub fn run(args: &SimulateArgs, global: &GlobalOptions) -> Result<i32> {
     if let Some(field_path) = &args.field {
         let (xs, ys) = grid_coordinates(case.plate.shape(), nx, ny);
         let grid = true_field(&model, &xs, &ys)?;
+        let shape = *case.plate.shape();
+        let round = shape.is_round();
         let mut w = csv_writer();
-        write_row(&mut w, &["x", "y", "temperature"])?;
-        for (j, &y) in ys.iter().enumerate() {
-            for (i, &x) in xs.iter().enumerate() {
-                write_row(
-                    &mut w,
-                    &[
-                        &num(u.length_from_m(x)),
-                        &num(u.length_from_m(y)),
-                        &format!("{:.4}", u.temp_from_k(grid[(j, i)])),
-                    ],
-                )?;
+        if round {
+            write_row(&mut w, &["x", "y", "temperature", "radius", "angle"])?;
+        } else {
+            write_row(&mut w, &["x", "y", "temperature"])?;
+        }
+        for (j, &gy) in ys.iter().enumerate() {
+            for (i, &gx) in xs.iter().enumerate() {
+                let p = edgetherm::case::grid_point(&shape, gx, gy);
+                let mut row = vec![
+                    num(u.length_from_m(p.x)),
+                    num(u.length_from_m(p.y)),
+                    format!("{:.4}", u.temp_from_k(grid[(j, i)])),
+                ];
+                if round {
+                    row.push(num(u.length_from_m(gy)));
+                    row.push(format!("{:.3}", gx.to_degrees()));
+                }
+                let refs: Vec<&str> = row.iter().map(String::as_str).collect();
+                write_row(&mut w, &refs)?;
             }
         }
         write_atomic(field_path, &finish(w)?)?;

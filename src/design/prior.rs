@@ -69,10 +69,10 @@ impl Prior {
         for (j, p) in model.parameters().iter().enumerate() {
             if let Parameter::Mode { edge, n, .. } = *p {
                 if l[j] > 0.0 {
-                    if let (Some(series), Some(len)) =
-                        (model.series_of(edge), shape.edge_length(edge))
+                    if let (Some(norm_sq), Some(len)) =
+                        (model.mode_norm_sq(edge, n), shape.edge_length(edge))
                     {
-                        sum += series.norm_sq(n) / (len * l[j] * l[j]);
+                        sum += norm_sq / (len * l[j] * l[j]);
                     }
                 }
                 if !edges.contains(&edge) {

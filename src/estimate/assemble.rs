@@ -151,6 +151,7 @@ fn edge_results(
     let heat_err = maps.heat.as_ref().map(|(m, _)| boot.errors_of(m));
     let prof_sd = linear_sd(&maps.profile, &fitted.fit.solution.covariance);
     let mut hottest = hottest_point(
+        case.plate.shape(),
         &problem.edge_positions,
         prof_est,
         &p_lo,
@@ -351,6 +352,7 @@ fn replicate_max(est: &[f64], errors_of_b: &[f64]) -> f64 {
 /// maximum (`docs/method.md` §3). `main_peak_share` is the share of replicates whose own hottest point
 /// falls inside it.
 fn hottest_point(
+    shape: &crate::geometry::Shape,
     edge_positions: &[(Edge, Vec<f64>)],
     est: &[f64],
     lower: &[f64],
@@ -373,12 +375,16 @@ fn hottest_point(
     let max_lower = lower.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let max_upper = upper.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let pos = &edge_positions[k0].1;
-    let candidates: Vec<f64> = (0..n)
+    let mut candidates: Vec<f64> = (0..n)
         .filter(|&j| upper[k0 * n + j] >= max_lower)
         .map(|j| pos[j])
         .collect();
-    let p_lo = candidates.first().copied().unwrap_or(pos0).min(pos0);
-    let p_hi = candidates.last().copied().unwrap_or(pos0).max(pos0);
+    candidates.push(pos0);
+    // on a circle the hull is the shortest arc, which may wrap through 0
+    let hot_edge = edge_positions[k0].0;
+    let [p_lo, p_hi] = shape
+        .position_hull(hot_edge, &candidates)
+        .unwrap_or([pos0, pos0]);
     let b_count = by_replicate.ncols();
     let mut counts = vec![0usize; edge_positions.len()];
     let mut inside = 0usize;
@@ -390,7 +396,7 @@ fn hottest_point(
         }
         let (k, p, _) = locate(&|j| draw[j]);
         counts[k] += 1;
-        inside += usize::from(k == k0 && p >= p_lo && p <= p_hi);
+        inside += usize::from(k == k0 && shape.interval_contains(hot_edge, [p_lo, p_hi], p));
     }
     Hottest {
         edge: edge_positions[k0].0,

@@ -229,8 +229,9 @@ fn study(
         ));
         cov.hottest_position += f64::from(u8::from(
             s_max.0 == h.edge
-                && s_max.1 >= h.position_interval[0]
-                && s_max.1 <= h.position_interval[1],
+                && r.plate
+                    .shape()
+                    .interval_contains(h.edge, h.position_interval, s_max.1),
         ));
         cov.rmse += (sq / n as f64).sqrt();
         cov.peak_bias += h.temperature - t_max;

@@ -367,8 +367,20 @@ fn widen(r: &mut EstimateResult, other: &EstimateResult) {
     h.temperature_interval[0] = h.temperature_interval[0].min(o.temperature_interval[0]);
     h.temperature_interval[1] = h.temperature_interval[1].max(o.temperature_interval[1]);
     if h.edge == o.edge {
-        h.position_interval[0] = h.position_interval[0].min(o.position_interval[0]);
-        h.position_interval[1] = h.position_interval[1].max(o.position_interval[1]);
+        // the smallest interval holding both (on a circle: ends and middles of both arcs)
+        let shape = *r.plate.shape();
+        let arc_points = |iv: [f64; 2]| {
+            let span = match shape.period(h.edge) {
+                Some(p) if iv[0] > iv[1] => iv[1] + p - iv[0],
+                _ => iv[1] - iv[0],
+            };
+            [iv[0], iv[0] + 0.5 * span, iv[0] + span]
+        };
+        let mut points = arc_points(h.position_interval).to_vec();
+        points.extend(arc_points(o.position_interval));
+        if let Some(hull) = shape.position_hull(h.edge, &points) {
+            h.position_interval = hull;
+        }
     }
     if let (Some(x), Some(y)) = (r.exceedance.as_mut(), other.exceedance.as_ref()) {
         x.probability = x.probability.max(y.probability);

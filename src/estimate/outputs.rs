@@ -42,7 +42,10 @@ impl OutputMaps {
         let (xs, ys) = crate::case::grid_coordinates(&shape, grid.0, grid.1);
         let grid_points: Vec<Point> = ys
             .iter()
-            .flat_map(|&y| xs.iter().map(move |&x| Point::new(x, y)))
+            .flat_map(|&y| {
+                xs.iter()
+                    .map(move |&x| crate::case::grid_point(&shape, x, y))
+            })
             .collect();
         let field = model.sensor_map(&grid_points);
         let heat = heat_flow_rows(model, &flow_edges(&problem.case.plate))?;

@@ -37,7 +37,7 @@ pub fn penalty_weights(model: &ForwardModel, order: usize) -> DVector<f64> {
                 wavenumber,
             } => {
                 let len = shape.edge_length(edge).unwrap_or(l_ref);
-                let norm_sq = model.series_of(edge).map_or(0.5 * len, |s| s.norm_sq(n));
+                let norm_sq = model.mode_norm_sq(edge, n).unwrap_or(0.5 * len);
                 let mode = wavenumber * l_ref / std::f64::consts::PI;
                 if wavenumber == 0.0 {
                     // the level of the edge: never shrunk (toward 0 K it would be nonsense)

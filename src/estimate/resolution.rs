@@ -127,6 +127,9 @@ pub fn resolution_length_at(
 struct Kernels {
     /// `n × points`.
     values: DMatrix<f64>,
+    /// The period of a circle's positions (the kernel wraps round it); `None` on a straight
+    /// edge.
+    period: Option<f64>,
 }
 
 impl Kernels {
@@ -138,7 +141,6 @@ impl Kernels {
         map: &LinearMap,
         points: &[usize],
     ) -> Option<Self> {
-        let series = model.series_of(edge)?;
         let (cols, orders): (Vec<usize>, Vec<usize>) = model
             .parameters()
             .iter()
@@ -148,14 +150,22 @@ impl Kernels {
                 _ => None,
             })
             .unzip();
-        let phi = DMatrix::from_fn(positions.len(), orders.len(), |i, k| {
-            series.phi(orders[k], positions[i]) / series.norm_sq(orders[k])
-        });
+        let norms: Vec<f64> = orders
+            .iter()
+            .map(|&n| model.mode_norm_sq(edge, n))
+            .collect::<Option<_>>()?;
+        let mut phi = DMatrix::zeros(positions.len(), orders.len());
+        for (k, (&n, norm)) in orders.iter().zip(&norms).enumerate() {
+            for (i, &s) in positions.iter().enumerate() {
+                phi[(i, k)] = model.mode_value(edge, n, s)? / norm;
+            }
+        }
         // (P[s₀] R) restricted to the edge's modes, one row per point
         let v = map.matrix.select_rows(points) * resolution;
         let v_modes = v.select_columns(&cols);
         Some(Kernels {
             values: phi * v_modes.transpose(),
+            period: model.plate().shape().period(edge),
         })
     }
 
@@ -163,6 +173,22 @@ impl Kernels {
     /// positive peak.
     fn span(&self, c: usize, positions: &[f64], i0: usize) -> Option<f64> {
         let kernel = self.values.column(c);
+        let n = positions.len();
+        if let (Some(period), true) = (self.period, n >= 4) {
+            // Round a circle the positions sample [0, period] evenly, the last repeating the
+            // first: turn the circle so that s₀ sits in the middle, and the half-maximum
+            // region may run through 0.
+            let m = n - 1;
+            let step = period / m as f64;
+            let half = m / 2;
+            let i0 = i0 % m;
+            let ker: Vec<f64> = (0..=m).map(|k| kernel[(i0 + m - half + k) % m]).collect();
+            let pos: Vec<f64> = (0..=m)
+                .map(|k| positions[i0] + (k as f64 - half as f64) * step)
+                .collect();
+            return half_max_region(&ker, &pos, half)
+                .map(|(left, right)| (right.max(pos[half]) - left.min(pos[half])).min(period));
+        }
         half_max_region(kernel.as_slice(), positions, i0)
             .map(|(left, right)| right.max(positions[i0]) - left.min(positions[i0]))
     }

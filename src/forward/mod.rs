@@ -31,6 +31,7 @@
 
 pub mod base;
 pub mod basis;
+pub mod polar;
 
 pub use base::{Base, Corner, CornerValue};
 pub use basis::{BasisKind, Decay, EdgeBasis, End, Series};
@@ -40,6 +41,7 @@ use crate::geometry::{Edge, EdgeCondition, Plate, Point};
 use nalgebra::{DMatrix, DVector};
 use serde::Serialize;
 use std::borrow::Cow;
+use std::f64::consts::{PI, TAU};
 
 /// Series lengths.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -110,6 +112,8 @@ pub struct ForwardModel {
     base: Base,
     series: Vec<EdgeSeries>,
     parameters: Vec<Parameter>,
+    /// Round plates: the polar model (the rectangle's base and series are then empty).
+    polar: Option<polar::PolarModel>,
 }
 
 /// `Σ a_i b_i` over the shorter of the two.
@@ -175,6 +179,8 @@ fn inward_normal(edge: Edge) -> (f64, f64) {
         Edge::Top => (0.0, -1.0),
         Edge::Left => (1.0, 0.0),
         Edge::Right => (-1.0, 0.0),
+        // circles have no fixed normal; the polar model never asks (it has no corner base)
+        Edge::Inner | Edge::Outer | Edge::Rim => (0.0, 0.0),
     }
 }
 
@@ -188,6 +194,9 @@ impl ForwardModel {
             ));
         }
         let shape = *plate.shape();
+        if shape.is_round() {
+            return Self::new_round(plate, options);
+        }
         let mut parameters = Vec::new();
         for edge in plate.unknown_edges() {
             for n in 0..options.unknown_terms {
@@ -333,7 +342,76 @@ impl ForwardModel {
             base,
             series,
             parameters,
+            polar: None,
         })
+    }
+
+    /// The model of a disk or an annulus ([`polar`]).
+    fn new_round(plate: &Plate, options: SeriesOptions) -> Result<Self> {
+        let shape = *plate.shape();
+        for edge in shape.edges() {
+            if plate.convection(edge).is_some() {
+                convective_beta(plate, edge)?;
+            }
+        }
+        let mut parameters = Vec::new();
+        for edge in plate.unknown_edges() {
+            let r = shape.radius_of(edge).unwrap_or(1.0);
+            for n in 0..options.unknown_terms {
+                parameters.push(Parameter::Mode {
+                    edge,
+                    n,
+                    wavenumber: polar::order_of(n) as f64 / r,
+                });
+            }
+        }
+        let (base, corners) = Base::new(plate, parameters.len());
+        if !corners.is_empty() {
+            return Err(Error::Internal(
+                "a round plate has no corners, yet the base found some".into(),
+            ));
+        }
+        let model = polar::PolarModel::new(
+            plate,
+            options.unknown_terms,
+            options.known_terms,
+            NEGLIGIBLE_COEFFICIENT,
+        );
+        Ok(ForwardModel {
+            plate: plate.clone(),
+            base,
+            series: Vec::new(),
+            parameters,
+            polar: Some(model),
+        })
+    }
+
+    /// Whether this is the polar model of a round plate.
+    pub fn is_round(&self) -> bool {
+        self.polar.is_some()
+    }
+
+    /// The value at position `s` along `edge` of the `n`-th function of the edge's own
+    /// expansion (the eigenfunction `φ_n` of a straight edge, the Fourier function
+    /// `1, cos θ, sin θ, …` of a circle), when the edge has an expansion.
+    pub fn mode_value(&self, edge: Edge, n: usize, s: f64) -> Option<f64> {
+        if self.polar.is_some() {
+            let r = self.plate.shape().radius_of(edge)?;
+            let mut t = vec![0.0; n + 1];
+            polar::trig_into(s / r, &mut t);
+            return Some(t[n]);
+        }
+        self.series_of(edge).map(|series| series.phi(n, s))
+    }
+
+    /// `‖φ_n‖² = ∫ φ_n² ds` of the `n`-th function of `edge`'s expansion ([`Self::mode_value`]),
+    /// metres: `2πr` for a circle's constant, `πr` for its cosines and sines.
+    pub fn mode_norm_sq(&self, edge: Edge, n: usize) -> Option<f64> {
+        if self.polar.is_some() {
+            let r = self.plate.shape().radius_of(edge)?;
+            return Some(if n == 0 { TAU * r } else { PI * r });
+        }
+        self.series_of(edge).map(|series| series.norm_sq(n))
     }
 
     /// The plate this model describes.
@@ -384,6 +462,9 @@ impl ForwardModel {
     /// Fill `row` (length [`Self::parameter_count`]) with the sensitivities of `T(p)` to each
     /// unknown, and return the known offset at `p`. `scratch` is reused between calls.
     fn row_into(&self, p: Point, row: &mut [f64], scratch: &mut Vec<f64>) -> f64 {
+        if let Some(polar) = &self.polar {
+            return polar.row_into(p, false, row);
+        }
         row.fill(0.0);
         let mut offset = self.base.evaluate(p, |i, w| row[i] += w);
         for es in &self.series {
@@ -439,6 +520,9 @@ impl ForwardModel {
                 }
             }
         }
+        if let Some(polar) = &self.polar {
+            return polar.evaluate(c, p, false);
+        }
         let mut corners = 0.0;
         let mut t = self.base.evaluate(p, |i, w| corners += w * c[i]);
         t += corners;
@@ -452,14 +536,17 @@ impl ForwardModel {
         t
     }
 
-    /// Temperatures on a grid: `result[(j, i)]` is `T(xs[i], ys[j])`, kelvin.
+    /// Temperatures on a grid of [`crate::case::grid_coordinates`]: `result[(j, i)]` is `T`
+    /// at grid coordinates `(xs[i], ys[j])` (angle and radius on a round part), kelvin.
     pub fn field_grid(&self, c: &[f64], xs: &[f64], ys: &[f64]) -> Result<DMatrix<f64>> {
         self.check_parameters(c)?;
+        let shape = *self.plate.shape();
         let mut out = DMatrix::zeros(ys.len(), xs.len());
         let mut scratch = Vec::new();
         for (j, &y) in ys.iter().enumerate() {
             for (i, &x) in xs.iter().enumerate() {
-                out[(j, i)] = self.temperature_unchecked(c, Point::new(x, y), &mut scratch);
+                let p = crate::case::grid_point(&shape, x, y);
+                out[(j, i)] = self.temperature_unchecked(c, p, &mut scratch);
             }
         }
         Ok(out)
@@ -534,6 +621,10 @@ impl ForwardModel {
     fn inward_gradient(&self, edge: Edge, c: &[f64], s: f64) -> f64 {
         let shape = self.plate.shape();
         let p = shape.point_on(edge, s);
+        if let Some(polar) = &self.polar {
+            // the inward normal is −(outward sign) · r̂
+            return -polar::PolarModel::sign(edge) * polar.evaluate(c, p, true);
+        }
         let mut g = self.base_inward_gradient(edge, c, p);
         for es in &self.series {
             let coeffs = self.coefficients(es, c);
@@ -654,6 +745,17 @@ impl ForwardModel {
         if self.plate.is_insulated(edge) {
             return Ok(Some(0.0));
         }
+        if let Some(polar) = &self.polar {
+            // only the circle's mean (m = 0) survives the integral round it
+            let r = shape.radius_of(edge).unwrap_or(0.0);
+            let (mean, mean_slope) = polar.circle_mean(c, r);
+            if let Some(conv) = self.plate.convection(edge) {
+                let h = conv.known_h().ok_or_else(|| unknown_h(edge))?;
+                return Ok(Some(-h * (mean - conv.ambient_k) * length));
+            }
+            let inward = -polar::PolarModel::sign(edge) * mean_slope;
+            return Ok(Some(-kc * inward * length));
+        }
         if let Some(conv) = self.plate.convection(edge) {
             let h = conv.known_h().ok_or_else(|| unknown_h(edge))?;
             let integral = self.edge_integral(edge, c, length);
@@ -694,6 +796,25 @@ impl ForwardModel {
             .into_iter()
             .filter_map(|edge| {
                 let condition = self.plate.condition(edge)?;
+                if let Some(polar) = &self.polar {
+                    let terms = polar.terms_of(edge);
+                    return Some(EdgeDescription {
+                        edge,
+                        condition: condition.name(),
+                        basis: terms.map(|_| {
+                            "Fourier modes round the circle: 1, cos nθ, sin nθ (periodic)"
+                        }),
+                        decay: terms.map(|_| {
+                            if edge == Edge::Rim {
+                                "(r/R)^n toward the centre (the Poisson series of the disk)"
+                            } else {
+                                "a r^n + b r^-n per mode (a + b ln r for the mean) across the wall"
+                            }
+                        }),
+                        terms: terms.map_or(0, |t| t.0),
+                        unknowns: terms.filter(|t| t.1).map_or(0, |t| t.0),
+                    });
+                }
                 let series = self.series.iter().find(|s| s.edge == edge);
                 Some(EdgeDescription {
                     edge,

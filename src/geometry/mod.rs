@@ -1,11 +1,16 @@
 //! Plate geometry and edge conditions: the problem the forward model solves.
 //!
 //! The plate is a rectangle `0 < x < width`, `0 < y < height`, or a long strip
-//! `0 < x < width`, `y > 0` with no top edge. The origin is the bottom-left corner. Each edge
-//! carries one [`EdgeCondition`]. All values are SI: metres and kelvin.
+//! `0 < x < width`, `y > 0` with no top edge (origin at the bottom-left corner); or a round
+//! part: a disk `r < R` with one edge, its rim, or an annulus `a < r < b` (a pipe wall) with an
+//! inner and an outer edge (origin at the centre). Each edge carries one [`EdgeCondition`].
+//! All values are SI: metres and kelvin.
 //!
 //! Positions along an edge are measured from the edge's lower coordinate: `x` on the bottom
-//! and top edges, `y` on the left and right edges (`docs/case-files.md`, outputs).
+//! and top edges, `y` on the left and right edges. Along a circular edge of radius `r_e` the
+//! position is the arc length `r_e θ`, with `θ` counter-clockwise from `+x` in `[0, 2π)`, so
+//! that every length-based quantity (gradients, resolution lengths, heat flows) keeps its
+//! meaning; files give and receive the angle in degrees (`docs/case-files.md`, outputs).
 
 mod profile;
 
@@ -27,11 +32,30 @@ pub enum Edge {
     Top,
     /// `x = 0`
     Left,
+    /// The inner circle of an annulus, `r = a`.
+    Inner,
+    /// The outer circle of an annulus, `r = b`.
+    Outer,
+    /// The rim of a disk, `r = R`.
+    Rim,
 }
 
 impl Edge {
-    /// The four edges, in a fixed order (bottom, right, top, left).
-    pub const ALL: [Edge; 4] = [Edge::Bottom, Edge::Right, Edge::Top, Edge::Left];
+    /// Every edge any outline can have, in a fixed order (bottom, right, top, left of a
+    /// rectangle; inner, outer of an annulus; rim of a disk). A plate has only some of them
+    /// ([`Shape::has_edge`]).
+    pub const ALL: [Edge; 7] = [
+        Edge::Bottom,
+        Edge::Right,
+        Edge::Top,
+        Edge::Left,
+        Edge::Inner,
+        Edge::Outer,
+        Edge::Rim,
+    ];
+
+    /// The four edges of a rectangle.
+    pub const STRAIGHT: [Edge; 4] = [Edge::Bottom, Edge::Right, Edge::Top, Edge::Left];
 
     /// Index in [`Edge::ALL`].
     pub fn index(self) -> usize {
@@ -40,46 +64,57 @@ impl Edge {
             Edge::Right => 1,
             Edge::Top => 2,
             Edge::Left => 3,
+            Edge::Inner => 4,
+            Edge::Outer => 5,
+            Edge::Rim => 6,
         }
     }
 
-    /// The name used in files (`bottom`, `right`, `top`, `left`).
+    /// The name used in files (`bottom`, `right`, `top`, `left`, `inner`, `outer`, `rim`).
     pub fn name(self) -> &'static str {
         match self {
             Edge::Bottom => "bottom",
             Edge::Right => "right",
             Edge::Top => "top",
             Edge::Left => "left",
+            Edge::Inner => "inner",
+            Edge::Outer => "outer",
+            Edge::Rim => "rim",
         }
     }
 
     /// Parse an edge name as written in files.
     pub fn parse(s: &str) -> Option<Edge> {
-        match s.trim() {
-            "bottom" => Some(Edge::Bottom),
-            "right" => Some(Edge::Right),
-            "top" => Some(Edge::Top),
-            "left" => Some(Edge::Left),
-            _ => None,
-        }
+        Edge::ALL.into_iter().find(|e| e.name() == s.trim())
+    }
+
+    /// Whether the edge is a circle (the position along it is an arc length, written as an
+    /// angle in files).
+    pub fn is_circular(self) -> bool {
+        matches!(self, Edge::Inner | Edge::Outer | Edge::Rim)
     }
 
     /// The edges adjacent to this one, at the start (position 0) and at the end of its
-    /// position coordinate.
+    /// position coordinate. A circle closes on itself: it has no neighbours, and the answer
+    /// for it is the circle twice.
     pub fn neighbours(self) -> (Edge, Edge) {
         match self {
             Edge::Bottom | Edge::Top => (Edge::Left, Edge::Right),
             Edge::Left | Edge::Right => (Edge::Bottom, Edge::Top),
+            Edge::Inner | Edge::Outer | Edge::Rim => (self, self),
         }
     }
 
-    /// The edge across the plate.
+    /// The edge across the plate (across a disk's centre: the rim itself).
     pub fn opposite(self) -> Edge {
         match self {
             Edge::Bottom => Edge::Top,
             Edge::Top => Edge::Bottom,
             Edge::Left => Edge::Right,
             Edge::Right => Edge::Left,
+            Edge::Inner => Edge::Outer,
+            Edge::Outer => Edge::Inner,
+            Edge::Rim => Edge::Rim,
         }
     }
 
@@ -127,61 +162,133 @@ pub enum Shape {
         /// Extent along x, metres.
         width_m: f64,
     },
+    /// A disk `r < radius_m` around the origin; its one edge is the [`Edge::Rim`].
+    Disk {
+        /// Radius, metres.
+        radius_m: f64,
+    },
+    /// An annulus `inner_m < r < outer_m` around the origin (a pipe wall, a ring); its edges
+    /// are [`Edge::Inner`] and [`Edge::Outer`].
+    Annulus {
+        /// Inner radius, metres.
+        inner_m: f64,
+        /// Outer radius, metres.
+        outer_m: f64,
+    },
+}
+
+/// The angle of `p` about the origin, counter-clockwise from `+x`, in `[0, 2π)`.
+pub fn angle_of(p: Point) -> f64 {
+    let t = p.y.atan2(p.x);
+    if t < 0.0 {
+        // `t + 2π` can round to exactly 2π for a tiny negative angle
+        let w = t + std::f64::consts::TAU;
+        if w >= std::f64::consts::TAU { 0.0 } else { w }
+    } else {
+        t
+    }
 }
 
 impl Shape {
-    /// Width (extent along x), metres.
+    /// Width, metres: the extent along x of a rectangle or strip; the outer diameter of a
+    /// round part (its extent along x, the scale used where a plate size is needed).
     pub fn width(&self) -> f64 {
         match *self {
             Shape::Rectangle { width_m, .. } | Shape::Strip { width_m } => width_m,
+            Shape::Disk { radius_m } => 2.0 * radius_m,
+            Shape::Annulus { outer_m, .. } => 2.0 * outer_m,
         }
     }
 
-    /// Height, metres; `None` for a strip.
+    /// Height, metres; `None` for a strip; the outer diameter of a round part.
     pub fn height(&self) -> Option<f64> {
         match *self {
             Shape::Rectangle { height_m, .. } => Some(height_m),
             Shape::Strip { .. } => None,
+            Shape::Disk { .. } | Shape::Annulus { .. } => Some(self.width()),
         }
     }
 
-    /// Whether the plate has this edge (a strip has no top).
-    pub fn has_edge(&self, edge: Edge) -> bool {
-        !(matches!(self, Shape::Strip { .. }) && edge == Edge::Top)
+    /// Whether the outline is round (a disk or an annulus, origin at the centre).
+    pub fn is_round(&self) -> bool {
+        matches!(self, Shape::Disk { .. } | Shape::Annulus { .. })
     }
 
-    /// Length of an edge, metres; `None` for the infinite sides of a strip (and for the
-    /// strip's missing top).
+    /// The radius of a circular edge of this outline, metres.
+    pub fn radius_of(&self, edge: Edge) -> Option<f64> {
+        match (*self, edge) {
+            (Shape::Disk { radius_m }, Edge::Rim) => Some(radius_m),
+            (Shape::Annulus { inner_m, .. }, Edge::Inner) => Some(inner_m),
+            (Shape::Annulus { outer_m, .. }, Edge::Outer) => Some(outer_m),
+            _ => None,
+        }
+    }
+
+    /// The edges of this outline, in [`Edge::ALL`] order.
+    pub fn edges(&self) -> Vec<Edge> {
+        Edge::ALL
+            .into_iter()
+            .filter(|&e| self.has_edge(e))
+            .collect()
+    }
+
+    /// Whether the plate has this edge (a strip has no top; a disk only its rim; an annulus
+    /// its inner and outer circles).
+    pub fn has_edge(&self, edge: Edge) -> bool {
+        match self {
+            Shape::Rectangle { .. } => !edge.is_circular(),
+            Shape::Strip { .. } => !edge.is_circular() && edge != Edge::Top,
+            Shape::Disk { .. } => edge == Edge::Rim,
+            Shape::Annulus { .. } => matches!(edge, Edge::Inner | Edge::Outer),
+        }
+    }
+
+    /// Length of an edge, metres (a circle's circumference); `None` for the infinite sides of
+    /// a strip and for edges the outline does not have.
     pub fn edge_length(&self, edge: Edge) -> Option<f64> {
+        if !self.has_edge(edge) {
+            return None;
+        }
+        if let Some(r) = self.radius_of(edge) {
+            return Some(std::f64::consts::TAU * r);
+        }
         if edge.runs_along_x() {
-            self.has_edge(edge).then(|| self.width())
+            Some(self.width())
         } else {
             self.height()
         }
     }
 
     /// Distance from `edge` to the edge across the plate, metres; `None` from the bottom of a
-    /// strip (nothing across it).
+    /// strip (nothing across it). From a disk's rim: its radius (the distance to the centre).
     pub fn across(&self, edge: Edge) -> Option<f64> {
-        if edge.runs_along_x() {
-            self.height()
-        } else {
-            Some(self.width())
+        match *self {
+            Shape::Disk { radius_m } => Some(radius_m),
+            Shape::Annulus { inner_m, outer_m } => Some(outer_m - inner_m),
+            _ if edge.runs_along_x() => self.height(),
+            _ => Some(self.width()),
         }
     }
 
     /// Distance from `p` to `edge`, measured into the plate, metres.
     pub fn depth_from(&self, edge: Edge, p: Point) -> f64 {
+        let r = p.x.hypot(p.y);
         match edge {
             Edge::Bottom => p.y,
             Edge::Left => p.x,
             Edge::Right => self.width() - p.x,
             Edge::Top => self.height().map_or(f64::INFINITY, |h| h - p.y),
+            Edge::Inner => r - self.radius_of(edge).unwrap_or(0.0),
+            Edge::Outer | Edge::Rim => self.radius_of(edge).unwrap_or(0.0) - r,
         }
     }
 
-    /// Position of `p` along `edge` (x on bottom/top, y on left/right).
+    /// Position of `p` along `edge` (x on bottom/top, y on left/right, the arc length
+    /// `r_e θ` of `p`'s angle on a circle of radius `r_e`).
     pub fn position_along(&self, edge: Edge, p: Point) -> f64 {
+        if let Some(r) = self.radius_of(edge) {
+            return r * angle_of(p);
+        }
         if edge.runs_along_x() { p.x } else { p.y }
     }
 
@@ -192,14 +299,105 @@ impl Shape {
             Edge::Top => Point::new(position, self.height().unwrap_or(f64::INFINITY)),
             Edge::Left => Point::new(0.0, position),
             Edge::Right => Point::new(self.width(), position),
+            Edge::Inner | Edge::Outer | Edge::Rim => {
+                let r = self.radius_of(edge).unwrap_or(0.0);
+                let t = position / r;
+                Point::new(r * t.cos(), r * t.sin())
+            }
         }
     }
 
     /// Whether `p` lies strictly inside the plate.
     pub fn contains_strictly(&self, p: Point) -> bool {
-        let inside_x = p.x > 0.0 && p.x < self.width();
-        let inside_y = p.y > 0.0 && self.height().is_none_or(|h| p.y < h);
-        inside_x && inside_y
+        match *self {
+            Shape::Disk { radius_m } => p.x.hypot(p.y) < radius_m,
+            Shape::Annulus { inner_m, outer_m } => {
+                let r = p.x.hypot(p.y);
+                r > inner_m && r < outer_m
+            }
+            _ => {
+                let inside_x = p.x > 0.0 && p.x < self.width();
+                let inside_y = p.y > 0.0 && self.height().is_none_or(|h| p.y < h);
+                inside_x && inside_y
+            }
+        }
+    }
+
+    /// The period of positions along `edge`: a circle's circumference; `None` on a straight
+    /// edge.
+    pub fn period(&self, edge: Edge) -> Option<f64> {
+        self.radius_of(edge).map(|r| std::f64::consts::TAU * r)
+    }
+
+    /// The smallest interval of positions along `edge` that holds every one of `positions`:
+    /// `[min, max]` on a straight edge; on a circle the shortest arc holding them, written
+    /// `[start, end]` counter-clockwise, so that `start > end` when it wraps through 0 (for
+    /// instance 350° to 12°). `None` for no positions.
+    pub fn position_hull(&self, edge: Edge, positions: &[f64]) -> Option<[f64; 2]> {
+        let mut p: Vec<f64> = positions.iter().copied().filter(|v| v.is_finite()).collect();
+        if p.is_empty() {
+            return None;
+        }
+        let Some(period) = self.period(edge) else {
+            let lo = p.iter().copied().fold(f64::INFINITY, f64::min);
+            let hi = p.iter().copied().fold(f64::NEG_INFINITY, f64::max);
+            return Some([lo, hi]);
+        };
+        for v in &mut p {
+            *v = v.rem_euclid(period);
+        }
+        p.sort_by(f64::total_cmp);
+        // the arc is the complement of the largest gap between neighbours round the circle
+        let n = p.len();
+        let mut best = (p[0] + period - p[n - 1], n - 1); // the gap through 0
+        for i in 0..n - 1 {
+            let gap = p[i + 1] - p[i];
+            if gap > best.0 {
+                best = (gap, i);
+            }
+        }
+        let (_, i) = best;
+        Some(if i == n - 1 {
+            [p[0], p[n - 1]]
+        } else {
+            [p[i + 1], p[i]]
+        })
+    }
+
+    /// Whether position `s` along `edge` lies in `interval` (an arc of [`Self::position_hull`]
+    /// on a circle, which may wrap through 0).
+    pub fn interval_contains(&self, edge: Edge, interval: [f64; 2], s: f64) -> bool {
+        let [lo, hi] = interval;
+        match self.period(edge) {
+            None => s >= lo && s <= hi,
+            Some(period) => {
+                let s = s.rem_euclid(period);
+                // a position at the full turn is at 0 again
+                let s_alt = s + period;
+                if lo <= hi {
+                    (s >= lo && s <= hi) || (s_alt >= lo && s_alt <= hi)
+                } else {
+                    s >= lo || s <= hi
+                }
+            }
+        }
+    }
+
+    /// Whether `p` lies inside the plate or on its outline.
+    pub fn contains(&self, p: Point) -> bool {
+        let tol = 1e-12 * self.width();
+        match *self {
+            Shape::Disk { radius_m } => p.x.hypot(p.y) <= radius_m + tol,
+            Shape::Annulus { inner_m, outer_m } => {
+                let r = p.x.hypot(p.y);
+                r >= inner_m - tol && r <= outer_m + tol
+            }
+            _ => {
+                let inside_x = p.x >= -tol && p.x <= self.width() + tol;
+                let inside_y = p.y >= -tol && self.height().is_none_or(|h| p.y <= h + tol);
+                inside_x && inside_y
+            }
+        }
     }
 }
 
@@ -277,8 +475,9 @@ impl EdgeCondition {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Plate {
     shape: Shape,
-    /// Indexed by [`Edge::index`]; the top of a strip is `None`.
-    conditions: [Option<EdgeCondition>; 4],
+    /// Indexed by [`Edge::index`]; edges the outline lacks (the top of a strip, the circles
+    /// of a rectangle, the sides of a round part) are `None`.
+    conditions: [Option<EdgeCondition>; 7],
     conductivity: Option<f64>,
 }
 
@@ -341,6 +540,56 @@ impl Plate {
         conditions: [Option<EdgeCondition>; 4],
         conductivity: Option<f64>,
     ) -> Result<Plate> {
+        let [b, r, t, l] = conditions;
+        Plate::build(shape, [b, r, t, l, None, None, None], conductivity)
+    }
+
+    /// Build and validate a plate of any outline from the conditions of its edges, with the
+    /// checks of [`Plate::new`]; for a round plate (a disk or an annulus) radii must be finite
+    /// and positive,
+    /// and an annulus's inner radius smaller than its outer one. A fixed profile along a
+    /// circle must span `[0, 2π r]` (the reader closes a periodic profile, see
+    /// [`EdgeProfile::periodic`]).
+    pub fn from_edges(
+        shape: Shape,
+        conditions: &[(Edge, EdgeCondition)],
+        conductivity: Option<f64>,
+    ) -> Result<Plate> {
+        let mut all: [Option<EdgeCondition>; 7] = Default::default();
+        for (e, c) in conditions {
+            all[e.index()] = Some(c.clone());
+        }
+        Plate::build(shape, all, conductivity)
+    }
+
+    fn build(
+        shape: Shape,
+        conditions: [Option<EdgeCondition>; 7],
+        conductivity: Option<f64>,
+    ) -> Result<Plate> {
+        match shape {
+            Shape::Disk { radius_m } if !(radius_m.is_finite() && radius_m > 0.0) => {
+                return Err(Error::invalid_field(
+                    "plate.radius",
+                    "the radius must be a positive number",
+                ));
+            }
+            Shape::Annulus { inner_m, outer_m } => {
+                if !(inner_m.is_finite() && inner_m > 0.0) {
+                    return Err(Error::invalid_field(
+                        "plate.inner_radius",
+                        "the inner radius must be a positive number",
+                    ));
+                }
+                if !(outer_m.is_finite() && outer_m > inner_m) {
+                    return Err(Error::invalid_field(
+                        "plate.outer_radius",
+                        "the outer radius must be a number larger than the inner radius",
+                    ));
+                }
+            }
+            _ => {}
+        }
         let w = shape.width();
         if !(w.is_finite() && w > 0.0) {
             return Err(Error::invalid_field(
@@ -377,9 +626,19 @@ impl Plate {
                     ));
                 }
                 (false, Some(_)) => {
+                    let names: Vec<&str> = shape.edges().iter().map(|e| e.name()).collect();
                     return Err(Error::invalid_field(
                         format!("edges.{edge}"),
-                        "a long strip (height = \"infinite\") has no top edge; remove [edges.top]",
+                        if matches!(shape, Shape::Strip { .. }) {
+                            "a long strip (height = \"infinite\") has no top edge; remove [edges.top]"
+                                .to_string()
+                        } else {
+                            format!(
+                                "this plate has no {edge} edge (its edges are {}); remove \
+                                 [edges.{edge}]",
+                                names.join(", ")
+                            )
+                        },
                     ));
                 }
                 _ => {}
@@ -505,7 +764,7 @@ impl Plate {
                 )));
             }
         }
-        Plate::new(self.shape, conditions, self.conductivity)
+        Plate::build(self.shape, conditions, self.conductivity)
     }
 
     /// Whether `edge` exists and is insulated.
@@ -530,6 +789,6 @@ impl Plate {
                 })?;
             conditions[edge.index()] = Some(EdgeCondition::Fixed(profile));
         }
-        Plate::new(self.shape, conditions, self.conductivity)
+        Plate::build(self.shape, conditions, self.conductivity)
     }
 }

@@ -45,6 +45,47 @@ impl EdgeProfile {
         })
     }
 
+    /// A periodic piecewise-linear profile along a closed edge of length `period` (a circle):
+    /// knots at positions in `[0, period)`, strictly increasing; between the last knot and
+    /// the first one (through `period ≡ 0`) the profile runs linearly, wrapping round. The
+    /// result spans `[0, period]` with equal values at both ends (a knot is added at 0 and at
+    /// `period` when the data lack them).
+    pub fn periodic(
+        positions: Vec<f64>,
+        temperatures: Vec<f64>,
+        period: f64,
+    ) -> Result<Self, String> {
+        let open = Self::piecewise_linear(positions, temperatures)?;
+        let (p, t) = (&open.positions, &open.temperatures);
+        let n = p.len();
+        if n == 1 {
+            return Ok(open);
+        }
+        if p[0] < 0.0 || p[n - 1] >= period {
+            return Err(format!(
+                "a profile round a circle takes angles from 0 up to (not including) 360 degrees; \
+                 this one runs from {:.6} to {:.6} of {:.6} (in arc length)",
+                p[0],
+                p[n - 1],
+                period
+            ));
+        }
+        // the value at 0 ≡ period, on the wrapping segment from the last knot to the first
+        let gap = p[0] + period - p[n - 1];
+        let at_zero = t[n - 1] + (t[0] - t[n - 1]) * (period - p[n - 1]) / gap;
+        let mut positions = Vec::with_capacity(n + 2);
+        let mut temps = Vec::with_capacity(n + 2);
+        if p[0] > 0.0 {
+            positions.push(0.0);
+            temps.push(at_zero);
+        }
+        positions.extend_from_slice(p);
+        temps.extend_from_slice(t);
+        positions.push(period);
+        temps.push(if p[0] > 0.0 { at_zero } else { t[0] });
+        Self::piecewise_linear(positions, temps)
+    }
+
     /// Whether the profile is a single constant.
     #[allow(clippy::float_cmp)] // a constant profile is one whose values are all the same number
     pub fn is_constant(&self) -> bool {
@@ -132,6 +173,22 @@ mod tests {
         assert_eq!(p.segments(2.0).len(), 2);
         assert!(p.check_spans(2.0).is_ok());
         assert!(p.check_spans(3.0).is_err());
+    }
+
+    #[test]
+    fn periodic_profile_wraps_through_zero() {
+        // knots at 90 and 270 (of a 360 period): the value at 0 is halfway along the wrapping
+        // segment from 270 to 450
+        let p = EdgeProfile::periodic(vec![90.0, 270.0], vec![10.0, 30.0], 360.0).unwrap();
+        assert_eq!(p.value(0.0), 20.0);
+        assert_eq!(p.value(360.0), 20.0);
+        assert_eq!(p.value(315.0), 25.0);
+        assert_eq!(p.value(45.0), 15.0);
+        assert!(p.check_spans(360.0).is_ok());
+        assert!(EdgeProfile::periodic(vec![0.0, 360.0], vec![1.0, 1.0], 360.0).is_err());
+        let q = EdgeProfile::periodic(vec![0.0, 180.0], vec![1.0, 3.0], 360.0).unwrap();
+        assert_eq!(q.value(360.0), 1.0);
+        assert_eq!(q.value(270.0), 2.0);
     }
 
     #[test]

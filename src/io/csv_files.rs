@@ -664,7 +664,7 @@ pub(crate) fn read_edge_profile(
     edge: Edge,
     length: Option<f64>,
 ) -> Result<EdgeProfile> {
-    read_edge_profile_as(path, units, edge, length).map(|(p, _)| p)
+    read_edge_profile_as(path, units, edge, length, None).map(|(p, _)| p)
 }
 
 /// Read one fixed-edge profile file (`position,temperature`) for `edge`, and how it was read
@@ -675,6 +675,7 @@ pub(crate) fn read_edge_profile_as(
     units: &Units,
     edge: Edge,
     length: Option<f64>,
+    radius_m: Option<f64>,
 ) -> Result<(EdgeProfile, ReadAs)> {
     let table = CsvTable::read(
         path,
@@ -689,7 +690,10 @@ pub(crate) fn read_edge_profile_as(
         let t = table.number(row, "temperature")?;
         rows.push((row.line, s, t));
     }
-    let profile = build_profile(&table, units, edge, length, rows)?;
+    let profile = match radius_m {
+        Some(r) => build_circle_profile(&table, units, edge, r, rows)?,
+        None => build_profile(&table, units, edge, length, rows)?,
+    };
     Ok((profile, table.read_as()))
 }
 
@@ -727,7 +731,10 @@ pub(crate) fn read_truth_profiles(path: &Path, case: &Case) -> Result<Vec<(Edge,
                 table.error(
                     row.line,
                     "edge",
-                    format!("`{name}` is not an edge; use bottom, right, top or left"),
+                    format!(
+                "`{name}` is not an edge; use {}",
+                shape_edge_names(case.plate.shape())
+            ),
                 )
             })?;
             if !unknown.contains(&edge) {
@@ -763,12 +770,81 @@ pub(crate) fn read_truth_profiles(path: &Path, case: &Case) -> Result<Vec<(Edge,
             ));
         }
         let length = shape.edge_length(edge).map(|m| case.units.length_from_m(m));
-        out.push((
-            edge,
-            build_profile(&table, &case.units, edge, length, rows)?,
-        ));
+        let profile = match shape.radius_of(edge) {
+            Some(r) => build_circle_profile(&table, &case.units, edge, r, rows)?,
+            None => build_profile(&table, &case.units, edge, length, rows)?,
+        };
+        out.push((edge, profile));
     }
     Ok(out)
+}
+
+/// The names of a shape's edges, for messages (`bottom, right, top or left`).
+fn shape_edge_names(shape: &crate::geometry::Shape) -> String {
+    let names: Vec<&str> = shape.edges().iter().map(|e| e.name()).collect();
+    match names.split_last() {
+        Some((last, rest)) if !rest.is_empty() => format!("{} or {last}", rest.join(", ")),
+        Some((last, _)) => (*last).to_string(),
+        None => String::new(),
+    }
+}
+
+/// Check and convert the profile rows of a circular edge of radius `radius_m`: the
+/// `position` column holds angles in degrees, counter-clockwise from `+x`, strictly
+/// increasing within `[0, 360)`; the profile is periodic (it wraps from the last angle back to
+/// the first through 0°) and is stored against the arc length.
+fn build_circle_profile(
+    table: &CsvTable,
+    units: &Units,
+    edge: Edge,
+    radius_m: f64,
+    rows: ProfileRows,
+) -> Result<EdgeProfile> {
+    if rows.len() < 2 {
+        return Err(Error::invalid_at(
+            &table.path,
+            rows.first().map(|r| r.0),
+            Some("position"),
+            format!(
+                "the {edge} circle's profile needs at least two rows (angles in degrees); for a \
+                 constant temperature write `temperature = ...` in plate.toml"
+            ),
+        ));
+    }
+    for &(line, a, _) in &rows {
+        if !(0.0..360.0).contains(&a) {
+            return Err(table.error(
+                line,
+                "position",
+                format!(
+                    "along the {edge} circle the position is the angle in degrees, \
+                     counter-clockwise from +x, from 0 up to (not including) 360; {a} is outside \
+                     (the profile wraps from the last angle back to the first by itself)"
+                ),
+            ));
+        }
+    }
+    for w in rows.windows(2) {
+        if w[1].1 <= w[0].1 {
+            return Err(table.error(
+                w[1].0,
+                "position",
+                format!(
+                    "angles along the {edge} circle must increase from row to row: {}° follows \
+                     {}° (line {})",
+                    w[1].1, w[0].1, w[0].0
+                ),
+            ));
+        }
+    }
+    let mut temps = Vec::with_capacity(rows.len());
+    for &(line, _, t) in &rows {
+        temps
+            .push(absolute_temperature(units, t).map_err(|m| table.error(line, "temperature", m))?);
+    }
+    let positions = rows.iter().map(|r| r.1.to_radians() * radius_m).collect();
+    EdgeProfile::periodic(positions, temps, std::f64::consts::TAU * radius_m)
+        .map_err(|m| Error::invalid_at(&table.path, None, Some("position"), m))
 }
 
 /// Check and convert one edge's profile rows: positions strictly increasing and spanning

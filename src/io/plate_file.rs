@@ -81,8 +81,12 @@ struct RawBounds {
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct RawPlate {
-    width: f64,
-    height: NumberOrWord,
+    shape: Option<String>,
+    width: Option<f64>,
+    height: Option<NumberOrWord>,
+    radius: Option<f64>,
+    inner_radius: Option<f64>,
+    outer_radius: Option<f64>,
     length_unit: LengthUnit,
     temperature_unit: TemperatureUnit,
     conductivity: Option<f64>,
@@ -95,6 +99,9 @@ struct RawEdges {
     right: Option<RawEdge>,
     top: Option<RawEdge>,
     left: Option<RawEdge>,
+    inner: Option<RawEdge>,
+    outer: Option<RawEdge>,
+    rim: Option<RawEdge>,
 }
 
 #[derive(Debug, Deserialize)]
@@ -349,18 +356,92 @@ impl Checker<'_> {
             }
             crate::plausible::length_m(&units, v, what).map_err(|m| self.err(field, m))
         };
-        let width_m = length("plate.width", raw.plate.width, "the width")?;
-        let shape = match &raw.plate.height {
-            NumberOrWord::Number(h) => Shape::Rectangle {
-                width_m,
-                height_m: length("plate.height", *h, "the height")?,
-            },
-            NumberOrWord::Word(w) if w == "infinite" => Shape::Strip { width_m },
-            NumberOrWord::Word(w) => {
+        let p = &raw.plate;
+        let kind = p.shape.as_deref().map(str::trim).unwrap_or("rectangle");
+        // the keys of the other outlines are refused, so a typo never passes unnoticed
+        let refuse = |keys: &[(&str, bool)]| -> Result<()> {
+            match keys.iter().find(|(_, given)| *given) {
+                Some((k, _)) => Err(self.err(
+                    &format!("plate.{k}"),
+                    format!("a {kind} has no `{k}`; remove it (or set `shape` to the outline meant)"),
+                )),
+                None => Ok(()),
+            }
+        };
+        let need = |key: &str, v: Option<f64>, what: &str| -> Result<f64> {
+            match v {
+                Some(v) => length(&format!("plate.{key}"), v, what),
+                None => Err(self.err(
+                    &format!("plate.{key}"),
+                    format!("a {kind} needs `{key} = <{what}>` under [plate]"),
+                )),
+            }
+        };
+        let shape = match kind {
+            "rectangle" => {
+                refuse(&[
+                    ("radius", p.radius.is_some()),
+                    ("inner_radius", p.inner_radius.is_some()),
+                    ("outer_radius", p.outer_radius.is_some()),
+                ])?;
+                let width_m = need("width", p.width, "the width")?;
+                match &p.height {
+                    None => {
+                        return Err(self.err(
+                            "plate.height",
+                            "a rectangle needs `height = <the height>` under [plate] (or \
+                             \"infinite\" for a long strip)",
+                        ));
+                    }
+                    Some(NumberOrWord::Number(h)) => Shape::Rectangle {
+                        width_m,
+                        height_m: length("plate.height", *h, "the height")?,
+                    },
+                    Some(NumberOrWord::Word(w)) if w == "infinite" => Shape::Strip { width_m },
+                    Some(NumberOrWord::Word(w)) => {
+                        return Err(self.err(
+                            "plate.height",
+                            format!(
+                                "`{w}` is not a height; give a number or \"infinite\" for a long \
+                                 strip"
+                            ),
+                        ));
+                    }
+                }
+            }
+            "disk" => {
+                refuse(&[
+                    ("width", p.width.is_some()),
+                    ("height", p.height.is_some()),
+                    ("inner_radius", p.inner_radius.is_some()),
+                    ("outer_radius", p.outer_radius.is_some()),
+                ])?;
+                Shape::Disk {
+                    radius_m: need("radius", p.radius, "the radius")?,
+                }
+            }
+            "annulus" => {
+                refuse(&[
+                    ("width", p.width.is_some()),
+                    ("height", p.height.is_some()),
+                    ("radius", p.radius.is_some()),
+                ])?;
+                let inner_m = need("inner_radius", p.inner_radius, "the inner radius")?;
+                let outer_m = need("outer_radius", p.outer_radius, "the outer radius")?;
+                if outer_m <= inner_m {
+                    return Err(self.err(
+                        "plate.outer_radius",
+                        "the outer radius must be larger than the inner radius",
+                    ));
+                }
+                Shape::Annulus { inner_m, outer_m }
+            }
+            other => {
                 return Err(self.err(
-                    "plate.height",
+                    "plate.shape",
                     format!(
-                        "`{w}` is not a height; give a number or \"infinite\" for a long strip"
+                        "unknown shape `{other}`; use \"rectangle\" (the default: width and \
+                         height), \"disk\" (radius) or \"annulus\" (inner_radius, outer_radius)"
                     ),
                 ));
             }
@@ -371,7 +452,7 @@ impl Checker<'_> {
                 crate::plausible::conductivity(k).map_err(|m| self.err("plate.conductivity", m))?;
             }
         }
-        let mut conditions: [Option<EdgeCondition>; 4] = [None, None, None, None];
+        let mut conditions: Vec<(Edge, EdgeCondition)> = Vec::new();
         let mut profiles = Vec::new();
         let mut profiles_read_as = Vec::new();
         let raw_edges = [
@@ -379,18 +460,38 @@ impl Checker<'_> {
             (Edge::Right, raw.edges.right),
             (Edge::Top, raw.edges.top),
             (Edge::Left, raw.edges.left),
+            (Edge::Inner, raw.edges.inner),
+            (Edge::Outer, raw.edges.outer),
+            (Edge::Rim, raw.edges.rim),
         ];
         for (edge, raw_edge) in raw_edges {
             if let Some(r) = raw_edge {
+                if !shape.has_edge(edge) {
+                    let names: Vec<&str> = shape.edges().iter().map(|e| e.name()).collect();
+                    return Err(self.err(
+                        &format!("edges.{edge}"),
+                        if matches!(shape, Shape::Strip { .. }) && edge == Edge::Top {
+                            "a long strip (height = \"infinite\") has no top edge; remove \
+                             [edges.top]"
+                                .to_string()
+                        } else {
+                            format!(
+                                "a {kind} has no {edge} edge; its edges are {} (remove \
+                                 [edges.{edge}] or change `shape`)",
+                                names.join(", ")
+                            )
+                        },
+                    ));
+                }
                 let (cond, file) = self.edge(edge, r, &units, &shape)?;
-                conditions[edge.index()] = Some(cond);
+                conditions.push((edge, cond));
                 if let Some((f, how)) = file {
                     profiles.push((edge, f));
                     profiles_read_as.push(how);
                 }
             }
         }
-        let plate = Plate::new(shape, conditions, raw.plate.conductivity)
+        let plate = Plate::from_edges(shape, &conditions, raw.plate.conductivity)
             .map_err(|e| e.in_file(self.path, |f| self.spans.line_for_field(f)))?;
         let thermocouple = raw
             .thermocouple
@@ -525,7 +626,11 @@ impl Checker<'_> {
                     let file_path = base.join(&file);
                     let length = shape.edge_length(edge).map(|m| units.length_from_m(m));
                     let (profile, how) = csv_files::read_edge_profile_as(
-                        &file_path, units, edge, length,
+                        &file_path,
+                        units,
+                        edge,
+                        length,
+                        shape.radius_of(edge),
                     )
                     .map_err(|e| match e {
                         Error::Io { source, .. } => self.err(

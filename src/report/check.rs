@@ -335,6 +335,8 @@ impl CheckReport {
                 shape: match shape {
                     Shape::Rectangle { .. } => "rectangle",
                     Shape::Strip { .. } => "strip",
+                    Shape::Disk { .. } => "disk",
+                    Shape::Annulus { .. } => "annulus",
                 },
                 width: len(shape.width()),
                 height: shape.height().map(len),

@@ -2,7 +2,7 @@
 //! written with a fixed precision, missing or non-finite values left empty (CSV) or `null`
 //! (JSON), and text escaped for HTML and SVG.
 
-use crate::geometry::Edge;
+use crate::geometry::{Edge, Shape};
 use crate::units::{LengthUnit, Units};
 use serde_json::Value;
 
@@ -74,6 +74,61 @@ impl CaseUnits {
             LengthUnit::Millimetre => 1,
             LengthUnit::Metre => 4,
             LengthUnit::Inch => 3,
+        }
+    }
+
+    /// A position along `edge` (metres along a straight edge, arc length along a circle) in
+    /// the unit its files use: the case length unit, or degrees counter-clockwise from `+x`
+    /// on a circle.
+    pub(crate) fn pos(&self, shape: &Shape, edge: Edge, s: f64) -> f64 {
+        match shape.radius_of(edge) {
+            Some(r) => (s / r).to_degrees(),
+            None => self.len(s),
+        }
+    }
+
+    /// The unit of a position along `edge` for a reader (`°` on a circle).
+    pub(crate) fn pos_symbol(&self, shape: &Shape, edge: Edge) -> &'static str {
+        if shape.radius_of(edge).is_some() {
+            "°"
+        } else {
+            self.len_symbol()
+        }
+    }
+
+    /// A position along `edge` for a reader, number only.
+    pub(crate) fn pos_num(&self, shape: &Shape, edge: Edge, s: f64) -> String {
+        if shape.radius_of(edge).is_some() {
+            fixed_or_dash(self.pos(shape, edge, s), 1)
+        } else {
+            self.len_num(s)
+        }
+    }
+
+    /// A position along `edge` for a data file (degrees to 0.001 on a circle).
+    pub(crate) fn pos_file(&self, shape: &Shape, edge: Edge, s: f64) -> String {
+        if shape.radius_of(edge).is_some() {
+            fixed(self.pos(shape, edge, s), 3)
+        } else {
+            self.len_file(s)
+        }
+    }
+
+    /// A position along `edge` as JSON.
+    pub(crate) fn pos_json(&self, shape: &Shape, edge: Edge, s: f64) -> Value {
+        if shape.radius_of(edge).is_some() {
+            rounded(self.pos(shape, edge, s), 3)
+        } else {
+            self.len_json(s)
+        }
+    }
+
+    /// A position along `edge` for a reader, with its unit (`123.4°` on a circle).
+    pub(crate) fn pos_show(&self, shape: &Shape, edge: Edge, s: f64) -> String {
+        if shape.radius_of(edge).is_some() {
+            format!("{}°", fixed_or_dash(self.pos(shape, edge, s), 1))
+        } else {
+            self.len_show(s)
         }
     }
 
@@ -154,7 +209,13 @@ impl CaseUnits {
 
 /// The coordinate that positions run along on `edge` (`docs/case-files.md`, outputs).
 pub(crate) fn edge_coordinate(edge: Edge) -> &'static str {
-    if edge.runs_along_x() { "x" } else { "y" }
+    if edge.is_circular() {
+        "angle"
+    } else if edge.runs_along_x() {
+        "x"
+    } else {
+        "y"
+    }
 }
 
 /// `v` with `decimals` decimals; empty when `v` is not finite; never `-0.000`.

@@ -341,6 +341,8 @@ fn draw_plate(root: &Area<'_>, r: &DesignResult, top: f64, plate_h: f64) -> Draw
             Edge::Top => [(px0, py0), (px1, py0)],
             Edge::Left => [(px0, py0), (px0, py1)],
             Edge::Right => [(px1, py0), (px1, py1)],
+            // round parts are drawn by their own picture
+            Edge::Inner | Edge::Outer | Edge::Rim => continue,
         };
         line(root, &seg, INK.stroke_width(5))?;
     }
@@ -427,6 +429,9 @@ fn edge_title(e: Edge) -> String {
         Edge::Top => ("Top", "y = height"),
         Edge::Left => ("Left", "x = 0"),
         Edge::Right => ("Right", "x = width"),
+        Edge::Inner => ("Inner", "r = inner radius"),
+        Edge::Outer => ("Outer", "r = outer radius"),
+        Edge::Rim => ("Rim", "r = radius"),
     };
     format!("{name} edge ({at})")
 }

@@ -146,7 +146,7 @@ fn map_size(w: f64, h: f64) -> (f64, f64, f64) {
 }
 
 /// Describe each edge's condition for the caption.
-fn edge_conditions(r: &EstimateResult, u: &CaseUnits) -> String {
+pub(super) fn edge_conditions(r: &EstimateResult, u: &CaseUnits) -> String {
     let parts: Vec<String> = Edge::ALL
         .iter()
         .filter_map(|&e| {
@@ -228,6 +228,7 @@ pub(crate) fn field_svg(r: &EstimateResult) -> Result<String> {
             .last()
             .map_or(w, |&y| u.len(y))
             .max(f64::MIN_POSITIVE),
+        Shape::Disk { .. } | Shape::Annulus { .. } => return super::round_plot::field_svg(r),
     };
     let (map_w, map_h, stretch) = map_size(w, h);
     let map = display_map(r, &u, map_w, map_h);
@@ -306,7 +307,7 @@ struct Layout {
     captions_top: f64,
 }
 
-fn legend_items(r: &EstimateResult) -> Vec<(Glyph, String)> {
+pub(super) fn legend_items(r: &EstimateResult) -> Vec<(Glyph, String)> {
     let mut items = vec![(Glyph::Marker(Marker::Sensor), "sensor".to_string())];
     if r.sensors.iter().any(|s| s.flag.is_some()) {
         items.push((Glyph::Marker(Marker::Flagged), "flagged sensor".to_string()));
@@ -527,6 +528,8 @@ fn draw(
             Edge::Top => [(mx0, my0), (mx1, my0)],
             Edge::Left => [(mx0, my1), (mx0, my0)],
             Edge::Right => [(mx1, my1), (mx1, my0)],
+            // never reached: round parts return early to their own picture
+            Edge::Inner | Edge::Outer | Edge::Rim => [(mx0, my1), (mx0, my1)],
         }
     };
     let unknown = r.plate.unknown_edges();
@@ -666,14 +669,16 @@ fn draw(
         let label = match e {
             Edge::Left => format!("\u{2190} {e} edge: unknown"),
             Edge::Right => format!("{e} edge: unknown \u{2192}"),
-            Edge::Bottom | Edge::Top => format!("{e} edge: unknown"),
+            Edge::Bottom | Edge::Top | Edge::Inner | Edge::Outer | Edge::Rim => {
+                format!("{e} edge: unknown")
+            }
         };
         let (w, hgt) = (bold_text_width(&label, TEXT_PX) + 6.0, 17.0);
         let [(ax, ay), (bx, by)] = edge_px(e);
         let inset = 12.0;
         let fractions: &[f64] = match e {
             Edge::Left | Edge::Right => &[0.5, 0.35, 0.65, 0.2, 0.8, 0.04, 0.96],
-            Edge::Bottom | Edge::Top => &[0.04, 0.96, 0.5, 0.25, 0.75],
+            _ => &[0.04, 0.96, 0.5, 0.25, 0.75],
         };
         let cands: Vec<Rect> = fractions
             .iter()
@@ -683,7 +688,7 @@ fn draw(
                     Edge::Bottom => Rect::anchored(x, y - inset, w, hgt, f, 1.0),
                     Edge::Top => Rect::anchored(x, y + inset, w, hgt, f, 0.0),
                     Edge::Left => Rect::anchored(x + inset, y, w, hgt, 0.0, 1.0 - f),
-                    Edge::Right => Rect::anchored(x - inset, y, w, hgt, 1.0, 1.0 - f),
+                    _ => Rect::anchored(x - inset, y, w, hgt, 1.0, 1.0 - f),
                 }
             })
             .collect();

@@ -165,9 +165,9 @@ fn cards_html(o: &mut String, r: &EstimateResult) {
         esc(&u.temp_show(h.temperature_interval[1])),
         h.edge,
         edge_coordinate(h.edge),
-        esc(&u.len_show(h.position)),
-        esc(&u.len_num(h.position_interval[0])),
-        esc(&u.len_show(h.position_interval[1])),
+        esc(&u.pos_show(r.plate.shape(), h.edge, h.position)),
+        esc(&u.pos_num(r.plate.shape(), h.edge, h.position_interval[0])),
+        esc(&u.pos_show(r.plate.shape(), h.edge, h.position_interval[1])),
     );
     match &r.exceedance {
         Some(x) => {
@@ -348,7 +348,11 @@ fn edges_table_html(o: &mut String, r: &EstimateResult) {
                 e.edge.name().to_string(),
                 u.len_num(e.resolution_length),
                 u.temp_num(t),
-                format!("{} = {}", edge_coordinate(e.edge), u.len_num(pos)),
+                format!(
+                    "{} = {}",
+                    edge_coordinate(e.edge),
+                    u.pos_num(r.plate.shape(), e.edge, pos)
+                ),
                 format!(
                     "{} / {} / {}",
                     hw(&e.lower, &e.upper),
@@ -367,8 +371,9 @@ fn edges_table_html(o: &mut String, r: &EstimateResult) {
     }
     o.push_str(
         "</table>\n<p class=\"meta\">The resolution length is the finest feature the \
-                sensors can resolve along the edge; narrower features are smoothed away. Heat \
-                flows are per unit depth of the plate.</p>\n",
+                sensors can resolve along the edge (along a circle: an arc length); narrower \
+                features are smoothed away. Heat flows are per unit depth of the plate (of a \
+                round part: per unit length of the pipe, or per unit thickness of a disk).</p>\n",
     );
 }
 
@@ -471,6 +476,16 @@ fn case_html(o: &mut String, r: &EstimateResult) {
         Shape::Strip { width_m } => {
             format!("long strip {} wide (x), no top edge", u.len_show(*width_m))
         }
+        Shape::Disk { radius_m } => format!(
+            "disk of radius {}, origin at the centre, angles counter-clockwise from +x",
+            u.len_show(*radius_m)
+        ),
+        Shape::Annulus { inner_m, outer_m } => format!(
+            "annulus (pipe wall) from radius {} to {}, origin at the centre, angles \
+             counter-clockwise from +x",
+            u.len_show(*inner_m),
+            u.len_show(*outer_m)
+        ),
     };
     let mut dl = vec![("plate", esc(&outline))];
     for e in Edge::ALL {

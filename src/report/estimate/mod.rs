@@ -19,6 +19,7 @@ mod bounds;
 mod field_plot;
 mod html;
 mod profile_plot;
+mod round_plot;
 mod summary;
 mod tables;
 

@@ -147,9 +147,9 @@ fn draw(root: &Area<'_>, r: &EstimateResult, head: &Header) -> DrawResult {
             u.temp_num(h.temperature_interval[0]),
             u.temp_num(h.temperature_interval[1]),
             edge_coordinate(h.edge),
-            u.len_show(h.position),
-            u.len_num(h.position_interval[0]),
-            u.len_num(h.position_interval[1]),
+            u.pos_show(r.plate.shape(), h.edge, h.position),
+            u.pos_num(r.plate.shape(), h.edge, h.position_interval[0]),
+            u.pos_num(r.plate.shape(), h.edge, h.position_interval[1]),
             h.edge,
             r.replicates,
             r.bootstrap_mode,
@@ -260,6 +260,9 @@ fn edge_title(e: Edge) -> String {
         Edge::Top => ("Top", "y = height"),
         Edge::Left => ("Left", "x = 0"),
         Edge::Right => ("Right", "x = width"),
+        Edge::Inner => ("Inner", "inner circle"),
+        Edge::Outer => ("Outer", "outer circle"),
+        Edge::Rim => ("Rim", "the disk's circle"),
     };
     format!("{name} edge ({at})")
 }
@@ -274,12 +277,15 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
         .filter(|v| v.is_finite())
         .fold(0.0, f64::max);
     let len_m = shape.edge_length(e.edge).unwrap_or(last_position);
-    let x_max = u.len(len_m).max(f64::MIN_POSITIVE);
+    let x_max = u.pos(shape, e.edge, len_m).max(f64::MIN_POSITIVE);
     let coord = edge_coordinate(e.edge);
 
     // Caption: the edge in bold, then what the reader needs about it.
     let title = format!("{}, reconstructed", edge_title(e.edge));
     let mut details = format!("resolution length {}", u.len_show(e.resolution_length));
+    if e.edge.is_circular() {
+        details.push_str(" of arc");
+    }
     if let Some(q) = e.heat_flow {
         details.push_str(&format!(
             "  ·  heat flow in {} W/m [{}, {}]",
@@ -335,7 +341,7 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
 
     let n = e.positions.len();
     let at = |v: &[f64], k: usize| v.get(k).map_or(f64::NAN, |&t| u.temp(t));
-    let s = |k: usize| u.len(e.positions[k]);
+    let s = |k: usize| u.pos(shape, e.edge, e.positions[k]);
 
     // Pointwise band, shaded.
     for run in runs(n, |k| {
@@ -415,7 +421,7 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
     // triangle and its name: a reader of the profile alone sees that it was left out.
     let mut flagged_at: Vec<(f64, f64, &str)> = Vec::new();
     for sensor in &r.sensors {
-        let pos = u.len(shape.position_along(e.edge, sensor.position));
+        let pos = u.pos(shape, e.edge, shape.position_along(e.edge, sensor.position));
         if (0.0..=x_max).contains(&pos) {
             let (x, y) = to_px((pos, y_lo));
             if sensor.flag.is_some() {
@@ -444,8 +450,13 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
     // The hottest point with its intervals.
     let h = &r.hottest;
     if h.edge == e.edge {
-        let (p, t) = (u.len(h.position), u.temp(h.temperature));
-        let (p0, p1) = (u.len(h.position_interval[0]), u.len(h.position_interval[1]));
+        let (p, t) = (u.pos(shape, h.edge, h.position), u.temp(h.temperature));
+        let (p0, p1) = (
+            u.pos(shape, h.edge, h.position_interval[0]),
+            u.pos(shape, h.edge, h.position_interval[1]),
+        );
+        // an arc through 0° is drawn as two pieces, to the right end and from the left end
+        let wraps = p0 > p1;
         let (t0, t1) = (
             u.temp(h.temperature_interval[0]),
             u.temp(h.temperature_interval[1]),
@@ -457,7 +468,14 @@ fn draw_edge(root: &Area<'_>, r: &EstimateResult, e: &EdgeResult, top: f64) -> D
             if p0.is_finite() && p1.is_finite() {
                 let (x0, _) = to_px((p0.max(0.0), t));
                 let (x1, _) = to_px((p1.min(x_max), t));
-                line(root, &[(x0, cy), (x1, cy)], bar)?;
+                if wraps {
+                    let (xe, _) = to_px((x_max, t));
+                    let (xs, _) = to_px((0.0, t));
+                    line(root, &[(x0, cy), (xe, cy)], bar)?;
+                    line(root, &[(xs, cy), (x1, cy)], bar)?;
+                } else {
+                    line(root, &[(x0, cy), (x1, cy)], bar)?;
+                }
                 line(root, &[(x0, cy - cap), (x0, cy + cap)], bar)?;
                 line(root, &[(x1, cy - cap), (x1, cy + cap)], bar)?;
             }
@@ -577,7 +595,7 @@ fn draw_depth_panel(
         .map(|(k, s)| {
             (
                 k,
-                u.len(shape.position_along(e.edge, s.position)),
+                u.pos(shape, e.edge, shape.position_along(e.edge, s.position)),
                 u.len(shape.depth_from(e.edge, s.position)),
             )
         })
@@ -608,7 +626,7 @@ fn draw_depth_panel(
         .x_desc(format!(
             "position along the {} edge, {coord} [{}]",
             e.edge,
-            u.len_symbol()
+            u.pos_symbol(r.plate.shape(), e.edge)
         ))
         .y_desc(format!("depth [{}]", u.len_symbol()))
         .x_labels(12)

@@ -90,7 +90,7 @@ pub(crate) fn doubt_message(r: &EstimateResult, d: &DoubtfulSensor) -> String {
         fixed(d.fault_probability, 4),
         d.edge,
         edge_coordinate(d.edge),
-        u.len_show(d.position),
+        u.pos_show(r.plate.shape(), d.edge, d.position),
         u.len_show(d.width),
         u.temp_show(d.peak_temperature),
     );
@@ -186,8 +186,11 @@ fn hottest_json(r: &EstimateResult) -> Value {
     }
     json!({
         "edge": h.edge.name(),
-        "position": u.len_json(h.position),
-        "position_interval": [u.len_json(h.position_interval[0]), u.len_json(h.position_interval[1])],
+        "position": u.pos_json(r.plate.shape(), h.edge, h.position),
+        "position_interval": [
+            u.pos_json(r.plate.shape(), h.edge, h.position_interval[0]),
+            u.pos_json(r.plate.shape(), h.edge, h.position_interval[1]),
+        ],
         "temperature": u.temp_json(h.temperature),
         "temperature_interval": [
             u.temp_json(h.temperature_interval[0]),
@@ -258,7 +261,7 @@ fn insert_edges_json(r: &EstimateResult, out: &mut Map<String, Value>) {
         edge_map(&|e| {
             Some(json!({
                 "worst": u.len_json(e.resolution_length),
-                "worst_position": u.len_json(e.resolution_worst_position),
+                "worst_position": u.pos_json(r.plate.shape(), e.edge, e.resolution_worst_position),
                 "at_hottest": u.len_json(e.resolution_at_hottest),
             }))
         }),
@@ -282,7 +285,12 @@ fn insert_edges_json(r: &EstimateResult, out: &mut Map<String, Value>) {
     out.insert(
         "heat_flow_unit".into(),
         json!(format!(
-            "{HEAT_FLOW_UNIT}, per unit depth of the plate, into the plate"
+            "{HEAT_FLOW_UNIT}, {}, into the plate",
+            if r.plate.shape().is_round() {
+                "per unit length of the pipe (or per unit thickness of a disk)"
+            } else {
+                "per unit depth of the plate"
+            }
         )),
     );
     let edges: Vec<Value> = r
@@ -293,7 +301,7 @@ fn insert_edges_json(r: &EstimateResult, out: &mut Map<String, Value>) {
             json!({
                 "edge": e.edge.name(),
                 "samples": e.positions.len(),
-                "maximum": {"position": u.len_json(pos), "temperature": u.temp_json(temp)},
+                "maximum": {"position": u.pos_json(r.plate.shape(), e.edge, pos), "temperature": u.temp_json(temp)},
                 "mean_half_width": {
                     "pointwise": u.dtemp_json(mean_half_width(&e.lower, &e.upper)),
                     "simultaneous": u.dtemp_json(
@@ -332,7 +340,7 @@ fn insert_sensors_json(r: &EstimateResult, out: &mut Map<String, Value>) {
                 "fault_probability": ratio(d.fault_probability),
                 "hot_explanation": {
                     "edge": d.edge.name(),
-                    "position": u.len_json(d.position),
+                    "position": u.pos_json(r.plate.shape(), d.edge, d.position),
                     "width": u.len_json(d.width),
                     "peak_temperature": u.temp_json(d.peak_temperature),
                     "min_gradient": d.min_gradient.map_or(Value::Null, |g| {
@@ -498,10 +506,10 @@ fn hottest_text(r: &EstimateResult, out: &mut String) {
             "{} edge, {} = {}   {conf} interval [{}, {}] {}",
             h.edge,
             edge_coordinate(h.edge),
-            u.len_show(h.position),
-            u.len_num(h.position_interval[0]),
-            u.len_num(h.position_interval[1]),
-            u.len_symbol()
+            u.pos_show(r.plate.shape(), h.edge, h.position),
+            u.pos_num(r.plate.shape(), h.edge, h.position_interval[0]),
+            u.pos_num(r.plate.shape(), h.edge, h.position_interval[1]),
+            u.pos_symbol(r.plate.shape(), h.edge)
         ),
     );
     let other_edges: Vec<String> = h
@@ -583,12 +591,13 @@ fn resolution_text(r: &EstimateResult, out: &mut String) {
             out,
             label,
             &format!(
-                "{} edge {}, the worst along it (at {} = {}); {} at the hottest point; \
+                "{} edge {}{}, the worst along it (at {} = {}); {} at the hottest point; \
                  narrower features are smoothed away",
                 e.edge,
                 u.len_show(e.resolution_length),
+                if e.edge.is_circular() { " of arc" } else { "" },
                 edge_coordinate(e.edge),
-                u.len_show(e.resolution_worst_position),
+                u.pos_show(r.plate.shape(), e.edge, e.resolution_worst_position),
                 u.len_show(e.resolution_at_hottest),
             ),
         );
@@ -693,11 +702,16 @@ fn heat_flow_text(r: &EstimateResult, out: &mut String) {
             out,
             label,
             &format!(
-                "{} edge {} {HEAT_FLOW_UNIT}   {conf} interval [{}, {}] (per unit depth){}",
+                "{} edge {} {HEAT_FLOW_UNIT}   {conf} interval [{}, {}] ({}){}",
                 edge,
                 fixed(q.value, 1),
                 fixed(q.lower, 1),
                 fixed(q.upper, 1),
+                if r.plate.shape().is_round() {
+                    "per unit length of pipe, or per unit thickness of a disk"
+                } else {
+                    "per unit depth"
+                },
                 if r.plate.convection(*edge).is_some() {
                     ", convective: -h (T - T∞) along it"
                 } else {

@@ -59,7 +59,7 @@ pub(crate) fn profile_csv(r: &EstimateResult) -> Result<Vec<u8>> {
         for (k, &s) in e.positions.iter().enumerate() {
             w.write_record([
                 e.edge.name().to_string(),
-                u.len_file(s),
+                u.pos_file(r.plate.shape(), e.edge, s),
                 u.temp_file(get(&e.estimate, k)),
                 u.temp_file(get(&e.lower, k)),
                 u.temp_file(get(&e.upper, k)),
@@ -82,19 +82,33 @@ pub(crate) fn field_csv(r: &EstimateResult) -> Result<Vec<u8>> {
     let f = &r.field;
     let nx = f.xs.len();
     let get = |v: &[f64], k: usize| v.get(k).copied().unwrap_or(f64::NAN);
+    let shape = *r.plate.shape();
+    let round = shape.is_round();
     let mut w = csv::Writer::from_writer(Vec::new());
-    w.write_record(FIELD_HEADER).map_err(csv_error)?;
-    for (j, &y) in f.ys.iter().enumerate() {
-        for (i, &x) in f.xs.iter().enumerate() {
+    if round {
+        // a round part's grid is polar: its radius and angle (degrees) follow
+        let mut header = FIELD_HEADER.to_vec();
+        header.extend(["radius", "angle"]);
+        w.write_record(header).map_err(csv_error)?;
+    } else {
+        w.write_record(FIELD_HEADER).map_err(csv_error)?;
+    }
+    for (j, &gy) in f.ys.iter().enumerate() {
+        for (i, &gx) in f.xs.iter().enumerate() {
             let k = j * nx + i;
-            w.write_record([
-                u.len_file(x),
-                u.len_file(y),
+            let p = crate::case::grid_point(&shape, gx, gy);
+            let mut row = vec![
+                u.len_file(p.x),
+                u.len_file(p.y),
                 u.temp_file(get(&f.estimate, k)),
                 u.temp_file(get(&f.lower, k)),
                 u.temp_file(get(&f.upper, k)),
-            ])
-            .map_err(csv_error)?;
+            ];
+            if round {
+                row.push(u.len_file(gy));
+                row.push(crate::report::format::fixed(gx.to_degrees(), 3));
+            }
+            w.write_record(row).map_err(csv_error)?;
         }
     }
     finish(w)
