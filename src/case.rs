@@ -362,7 +362,44 @@ impl Case {
     }
 }
 
-/// An axis-aligned rectangle of the plate, metres (`[design] allowed` and `keep_out`).
+/// A ring sector of a round part, `r_min ≤ r ≤ r_max` and the angle from `start` counter-
+/// clockwise to `end` (radians in `[0, 2π)`; `start > end` wraps through 0).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Sector {
+    /// Smallest radius, metres.
+    pub r_min: f64,
+    /// Largest radius, metres.
+    pub r_max: f64,
+    /// First angle, radians.
+    pub start: f64,
+    /// Last angle, radians.
+    pub end: f64,
+}
+
+impl Sector {
+    /// Whether `p` lies in the closed sector, with `slack` metres of tolerance on the radii
+    /// and `slack / r` radians on the angles.
+    pub fn contains(&self, p: Point, slack: f64) -> bool {
+        let r = p.x.hypot(p.y);
+        if r < self.r_min - slack || r > self.r_max + slack {
+            return false;
+        }
+        let a = crate::geometry::angle_of(p);
+        let da = if r > 0.0 {
+            slack / r
+        } else {
+            std::f64::consts::TAU
+        };
+        let tau = std::f64::consts::TAU;
+        // the angle measured from `start`, counter-clockwise, in [0, 2π)
+        let from_start = (a - self.start).rem_euclid(tau);
+        let span = (self.end - self.start).rem_euclid(tau);
+        from_start <= span + da || from_start >= tau - da
+    }
+}
+
+/// An axis-aligned rectangle of the plate, metres (`[design] allowed` and `keep_out`), or on
+/// a round part a ring sector (its `x`/`y` bounds are then the sector's bounding square).
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct Region {
     /// Smallest x, metres.
@@ -373,12 +410,50 @@ pub struct Region {
     pub y_min: f64,
     /// Largest y, metres.
     pub y_max: f64,
+    /// A ring sector instead of the rectangle (round parts).
+    pub sector: Option<Sector>,
 }
 
 impl Region {
-    /// Whether `p` lies in the closed rectangle.
+    /// Whether `p` lies in the closed rectangle (or sector).
     pub fn contains(&self, p: Point) -> bool {
-        p.x >= self.x_min && p.x <= self.x_max && p.y >= self.y_min && p.y <= self.y_max
+        self.contains_within(p, 0.0)
+    }
+
+    /// Whether `p` lies in the region grown by `slack` metres on every side.
+    pub fn contains_within(&self, p: Point, slack: f64) -> bool {
+        match &self.sector {
+            Some(s) => s.contains(p, slack),
+            None => {
+                p.x >= self.x_min - slack
+                    && p.x <= self.x_max + slack
+                    && p.y >= self.y_min - slack
+                    && p.y <= self.y_max + slack
+            }
+        }
+    }
+
+    /// The whole of a plate's bounding box: `[0, width] × [0, height]` (a strip: one width
+    /// up), or the square round a round part.
+    pub fn whole(shape: &Shape) -> Region {
+        if shape.is_round() {
+            let r = 0.5 * shape.width();
+            Region {
+                x_min: -r,
+                x_max: r,
+                y_min: -r,
+                y_max: r,
+                sector: None,
+            }
+        } else {
+            Region {
+                x_min: 0.0,
+                x_max: shape.width(),
+                y_min: 0.0,
+                y_max: shape.height().unwrap_or(shape.width()),
+                sector: None,
+            }
+        }
     }
 }
 

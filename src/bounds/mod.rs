@@ -753,6 +753,33 @@ pub fn strict_bounds(
     })
 }
 
+/// Refuse a gradient limit on a round part: the strict bounds are built on the straight
+/// edges' eigenfunctions and are not available for disks and annuli in this version. `from`
+/// names where the limit came from (`--max-gradient`, or the case's `[bounds]`).
+///
+/// # Errors
+/// [`Error::Invalid`] naming the setting.
+pub fn check_supported(case: &crate::case::Case, override_k_per_m: Option<f64>) -> Result<()> {
+    if !case.plate.shape().is_round() {
+        return Ok(());
+    }
+    let message = "strict bounds under a gradient limit are not available for round parts \
+                   (disk, annulus) in this version; remove the limit (the estimate, its bands \
+                   and the hottest point do not need it)";
+    if override_k_per_m.is_some() {
+        return Err(Error::invalid_field("--max-gradient", message));
+    }
+    if case.bounds.max_gradient_k_per_m.is_some() {
+        return Err(Error::invalid_at(
+            &case.files.plate,
+            crate::io::plate_line_of(&case.files.plate, "bounds.max_gradient"),
+            Some("bounds.max_gradient"),
+            message,
+        ));
+    }
+    Ok(())
+}
+
 /// The strict bounds of an estimate, never an error: a failure is recorded in
 /// [`BoundsResult::failure`] so that the estimate itself still stands.
 ///

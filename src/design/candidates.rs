@@ -45,12 +45,7 @@ impl Constraints {
     /// The constraints of a case's `[design]` section.
     pub fn new(shape: Shape, settings: &DesignSettings) -> Constraints {
         let allowed = if settings.allowed.is_empty() {
-            vec![Region {
-                x_min: 0.0,
-                x_max: shape.width(),
-                y_min: 0.0,
-                y_max: shape.height().unwrap_or(shape.width()),
-            }]
+            vec![Region::whole(&shape)]
         } else {
             settings.allowed.clone()
         };
@@ -70,19 +65,20 @@ impl Constraints {
             return false;
         }
         let d = self.edge_distance_m - eps;
-        let far_from_edges = p.x >= d
-            && self.shape.width() - p.x >= d
-            && p.y >= d
-            && self.shape.height().is_none_or(|h| h - p.y >= d);
-        let grown = |r: &Region, e: f64| Region {
-            x_min: r.x_min - e,
-            x_max: r.x_max + e,
-            y_min: r.y_min - e,
-            y_max: r.y_max + e,
+        let far_from_edges = if self.shape.is_round() {
+            self.shape
+                .edges()
+                .iter()
+                .all(|&e| self.shape.depth_from(e, p) >= d)
+        } else {
+            p.x >= d
+                && self.shape.width() - p.x >= d
+                && p.y >= d
+                && self.shape.height().is_none_or(|h| h - p.y >= d)
         };
         far_from_edges
-            && self.allowed.iter().any(|r| grown(r, eps).contains(p))
-            && !self.keep_out.iter().any(|r| grown(r, eps).contains(p))
+            && self.allowed.iter().any(|r| r.contains_within(p, eps))
+            && !self.keep_out.iter().any(|r| r.contains_within(p, eps))
     }
 
     /// Whether two sensors at `a` and `b` are far enough apart.
@@ -99,20 +95,30 @@ impl Constraints {
             .iter()
             .map(|r| r.x_min)
             .fold(f64::INFINITY, f64::min);
-        let x1 = self.allowed.iter().map(|r| r.x_max).fold(0.0, f64::max);
+        let x1 = self
+            .allowed
+            .iter()
+            .map(|r| r.x_max)
+            .fold(f64::NEG_INFINITY, f64::max);
         let y0 = self
             .allowed
             .iter()
             .map(|r| r.y_min)
             .fold(f64::INFINITY, f64::min);
-        let y1 = self.allowed.iter().map(|r| r.y_max).fold(0.0, f64::max);
+        let y1 = self
+            .allowed
+            .iter()
+            .map(|r| r.y_max)
+            .fold(f64::NEG_INFINITY, f64::max);
         let n = 200;
         let (dx, dy) = ((x1 - x0) / n as f64, (y1 - y0) / n as f64);
         let mut inside = 0usize;
         for i in 0..n {
             for j in 0..n {
                 let p = Point::new(x0 + (i as f64 + 0.5) * dx, y0 + (j as f64 + 0.5) * dy);
-                inside += usize::from(self.allowed.iter().any(|r| r.contains(p)));
+                inside += usize::from(
+                    self.shape.contains(p) && self.allowed.iter().any(|r| r.contains(p)),
+                );
             }
         }
         inside as f64 * dx * dy
@@ -137,11 +143,22 @@ impl Constraints {
     /// The feasible points of the grid `x = i h`, `y = j h`, ordered by y then x.
     pub fn grid(&self, h: f64) -> Vec<Point> {
         let y_top = self.allowed.iter().map(|r| r.y_max).fold(0.0, f64::max);
-        let nx = (self.shape.width() / h).floor() as usize;
-        let ny = (y_top / h).floor() as usize;
+        // a round part is centred on the origin: its grid runs over negative coordinates too
+        let (i0, j0, nx, ny) = if self.shape.is_round() {
+            let r = 0.5 * self.shape.width();
+            let n = (r / h).floor() as i64;
+            (-n, -n, n, n)
+        } else {
+            (
+                1,
+                1,
+                (self.shape.width() / h).floor() as i64,
+                (y_top / h).floor() as i64,
+            )
+        };
         let mut out = Vec::new();
-        for j in 1..=ny {
-            for i in 1..=nx {
+        for j in j0..=ny {
+            for i in i0..=nx {
                 let p = Point::new(i as f64 * h, j as f64 * h);
                 if self.feasible(p) {
                     out.push(p);
@@ -182,21 +199,44 @@ pub fn uniform_layout(
     let y1 = b.iter().map(|r| r.y_max).fold(0.0, f64::max);
     let y1 = constraints.shape.height().map_or(y1, |h| y1.min(h - d)) + eps;
     let aspect = (x1 - x0) / (y1 - y0).max(f64::MIN_POSITIVE);
-    let (nx, ny) = (1..=count)
-        .filter(|ny| count % ny == 0)
-        .map(|ny| (count / ny, ny))
-        .min_by(|a, b| {
-            let da = ((a.0 as f64 / a.1 as f64) / aspect).ln().abs();
-            let db = ((b.0 as f64 / b.1 as f64) / aspect).ln().abs();
-            da.total_cmp(&db)
-        })?;
+    let targets: Vec<Point> = if constraints.shape.is_round() {
+        // a round part: one ring, evenly round the circle, midway across the wall (two
+        // thirds of the way out on a disk)
+        let shape = &constraints.shape;
+        let outer = 0.5 * shape.width();
+        let radius = match shape.radius_of(crate::geometry::Edge::Inner) {
+            Some(inner) => 0.5 * (inner + outer),
+            None => 2.0 * outer / 3.0,
+        };
+        (0..count)
+            .map(|k| {
+                let a = std::f64::consts::TAU * (k as f64 + 0.5) / count as f64;
+                Point::new(radius * a.cos(), radius * a.sin())
+            })
+            .collect()
+    } else {
+        let (nx, ny) = (1..=count)
+            .filter(|ny| count % ny == 0)
+            .map(|ny| (count / ny, ny))
+            .min_by(|a, b| {
+                let da = ((a.0 as f64 / a.1 as f64) / aspect).ln().abs();
+                let db = ((b.0 as f64 / b.1 as f64) / aspect).ln().abs();
+                da.total_cmp(&db)
+            })?;
+        (0..ny)
+            .flat_map(|j| {
+                (0..nx).map(move |i| {
+                    Point::new(
+                        x0 + (i as f64 + 0.5) * (x1 - x0) / nx as f64,
+                        y0 + (j as f64 + 0.5) * (y1 - y0) / ny as f64,
+                    )
+                })
+            })
+            .collect()
+    };
     let mut chosen: Vec<usize> = Vec::with_capacity(count);
-    for j in 0..ny {
-        for i in 0..nx {
-            let target = Point::new(
-                x0 + (i as f64 + 0.5) * (x1 - x0) / nx as f64,
-                y0 + (j as f64 + 0.5) * (y1 - y0) / ny as f64,
-            );
+    {
+        for target in targets {
             let best = candidates
                 .iter()
                 .enumerate()
@@ -255,12 +295,14 @@ mod tests {
                 x_max: 0.18,
                 y_min: 0.0,
                 y_max: 0.014,
+                sector: None,
             }],
             keep_out: vec![Region {
                 x_min: 0.055,
                 x_max: 0.065,
                 y_min: 0.0,
                 y_max: 0.028,
+                sector: None,
             }],
             edge_distance_m: 0.004,
             sensor_spacing_m: 0.01,

@@ -801,9 +801,9 @@ impl ForwardModel {
                     return Some(EdgeDescription {
                         edge,
                         condition: condition.name(),
-                        basis: terms.map(|_| {
-                            "Fourier modes round the circle: 1, cos nθ, sin nθ (periodic)"
-                        }),
+                        basis: terms.map(
+                            |_| "Fourier modes round the circle: 1, cos nθ, sin nθ (periodic)",
+                        ),
                         decay: terms.map(|_| {
                             if edge == Edge::Rim {
                                 "(r/R)^n toward the centre (the Poisson series of the disk)"

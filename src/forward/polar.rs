@@ -182,7 +182,9 @@ impl PolarModel {
         let mut sides = Vec::new();
         let mut next = 0;
         for edge in shape.edges() {
-            let radius = shape.radius_of(edge).expect("a round plate's edges are circles");
+            let radius = shape
+                .radius_of(edge)
+                .expect("a round plate's edges are circles");
             let condition = plate.condition(edge).expect("validated plate");
             let (cond, known, unknown) = match condition {
                 EdgeCondition::Unknown => {
@@ -245,7 +247,13 @@ impl PolarModel {
         }
         let mf = m as f64;
         let u1 = (r / b).powi(m as i32);
-        let d1 = if r > 0.0 { mf * u1 / r } else if m == 1 { 1.0 / b } else { 0.0 };
+        let d1 = if r > 0.0 {
+            mf * u1 / r
+        } else if m == 1 {
+            1.0 / b
+        } else {
+            0.0
+        };
         if self.disk {
             return [(u1, d1), (0.0, 0.0)];
         }
@@ -292,7 +300,11 @@ impl PolarModel {
             out.coeff[1] = (1.0 / (row[0] * self.data_scale(side, m)), 0.0);
             return out;
         }
-        let rows: Vec<[f64; 2]> = self.sides.iter().map(|s| self.condition_row(s, m)).collect();
+        let rows: Vec<[f64; 2]> = self
+            .sides
+            .iter()
+            .map(|s| self.condition_row(s, m))
+            .collect();
         let det = rows[0][0] * rows[1][1] - rows[0][1] * rows[1][0];
         for (k, side) in self.sides.iter().enumerate() {
             // data 1 on side k (scaled by its row scale), 0 on the other

@@ -334,7 +334,11 @@ impl Shape {
     /// `[start, end]` counter-clockwise, so that `start > end` when it wraps through 0 (for
     /// instance 350° to 12°). `None` for no positions.
     pub fn position_hull(&self, edge: Edge, positions: &[f64]) -> Option<[f64; 2]> {
-        let mut p: Vec<f64> = positions.iter().copied().filter(|v| v.is_finite()).collect();
+        let mut p: Vec<f64> = positions
+            .iter()
+            .copied()
+            .filter(|v| v.is_finite())
+            .collect();
         if p.is_empty() {
             return None;
         }

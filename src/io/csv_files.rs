@@ -732,9 +732,9 @@ pub(crate) fn read_truth_profiles(path: &Path, case: &Case) -> Result<Vec<(Edge,
                     row.line,
                     "edge",
                     format!(
-                "`{name}` is not an edge; use {}",
-                shape_edge_names(case.plate.shape())
-            ),
+                        "`{name}` is not an edge; use {}",
+                        shape_edge_names(case.plate.shape())
+                    ),
                 )
             })?;
             if !unknown.contains(&edge) {

@@ -164,8 +164,11 @@ struct RawDesign {
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
 struct RawRegion {
-    x: [f64; 2],
-    y: [f64; 2],
+    x: Option<[f64; 2]>,
+    y: Option<[f64; 2]>,
+    /// Round parts: radii and angles (degrees) of a ring sector.
+    radius: Option<[f64; 2]>,
+    angle: Option<[f64; 2]>,
 }
 
 /// A value that may be a number or a word (`height = "infinite"`, `strength = "gcv"`).
@@ -363,7 +366,9 @@ impl Checker<'_> {
             match keys.iter().find(|(_, given)| *given) {
                 Some((k, _)) => Err(self.err(
                     &format!("plate.{k}"),
-                    format!("a {kind} has no `{k}`; remove it (or set `shape` to the outline meant)"),
+                    format!(
+                        "a {kind} has no `{k}`; remove it (or set `shape` to the outline meant)"
+                    ),
                 )),
                 None => Ok(()),
             }
@@ -1045,10 +1050,15 @@ impl Checker<'_> {
             raw.edge_distance,
             "the minimum distance from the edges",
         )?;
-        let half = 0.5
-            * shape
-                .height()
-                .map_or(shape.width(), |h| h.min(shape.width()));
+        let half = match *shape {
+            Shape::Annulus { inner_m, outer_m } => 0.5 * (outer_m - inner_m),
+            Shape::Disk { radius_m } => radius_m,
+            _ => {
+                0.5 * shape
+                    .height()
+                    .map_or(shape.width(), |h| h.min(shape.width()))
+            }
+        };
         if edge_distance_m >= half {
             return Err(self.err(
                 "design.edge_distance",
@@ -1126,9 +1136,26 @@ impl Checker<'_> {
         let lu = units.length;
         let mut out = Vec::new();
         for (i, r) in list.unwrap_or_default().into_iter().enumerate() {
-            let [x0, x1] = r.x;
-            let [y0, y1] = r.y;
             let n = i + 1;
+            if shape.is_round() {
+                out.push(self.sector(field, n, &r, units, shape)?);
+                continue;
+            }
+            if r.radius.is_some() || r.angle.is_some() {
+                return Err(self.err(
+                    field,
+                    format!(
+                        "region {n}: `radius` and `angle` describe a ring sector of a round part; \
+                         on this plate write {{ x = [x_min, x_max], y = [y_min, y_max] }}"
+                    ),
+                ));
+            }
+            let (Some([x0, x1]), Some([y0, y1])) = (r.x, r.y) else {
+                return Err(self.err(
+                    field,
+                    format!("rectangle {n}: write it {{ x = [x_min, x_max], y = [y_min, y_max] }}"),
+                ));
+            };
             if ![x0, x1, y0, y1].iter().all(|v| v.is_finite()) {
                 return Err(self.err(
                     field,
@@ -1160,9 +1187,92 @@ impl Checker<'_> {
                 x_max: units.length_to_m(x1),
                 y_min: units.length_to_m(y0),
                 y_max: units.length_to_m(y1),
+                sector: None,
             });
         }
         Ok(out)
+    }
+
+    /// A ring sector of a round part, `{ radius = [r_min, r_max], angle = [start, end] }`
+    /// (degrees counter-clockwise from +x; `start > end` wraps through 0°; `angle` left out:
+    /// the whole ring), checked against the part and converted to metres and radians.
+    fn sector(
+        &self,
+        field: &str,
+        n: usize,
+        r: &RawRegion,
+        units: &Units,
+        shape: &Shape,
+    ) -> Result<Region> {
+        if r.x.is_some() || r.y.is_some() {
+            return Err(self.err(
+                field,
+                format!(
+                    "region {n}: on a round part a region is a ring sector, written \
+                     {{ radius = [r_min, r_max], angle = [start, end] }} (degrees, \
+                     counter-clockwise from +x)"
+                ),
+            ));
+        }
+        let Some([r0, r1]) = r.radius else {
+            return Err(self.err(
+                field,
+                format!("region {n}: give its radii, radius = [r_min, r_max]"),
+            ));
+        };
+        let [a0, a1] = r.angle.unwrap_or([0.0, 360.0]);
+        if ![r0, r1, a0, a1].iter().all(|v| v.is_finite()) || !(r0 >= 0.0 && r0 < r1) {
+            return Err(self.err(
+                field,
+                format!(
+                    "region {n}: the radii must be finite with 0 ≤ r_min < r_max; found \
+                     radius = [{r0}, {r1}]"
+                ),
+            ));
+        }
+        if !(0.0..=360.0).contains(&a0) || !(0.0..=360.0).contains(&a1) {
+            return Err(self.err(
+                field,
+                format!(
+                    "region {n}: angles are degrees from 0 to 360, counter-clockwise from +x; \
+                     found angle = [{a0}, {a1}]"
+                ),
+            ));
+        }
+        let outer = units.length_from_m(0.5 * shape.width());
+        if r1 > outer * (1.0 + 1e-12) {
+            return Err(self.err(
+                field,
+                format!(
+                    "region {n} reaches outside the part: radius {r1} beyond the outer radius \
+                     {outer} {}",
+                    units.length
+                ),
+            ));
+        }
+        let (r_min, r_max) = (units.length_to_m(r0), units.length_to_m(r1));
+        // a full turn stays a full turn (360 is not folded onto 0)
+        let full = (a1 - a0).abs() >= 360.0;
+        let (start, end) = if full {
+            (0.0, std::f64::consts::TAU * (1.0 - 1e-15))
+        } else {
+            (
+                a0.to_radians().rem_euclid(std::f64::consts::TAU),
+                a1.to_radians().rem_euclid(std::f64::consts::TAU),
+            )
+        };
+        Ok(Region {
+            x_min: -r_max,
+            x_max: r_max,
+            y_min: -r_max,
+            y_max: r_max,
+            sector: Some(crate::case::Sector {
+                r_min,
+                r_max,
+                start,
+                end,
+            }),
+        })
     }
 
     /// Where the design's candidate positions come from: `candidate_spacing`, a

@@ -55,11 +55,18 @@ struct UnitsReport {
 
 #[derive(Debug, Serialize)]
 struct PlateReport {
-    /// `rectangle` or `strip`.
+    /// `rectangle`, `strip`, `disk` or `annulus`.
     shape: &'static str,
+    /// The outer diameter of a round part.
     width: f64,
-    /// `None` for a long strip.
+    /// `None` for a long strip; the outer diameter of a round part.
     height: Option<f64>,
+    /// A disk's radius, an annulus's outer radius.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    radius: Option<f64>,
+    /// An annulus's inner radius.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    inner_radius: Option<f64>,
     /// W/(m K).
     conductivity: Option<f64>,
 }
@@ -271,10 +278,15 @@ impl CheckReport {
         let shape = case.plate.shape();
         let len = |m: f64| u.length_from_m(m);
         let unknown = case.plate.unknown_edges();
-        let edges = Edge::ALL
-            .into_iter()
-            .map(|edge| edge_report(case, edge))
-            .collect();
+        // a rectangle or strip lists its four sides (a strip's missing top as absent)
+        let edges = if shape.is_round() {
+            shape.edges()
+        } else {
+            Edge::STRAIGHT.to_vec()
+        }
+        .into_iter()
+        .map(|edge| edge_report(case, edge))
+        .collect();
         let sensors = case
             .sensors
             .iter()
@@ -340,6 +352,8 @@ impl CheckReport {
                 },
                 width: len(shape.width()),
                 height: shape.height().map(len),
+                radius: shape.is_round().then(|| len(0.5 * shape.width())),
+                inner_radius: shape.radius_of(Edge::Inner).map(len),
                 conductivity: case.plate.conductivity(),
             },
             edges,
@@ -413,6 +427,43 @@ impl CheckReport {
         let lu = self.units.length;
         let tu = self.units.temperature;
         let p = &self.plate;
+        match (p.shape, p.radius, p.inner_radius) {
+            ("disk", Some(r), _) => {
+                let _ = writeln!(
+                    s,
+                    "Plate: disk of radius {} {lu}, origin at the centre; positions along the rim \
+                     are angles in degrees, counter-clockwise from +x",
+                    num(r)
+                );
+            }
+            ("annulus", Some(b), Some(a)) => {
+                let _ = writeln!(
+                    s,
+                    "Plate: annulus (pipe wall) from radius {} {lu} to {} {lu} ({} {lu} thick), \
+                     origin at the centre; positions along the circles are angles in degrees, \
+                     counter-clockwise from +x",
+                    num(a),
+                    num(b),
+                    num(b - a)
+                );
+            }
+            _ => self.rectangle_text(s),
+        }
+        let _ = writeln!(s, "Units: length {lu}, temperature {tu}");
+        match p.conductivity {
+            Some(k) => {
+                let _ = writeln!(s, "Conductivity: {} W/(m K)", num(k));
+            }
+            None => {
+                let _ = writeln!(s, "Conductivity: not given (no heat-flow outputs)");
+            }
+        }
+        let _ = writeln!(s);
+    }
+
+    fn rectangle_text(&self, s: &mut String) {
+        let lu = self.units.length;
+        let p = &self.plate;
         match p.height {
             Some(h) => {
                 let _ = writeln!(
@@ -431,16 +482,6 @@ impl CheckReport {
                 );
             }
         }
-        let _ = writeln!(s, "Units: length {lu}, temperature {tu}");
-        match p.conductivity {
-            Some(k) => {
-                let _ = writeln!(s, "Conductivity: {} W/(m K)", num(k));
-            }
-            None => {
-                let _ = writeln!(s, "Conductivity: not given (no heat-flow outputs)");
-            }
-        }
-        let _ = writeln!(s);
     }
 
     /// Each edge with its length and condition, then the unknown edges.
@@ -449,7 +490,13 @@ impl CheckReport {
         let tu = self.units.temperature;
         let _ = writeln!(s, "Edges");
         for e in &self.edges {
-            let along = if e.edge.runs_along_x() { "x" } else { "y" };
+            let along = if e.edge.is_circular() {
+                "the circle"
+            } else if e.edge.runs_along_x() {
+                "x"
+            } else {
+                "y"
+            };
             let length = match e.length {
                 Some(l) => format!("{} {lu}", num(l)),
                 None => "infinite".to_string(),
@@ -521,8 +568,13 @@ impl CheckReport {
             format!("y [{lu}]"),
         ];
         for e in &self.unknown_edges {
-            header.push(format!("depth below {e} [{lu}]"));
-            header.push("/ edge length".to_string());
+            if e.is_circular() {
+                header.push(format!("radial distance from {e} [{lu}]"));
+                header.push("/ circumference".to_string());
+            } else {
+                header.push(format!("depth below {e} [{lu}]"));
+                header.push("/ edge length".to_string());
+            }
         }
         rows.push(header);
         for sr in &self.sensors {

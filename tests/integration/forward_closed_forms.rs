@@ -18,7 +18,7 @@ fn model(plate: &Plate) -> ForwardModel {
 fn square_centre_is_the_mean_of_its_edges() {
     let (t0, t1) = (291.4, 347.9);
     let side = 0.083;
-    for hot in Edge::ALL {
+    for hot in Edge::STRAIGHT {
         let mut conditions = [fixed(t0), fixed(t0), fixed(t0), fixed(t0)];
         conditions[hot.index()] = fixed(t1);
         let plate = Plate::new(

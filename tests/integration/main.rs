@@ -25,6 +25,7 @@ mod first_hour;
 mod forward_closed_forms;
 mod forward_convective;
 mod forward_fem_reference;
+mod forward_polar;
 mod forward_properties;
 mod h_calibration;
 mod hard_inputs;

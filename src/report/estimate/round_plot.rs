@@ -10,8 +10,8 @@ use crate::estimate::EstimateResult;
 use crate::geometry::Point;
 use crate::report::contour::{contour, levels};
 use crate::report::draw::{
-    AXIS_PX, Anchor, Area, DrawResult, GREY, INK, LEGEND_ROW_H, Marker, PLOT_SAFETY_NOTE,
-    TEXT_PX, TITLE_PX, TextOpts, label_box, legend, legend_rows, line, marker, polygon, rect, rgb,
+    AXIS_PX, Anchor, Area, DrawResult, GREY, INK, LEGEND_ROW_H, Marker, PLOT_SAFETY_NOTE, TEXT_PX,
+    TITLE_PX, TextOpts, label_box, legend, legend_rows, line, marker, polygon, rect, rgb,
     sensor_marker, text,
 };
 use crate::report::format::{CaseUnits, tick};
@@ -168,10 +168,16 @@ fn draw(
         let (fa, fr) = (angles.len(), radii.len());
         let mut z = Vec::with_capacity(fa * fr);
         for jj in 0..fr {
-            let (j, tj) = (jj / UPSAMPLE.1, (jj % UPSAMPLE.1) as f64 / UPSAMPLE.1 as f64);
+            let (j, tj) = (
+                jj / UPSAMPLE.1,
+                (jj % UPSAMPLE.1) as f64 / UPSAMPLE.1 as f64,
+            );
             let j1 = (j + 1).min(nr - 1);
             for ii in 0..fa {
-                let (i, ti) = (ii / UPSAMPLE.0, (ii % UPSAMPLE.0) as f64 / UPSAMPLE.0 as f64);
+                let (i, ti) = (
+                    ii / UPSAMPLE.0,
+                    (ii % UPSAMPLE.0) as f64 / UPSAMPLE.0 as f64,
+                );
                 let i1 = (i + 1).min(na);
                 let g = |i: usize, j: usize| grid_z[j * (na + 1) + i];
                 let lo = g(i, j) + (g(i1, j) - g(i, j)) * ti;
