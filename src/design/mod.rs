@@ -297,23 +297,26 @@ pub fn apply_defaults(case: &mut Case, variation_k: Option<f64>) -> Result<Vec<S
     let ds = &mut case.design;
     if !ds.present {
         let shape = case.plate.shape();
-        let side = shape
-            .height()
-            .map_or(shape.width(), |h| h.min(shape.width()));
+        let side = shape.smaller_side();
+        let side_name = match shape {
+            crate::geometry::Shape::Annulus { .. } => "the wall thickness",
+            crate::geometry::Shape::Disk { .. } => "the disk's diameter",
+            _ => "the plate's smaller side",
+        };
         ds.edge_distance_m = DEFAULT_EDGE_DISTANCE_FRACTION * side;
         ds.sensor_spacing_m = DEFAULT_SPACING_FRACTION * side;
         used.push(
             "no [design] section in plate.toml: sensors may go anywhere on the plate".to_string(),
         );
         used.push(format!(
-            "minimum distance from the edges {} ({:.0} % of the plate's smaller side; set \
-             [design] edge_distance to the closest a hole can really come)",
+            "minimum distance from the edges {} ({:.0} % of {side_name}; set [design] \
+             edge_distance to the closest a hole can really come)",
             len(ds.edge_distance_m),
             100.0 * DEFAULT_EDGE_DISTANCE_FRACTION
         ));
         used.push(format!(
-            "minimum spacing between sensors {} ({:.0} % of the plate's smaller side; set \
-             [design] sensor_spacing)",
+            "minimum spacing between sensors {} ({:.0} % of {side_name}; set [design] \
+             sensor_spacing)",
             len(ds.sensor_spacing_m),
             100.0 * DEFAULT_SPACING_FRACTION
         ));

@@ -209,6 +209,15 @@ impl Shape {
         }
     }
 
+    /// The plate's smaller extent, metres: the smaller side of a rectangle, a strip's width,
+    /// an annulus's wall thickness, a disk's diameter (the scale of design defaults).
+    pub fn smaller_side(&self) -> f64 {
+        match *self {
+            Shape::Annulus { inner_m, outer_m } => outer_m - inner_m,
+            _ => self.height().map_or(self.width(), |h| h.min(self.width())),
+        }
+    }
+
     /// Whether the outline is round (a disk or an annulus, origin at the centre).
     pub fn is_round(&self) -> bool {
         matches!(self, Shape::Disk { .. } | Shape::Annulus { .. })

@@ -491,11 +491,11 @@ impl CheckReport {
         let _ = writeln!(s, "Edges");
         for e in &self.edges {
             let along = if e.edge.is_circular() {
-                "the circle"
+                "circle"
             } else if e.edge.runs_along_x() {
-                "x"
+                "along x"
             } else {
-                "y"
+                "along y"
             };
             let length = match e.length {
                 Some(l) => format!("{} {lu}", num(l)),
@@ -547,7 +547,7 @@ impl CheckReport {
             let head = if e.condition == "absent" {
                 String::new()
             } else {
-                format!("(along {along}, {length})")
+                format!("({along}, {length})")
             };
             let _ = writeln!(s, "  {:<7}{head:<24}{what}", e.edge.name());
         }

@@ -24,6 +24,7 @@ mod finite_answers;
 mod first_hour;
 mod forward_closed_forms;
 mod forward_convective;
+mod forward_fem_polar;
 mod forward_fem_reference;
 mod forward_polar;
 mod forward_properties;

@@ -49,7 +49,7 @@ fn score_json(r: &DesignResult, s: &LayoutScore) -> Value {
         "edge_rms_sd": u.dtemp_json(s.edge_mean_variance.sqrt()),
         "edge_mean_variance": significant(u.dtemp(1.0).powi(2) * s.edge_mean_variance, 6),
         "worst_sd": u.dtemp_json(s.worst_sd),
-        "worst_at": {"edge": s.worst_at.0, "position": u.len_json(s.worst_at.1)},
+        "worst_at": {"edge": s.worst_at.0, "position": u.pos_json(r.plate.shape(), s.worst_at.0, s.worst_at.1)},
         "condition_number": s.condition_number.map_or(Value::Null, |c| significant(c, 4)),
         "resolution_length": s.edges.iter().map(|e| (e.edge.name().to_string(), u.len_json(e.resolution_worst.1))).collect::<serde_json::Map<_, _>>(),
         "edges": s.edges.iter().map(|e| json!({
@@ -58,10 +58,10 @@ fn score_json(r: &DesignResult, s: &LayoutScore) -> Value {
             "max_sd": u.dtemp_json(e.max_sd),
             "resolution_length_median": u.len_json(e.resolution_median),
             "resolution_length_worst": u.len_json(e.resolution_worst.1),
-            "resolution_worst_position": u.len_json(e.resolution_worst.0),
-            "resolution_length": e.resolution.iter().map(|(p, l)| json!({"position": u.len_json(*p), "length": u.len_json(*l)})).collect::<Vec<_>>(),
+            "resolution_worst_position": u.pos_json(r.plate.shape(), e.edge, e.resolution_worst.0),
+            "resolution_length": e.resolution.iter().map(|(p, l)| json!({"position": u.pos_json(r.plate.shape(), e.edge, *p), "length": u.len_json(*l)})).collect::<Vec<_>>(),
             "profile": e.positions.iter().enumerate().step_by(4).map(|(k, p)| json!({
-                "position": u.len_json(*p),
+                "position": u.pos_json(r.plate.shape(), e.edge, *p),
                 "sd": u.dtemp_json(e.sd[k]),
                 "half_width": u.dtemp_json(z * e.sd[k]),
                 "prior_sd": u.dtemp_json(e.prior_sd[k]),
@@ -258,7 +258,7 @@ pub fn design_text(r: &DesignResult) -> String {
                 e.edge,
                 u.len_show(e.resolution_worst.1),
                 edge_coordinate(e.edge),
-                u.len_show(e.resolution_worst.0),
+                u.pos_show(r.plate.shape(), e.edge, e.resolution_worst.0),
                 u.len_show(e.resolution_median),
             );
         }
@@ -269,7 +269,7 @@ pub fn design_text(r: &DesignResult) -> String {
             s.information,
             u.dtemp_show(s.worst_sd),
             edge_coordinate(s.worst_at.0),
-            u.len_show(s.worst_at.1),
+            u.pos_show(r.plate.shape(), s.worst_at.0, s.worst_at.1),
             s.worst_at.0,
             s.condition_number
                 .map_or("infinite".to_string(), |c| format!("{c:.3e}")),
