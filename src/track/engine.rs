@@ -1112,12 +1112,26 @@ impl RowEstimator {
         self.window = vals;
         let mut p_lo = position;
         let mut p_hi = position;
+        let hot_edge = self.edge_positions[edge_k].0;
+        let shape = *self.case.plate.shape();
+        let circular = shape.period(hot_edge).is_some();
+        let mut on_circle = Vec::new();
         for j in 0..n_scan {
             let f = self.scan_index[j];
             if self.scan_edge[j] == edge_k && self.scan_est[j] + z * self.scan_sd[j] >= max_l {
                 let p = pos[f - edge_k * n];
                 p_lo = p_lo.min(p);
                 p_hi = p_hi.max(p);
+                if circular {
+                    on_circle.push(p);
+                }
+            }
+        }
+        if circular {
+            // the shortest arc holding them, which may wrap through 0
+            on_circle.push(position);
+            if let Some([a, b]) = shape.position_hull(hot_edge, &on_circle) {
+                (p_lo, p_hi) = (a, b);
             }
         }
         Ok(RowHottest {

@@ -10,7 +10,7 @@ use crate::geometry::Edge;
 use crate::report::draw::{
     AXIS_PX, Anchor, Area, BAND, DrawResult, ESTIMATE, FAMILY, FOOTER_H, GREY, GRID, Glyph,
     HOTTEST, INK, LEGEND_ROW_H, Marker, PLOT_SAFETY_NOTE, TEXT_PX, TITLE_PX, TextOpts, dashed,
-    font, legend, legend_rows, line, marker, rect, text,
+    font, legend, legend_rows, line, marker, polygon, rect, text,
 };
 use crate::report::format::{CaseUnits, edge_coordinate, tick};
 use crate::report::labels::{Placer, Rect, around_marker, text_width};
@@ -33,6 +33,8 @@ const PLATE_MAX_H: f64 = 340.0;
 /// Smallest height of the plate drawing, px (a very long thin plate is drawn thicker than
 /// to scale, and says so).
 const PLATE_MIN_H: f64 = 90.0;
+/// Height of the drawing of a round part, px.
+const ROUND_H: f64 = 420.0;
 /// Height of an edge's caption line, px.
 const CAPTION_H: f64 = 30.0;
 /// Height of an edge's half-width chart, px.
@@ -126,6 +128,10 @@ pub(crate) fn design_svg(r: &DesignResult) -> Result<String> {
 /// The plate's drawn depth (case units) and pixel height, and whether it is stretched.
 fn plate_height(r: &DesignResult) -> (f64, bool) {
     let shape = r.plate.shape();
+    if shape.is_round() {
+        // a round part is drawn to scale, as tall as the panel allows
+        return (ROUND_H, false);
+    }
     let w = shape.width();
     let h = shape.height().unwrap_or_else(|| {
         r.constraints
@@ -217,11 +223,24 @@ fn draw_plate(root: &Area<'_>, r: &DesignResult, top: f64, plate_h: f64) -> Draw
     let h = u.len(h_m);
     let lu = u.len_symbol();
     let cy = top + CAPTION_H / 2.0;
+    let round = shape.is_round();
     let mut caption = format!(
         "The plate ({} × {})",
         u.len_show(shape.width()),
         u.len_show(h_m)
     );
+    if let Some(a) = shape.radius_of(Edge::Inner) {
+        caption = format!(
+            "The wall (radius {} to {}; angles counter-clockwise from +x)",
+            u.len_show(a),
+            u.len_show(0.5 * shape.width())
+        );
+    } else if round {
+        caption = format!(
+            "The disk (radius {}; angles counter-clockwise from +x)",
+            u.len_show(0.5 * shape.width())
+        );
+    }
     if shape.height().is_none() {
         caption = format!(
             "The plate (a long strip {} wide, drawn {} deep)",
@@ -249,13 +268,21 @@ fn draw_plate(root: &Area<'_>, r: &DesignResult, top: f64, plate_h: f64) -> Draw
         (0, (top + CAPTION_H) as i32),
         (WIDTH, (plate_h + f64::from(PLATE_X_LABEL_H)) as u32 + 4),
     );
+    // a round part is centred, to scale: the x range widened to the panel's aspect
+    let (x_range, y_range) = if round {
+        let radius = 0.5 * w;
+        let half_x = radius * plot_width() / (plate_h - 10.0).max(1.0);
+        (-half_x..half_x, -radius..radius)
+    } else {
+        (0.0..w, 0.0..h)
+    };
     let mut chart = ChartBuilder::on(&area)
         .margin_left(MARGIN as u32)
         .margin_right(CHART_RIGHT)
         .margin_top(4)
         .y_label_area_size(Y_LABEL_W)
         .x_label_area_size(PLATE_X_LABEL_H)
-        .build_cartesian_2d(0.0..w, 0.0..h)?;
+        .build_cartesian_2d(x_range, y_range)?;
     let fmt = |v: &f64| tick(*v);
     let y_ticks = ((plate_h / 40.0).round() as usize).clamp(2, 8);
     chart
@@ -276,6 +303,9 @@ fn draw_plate(root: &Area<'_>, r: &DesignResult, top: f64, plate_h: f64) -> Draw
         (f64::from(a), f64::from(b))
     };
     let c = &r.constraints;
+    if round {
+        return draw_round_plate(root, r, &to_px);
+    }
     // Allowed regions, then keep-outs with hatching, then the edge-distance margin.
     for g in &c.allowed {
         let (x0, y0) = to_px(u.len(g.x_min), u.len(g.y_max.min(h_m)));
@@ -372,6 +402,18 @@ fn draw_plate(root: &Area<'_>, r: &DesignResult, top: f64, plate_h: f64) -> Draw
             y1: y0.max(y1),
         });
     }
+    draw_layout_sensors(root, r, &to_px, &mut placer)
+}
+
+/// The chosen (and compared) sensors on the plate drawing, numbered by their row of
+/// `layout.csv`, with labels placed clear of each other and of what `placer` holds.
+fn draw_layout_sensors(
+    root: &Area<'_>,
+    r: &DesignResult,
+    to_px: &dyn Fn(f64, f64) -> (f64, f64),
+    placer: &mut Placer,
+) -> DrawResult {
+    let u = CaseUnits::new(r.units);
     // The comparison layout: hollow circles, no numbers.
     if let Some(a) = &r.against {
         for s in &a.layout {
@@ -423,6 +465,101 @@ fn draw_plate(root: &Area<'_>, r: &DesignResult, top: f64, plate_h: f64) -> Draw
     Ok(())
 }
 
+/// The plate panel of a round part: the ring (or disk) with its allowed sectors, keep-outs,
+/// the edge-distance circles, the hidden circle drawn thick, and the sensors.
+fn draw_round_plate(
+    root: &Area<'_>,
+    r: &DesignResult,
+    to_px: &dyn Fn(f64, f64) -> (f64, f64),
+) -> DrawResult {
+    let u = CaseUnits::new(r.units);
+    let shape = r.plate.shape();
+    let c = &r.constraints;
+    let outer = 0.5 * shape.width();
+    let inner = shape.radius_of(Edge::Inner).unwrap_or(0.0);
+    let tau = std::f64::consts::TAU;
+    // a ring sector as a polygon (case units), `steps` points per arc
+    let sector_px = |r0: f64, r1: f64, a0: f64, span: f64| -> Vec<(f64, f64)> {
+        let steps = ((span / tau) * 180.0).ceil().max(2.0) as usize;
+        let mut pts = Vec::with_capacity(2 * steps + 2);
+        for k in 0..=steps {
+            let a = a0 + span * k as f64 / steps as f64;
+            pts.push(to_px(u.len(r1 * a.cos()), u.len(r1 * a.sin())));
+        }
+        for k in (0..=steps).rev() {
+            let a = a0 + span * k as f64 / steps as f64;
+            pts.push(to_px(u.len(r0 * a.cos()), u.len(r0 * a.sin())));
+        }
+        pts
+    };
+    let region_px = |g: &crate::case::Region| match &g.sector {
+        Some(sc) => {
+            let span = (sc.end - sc.start).rem_euclid(tau);
+            let span = if span <= 0.0 { tau } else { span };
+            sector_px(sc.r_min.max(inner), sc.r_max.min(outer), sc.start, span)
+        }
+        // the whole part
+        None => sector_px(inner, outer, 0.0, tau),
+    };
+    for g in &c.allowed {
+        polygon(root, &region_px(g), BAND.filled())?;
+    }
+    let mut placer = Placer::new(Rect {
+        x0: 0.0,
+        y0: 0.0,
+        x1: f64::from(WIDTH),
+        y1: 1.0e6,
+    });
+    for g in &c.keep_out {
+        let pts = region_px(g);
+        polygon(root, &pts, KEEP_OUT.filled())?;
+        let mut closed = pts.clone();
+        closed.push(pts[0]);
+        line(root, &closed, GREY.stroke_width(1))?;
+        for p in &pts {
+            placer.block(Rect::around(p.0, p.1, 3.0));
+        }
+    }
+    let circle = |radius: f64| -> Vec<(f64, f64)> {
+        (0..=180)
+            .map(|k| {
+                let a = tau * k as f64 / 180.0;
+                to_px(u.len(radius * a.cos()), u.len(radius * a.sin()))
+            })
+            .collect()
+    };
+    if c.edge_distance_m > 0.0 {
+        dashed(
+            root,
+            &circle(outer - c.edge_distance_m),
+            5,
+            4,
+            GREY.stroke_width(1),
+        )?;
+        if inner > 0.0 {
+            dashed(
+                root,
+                &circle(inner + c.edge_distance_m),
+                5,
+                4,
+                GREY.stroke_width(1),
+            )?;
+        }
+    }
+    for e in shape.edges() {
+        let Some(radius) = shape.radius_of(e) else {
+            continue;
+        };
+        let width = if r.plate.unknown_edges().contains(&e) {
+            5
+        } else {
+            1
+        };
+        line(root, &circle(radius), INK.stroke_width(width))?;
+    }
+    draw_layout_sensors(root, r, to_px, &mut placer)
+}
+
 fn edge_title(e: Edge) -> String {
     let (name, at) = match e {
         Edge::Bottom => ("Bottom", "y = 0"),
@@ -449,7 +586,11 @@ fn draw_edge(
     let e = &score.edges[k];
     let conf = percent(r.confidence);
     let shape = r.plate.shape();
-    let len = u.len(shape.edge_length(e.edge).unwrap_or(shape.width()));
+    let len = u.pos(
+        shape,
+        e.edge,
+        shape.edge_length(e.edge).unwrap_or(shape.width()),
+    );
     let cy = top + CAPTION_H / 2.0;
     text(
         root,
@@ -514,7 +655,7 @@ fn draw_edge(
             "position along the {} edge, {} [{}]",
             e.edge,
             edge_coordinate(e.edge),
-            u.len_symbol()
+            u.pos_symbol(shape, e.edge)
         ))
         .y_desc(format!("{conf} band half-width [{}]", u.temp_symbol()))
         .x_labels(12)
@@ -522,7 +663,11 @@ fn draw_edge(
         .x_label_formatter(&fmt)
         .y_label_formatter(&fmt)
         .draw()?;
-    let pos: Vec<f64> = e.positions.iter().map(|p| u.len(*p)).collect();
+    let pos: Vec<f64> = e
+        .positions
+        .iter()
+        .map(|p| u.pos(shape, e.edge, *p))
+        .collect();
     if let Some(t) = &theirs {
         let pts: Vec<(f64, f64)> = pos.iter().copied().zip(t.iter().copied()).collect();
         chart.draw_series(std::iter::once(DashedPathElement::new(
@@ -539,7 +684,7 @@ fn draw_edge(
     )))?;
     // Sensor positions along the edge, on the axis.
     for s in &r.layout {
-        let p = u.len(shape.position_along(e.edge, s.position));
+        let p = u.pos(shape, e.edge, shape.position_along(e.edge, s.position));
         if (0.0..=len).contains(&p) {
             let (x, y) = chart.backend_coord(&(p, 0.0));
             marker(root, Marker::Rug, f64::from(x), f64::from(y) - 1.0, 4.0)?;

@@ -28,9 +28,14 @@ pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
             let ld = u.len_file_decimals();
             out.extend_from_slice(b",ok,");
             out.extend_from_slice(f.edge.map_or("", |e| e.name()).as_bytes());
+            // along a circle the position is the angle in degrees
+            let shape = case.plate.shape();
             for v in [f.position, f.position_interval[0], f.position_interval[1]] {
                 out.push(b',');
-                push_fixed(out, u.len(v), ld);
+                match f.edge {
+                    Some(e) if e.is_circular() => push_fixed(out, u.pos(shape, e, v), 3),
+                    _ => push_fixed(out, u.len(v), ld),
+                }
             }
             for v in [
                 f.temperature,
@@ -177,7 +182,10 @@ pub fn alarms_csv(case: &Case, s: &TrackSummary) -> Vec<u8> {
             u.temp_file(e.peak_interval[0]),
             u.temp_file(e.peak_interval[1]),
             e.peak_edge.map_or("", |x| x.name()),
-            u.len_file(e.peak_position),
+            match e.peak_edge {
+                Some(x) => u.pos_file(case.plate.shape(), x, e.peak_position),
+                None => u.len_file(e.peak_position),
+            },
             fixed(e.max_probability, 4),
             s.limit.map_or(String::new(), |l| u.temp_file(l)),
             e.held_rows,
@@ -219,7 +227,10 @@ pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
         json!({
             "time": t,
             "edge": f.edge.map(|e| e.name()),
-            "position": u.len_json(f.position),
+            "position": match f.edge {
+                Some(e) => u.pos_json(case.plate.shape(), e, f.position),
+                None => u.len_json(f.position),
+            },
             "temperature": u.temp_json(f.temperature),
             "temperature_interval": [u.temp_json(f.temperature_interval[0]),
                                      u.temp_json(f.temperature_interval[1])],
@@ -238,7 +249,10 @@ pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
                     "temperature_interval": [u.temp_json(e.peak_interval[0]),
                                              u.temp_json(e.peak_interval[1])],
                     "edge": e.peak_edge.map(|x| x.name()),
-                    "position": u.len_json(e.peak_position),
+                    "position": match e.peak_edge {
+                        Some(x) => u.pos_json(case.plate.shape(), x, e.peak_position),
+                        None => u.len_json(e.peak_position),
+                    },
                 },
                 "max_probability": e.max_probability,
             })
@@ -373,7 +387,10 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
             out,
             "Hottest row: {t}, {} edge at {}: {} ({} to {}).",
             f.edge.map_or("?", |e| e.name()),
-            u.len_show(f.position),
+            match f.edge {
+                Some(e) => u.pos_show(case.plate.shape(), e, f.position),
+                None => u.len_show(f.position),
+            },
             u.temp_show(f.temperature),
             u.temp_show(f.temperature_interval[0]),
             u.temp_show(f.temperature_interval[1]),
@@ -430,7 +447,10 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
                     u.temp_show(e.peak_temperature),
                     u.temp_show(e.peak_interval[0]),
                     u.temp_show(e.peak_interval[1]),
-                    u.len_show(e.peak_position),
+                    match e.peak_edge {
+                        Some(x) => u.pos_show(case.plate.shape(), x, e.peak_position),
+                        None => u.len_show(e.peak_position),
+                    },
                     e.peak_edge.map_or("?", |x| x.name()),
                     e.peak_time,
                     e.max_probability

@@ -301,8 +301,13 @@ fn draw(root: &Area<'_>, case: &Case, s: &TrackSummary, bins: &[Bin]) -> DrawRes
     let len = edge
         .and_then(|e| shape.edge_length(e))
         .unwrap_or(shape.width());
-    let plen = u.len(len);
-    let pmap = |m: f64| py1 - u.len(m) / plen * (py1 - py0);
+    // along a circle the position axis is the angle in degrees
+    let to_pos = |m: f64| match edge {
+        Some(e) => u.pos(shape, e, m),
+        None => u.len(m),
+    };
+    let plen = to_pos(len);
+    let pmap = |m: f64| py1 - to_pos(m) / plen * (py1 - py0);
     for &(a, c, share) in &stretches {
         let (a, c) = (xmap(a), xmap(c).max(xmap(a) + 1.0));
         rect(root, a, py0, c, py1, ALARM_SHADE.mix(share).filled())?;
@@ -338,7 +343,10 @@ fn draw(root: &Area<'_>, case: &Case, s: &TrackSummary, bins: &[Bin]) -> DrawRes
     let coord = edge.map_or("x", edge_coordinate);
     text(
         root,
-        &format!("{coord} ({})", u.len_symbol()),
+        &format!(
+            "{coord} ({})",
+            edge.map_or(u.len_symbol(), |e| u.pos_symbol(shape, e))
+        ),
         22.0,
         0.5 * (py0 + py1),
         TextOpts {
