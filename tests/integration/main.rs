@@ -32,6 +32,7 @@ mod h_calibration;
 mod hard_inputs;
 mod its90_reference;
 mod report_outputs;
+mod round_parts;
 mod snapshots_of_outputs;
 mod tikhonov_reference;
 mod track_alarms;
