@@ -1151,9 +1151,13 @@ impl Checker<'_> {
                 ));
             }
             let (Some([x0, x1]), Some([y0, y1])) = (r.x, r.y) else {
+                let missing = if r.x.is_none() { "x" } else { "y" };
                 return Err(self.err(
-                    field,
-                    format!("rectangle {n}: write it {{ x = [x_min, x_max], y = [y_min, y_max] }}"),
+                    &format!("{field}.{missing}"),
+                    format!(
+                        "rectangle {n} needs the key `{missing}`: write it {{ x = [x_min, x_max], \
+                         y = [y_min, y_max] }}"
+                    ),
                 ));
             };
             if ![x0, x1, y0, y1].iter().all(|v| v.is_finite()) {
@@ -1221,7 +1225,7 @@ impl Checker<'_> {
             ));
         };
         let [a0, a1] = r.angle.unwrap_or([0.0, 360.0]);
-        if ![r0, r1, a0, a1].iter().all(|v| v.is_finite()) || !(r0 >= 0.0 && r0 < r1) {
+        if !([r0, r1, a0, a1].iter().all(|v| v.is_finite()) && r0 >= 0.0 && r0 < r1) {
             return Err(self.err(
                 field,
                 format!(
