@@ -338,7 +338,7 @@ impl Tracker {
                     row.time_s,
                     None,
                     self.alarms.in_alarm(),
-                    !self.left_out.is_empty(),
+                    !(self.left_out.is_empty() && self.missing.is_empty()),
                 );
             }
         }
@@ -483,7 +483,8 @@ impl Tracker {
             row.time_s,
             Some(&self.fit),
             self.alarms.in_alarm(),
-            !self.left_out.is_empty(),
+            // marked in track.svg: a sensor left out, or one without a reading (a dropout)
+            !(self.left_out.is_empty() && self.missing.is_empty()),
         );
     }
 

@@ -382,4 +382,16 @@ fn track_svg_uses_clock_time_and_marks_skipped_rows_and_alarms() {
         "skipped rows marked (and in the legend)"
     );
     assert!(fills("#9B111E") >= 1, "the alarm strip");
+    // the sample's TC03 goes open circuit at 11:00: the rows without its reading carry the
+    // dark strip along the foot of the panel, and the legend names it
+    assert!(
+        texts
+            .iter()
+            .any(|t| t.starts_with("sensor left out or silent")),
+        "{texts:?}"
+    );
+    assert!(
+        fills("#3A2A5C") >= 2,
+        "the left-out strip and its legend swatch"
+    );
 }

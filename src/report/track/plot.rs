@@ -168,7 +168,7 @@ fn draw(root: &Area<'_>, case: &Case, s: &TrackSummary, bins: &[Bin]) -> DrawRes
     if bins.iter().any(|b| b.left_out_rows > 0) {
         items.push((
             Glyph::Swatch(LEFT_OUT),
-            "a sensor left out (ticks along the panel's foot)".to_string(),
+            "sensor left out or silent (strip at the foot)".to_string(),
         ));
     }
     legend(root, &items, 16.0, 68.0, f64::from(WIDTH) - 32.0)?;
