@@ -171,12 +171,23 @@ pub fn heat_transfer(h: f64) -> Result<f64, String> {
 /// # Errors
 /// A message giving the range in K/m.
 pub fn gradient_k_per_m(units: &Units, g: f64) -> Result<f64, String> {
-    let k = units.dtemp_to_k(g) / units.length_to_m(1.0);
+    gradient_k_per_m_in(units, g, units.length_to_m(1.0), "length unit")
+}
+
+/// [`gradient_k_per_m`] for a gradient stated per `unit_m` metres of position (a degree of
+/// arc on a round part, `unit_name` naming it in the message).
+pub fn gradient_k_per_m_in(
+    units: &Units,
+    g: f64,
+    unit_m: f64,
+    unit_name: &str,
+) -> Result<f64, String> {
+    let k = units.dtemp_to_k(g) / unit_m;
     if g.is_finite() && (MIN_GRADIENT_K_PER_M..=MAX_GRADIENT_K_PER_M).contains(&k) {
         return Ok(k);
     }
     Err(format!(
-        "a gradient limit of {} (temperature unit per length unit) is outside the plausible \
+        "a gradient limit of {} (temperature unit per {unit_name}) is outside the plausible \
          range {MIN_GRADIENT_K_PER_M:e} to {MAX_GRADIENT_K_PER_M:e} K/m; it must be a positive \
          number",
         short(g)

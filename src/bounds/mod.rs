@@ -753,31 +753,27 @@ pub fn strict_bounds(
     })
 }
 
-/// Refuse a gradient limit on a round part: the strict bounds are built on the straight
-/// edges' eigenfunctions and are not available for disks and annuli in this version. `from`
-/// names where the limit came from (`--max-gradient`, or the case's `[bounds]`).
-///
-/// # Errors
-/// [`Error::Invalid`] naming the setting.
-pub fn check_supported(case: &crate::case::Case, override_k_per_m: Option<f64>) -> Result<()> {
-    if !case.plate.shape().is_round() {
-        return Ok(());
+/// The length, metres, of one unit of position in which a gradient limit is stated: the
+/// case's length unit on a straight edge; on a round part one degree of arc of the smallest
+/// hidden circle (a limit per degree is the same per metre on every circle only at one
+/// radius: at the smallest it is the largest per metre, so the admissible set holds every
+/// profile the per-degree limit allows on any hidden circle).
+pub fn gradient_unit_m(plate: &Plate, units: &crate::units::Units) -> f64 {
+    let shape = plate.shape();
+    if !shape.is_round() {
+        return units.length_to_m(1.0);
     }
-    let message = "strict bounds under a gradient limit are not available for round parts \
-                   (disk, annulus) in this version; remove the limit (the estimate, its bands \
-                   and the hottest point do not need it)";
-    if override_k_per_m.is_some() {
-        return Err(Error::invalid_field("--max-gradient", message));
-    }
-    if case.bounds.max_gradient_k_per_m.is_some() {
-        return Err(Error::invalid_at(
-            &case.files.plate,
-            crate::io::plate_line_of(&case.files.plate, "bounds.max_gradient"),
-            Some("bounds.max_gradient"),
-            message,
-        ));
-    }
-    Ok(())
+    let hidden = plate.unknown_edges();
+    let radii = if hidden.is_empty() {
+        shape.edges()
+    } else {
+        hidden
+    };
+    let r = radii
+        .iter()
+        .filter_map(|&e| shape.radius_of(e))
+        .fold(f64::INFINITY, f64::min);
+    r * std::f64::consts::PI / 180.0
 }
 
 /// The strict bounds of an estimate, never an error: a failure is recorded in

@@ -157,8 +157,37 @@ impl AdmissibleSet {
         // One column per node: the hat's readings minus the zero readings. An interior hat
         // leaves the corner values alone, so its readings follow from the hidden edge's series
         // alone (superposition); only the two end nodes of each edge move a corner.
-        let zero_model = ForwardModel::new(&plate.with_unknowns_fixed(&zero)?, options)?;
         let mut columns: Vec<Vec<f64>> = vec![Vec::new(); node_count];
+        if shape.is_round() {
+            // a circle: every node's hat (the two half hats at 0 and at the full turn too)
+            // through the Fourier synthesis of the unknown circle ([`polar_hat_columns`])
+            let map = PolarMap::new(plate, sensors, disc.terms.max(16))?;
+            for e in &edges {
+                for (j, col) in polar_hat_columns(&map, e)?.into_iter().enumerate() {
+                    columns[e.first + j] = col;
+                }
+            }
+            let mut h = vec![0.0; m * node_count];
+            for (var, col) in columns.iter().enumerate() {
+                for i in 0..m {
+                    h[i * node_count + var] = col[i];
+                }
+            }
+            let (tail, max_tail_factor) = polar_tail_factors(&shape, sensors, &edges, &map);
+            let rho_m = polar_quasi_interpolation_allowance(&shape, sensors, &edges, &map);
+            return Ok(AdmissibleSet {
+                edges,
+                node_count,
+                h,
+                offset,
+                readings: readings_k.to_vec(),
+                sigmas: sigmas_k.to_vec(),
+                rho_m,
+                tail,
+                max_tail_factor,
+            });
+        }
+        let zero_model = ForwardModel::new(&plate.with_unknowns_fixed(&zero)?, options)?;
         for e in &edges {
             let interior = interior_hat_columns(&zero_model, &shape, e, sensors, options)?;
             for (j, col) in interior.into_iter().enumerate() {
@@ -497,42 +526,7 @@ fn quasi_interpolation_allowance(
                             .sum()
                     })
                     .collect();
-                // node means c_j = ⟨K, θ_j⟩ / ⟨1, θ_j⟩ (trapezoid)
-                let mut c = vec![0.0; cells + 1];
-                let mut wsum = vec![0.0; cells + 1];
-                for (k, &kv) in kernel.iter().enumerate() {
-                    let tw = if k == 0 || k == fine.len() - 1 {
-                        0.5
-                    } else {
-                        1.0
-                    };
-                    let cell = (k / per_cell).min(cells - 1);
-                    let t = (k - cell * per_cell) as f64 / per_cell as f64;
-                    for (j, theta) in [(cell, 1.0 - t), (cell + 1, t)] {
-                        c[j] += tw * theta * kv;
-                        wsum[j] += tw * theta;
-                    }
-                }
-                for (cj, wj) in c.iter_mut().zip(&wsum) {
-                    *cj /= wj;
-                }
-                // D = K − QK, R = ∫ D, ∫ |R|
-                let diff = |k: usize| {
-                    let cell = (k / per_cell).min(cells - 1);
-                    let t = (k - cell * per_cell) as f64 / per_cell as f64;
-                    kernel[k] - ((1.0 - t) * c[cell] + t * c[cell + 1])
-                };
-                let mut r = 0.0;
-                let mut prev_d = diff(0);
-                let mut integral = 0.0;
-                for k in 1..fine.len() {
-                    let dk = diff(k);
-                    let r_new = r + 0.5 * (prev_d + dk) * ds;
-                    integral += 0.5 * (r.abs() + r_new.abs()) * ds;
-                    r = r_new;
-                    prev_d = dk;
-                }
-                integral + 2.0 * tau * len * len
+                integral_of_r(&kernel, per_cell, cells, ds) + 2.0 * tau * len * len
             })
             .collect();
         for (acc, v) in rho.iter_mut().zip(per_sensor) {
@@ -541,6 +535,199 @@ fn quasi_interpolation_allowance(
     }
     Ok(rho)
 }
+/// The sensor map of a round plate's unknown circles with `terms` Fourier functions each: the
+/// reading of sensor `i` per unit coefficient of function `j` of each hidden circle.
+struct PolarMap {
+    model: ForwardModel,
+    /// `m × p`, the sensor map.
+    a: nalgebra::DMatrix<f64>,
+    /// Functions per circle.
+    terms: usize,
+}
+
+impl PolarMap {
+    fn new(plate: &Plate, sensors: &[Point], terms: usize) -> Result<Self> {
+        let model = ForwardModel::new(
+            plate,
+            SeriesOptions {
+                unknown_terms: terms,
+                known_terms: 16,
+            },
+        )?;
+        let a = model.sensor_map(sensors).matrix;
+        Ok(PolarMap { model, a, terms })
+    }
+
+    /// The first column of `edge`'s functions in the map.
+    fn first(&self, edge: Edge) -> Result<usize> {
+        self.model
+            .parameters()
+            .iter()
+            .position(
+                |p| matches!(p, crate::forward::Parameter::Mode { edge: e, .. } if *e == edge),
+            )
+            .ok_or_else(|| {
+                Error::Internal(format!("strict bounds: no unknowns on the {edge} edge"))
+            })
+    }
+
+    /// The largest ratio `q` by which a mode of `edge` shrinks per order on its way to `p`:
+    /// `a/r` from an inner circle of radius `a`, `r/R` toward the centre from an outer circle
+    /// or rim of radius `R` (the response of order `m` is at most `2 q^m`, the factor 2
+    /// covering an insulated or convective circle across).
+    fn decay_ratio(shape: &Shape, edge: Edge, p: Point) -> f64 {
+        let r = p.x.hypot(p.y);
+        let re = shape.radius_of(edge).unwrap_or(r);
+        if edge == Edge::Inner { re / r } else { r / re }
+    }
+}
+
+/// The readings of every node's hat on a hidden circle: the hat's exact Fourier
+/// coefficients ([`crate::forward::polar::fourier_coefficients`]) through the sensor map. The
+/// first and the last node are the two half hats at 0 and at the full turn.
+fn polar_hat_columns(map: &PolarMap, e: &EdgeNodes) -> Result<Vec<Vec<f64>>> {
+    let first = map.first(e.edge)?;
+    let radius = e.length_m / std::f64::consts::TAU;
+    let cols = map.a.columns(first, map.terms);
+    (0..e.positions_m.len())
+        .into_par_iter()
+        .map(|j| {
+            let hat = hat_profile(&e.positions_m, j)?;
+            let coef = crate::forward::polar::fourier_coefficients(&hat, radius, map.terms);
+            let c = nalgebra::DVector::from_vec(coef);
+            Ok((cols * c).iter().copied().collect())
+        })
+        .collect()
+}
+
+/// `ε_{ie}` for a hidden circle: the Fourier functions beyond order `M` (the map's) reach
+/// sensor `i` with at most `2 q^m` per unit coefficient, and a profile whose total variation
+/// round the circle (its jump at 0 included) is `S` has coefficients of order `m` at most
+/// `S / (π m)` (integration by parts of a periodic function); two functions per order give
+/// `Σ_{m>M} 4 S q^m / (π m) ≤ S · 4 q^{M+1} / (π (M+1) (1 − q))`.
+fn polar_tail_factors(
+    shape: &Shape,
+    sensors: &[Point],
+    edges: &[EdgeNodes],
+    map: &PolarMap,
+) -> (Vec<Vec<f64>>, f64) {
+    let m_top = crate::forward::polar::order_of(map.terms - 1) as f64;
+    let mut tail = vec![vec![0.0; edges.len()]; sensors.len()];
+    let mut max_tail_factor = 0.0_f64;
+    for (i, &p) in sensors.iter().enumerate() {
+        for (ei, e) in edges.iter().enumerate() {
+            let q = PolarMap::decay_ratio(shape, e.edge, p).min(1.0 - 1e-12);
+            let eps =
+                4.0 * q.powf(m_top + 1.0) / (std::f64::consts::PI * (m_top + 1.0) * (1.0 - q));
+            tail[i][ei] = eps;
+            max_tail_factor = max_tail_factor.max(eps);
+        }
+    }
+    (tail, max_tail_factor)
+}
+
+/// `ρ_i` for hidden circles, as [`quasi_interpolation_allowance`] with the circle's kernel
+/// `K(s) = Σ_j A_ij Θ_j(s/r) / ‖Θ_j‖²` (the sensor map's row times the Fourier functions; the
+/// Poisson kernel of the disk or its annulus analogue). The omitted orders add at most
+/// `|K_tail| ≤ τ = 4 q^{M+1} / (π r (1 − q))` (norms `π r`), and `2 τ L²` to `∫|R|`.
+fn polar_quasi_interpolation_allowance(
+    shape: &Shape,
+    sensors: &[Point],
+    edges: &[EdgeNodes],
+    map: &PolarMap,
+) -> Vec<f64> {
+    let mut rho = vec![0.0; sensors.len()];
+    let m_top = crate::forward::polar::order_of(map.terms - 1) as f64;
+    for e in edges {
+        let Ok(first) = map.first(e.edge) else {
+            continue;
+        };
+        let radius = e.length_m / std::f64::consts::TAU;
+        let n = map.terms;
+        let min_depth = sensors
+            .iter()
+            .map(|&p| shape.depth_from(e.edge, p))
+            .fold(f64::INFINITY, f64::min);
+        let per_cell = SUBPOINTS.max((10.0 * e.spacing_m / min_depth).ceil() as usize);
+        let cells = e.positions_m.len() - 1;
+        let fine: Vec<f64> = (0..=cells * per_cell)
+            .map(|k| k as f64 * e.spacing_m / per_cell as f64)
+            .collect();
+        let ds = e.spacing_m / per_cell as f64;
+        let mut phi = vec![0.0; fine.len() * n];
+        for (k, &s) in fine.iter().enumerate() {
+            crate::forward::polar::trig_into(s / radius, &mut phi[k * n..(k + 1) * n]);
+            for (t, v) in phi[k * n..(k + 1) * n].iter_mut().enumerate() {
+                *v /= if t == 0 {
+                    std::f64::consts::TAU * radius
+                } else {
+                    std::f64::consts::PI * radius
+                };
+            }
+        }
+        let per_sensor: Vec<f64> = (0..sensors.len())
+            .into_par_iter()
+            .map(|i| {
+                let w: Vec<f64> = (0..n).map(|j| map.a[(i, first + j)]).collect();
+                let q = PolarMap::decay_ratio(shape, e.edge, sensors[i]).min(1.0 - 1e-12);
+                let tau = 4.0 * q.powf(m_top + 1.0) / (std::f64::consts::PI * radius * (1.0 - q));
+                let kernel: Vec<f64> = (0..fine.len())
+                    .map(|k| {
+                        phi[k * n..(k + 1) * n]
+                            .iter()
+                            .zip(&w)
+                            .map(|(a, b)| a * b)
+                            .sum()
+                    })
+                    .collect();
+                let len = e.length_m;
+                integral_of_r(&kernel, per_cell, cells, ds) + 2.0 * tau * len * len
+            })
+            .collect();
+        for (acc, v) in rho.iter_mut().zip(per_sensor) {
+            *acc += QUADRATURE_MARGIN * v;
+        }
+    }
+    rho
+}
+
+/// `∫ |R|` with `R = ∫ (K − Q K)` for a kernel sampled at `per_cell` points per node cell
+/// (`cells` cells of width `per_cell · ds`): node means `c_j = ⟨K, θ_j⟩ / ⟨1, θ_j⟩` by the
+/// trapezoid rule, then the trapezoid rule again.
+fn integral_of_r(kernel: &[f64], per_cell: usize, cells: usize, ds: f64) -> f64 {
+    let n_fine = kernel.len();
+    let mut c = vec![0.0; cells + 1];
+    let mut wsum = vec![0.0; cells + 1];
+    for (k, &kv) in kernel.iter().enumerate() {
+        let tw = if k == 0 || k == n_fine - 1 { 0.5 } else { 1.0 };
+        let cell = (k / per_cell).min(cells - 1);
+        let t = (k - cell * per_cell) as f64 / per_cell as f64;
+        for (j, theta) in [(cell, 1.0 - t), (cell + 1, t)] {
+            c[j] += tw * theta * kv;
+            wsum[j] += tw * theta;
+        }
+    }
+    for (cj, wj) in c.iter_mut().zip(&wsum) {
+        *cj /= wj;
+    }
+    let diff = |k: usize| {
+        let cell = (k / per_cell).min(cells - 1);
+        let t = (k - cell * per_cell) as f64 / per_cell as f64;
+        kernel[k] - ((1.0 - t) * c[cell] + t * c[cell + 1])
+    };
+    let mut r = 0.0;
+    let mut prev_d = diff(0);
+    let mut integral = 0.0;
+    for k in 1..n_fine {
+        let dk = diff(k);
+        let r_new = r + 0.5 * (prev_d + dk) * ds;
+        integral += 0.5 * (r.abs() + r_new.abs()) * ds;
+        r = r_new;
+        prev_d = dk;
+    }
+    integral
+}
+
 /// The nodes of every hidden edge: `k_nodes` evenly spaced along it, ends included, numbered
 /// edge after edge.
 fn edge_nodes(shape: &Shape, hidden: &[Edge], k_nodes: usize) -> Vec<EdgeNodes> {

@@ -410,9 +410,18 @@ pub fn progress_bar(
 /// `--max-gradient G` in the case's temperature unit per length unit, as K/m.
 pub fn parse_max_gradient(g: Option<f64>, case: &edgetherm::case::Case) -> Result<Option<f64>> {
     match g {
-        Some(g) => edgetherm::plausible::gradient_k_per_m(&case.units, g)
-            .map(Some)
-            .map_err(|m| Error::invalid_field("--max-gradient", m)),
+        Some(g) => edgetherm::plausible::gradient_k_per_m_in(
+            &case.units,
+            g,
+            edgetherm::bounds::gradient_unit_m(&case.plate, &case.units),
+            if case.plate.shape().is_round() {
+                "degree"
+            } else {
+                "length unit"
+            },
+        )
+        .map(Some)
+        .map_err(|m| Error::invalid_field("--max-gradient", m)),
         None => Ok(None),
     }
 }

@@ -133,7 +133,6 @@ pub fn estimate(
     options: &EstimateOptions,
     progress: Option<&(dyn Fn(usize) + Sync)>,
 ) -> Result<EstimateResult> {
-    crate::bounds::check_supported(case, options.max_gradient_k_per_m)?;
     if case.plate.unknown_heat_transfer().is_empty() {
         estimate_known_h(case, readings, options, progress)
     } else {
@@ -154,8 +153,7 @@ fn estimate_known_h(
     // random numbers): run them side by side
     let (bounds, outputs) = rayon::join(
         || {
-            // round parts have no strict bounds yet (refused above with a gradient limit)
-            (options.strict_bounds && !case.plate.shape().is_round()).then(|| {
+            options.strict_bounds.then(|| {
                 crate::bounds::estimate_bounds(
                     case,
                     &problem.points,

@@ -502,6 +502,7 @@ impl Checker<'_> {
             .thermocouple
             .map(|t| self.thermocouple(t, &units))
             .transpose()?;
+        let bounds = self.bounds(raw.bounds, &units, &plate)?;
         Ok(PlateFile {
             units,
             plate,
@@ -513,7 +514,7 @@ impl Checker<'_> {
                 Some(d) => self.design(d, &units, &shape)?,
                 None => DesignSettings::default(),
             },
-            bounds: self.bounds(raw.bounds, &units)?,
+            bounds,
             profiles,
             profiles_read_as,
         })
@@ -521,11 +522,18 @@ impl Checker<'_> {
 
     /// `[bounds]`: a positive, finite gradient limit converted to K/m, and temperature limits
     /// in kelvin with `min < max`.
-    fn bounds(&self, raw: RawBounds, units: &Units) -> Result<BoundsSettings> {
+    fn bounds(&self, raw: RawBounds, units: &Units, plate: &Plate) -> Result<BoundsSettings> {
+        // on a round part the limit is per degree of arc (crate::bounds::gradient_unit_m)
+        let unit_name = if plate.shape().is_round() {
+            "degree"
+        } else {
+            "length unit"
+        };
+        let unit_m = crate::bounds::gradient_unit_m(plate, units);
         let max_gradient_k_per_m = match raw.max_gradient {
             None => None,
             Some(g) => Some(
-                crate::plausible::gradient_k_per_m(units, g)
+                crate::plausible::gradient_k_per_m_in(units, g, unit_m, unit_name)
                     .map_err(|m| self.err("bounds.max_gradient", m))?,
             ),
         };

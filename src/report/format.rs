@@ -22,11 +22,55 @@ pub(crate) const SIGNIFICANT_DIGITS: i32 = 4;
 #[derive(Debug, Clone, Copy)]
 pub(crate) struct CaseUnits {
     units: Units,
+    /// Round parts: metres of arc per degree at which gradients are stated
+    /// ([`crate::bounds::gradient_unit_m`]); `None`: per length unit.
+    degree_m: Option<f64>,
 }
 
 impl CaseUnits {
     pub(crate) fn new(units: Units) -> Self {
-        CaseUnits { units }
+        CaseUnits {
+            units,
+            degree_m: None,
+        }
+    }
+
+    /// The units of a case on `plate`: gradients per degree on a round part.
+    pub(crate) fn of_plate(units: Units, plate: &crate::geometry::Plate) -> Self {
+        CaseUnits {
+            units,
+            degree_m: plate
+                .shape()
+                .is_round()
+                .then(|| crate::bounds::gradient_unit_m(plate, &units)),
+        }
+    }
+
+    /// A gradient, K/m, in the case's temperature unit per length unit (per degree on a
+    /// round part).
+    pub(crate) fn gradient(&self, g_k_per_m: f64) -> f64 {
+        match self.degree_m {
+            Some(m) => self.dtemp(g_k_per_m) * m,
+            None => self.dtemp(g_k_per_m) / self.len(1.0),
+        }
+    }
+
+    /// The position unit of a gradient in files (`mm`, `deg`).
+    pub(crate) fn gradient_per(&self) -> &'static str {
+        if self.degree_m.is_some() {
+            "deg"
+        } else {
+            self.len_symbol()
+        }
+    }
+
+    /// The position unit of a gradient for a reader (`mm`, `°`).
+    pub(crate) fn gradient_per_show(&self) -> &'static str {
+        if self.degree_m.is_some() {
+            "°"
+        } else {
+            self.len_symbol()
+        }
     }
 
     /// Metres → case length.

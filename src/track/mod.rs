@@ -197,7 +197,6 @@ impl Tracker {
     /// # Errors
     /// As [`RowEstimator::new`].
     pub fn new(case: &Case, options: TrackOptions) -> Result<Self> {
-        crate::bounds::check_supported(case, options.max_gradient_k_per_m)?;
         let seed = options.seed.unwrap_or(case.uncertainty.seed);
         let estimator = RowEstimator::new(case, options.draws, seed, options.stride)?;
         let rule = options.strength.unwrap_or(case.fit.strength);

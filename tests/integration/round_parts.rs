@@ -205,6 +205,76 @@ fn pipe_wall_bands_cover_the_hot_sector() {
     );
 }
 
+// Strict bounds on a pipe wall hold the truth: a hot sector whose steepest slope is about
+// 1.37 K per degree (the Gaussian bump of `sector_kelvin`: 40 · √2 / 25 · e^{−1/2}; its
+// 0.5°-tabulated interpolant is no steeper) under a stated limit of 1.5 K per degree, with
+// noisy readings. The envelope must hold the truth at every position, the hottest-temperature
+// interval the true peak; the limit is per degree of the inner circle (`docs/case-files.md`).
+#[test]
+fn strict_bounds_on_a_pipe_wall_hold_the_truth() {
+    use edgetherm::bounds::BoundsOutcome;
+    let files = CaseFiles::in_dir(demo());
+    let case = load_case(&files).unwrap();
+    let a = 0.045;
+    let n = 720;
+    let pos: Vec<f64> = (0..n).map(|i| a * TAU * i as f64 / n as f64).collect();
+    let t: Vec<f64> = pos
+        .iter()
+        .map(|s| sector_kelvin((s / a).to_degrees(), 120.0))
+        .collect();
+    let truth = EdgeProfile::periodic(pos, t, TAU * a).unwrap();
+    let model = truth_model(&case.plate, &[(Edge::Inner, truth.clone())]).unwrap();
+    let points: Vec<_> = case.sensors.iter().map(|s| s.position).collect();
+    let exact = exact_readings(&model, &points).unwrap();
+    let per_degree_m = a * std::f64::consts::PI / 180.0;
+    assert!(
+        (edgetherm::bounds::gradient_unit_m(&case.plate, &case.units) - per_degree_m).abs() < 1e-15
+    );
+    for seed in [5_u64, 6] {
+        let readings: Vec<Option<f64>> = add_noise(&exact, 0.3, seed)
+            .unwrap()
+            .into_iter()
+            .map(Some)
+            .collect();
+        let r = estimate(
+            &case,
+            &readings,
+            &EstimateOptions {
+                replicates: Some(200),
+                strict_bounds: true,
+                max_gradient_k_per_m: Some(1.5 / per_degree_m),
+                ..EstimateOptions::default()
+            },
+            None,
+        )
+        .unwrap();
+        let b = r.bounds.as_ref().expect("bounds computed");
+        let Some((
+            _,
+            BoundsOutcome::Bounded {
+                hottest_k, edges, ..
+            },
+        )) = &b.stated
+        else {
+            panic!("no bounds: {:?}", b.stated);
+        };
+        let e = &edges[0];
+        for ((s, lo), hi) in e.positions_m.iter().zip(&e.lower_k).zip(&e.upper_k) {
+            let t = truth.value(*s);
+            assert!(
+                *lo <= t + 1e-9 && t <= *hi + 1e-9,
+                "seed {seed}: at {:.1}° truth {t} outside [{lo}, {hi}]",
+                (s / a).to_degrees()
+            );
+        }
+        let peak = 423.15 + 40.0;
+        assert!(
+            hottest_k[0] <= peak && peak <= hottest_k[1],
+            "seed {seed}: peak {peak} outside {hottest_k:?}"
+        );
+    }
+}
+
 #[test]
 fn simulate_design_and_track_work_on_the_pipe() {
     let out = tempfile::tempdir().unwrap();
@@ -336,9 +406,9 @@ fn round_part_inputs_are_checked() {
             "has no `width`",
         ),
         (
-            format!("{plate}\n[bounds]\nmax_gradient = 1.0\n"),
+            format!("{plate}\n[bounds]\nmax_gradient = 1e12\n"),
             "bounds.max_gradient",
-            "not available for round parts",
+            "temperature unit per degree",
         ),
     ];
     fs::copy(demo().join("readings.csv"), case.join("readings.csv")).unwrap();

@@ -14,17 +14,17 @@ const GRADIENT_DIGITS: i32 = 3;
 
 /// A gradient, K/m, in case units (temperature unit per length unit).
 pub(crate) fn gradient_case(u: &CaseUnits, g_k_per_m: f64) -> f64 {
-    u.dtemp(g_k_per_m) / u.len(1.0)
+    u.gradient(g_k_per_m)
 }
 
-/// The gradient unit in files, e.g. `C/mm`.
+/// The gradient unit in files, e.g. `C/mm` (`C/deg` on a round part).
 pub(crate) fn gradient_unit(u: &CaseUnits) -> String {
-    format!("{}/{}", u.temp_code(), u.len_symbol())
+    format!("{}/{}", u.temp_code(), u.gradient_per())
 }
 
-/// The gradient unit for a reader, e.g. `°C/mm`.
+/// The gradient unit for a reader, e.g. `°C/mm` (`°C/°` on a round part).
 pub(crate) fn gradient_unit_show(u: &CaseUnits) -> String {
-    format!("{}/{}", u.temp_symbol(), u.len_symbol())
+    format!("{}/{}", u.temp_symbol(), u.gradient_per_show())
 }
 
 /// A gradient (K/m) for a reader in case units, three significant digits.
@@ -71,7 +71,7 @@ pub(crate) fn limit_ruled_out(r: &EstimateResult) -> Option<bool> {
 
 /// The verdict on the limit in words.
 pub(crate) fn limit_verdict(r: &EstimateResult) -> Option<String> {
-    let u = CaseUnits::new(r.units);
+    let u = CaseUnits::of_plate(r.units, &r.plate);
     let limit = r.exceedance.as_ref()?.limit;
     let [lo, hi] = bounds_hottest_interval(r)?;
     Some(if hi < limit {
@@ -93,7 +93,7 @@ pub(crate) fn limit_verdict(r: &EstimateResult) -> Option<String> {
 pub(crate) fn bounds_json(r: &EstimateResult) -> Option<Value> {
     let b = r.bounds.as_ref()?;
     let (g, outcome) = b.stated.as_ref()?;
-    let u = CaseUnits::new(r.units);
+    let u = CaseUnits::of_plate(r.units, &r.plate);
     let ratio = |v: f64| rounded(v, RATIO_FILE_DECIMALS);
     let mut v = json!({
         "max_gradient": significant(gradient_case(&u, *g), GRADIENT_DIGITS),
@@ -140,7 +140,7 @@ pub(crate) fn bounds_json(r: &EstimateResult) -> Option<Value> {
 /// The `gradient_study` key of `summary.json` (whenever the bounds were asked for).
 pub(crate) fn gradient_study_json(r: &EstimateResult) -> Option<Value> {
     let b = r.bounds.as_ref()?;
-    let u = CaseUnits::new(r.units);
+    let u = CaseUnits::of_plate(r.units, &r.plate);
     let rows: Vec<Value> = b
         .study
         .rows
@@ -191,7 +191,7 @@ pub(crate) fn bounds_cautions(r: &EstimateResult) -> Vec<String> {
     let Some(b) = r.bounds.as_ref() else {
         return Vec::new();
     };
-    let u = CaseUnits::new(r.units);
+    let u = CaseUnits::of_plate(r.units, &r.plate);
     let mut out = Vec::new();
     if b.approximate && (b.stated.is_some() || b.study.min_gradient_k_per_m.is_some()) {
         out.push(
@@ -226,7 +226,7 @@ pub(crate) fn bounds_text(r: &EstimateResult) -> Vec<(String, String)> {
     let Some(b) = r.bounds.as_ref() else {
         return Vec::new();
     };
-    let u = CaseUnits::new(r.units);
+    let u = CaseUnits::of_plate(r.units, &r.plate);
     let conf = super::summary::percent(b.confidence);
     let unit = gradient_unit_show(&u);
     let mut out = Vec::new();
@@ -311,7 +311,7 @@ pub(crate) fn study_rows(r: &EstimateResult) -> Vec<(String, String)> {
     let Some(b) = r.bounds.as_ref() else {
         return Vec::new();
     };
-    let u = CaseUnits::new(r.units);
+    let u = CaseUnits::of_plate(r.units, &r.plate);
     b.study
         .rows
         .iter()
@@ -334,7 +334,7 @@ pub(crate) fn bounds_html(r: &EstimateResult) -> String {
     let Some(b) = r.bounds.as_ref() else {
         return String::new();
     };
-    let u = CaseUnits::new(r.units);
+    let u = CaseUnits::of_plate(r.units, &r.plate);
     let conf = super::summary::percent(b.confidence);
     let unit = gradient_unit_show(&u);
     let len = u.len_symbol();

@@ -60,7 +60,7 @@ fn header(r: &EstimateResult) -> Header {
             .iter()
             .any(|e| super::bounds::edge_envelope(r, e.edge).is_some())
         {
-            let u = CaseUnits::new(r.units);
+            let u = CaseUnits::of_plate(r.units, &r.plate);
             legend.push((
                 Glyph::Line(BOUNDS, 2),
                 format!(

@@ -292,8 +292,15 @@ pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
             "episodes": episodes,
         })),
         "bounds": s.bounds.map(|b| json!({
-            "max_gradient": significant(u.dtemp(b.max_gradient_k_per_m) / u.len(1.0), 4),
-            "max_gradient_unit": format!("{}/{}", u.temp_code(), u.len_symbol()),
+            "max_gradient": significant(
+                CaseUnits::of_plate(case.units, &case.plate).gradient(b.max_gradient_k_per_m),
+                4
+            ),
+            "max_gradient_unit": format!(
+                "{}/{}",
+                u.temp_code(),
+                CaseUnits::of_plate(case.units, &case.plate).gradient_per()
+            ),
             "every": b.every,
             "rows_bounded": b.rows,
             "rows_limit_certain": b.limit_certain,
@@ -402,11 +409,11 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
             "Strict bounds (every hidden edge changing by at most {} {}/{}, {} %): {} rows \
              bounded (every {} fitted rows and each row opening an episode){}.",
             crate::report::format::significant_text(
-                u.dtemp(b.max_gradient_k_per_m) / u.len(1.0),
+                CaseUnits::of_plate(case.units, &case.plate).gradient(b.max_gradient_k_per_m),
                 3
             ),
             u.temp_symbol(),
-            u.len_symbol(),
+            CaseUnits::of_plate(case.units, &case.plate).gradient_per_show(),
             fixed(100.0 * s.confidence, 0),
             b.rows,
             b.every,
