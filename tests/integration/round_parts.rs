@@ -442,3 +442,50 @@ fn round_part_inputs_are_checked() {
     assert_eq!(code, Some(0), "{err}");
     assert!(out.contains("outer.csv"), "{out}");
 }
+
+// A disk with ring sectors as the allowed region and a keep-out: every designed sensor lies in
+// the allowed sector, outside the keep-out, and the minimum distance from the rim.
+#[test]
+fn design_on_a_disk_keeps_to_its_sectors() {
+    let dir = tempfile::tempdir().unwrap();
+    let case = dir.path();
+    fs::write(
+        case.join("plate.toml"),
+        "[plate]\nshape = \"disk\"\nradius = 60.0\nlength_unit = \"mm\"\n\
+         temperature_unit = \"C\"\n\n[edges.rim]\ncondition = \"unknown\"\n\n[noise]\n\
+         sigma = 0.1\n\n[design]\n\
+         allowed = [{ radius = [20, 55], angle = [300, 200] }]\n\
+         keep_out = [{ radius = [30, 45], angle = [80, 100] }]\nedge_distance = 3.0\n",
+    )
+    .unwrap();
+    fs::write(case.join("sensors.csv"), "sensor,x,y\nC0,0,0\n").unwrap();
+    let (code, out, err) = run(&[
+        "design",
+        s(case),
+        "--count",
+        "6",
+        "--out",
+        s(&case.join("d")),
+    ]);
+    assert_eq!(code, Some(0), "{err}{out}");
+    let layout = fs::read_to_string(case.join("d/layout.csv")).unwrap();
+    let mut designed = 0;
+    for line in layout.lines().skip(1) {
+        let v: Vec<&str> = line.split(',').collect();
+        if v[0] == "C0" {
+            continue;
+        }
+        designed += 1;
+        let (x, y): (f64, f64) = (v[1].parse().unwrap(), v[2].parse().unwrap());
+        let r = x.hypot(y);
+        let a = y.atan2(x).to_degrees().rem_euclid(360.0);
+        // allowed: 300° through 0° to 200°, radii 20 to 55 (and 3 mm from the rim)
+        assert!((20.0 - 1e-6..=55.0 + 1e-6).contains(&r), "{line}");
+        assert!(!(200.0 + 1e-6..300.0 - 1e-6).contains(&a), "{line}: {a}°");
+        let in_keep_out = (30.0..=45.0).contains(&r) && (80.0..=100.0).contains(&a);
+        assert!(!in_keep_out, "{line} in the keep-out");
+    }
+    assert_eq!(designed, 6, "{layout}");
+    let svg = fs::read_to_string(case.join("d/design.svg")).unwrap();
+    assert!(svg.contains("The disk (radius 60.0 mm"));
+}
