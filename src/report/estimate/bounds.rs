@@ -337,7 +337,12 @@ pub(crate) fn bounds_html(r: &EstimateResult) -> String {
     let u = CaseUnits::of_plate(r.units, &r.plate);
     let conf = super::summary::percent(b.confidence);
     let unit = gradient_unit_show(&u);
-    let len = u.len_symbol();
+    // per length unit, or per degree along a circle
+    let len = if r.plate.shape().is_round() {
+        "degree"
+    } else {
+        u.len_symbol()
+    };
     let mut o = String::new();
     o.push_str("<h2>How hot could it be? Strict bounds</h2>\n");
     let _ = writeln!(
