@@ -38,4 +38,11 @@ run design-cold-w design "$S/cold-plate" --count 6 --criterion worst --out "$O/d
 run track-bus track "$S/busbar-clamp" --log "$S/busbar-clamp/log.csv" --out "$O/track-bus" --limit 70
 run track-bus-cal track "$S/busbar-clamp" --log "$S/busbar-clamp/log.csv" --out "$O/track-bus-cal" --calibrate 50
 run track-bus-mg track "$S/busbar-clamp" --log "$S/busbar-clamp/log.csv" --out "$O/track-bus-mg" --max-gradient 3
+# round parts (the feedwater pipe), when the sample set has them
+if [ -d "$S/feedwater-pipe" ]; then
+  run check-pipe check "$S/feedwater-pipe"
+  run est-pipe estimate "$S/feedwater-pipe" --out "$O/est-pipe" --limit 200 --max-gradient 2
+  run sim-pipe simulate "$S/feedwater-pipe" --truth "$S/feedwater-pipe/truth-profile.csv" --noise 0.3 --seed 7 --out "$O/sim-pipe.csv" --field "$O/sim-pipe-field.csv"
+  run design-pipe design "$S/feedwater-pipe" --count 6 --out "$O/design-pipe"
+fi
 mv "$O" "$DEST"

@@ -486,16 +486,12 @@ fn quasi_interpolation_allowance(
             continue;
         }
         let n = series.terms();
-        let min_depth = sensors
-            .iter()
-            .map(|&p| shape.depth_from(e.edge, p))
-            .fold(f64::INFINITY, f64::min);
-        let per_cell = SUBPOINTS.max((10.0 * e.spacing_m / min_depth).ceil() as usize);
-        let cells = e.positions_m.len() - 1;
-        let fine: Vec<f64> = (0..=cells * per_cell)
-            .map(|k| k as f64 * e.spacing_m / per_cell as f64)
-            .collect();
-        let ds = e.spacing_m / per_cell as f64;
+        let FineGrid {
+            per_cell,
+            cells,
+            fine,
+            ds,
+        } = FineGrid::new(shape, sensors, e);
         // φ_n at the fine points, divided by ‖φ_n‖².
         let mut phi = vec![0.0; fine.len() * n];
         for (k, &s) in fine.iter().enumerate() {
@@ -644,16 +640,12 @@ fn polar_quasi_interpolation_allowance(
         };
         let radius = e.length_m / std::f64::consts::TAU;
         let n = map.terms;
-        let min_depth = sensors
-            .iter()
-            .map(|&p| shape.depth_from(e.edge, p))
-            .fold(f64::INFINITY, f64::min);
-        let per_cell = SUBPOINTS.max((10.0 * e.spacing_m / min_depth).ceil() as usize);
-        let cells = e.positions_m.len() - 1;
-        let fine: Vec<f64> = (0..=cells * per_cell)
-            .map(|k| k as f64 * e.spacing_m / per_cell as f64)
-            .collect();
-        let ds = e.spacing_m / per_cell as f64;
+        let FineGrid {
+            per_cell,
+            cells,
+            fine,
+            ds,
+        } = FineGrid::new(shape, sensors, e);
         let mut phi = vec![0.0; fine.len() * n];
         for (k, &s) in fine.iter().enumerate() {
             crate::forward::polar::trig_into(s / radius, &mut phi[k * n..(k + 1) * n]);
@@ -689,6 +681,36 @@ fn polar_quasi_interpolation_allowance(
         }
     }
     rho
+}
+
+/// The quadrature grid of an edge's kernels: `per_cell` points per node cell (at least
+/// [`SUBPOINTS`], and a tenth of the shallowest sensor depth or finer), `cells` cells, the
+/// fine positions and their spacing.
+struct FineGrid {
+    per_cell: usize,
+    cells: usize,
+    fine: Vec<f64>,
+    ds: f64,
+}
+
+impl FineGrid {
+    fn new(shape: &Shape, sensors: &[Point], e: &EdgeNodes) -> Self {
+        let min_depth = sensors
+            .iter()
+            .map(|&p| shape.depth_from(e.edge, p))
+            .fold(f64::INFINITY, f64::min);
+        let per_cell = SUBPOINTS.max((10.0 * e.spacing_m / min_depth).ceil() as usize);
+        let cells = e.positions_m.len() - 1;
+        let fine = (0..=cells * per_cell)
+            .map(|k| k as f64 * e.spacing_m / per_cell as f64)
+            .collect();
+        FineGrid {
+            per_cell,
+            cells,
+            fine,
+            ds: e.spacing_m / per_cell as f64,
+        }
+    }
 }
 
 /// `∫ |R|` with `R = ∫ (K − Q K)` for a kernel sampled at `per_cell` points per node cell

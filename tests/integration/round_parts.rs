@@ -38,6 +38,24 @@ fn sector_kelvin(deg: f64, centre_deg: f64) -> f64 {
     423.15 + 40.0 * (-(d / 25.0).powi(2)).exp()
 }
 
+/// The demo case with its inner wall at an invented hot sector centred at `centre_deg`
+/// (tabulated at 0.5°): the case, the true profile and the exact readings of its sensors.
+fn sector_case(centre_deg: f64) -> (edgetherm::case::Case, EdgeProfile, Vec<f64>) {
+    let case = load_case(&CaseFiles::in_dir(demo())).unwrap();
+    let a = 0.045;
+    let n = 720;
+    let pos: Vec<f64> = (0..n).map(|i| a * TAU * i as f64 / n as f64).collect();
+    let t: Vec<f64> = pos
+        .iter()
+        .map(|s| sector_kelvin((s / a).to_degrees(), centre_deg))
+        .collect();
+    let truth = EdgeProfile::periodic(pos, t, TAU * a).unwrap();
+    let model = truth_model(&case.plate, &[(Edge::Inner, truth.clone())]).unwrap();
+    let points: Vec<_> = case.sensors.iter().map(|s| s.position).collect();
+    let exact = exact_readings(&model, &points).unwrap();
+    (case, truth, exact)
+}
+
 #[test]
 fn check_describes_the_polar_model() {
     let (code, out, err) = run(&["check", s(&demo())]);
@@ -102,19 +120,8 @@ fn estimate_writes_angles_and_draws_the_ring() {
 // (written start > end) that holds the true hottest angle.
 #[test]
 fn hottest_interval_wraps_through_zero() {
-    let files = CaseFiles::in_dir(demo());
-    let case = load_case(&files).unwrap();
+    let (case, _, exact) = sector_case(355.0);
     let a = 0.045;
-    let n = 720;
-    let pos: Vec<f64> = (0..n).map(|i| a * TAU * i as f64 / n as f64).collect();
-    let t: Vec<f64> = pos
-        .iter()
-        .map(|s| sector_kelvin((s / a).to_degrees(), 355.0))
-        .collect();
-    let truth = EdgeProfile::periodic(pos, t, TAU * a).unwrap();
-    let model = truth_model(&case.plate, &[(Edge::Inner, truth)]).unwrap();
-    let points: Vec<_> = case.sensors.iter().map(|s| s.position).collect();
-    let exact = exact_readings(&model, &points).unwrap();
     let readings: Vec<Option<f64>> = add_noise(&exact, 0.3, 4)
         .unwrap()
         .into_iter()
@@ -152,19 +159,8 @@ fn hottest_interval_wraps_through_zero() {
 // (the interval is meant to hold it at 95 %; 24 draws leave room for one or two misses).
 #[test]
 fn pipe_wall_bands_cover_the_hot_sector() {
-    let files = CaseFiles::in_dir(demo());
-    let case = load_case(&files).unwrap();
+    let (case, truth, exact) = sector_case(120.0);
     let a = 0.045;
-    let n = 720;
-    let pos: Vec<f64> = (0..n).map(|i| a * TAU * i as f64 / n as f64).collect();
-    let t: Vec<f64> = pos
-        .iter()
-        .map(|s| sector_kelvin((s / a).to_degrees(), 120.0))
-        .collect();
-    let truth = EdgeProfile::periodic(pos, t, TAU * a).unwrap();
-    let model = truth_model(&case.plate, &[(Edge::Inner, truth.clone())]).unwrap();
-    let points: Vec<_> = case.sensors.iter().map(|s| s.position).collect();
-    let exact = exact_readings(&model, &points).unwrap();
     let draws = 24;
     let (mut covered, mut total, mut hottest_inside) = (0usize, 0usize, 0usize);
     for d in 0..draws {
@@ -213,19 +209,8 @@ fn pipe_wall_bands_cover_the_hot_sector() {
 #[test]
 fn strict_bounds_on_a_pipe_wall_hold_the_truth() {
     use edgetherm::bounds::BoundsOutcome;
-    let files = CaseFiles::in_dir(demo());
-    let case = load_case(&files).unwrap();
+    let (case, truth, exact) = sector_case(120.0);
     let a = 0.045;
-    let n = 720;
-    let pos: Vec<f64> = (0..n).map(|i| a * TAU * i as f64 / n as f64).collect();
-    let t: Vec<f64> = pos
-        .iter()
-        .map(|s| sector_kelvin((s / a).to_degrees(), 120.0))
-        .collect();
-    let truth = EdgeProfile::periodic(pos, t, TAU * a).unwrap();
-    let model = truth_model(&case.plate, &[(Edge::Inner, truth.clone())]).unwrap();
-    let points: Vec<_> = case.sensors.iter().map(|s| s.position).collect();
-    let exact = exact_readings(&model, &points).unwrap();
     let per_degree_m = a * std::f64::consts::PI / 180.0;
     assert!(
         (edgetherm::bounds::gradient_unit_m(&case.plate, &case.units) - per_degree_m).abs() < 1e-15

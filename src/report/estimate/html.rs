@@ -369,12 +369,16 @@ fn edges_table_html(o: &mut String, r: &EstimateResult) {
             None,
         );
     }
-    o.push_str(
+    o.push_str(if r.plate.shape().is_round() {
         "</table>\n<p class=\"meta\">The resolution length is the finest feature the \
-                sensors can resolve along the edge (along a circle: an arc length); narrower \
-                features are smoothed away. Heat flows are per unit depth of the plate (of a \
-                round part: per unit length of the pipe, or per unit thickness of a disk).</p>\n",
-    );
+                sensors can resolve along the edge, as an arc length; narrower features are \
+                smoothed away. Heat flows are per unit length of the pipe (per unit thickness \
+                of a disk).</p>\n"
+    } else {
+        "</table>\n<p class=\"meta\">The resolution length is the finest feature the \
+                sensors can resolve along the edge; narrower features are smoothed away. Heat \
+                flows are per unit depth of the plate.</p>\n"
+    });
 }
 
 /// The sensor table, flagged rows highlighted and doubtful rows dashed.
