@@ -680,8 +680,14 @@ pub fn gradient_study(
         input.max_temperature_k,
     );
     let h_max = set.edges.iter().map(|e| e.spacing_m).fold(0.0, f64::max);
+    // the series of assumed limits is round in K/m, or in K per degree on a round part
+    let unit = degree_m(input.plate).unwrap_or(1.0);
+    let limits: Vec<f64> = study_gradients(g_min * unit, floor * unit, count)
+        .into_iter()
+        .map(|g| g / unit)
+        .collect();
     // the rows are independent: one Piyavskii–Shubert search each, in parallel
-    let rows = study_gradients(g_min, floor, count)
+    let rows = limits
         .into_par_iter()
         .map(|g| {
             let upper = peak_upper(
@@ -759,9 +765,15 @@ pub fn strict_bounds(
 /// radius: at the smallest it is the largest per metre, so the admissible set holds every
 /// profile the per-degree limit allows on any hidden circle).
 pub fn gradient_unit_m(plate: &Plate, units: &crate::units::Units) -> f64 {
+    degree_m(plate).unwrap_or_else(|| units.length_to_m(1.0))
+}
+
+/// One degree of arc of the smallest hidden circle of a round part, metres (`None` for a
+/// rectangle or strip): the unit of its gradient limits ([`gradient_unit_m`]).
+pub fn degree_m(plate: &Plate) -> Option<f64> {
     let shape = plate.shape();
     if !shape.is_round() {
-        return units.length_to_m(1.0);
+        return None;
     }
     let hidden = plate.unknown_edges();
     let radii = if hidden.is_empty() {
@@ -773,7 +785,7 @@ pub fn gradient_unit_m(plate: &Plate, units: &crate::units::Units) -> f64 {
         .iter()
         .filter_map(|&e| shape.radius_of(e))
         .fold(f64::INFINITY, f64::min);
-    r * std::f64::consts::PI / 180.0
+    Some(r * std::f64::consts::PI / 180.0)
 }
 
 /// The strict bounds of an estimate, never an error: a failure is recorded in
