@@ -69,7 +69,7 @@ pub struct EstimateArgs {
     /// positive number (fixed).
     #[arg(long, value_name = "RULE")]
     pub strength: Option<String>,
-    /// Field grid: NX,NY points, edges included [default: 41,41].
+    /// Field grid: NX,NY points, edges included (a round part: NX angles round the circle by NY radii across it) [default: 41,41].
     #[arg(long, value_name = "NX,NY")]
     pub grid: Option<String>,
     /// Steepest credible change of a hidden edge's temperature along it, in the case's

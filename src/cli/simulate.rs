@@ -40,7 +40,7 @@ pub struct SimulateArgs {
     /// Also write the true field on a grid (`x,y,temperature`) to this file.
     #[arg(long, value_name = "FILE")]
     pub field: Option<PathBuf>,
-    /// Grid for --field: NX,NY points, edges included (a strip's grid is one width deep)
+    /// Grid for --field: NX,NY points, edges included (a strip's grid is one width deep; a round part's is NX angles by NY radii)
     /// [default: 41,41].
     #[arg(long, value_name = "NX,NY")]
     pub grid: Option<String>,
