@@ -14,7 +14,11 @@ returns one row. A task that fails (a bad file) returns its error as its row; th
 finish.
 
 Writes into ``--out``: ``fleet.parquet`` and ``fleet.csv`` (one row per plate, worst first)
-and ``fleet.html`` (an overview page sorted by risk). Risk follows the hotter explanation:
+and ``fleet.html`` (an overview page sorted by risk).
+
+Without Dask, the same task function runs one task per process of a job array
+(``--list-tasks`` for the array's size, ``--task N`` per element, ``--collect`` at the end);
+see docs/fleet.md for Slurm, Kubernetes and Spark. Risk follows the hotter explanation:
 plates whose log could not be read come first (their risk is unknown), then plates with
 alarm episodes, then by the upper end of the hottest point's interval.
 
@@ -203,8 +207,14 @@ def sort_by_risk(table):
     return table.iloc[order].reset_index(drop=True)
 
 
+def _missing(v: Any) -> bool:
+    import pandas as pd
+
+    return v is None or (not isinstance(v, (list, tuple, dict)) and bool(pd.isna(v)))
+
+
 def _cell(v: Any) -> str:
-    if v is None or (isinstance(v, float) and v != v):
+    if _missing(v):
         return ""
     if isinstance(v, float):
         return f"{v:.2f}"
@@ -218,9 +228,11 @@ def overview_html(table, limit: Optional[float]) -> str:
     for _, r in table.iterrows():
         status = r["status"]
         detail = r["error"] if status == "error" else r["failing_sensors"]
-        unit = "" if r["unit"] is None else ("K" if r["unit"] == "K" else f"°{r['unit']}")
+        unit = "" if _missing(r["unit"]) else ("K" if r["unit"] == "K" else f"°{r['unit']}")
+        estimate = "" if _missing(r["hottest_temperature"]) else f"{r['hottest_temperature']:.1f} {unit}"
+        detail_class = "detail error" if status == "error" else ("detail sensors" if detail else "detail")
         lower, upper = r["hottest_lower"], r["hottest_upper"]
-        known = lower is not None and lower == lower and upper is not None and upper == upper
+        known = not _missing(lower) and not _missing(upper)
         interval = f"{lower:.1f} – {upper:.1f} {unit}" if known else ""
         upper_text = f"{upper:.1f} {unit}" if known else ""
         rows.append(
@@ -228,11 +240,11 @@ def overview_html(table, limit: Optional[float]) -> str:
             f'<td><span class="badge {status}">{status.upper()}</span></td>'
             f'<td class="num"><b>{upper_text}</b></td>'
             f'<td class="num">{interval}</td>'
-            f'<td class="num">{_cell(r["hottest_temperature"])}</td>'
-            f'<td>{_cell(r["hottest_time"])}</td>'
+            f'<td class="num">{estimate}</td>'
+            f'<td class="time">{_cell(r["hottest_time"])}</td>'
             f'<td class="num">{_cell(r["alarm_episodes"])}</td>'
-            f'<td>{_cell(r["first_alarm"])}</td>'
-            f'<td class="detail">{_cell(detail)}</td>'
+            f'<td class="time">{_cell(r["first_alarm"])}</td>'
+            f'<td class="{detail_class}">{_cell(detail)}</td>'
             f'<td class="log">{_cell(r["logs"])}</td></tr>'
         )
     limit_text = f"alarm limit {limit:g} (each plate's temperature unit)" if limit is not None else "no alarm limit given"
@@ -251,7 +263,10 @@ th {{ text-align: left; background: #eef1f5; padding: 6px 8px; border-bottom: 2p
 td {{ padding: 5px 8px; border-bottom: 1px solid #e3e7ec; vertical-align: top; }}
 td.num {{ text-align: right; white-space: nowrap; font-variant-numeric: tabular-nums; }}
 td.plate {{ font-weight: 600; white-space: nowrap; }}
-td.detail {{ max-width: 420px; }}
+td.detail {{ max-width: 440px; }}
+td.detail.sensors {{ color: #a34700; font-weight: 600; }}
+td.detail.error {{ color: #8c1d18; }}
+td.time {{ white-space: nowrap; font-variant-numeric: tabular-nums; }}
 td.log {{ color: #556; white-space: nowrap; }}
 tr.error td {{ background: #fdecec; }}
 tr.alarm td {{ background: #fff3e0; }}
@@ -302,6 +317,12 @@ def run_fleet(root: str, out: Path, options: Dict[str, Any], scheduler: Optional
     from dask.distributed import Client, LocalCluster, as_completed
 
     tasks = find_tasks(root)
+    if __name__ != "__main__" and __name__ in sys.modules:
+        # imported (a notebook, the tests): ship this module's functions to the workers by
+        # value, so that they need not import it from a path of their own
+        import cloudpickle
+
+        cloudpickle.register_pickle_by_value(sys.modules[__name__])
     own = None
     if client is None:
         if scheduler:
@@ -333,6 +354,33 @@ def run_fleet(root: str, out: Path, options: Dict[str, Any], scheduler: Optional
     return table
 
 
+def run_one_task(root: str, index: int, out: Path, options: Dict[str, Any]) -> Path:
+    """Without Dask: run task ``index`` of ``find_tasks(root)`` (the same ``track_one``) and
+    write its row to ``out/parts/task-INDEX.json``, for a Slurm or Kubernetes job array;
+    ``collect`` then makes the fleet table from the parts."""
+    import json
+
+    tasks = find_tasks(root)
+    if not 0 <= index < len(tasks):
+        raise SystemExit(f"--task {index}: there are {len(tasks)} tasks (0 to {len(tasks) - 1})")
+    row = track_one(tasks[index], options)
+    parts = out / "parts"
+    parts.mkdir(parents=True, exist_ok=True)
+    path = parts / f"task-{index:06d}.json"
+    _write_atomic(path, json.dumps(row).encode())
+    return path
+
+
+def collect(out: Path, options: Dict[str, Any]):
+    """The fleet table from the parts a job array wrote (``run_one_task``)."""
+    import json
+
+    rows = [json.loads(p.read_text()) for p in sorted((out / "parts").glob("task-*.json"))]
+    table = per_plate(rows)
+    write_outputs(table, out, options.get("limit"))
+    return table
+
+
 def main(argv: Optional[List[str]] = None) -> int:
     p = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     p.add_argument("fleet", help="folder (or fsspec URL) with one folder per plate")
@@ -343,13 +391,28 @@ def main(argv: Optional[List[str]] = None) -> int:
     p.add_argument("--scheduler", help="address of a running Dask scheduler")
     p.add_argument("--workers", type=int, default=2, help="LocalCluster worker processes")
     p.add_argument("--threads", type=int, default=1, help="threads per worker")
+    p.add_argument("--list-tasks", action="store_true",
+                   help="print the number of tasks (for a job array's size) and stop")
+    p.add_argument("--task", type=int,
+                   help="without Dask: run only task N (e.g. $SLURM_ARRAY_TASK_ID) into OUT/parts/")
+    p.add_argument("--collect", action="store_true",
+                   help="without Dask: make the fleet table from OUT/parts/")
     a = p.parse_args(argv)
     options: Dict[str, Any] = {"probability": a.probability}
     if a.limit is not None:
         options["limit"] = a.limit
     if a.calibrate is not None:
         options["calibrate"] = a.calibrate
-    table = run_fleet(a.fleet, Path(a.out), options, a.scheduler, a.workers, a.threads)
+    if a.list_tasks:
+        print(len(find_tasks(a.fleet)))
+        return 0
+    if a.task is not None:
+        print(run_one_task(a.fleet, a.task, Path(a.out), options))
+        return 0
+    if a.collect:
+        table = collect(Path(a.out), options)
+    else:
+        table = run_fleet(a.fleet, Path(a.out), options, a.scheduler, a.workers, a.threads)
     n_err = int((table["status"] == "error").sum())
     n_alarm = int((table["status"] == "alarm").sum())
     print(f"{len(table)} plates: {n_alarm} with alarms, {n_err} with errors; wrote "

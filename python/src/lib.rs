@@ -194,12 +194,11 @@ fn estimate<'py>(
     max_gradient: Option<f64>,
     no_bounds: bool,
 ) -> PyResult<Bound<'py, PyDict>> {
-    let values: Option<Vec<Option<f64>>> = match &readings {
-        Some(a) => Some(a.as_array().iter().map(|&v| Some(v)).collect()),
-        None => None,
-    };
+    let values: Option<Vec<Option<f64>>> = readings
+        .as_ref()
+        .map(|a| a.as_array().iter().map(|&v| Some(v)).collect());
     let files = case.files.clone();
-    let run = py.detach(move || -> Result<(Vec<(&'static str, Vec<u8>)>, i32)> {
+    let run = py.detach(move || -> Result<(Rendered, i32)> {
         let mut case = edgetherm::io::load_case(&files)?;
         let readings = match values {
             Some(v) => {
@@ -319,6 +318,17 @@ fn estimate<'py>(
     Ok(d)
 }
 
+/// Rendered output files: (file name, bytes).
+type Rendered = Vec<(&'static str, Vec<u8>)>;
+
+/// An opened row source, how it is read, the sensors with no column, the ignored columns.
+type Opened<'a> = (
+    Box<dyn RowSource + 'a>,
+    edgetherm::case::ReadAs,
+    Vec<usize>,
+    Vec<String>,
+);
+
 /// Where a track run's rows come from.
 enum Rows<'a> {
     /// A logger file (CSV or Parquet).
@@ -427,7 +437,7 @@ struct TrackSettings {
 
 /// What a track run gives back.
 struct TrackRun {
-    outputs: Vec<(&'static str, Vec<u8>)>,
+    outputs: Rendered,
     exit_status: i32,
     absent: Vec<String>,
     ignored: Vec<String>,
@@ -436,16 +446,7 @@ struct TrackRun {
 /// Rows an unknown `h` is estimated from when `calibrate` is not given (as the command line).
 const H_DEFAULT_ROWS: usize = 200;
 
-fn open_source<'a>(
-    rows: &'a Rows<'a>,
-    case: &Case,
-    ignore_extra: bool,
-) -> Result<(
-    Box<dyn RowSource + 'a>,
-    edgetherm::case::ReadAs,
-    Vec<usize>,
-    Vec<String>,
-)> {
+fn open_source<'a>(rows: &'a Rows<'a>, case: &Case, ignore_extra: bool) -> Result<Opened<'a>> {
     match rows {
         Rows::File(path) => {
             let reader = edgetherm::io::LoggerReader::open(
@@ -595,7 +596,7 @@ fn run_track(files: &CaseFiles, rows: &Rows<'_>, s: &TrackSettings) -> Result<Tr
         edgetherm::report::track::summary_json(case, &summary)
     );
     let svg = edgetherm::report::track::plot::track_svg(case, &summary, &tracker.series().bins())?;
-    let mut outputs: Vec<(&'static str, Vec<u8>)> = Vec::new();
+    let mut outputs: Rendered = Vec::new();
     if let Some(t) = table {
         outputs.push(("track.csv", t));
     }
@@ -802,7 +803,7 @@ fn design<'py>(
 ) -> PyResult<Bound<'py, PyDict>> {
     let files = case.files.clone();
     let run = py
-        .detach(move || -> Result<Vec<(&'static str, Vec<u8>)>> {
+        .detach(move || -> Result<Rendered> {
             use edgetherm::design::{Criterion, DesignSpace, LayoutSensor};
             let mut case = edgetherm::io::case::load_design_case(&files)?;
             if let Some(v) = variation {

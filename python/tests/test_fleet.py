@@ -119,3 +119,23 @@ def test_fleet_outputs_are_sorted_by_risk_and_readable(fleet_run):
     html = (out / "fleet.html").read_text()
     assert "estimates, not measurements" in html and "licensed practice" in html
     assert html.index("plate-e") < html.index(table[table["status"] == "ok"]["plate"].iloc[0])
+
+
+def test_job_array_mode_gives_the_same_table(fleet_run):
+    """The same task function run one task per process (as a Slurm or Kubernetes job array
+    would), then collected: the table of the Dask run, but for the timing columns."""
+    import subprocess
+    import sys
+
+    fleet, logs, table, out, root = fleet_run
+    array_out = root / "array"
+    args = [sys.executable, str(FLEET), str(root / "plates"), "--out", str(array_out),
+            "--limit", "100", "--calibrate", "60"]
+    n = int(subprocess.run(args + ["--list-tasks"], capture_output=True, text=True, check=True).stdout)
+    assert n == len(logs)
+    for i in range(n):
+        subprocess.run(args + ["--task", str(i)], capture_output=True, check=True)
+    subprocess.run(args + ["--collect"], capture_output=True, check=True)
+    collected = pd.read_parquet(array_out / "fleet.parquet")
+    timing = ["seconds", "peak_rss_mb"]
+    pd.testing.assert_frame_equal(collected.drop(columns=timing), table.drop(columns=timing))
