@@ -67,7 +67,15 @@ def main():
         import pyarrow as pa
         import pyarrow.parquet as pq
 
-        df = pd.read_csv(a.to_parquet)
+        # the logger's text fault markers (src/io/logger.rs FAULT_MARKERS) as missing values,
+        # ISO times as UTC timestamps: the table the CSV holds, as the CSV reader reads it
+        markers = ["nan", "-nan", "na", "n/a", "null", "none", "-", "--", "---", "----", "*",
+                   "****", "*****", "open", "oc", "o/c", "ol", "+ol", "-ol", "over", "under",
+                   "ovr", "err", "error", "fault", "burnout"]
+        na = markers + [m.upper() for m in markers] + [m.capitalize() for m in markers]
+        df = pd.read_csv(a.to_parquet, na_values=na, keep_default_na=False)
+        if df["time"].dtype == object:
+            df["time"] = pd.to_datetime(df["time"], utc=True)
         out = a.to_parquet.rsplit(".", 1)[0] + ".parquet"
         pq.write_table(pa.Table.from_pandas(df, preserve_index=False), out)
         print(out)

@@ -353,6 +353,16 @@ def _time_arguments(time) -> Dict[str, Any]:
     return {"time_text": [str(v) for v in time.tolist()]}
 
 
+def _float_column(col) -> np.ndarray:
+    """A column as a contiguous float64 array (NaN: no reading): the column's own memory when
+    it is a NumPy float64 column (no copy), else one converted copy."""
+    if col.dtype == np.float64:
+        values = col.to_numpy(copy=False)
+        if values.flags.c_contiguous:
+            return values
+    return np.ascontiguousarray(col.to_numpy(dtype=np.float64, na_value=np.nan))
+
+
 def track(case: Union[Case, PathLike], log: Any, **options: Any) -> TrackResult:
     """Track a logger table row by row, as ``edgetherm track CASE --log LOG`` does: per-row
     estimate, hottest point through time, alarm episodes, failing sensors.
@@ -388,7 +398,7 @@ def track(case: Union[Case, PathLike], log: Any, **options: Any) -> TrackResult:
                 f"DataFrame, field `{c}`: the column holds {col.dtype} values; it must hold "
                 "numbers (float; a missing reading is NaN)"
             )
-        columns.append(np.ascontiguousarray(col.to_numpy(dtype=np.float64, na_value=np.nan)))
+        columns.append(_float_column(col))
     if time_col is None:
         # no time column: the library's message says so (a placeholder name that is none)
         time_kw = {"time_seconds": np.zeros(len(log))}

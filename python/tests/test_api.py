@@ -255,3 +255,18 @@ def test_thread_pool_runs_tracks_side_by_side():
     t2 = time.perf_counter()
     print(f"4 tracks: one after the other {t1 - t0:.2f} s, pool of 2 threads {t2 - t1:.2f} s")
     assert pooled == serial
+
+
+def test_float64_columns_cross_without_copies():
+    """The arrays handed to the native call are the DataFrame's own memory for float64
+    columns (numpy's shares_memory), and one converted copy for other number types."""
+    from edgetherm import _float_column
+
+    df = pd.DataFrame({"a": np.arange(5, dtype=np.float64), "b": np.arange(5, dtype=np.float64),
+                       "c": np.arange(5, dtype=np.int64)})
+    for name in ("a", "b"):
+        assert np.shares_memory(_float_column(df[name]), df[name].to_numpy())
+    c = _float_column(df["c"])
+    assert c.dtype == np.float64 and not np.shares_memory(c, df["c"].to_numpy())
+    nullable = pd.Series([1.0, None, 3.0], dtype="Float64")
+    assert np.isnan(_float_column(nullable)[1])

@@ -151,15 +151,7 @@ impl ColumnarRows {
     /// slashed dates are ambiguous.
     pub fn detect_text_times(&mut self, cells: &[&str]) -> Result<()> {
         if self.time_format.is_none() && !cells.is_empty() {
-            let f = crate::io::times::detect(cells, false).map_err(|m| {
-                Error::invalid_at(
-                    &self.path,
-                    Some(2),
-                    Some("time"),
-                    format!("{m}{TIME_FORMAT_HINT}"),
-                )
-            })?;
-            self.time_format = Some(f);
+            self.time_format = Some(detect_format(&self.path, cells)?);
         }
         Ok(())
     }
@@ -179,15 +171,7 @@ impl ColumnarRows {
         out: &mut LoggerRow,
     ) -> Result<()> {
         let line = Self::line_of(index);
-        let path = self.path.clone();
-        let at = |field: &str, msg: String| {
-            Error::invalid_at(
-                &path,
-                Some(line as usize),
-                Some(field),
-                format!("{msg} (table row {})", index + 1),
-            )
-        };
+        let at = |field: &str, msg: String| row_error(&self.path, index, field, msg);
         out.line = line;
         out.values.clear();
         out.values.resize(self.sensor_count, None);
@@ -206,15 +190,21 @@ impl ColumnarRows {
                         format!("{nanos} ns since 1970 is outside the years 0001 to 9999"),
                     )
                 })?;
-                let (t, kind) = TimeFormat::Iso.parse(&text, false).ok_or_else(|| {
-                    Error::Internal(format!("the written time {text} does not read back"))
-                })?;
+                // the seconds the CSV reader gets from that text (`times::parse_iso`: jiff's
+                // instant, `as_secs_f64`), without parsing it back (unit test below)
+                let t = instant_seconds(nanos)
+                    .ok_or_else(|| Error::Internal(format!("the time {text} has no instant")))?;
+                let kind = if zoned {
+                    TimeKind::Zoned
+                } else {
+                    TimeKind::Naive
+                };
                 self.time_format.get_or_insert(TimeFormat::Iso);
                 (text, t, kind)
             }
             TimeCell::Text(s) => {
                 if self.time_format.is_none() {
-                    self.detect_text_times(&[s])?;
+                    self.time_format = Some(detect_format(&self.path, &[s])?);
                 }
                 let format = self.time_format.unwrap_or(TimeFormat::Iso);
                 let (t, kind) = format.parse(s, false).ok_or_else(|| {
@@ -258,7 +248,7 @@ impl ColumnarRows {
         let cold_junction = match self.map.cold_junction_column {
             Some(c) => {
                 let v = match cell(c) {
-                    Some(v) => checked_number(v, &format!("{v}"), "temperature")
+                    Some(v) => checked_number(v, &|| format!("{v}"), "temperature")
                         .map_err(|m| at("cold_junction", m))?,
                     None => None,
                 };
@@ -277,7 +267,8 @@ impl ColumnarRows {
             let Some(i) = *sensor else { continue };
             let Some(v) = cell(k) else { continue };
             let name = &self.map.column_names[k];
-            let Some(v) = checked_number(v, &format!("{v}"), what).map_err(|m| at(name, m))? else {
+            let Some(v) = checked_number(v, &|| format!("{v}"), what).map_err(|m| at(name, m))?
+            else {
                 continue;
             };
             out.values[i] =
@@ -311,6 +302,36 @@ impl ColumnarRows {
             description,
         }
     }
+}
+
+/// The format of text times from the first rows' cells (as a CSV logger's are found).
+fn detect_format(path: &Path, cells: &[&str]) -> Result<TimeFormat> {
+    crate::io::times::detect(cells, false).map_err(|m| {
+        Error::invalid_at(
+            path,
+            Some(2),
+            Some("time"),
+            format!("{m}{TIME_FORMAT_HINT}"),
+        )
+    })
+}
+
+/// An error about row `index` (0-based) of a columnar log: its CSV line, the field, and the
+/// table row in the message.
+fn row_error(path: &Path, index: u64, field: &str, msg: String) -> Error {
+    Error::invalid_at(
+        path,
+        Some(ColumnarRows::line_of(index) as usize),
+        Some(field),
+        format!("{msg} (table row {})", index + 1),
+    )
+}
+
+/// Seconds since 1970 of an instant given in nanoseconds, as the CSV reader computes them
+/// from its ISO 8601 text.
+fn instant_seconds(nanos: i64) -> Option<f64> {
+    let ts = jiff::Timestamp::from_nanosecond(i128::from(nanos)).ok()?;
+    Some(ts.as_duration().as_secs_f64())
 }
 
 /// An instant as ISO 8601 text, as a CSV logger would write it: `YYYY-MM-DDThh:mm:ss`, the
@@ -736,5 +757,37 @@ mod tests {
             .unwrap();
         assert_eq!(k, TimeKind::Zoned);
         assert!((t - (11017.0 * 86400.0 + 0.25)).abs() < 1e-6);
+    }
+
+    #[test]
+    fn instant_seconds_are_the_csv_readers_bit_for_bit() {
+        // the seconds a columnar row gets are those the CSV reader parses from the text the
+        // row writes, zoned and naive, whole and fractional seconds, before and after 1970
+        let mut x: u64 = 0x2545_f491_4f6c_dd1d;
+        let mut cases = vec![
+            0_i64,
+            -1,
+            1,
+            999_999_999,
+            -1_500_000_000,
+            1_772_348_400_123_456_789,
+        ];
+        for _ in 0..2000 {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            cases.push((x % 4_000_000_000_000_000_000) as i64 - 1_000_000_000_000_000_000);
+        }
+        for n in cases {
+            for zoned in [true, false] {
+                let text = iso_text(n, zoned).unwrap();
+                let (t, _) = TimeFormat::Iso.parse(&text, false).unwrap();
+                assert_eq!(
+                    t.to_bits(),
+                    instant_seconds(n).unwrap().to_bits(),
+                    "{n} {text}"
+                );
+            }
+        }
     }
 }

@@ -579,7 +579,7 @@ impl CsvLog {
                 )));
             }
         };
-        checked_number(v, text, what).map_err(err)
+        checked_number(v, &|| text.to_string(), what).map_err(err)
     }
 
     fn reading(
@@ -658,8 +658,13 @@ impl TimeOrder {
 
 /// The checks of a number read from a logger cell, shared by CSV and columnar logs: NaN and
 /// the [`FAULT_CODES`] are "no reading"; any other non-finite number is an error (the message,
-/// to which the caller adds file, line and column). `text` is the cell as written.
-pub(crate) fn checked_number(v: f64, text: &str, what: &str) -> Result<Option<f64>, String> {
+/// to which the caller adds file, line and column). `text` gives the cell as written (only
+/// called for the message).
+pub(crate) fn checked_number(
+    v: f64,
+    text: &dyn Fn() -> String,
+    what: &str,
+) -> Result<Option<f64>, String> {
     if v.is_nan() || FAULT_CODES.contains(&v) {
         return Ok(None);
     }
@@ -667,7 +672,7 @@ pub(crate) fn checked_number(v: f64, text: &str, what: &str) -> Result<Option<f6
         return Err(format!(
             "`{}` is not a finite number; write a {what}, or leave the cell empty when there \
              is no reading",
-            shorten(text)
+            shorten(&text())
         ));
     }
     Ok(Some(v))
