@@ -147,6 +147,12 @@ class Case:
     def _inputs(self) -> list:
         return [p for p in self._native.files]
 
+    def __reduce__(self):
+        # pickled as its file paths (to a process that sees the same files: a Dask worker
+        # of a local cluster, a thread pool, a process pool)
+        plate, sensors, readings = self._native.files
+        return (Case.from_dir, (str(self.path), plate, sensors, readings))
+
     def __repr__(self) -> str:
         return repr(self._native)
 

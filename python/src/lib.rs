@@ -490,12 +490,18 @@ fn open_source<'a>(rows: &'a Rows<'a>, case: &Case, ignore_extra: bool) -> Resul
 fn run_track(files: &CaseFiles, rows: &Rows<'_>, s: &TrackSettings) -> Result<TrackRun> {
     if let Rows::File(path) = rows {
         if !path.exists() || path.is_dir() {
+            // (the command line's messages, with the argument's name for the flag)
             return Err(Error::invalid_at(
                 path,
                 None,
                 Some("log"),
-                "not found (or a folder): log takes the logger file (CSV or Parquet, a `time` \
-                 column and one column per sensor id, docs/track.md); check the path",
+                if path.is_dir() {
+                    "this is a folder; log takes the logger file itself (a CSV or Parquet \
+                     file with a `time` column and one column per sensor id, docs/track.md)"
+                } else {
+                    "not found: log takes the logger file (a CSV or Parquet file with a `time` \
+                     column and one column per sensor id, docs/track.md); check the path"
+                },
             ));
         }
     }

@@ -270,3 +270,11 @@ def test_float64_columns_cross_without_copies():
     assert c.dtype == np.float64 and not np.shares_memory(c, df["c"].to_numpy())
     nullable = pd.Series([1.0, None, 3.0], dtype="Float64")
     assert np.isnan(_float_column(nullable)[1])
+
+
+def test_a_case_pickles_as_its_files():
+    import pickle
+
+    case = edgetherm.Case.from_dir(SAMPLES / "cold-plate")
+    again = pickle.loads(pickle.dumps(case))
+    assert again.path == case.path and again.sensor_ids == case.sensor_ids
