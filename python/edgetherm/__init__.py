@@ -44,6 +44,13 @@ __all__ = [
     "SAFETY_CAUTION",
 ]
 
+# the location of an error, when the message has one (set on each instance raised by the
+# library; None for errors raised here, before the library is called)
+for _cls in (InputError, EdgethermError):
+    _cls.file = None
+    _cls.line = None
+    _cls.field = None
+
 __version__ = _edgetherm.__version__
 SAFETY_CAUTION: str = _edgetherm.SAFETY_CAUTION
 
