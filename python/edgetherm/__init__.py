@@ -404,8 +404,14 @@ def track(case: Union[Case, PathLike], log: Any, **options: Any) -> TrackResult:
     others = [c for c in log.columns if not (str(c).lower() == "time")]
     time_col = time_names[0] if time_names else None
     columns = []
+    sensors = set(case.sensor_ids) | {"cold_junction"}
     for c in others:
         col = log[c]
+        if str(c) not in sensors:
+            # not a sensor: the library refuses it, or ignores it with ignore_extra=True,
+            # whatever it holds
+            columns.append(np.full(len(log), np.nan))
+            continue
         if not pd.api.types.is_numeric_dtype(col.dtype):
             raise InputError(
                 f"DataFrame, field `{c}`: the column holds {col.dtype} values; it must hold "

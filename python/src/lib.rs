@@ -54,7 +54,11 @@ fn python_error(py: Python<'_>, e: Error) -> PyErr {
         }
         other => other,
     };
-    let message = e.to_string();
+    let mut message = e.to_string();
+    if message.ends_with(edgetherm::io::logger::IGNORE_EXTRA_HINT) {
+        // the command line names its flag here; Python, the keyword argument
+        message.push_str(" (ignore_extra=True)");
+    }
     let err = match &e {
         Error::Invalid { .. } | Error::Io { input: true, .. } => InputError::new_err(message),
         _ => EdgethermError::new_err(message),

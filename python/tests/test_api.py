@@ -278,3 +278,21 @@ def test_a_case_pickles_as_its_files():
     case = edgetherm.Case.from_dir(SAMPLES / "cold-plate")
     again = pickle.loads(pickle.dumps(case))
     assert again.path == case.path and again.sensor_ids == case.sensor_ids
+
+
+def test_a_dataframe_column_that_is_not_a_sensor(cli, tmp_path):
+    """Refused with the command line's message (naming the keyword where it names the flag),
+    or ignored with ignore_extra=True, whatever the column holds."""
+    case_dir = SAMPLES / "busbar-clamp"
+    df = pd.read_csv(case_dir / "log.csv", na_values=["OPEN"]).head(200)
+    df["note"] = "checked"
+    e = _error_of(lambda: edgetherm.track(case_dir, df))
+    assert e.field == "note" and str(e).endswith("to be ignored (ignore_extra=True)"), str(e)
+    csv = tmp_path / "extra.csv"
+    df.to_csv(csv, index=False)
+    status, _, err = cli("track", case_dir, "--log", csv, "--out", tmp_path / "o", "--quiet")
+    assert status == 2 and err.strip().endswith("to be ignored (--ignore-extra)"), err
+    r = edgetherm.track(case_dir, df, ignore_extra=True)
+    assert r.ignored_columns == ["note"]
+    plain = edgetherm.track(case_dir, df.drop(columns=["note"]))
+    assert r.files["track.csv"] == plain.files["track.csv"]

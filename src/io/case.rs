@@ -127,9 +127,9 @@ pub fn load_readings_as(
 /// messages, with the sensor id as the field.
 ///
 /// # Errors
-/// [`Error::Invalid`] naming `source` and the sensor: a count that differs from the case's
-/// sensors, a non-finite or implausible value, a case that takes its cold junction from a
-/// column of `readings.csv`, or no reading at all.
+/// [`crate::Error::Invalid`] naming `source` and the sensor: a count that differs from the
+/// case's sensors, a non-finite or implausible value, a case that takes its cold junction
+/// from a column of `readings.csv`, or no reading at all.
 pub fn readings_from_values(
     case: &Case,
     values: &[Option<f64>],
