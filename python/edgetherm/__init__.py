@@ -19,6 +19,7 @@ follow local codes and licensed practice. See docs/python.md for the whole API.
 
 from __future__ import annotations
 
+import functools
 import io
 import json
 import os
@@ -58,14 +59,33 @@ PathLike = Union[str, "os.PathLike[str]"]
 
 
 def _table(data: bytes):
-    """A CSV output as a pandas DataFrame, or a pyarrow Table when pandas is absent."""
+    """A CSV output as a pandas DataFrame; a pyarrow Table when pandas is absent; a dict of
+    NumPy arrays (column name -> values; numbers as float64 with NaN for an empty cell, other
+    columns as text) when neither is installed."""
     try:
         import pandas as pd
-    except ImportError:  # pragma: no cover - exercised only without pandas
+    except ImportError:
+        pd = None
+    if pd is not None:
+        return pd.read_csv(io.BytesIO(data))
+    try:
         import pyarrow.csv as pacsv
-
+    except ImportError:
+        pacsv = None
+    if pacsv is not None:
         return pacsv.read_csv(io.BytesIO(data))
-    return pd.read_csv(io.BytesIO(data))
+    import csv
+
+    rows = list(csv.reader(io.StringIO(data.decode("utf-8"))))
+    header, body = rows[0], rows[1:]
+    out = {}
+    for k, name in enumerate(header):
+        cells = [r[k] if k < len(r) else "" for r in body]
+        try:
+            out[name] = np.array([float(c) if c != "" else np.nan for c in cells], dtype=np.float64)
+        except ValueError:
+            out[name] = np.array(cells, dtype=object)
+    return out
 
 
 class _Result:
@@ -239,9 +259,21 @@ class EstimateResult(_Result):
     def __init__(self, native, inputs):
         super().__init__(native, inputs)
         self.summary: dict = json.loads(self.files["summary.json"])
-        self.profile = _table(self.files["profile.csv"])
-        self.field = _table(self.files["field.csv"])
-        self.sensors = _table(self.files["sensors.csv"])
+
+    @functools.cached_property
+    def profile(self):
+        """profile.csv: each hidden edge finely sampled, with its bands."""
+        return _table(self.files["profile.csv"])
+
+    @functools.cached_property
+    def field(self):
+        """field.csv: the field on the grid, with its band."""
+        return _table(self.files["field.csv"])
+
+    @functools.cached_property
+    def sensors(self):
+        """sensors.csv: per sensor reading, fit, residuals, flags."""
+        return _table(self.files["sensors.csv"])
 
     @property
     def alarm(self) -> bool:
@@ -265,11 +297,23 @@ class TrackResult(_Result):
     def __init__(self, native, inputs):
         super().__init__(native, inputs)
         self.summary: dict = json.loads(self.files["summary.json"])
-        self.rows = _table(self.files["track.csv"]) if "track.csv" in self.files else None
-        self.alarms = _table(self.files["alarms.csv"])
-        self.health = _table(self.files["sensors-health.csv"])
         self.absent_sensors = list(native["absent_sensors"])
         self.ignored_columns = list(native["ignored_columns"])
+
+    @functools.cached_property
+    def rows(self):
+        """track.csv: one row per log row (None with rows=False)."""
+        return _table(self.files["track.csv"]) if "track.csv" in self.files else None
+
+    @functools.cached_property
+    def alarms(self):
+        """alarms.csv: the alarm episodes."""
+        return _table(self.files["alarms.csv"])
+
+    @functools.cached_property
+    def health(self):
+        """sensors-health.csv: the failing sensors."""
+        return _table(self.files["sensors-health.csv"])
 
     @property
     def alarm(self) -> bool:
@@ -277,7 +321,8 @@ class TrackResult(_Result):
         return self.exit_status == 3
 
     def __repr__(self) -> str:
-        return f"<TrackResult {self.summary.get('rows')} rows, {len(self.alarms)} alarm episodes>"
+        episodes = (self.summary.get("alarm") or {}).get("episode_count", 0)
+        return f"<TrackResult {self.summary.get('rows')} rows, {episodes} alarm episodes>"
 
 
 class DesignResult(_Result):
@@ -289,7 +334,11 @@ class DesignResult(_Result):
     def __init__(self, native, inputs):
         super().__init__(native, inputs)
         self.summary: dict = json.loads(self.files["design.json"])
-        self.layout = _table(self.files["layout.csv"])
+
+    @functools.cached_property
+    def layout(self):
+        """layout.csv: the chosen positions."""
+        return _table(self.files["layout.csv"])
 
 
 def _case(case: Union[Case, PathLike]) -> Case:

@@ -296,3 +296,20 @@ def test_a_dataframe_column_that_is_not_a_sensor(cli, tmp_path):
     assert r.ignored_columns == ["note"]
     plain = edgetherm.track(case_dir, df.drop(columns=["note"]))
     assert r.files["track.csv"] == plain.files["track.csv"]
+
+
+def test_tables_without_pandas_or_pyarrow(monkeypatch):
+    """A bare install (NumPy only) still gives every table: a dict of NumPy arrays, equal to
+    the DataFrame's columns; with pyarrow only, a pyarrow Table."""
+    import sys
+
+    r = edgetherm.estimate(SAMPLES / "fin-root", no_bounds=True)
+    frame = r.profile
+    monkeypatch.setitem(sys.modules, "pandas", None)
+    table = edgetherm._table(r.files["profile.csv"])
+    assert type(table).__name__ == "Table" and table.num_rows == len(frame)
+    monkeypatch.setitem(sys.modules, "pyarrow.csv", None)
+    plain = edgetherm._table(r.files["profile.csv"])
+    assert isinstance(plain, dict) and list(plain) == list(frame.columns)
+    np.testing.assert_array_equal(plain["estimate"], frame["estimate"].to_numpy())
+    assert list(plain["edge"]) == list(frame["edge"])
