@@ -298,8 +298,16 @@ def write_outputs(table, out: Path, limit: Optional[float]) -> List[Path]:
     import io
 
     out.mkdir(parents=True, exist_ok=True)
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
     buf = io.BytesIO()
-    table.to_parquet(buf, index=False)
+    arrow = pa.Table.from_pandas(table, preserve_index=False)
+    # the caution travels with the table (Parquet key-value metadata; the CSV stays plain)
+    meta = dict(arrow.schema.metadata or {})
+    meta[b"caution"] = CAUTION.encode()
+    meta[b"sorted_by"] = b"risk: errors, then alarms, then hottest_upper descending"
+    pq.write_table(arrow.replace_schema_metadata(meta), buf)
     paths = []
     for name, data in (
         ("fleet.parquet", buf.getvalue()),

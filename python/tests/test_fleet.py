@@ -116,6 +116,10 @@ def test_fleet_outputs_are_sorted_by_risk_and_readable(fleet_run):
     assert status == sorted(status, key={"error": 0, "alarm": 1, "ok": 2}.get)
     ok = table[table["status"] == "ok"]["hottest_upper"].tolist()
     assert ok == sorted(ok, reverse=True)
+    import pyarrow.parquet as pq
+
+    meta = pq.read_schema(out / "fleet.parquet").metadata
+    assert b"licensed practice" in meta[b"caution"]
     html = (out / "fleet.html").read_text()
     assert "estimates, not measurements" in html and "licensed practice" in html
     assert html.index("plate-e") < html.index(table[table["status"] == "ok"]["plate"].iloc[0])
