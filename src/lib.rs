@@ -21,6 +21,7 @@
 //! | [`track`] | a logger file row by row: per-row estimate with a pattern cache, hottest point through time, alarms, failing sensors |
 //! | [`report`] | every output in the case's units, one module per command (`estimate`, `design`, `track`, `check`) over shared drawing and number-format primitives: CSV tables, JSON, text summaries, SVG plots, the HTML page |
 //! | [`simulate`] | synthetic readings from a known edge profile (demos, tests, what-if) |
+//! | [`options`] | run settings given as plain values (command-line flags, Python keyword arguments), checked once for every front end |
 //! | [`plausible`] | one documented plausibility range per physical quantity (temperatures 0 K to 5000 K, reading sigma, lengths, conductivity, gradient limits), checked by every command |
 //! | [`units`] | the length and temperature units of a case, converted once at the edge |
 //! | [`error`] | one error type whose messages name the file, line and field |
@@ -41,6 +42,7 @@ pub mod inverse;
 pub mod io;
 pub mod its90;
 pub mod noise;
+pub mod options;
 pub mod plausible;
 pub mod report;
 pub mod simulate;

@@ -366,21 +366,7 @@ pub fn parse_alarm(
     probability: f64,
     case: &edgetherm::case::Case,
 ) -> Result<Option<f64>> {
-    if !(probability > 0.0 && probability < 1.0) {
-        return Err(Error::invalid_field(
-            "--probability",
-            format!(
-                "must lie strictly between 0 and 1, not {probability}: it is a fraction \
-                 (0.05 for 5 %)"
-            ),
-        ));
-    }
-    match limit {
-        Some(t) => edgetherm::plausible::temperature_k(&case.units, t)
-            .map(Some)
-            .map_err(|m| Error::invalid_field("--limit", m)),
-        None => Ok(None),
-    }
+    edgetherm::options::alarm(limit, probability, case)
 }
 
 /// A progress bar on stderr when it is a terminal and `--quiet` is off: a bar to `len`, or a
@@ -407,47 +393,14 @@ pub fn progress_bar(
     })
 }
 
-/// `--max-gradient G` in the case's temperature unit per length unit, as K/m.
+/// `--max-gradient G` in the case's temperature unit per length unit (per degree on a round part), as K/m.
 pub fn parse_max_gradient(g: Option<f64>, case: &edgetherm::case::Case) -> Result<Option<f64>> {
-    match g {
-        Some(g) => edgetherm::plausible::gradient_k_per_m_in(
-            &case.units,
-            g,
-            edgetherm::bounds::gradient_unit_m(&case.plate, &case.units),
-            if case.plate.shape().is_round() {
-                "degree"
-            } else {
-                "length unit"
-            },
-        )
-        .map(Some)
-        .map_err(|m| Error::invalid_field("--max-gradient", m)),
-        None => Ok(None),
-    }
+    edgetherm::options::max_gradient(g, case)
 }
 
 /// Parse `--strength`: a rule name or a positive number (a fixed strength).
 pub fn parse_strength(s: &str) -> Result<edgetherm::case::StrengthRule> {
-    use edgetherm::case::StrengthRule;
-    let rule = match s.trim() {
-        "gcv" => StrengthRule::Gcv,
-        "discrepancy" => StrengthRule::Discrepancy,
-        "evidence" => StrengthRule::Evidence,
-        "lcurve" => StrengthRule::LCurve,
-        other => match other.parse::<f64>() {
-            Ok(v) if v.is_finite() && v > 0.0 => StrengthRule::Fixed(v),
-            _ => {
-                return Err(Error::invalid_field(
-                    "--strength",
-                    format!(
-                        "expected gcv, discrepancy, evidence, lcurve or a positive number, \
-                         not `{s}`"
-                    ),
-                ));
-            }
-        },
-    };
-    Ok(rule)
+    edgetherm::options::strength(s)
 }
 
 /// Write `text` to stdout. A closed pipe (`edgetherm check . | head`) is not an error.

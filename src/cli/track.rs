@@ -41,8 +41,8 @@ pub struct TrackArgs {
     /// The case directory (plate.toml, sensors.csv).
     #[arg(value_name = "CASE_DIR")]
     pub case_dir: PathBuf,
-    /// The logger file: `time` and one column per sensor id (ISO 8601 or seconds; readings
-    /// in the case's temperature unit).
+    /// The logger file, CSV or Parquet: `time` and one column per sensor id (ISO 8601 or
+    /// seconds; readings in the case's temperature unit).
     #[arg(long, value_name = "LOG.csv")]
     pub log: PathBuf,
     /// Directory for the outputs (track.csv, alarms.csv, sensors-health.csv, track.svg,
@@ -136,11 +136,11 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
             None,
             Some("--log"),
             if args.log.is_dir() {
-                "this is a folder; --log takes the logger file itself (a CSV with a `time` \
-                 column and one column per sensor id, docs/track.md)"
+                "this is a folder; --log takes the logger file itself (a CSV or Parquet \
+                 file with a `time` column and one column per sensor id, docs/track.md)"
             } else {
-                "not found: --log takes the logger file (a CSV with a `time` column and one \
-                 column per sensor id, docs/track.md); check the path"
+                "not found: --log takes the logger file (a CSV or Parquet file with a `time` \
+                 column and one column per sensor id, docs/track.md); check the path"
             },
         ));
     }

@@ -119,6 +119,75 @@ pub fn load_readings_as(
     csv_files::read_readings(path, case, options)
 }
 
+/// Readings handed over as numbers rather than a file (the Python module's dicts, Series
+/// and arrays): `values[i]` for `case.sensors[i]`, in the case's temperature unit (or
+/// millivolts when the case reads thermocouple voltages with a fixed cold junction), `None`
+/// or NaN for no reading. Each is converted and checked as a `readings.csv` value is (the
+/// plausible range, the thermocouple conversion, the sensor's offset); `source` names them in
+/// messages, with the sensor id as the field.
+///
+/// # Errors
+/// [`crate::Error::Invalid`] naming `source` and the sensor: a count that differs from the
+/// case's sensors, a non-finite or implausible value, a case that takes its cold junction
+/// from a column of `readings.csv`, or no reading at all.
+pub fn readings_from_values(
+    case: &Case,
+    values: &[Option<f64>],
+    source: &Path,
+) -> Result<Vec<Option<f64>>> {
+    use crate::error::Error;
+    if values.len() != case.sensors.len() {
+        return Err(Error::invalid_at(
+            source,
+            None,
+            None,
+            format!(
+                "{} readings for the {} sensors of {}; give one per sensor (none or NaN for a \
+                 sensor without a reading)",
+                values.len(),
+                case.sensors.len(),
+                case.files.sensors.display()
+            ),
+        ));
+    }
+    if crate::io::convert::cold_junction_column(case) {
+        return Err(Error::invalid_at(
+            source,
+            None,
+            Some("cold_junction"),
+            "plate.toml takes the cold junction from a column of the readings: give the \
+             readings as a readings.csv file with its cold_junction column",
+        ));
+    }
+    let mut out = vec![None; values.len()];
+    for (i, v) in values.iter().enumerate() {
+        let Some(v) = v.filter(|v| !v.is_nan()) else {
+            continue;
+        };
+        let id = case.sensors[i].id.as_str();
+        if !v.is_finite() {
+            return Err(Error::invalid_at(
+                source,
+                None,
+                Some(id),
+                format!("`{v}` is not a finite number; give a reading, or none"),
+            ));
+        }
+        let k = crate::io::convert::reading_k(case, v, None)
+            .map_err(|m| Error::invalid_at(source, None, Some(id), m))?;
+        out[i] = Some(crate::io::convert::with_offset(case, i, k));
+    }
+    if out.iter().all(Option::is_none) {
+        return Err(Error::invalid_at(
+            source,
+            None,
+            None,
+            "no reading at all; give at least one sensor's reading",
+        ));
+    }
+    Ok(out)
+}
+
 /// Read truth profiles (`edge,position,temperature`, case units; the `edge` column may be
 /// left out when exactly one edge is unknown): one profile per unknown edge, in metres and
 /// kelvin, each spanning its edge.

@@ -140,8 +140,100 @@ impl<R: Read> Read for FollowRead<R> {
     }
 }
 
-/// A streaming reader of a logger file.
+/// A streaming reader of a logger file: CSV (any dialect, see [`crate::io::dialect`]) or
+/// Parquet ([`crate::io::columnar`]), told apart by the file's first bytes. Both are checked by
+/// the same rules, so the same table gives the same rows.
+#[derive(Debug)]
 pub struct LoggerReader {
+    source: Source,
+    /// Sensors of the case with no column in the file.
+    pub absent_sensors: Vec<usize>,
+    /// Columns that were ignored (with `ignore_extra`).
+    pub ignored_columns: Vec<String>,
+}
+
+#[derive(Debug)]
+enum Source {
+    Csv(Box<CsvLog>),
+    Parquet(Box<crate::io::columnar::ParquetLog>),
+}
+
+impl LoggerReader {
+    /// Open a logger file (CSV, or Parquet when it starts with Parquet's magic bytes) and
+    /// check its header against the case's sensors.
+    ///
+    /// # Errors
+    /// [`Error::Io`] (an input) when the file cannot be opened; [`Error::Invalid`] for a
+    /// header without `time`, a duplicated column, (without `ignore_extra`) a column for an
+    /// unknown sensor, a Parquet file with `follow` or with a column of the wrong type.
+    pub fn open(path: &Path, case: &Case, options: &LoggerOptions) -> Result<Self> {
+        if crate::io::columnar::is_parquet(path) {
+            if options.follow.is_some() {
+                return Err(Error::invalid_at(
+                    path,
+                    None,
+                    None,
+                    "this is a Parquet file, which is written whole: following a log as it \
+                     grows reads CSV logger files only",
+                ));
+            }
+            let log = crate::io::columnar::ParquetLog::open(path, case, options.ignore_extra)?;
+            return Ok(LoggerReader {
+                absent_sensors: log.rows().absent_sensors().to_vec(),
+                ignored_columns: log.rows().ignored_columns().to_vec(),
+                source: Source::Parquet(Box::new(log)),
+            });
+        }
+        let mut log = CsvLog::open(path, case, options)?;
+        Ok(LoggerReader {
+            absent_sensors: std::mem::take(&mut log.absent_sensors),
+            ignored_columns: std::mem::take(&mut log.ignored_columns),
+            source: Source::Csv(Box::new(log)),
+        })
+    }
+
+    /// The kind of the time column, once the first row is read.
+    pub fn time_kind(&self) -> Option<TimeKind> {
+        match &self.source {
+            Source::Csv(c) => c.time_kind(),
+            Source::Parquet(p) => p.rows().time_kind(),
+        }
+    }
+
+    /// The format of the time column (from the first rows, or declared); `None` until a row
+    /// is read when the file had no rows when it was opened.
+    pub fn time_format(&self) -> Option<TimeFormat> {
+        match &self.source {
+            Source::Csv(c) => c.time_format(),
+            Source::Parquet(p) => p.rows().time_format(),
+        }
+    }
+
+    /// How the file is read (separator, decimal mark, time format, ...; or Parquet), for the
+    /// outputs.
+    pub fn read_as(&self) -> crate::case::ReadAs {
+        match &self.source {
+            Source::Csv(c) => c.read_as(),
+            Source::Parquet(p) => p.read_as(),
+        }
+    }
+
+    /// Read the next row into `row`; `Ok(false)` at the end of the file.
+    ///
+    /// # Errors
+    /// [`Error::Invalid`] naming the line and column for a ragged row, an unreadable time, a
+    /// time before the previous row's, text that is neither a number nor a fault marker, or
+    /// an implausible temperature.
+    pub fn next_row(&mut self, row: &mut LoggerRow) -> Result<bool> {
+        match &mut self.source {
+            Source::Csv(c) => c.next_row(row),
+            Source::Parquet(p) => p.next_row(row),
+        }
+    }
+}
+
+/// A streaming reader of a CSV logger file (the CSV half of [`LoggerReader`]).
+struct CsvLog {
     path: PathBuf,
     reader: csv::Reader<FollowRead<std::fs::File>>,
     record: csv::ByteRecord,
@@ -149,19 +241,18 @@ pub struct LoggerReader {
     column_sensor: Vec<Option<usize>>,
     time_column: usize,
     column_names: Vec<String>,
-    units: crate::units::Units,
     /// The case, for voltage conversion and sensor offsets.
     case: Case,
     /// The `cold_junction` column, when the case takes the cold junction from one.
     cold_junction_column: Option<usize>,
-    kind: Option<TimeKind>,
+    /// The kind of time of the first row, and the previous row's time.
+    times: TimeOrder,
     /// The dialect (separator, decimal mark, lines before the header, units row).
     dialect: Dialect,
     /// The time format (found from the first rows, declared, or from the first row read).
     time_format: Option<TimeFormat>,
     /// Lines of the file before the header (added to the csv reader's line numbers).
     line_offset: u64,
-    last_time: Option<(f64, u64)>,
     sensor_count: usize,
     /// Sensors of the case with no column in the file.
     pub absent_sensors: Vec<usize>,
@@ -169,16 +260,14 @@ pub struct LoggerReader {
     pub ignored_columns: Vec<String>,
 }
 
-impl std::fmt::Debug for LoggerReader {
+impl std::fmt::Debug for CsvLog {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.debug_struct("LoggerReader")
-            .field("path", &self.path)
-            .finish()
+        f.debug_struct("CsvLog").field("path", &self.path).finish()
     }
 }
 
-impl LoggerReader {
-    /// Open a logger file and check its header against the case's sensors.
+impl CsvLog {
+    /// Open a CSV logger file and check its header against the case's sensors.
     ///
     /// # Errors
     /// [`Error::Io`] (an input) when the file cannot be opened; [`Error::Invalid`] for a
@@ -242,33 +331,15 @@ impl LoggerReader {
                 .read_byte_record(&mut units)
                 .map_err(|e| csv_error(path, e, line_offset))?;
         }
-        let index: HashMap<&str, usize> = case
-            .sensors
-            .iter()
-            .enumerate()
-            .map(|(i, s)| (s.id.as_str(), i))
-            .collect();
         if !header.iter().any(|c| {
             std::str::from_utf8(c).is_ok_and(|n| {
                 n.trim_start_matches('\u{feff}')
                     .eq_ignore_ascii_case("time")
             })
         }) {
-            return Err(Error::invalid_at(
-                path,
-                Some(header_line),
-                Some("time"),
-                "the header has no `time` column; a logger file is `time,<sensor ids>` with \
-                 the time in ISO 8601 or seconds",
-            ));
+            return Err(no_time_column(path, Some(header_line)));
         }
-        let mut column_sensor = Vec::with_capacity(header.len());
-        let mut column_names = Vec::with_capacity(header.len());
-        let mut time_column = None;
-        let mut seen: HashMap<String, usize> = HashMap::new();
-        let mut ignored = Vec::new();
-        let want_cj = crate::io::convert::cold_junction_column(case);
-        let mut cold_junction_column = None;
+        let mut names = Vec::with_capacity(header.len());
         for (k, raw) in header.iter().enumerate() {
             let name = std::str::from_utf8(raw)
                 .map_err(|_| {
@@ -281,66 +352,16 @@ impl LoggerReader {
                 })?
                 .trim_start_matches('\u{feff}')
                 .to_string();
-            if let Some(first) = seen.insert(name.clone(), k) {
-                return Err(Error::invalid_at(
-                    path,
-                    Some(header_line),
-                    Some(&name),
-                    format!(
-                        "column `{name}` appears twice (columns {} and {}); give each sensor \
-                         one column",
-                        first + 1,
-                        k + 1
-                    ),
-                ));
-            }
-            if name.eq_ignore_ascii_case("time") {
-                time_column = Some(k);
-                column_sensor.push(None);
-            } else if want_cj && name.eq_ignore_ascii_case("cold_junction") {
-                cold_junction_column = Some(k);
-                column_sensor.push(None);
-            } else if let Some(&i) = index.get(name.as_str()) {
-                column_sensor.push(Some(i));
-            } else if options.ignore_extra {
-                ignored.push(name.clone());
-                column_sensor.push(None);
-            } else {
-                return Err(Error::invalid_at(
-                    path,
-                    Some(header_line),
-                    Some(&name),
-                    format!(
-                        "column `{name}` is not a sensor in {}; check the header (it must be \
-                         `time` and sensor ids), {IGNORE_EXTRA_HINT}",
-                        case.files.sensors.display()
-                    ),
-                ));
-            }
-            column_names.push(name);
+            names.push(name);
         }
-        let Some(time_column) = time_column else {
-            return Err(Error::invalid_at(
-                path,
-                Some(header_line),
-                Some("time"),
-                "the header has no `time` column; a logger file is `time,<sensor ids>` with \
-                 the time in ISO 8601 or seconds",
-            ));
-        };
-        if want_cj && cold_junction_column.is_none() {
-            return Err(Error::invalid_at(
-                path,
-                Some(header_line),
-                Some("cold_junction"),
-                "plate.toml says cold_junction = \"column\", but the header has no \
-                 `cold_junction` column; add the reference-junction temperature of every row, \
-                 or give it once in [thermocouple] cold_junction",
-            ));
-        }
-        let absent_sensors = (0..case.sensors.len())
-            .filter(|i| !column_sensor.contains(&Some(*i)))
-            .collect();
+        let ColumnMap {
+            column_sensor,
+            column_names,
+            time_column,
+            cold_junction_column,
+            absent_sensors,
+            ignored_columns: ignored,
+        } = match_columns(path, Some(header_line), names, case, options.ignore_extra)?;
         if let Some(units) = &dialect.units_row {
             let temperature = ColumnUnit::Temperature(case.units.temperature);
             let reading = if case.conversion().is_some() {
@@ -391,21 +412,19 @@ impl LoggerReader {
                 }
             }
         };
-        Ok(LoggerReader {
+        Ok(CsvLog {
             path: path.to_path_buf(),
             reader,
             record: csv::ByteRecord::new(),
             column_sensor,
             time_column,
             column_names,
-            units: case.units,
             case: case.clone(),
             cold_junction_column,
-            kind: None,
+            times: TimeOrder::default(),
             dialect,
             time_format,
             line_offset,
-            last_time: None,
             sensor_count: case.sensors.len(),
             absent_sensors,
             ignored_columns: ignored,
@@ -414,7 +433,7 @@ impl LoggerReader {
 
     /// The kind of the time column, once the first row is read.
     pub fn time_kind(&self) -> Option<TimeKind> {
-        self.kind
+        self.times.kind
     }
 
     /// The format of the time column (from the first rows, or declared); `None` until a row
@@ -495,38 +514,7 @@ impl LoggerReader {
                     ),
                 )
             })?;
-        match self.kind {
-            None => self.kind = Some(kind),
-            Some(k) if k != kind => {
-                return Err(Error::invalid_at(
-                    &self.path,
-                    Some(line as usize),
-                    Some("time"),
-                    format!(
-                        "`{time_text}` is written as {} but the first row's time is {}; use \
-                         one kind of time throughout the file",
-                        kind.name(),
-                        k.name()
-                    ),
-                ));
-            }
-            _ => {}
-        }
-        if let Some((prev, prev_line)) = self.last_time {
-            if t < prev {
-                return Err(Error::invalid_at(
-                    &self.path,
-                    Some(line as usize),
-                    Some("time"),
-                    format!(
-                        "time `{time_text}` is earlier than the previous row's (line \
-                         {prev_line}); rows must be in time order (was the logger clock \
-                         reset, or two files joined?)"
-                    ),
-                ));
-            }
-        }
-        self.last_time = Some((t, line));
+        self.times.check(&self.path, line, time_text, t, kind)?;
         row.time_s = t;
         row.time_text.clear();
         row.time_text.push_str(time_text);
@@ -591,20 +579,7 @@ impl LoggerReader {
                 )));
             }
         };
-        if v.is_nan() {
-            return Ok(None);
-        }
-        if FAULT_CODES.contains(&v) {
-            return Ok(None);
-        }
-        if !v.is_finite() {
-            return Err(err(format!(
-                "`{}` is not a finite number; write a {what}, or leave the cell empty \
-                 when there is no reading",
-                shorten(text)
-            )));
-        }
-        Ok(Some(v))
+        checked_number(v, &|| text.to_string(), what).map_err(err)
     }
 
     fn reading(
@@ -619,20 +594,227 @@ impl LoggerReader {
             return Ok(None);
         };
         let name = &self.column_names[k];
-        let err = |msg: String| Error::invalid_at(&self.path, Some(line as usize), Some(name), msg);
-        if self.case.conversion().is_none() && self.units.temp_to_k(v) > MAX_PLAUSIBLE_K {
-            return Err(err(format!(
-                "{} {} is not a plausible reading (above {MAX_PLAUSIBLE_K} K); if the logger \
-                 writes it as an over-range code, replace it with an empty cell",
-                crate::plausible::short(v),
-                self.units.temperature
-            )));
-        }
-        let kelvin = crate::io::convert::reading_k(&self.case, v, cold_junction_k).map_err(err)?;
-        Ok(Some(crate::io::convert::with_offset(
-            &self.case, sensor, kelvin,
-        )))
+        checked_reading(&self.case, v, sensor, cold_junction_k)
+            .map(Some)
+            .map_err(|msg| Error::invalid_at(&self.path, Some(line as usize), Some(name), msg))
     }
+}
+
+/// The times of a log, row after row: one kind throughout (the first row's), never going
+/// backwards (equal times are allowed); shared by CSV and columnar logs.
+#[derive(Debug, Clone, Default)]
+pub(crate) struct TimeOrder {
+    /// The first row's kind of time.
+    pub kind: Option<TimeKind>,
+    /// The previous row's time and line.
+    last: Option<(f64, u64)>,
+}
+
+impl TimeOrder {
+    /// Check the time `t` (of kind `kind`, written `time_text`) of the row on `line`.
+    pub(crate) fn check(
+        &mut self,
+        path: &Path,
+        line: u64,
+        time_text: &str,
+        t: f64,
+        kind: TimeKind,
+    ) -> Result<()> {
+        match self.kind {
+            None => self.kind = Some(kind),
+            Some(k) if k != kind => {
+                return Err(Error::invalid_at(
+                    path,
+                    Some(line as usize),
+                    Some("time"),
+                    format!(
+                        "`{time_text}` is written as {} but the first row's time is {}; use \
+                         one kind of time throughout the file",
+                        kind.name(),
+                        k.name()
+                    ),
+                ));
+            }
+            _ => {}
+        }
+        if let Some((prev, prev_line)) = self.last {
+            if t < prev {
+                return Err(Error::invalid_at(
+                    path,
+                    Some(line as usize),
+                    Some("time"),
+                    format!(
+                        "time `{time_text}` is earlier than the previous row's (line \
+                         {prev_line}); rows must be in time order (was the logger clock \
+                         reset, or two files joined?)"
+                    ),
+                ));
+            }
+        }
+        self.last = Some((t, line));
+        Ok(())
+    }
+}
+
+/// The checks of a number read from a logger cell, shared by CSV and columnar logs: NaN and
+/// the [`FAULT_CODES`] are "no reading"; any other non-finite number is an error (the message,
+/// to which the caller adds file, line and column). `text` gives the cell as written (only
+/// called for the message).
+pub(crate) fn checked_number(
+    v: f64,
+    text: &dyn Fn() -> String,
+    what: &str,
+) -> Result<Option<f64>, String> {
+    if v.is_nan() || FAULT_CODES.contains(&v) {
+        return Ok(None);
+    }
+    if !v.is_finite() {
+        return Err(format!(
+            "`{}` is not a finite number; write a {what}, or leave the cell empty when there \
+             is no reading",
+            shorten(&text())
+        ));
+    }
+    Ok(Some(v))
+}
+
+/// A sensor's reading (case unit, or millivolts for a voltage log) in kelvin, after the
+/// plausibility check, the thermocouple conversion and the sensor's offset: shared by CSV and
+/// columnar logs (the message, to which the caller adds file, line and column).
+pub(crate) fn checked_reading(
+    case: &Case,
+    v: f64,
+    sensor: usize,
+    cold_junction_k: Option<f64>,
+) -> Result<f64, String> {
+    if case.conversion().is_none() && case.units.temp_to_k(v) > MAX_PLAUSIBLE_K {
+        return Err(format!(
+            "{} {} is not a plausible reading (above {MAX_PLAUSIBLE_K} K); if the logger \
+             writes it as an over-range code, replace it with an empty cell",
+            crate::plausible::short(v),
+            case.units.temperature
+        ));
+    }
+    let kelvin = crate::io::convert::reading_k(case, v, cold_junction_k)?;
+    Ok(crate::io::convert::with_offset(case, sensor, kelvin))
+}
+
+/// The error for a header without a `time` column.
+fn no_time_column(path: &Path, line: Option<usize>) -> Error {
+    Error::invalid_at(
+        path,
+        line,
+        Some("time"),
+        "the header has no `time` column; a logger file is `time,<sensor ids>` with the time \
+         in ISO 8601 or seconds",
+    )
+}
+
+/// Which column of a logger file holds what: the time, the cold junction, which sensor.
+#[derive(Debug, Clone)]
+pub(crate) struct ColumnMap {
+    /// Column → sensor index (`None`: the time column or an ignored column).
+    pub column_sensor: Vec<Option<usize>>,
+    /// The column names as written (a byte-order mark removed).
+    pub column_names: Vec<String>,
+    pub time_column: usize,
+    /// The `cold_junction` column, when the case takes the cold junction from one.
+    pub cold_junction_column: Option<usize>,
+    /// Sensors of the case with no column.
+    pub absent_sensors: Vec<usize>,
+    /// Columns that were ignored (with `ignore_extra`).
+    pub ignored_columns: Vec<String>,
+}
+
+/// Match the column names of a logger file (CSV header or columnar schema) against the
+/// case's sensors: one `time` column (any case), a `cold_junction` column when the case
+/// takes the cold junction from one, sensor ids; a duplicated name, or (without
+/// `ignore_extra`) a column that is not a sensor, is an error naming the column. `line` is
+/// the header's line (none in a columnar file).
+pub(crate) fn match_columns(
+    path: &Path,
+    line: Option<usize>,
+    names: Vec<String>,
+    case: &Case,
+    ignore_extra: bool,
+) -> Result<ColumnMap> {
+    if !names.iter().any(|n| n.eq_ignore_ascii_case("time")) {
+        return Err(no_time_column(path, line));
+    }
+    let index: HashMap<&str, usize> = case
+        .sensors
+        .iter()
+        .enumerate()
+        .map(|(i, s)| (s.id.as_str(), i))
+        .collect();
+    let mut column_sensor = Vec::with_capacity(names.len());
+    let mut time_column = None;
+    let mut seen: HashMap<&str, usize> = HashMap::new();
+    let mut ignored = Vec::new();
+    let want_cj = crate::io::convert::cold_junction_column(case);
+    let mut cold_junction_column = None;
+    for (k, name) in names.iter().enumerate() {
+        if let Some(first) = seen.insert(name.as_str(), k) {
+            return Err(Error::invalid_at(
+                path,
+                line,
+                Some(name),
+                format!(
+                    "column `{name}` appears twice (columns {} and {}); give each sensor one \
+                     column",
+                    first + 1,
+                    k + 1
+                ),
+            ));
+        }
+        if name.eq_ignore_ascii_case("time") {
+            time_column = Some(k);
+            column_sensor.push(None);
+        } else if want_cj && name.eq_ignore_ascii_case("cold_junction") {
+            cold_junction_column = Some(k);
+            column_sensor.push(None);
+        } else if let Some(&i) = index.get(name.as_str()) {
+            column_sensor.push(Some(i));
+        } else if ignore_extra {
+            ignored.push(name.clone());
+            column_sensor.push(None);
+        } else {
+            return Err(Error::invalid_at(
+                path,
+                line,
+                Some(name),
+                format!(
+                    "column `{name}` is not a sensor in {}; check the header (it must be \
+                     `time` and sensor ids), {IGNORE_EXTRA_HINT}",
+                    case.files.sensors.display()
+                ),
+            ));
+        }
+    }
+    let Some(time_column) = time_column else {
+        return Err(no_time_column(path, line));
+    };
+    if want_cj && cold_junction_column.is_none() {
+        return Err(Error::invalid_at(
+            path,
+            line,
+            Some("cold_junction"),
+            "plate.toml says cold_junction = \"column\", but the header has no \
+             `cold_junction` column; add the reference-junction temperature of every row, or \
+             give it once in [thermocouple] cold_junction",
+        ));
+    }
+    let absent_sensors = (0..case.sensors.len())
+        .filter(|i| !column_sensor.contains(&Some(*i)))
+        .collect();
+    Ok(ColumnMap {
+        column_sensor,
+        column_names: names,
+        time_column,
+        cold_junction_column,
+        absent_sensors,
+        ignored_columns: ignored,
+    })
 }
 
 fn shorten(s: &str) -> String {

@@ -12,10 +12,12 @@
 //! | the assembled case (its types live in `crate::case`) | [`case`] |
 //! | results, written atomically, never over an input | [`output`] |
 //! | logger files for `track`, and `track.csv` written row by row | [`logger`] |
+//! | columnar logger files (Parquet) and in-memory tables, checked by the logger's rules | [`columnar`] |
 //! | CSV dialects (separator, decimal mark, metadata lines, units row) of every table | [`dialect`] |
 //! | the time column of a logger file | [`times`] |
 
 pub mod case;
+pub mod columnar;
 mod convert;
 mod csv_files;
 pub mod dialect;
@@ -26,7 +28,9 @@ mod spans;
 pub mod suggest;
 pub mod times;
 
-pub use case::{load_case, load_readings, load_readings_as, read_truth_profiles};
+pub use case::{
+    load_case, load_readings, load_readings_as, read_truth_profiles, readings_from_values,
+};
 pub use dialect::{DecimalMark, DialectOptions, Separator};
 pub use logger::{
     LoggerOptions, LoggerReader, LoggerRow, StreamWriter, TRACK_OUTPUT_FILE_NAMES,

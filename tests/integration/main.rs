@@ -38,4 +38,5 @@ mod tikhonov_reference;
 mod track_alarms;
 mod track_cli;
 mod track_equality;
+mod track_parquet;
 mod track_per_row_speed;
