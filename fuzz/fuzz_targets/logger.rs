@@ -19,6 +19,7 @@ fuzz_target!(|data: &[u8]| {
     let options = LoggerOptions {
         ignore_extra: data.first().is_some_and(|b| b & 1 == 1),
         follow: None,
+        ..LoggerOptions::default()
     };
     let mut reader = match LoggerReader::open(&log, &case, &options) {
         Ok(r) => r,
