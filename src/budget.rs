@@ -227,6 +227,40 @@ pub fn estimate_cost(
     }
 }
 
+/// The cost of a whole `track` run with `options`: the per-pattern tables
+/// ([`track_cost`]) and, with the per-row bootstrap, its replicates (as [`estimate_cost`]
+/// prices them on a 2 × 2 grid). `replicates_stated`: the replicates came from the run's
+/// options rather than the case file (the message names the setting accordingly).
+pub fn track_run_cost(
+    case: &Case,
+    options: &crate::track::TrackOptions,
+    replicates_stated: bool,
+) -> Cost {
+    let mut cost = track_cost(
+        case,
+        options.draws,
+        options.stride,
+        crate::track::engine::PATTERN_CACHE,
+    );
+    if options.bootstrap {
+        let replicates = options.replicates.unwrap_or(case.uncertainty.replicates);
+        let per_row = estimate_cost(
+            case,
+            replicates,
+            replicates_stated,
+            (2, 2),
+            case.sensors.len(),
+        );
+        cost.items.extend(
+            per_row
+                .items
+                .into_iter()
+                .filter(|i| i.field.ends_with("replicates")),
+        );
+    }
+    cost
+}
+
 /// The cost of `track`'s per-pattern tables: `draws` posterior draws at every scan point
 /// (`n_scan`, the profile points over the stride) for each of up to `patterns` cached sensor
 /// patterns.

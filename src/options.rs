@@ -106,3 +106,32 @@ pub fn at_least_one(name: &str, v: Option<usize>) -> Result<()> {
     }
     Ok(())
 }
+
+/// The sensors named to be left out (`--exclude`, `exclude=`), as indices of `case.sensors`;
+/// an unknown id is refused with the nearest id suggested.
+///
+/// # Errors
+/// [`Error::Invalid`] on `option.exclude`.
+pub fn exclude(ids: &[String], case: &Case) -> Result<Vec<usize>> {
+    ids.iter()
+        .map(|id| {
+            case.sensors
+                .iter()
+                .position(|s| s.id == id.trim())
+                .ok_or_else(|| {
+                    Error::invalid_field(
+                        "option.exclude",
+                        format!(
+                            "no sensor {:?} in {}{}",
+                            id.trim(),
+                            case.files.sensors.display(),
+                            crate::io::suggest::did_you_mean(
+                                id,
+                                case.sensors.iter().map(|s| s.id.as_str())
+                            )
+                        ),
+                    )
+                })
+        })
+        .collect()
+}

@@ -224,28 +224,7 @@ fn estimate<'py>(
             .as_deref()
             .map(edgetherm::options::strength)
             .transpose()?;
-        let exclude = exclude
-            .iter()
-            .map(|id| {
-                case.sensors
-                    .iter()
-                    .position(|s| s.id == id.trim())
-                    .ok_or_else(|| {
-                        Error::invalid_field(
-                            "option.exclude",
-                            format!(
-                                "no sensor {:?} in {}{}",
-                                id.trim(),
-                                case.files.sensors.display(),
-                                edgetherm::io::suggest::did_you_mean(
-                                    id,
-                                    case.sensors.iter().map(|s| s.id.as_str())
-                                )
-                            ),
-                        )
-                    })
-            })
-            .collect::<Result<Vec<usize>>>()?;
+        let exclude = edgetherm::options::exclude(&exclude, &case)?;
         let max_gradient_k_per_m = edgetherm::options::max_gradient(max_gradient, &case)?;
         if no_bounds && max_gradient.is_some() {
             return Err(Error::invalid_field(
@@ -555,28 +534,7 @@ fn run_track(files: &CaseFiles, rows: &Rows<'_>, s: &TrackSettings) -> Result<Tr
         case.plate = case.plate.with_heat_transfer(conv.edge, conv.h)?;
         options.convection = Some(conv);
     }
-    let mut cost = edgetherm::budget::track_cost(
-        &case,
-        options.draws,
-        options.stride,
-        edgetherm::track::engine::PATTERN_CACHE,
-    );
-    if options.bootstrap {
-        let replicates = options.replicates.unwrap_or(case.uncertainty.replicates);
-        let per_row = edgetherm::budget::estimate_cost(
-            &case,
-            replicates,
-            s.replicates.is_some(),
-            (2, 2),
-            case.sensors.len(),
-        );
-        cost.items.extend(
-            per_row
-                .items
-                .into_iter()
-                .filter(|i| i.field.ends_with("replicates")),
-        );
-    }
+    let cost = edgetherm::budget::track_run_cost(&case, &options, s.replicates.is_some());
     edgetherm::budget::Budget::default().check(&cost, &case)?;
     let (mut source, read_as, absent, ignored) = open_source(rows, &case, s.ignore_extra)?;
     case.read_as.push(read_as);

@@ -167,25 +167,18 @@ impl AdmissibleSet {
                     columns[e.first + j] = col;
                 }
             }
-            let mut h = vec![0.0; m * node_count];
-            for (var, col) in columns.iter().enumerate() {
-                for i in 0..m {
-                    h[i * node_count + var] = col[i];
-                }
-            }
             let (tail, max_tail_factor) = polar_tail_factors(&shape, sensors, &edges, &map);
             let rho_m = polar_quasi_interpolation_allowance(&shape, sensors, &edges, &map);
-            return Ok(AdmissibleSet {
+            return Ok(Self::assemble(
                 edges,
-                node_count,
-                h,
+                &columns,
                 offset,
-                readings: readings_k.to_vec(),
-                sigmas: sigmas_k.to_vec(),
+                readings_k,
+                sigmas_k,
                 rho_m,
                 tail,
                 max_tail_factor,
-            });
+            ));
         }
         let zero_model = ForwardModel::new(&plate.with_unknowns_fixed(&zero)?, options)?;
         for e in &edges {
@@ -215,15 +208,40 @@ impl AdmissibleSet {
         for (&var, col) in ends.iter().zip(end_columns) {
             columns[var] = col;
         }
+        let (tail, max_tail_factor) = tail_factors(&shape, sensors, &edges, options.known_terms);
+        let rho_m = quasi_interpolation_allowance(plate, sensors, &edges)?;
+        Ok(Self::assemble(
+            edges,
+            &columns,
+            offset,
+            readings_k,
+            sigmas_k,
+            rho_m,
+            tail,
+            max_tail_factor,
+        ))
+    }
+
+    /// The set from its node columns (one reading per sensor each) and allowances.
+    #[allow(clippy::too_many_arguments)]
+    fn assemble(
+        edges: Vec<EdgeNodes>,
+        columns: &[Vec<f64>],
+        offset: Vec<f64>,
+        readings_k: &[f64],
+        sigmas_k: &[f64],
+        rho_m: Vec<f64>,
+        tail: Vec<Vec<f64>>,
+        max_tail_factor: f64,
+    ) -> Self {
+        let (m, node_count) = (readings_k.len(), columns.len());
         let mut h = vec![0.0; m * node_count];
         for (var, col) in columns.iter().enumerate() {
             for i in 0..m {
                 h[i * node_count + var] = col[i];
             }
         }
-        let (tail, max_tail_factor) = tail_factors(&shape, sensors, &edges, options.known_terms);
-        let rho_m = quasi_interpolation_allowance(plate, sensors, &edges)?;
-        Ok(AdmissibleSet {
+        AdmissibleSet {
             edges,
             node_count,
             h,
@@ -233,7 +251,7 @@ impl AdmissibleSet {
             rho_m,
             tail,
             max_tail_factor,
-        })
+        }
     }
 
     /// The same set for other readings of the same sensors (kelvin): everything but the

@@ -98,29 +98,7 @@ pub fn run(args: &EstimateArgs, global: &GlobalOptions) -> Result<i32> {
         return Err(Error::invalid_field("--replicates", "must be at least 1"));
     }
     let strength = args.strength.as_deref().map(parse_strength).transpose()?;
-    let exclude = args
-        .exclude
-        .iter()
-        .map(|id| {
-            case.sensors
-                .iter()
-                .position(|s| s.id == id.trim())
-                .ok_or_else(|| {
-                    Error::invalid_field(
-                        "--exclude",
-                        format!(
-                            "no sensor {:?} in {}{}",
-                            id.trim(),
-                            case.files.sensors.display(),
-                            edgetherm::io::suggest::did_you_mean(
-                                id,
-                                case.sensors.iter().map(|s| s.id.as_str())
-                            )
-                        ),
-                    )
-                })
-        })
-        .collect::<Result<Vec<usize>>>()?;
+    let exclude = edgetherm::options::exclude(&args.exclude, &case)?;
     let max_gradient_k_per_m = parse_max_gradient(args.max_gradient, &case)?;
     if args.no_bounds && args.max_gradient.is_some() {
         return Err(Error::invalid_field(

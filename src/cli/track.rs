@@ -181,28 +181,7 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
         options.convection = Some(conv);
     }
     let limit = options.limit;
-    let mut cost = edgetherm::budget::track_cost(
-        &case,
-        options.draws,
-        options.stride,
-        edgetherm::track::engine::PATTERN_CACHE,
-    );
-    if options.bootstrap {
-        let replicates = options.replicates.unwrap_or(case.uncertainty.replicates);
-        let per_row = edgetherm::budget::estimate_cost(
-            &case,
-            replicates,
-            args.replicates.is_some(),
-            (2, 2),
-            case.sensors.len(),
-        );
-        cost.items.extend(
-            per_row
-                .items
-                .into_iter()
-                .filter(|i| i.field.ends_with("replicates")),
-        );
-    }
+    let cost = edgetherm::budget::track_run_cost(&case, &options, args.replicates.is_some());
     global.check_budget(&cost, &case)?;
     let reader = open_log(args, &case, global, idle_exit)?;
     case.read_as.push(reader.read_as());

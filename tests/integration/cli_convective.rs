@@ -2,7 +2,7 @@
 //! mould-insert demo (`sample-measurements/mould-insert`: readings simulated from
 //! `truth-plate.toml` with the invented true h = 4200 W/(m² K)).
 
-use assert_cmd::cargo::cargo_bin_cmd;
+use crate::support::{run, s};
 use edgetherm::case::CaseFiles;
 use edgetherm::io::{load_case, read_truth_profiles};
 use edgetherm::simulate::{add_noise, exact_readings, truth_model};
@@ -13,19 +13,6 @@ const TRUE_H: f64 = 4200.0;
 
 fn demo() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-measurements/mould-insert")
-}
-
-fn run(args: &[&str]) -> (Option<i32>, String, String) {
-    let o = cargo_bin_cmd!("edgetherm").args(args).output().unwrap();
-    (
-        o.status.code(),
-        String::from_utf8_lossy(&o.stdout).into_owned(),
-        String::from_utf8_lossy(&o.stderr).into_owned(),
-    )
-}
-
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
 }
 
 fn json(path: &Path) -> serde_json::Value {

@@ -1,26 +1,12 @@
 //! What a new user stumbles on in the first hour (issue 13): negative values on the command
 //! line, and messages that name the file, the field and the likely fix (exit status 2).
 
-use assert_cmd::cargo::cargo_bin_cmd;
+use crate::support::{run, s};
 use std::fs;
 use std::path::{Path, PathBuf};
 
 fn sample() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-measurements/cold-plate")
-}
-
-/// Run edgetherm with `args`; (exit status, stdout, stderr).
-fn run(args: &[&str]) -> (Option<i32>, String, String) {
-    let o = cargo_bin_cmd!("edgetherm").args(args).output().unwrap();
-    (
-        o.status.code(),
-        String::from_utf8_lossy(&o.stdout).into_owned(),
-        String::from_utf8_lossy(&o.stderr).into_owned(),
-    )
-}
-
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
 }
 
 /// A limit below zero means something (a freezer plate): it is accepted, and the sample's

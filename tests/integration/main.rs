@@ -34,6 +34,7 @@ mod its90_reference;
 mod report_outputs;
 mod round_parts;
 mod snapshots_of_outputs;
+mod support;
 mod tikhonov_reference;
 mod track_alarms;
 mod track_cli;

@@ -3,7 +3,7 @@
 //! estimate on a pipe wall: a hot sector of the inner wall recovered from sensors in the wall,
 //! its bands' coverage and the hottest angle's interval counted over noise draws.
 
-use assert_cmd::cargo::cargo_bin_cmd;
+use crate::support::{run, s};
 use edgetherm::case::CaseFiles;
 use edgetherm::estimate::{EstimateOptions, estimate};
 use edgetherm::geometry::{Edge, EdgeProfile};
@@ -15,19 +15,6 @@ use std::path::{Path, PathBuf};
 
 fn demo() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-measurements/feedwater-pipe")
-}
-
-fn run(args: &[&str]) -> (Option<i32>, String, String) {
-    let o = cargo_bin_cmd!("edgetherm").args(args).output().unwrap();
-    (
-        o.status.code(),
-        String::from_utf8_lossy(&o.stdout).into_owned(),
-        String::from_utf8_lossy(&o.stderr).into_owned(),
-    )
-}
-
-fn s(p: &Path) -> &str {
-    p.to_str().unwrap()
 }
 
 /// An invented hot sector of the inner wall: 150 °C (423.15 K) with a smooth 40 K bump of
@@ -54,6 +41,15 @@ fn sector_case(centre_deg: f64) -> (edgetherm::case::Case, EdgeProfile, Vec<f64>
     let points: Vec<_> = case.sensors.iter().map(|s| s.position).collect();
     let exact = exact_readings(&model, &points).unwrap();
     (case, truth, exact)
+}
+
+/// `exact` with Gaussian noise of 0.3 K from `seed`, every sensor read.
+fn noisy(exact: &[f64], seed: u64) -> Vec<Option<f64>> {
+    add_noise(exact, 0.3, seed)
+        .unwrap()
+        .into_iter()
+        .map(Some)
+        .collect()
 }
 
 #[test]
@@ -122,11 +118,7 @@ fn estimate_writes_angles_and_draws_the_ring() {
 fn hottest_interval_wraps_through_zero() {
     let (case, _, exact) = sector_case(355.0);
     let a = 0.045;
-    let readings: Vec<Option<f64>> = add_noise(&exact, 0.3, 4)
-        .unwrap()
-        .into_iter()
-        .map(Some)
-        .collect();
+    let readings = noisy(&exact, 4);
     let r = estimate(
         &case,
         &readings,
@@ -164,11 +156,7 @@ fn pipe_wall_bands_cover_the_hot_sector() {
     let draws = 24;
     let (mut covered, mut total, mut hottest_inside) = (0usize, 0usize, 0usize);
     for d in 0..draws {
-        let readings: Vec<Option<f64>> = add_noise(&exact, 0.3, 1000 + d as u64)
-            .unwrap()
-            .into_iter()
-            .map(Some)
-            .collect();
+        let readings = noisy(&exact, 1000 + d as u64);
         let r = estimate(
             &case,
             &readings,
@@ -216,11 +204,7 @@ fn strict_bounds_on_a_pipe_wall_hold_the_truth() {
         (edgetherm::bounds::gradient_unit_m(&case.plate, &case.units) - per_degree_m).abs() < 1e-15
     );
     for seed in [5_u64, 6] {
-        let readings: Vec<Option<f64>> = add_noise(&exact, 0.3, seed)
-            .unwrap()
-            .into_iter()
-            .map(Some)
-            .collect();
+        let readings = noisy(&exact, seed);
         let r = estimate(
             &case,
             &readings,
@@ -473,4 +457,34 @@ fn design_on_a_disk_keeps_to_its_sectors() {
     assert_eq!(designed, 6, "{layout}");
     let svg = fs::read_to_string(case.join("d/design.svg")).unwrap();
     assert!(svg.contains("The disk (radius 60.0 mm"));
+}
+
+// The gradient limit of a round part is read and written per degree: the CLI's limit, the
+// summary's unit and the gradient study's assumed limits (round numbers per degree).
+#[test]
+fn gradient_limits_are_per_degree_on_the_pipe() {
+    let out = tempfile::tempdir().unwrap();
+    let dir = out.path().join("est");
+    let (code, text, err) = run(&[
+        "estimate",
+        s(&demo()),
+        "--out",
+        s(&dir),
+        "--replicates",
+        "200",
+        "--max-gradient",
+        "2",
+    ]);
+    assert_eq!(code, Some(0), "{err}");
+    assert!(text.contains("by more than 2.0 °C/°"), "{text}");
+    let summary: serde_json::Value =
+        serde_json::from_str(&fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    assert_eq!(summary["bounds"]["max_gradient_unit"], "C/deg");
+    assert!((summary["bounds"]["max_gradient"].as_f64().unwrap() - 2.0).abs() < 1e-12);
+    let rows = summary["gradient_study"]["peak_upper_bound"]
+        .as_array()
+        .unwrap();
+    let first = rows[0]["max_gradient"].as_f64().unwrap();
+    // the study starts above the minimum required gradient, on the 1-2-5 series per degree
+    assert!([1.0, 2.0, 5.0].contains(&first), "{first}");
 }

@@ -222,7 +222,7 @@ pub const MAX_TEXT_LISTED: usize = 20;
 
 /// `summary.json`.
 pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
-    let u = CaseUnits::new(case.units);
+    let u = CaseUnits::of_plate(case.units, &case.plate);
     let hottest = s.hottest.as_ref().map(|(t, f)| {
         json!({
             "time": t,
@@ -293,13 +293,13 @@ pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
         })),
         "bounds": s.bounds.map(|b| json!({
             "max_gradient": significant(
-                CaseUnits::of_plate(case.units, &case.plate).gradient(b.max_gradient_k_per_m),
+                u.gradient(b.max_gradient_k_per_m),
                 4
             ),
             "max_gradient_unit": format!(
                 "{}/{}",
                 u.temp_code(),
-                CaseUnits::of_plate(case.units, &case.plate).gradient_per()
+                u.gradient_per()
             ),
             "every": b.every,
             "rows_bounded": b.rows,
@@ -352,7 +352,7 @@ pub fn summary_json(case: &Case, s: &TrackSummary) -> Value {
 
 /// The text summary printed at the end of a run.
 pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
-    let u = CaseUnits::new(case.units);
+    let u = CaseUnits::of_plate(case.units, &case.plate);
     let mut out = String::new();
     let _ = writeln!(
         out,
@@ -408,12 +408,9 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
             out,
             "Strict bounds (every hidden edge changing by at most {} {}/{}, {} %): {} rows \
              bounded (every {} fitted rows and each row opening an episode){}.",
-            crate::report::format::significant_text(
-                CaseUnits::of_plate(case.units, &case.plate).gradient(b.max_gradient_k_per_m),
-                3
-            ),
+            crate::report::format::significant_text(u.gradient(b.max_gradient_k_per_m), 3),
             u.temp_symbol(),
-            CaseUnits::of_plate(case.units, &case.plate).gradient_per_show(),
+            u.gradient_per_show(),
             fixed(100.0 * s.confidence, 0),
             b.rows,
             b.every,
