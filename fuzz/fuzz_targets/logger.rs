@@ -6,14 +6,18 @@ use edgetherm_fuzz::*;
 use libfuzzer_sys::fuzz_target;
 
 fuzz_target!(|data: &[u8]| {
+    // the base case is the same for every input: load it once per process
+    static CASE: std::sync::OnceLock<edgetherm::case::Case> = std::sync::OnceLock::new();
     let dir = scratch();
-    write_case(
-        &dir,
-        PLATE.as_bytes(),
-        SENSORS.as_bytes(),
-        READINGS.as_bytes(),
-    );
-    let case = edgetherm::io::load_case(&edgetherm::case::CaseFiles::in_dir(&dir)).unwrap();
+    let case = CASE.get_or_init(|| {
+        write_case(
+            &dir,
+            PLATE.as_bytes(),
+            SENSORS.as_bytes(),
+            READINGS.as_bytes(),
+        );
+        edgetherm::io::load_case(&edgetherm::case::CaseFiles::in_dir(&dir)).unwrap()
+    });
     let log = dir.join("log.csv");
     std::fs::write(&log, data).unwrap();
     let options = LoggerOptions {
@@ -21,7 +25,7 @@ fuzz_target!(|data: &[u8]| {
         follow: None,
         ..LoggerOptions::default()
     };
-    let mut reader = match LoggerReader::open(&log, &case, &options) {
+    let mut reader = match LoggerReader::open(&log, case, &options) {
         Ok(r) => r,
         Err(e) => return input_error(&e),
     };
