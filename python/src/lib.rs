@@ -552,9 +552,24 @@ fn run_track(files: &CaseFiles, rows: &Rows<'_>, s: &TrackSettings) -> Result<Tr
         }
         Ok(())
     };
-    let mut row = LoggerRow::default();
-    while source.next_row(&mut row)? {
-        tracker.push(&row, &mut sink)?;
+    // batches, fitted ahead on a second thread as on the command line (same records)
+    const BATCH: usize = 512;
+    let mut batch: Vec<LoggerRow> = Vec::with_capacity(BATCH);
+    loop {
+        let mut row = LoggerRow::default();
+        if !source.next_row(&mut row)? {
+            break;
+        }
+        batch.push(row);
+        if batch.len() == BATCH {
+            tracker.push_batch(
+                std::mem::replace(&mut batch, Vec::with_capacity(BATCH)),
+                &mut sink,
+            )?;
+        }
+    }
+    if !batch.is_empty() {
+        tracker.push_batch(batch, &mut sink)?;
     }
     tracker.finish(&mut sink)?;
     let case = tracker.case();

@@ -413,17 +413,24 @@ fn stream_rows(
         };
         let Some(msg) = msg else { break };
         let rows = msg?;
-        for row in &rows {
-            let (was_open, closed_before) = (
-                tracker.open_alarm().is_some(),
-                tracker.closed_alarms().len(),
-            );
-            tracker.push(row, &mut |rec| rows_out.write(rec))?;
-            if args.follow && !global.quiet {
-                alarm_news(tracker, was_open, closed_before, bar.as_ref());
+        let count = rows.len() as u64;
+        if args.follow {
+            // row by row, so that each alarm is announced as its row is read
+            for row in &rows {
+                let (was_open, closed_before) = (
+                    tracker.open_alarm().is_some(),
+                    tracker.closed_alarms().len(),
+                );
+                tracker.push(row, &mut |rec| rows_out.write(rec))?;
+                if !global.quiet {
+                    alarm_news(tracker, was_open, closed_before, bar.as_ref());
+                }
             }
+        } else {
+            // fitted ahead on the worker threads while the batch before is finished
+            tracker.push_batch(rows, &mut |rec| rows_out.write(rec))?;
         }
-        rows_seen += rows.len() as u64;
+        rows_seen += count;
         if let Some(b) = &bar {
             b.set_position(rows_seen);
         } else if !global.quiet && last_note.elapsed() >= Duration::from_secs(30) {

@@ -162,8 +162,7 @@ fn split(line: &str, sep: Separator) -> Vec<String> {
         let mut ends = vec![0usize; line.len() + 1];
         let (mut input, mut nout, mut nend) = (line.as_bytes(), 0, 0);
         loop {
-            let (res, nin, o, e) =
-                parser.read_record(input, &mut out[nout..], &mut ends[nend..]);
+            let (res, nin, o, e) = parser.read_record(input, &mut out[nout..], &mut ends[nend..]);
             input = &input[nin..];
             nout += o;
             nend += e;

@@ -48,10 +48,12 @@
 //!   profile error `e_k = P C^{1/2} ξ_k`, drawn once per pattern from a seeded generator and
 //!   reused for every row shifted by that row's estimate: the probability is the share of `k`
 //!   with `max_s (û(s) + e_k(s)) > T`. Each scan point keeps its draws sorted, so a row costs
-//!   one comparison per point plus the draws that actually pass (see `exceed`). When λ changes from row to row
-//!   the draws of the pattern's first λ are rescaled pointwise to the row's standard
-//!   deviation (the correlation along the edge changes little with λ; documented in
-//!   `docs/track.md`).
+//!   one comparison per point plus the draws that actually pass (see `exceed`). When λ
+//!   changes from row to row the draws of the pattern's first λ are rescaled pointwise to the
+//!   row's standard deviation (the correlation along the edge changes little with λ;
+//!   documented in `docs/track.md`). With λ chosen per row, "first" is in row order and
+//!   remembered beyond the cache ([`DRAW_BASES`] patterns), so the draws of a row do not
+//!   depend on what the estimator fitted before it.
 //! * Calibrated strength: with `--calibrate` (and a stated σ) a row whose weighted
 //!   chi-square at the calibrated setting exceeds its [`MISFIT_QUANTILE`] quantile is
 //!   refitted with the case's rule. A strength learnt on a quiet stretch is far too smooth
@@ -80,6 +82,10 @@ use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
 use std::collections::HashMap;
+
+/// Draw bases kept ([`RowEstimator`] `draw_bases`): the patterns' strengths and sds, a
+/// kilobyte or so each.
+pub const DRAW_BASES: usize = 4096;
 
 /// Patterns kept in the cache (least recently used evicted).
 pub const PATTERN_CACHE: usize = 64;
@@ -145,6 +151,38 @@ pub struct RowFit {
     /// prediction from the other sensors, and the fault probability; `None` without a
     /// reading.
     pub diagnostics: Vec<Option<(f64, f64)>>,
+}
+
+/// No hottest point and no alarm from a non-finite number: such a row is skipped with this
+/// message.
+fn finite_row(out: &RowFit) -> Result<()> {
+    let finite = out.temperature.is_finite()
+        && out.temperature_interval.iter().all(|v| v.is_finite())
+        && out.position.is_finite()
+        && out.exceedance.is_none_or(f64::is_finite);
+    if finite {
+        Ok(())
+    } else {
+        Err(Error::Internal(
+            "the row's estimate is not a finite number (the readings or their uncertainties \
+             are beyond what the method computes in double precision); no hottest point or \
+             alarm from this row"
+                .into(),
+        ))
+    }
+}
+
+/// A row fitted ahead ([`RowEstimator::fit_row_ahead`]): its numbers without the sensor
+/// diagnostics, and the projection of its data for [`RowEstimator::diagnose_row`].
+#[derive(Debug, Clone, Default)]
+pub struct AheadFit {
+    /// The row's numbers (diagnostics and exceedance empty).
+    pub fit: RowFit,
+    proj: Option<Projection>,
+    /// The profile and its sd on the scan grid, and the alarm limit, for the exceedance.
+    scan_est: Vec<f64>,
+    scan_sd: Vec<f64>,
+    limit: Option<f64>,
 }
 
 /// Linear pieces at a fixed λ.
@@ -413,6 +451,13 @@ pub struct RowEstimator {
     fitted: DVector<f64>,
     scan_est: DVector<f64>,
     scan_sd: Vec<f64>,
+    /// Per pattern (key), the strength and unit-σ scan sd its exceedance draws are made at
+    /// on rows with a chosen strength: those of the first such row, in row order, that needed
+    /// them ([`DRAW_BASES`] kept, the oldest dropped first). A pattern that leaves the cache
+    /// and comes back gets the same draws, so the exceedance of a row does not depend on what
+    /// else the estimator fitted in between (rows fitted ahead on other threads).
+    draw_bases: HashMap<Vec<u64>, (f64, Vec<f64>)>,
+    draw_base_order: std::collections::VecDeque<Vec<u64>>,
     key: Vec<u64>,
     ratio: Vec<f64>,
     /// Per sensor: used in this row (the diagnostics of the sensors left out).
@@ -529,6 +574,8 @@ impl RowEstimator {
             fitted: DVector::zeros(0),
             scan_est: DVector::zeros(n_scan),
             scan_sd: vec![0.0; n_scan],
+            draw_bases: HashMap::new(),
+            draw_base_order: std::collections::VecDeque::new(),
             key: Vec::new(),
             ratio: vec![0.0; n_scan],
             in_use: Vec::new(),
@@ -712,13 +759,146 @@ impl RowEstimator {
         limit: Option<f64>,
         out: &mut RowFit,
     ) -> Result<()> {
-        if used.len() < self.min_readings() {
-            return Err(crate::estimate::too_few_readings(
-                &self.case,
-                used.len(),
-                self.q_null,
-            ));
+        self.fit_row_steps(readings, used, strength, limit, out, true)
+    }
+
+    /// [`Self::fit_row`] for a strength chosen on the row, without the last step (the sensor
+    /// diagnostics, judged at the running reference strength: the one part of a row's fit
+    /// that depends on the rows before it). Every other number of `out.fit` is the one
+    /// [`Self::fit_row`] gives, whatever rows this estimator saw before; its diagnostics are
+    /// left empty for [`Self::diagnose_row`], which must then be called on the rows in their
+    /// order (on any estimator of the same case). This lets rows be fitted ahead, on other
+    /// threads (`Tracker::push_batch`). `out` may be reused from an earlier row.
+    ///
+    /// # Errors
+    /// As [`Self::fit_row`].
+    pub fn fit_row_ahead(
+        &mut self,
+        readings: &[Option<f64>],
+        used: &[usize],
+        strength: Strength,
+        limit: Option<f64>,
+        out: &mut AheadFit,
+    ) -> Result<()> {
+        out.fit.diagnostics.clear();
+        // the exceedance is left to `diagnose_row` too: its draws are made at the first
+        // strength of the pattern in row order
+        self.fit_row_steps(
+            readings,
+            used,
+            RowStrength::PerRow(strength),
+            None,
+            &mut out.fit,
+            false,
+        )?;
+        out.fit.exceedance = None;
+        out.limit = limit;
+        out.scan_est.clear();
+        out.scan_est.extend_from_slice(self.scan_est.as_slice());
+        out.scan_sd.clone_from(&self.scan_sd);
+        // the row's projection, formed by the strength search and the fitted values
+        let pat = self.cache.get(self.key.as_slice()).ok_or_else(internal)?;
+        match &mut out.proj {
+            Some(p) => p.clone_from(&pat.proj),
+            None => out.proj = Some(pat.proj.clone()),
         }
+        Ok(())
+    }
+
+    /// The last step of a row fitted by [`Self::fit_row_ahead`] (with the same `readings`,
+    /// `used` and strength; `out` holds `ahead.fit`'s numbers): the sensor diagnostics at
+    /// the reference strength, which moves with every row diagnosed, exactly as
+    /// [`Self::fit_row`] forms and moves it.
+    ///
+    /// # Errors
+    /// As [`Self::fit_row`].
+    pub fn diagnose_row(
+        &mut self,
+        readings: &[Option<f64>],
+        used: &[usize],
+        strength: Strength,
+        ahead: &AheadFit,
+        out: &mut RowFit,
+    ) -> Result<()> {
+        self.pattern_key(readings, used, out.order)?;
+        let (key, mut pat) = self
+            .cache
+            .remove_entry(self.key.as_slice())
+            .ok_or_else(internal)?;
+        let mut step = RowStep {
+            readings,
+            used,
+            strength: RowStrength::PerRow(strength),
+            order: out.order,
+            mode: RowMode::Chosen,
+            lambda: out.lambda,
+            projected: false,
+            coefficients: false,
+            basis: false,
+            s: out.sigma_scale.unwrap_or(1.0),
+        };
+        fill_d(&mut self.d, used, readings, &self.sensor_map.offset);
+        // the projection made ahead (the same decomposition, so the same numbers)
+        if let Some(p) = ahead.proj.as_ref() {
+            pat.proj.clone_from(p);
+            step.projected = true;
+        }
+        // the exceedance (step 7), from the profile made ahead
+        let exceedance = match ahead.limit {
+            Some(t) if ahead.scan_est.len() == self.scan_est.len() => {
+                self.scan_est.copy_from_slice(&ahead.scan_est);
+                self.scan_sd.clone_from(&ahead.scan_sd);
+                self.exceedance(&mut pat, &mut step, t).map(Some)
+            }
+            Some(_) => Err(internal()),
+            None => Ok(None),
+        };
+        let exceedance = match exceedance {
+            Ok(e) => e,
+            Err(e) => {
+                self.cache.insert(key, pat);
+                return Err(e);
+            }
+        };
+        out.exceedance = exceedance;
+        // What the steps before the diagnostics leave for them: the fitted values at the
+        // row's λ (the second step) when the diagnostics judge at that λ (the first row of an
+        // order, or a reference strength equal to it), else only the projection and the
+        // pattern's maps, which they use at the reference strength.
+        #[allow(clippy::float_cmp)] // the same test as the diagnostics make
+        let at_row_lambda = self.ref_log_lambda[out.order].is_none_or(|v| v.exp() == out.lambda);
+        let result = (if at_row_lambda {
+            self.fitted_values(&mut pat, &mut step)
+        } else {
+            step.project(&mut pat, &self.d)
+                .and_then(|()| self.pattern_maps(&mut pat))
+                .map(|()| step.basis = true)
+        })
+        .and_then(|()| {
+            let mut leverage = std::mem::take(&mut self.lev);
+            let r = self.diagnostics(&mut pat, &mut step, &mut leverage, out);
+            self.lev = leverage;
+            r
+        });
+        self.cache.insert(key, pat);
+        result.and_then(|()| finite_row(out))
+    }
+
+    /// Whether the check path is on ([`Self::use_reference_path`]).
+    pub fn reference_path(&self) -> bool {
+        self.reference
+    }
+
+    /// [`Self::fit_row`], the sensor diagnostics formed (`diagnose`) or left out.
+    fn fit_row_steps(
+        &mut self,
+        readings: &[Option<f64>],
+        used: &[usize],
+        strength: RowStrength,
+        limit: Option<f64>,
+        out: &mut RowFit,
+        diagnose: bool,
+    ) -> Result<()> {
         let (order, serial) = match strength {
             RowStrength::Fixed { order, .. } => (order, None),
             RowStrength::PerRow(_) => (self.order_for(readings, used)?, Some(self.row_serial)),
@@ -746,7 +926,7 @@ impl RowEstimator {
             basis: false,
             s: 1.0,
         };
-        let refit = self.fit_pattern_row(&mut pat, &mut step, limit, out);
+        let refit = self.fit_pattern_row(&mut pat, &mut step, limit, out, diagnose);
         self.cache.insert(key, pat);
         if let Some(rule) = refit? {
             // the sensor diagnostics stay those of the calibrated fit: a strength re-chosen
@@ -756,21 +936,7 @@ impl RowEstimator {
             out.diagnostics = diagnostics;
             out.refitted = true;
         }
-        // no hottest point and no alarm from a non-finite number: such a row is skipped
-        // with this message
-        let finite = out.temperature.is_finite()
-            && out.temperature_interval.iter().all(|v| v.is_finite())
-            && out.position.is_finite()
-            && out.exceedance.is_none_or(f64::is_finite);
-        if !finite {
-            return Err(Error::Internal(
-                "the row's estimate is not a finite number (the readings or their \
-                 uncertainties are beyond what the method computes in double precision); \
-                 no hottest point or alarm from this row"
-                    .into(),
-            ));
-        }
-        Ok(())
+        finite_row(out)
     }
 
     /// The steps of [`Self::fit_row`] on the row's pattern. Returns the rule to estimate the
@@ -782,6 +948,7 @@ impl RowEstimator {
         step: &mut RowStep<'_>,
         limit: Option<f64>,
         out: &mut RowFit,
+        diagnose: bool,
     ) -> Result<Option<Strength>> {
         fill_d(
             &mut self.d,
@@ -802,7 +969,9 @@ impl RowEstimator {
             None => None,
             Some(t) => Some(self.exceedance(pat, step, t)?),
         };
-        self.diagnostics(pat, step, &mut leverage, out)?;
+        if diagnose {
+            self.diagnostics(pat, step, &mut leverage, out)?;
+        }
         self.lev = leverage;
         if refit_rule.is_some() {
             return Ok(refit_rule);
@@ -1145,7 +1314,8 @@ impl RowEstimator {
     }
 
     /// Step 7: the probability that the hidden edge exceeds `t` anywhere, from the pattern's
-    /// posterior draws (made at the first λ the pattern meets, rescaled to this row's sd).
+    /// posterior draws (made at the first λ the pattern meets, rescaled to this row's sd; with
+    /// λ chosen per row, the first in row order, `draw_bases`).
     fn exceedance(&mut self, pat: &mut Pattern, step: &mut RowStep<'_>, t: f64) -> Result<f64> {
         let n_scan = self.scan_index.len();
         let s = step.s;
@@ -1154,12 +1324,32 @@ impl RowEstimator {
             for (o, v) in sd0.iter_mut().zip(&self.scan_sd) {
                 *o = v / s;
             }
+            let mut lambda = step.lambda;
+            if step.mode == RowMode::Chosen {
+                // the pattern's first chosen strength and its sd, in row order
+                match self.draw_bases.get(self.key.as_slice()) {
+                    Some((l, sd)) => {
+                        lambda = *l;
+                        sd0.clone_from(sd);
+                    }
+                    None => {
+                        if self.draw_base_order.len() >= DRAW_BASES {
+                            if let Some(old) = self.draw_base_order.pop_front() {
+                                self.draw_bases.remove(&old);
+                            }
+                        }
+                        self.draw_base_order.push_back(self.key.clone());
+                        self.draw_bases
+                            .insert(self.key.clone(), (lambda, sd0.clone()));
+                    }
+                }
+            }
             let seed = self.seed ^ hash_key(&self.key);
             step.project(pat, &self.d)?;
             pat.draws = Some(make_draws(
                 &pat.dec,
                 &pat.proj,
-                step.lambda,
+                lambda,
                 &self.scan_matrix,
                 sd0,
                 self.draws,

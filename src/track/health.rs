@@ -575,6 +575,14 @@ impl HealthMonitor {
         }
     }
 
+    /// Whether sensor `i` is left out now for a problem other than a missing reading (stuck,
+    /// or judged faulty): the guess for the rows after it, which [`Self::before_fit`]
+    /// settles row by row.
+    pub fn left_out_now(&self, i: usize) -> bool {
+        let st = &self.states[i];
+        st.stuck.is_some() || st.judged.is_some()
+    }
+
     /// Why sensor `i` is left out now (stuck takes precedence).
     pub fn problem_of(&self, i: usize) -> Problem {
         let st = &self.states[i];

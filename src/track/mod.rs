@@ -16,6 +16,17 @@
 //! 4. [`alarm::AlarmTracker`] opens and closes alarm episodes;
 //! 5. [`series::TrackSeries`] keeps a fixed number of time bins for `track.svg`.
 //!
+//! [`Tracker::push_batch`] gives the same records as [`Tracker::push`] on each row, faster on
+//! more than one core: with the strength chosen on every row, a batch is fitted ahead on a
+//! helper thread (with its own [`RowEstimator`]: a row's fit does not depend on the rows
+//! before it, [`RowEstimator::fit_row_ahead`]) while the previous batch goes through steps 1
+//! and 3–5 in order on the calling thread, with the parts of step 2 that do depend on the
+//! rows before (the exceedance probability and the sensor diagnostics,
+//! [`RowEstimator::diagnose_row`]); the calling thread then helps fit the rest of the batch.
+//! A row fitted ahead with sensors other than the ones step 1 then picks (a sensor just found
+//! stuck or faulty) is fitted again in order, so the sensor decisions, and every output, are
+//! the sequential ones (`docs/track.md`, "Two cores").
+//!
 //! With `calibrate = N` the smoothing order and strength are chosen once from the first `N`
 //! usable rows (the most common order, and the median log-strength of the rows that chose
 //! it), and every row, those `N` included, is then fitted with them. Those rows are held in
@@ -43,9 +54,11 @@ use crate::estimate::{EstimateOptions, SAFETY_CAUTION, strength_of};
 use crate::inverse::Strength;
 use crate::io::LoggerRow;
 use alarm::AlarmTracker;
-use engine::{RowEstimator, RowFit, RowStrength};
+use engine::{AheadFit, RowEstimator, RowFit, RowStrength};
 use health::HealthMonitor;
 use series::TrackSeries;
+use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::{Mutex, PoisonError};
 
 /// Options of `track` beyond the case file.
 #[derive(Debug, Clone)]
@@ -132,6 +145,23 @@ pub struct RowRecord<'a> {
     pub bound: Option<bounds::RowBound>,
 }
 
+/// Rows fitted ahead ([`Tracker::push_batch`]), each with its sensors that have a reading
+/// less those in `left_out`, and the fits (`None`: too few sensors or an error; the row is
+/// then fitted in order).
+struct Ahead {
+    rows: Vec<LoggerRow>,
+    /// The sensors left out as stuck or faulty when the batch was fitted.
+    left_out: Vec<bool>,
+    fits: Vec<Slot>,
+}
+
+/// One row fitted ahead: whether the fit succeeded, and its buffers (reused row after row).
+#[derive(Default)]
+struct Slot {
+    fitted: bool,
+    ahead: AheadFit,
+}
+
 enum Mode {
     Calibrating {
         rows: Vec<LoggerRow>,
@@ -166,6 +196,14 @@ pub struct Tracker {
     /// Strict bounds on rows, with a gradient limit.
     bounds: Option<bounds::RowBounds>,
     bound: Option<bounds::RowBound>,
+    /// The estimator of the helper thread of [`Self::push_batch`] (made on its first call).
+    helper: Option<RowEstimator>,
+    /// Buffers of rows fitted ahead, for the next batch.
+    spare: Vec<Slot>,
+    /// Rows whose fit was made ahead and used ([`Self::rows_fitted_ahead`]).
+    fitted_ahead: u64,
+    /// The batch fitted ahead, waiting for its turn.
+    ahead: Option<Ahead>,
 }
 
 /// Row counts.
@@ -239,6 +277,10 @@ impl Tracker {
             last_time: None,
             hottest: None,
             seed,
+            helper: None,
+            spare: Vec::new(),
+            fitted_ahead: 0,
+            ahead: None,
         })
     }
 
@@ -282,7 +324,122 @@ impl Tracker {
             }
             return Ok(());
         }
-        self.process(row, sink)
+        self.flush_ahead(sink)?;
+        self.process(row, None, sink)
+    }
+
+    /// Feed a batch of rows: the same records, in the same order, as [`Self::push`] on each,
+    /// but with the strength chosen on every row and more than one thread allowed
+    /// (`rayon::current_num_threads`), the batch is fitted ahead on a helper thread while the
+    /// previous batch is finished here, and this thread then helps fit the rest (module
+    /// doc). The last batch's records come with the next call, [`Self::push`] or
+    /// [`Self::finish`].
+    ///
+    /// # Errors
+    /// As [`Self::push`].
+    pub fn push_batch(
+        &mut self,
+        rows: Vec<LoggerRow>,
+        sink: &mut dyn FnMut(&RowRecord<'_>) -> Result<()>,
+    ) -> Result<()> {
+        let strength = match self.mode {
+            Mode::Ready(RowStrength::PerRow(s))
+                if !self.options.bootstrap
+                    && !self.estimator.reference_path()
+                    && rayon::current_num_threads() > 1 =>
+            {
+                s
+            }
+            _ => {
+                for row in &rows {
+                    self.push(row, sink)?;
+                }
+                return Ok(());
+            }
+        };
+        let mut helper = match self.helper.take() {
+            Some(h) => h,
+            None => RowEstimator::new(
+                &self.case,
+                self.options.draws,
+                self.seed,
+                self.options.stride,
+            )?,
+        };
+        let left_out: Vec<bool> = (0..self.case.sensors.len())
+            .map(|i| !self.options.keep_all && self.health.left_out_now(i))
+            .collect();
+        let (need, limit) = (self.estimator.min_readings(), self.options.limit);
+        let slots: Vec<Mutex<Slot>> = rows
+            .iter()
+            .map(|_| Mutex::new(self.spare.pop().unwrap_or_default()))
+            .collect();
+        let next = AtomicUsize::new(0);
+        // fit the rows not yet claimed by either thread, each with its guessed sensors
+        let fit_rest = |est: &mut RowEstimator| {
+            let mut used = Vec::new();
+            loop {
+                let i = next.fetch_add(1, Ordering::Relaxed);
+                let Some(row) = rows.get(i) else { break };
+                used.clear();
+                used.extend(guessed_sensors(row, &left_out));
+                let mut slot = slots[i].lock().unwrap_or_else(PoisonError::into_inner);
+                slot.fitted = used.len() >= need
+                    && est
+                        .fit_row_ahead(&row.values, &used, strength, limit, &mut slot.ahead)
+                        .is_ok();
+            }
+        };
+        let pending = self.ahead.take();
+        let done = std::thread::scope(|scope| {
+            let ahead = scope.spawn(|| fit_rest(&mut helper));
+            let done = match pending {
+                Some(a) => self.commit_ahead(a, sink),
+                None => Ok(()),
+            };
+            fit_rest(&mut self.estimator);
+            if let Err(panic) = ahead.join() {
+                std::panic::resume_unwind(panic);
+            }
+            done
+        });
+        self.helper = Some(helper);
+        self.ahead = Some(Ahead {
+            rows,
+            left_out,
+            fits: slots
+                .into_iter()
+                .map(|s| s.into_inner().unwrap_or_else(PoisonError::into_inner))
+                .collect(),
+        });
+        done
+    }
+
+    /// Finish the rows fitted ahead, in order.
+    fn commit_ahead(
+        &mut self,
+        ahead: Ahead,
+        sink: &mut dyn FnMut(&RowRecord<'_>) -> Result<()>,
+    ) -> Result<()> {
+        let mut result = Ok(());
+        for (row, mut slot) in ahead.rows.iter().zip(ahead.fits) {
+            if result.is_ok() {
+                let fit = slot
+                    .fitted
+                    .then_some((ahead.left_out.as_slice(), &mut slot.ahead));
+                result = self.process(row, fit, sink);
+            }
+            self.spare.push(slot);
+        }
+        result
+    }
+
+    /// Finish the batch fitted ahead, if any.
+    fn flush_ahead(&mut self, sink: &mut dyn FnMut(&RowRecord<'_>) -> Result<()>) -> Result<()> {
+        match self.ahead.take() {
+            Some(a) => self.commit_ahead(a, sink),
+            None => Ok(()),
+        }
     }
 
     fn end_calibration(
@@ -310,16 +467,19 @@ impl Tracker {
             None => RowStrength::PerRow(strength),
         });
         for r in &rows {
-            self.process(r, sink)?;
+            self.process(r, None, sink)?;
         }
         Ok(())
     }
 
-    /// One row: which sensors it uses, its fit, then what follows from a fitted row
-    /// ([`Self::after_fitted`]), and the record handed to `sink`.
+    /// One row: which sensors it uses, its fit (`ahead`: the row's fit without its
+    /// diagnostics, made ahead without the sensors marked, used if the row's sensors are
+    /// those), then what follows from a fitted row ([`Self::after_fitted`]), and the record
+    /// handed to `sink`.
     fn process(
         &mut self,
         row: &LoggerRow,
+        ahead: Option<(&[bool], &mut AheadFit)>,
         sink: &mut dyn FnMut(&RowRecord<'_>) -> Result<()>,
     ) -> Result<()> {
         let Mode::Ready(strength) = self.mode else {
@@ -328,7 +488,7 @@ impl Tracker {
         self.counts.rows += 1;
         self.note_time(row);
         self.choose_sensors(row);
-        let status = self.fit_status(row, strength)?;
+        let status = self.fit_status(row, strength, ahead)?;
         match &status {
             RowStatus::Fitted => self.after_fitted(row),
             RowStatus::Skipped(_) => {
@@ -401,7 +561,12 @@ impl Tracker {
     /// Fit the row ([`engine::RowEstimator::fit_row`], and the bootstrap when asked for), or
     /// say why it is skipped. An invalid first row is an error when the strength rule runs
     /// on every row: the settings are wrong, not the row.
-    fn fit_status(&mut self, row: &LoggerRow, strength: RowStrength) -> Result<RowStatus> {
+    fn fit_status(
+        &mut self,
+        row: &LoggerRow,
+        strength: RowStrength,
+        ahead: Option<(&[bool], &mut AheadFit)>,
+    ) -> Result<RowStatus> {
         let need = self.estimator.min_readings();
         if self.used.len() < need {
             return Ok(RowStatus::Skipped(format!(
@@ -409,29 +574,39 @@ impl Tracker {
                 self.used.len()
             )));
         }
-        Ok(
-            match self.estimator.fit_row(
+        let fitted = match (ahead, strength) {
+            (Some((left_out, fit)), RowStrength::PerRow(s))
+                if self.used.iter().copied().eq(guessed_sensors(row, left_out)) =>
+            {
+                // the row's numbers move in; the buffers they leave go back with the slot
+                std::mem::swap(&mut self.fit, &mut fit.fit);
+                self.fitted_ahead += 1;
+                self.estimator
+                    .diagnose_row(&row.values, &self.used, s, fit, &mut self.fit)
+            }
+            _ => self.estimator.fit_row(
                 &row.values,
                 &self.used,
                 strength,
                 self.options.limit,
                 &mut self.fit,
-            ) {
-                Ok(()) => {
-                    if self.options.bootstrap {
-                        self.bootstrap_row(row, strength)?;
-                    }
-                    RowStatus::Fitted
+            ),
+        };
+        Ok(match fitted {
+            Ok(()) => {
+                if self.options.bootstrap {
+                    self.bootstrap_row(row, strength)?;
                 }
-                Err(e @ crate::Error::Invalid { .. }) if self.counts.fitted == 0 => {
-                    if matches!(strength, RowStrength::PerRow(Strength::Rule(_))) {
-                        return Err(e);
-                    }
-                    RowStatus::Skipped(e.to_string())
+                RowStatus::Fitted
+            }
+            Err(e @ crate::Error::Invalid { .. }) if self.counts.fitted == 0 => {
+                if matches!(strength, RowStrength::PerRow(Strength::Rule(_))) {
+                    return Err(e);
                 }
-                Err(e) => RowStatus::Skipped(e.to_string()),
-            },
-        )
+                RowStatus::Skipped(e.to_string())
+            }
+            Err(e) => RowStatus::Skipped(e.to_string()),
+        })
     }
 
     /// What follows from a fitted row: the sensor decisions ([`health`]), strict bounds when
@@ -565,6 +740,7 @@ impl Tracker {
     /// # Errors
     /// As [`Self::push`].
     pub fn finish(&mut self, sink: &mut dyn FnMut(&RowRecord<'_>) -> Result<()>) -> Result<()> {
+        self.flush_ahead(sink)?;
         if matches!(self.mode, Mode::Calibrating { .. }) {
             self.end_calibration(sink)?;
         }
@@ -682,10 +858,26 @@ impl Tracker {
         self.alarms.any()
     }
 
+    /// How many rows had their fit made ahead on a worker thread and used
+    /// ([`Self::push_batch`]; the others were fitted in order). It depends on the thread
+    /// count, so it is in no output.
+    pub fn rows_fitted_ahead(&self) -> u64 {
+        self.fitted_ahead
+    }
+
     /// The per-row estimator (for checks).
     pub fn estimator_mut(&mut self) -> &mut RowEstimator {
         &mut self.estimator
     }
+}
+
+/// The sensors a row fitted ahead uses: those with a reading, less those marked left out.
+fn guessed_sensors<'a>(
+    row: &'a LoggerRow,
+    left_out: &'a [bool],
+) -> impl Iterator<Item = usize> + 'a {
+    (0..row.values.len())
+        .filter(|&i| row.values[i].is_some() && !left_out.get(i).copied().unwrap_or(false))
 }
 
 /// The calibrated order and λ from the rows' choices: the most common order (ties go to the
