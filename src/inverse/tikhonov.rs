@@ -117,6 +117,28 @@ impl Projection {
     pub fn data(&self) -> &DVector<f64> {
         &self.d
     }
+
+    /// Make `self` a copy of `other`, in place when the sizes agree (`clone_from` of the
+    /// derived `Clone` would allocate every vector again). The scratch vectors are only
+    /// resized: [`Decomposition::project_into`] writes them before it reads them.
+    pub fn copy_from(&mut self, other: &Projection) {
+        fn copy(to: &mut DVector<f64>, from: &DVector<f64>) {
+            if to.len() == from.len() {
+                to.as_mut_slice().copy_from_slice(from.as_slice());
+            } else {
+                *to = from.clone();
+            }
+        }
+        copy(&mut self.d, &other.d);
+        copy(&mut self.beta, &other.beta);
+        self.delta0 = other.delta0;
+        copy(&mut self.null_coef, &other.null_coef);
+        for (to, from) in [(&mut self.z, &other.z), (&mut self.work, &other.work)] {
+            if to.len() != from.len() {
+                *to = from.clone();
+            }
+        }
+    }
 }
 
 /// The decomposition of a [`Problem`]: null-space elimination plus one SVD, built once and

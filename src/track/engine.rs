@@ -172,8 +172,8 @@ fn finite_row(out: &RowFit) -> Result<()> {
     }
 }
 
-/// A row fitted ahead ([`RowEstimator::fit_row_ahead`]): its numbers without the sensor
-/// diagnostics, and the projection of its data for [`RowEstimator::diagnose_row`].
+/// A row fitted ahead ([`RowEstimator::fit_row_ahead`]): its numbers without the exceedance
+/// and the sensor diagnostics, and what [`RowEstimator::finish_row`] needs to form them.
 #[derive(Debug, Clone, Default)]
 pub struct AheadFit {
     /// The row's numbers (diagnostics and exceedance empty).
@@ -762,13 +762,14 @@ impl RowEstimator {
         self.fit_row_steps(readings, used, strength, limit, out, true)
     }
 
-    /// [`Self::fit_row`] for a strength chosen on the row, without the last step (the sensor
-    /// diagnostics, judged at the running reference strength: the one part of a row's fit
-    /// that depends on the rows before it). Every other number of `out.fit` is the one
-    /// [`Self::fit_row`] gives, whatever rows this estimator saw before; its diagnostics are
-    /// left empty for [`Self::diagnose_row`], which must then be called on the rows in their
-    /// order (on any estimator of the same case). This lets rows be fitted ahead, on other
-    /// threads (`Tracker::push_batch`). `out` may be reused from an earlier row.
+    /// [`Self::fit_row`] for a strength chosen on the row, without the two steps that depend
+    /// on the rows before it: the exceedance probability (its draws are made at the pattern's
+    /// first chosen strength in row order) and the sensor diagnostics (judged at a running
+    /// reference strength). Every other number of `out.fit` is the one [`Self::fit_row`]
+    /// gives, whatever rows this estimator saw before; the two are left empty for
+    /// [`Self::finish_row`], which must then be called on the rows in their order (on one
+    /// estimator of the same case, any). This lets rows be fitted ahead, on other threads
+    /// (`Tracker::push_batch`). `out` may be reused from an earlier row.
     ///
     /// # Errors
     /// As [`Self::fit_row`].
@@ -781,8 +782,7 @@ impl RowEstimator {
         out: &mut AheadFit,
     ) -> Result<()> {
         out.fit.diagnostics.clear();
-        // the exceedance is left to `diagnose_row` too: its draws are made at the first
-        // strength of the pattern in row order
+        // no limit: the exceedance is left to `finish_row`
         self.fit_row_steps(
             readings,
             used,
@@ -799,20 +799,20 @@ impl RowEstimator {
         // the row's projection, formed by the strength search and the fitted values
         let pat = self.cache.get(self.key.as_slice()).ok_or_else(internal)?;
         match &mut out.proj {
-            Some(p) => p.clone_from(&pat.proj),
+            Some(p) => p.copy_from(&pat.proj),
             None => out.proj = Some(pat.proj.clone()),
         }
         Ok(())
     }
 
-    /// The last step of a row fitted by [`Self::fit_row_ahead`] (with the same `readings`,
-    /// `used` and strength; `out` holds `ahead.fit`'s numbers): the sensor diagnostics at
-    /// the reference strength, which moves with every row diagnosed, exactly as
-    /// [`Self::fit_row`] forms and moves it.
+    /// The rest of a row fitted by [`Self::fit_row_ahead`] (with the same `readings`, `used`
+    /// and strength; `out` holds `ahead.fit`'s numbers): its exceedance probability for the
+    /// limit given there, and the sensor diagnostics at the reference strength, which moves
+    /// with every row, both exactly as [`Self::fit_row`] forms them.
     ///
     /// # Errors
     /// As [`Self::fit_row`].
-    pub fn diagnose_row(
+    pub fn finish_row(
         &mut self,
         readings: &[Option<f64>],
         used: &[usize],
@@ -820,11 +820,7 @@ impl RowEstimator {
         ahead: &AheadFit,
         out: &mut RowFit,
     ) -> Result<()> {
-        self.pattern_key(readings, used, out.order)?;
-        let (key, mut pat) = self
-            .cache
-            .remove_entry(self.key.as_slice())
-            .ok_or_else(internal)?;
+        let (key, mut pat) = self.take_pattern(readings, used, out.order)?;
         let mut step = RowStep {
             readings,
             used,
@@ -840,7 +836,7 @@ impl RowEstimator {
         fill_d(&mut self.d, used, readings, &self.sensor_map.offset);
         // the projection made ahead (the same decomposition, so the same numbers)
         if let Some(p) = ahead.proj.as_ref() {
-            pat.proj.clone_from(p);
+            pat.proj.copy_from(p);
             step.projected = true;
         }
         // the exceedance (step 7), from the profile made ahead
@@ -884,6 +880,20 @@ impl RowEstimator {
         result.and_then(|()| finite_row(out))
     }
 
+    /// The row's pattern (made if new), out of the cache: so that the steps can borrow it
+    /// beside the estimator's buffers. The caller puts it back whatever the row's outcome.
+    fn take_pattern(
+        &mut self,
+        readings: &[Option<f64>],
+        used: &[usize],
+        order: usize,
+    ) -> Result<(Vec<u64>, Pattern)> {
+        self.pattern_key(readings, used, order)?;
+        self.cache
+            .remove_entry(self.key.as_slice())
+            .ok_or_else(internal)
+    }
+
     /// Whether the check path is on ([`Self::use_reference_path`]).
     pub fn reference_path(&self) -> bool {
         self.reference
@@ -903,13 +913,7 @@ impl RowEstimator {
             RowStrength::Fixed { order, .. } => (order, None),
             RowStrength::PerRow(_) => (self.order_for(readings, used)?, Some(self.row_serial)),
         };
-        self.pattern_key(readings, used, order)?;
-        // The pattern leaves the cache for the row (so that the steps can borrow it beside
-        // the estimator's buffers) and always goes back, whatever the row's outcome.
-        let (key, mut pat) = self
-            .cache
-            .remove_entry(self.key.as_slice())
-            .ok_or_else(internal)?;
+        let (key, mut pat) = self.take_pattern(readings, used, order)?;
         let mut step = RowStep {
             readings,
             used,

@@ -22,7 +22,7 @@
 //! before it, [`RowEstimator::fit_row_ahead`]) while the previous batch goes through steps 1
 //! and 3–5 in order on the calling thread, with the parts of step 2 that do depend on the
 //! rows before (the exceedance probability and the sensor diagnostics,
-//! [`RowEstimator::diagnose_row`]); the calling thread then helps fit the rest of the batch.
+//! [`RowEstimator::finish_row`]); the calling thread then helps fit the rest of the batch.
 //! A row fitted ahead with sensors other than the ones step 1 then picks (a sensor just found
 //! stuck or faulty) is fitted again in order, so the sensor decisions, and every output, are
 //! the sequential ones (`docs/track.md`, "Two cores").
@@ -152,7 +152,8 @@ struct Ahead {
     rows: Vec<LoggerRow>,
     /// The sensors left out as stuck or faulty when the batch was fitted.
     left_out: Vec<bool>,
-    fits: Vec<Slot>,
+    #[allow(clippy::vec_box)] // a slot is a few hundred bytes, moved several times per row
+    fits: Vec<Box<Slot>>,
 }
 
 /// One row fitted ahead: whether the fit succeeded, and its buffers (reused row after row).
@@ -198,8 +199,9 @@ pub struct Tracker {
     bound: Option<bounds::RowBound>,
     /// The estimator of the helper thread of [`Self::push_batch`] (made on its first call).
     helper: Option<RowEstimator>,
-    /// Buffers of rows fitted ahead, for the next batch.
-    spare: Vec<Slot>,
+    /// Buffers of rows fitted ahead, for the next batch (boxed: they move by pointer).
+    #[allow(clippy::vec_box)]
+    spare: Vec<Box<Slot>>,
     /// Rows whose fit was made ahead and used ([`Self::rows_fitted_ahead`]).
     fitted_ahead: u64,
     /// The batch fitted ahead, waiting for its turn.
@@ -370,7 +372,7 @@ impl Tracker {
             .map(|i| !self.options.keep_all && self.health.left_out_now(i))
             .collect();
         let (need, limit) = (self.estimator.min_readings(), self.options.limit);
-        let slots: Vec<Mutex<Slot>> = rows
+        let slots: Vec<Mutex<Box<Slot>>> = rows
             .iter()
             .map(|_| Mutex::new(self.spare.pop().unwrap_or_default()))
             .collect();
@@ -582,7 +584,7 @@ impl Tracker {
                 std::mem::swap(&mut self.fit, &mut fit.fit);
                 self.fitted_ahead += 1;
                 self.estimator
-                    .diagnose_row(&row.values, &self.used, s, fit, &mut self.fit)
+                    .finish_row(&row.values, &self.used, s, fit, &mut self.fit)
             }
             _ => self.estimator.fit_row(
                 &row.values,
