@@ -282,7 +282,9 @@ pub fn track_cost(case: &Case, draws: usize, stride: usize, patterns: usize) -> 
         advice: "use fewer --draws (the default gives the exceedance probability to about \
                  ±0.01)"
             .into(),
-        bytes: d * n_scan * 8.0 * patterns as f64,
+        // kept: a value (8 bytes) and its draw's index (4) per draw and point; while one
+        // pattern's draws are made, the draws matrix (8) and the (value, index) pairs (16)
+        bytes: d * n_scan * (12.0 * patterns as f64 + 24.0),
         flops: d * (n_scan * p + n_scan * 20.0) * patterns as f64,
     });
     cost

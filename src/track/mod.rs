@@ -475,9 +475,9 @@ impl Tracker {
     }
 
     /// One row: which sensors it uses, its fit (`ahead`: the row's fit without its
-    /// diagnostics, made ahead without the sensors marked, used if the row's sensors are
-    /// those), then what follows from a fitted row ([`Self::after_fitted`]), and the record
-    /// handed to `sink`.
+    /// exceedance and diagnostics, made ahead without the sensors marked, used if the row's
+    /// sensors are those), then what follows from a fitted row ([`Self::after_fitted`]), and
+    /// the record handed to `sink`.
     fn process(
         &mut self,
         row: &LoggerRow,
