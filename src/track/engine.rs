@@ -839,45 +839,46 @@ impl RowEstimator {
             pat.proj.copy_from(p);
             step.projected = true;
         }
-        // the exceedance (step 7), from the profile made ahead
-        let exceedance = match ahead.limit {
+        let result = self.finish_steps(&mut pat, &mut step, ahead, out);
+        self.cache.insert(key, pat);
+        result.and_then(|()| finite_row(out))
+    }
+
+    /// The steps of [`Self::finish_row`] on the row's pattern: the exceedance (step 7) from
+    /// the profile made ahead, then the diagnostics (step 8) with what the steps before them
+    /// would have left.
+    fn finish_steps(
+        &mut self,
+        pat: &mut Pattern,
+        step: &mut RowStep<'_>,
+        ahead: &AheadFit,
+        out: &mut RowFit,
+    ) -> Result<()> {
+        out.exceedance = match ahead.limit {
             Some(t) if ahead.scan_est.len() == self.scan_est.len() => {
                 self.scan_est.copy_from_slice(&ahead.scan_est);
                 self.scan_sd.clone_from(&ahead.scan_sd);
-                self.exceedance(&mut pat, &mut step, t).map(Some)
+                Some(self.exceedance(pat, step, t)?)
             }
-            Some(_) => Err(internal()),
-            None => Ok(None),
+            Some(_) => return Err(internal()),
+            None => None,
         };
-        let exceedance = match exceedance {
-            Ok(e) => e,
-            Err(e) => {
-                self.cache.insert(key, pat);
-                return Err(e);
-            }
-        };
-        out.exceedance = exceedance;
-        // What the steps before the diagnostics leave for them: the fitted values at the
-        // row's λ (the second step) when the diagnostics judge at that λ (the first row of an
-        // order, or a reference strength equal to it), else only the projection and the
-        // pattern's maps, which they use at the reference strength.
+        // The fitted values at the row's λ (the second step) when the diagnostics judge at
+        // that λ (the first row of an order, or a reference strength equal to it), else only
+        // the projection and the pattern's maps, which they use at the reference strength.
         #[allow(clippy::float_cmp)] // the same test as the diagnostics make
         let at_row_lambda = self.ref_log_lambda[out.order].is_none_or(|v| v.exp() == out.lambda);
-        let result = (if at_row_lambda {
-            self.fitted_values(&mut pat, &mut step)
+        if at_row_lambda {
+            self.fitted_values(pat, step)?;
         } else {
-            step.project(&mut pat, &self.d)
-                .and_then(|()| self.pattern_maps(&mut pat))
-                .map(|()| step.basis = true)
-        })
-        .and_then(|()| {
-            let mut leverage = std::mem::take(&mut self.lev);
-            let r = self.diagnostics(&mut pat, &mut step, &mut leverage, out);
-            self.lev = leverage;
-            r
-        });
-        self.cache.insert(key, pat);
-        result.and_then(|()| finite_row(out))
+            step.project(pat, &self.d)?;
+            self.pattern_maps(pat)?;
+            step.basis = true;
+        }
+        let mut leverage = std::mem::take(&mut self.lev);
+        let result = self.diagnostics(pat, step, &mut leverage, out);
+        self.lev = leverage;
+        result
     }
 
     /// The row's pattern (made if new), out of the cache: so that the steps can borrow it
