@@ -158,7 +158,7 @@ impl AdmissibleSet {
         // leaves the corner values alone, so its readings follow from the hidden edge's series
         // alone (superposition); only the two end nodes of each edge move a corner.
         let mut columns: Vec<Vec<f64>> = vec![Vec::new(); node_count];
-        if shape.is_round() {
+        let ((tail, max_tail_factor), rho_m) = if shape.is_round() {
             // a circle: every node's hat (the two half hats at 0 and at the full turn too)
             // through the Fourier synthesis of the unknown circle ([`polar_hat_columns`])
             let map = PolarMap::new(plate, sensors, disc.terms.max(16))?;
@@ -167,49 +167,26 @@ impl AdmissibleSet {
                     columns[e.first + j] = col;
                 }
             }
-            let (tail, max_tail_factor) = polar_tail_factors(&shape, sensors, &edges, &map);
-            let rho_m = polar_quasi_interpolation_allowance(&shape, sensors, &edges, &map);
-            return Ok(Self::assemble(
-                edges,
-                &columns,
-                offset,
-                readings_k,
-                sigmas_k,
-                rho_m,
-                tail,
-                max_tail_factor,
-            ));
-        }
-        let zero_model = ForwardModel::new(&plate.with_unknowns_fixed(&zero)?, options)?;
-        for e in &edges {
-            let interior = interior_hat_columns(&zero_model, &shape, e, sensors, options)?;
-            for (j, col) in interior.into_iter().enumerate() {
-                columns[e.first + 1 + j] = col;
-            }
-        }
-        let ends: Vec<usize> = edges
-            .iter()
-            .flat_map(|e| [e.first, e.first + k_nodes - 1])
-            .collect();
-        let end_columns = ends
-            .par_iter()
-            .map(|&var| {
-                let mut profiles = zero.clone();
-                let e = &edges[var / k_nodes];
-                let j = var - e.first;
-                let hat = hat_profile(&e.positions_m, j)?;
-                if let Some(slot) = profiles.iter_mut().find(|(x, _)| *x == e.edge) {
-                    slot.1 = hat;
-                }
-                let r = hat_response(plate, &profiles, sensors, options)?;
-                Ok(r.iter().zip(&offset).map(|(a, o)| a - o).collect())
-            })
-            .collect::<Result<Vec<Vec<f64>>>>()?;
-        for (&var, col) in ends.iter().zip(end_columns) {
-            columns[var] = col;
-        }
-        let (tail, max_tail_factor) = tail_factors(&shape, sensors, &edges, options.known_terms);
-        let rho_m = quasi_interpolation_allowance(plate, sensors, &edges)?;
+            (
+                polar_tail_factors(&shape, sensors, &edges, &map),
+                polar_quasi_interpolation_allowance(&shape, sensors, &edges, &map),
+            )
+        } else {
+            straight_hat_columns(
+                plate,
+                &shape,
+                sensors,
+                &edges,
+                &zero,
+                &offset,
+                (options, k_nodes),
+                &mut columns,
+            )?;
+            (
+                tail_factors(&shape, sensors, &edges, options.known_terms),
+                quasi_interpolation_allowance(plate, sensors, &edges)?,
+            )
+        };
         Ok(Self::assemble(
             edges,
             &columns,
@@ -221,7 +198,54 @@ impl AdmissibleSet {
             max_tail_factor,
         ))
     }
+}
 
+/// The node columns of straight hidden edges: the interior hats through the hidden edge's
+/// series alone (superposition), the two end hats of each edge (which move a corner) through
+/// a whole forward model each (`k_nodes` nodes per edge).
+#[allow(clippy::too_many_arguments)]
+fn straight_hat_columns(
+    plate: &Plate,
+    shape: &Shape,
+    sensors: &[Point],
+    edges: &[EdgeNodes],
+    zero: &[(Edge, EdgeProfile)],
+    offset: &[f64],
+    (options, k_nodes): (SeriesOptions, usize),
+    columns: &mut [Vec<f64>],
+) -> Result<()> {
+    let zero_model = ForwardModel::new(&plate.with_unknowns_fixed(zero)?, options)?;
+    for e in edges {
+        let interior = interior_hat_columns(&zero_model, shape, e, sensors, options)?;
+        for (j, col) in interior.into_iter().enumerate() {
+            columns[e.first + 1 + j] = col;
+        }
+    }
+    let ends: Vec<usize> = edges
+        .iter()
+        .flat_map(|e| [e.first, e.first + k_nodes - 1])
+        .collect();
+    let end_columns = ends
+        .par_iter()
+        .map(|&var| {
+            let mut profiles = zero.to_vec();
+            let e = &edges[var / k_nodes];
+            let j = var - e.first;
+            let hat = hat_profile(&e.positions_m, j)?;
+            if let Some(slot) = profiles.iter_mut().find(|(x, _)| *x == e.edge) {
+                slot.1 = hat;
+            }
+            let r = hat_response(plate, &profiles, sensors, options)?;
+            Ok(r.iter().zip(offset).map(|(a, o)| a - o).collect())
+        })
+        .collect::<Result<Vec<Vec<f64>>>>()?;
+    for (&var, col) in ends.iter().zip(end_columns) {
+        columns[var] = col;
+    }
+    Ok(())
+}
+
+impl AdmissibleSet {
     /// The set from its node columns (one reading per sensor each) and allowances.
     #[allow(clippy::too_many_arguments)]
     fn assemble(

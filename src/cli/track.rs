@@ -427,7 +427,7 @@ fn stream_rows(
                 }
             }
         } else {
-            // fitted ahead on the worker threads while the batch before is finished
+            // fitted ahead on a helper thread while the batch before is finished
             tracker.push_batch(rows, &mut |rec| rows_out.write(rec))?;
         }
         rows_seen += count;

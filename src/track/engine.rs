@@ -791,7 +791,6 @@ impl RowEstimator {
             &mut out.fit,
             false,
         )?;
-        out.fit.exceedance = None;
         out.limit = limit;
         out.scan_est.clear();
         out.scan_est.extend_from_slice(self.scan_est.as_slice());

@@ -17,6 +17,14 @@ fn demo() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-measurements/feedwater-pipe")
 }
 
+/// `estimate` on the demo into `out`, with `extra` options.
+fn estimate_demo(out: &Path, extra: &[&str]) -> (Option<i32>, String, String) {
+    let demo = demo();
+    let mut args = vec!["estimate", s(&demo), "--out", s(out)];
+    args.extend_from_slice(extra);
+    run(&args)
+}
+
 /// An invented hot sector of the inner wall: 150 °C (423.15 K) with a smooth 40 K bump of
 /// half-width about 25° centred at `centre_deg` (wrapping round the circle).
 fn sector_kelvin(deg: f64, centre_deg: f64) -> f64 {
@@ -69,16 +77,7 @@ fn check_describes_the_polar_model() {
 fn estimate_writes_angles_and_draws_the_ring() {
     let out = tempfile::tempdir().unwrap();
     let dir = out.path().join("est");
-    let (code, text, err) = run(&[
-        "estimate",
-        s(&demo()),
-        "--out",
-        s(&dir),
-        "--replicates",
-        "300",
-        "--limit",
-        "200",
-    ]);
+    let (code, text, err) = estimate_demo(&dir, &["--replicates", "300", "--limit", "200"]);
     // the top of the demo's inner wall runs above 200 °C: an alarm, exit 3
     assert_eq!(code, Some(3), "{err}\n{text}");
     assert!(text.contains("inner edge, angle = "), "{text}");
@@ -465,16 +464,7 @@ fn design_on_a_disk_keeps_to_its_sectors() {
 fn gradient_limits_are_per_degree_on_the_pipe() {
     let out = tempfile::tempdir().unwrap();
     let dir = out.path().join("est");
-    let (code, text, err) = run(&[
-        "estimate",
-        s(&demo()),
-        "--out",
-        s(&dir),
-        "--replicates",
-        "200",
-        "--max-gradient",
-        "2",
-    ]);
+    let (code, text, err) = estimate_demo(&dir, &["--replicates", "200", "--max-gradient", "2"]);
     assert_eq!(code, Some(0), "{err}");
     assert!(text.contains("by more than 2.0 °C/°"), "{text}");
     let summary: serde_json::Value =
