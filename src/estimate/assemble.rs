@@ -11,7 +11,6 @@ use super::{
     FitSummary, Hottest, Interval, SAFETY_CAUTION, SensorResult, StrengthSummary, linear_sd,
     profile_points, refined_max, resolution,
 };
-use crate::bounds::BoundsResult;
 use crate::case::{Case, Smoothing};
 use crate::error::Result;
 use crate::geometry::Edge;
@@ -20,13 +19,12 @@ use crate::uncertainty::{pointwise_band, quantile, simultaneous_band};
 use nalgebra::DMatrix;
 use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
 
-/// Put the result together.
+/// Put the result together; the strict bounds, if any, are the caller's to add.
 pub(super) fn assemble(
     problem: &Problem<'_>,
     fitted: Fitted,
     maps: OutputMaps,
     resampled: Resampled,
-    bounds: Option<BoundsResult>,
     options: &EstimateOptions,
 ) -> Result<EstimateResult> {
     let case = problem.case;
@@ -36,22 +34,22 @@ pub(super) fn assemble(
     // the profiles' errors in every replicate: the bands, the hottest point and the
     // exceedance all read them
     let prof_err = boot.errors_of(&maps.profile);
-    // the same, one column per replicate (the hottest point and the exceedance read each
-    // replicate's profile whole)
-    let prof_err_by_replicate = prof_err.transpose();
+    // each replicate's hottest point and largest value (the hottest point's shares and the
+    // exceedance read them)
+    let peaks = ReplicatePeaks::new(&problem.edge_positions, &prof_est, &prof_err);
     let (edges, hottest) = edge_results(
         problem,
         &fitted,
         &maps,
         &resampled,
         &prof_est,
-        (&prof_err, &prof_err_by_replicate),
+        (&prof_err, &peaks),
     )?;
     let convective_heat_flows = convective_flows(problem, &fitted, &maps, &resampled);
     let field = field_result(&fitted, &maps, boot, confidence);
     let exceedance = options
         .limit
-        .map(|limit| exceedance(&prof_est, &prof_err_by_replicate, &fitted, limit, options));
+        .map(|limit| exceedance(&peaks.maxima, &fitted, limit, options));
     let sensors = sensor_results(problem, &fitted)?;
     let fit_summary = fit_summary(problem, &fitted);
     let strength_summary = strength_summary(problem, &fitted);
@@ -84,7 +82,7 @@ pub(super) fn assemble(
         replicates: resampled.replicates,
         bootstrap_mode: resampled.mode,
         seed: resampled.seed,
-        bounds,
+        bounds: None,
         cautions,
         conversion: case.conversion(),
         read_as: case.read_as.clone(),
@@ -137,7 +135,7 @@ fn edge_results(
     maps: &OutputMaps,
     resampled: &Resampled,
     prof_est: &[f64],
-    (prof_err, prof_err_by_replicate): (&DMatrix<f64>, &DMatrix<f64>),
+    (prof_err, peaks): (&DMatrix<f64>, &ReplicatePeaks),
 ) -> Result<(Vec<EdgeResult>, Hottest)> {
     let case = problem.case;
     let boot = &resampled.output;
@@ -156,7 +154,7 @@ fn edge_results(
         prof_est,
         &p_lo,
         &p_hi,
-        prof_err_by_replicate,
+        &peaks.located,
     );
     // A sensor kept under two explanations: the hotter one bounds the hottest temperature.
     for d in &fitted.doubts {
@@ -241,17 +239,13 @@ fn field_result(
 /// bootstrap replicates whose profile maximum does. The hotter explanation of a doubtful
 /// sensor crossing the limit raises the alarm too.
 fn exceedance(
-    prof_est: &[f64],
-    by_replicate: &DMatrix<f64>,
+    maxima: &[f64],
     fitted: &Fitted,
     limit: f64,
     options: &EstimateOptions,
 ) -> Exceedance {
-    let replicates = by_replicate.ncols();
-    let over = (0..replicates)
-        .filter(|&b| replicate_max(prof_est, by_replicate.column(b).as_slice()) > limit)
-        .count();
-    let probability = over as f64 / replicates as f64;
+    let over = maxima.iter().filter(|&&m| m > limit).count();
+    let probability = over as f64 / maxima.len() as f64;
     Exceedance {
         limit,
         probability,
@@ -331,12 +325,64 @@ fn strength_summary(problem: &Problem<'_>, fitted: &Fitted) -> StrengthSummary {
     }
 }
 
-/// The largest value of a replicate's profile, `est − errors_of_b`.
-fn replicate_max(est: &[f64], errors_of_b: &[f64]) -> f64 {
-    est.iter()
-        .zip(errors_of_b)
-        .map(|(e, err)| e - err)
-        .fold(f64::NEG_INFINITY, f64::max)
+/// Replicates per block of [`ReplicatePeaks::new`].
+const REPLICATE_BLOCK: usize = 64;
+
+/// Every bootstrap replicate's hottest point and largest profile value.
+struct ReplicatePeaks {
+    /// Per replicate: the unknown edge (index) and the position of its profile's hottest
+    /// point ([`locate_hottest`]).
+    located: Vec<(usize, f64)>,
+    /// Per replicate: the largest value of its profile, kelvin.
+    maxima: Vec<f64>,
+}
+
+impl ReplicatePeaks {
+    /// From the profiles' errors `errors` (B × n, column `j` holding every replicate's error
+    /// at point `j`): replicate `b`'s profile is `est − errors[b, :]`. The errors are read
+    /// block by block of replicates, each block's profiles gathered contiguous, rather than
+    /// transposed whole.
+    fn new(edge_positions: &[(Edge, Vec<f64>)], est: &[f64], errors: &DMatrix<f64>) -> Self {
+        let (b_count, n) = errors.shape();
+        let mut located = Vec::with_capacity(b_count);
+        let mut maxima = Vec::with_capacity(b_count);
+        let mut block = vec![0.0; REPLICATE_BLOCK * n];
+        for b0 in (0..b_count).step_by(REPLICATE_BLOCK) {
+            let len = REPLICATE_BLOCK.min(b_count - b0);
+            for (j, &e) in est.iter().enumerate() {
+                // column-major storage: point j's errors are contiguous
+                let column = &errors.as_slice()[j * b_count + b0..j * b_count + b0 + len];
+                for (i, err) in column.iter().enumerate() {
+                    block[i * n + j] = e - err;
+                }
+            }
+            for draw in block.chunks_exact(n).take(len) {
+                let (k, p, _) = locate_hottest(edge_positions, |j| draw[j]);
+                located.push((k, p));
+                maxima.push(draw.iter().copied().fold(f64::NEG_INFINITY, f64::max));
+            }
+        }
+        ReplicatePeaks { located, maxima }
+    }
+}
+
+/// The hottest point of the stacked profiles `val(j)` (every unknown edge's points in turn,
+/// as [`profile_positions`] orders them): `(edge index, position, temperature)`, refined
+/// between grid points by [`refined_max`]; the first edge wins a tie.
+fn locate_hottest(
+    edge_positions: &[(Edge, Vec<f64>)],
+    val: impl Fn(usize) -> f64,
+) -> (usize, f64, f64) {
+    let n = edge_positions.first().map_or(0, |e| e.1.len());
+    let mut best = (0, f64::NAN, f64::NEG_INFINITY);
+    for (k, (_, pos)) in edge_positions.iter().enumerate() {
+        let (idx, v) = refined_max(|j| val(k * n + j), 0, n);
+        if v > best.2 {
+            let step = pos[1] - pos[0];
+            best = (k, pos[0] + idx * step, v);
+        }
+    }
+    best
 }
 
 /// The hottest point of the estimate and its intervals.
@@ -357,21 +403,10 @@ fn hottest_point(
     est: &[f64],
     lower: &[f64],
     upper: &[f64],
-    by_replicate: &DMatrix<f64>,
+    replicate_peaks: &[(usize, f64)],
 ) -> Hottest {
     let n = edge_positions.first().map_or(0, |e| e.1.len());
-    let locate = |val: &dyn Fn(usize) -> f64| -> (usize, f64, f64) {
-        let mut best = (0, f64::NAN, f64::NEG_INFINITY);
-        for (k, (_, pos)) in edge_positions.iter().enumerate() {
-            let (idx, v) = refined_max(|j| val(k * n + j), 0, n);
-            if v > best.2 {
-                let step = pos[1] - pos[0];
-                best = (k, pos[0] + idx * step, v);
-            }
-        }
-        best
-    };
-    let (k0, pos0, t0) = locate(&|j| est[j]);
+    let (k0, pos0, t0) = locate_hottest(edge_positions, |j| est[j]);
     let max_lower = lower.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let max_upper = upper.iter().copied().fold(f64::NEG_INFINITY, f64::max);
     let pos = &edge_positions[k0].1;
@@ -385,16 +420,10 @@ fn hottest_point(
     let [p_lo, p_hi] = shape
         .position_hull(hot_edge, &candidates)
         .unwrap_or([pos0, pos0]);
-    let b_count = by_replicate.ncols();
+    let b_count = replicate_peaks.len();
     let mut counts = vec![0usize; edge_positions.len()];
     let mut inside = 0usize;
-    // replicate by replicate (column b: replicate b's profile errors, contiguous)
-    let mut draw = vec![0.0; est.len()];
-    for b in 0..b_count {
-        for ((t, e), err) in draw.iter_mut().zip(est).zip(by_replicate.column(b).iter()) {
-            *t = e - err;
-        }
-        let (k, p, _) = locate(&|j| draw[j]);
+    for &(k, p) in replicate_peaks {
         counts[k] += 1;
         inside += usize::from(k == k0 && shape.interval_contains(hot_edge, [p_lo, p_hi], p));
     }

@@ -149,17 +149,20 @@ fn estimate_known_h(
 ) -> Result<EstimateResult> {
     let problem = Problem::new(case, readings, options)?;
     let fitted = faults::fit_leaving_out_faults(&problem, options)?;
-    // the strict bounds and the bootstrap are independent (neither draws from the other's
-    // random numbers): run them side by side
-    let (bounds, outputs) = rayon::join(
+    // the strict bounds are independent of the bootstrap and of everything assembled from
+    // it (neither draws from the other's random numbers, and the result only carries the
+    // bounds): run them side by side, the whole rest of the estimate on the other thread
+    let used = fitted.used.clone();
+    let sigma = fitted.fit.sigma.clone();
+    let (bounds, result) = rayon::join(
         || {
             options.strict_bounds.then(|| {
                 crate::bounds::estimate_bounds(
                     case,
                     &problem.points,
                     readings,
-                    &fitted.used,
-                    fitted.fit.sigma.as_slice(),
+                    &used,
+                    sigma.as_slice(),
                     problem.stated,
                     options.max_gradient_k_per_m,
                     &problem.edge_positions,
@@ -169,11 +172,11 @@ fn estimate_known_h(
         || -> Result<_> {
             let maps = OutputMaps::new(&problem, options.grid)?;
             let resampled = outputs::resample(&problem, &fitted, options, progress)?;
-            Ok((maps, resampled))
+            assemble::assemble(&problem, fitted, maps, resampled, options)
         },
     );
-    let (maps, resampled) = outputs?;
-    let result = assemble::assemble(&problem, fitted, maps, resampled, bounds, options)?;
+    let mut result = result?;
+    result.bounds = bounds;
     result.check_finite()?;
     Ok(result)
 }

@@ -408,13 +408,14 @@ pub fn simultaneous_band(
             var.sqrt().max(1e-12)
         })
         .collect();
-    let mut t: Vec<f64> = (0..b_count)
-        .map(|b| {
-            (0..n)
-                .map(|j| ((estimate[j] - errors[(b, j)]) - mean[j]).abs() / se[j])
-                .fold(0.0, f64::max)
-        })
-        .collect();
+    // T_b, point after point (each point's column is contiguous); a maximum does not
+    // depend on the order it is taken in
+    let mut t = vec![0.0_f64; b_count];
+    for j in 0..n {
+        for (t_b, err) in t.iter_mut().zip(errors.column(j).iter()) {
+            *t_b = t_b.max(((estimate[j] - err) - mean[j]).abs() / se[j]);
+        }
+    }
     let c = quantile(&mut t, confidence);
     (
         (0..n).map(|j| mean[j] - c * se[j]).collect(),
