@@ -41,6 +41,11 @@ pub struct DualData {
     /// Per node `k` (all edges, in variable order): `Σ_{k' ≤ k, same edge} w_i H_{ik'}` for
     /// every sensor `i`, stored node after node (`cum[k m + i]`).
     cum: Vec<f64>,
+    /// `cum` again with each node's row padded with zeros to [`DualData::stride`] entries,
+    /// for the Hessian's blocked product.
+    padded: Vec<f64>,
+    /// Row length of `padded`: `m` rounded up to a multiple of [`GRAM_COLS`].
+    stride: usize,
     /// Per hidden edge: first node, node count, spacing (metres).
     edges: Vec<(usize, usize, f64)>,
     /// `w_i (d_i − o_i)`.
@@ -50,6 +55,11 @@ pub struct DualData {
     /// Allowance per unit gradient (metres) and fixed allowance (kelvin) per sensor.
     allowance: (Vec<f64>, Vec<f64>),
 }
+
+/// Columns (and rows) of one register block of the Hessian's Gram product
+/// ([`Problem::derivatives`]).
+const GRAM_COLS: usize = 8;
+const GRAM_ROWS: usize = 2;
 
 /// Largest number of Newton steps over all smoothing stages.
 const MAX_STEPS: usize = 400;
@@ -81,9 +91,19 @@ impl DualData {
         let a0 = (0..m)
             .map(|i| w[i] * (set.readings[i] - set.offset[i]))
             .collect();
+        let stride = m.next_multiple_of(GRAM_COLS).max(GRAM_COLS);
+        let mut padded = vec![0.0; n * stride];
+        for (row, full) in cum
+            .chunks_exact(m.max(1))
+            .zip(padded.chunks_exact_mut(stride))
+        {
+            full[..row.len()].copy_from_slice(row);
+        }
         DualData {
             m,
             cum,
+            padded,
+            stride,
             edges,
             a0,
             w,
@@ -450,24 +470,43 @@ impl<'a> Problem<'a> {
             largest = largest.max(curvature[k]);
         }
         let threshold = 1e-14 * largest;
-        let mut upper = vec![0.0; m * m];
-        for (k, &c) in curvature.iter().enumerate() {
-            if c <= threshold {
-                continue;
-            }
-            let row = &self.data.cum[k * m..(k + 1) * m];
-            for i in 0..m {
-                let a = c * row[i];
-                for (u, r) in upper[i * m + i..(i + 1) * m].iter_mut().zip(&row[i..]) {
-                    *u += a * r;
+        // Σ_k c_k cum_k cum_kᵀ over the nodes whose term counts, its upper triangle in blocks
+        // of GRAM_ROWS × GRAM_COLS entries held in registers across the nodes: every entry is
+        // the same products added in the same node order as a plain triple loop would add them
+        let active: Vec<(usize, f64)> = curvature
+            .iter()
+            .enumerate()
+            .filter(|&(_, &c)| c > threshold || c.is_nan())
+            .map(|(k, &c)| (k, c))
+            .collect();
+        let stride = self.data.stride;
+        for i0 in (0..m).step_by(GRAM_ROWS) {
+            for j0 in ((i0 / GRAM_COLS) * GRAM_COLS..m).step_by(GRAM_COLS) {
+                let mut acc = [[0.0_f64; GRAM_COLS]; GRAM_ROWS];
+                for &(k, c) in &active {
+                    let row = &self.data.padded[k * stride..(k + 1) * stride];
+                    let (Some(block), Some(left)) = (
+                        row[j0..].first_chunk::<GRAM_COLS>(),
+                        row[i0..].first_chunk::<GRAM_ROWS>(),
+                    ) else {
+                        continue; // not reached: the padding covers both blocks
+                    };
+                    for (acc_i, &x_i) in acc.iter_mut().zip(left) {
+                        let a = c * x_i;
+                        for (u, &x_j) in acc_i.iter_mut().zip(block) {
+                            *u += a * x_j;
+                        }
+                    }
                 }
-            }
-        }
-        for i in 0..m {
-            for j in i..m {
-                hess[(i, j)] += upper[i * m + j];
-                if j != i {
-                    hess[(j, i)] += upper[i * m + j];
+                for (i, acc_i) in (i0..m).zip(&acc) {
+                    for (j, &v) in (j0..m).zip(acc_i) {
+                        if j >= i {
+                            hess[(i, j)] += v;
+                            if j != i {
+                                hess[(j, i)] += v;
+                            }
+                        }
+                    }
                 }
             }
         }

@@ -383,6 +383,26 @@ impl OutputSet {
         Ok(())
     }
 
+    /// Write several files of the set side by side (each as [`Self::write`]); they are
+    /// recorded in the order given. On an error nothing of them is recorded.
+    ///
+    /// # Errors
+    /// The first [`Error::Io`], in the order given.
+    pub fn write_all(&mut self, files: &[(&str, &[u8])]) -> Result<()> {
+        use rayon::prelude::*;
+        let staging = self.staging.path();
+        files
+            .par_iter()
+            .map(|(name, bytes)| write_atomic(&staging.join(name), bytes))
+            .collect::<Result<Vec<()>>>()?;
+        self.files.extend(
+            files
+                .iter()
+                .map(|(name, bytes)| (name.to_string(), bytes.len() as u64)),
+        );
+        Ok(())
+    }
+
     /// The path where a file of the set is streamed (in the staging folder); call
     /// [`Self::record`] once it is complete.
     pub fn staging_path(&self, name: &str) -> PathBuf {

@@ -42,24 +42,55 @@ pub struct Output {
 
 /// Render every output of `docs/case-files.md`, outputs in memory, in the order of [`OUTPUT_FILE_NAMES`].
 pub fn render_outputs(result: &EstimateResult) -> Result<Vec<Output>> {
-    let profile_svg = profile_plot::profile_svg(result)?;
-    let field_svg = field_plot::field_svg(result)?;
-    let json = serde_json::to_string_pretty(&summary_json(result))
-        .map_err(|e| Error::Internal(format!("cannot format summary.json: {e}")))?;
-    let html = html::report_html(result, &profile_svg, &field_svg);
+    // the pictures (and the page that inlines them) and the tables are independent: made
+    // side by side
+    let ((pictures, json), (field_csv, (profile_csv, sensors_csv))) = rayon::join(
+        || {
+            rayon::join(
+                || -> Result<_> {
+                    let (profile_svg, field_svg) = rayon::join(
+                        || profile_plot::profile_svg(result),
+                        || field_plot::field_svg(result),
+                    );
+                    let (profile_svg, field_svg) = (profile_svg?, field_svg?);
+                    let html = html::report_html(result, &profile_svg, &field_svg);
+                    Ok((profile_svg, field_svg, html))
+                },
+                || {
+                    serde_json::to_string_pretty(&summary_json(result))
+                        .map_err(|e| Error::Internal(format!("cannot format summary.json: {e}")))
+                },
+            )
+        },
+        || {
+            rayon::join(
+                || tables::field_csv(result),
+                || {
+                    rayon::join(
+                        || tables::profile_csv(result),
+                        || tables::sensors_csv(result),
+                    )
+                },
+            )
+        },
+    );
+    let (profile_svg, field_svg, html) = pictures?;
+    let mut rendered = [
+        ("profile.csv", profile_csv?),
+        ("field.csv", field_csv?),
+        ("sensors.csv", sensors_csv?),
+        ("summary.json", format!("{}\n", json?).into_bytes()),
+        ("profile.svg", profile_svg.into_bytes()),
+        ("field.svg", field_svg.into_bytes()),
+        ("report.html", html.into_bytes()),
+    ];
     let mut out = Vec::with_capacity(OUTPUT_FILE_NAMES.len());
     for name in OUTPUT_FILE_NAMES {
-        let bytes = match name {
-            "profile.csv" => tables::profile_csv(result)?,
-            "field.csv" => tables::field_csv(result)?,
-            "sensors.csv" => tables::sensors_csv(result)?,
-            "summary.json" => format!("{json}\n").into_bytes(),
-            "profile.svg" => profile_svg.clone().into_bytes(),
-            "field.svg" => field_svg.clone().into_bytes(),
-            "report.html" => html.clone().into_bytes(),
-            other => {
+        let bytes = match rendered.iter_mut().find(|(n, _)| *n == name) {
+            Some((_, bytes)) => std::mem::take(bytes),
+            None => {
                 return Err(Error::Internal(format!(
-                    "the report has no renderer for the output file {other}"
+                    "the report has no renderer for the output file {name}"
                 )));
             }
         };
@@ -76,8 +107,7 @@ pub fn render_outputs(result: &EstimateResult) -> Result<Vec<Output>> {
 pub fn write_outputs(result: &EstimateResult, out_dir: &Path) -> Result<Vec<PathBuf>> {
     let outputs = render_outputs(result)?;
     let mut set = OutputSet::begin(out_dir, "estimate")?;
-    for o in outputs {
-        set.write(o.name, &o.bytes)?;
-    }
+    let files: Vec<(&str, &[u8])> = outputs.iter().map(|o| (o.name, &o.bytes[..])).collect();
+    set.write_all(&files)?;
     set.commit()
 }
