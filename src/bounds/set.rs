@@ -534,20 +534,34 @@ fn quasi_interpolation_allowance(
             fine,
             ds,
         } = FineGrid::new(shape, sensors, e);
-        // φ_n at the fine points, divided by ‖φ_n‖².
-        let mut phi = vec![0.0; fine.len() * n];
-        for (k, &s) in fine.iter().enumerate() {
-            series.phi_into(s, &mut phi[k * n..(k + 1) * n]);
-            for (t, v) in phi[k * n..(k + 1) * n].iter_mut().enumerate() {
-                *v /= series.norm_sq(t);
-            }
-        }
-        let per_sensor: Vec<f64> = sensors
-            .par_iter()
+        // each sensor's modes, and how many of them are not negligible at its depth
+        let modes: Vec<(Vec<f64>, usize)> = sensors
+            .iter()
             .map(|&p| {
                 let (s_i, d_i) = (shape.position_along(e.edge, p), shape.depth_from(e.edge, p));
                 let mut w = vec![0.0; n];
                 let used = series.modes_into(s_i, d_i, &mut w);
+                (w, used)
+            })
+            .collect();
+        // φ_t at the fine points, divided by ‖φ_t‖², for the modes some sensor uses (the
+        // values do not depend on how many are asked for)
+        let width = modes.iter().map(|m| m.1).max().unwrap_or(0);
+        let mut phi = vec![0.0; fine.len() * width];
+        if width > 0 {
+            for (k, &s) in fine.iter().enumerate() {
+                let row = &mut phi[k * width..(k + 1) * width];
+                series.phi_into(s, row);
+                for (t, v) in row.iter_mut().enumerate() {
+                    *v /= series.norm_sq(t);
+                }
+            }
+        }
+        let per_sensor: Vec<f64> = sensors
+            .par_iter()
+            .zip(&modes)
+            .map(|(&p, (w, used))| {
+                let (used, d_i) = (*used, shape.depth_from(e.edge, p));
                 // The kernel's omitted modes (n ≥ used): |K_tail| ≤ Σ ψ_n (2/L) ≤ τ with
                 // ψ_n ≤ 2 e^{−k_n d} and k_n ≥ nπ/L, so |K_tail − Q K_tail| ≤ 2τ and their
                 // share of ∫|R| is at most 2 τ L².
@@ -557,7 +571,7 @@ fn quasi_interpolation_allowance(
                     / -(-std::f64::consts::PI * d_i / len).exp_m1();
                 let kernel: Vec<f64> = (0..fine.len())
                     .map(|k| {
-                        phi[k * n..k * n + used]
+                        phi[k * width..k * width + used]
                             .iter()
                             .zip(&w[..used])
                             .map(|(a, b)| a * b)
