@@ -60,6 +60,8 @@ pub struct EvidenceSearch {
     id: u32,
     /// Runs of grid points still to examine.
     stack: Vec<(usize, usize)>,
+    /// The grid points evaluated by the search under way.
+    visited: Vec<usize>,
     /// Grid points evaluated by the last search (for the benchmark's account).
     pub evaluated: usize,
     /// The data-independent parts of the criterion on the grid, built on the first search
@@ -204,6 +206,7 @@ impl Decomposition {
         }
         let id = st.id;
         st.evaluated = 0;
+        st.visited.clear();
         let mut best = (f64::INFINITY, usize::MAX);
         let visit = |st: &mut EvidenceSearch, k: usize, best: &mut (f64, usize)| {
             if st.done[k] == id {
@@ -215,6 +218,7 @@ impl Decomposition {
             st.value[k] = not_nan(p.value);
             st.done[k] = id;
             st.evaluated += 1;
+            st.visited.push(k);
             let v = st.value[k];
             if v < best.0 || (v <= best.0 && k < best.1) {
                 *best = (v, k);
@@ -231,15 +235,14 @@ impl Decomposition {
         ] {
             visit(st, k, &mut best);
         }
-        // the runs between evaluated points
+        // the runs between the points evaluated so far (the five above, both ends among
+        // them), in the order of the grid
         st.stack.clear();
-        let mut prev = 0;
-        for k in 1..n {
-            if st.done[k] == id {
-                if k > prev + 1 {
-                    st.stack.push((prev, k));
-                }
-                prev = k;
+        st.visited.sort_unstable();
+        for i in 1..st.visited.len() {
+            let (a, b) = (st.visited[i - 1], st.visited[i]);
+            if b > a + 1 {
+                st.stack.push((a, b));
             }
         }
         while let Some((i, j)) = st.stack.pop() {
@@ -261,8 +264,12 @@ impl Decomposition {
         // ties go to the first grid point, as in `select_for`: the unevaluated points are
         // worse than `best` by more than the margin, so scanning the evaluated ones suffices
         let (fk, k) = best;
-        let k = (0..n)
-            .find(|&j| st.done[j] == id && st.value[j].total_cmp(&fk).is_eq())
+        let k = st
+            .visited
+            .iter()
+            .copied()
+            .filter(|&j| st.value[j].total_cmp(&fk).is_eq())
+            .min()
             .unwrap_or(k);
         st.last_k = Some(k);
         let effective = |lambda: f64| {

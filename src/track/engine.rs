@@ -81,7 +81,7 @@ use nalgebra::{DMatrix, DVector};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
-use std::collections::HashMap;
+use rustc_hash::FxHashMap;
 
 /// Draw bases kept ([`RowEstimator`] `draw_bases`): the patterns' strengths and sds, a
 /// kilobyte or so each.
@@ -421,7 +421,7 @@ pub struct RowEstimator {
     draws: usize,
     seed: u64,
     stride: usize,
-    cache: HashMap<Vec<u64>, Pattern>,
+    cache: FxHashMap<Vec<u64>, Pattern>,
     clock: u64,
     /// Per order, the running average of log λ (per-row mode) at which residuals are judged.
     ref_log_lambda: [Option<f64>; 3],
@@ -456,7 +456,7 @@ pub struct RowEstimator {
     /// them ([`DRAW_BASES`] kept, the oldest dropped first). A pattern that leaves the cache
     /// and comes back gets the same draws, so the exceedance of a row does not depend on what
     /// else the estimator fitted in between (rows fitted ahead on other threads).
-    draw_bases: HashMap<Vec<u64>, (f64, Vec<f64>)>,
+    draw_bases: FxHashMap<Vec<u64>, (f64, Vec<f64>)>,
     draw_base_order: std::collections::VecDeque<Vec<u64>>,
     key: Vec<u64>,
     ratio: Vec<f64>,
@@ -554,7 +554,7 @@ impl RowEstimator {
             draws: draws.max(1),
             seed,
             stride,
-            cache: HashMap::new(),
+            cache: FxHashMap::default(),
             clock: 0,
             ref_log_lambda: [None; 3],
             row_evidence: [None; 3],
@@ -574,7 +574,7 @@ impl RowEstimator {
             fitted: DVector::zeros(0),
             scan_est: DVector::zeros(n_scan),
             scan_sd: vec![0.0; n_scan],
-            draw_bases: HashMap::new(),
+            draw_bases: FxHashMap::default(),
             draw_base_order: std::collections::VecDeque::new(),
             key: Vec::new(),
             ratio: vec![0.0; n_scan],
