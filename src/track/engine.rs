@@ -285,6 +285,52 @@ impl VarianceParts {
             .max(0.0)
             .sqrt()
     }
+
+    /// [`Self::sd_with`] of the fine points `points`, times `scale`, into `out`: the same
+    /// numbers, four points at a time so that their sums overlap.
+    fn sds_into(
+        &self,
+        points: &[usize],
+        inv: &[f64],
+        inv_lambda: f64,
+        scale: f64,
+        out: &mut [f64],
+    ) {
+        let r = self.proj_sq.nrows();
+        let all = self.proj_sq.as_slice();
+        let groups = points.chunks_exact(4);
+        let rest = groups.remainder();
+        let (out4, out_rest) = out.split_at_mut(points.len() - rest.len());
+        for (group, o) in groups.zip(out4.chunks_exact_mut(4)) {
+            let sq: [&[f64]; 4] = std::array::from_fn(|g| &all[group[g] * r..(group[g] + 1) * r]);
+            let mut acc = [[0.0f64; 4]; 4];
+            let whole = r - r % 4;
+            for c in (0..whole).step_by(4) {
+                for (acc_g, sq_g) in acc.iter_mut().zip(&sq) {
+                    for l in 0..4 {
+                        acc_g[l] += sq_g[c + l] * inv[c + l];
+                    }
+                }
+            }
+            for (acc_g, sq_g) in acc.iter_mut().zip(&sq) {
+                for c in whole..r {
+                    acc_g[0] += sq_g[c] * inv[c];
+                }
+            }
+            for g in 0..4 {
+                let a = &acc[g];
+                let seen = (a[0] + a[1]) + (a[2] + a[3]);
+                let j = group[g];
+                o[g] = (seen + self.perp[j] * inv_lambda + self.null[j])
+                    .max(0.0)
+                    .sqrt()
+                    * scale;
+            }
+        }
+        for (&j, o) in rest.iter().zip(out_rest) {
+            *o = self.sd_with(j, inv, inv_lambda) * scale;
+        }
+    }
 }
 
 struct Pattern {
@@ -1142,9 +1188,13 @@ impl RowEstimator {
             self.pattern_maps(pat)?;
             let vp = pat.variance.as_ref().ok_or_else(internal)?;
             self.inv_lambda = VarianceParts::reciprocals(&pat.dec, step.lambda, &mut self.inv_den);
-            for (j, &fi) in self.scan_index.iter().enumerate() {
-                self.scan_sd[j] = vp.sd_with(fi, &self.inv_den, self.inv_lambda) * s;
-            }
+            vp.sds_into(
+                &self.scan_index,
+                &self.inv_den,
+                self.inv_lambda,
+                s,
+                &mut self.scan_sd,
+            );
             // the leverages are formed by the diagnostics, at the λ they are judged at
         }
         Ok(())
@@ -1869,6 +1919,34 @@ mod tests {
                     (cached - direct).abs() <= 1e-14 * direct,
                     "λ {lambda}, row {j}: {cached} vs {direct}"
                 );
+            }
+        }
+    }
+
+    #[test]
+    fn sds_of_many_points_are_those_of_one_point_at_a_time() {
+        // sds_into runs four points' sums side by side: each number must be sd_with's, bit
+        // for bit (an invented 14 × 11 problem: nine singular values, so whole chunks of four
+        // and a remainder; seven points, some repeated, in no particular order)
+        let (m, p) = (14, 11);
+        let a = DMatrix::from_fn(m, p, |i, j| (((i + 1) * (j + 3)) as f64 * 0.71).sin() + 0.2);
+        let penalty = DVector::from_fn(p, |j, _| if j < 2 { 0.0 } else { (j * j) as f64 });
+        let sigma = DVector::from_fn(m, |i, _| 0.2 + 0.01 * i as f64);
+        let problem = Problem::new(a, DVector::zeros(m), sigma, penalty, true).unwrap();
+        let dec = Decomposition::new(&problem).unwrap();
+        let r = dec.singular_values().len();
+        assert!(r % 4 != 0 && r > 4, "{r} singular values");
+        let prof = DMatrix::from_fn(9, p, |i, j| ((2 * i + j) as f64 * 0.31).cos());
+        let parts = VarianceParts::new(&dec, &prof).unwrap();
+        let points = [3usize, 0, 8, 8, 5, 1, 7];
+        for lambda in [1e-4, 0.7, 25.0] {
+            let mut inv = Vec::new();
+            let inv_lambda = VarianceParts::reciprocals(&dec, lambda, &mut inv);
+            let mut many = vec![0.0; points.len()];
+            parts.sds_into(&points, &inv, inv_lambda, 1.7, &mut many);
+            for (&j, got) in points.iter().zip(&many) {
+                let one = parts.sd_with(j, &inv, inv_lambda) * 1.7;
+                assert_eq!(got.to_bits(), one.to_bits(), "λ {lambda}, point {j}");
             }
         }
     }
