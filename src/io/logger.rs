@@ -556,19 +556,27 @@ impl CsvLog {
             return Ok(None);
         }
         let name = &self.column_names[k];
-        let text = std::str::from_utf8(cell).map_err(|_| self.not_text(line, name))?;
         let err = |msg: String| Error::invalid_at(&self.path, Some(line as usize), Some(name), msg);
         let what = if self.cold_junction_column != Some(k) && self.case.conversion().is_some() {
             "voltage"
         } else {
             "temperature"
         };
+        // most readings: a plain decimal read straight from the bytes (digits, one point, a
+        // leading minus: valid text, and no fault marker looks like that)
+        if !self.dialect.decimal_comma {
+            if let Some(v) = short_decimal(cell) {
+                let text = || String::from_utf8_lossy(cell).into_owned();
+                return checked_number(v, &text, what).map_err(err);
+            }
+        }
+        let text = std::str::from_utf8(cell).map_err(|_| self.not_text(line, name))?;
         // no marker starts with a digit: a cell that does (most readings) skips the list
         if !cell[0].is_ascii_digit() && FAULT_MARKERS.iter().any(|m| m.eq_ignore_ascii_case(text)) {
             return Ok(None);
         }
         let number = self.dialect.number_text(text).map_err(err)?;
-        let v = match short_decimal(&number).map_or_else(|| number.parse::<f64>(), Ok) {
+        let v = match short_decimal(number.as_bytes()).map_or_else(|| number.parse::<f64>(), Ok) {
             Ok(v) => v,
             Err(_) => {
                 return Err(err(format!(
@@ -1055,11 +1063,10 @@ pub fn check_track_outputs(out: &Path, inputs: &[&Path], overwrite: bool) -> Res
 /// rounded value of the decimal (Clinger 1990, "How to read floating point numbers
 /// accurately", PLDI, the exact fast path), which is what `parse` returns. `None` for
 /// anything else (the caller parses it the general way).
-fn short_decimal(text: &str) -> Option<f64> {
+fn short_decimal(b: &[u8]) -> Option<f64> {
     const POW10: [f64; 16] = [
         1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
     ];
-    let b = text.as_bytes();
     let (neg, digits) = match b.first() {
         Some(b'-') => (true, &b[1..]),
         _ => (false, b),
@@ -1128,7 +1135,7 @@ mod tests {
             cases.push(s);
         }
         for s in &cases {
-            let fast = short_decimal(s).unwrap_or_else(|| panic!("{s} not read"));
+            let fast = short_decimal(s.as_bytes()).unwrap_or_else(|| panic!("{s} not read"));
             assert_eq!(fast.to_bits(), s.parse::<f64>().unwrap().to_bits(), "{s}");
         }
         for s in [
@@ -1147,7 +1154,7 @@ mod tests {
             "--1",
             "0.000000000000001",
         ] {
-            assert!(short_decimal(s).is_none(), "{s}");
+            assert!(short_decimal(s.as_bytes()).is_none(), "{s}");
         }
     }
 
