@@ -306,7 +306,9 @@ impl CsvLog {
             .has_headers(true)
             .flexible(true)
             .delimiter(dialect.separator.byte())
-            .trim(csv::Trim::All)
+            // the header trimmed here, each cell where it is read (`cell`: without a new
+            // record per row)
+            .trim(csv::Trim::Headers)
             .from_reader(follow);
         // The csv reader numbers a record by where it starts looking for it, which after a
         // CRLF line end is still on the line before (it counts the `\n` with the next
@@ -476,7 +478,7 @@ impl CsvLog {
         row.line = line;
         row.values.clear();
         row.values.resize(self.sensor_count, None);
-        let time_raw = &self.record[self.time_column];
+        let time_raw = cell(&self.record, self.time_column);
         let time_text = std::str::from_utf8(time_raw).map_err(|_| self.not_text(line, "time"))?;
         let format = match self.time_format {
             Some(f) => f,
@@ -521,7 +523,7 @@ impl CsvLog {
         // A row without its cold junction has no temperatures (the voltages cannot be
         // converted): its readings are all missing.
         let cold_junction = match self.cold_junction_column {
-            Some(c) => match self.cell_value(&self.record[c], line, c)? {
+            Some(c) => match self.cell_value(cell(&self.record, c), line, c)? {
                 Some(v) => Some(crate::io::convert::cold_junction_k(&self.case, v).map_err(
                     |m| {
                         Error::invalid_at(&self.path, Some(line as usize), Some("cold_junction"), m)
@@ -531,11 +533,11 @@ impl CsvLog {
             },
             None => None,
         };
-        for (k, cell) in self.record.iter().enumerate() {
+        for (k, raw) in self.record.iter().enumerate() {
             let Some(i) = self.column_sensor[k] else {
                 continue;
             };
-            row.values[i] = self.reading(cell, line, k, i, cold_junction)?;
+            row.values[i] = self.reading(raw.trim_ascii(), line, k, i, cold_junction)?;
         }
         Ok(true)
     }
@@ -606,6 +608,12 @@ impl CsvLog {
             .map(Some)
             .map_err(|msg| Error::invalid_at(&self.path, Some(line as usize), Some(name), msg))
     }
+}
+
+/// Cell `k` of a record without the ASCII white space around it (what the csv crate's
+/// `Trim::All` gives, without rebuilding the record).
+fn cell(record: &csv::ByteRecord, k: usize) -> &[u8] {
+    record.get(k).map_or(&[], <[u8]>::trim_ascii)
 }
 
 /// The times of a log, row after row: one kind throughout (the first row's), never going
