@@ -467,7 +467,9 @@ pub struct RowEstimator {
     draws: usize,
     seed: u64,
     stride: usize,
-    cache: FxHashMap<Vec<u64>, Pattern>,
+    /// Boxed: a pattern is taken out and put back on every row, and moving the box moves
+    /// a pointer, not the pattern's kilobytes.
+    cache: FxHashMap<Vec<u64>, Box<Pattern>>,
     clock: u64,
     /// Per order, the running average of log λ (per-row mode) at which residuals are judged.
     ref_log_lambda: [Option<f64>; 3],
@@ -769,7 +771,7 @@ impl RowEstimator {
         let proj = dec.empty_projection();
         self.cache.insert(
             self.key.clone(),
-            Pattern {
+            Box::new(Pattern {
                 rows: used.to_vec(),
                 sigma,
                 dec,
@@ -781,7 +783,7 @@ impl RowEstimator {
                 search: EvidenceSearch::default(),
                 last_use: self.clock,
                 projected_row: 0,
-            },
+            }),
         );
         Ok(())
     }
@@ -933,7 +935,7 @@ impl RowEstimator {
         readings: &[Option<f64>],
         used: &[usize],
         order: usize,
-    ) -> Result<(Vec<u64>, Pattern)> {
+    ) -> Result<(Vec<u64>, Box<Pattern>)> {
         self.pattern_key(readings, used, order)?;
         self.cache
             .remove_entry(self.key.as_slice())
