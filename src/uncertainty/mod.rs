@@ -484,12 +484,12 @@ pub fn simultaneous_band(
     confidence: f64,
 ) -> (Vec<f64>, Vec<f64>) {
     let (b_count, n) = errors.shape();
-    let mean: Vec<f64> = (0..n)
-        .map(|j| estimate[j] - errors.column(j).mean())
-        .collect();
+    // each point's mean error once (the band's centre and its spread both use it)
+    let mean_err: Vec<f64> = (0..n).map(|j| errors.column(j).mean()).collect();
+    let mean: Vec<f64> = (0..n).map(|j| estimate[j] - mean_err[j]).collect();
     let se: Vec<f64> = (0..n)
         .map(|j| {
-            let mu = errors.column(j).mean();
+            let mu = mean_err[j];
             let var = errors
                 .column(j)
                 .iter()
