@@ -148,7 +148,12 @@ fn estimate_known_h(
     progress: Option<&(dyn Fn(usize) + Sync)>,
 ) -> Result<EstimateResult> {
     let problem = Problem::new(case, readings, options)?;
-    let fitted = faults::fit_leaving_out_faults(&problem, options)?;
+    // the output maps depend on the model alone: made while the fit runs
+    let (fitted, maps) = rayon::join(
+        || faults::fit_leaving_out_faults(&problem, options),
+        || OutputMaps::new(&problem, options.grid),
+    );
+    let (fitted, maps) = (fitted?, maps?);
     // the strict bounds are independent of the bootstrap and of everything assembled from
     // it (neither draws from the other's random numbers, and the result only carries the
     // bounds): run them side by side, the whole rest of the estimate on the other thread
@@ -170,7 +175,6 @@ fn estimate_known_h(
             })
         },
         || -> Result<_> {
-            let maps = OutputMaps::new(&problem, options.grid)?;
             let resampled = outputs::resample(&problem, &fitted, options, progress)?;
             assemble::assemble(&problem, fitted, maps, resampled, options)
         },
