@@ -356,7 +356,7 @@ impl ReplicatePeaks {
                     block[i * n + j] = e - err;
                 }
             }
-            for draw in block.chunks_exact(n).take(len) {
+            for draw in block.chunks_exact(n.max(1)).take(len) {
                 let (k, p, _) = locate_hottest(edge_positions, |j| draw[j]);
                 located.push((k, p));
                 maxima.push(draw.iter().copied().fold(f64::NEG_INFINITY, f64::max));

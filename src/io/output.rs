@@ -391,10 +391,13 @@ impl OutputSet {
     pub fn write_all(&mut self, files: &[(&str, &[u8])]) -> Result<()> {
         use rayon::prelude::*;
         let staging = self.staging.path();
-        files
+        // every outcome kept, so that the error reported is the first in the order given
+        // (a temporary of this process is never taken for a stale one by another write)
+        let written: Vec<Result<()>> = files
             .par_iter()
             .map(|(name, bytes)| write_atomic(&staging.join(name), bytes))
-            .collect::<Result<Vec<()>>>()?;
+            .collect();
+        written.into_iter().collect::<Result<Vec<()>>>()?;
         self.files.extend(
             files
                 .iter()

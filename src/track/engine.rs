@@ -1928,8 +1928,9 @@ mod tests {
     #[test]
     fn sds_of_many_points_are_those_of_one_point_at_a_time() {
         // sds_into runs four points' sums side by side: each number must be sd_with's, bit
-        // for bit (an invented 14 × 11 problem: nine singular values, so whole chunks of four
-        // and a remainder; seven points, some repeated, in no particular order)
+        // for bit (an invented 14 × 11 problem whose count of singular values is above four
+        // and not a multiple of it, asserted: whole chunks of four and a remainder; seven
+        // points, some repeated, in no particular order)
         let (m, p) = (14, 11);
         let a = DMatrix::from_fn(m, p, |i, j| (((i + 1) * (j + 3)) as f64 * 0.71).sin() + 0.2);
         let penalty = DVector::from_fn(p, |j, _| if j < 2 { 0.0 } else { (j * j) as f64 });
