@@ -518,9 +518,13 @@ fn gram_block(
 }
 
 /// [`gram_block_body`] compiled for AVX2.
+///
+/// # Safety
+/// The processor must have AVX2. (An `unsafe fn`, not a safe one with the attribute, so
+/// that the crate keeps building on Rust 1.85.)
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-fn gram_block_avx2(
+unsafe fn gram_block_avx2(
     active: &[(usize, f64)],
     padded: &[f64],
     stride: usize,
