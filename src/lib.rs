@@ -45,6 +45,7 @@ pub mod noise;
 pub mod options;
 pub mod plausible;
 pub mod report;
+mod simd;
 pub mod simulate;
 pub mod track;
 pub mod uncertainty;

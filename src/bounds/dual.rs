@@ -496,41 +496,17 @@ impl<'a> Problem<'a> {
     }
 }
 
-/// One register block of the Hessian's Gram product: entries `(i0 + a, j0 + b)` of
-/// `Σ_k c_k x_k x_kᵀ` over `active` nodes `(k, c_k)`, `x_k` row `k` of `padded` (rows of
-/// `stride` entries). Each entry is the products `(c_k x_ki) x_kj` added in node order from
-/// zero, whichever build runs: on a processor with AVX2 the same code compiled for it (four
-/// lanes instead of two; separate multiplications and additions, so the same roundings).
-fn gram_block(
-    active: &[(usize, f64)],
-    padded: &[f64],
-    stride: usize,
-    at: (usize, usize),
-) -> [[f64; GRAM_COLS]; GRAM_ROWS] {
-    #[cfg(target_arch = "x86_64")]
-    {
-        if std::arch::is_x86_feature_detected!("avx2") {
-            // SAFETY: the processor has AVX2, the only feature `gram_block_avx2` is built for.
-            return unsafe { gram_block_avx2(active, padded, stride, at) };
-        }
-    }
-    gram_block_body(active, padded, stride, at)
-}
-
-/// [`gram_block_body`] compiled for AVX2.
-///
-/// # Safety
-/// The processor must have AVX2. (An `unsafe fn`, not a safe one with the attribute, so
-/// that the crate keeps building on Rust 1.85.)
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-unsafe fn gram_block_avx2(
-    active: &[(usize, f64)],
-    padded: &[f64],
-    stride: usize,
-    at: (usize, usize),
-) -> [[f64; GRAM_COLS]; GRAM_ROWS] {
-    gram_block_body(active, padded, stride, at)
+crate::simd::avx2_dispatch! {
+    /// One register block of the Hessian's Gram product: entries `(i0 + a, j0 + b)` of
+    /// `Σ_k c_k x_k x_kᵀ` over `active` nodes `(k, c_k)`, `x_k` row `k` of `padded` (rows of
+    /// `stride` entries). Each entry is the products `(c_k x_ki) x_kj` added in node order
+    /// from zero, in either build ([`crate::simd`]).
+    fn gram_block(
+        active: &[(usize, f64)],
+        padded: &[f64],
+        stride: usize,
+        at: (usize, usize),
+    ) -> [[f64; GRAM_COLS]; GRAM_ROWS] = gram_block_body;
 }
 
 /// The sums of [`gram_block`].

@@ -870,30 +870,11 @@ impl Decomposition {
     }
 }
 
-/// Add `Σ_i U_ki² g_i²/(g_i² + λ)` to each `out[k]` (`U` column-major, `m` rows, one column
-/// per singular value `g_i`), column after column as [`Decomposition::leverages_into`] adds
-/// them; on a processor with AVX2 the same code compiled for it (four lanes instead of two;
-/// separate multiplications and additions, so the same roundings).
-fn add_leverages(u: &[f64], m: usize, g: &[f64], lambda: f64, out: &mut [f64]) {
-    #[cfg(target_arch = "x86_64")]
-    {
-        if std::arch::is_x86_feature_detected!("avx2") {
-            // SAFETY: the processor has AVX2, the only feature `add_leverages_avx2` is built for.
-            unsafe { add_leverages_avx2(u, m, g, lambda, out) };
-            return;
-        }
-    }
-    add_leverages_body(u, m, g, lambda, out);
-}
-
-/// [`add_leverages_body`] compiled for AVX2.
-///
-/// # Safety
-/// The processor must have AVX2.
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-unsafe fn add_leverages_avx2(u: &[f64], m: usize, g: &[f64], lambda: f64, out: &mut [f64]) {
-    add_leverages_body(u, m, g, lambda, out);
+crate::simd::avx2_dispatch! {
+    /// Add `Σ_i U_ki² g_i²/(g_i² + λ)` to each `out[k]` (`U` column-major, `m` rows, one
+    /// column per singular value `g_i`), column after column as
+    /// [`Decomposition::leverages_into`] adds them, in either build ([`crate::simd`]).
+    fn add_leverages(u: &[f64], m: usize, g: &[f64], lambda: f64, out: &mut [f64]) = add_leverages_body;
 }
 
 /// The sums of [`add_leverages`].

@@ -287,8 +287,8 @@ impl VarianceParts {
     }
 
     /// [`Self::sd_with`] of the fine points `points`, times `scale`, into `out`: the same
-    /// numbers, four points at a time so that their sums overlap (and on a processor with
-    /// AVX2 compiled for it: separate multiplications and additions, the same roundings).
+    /// numbers, four points at a time so that their sums overlap, in either build
+    /// ([`crate::simd`]).
     fn sds_into(
         &self,
         points: &[usize],
@@ -297,32 +297,7 @@ impl VarianceParts {
         scale: f64,
         out: &mut [f64],
     ) {
-        #[cfg(target_arch = "x86_64")]
-        {
-            if std::arch::is_x86_feature_detected!("avx2") {
-                // SAFETY: the processor has AVX2, the only feature `sds_avx2` is built for.
-                unsafe { self.sds_avx2(points, inv, inv_lambda, scale, out) };
-                return;
-            }
-        }
-        self.sds_body(points, inv, inv_lambda, scale, out);
-    }
-
-    /// [`Self::sds_body`] compiled for AVX2.
-    ///
-    /// # Safety
-    /// The processor must have AVX2.
-    #[cfg(target_arch = "x86_64")]
-    #[target_feature(enable = "avx2")]
-    unsafe fn sds_avx2(
-        &self,
-        points: &[usize],
-        inv: &[f64],
-        inv_lambda: f64,
-        scale: f64,
-        out: &mut [f64],
-    ) {
-        self.sds_body(points, inv, inv_lambda, scale, out);
+        sds(self, points, inv, inv_lambda, scale, out);
     }
 
     /// The sums of [`Self::sds_into`].
@@ -370,6 +345,18 @@ impl VarianceParts {
             *o = self.sd_with(j, inv, inv_lambda) * scale;
         }
     }
+}
+
+crate::simd::avx2_dispatch! {
+    /// [`VarianceParts::sds_into`]'s sums ([`VarianceParts::sds_body`]) in either build.
+    fn sds(
+        parts: &VarianceParts,
+        points: &[usize],
+        inv: &[f64],
+        inv_lambda: f64,
+        scale: f64,
+        out: &mut [f64],
+    ) = VarianceParts::sds_body;
 }
 
 struct Pattern {

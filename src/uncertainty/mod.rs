@@ -303,19 +303,18 @@ impl BootstrapOutput {
 /// The `q`-quantile of `values` (linear interpolation between order statistics, the
 /// "type 7" definition of Hyndman & Fan 1996). `values` is reordered.
 pub fn quantile(values: &mut [f64], q: f64) -> f64 {
-    let n = values.len();
-    if n == 0 {
+    if values.is_empty() {
         return f64::NAN;
     }
+    let (h, lo, hi) = position(values.len(), q);
+    interpolated(values, lo, hi, h - lo as f64)
+}
+
+/// Where the type-7 `q`-quantile of `n ≥ 1` values lies: `h = (n − 1) q` and the order
+/// statistics `⌊h⌋`, `⌈h⌉` around it.
+fn position(n: usize, q: f64) -> (f64, usize, usize) {
     let h = (n - 1) as f64 * q.clamp(0.0, 1.0);
-    let lo = h.floor() as usize;
-    let hi = h.ceil() as usize;
-    let (_, &mut v_lo, rest) = values.select_nth_unstable_by(lo, f64::total_cmp);
-    if hi == lo {
-        return v_lo;
-    }
-    let v_hi = rest.iter().copied().fold(f64::INFINITY, f64::min);
-    v_lo + (h - lo as f64) * (v_hi - v_lo)
+    (h, h.floor() as usize, h.ceil() as usize)
 }
 
 /// The `q_lo`- and `q_hi`-quantiles of `values` (`q_lo ≤ q_hi`), the same numbers as two
@@ -326,39 +325,21 @@ pub fn quantile_pair(values: &mut [f64], q_lo: f64, q_hi: f64) -> (f64, f64) {
     if n == 0 {
         return (f64::NAN, f64::NAN);
     }
-    let index = |q: f64| {
-        let h = (n - 1) as f64 * q.clamp(0.0, 1.0);
-        (h, h.floor() as usize, h.ceil() as usize)
-    };
-    let (h1, lo1, hi1) = index(q_lo);
-    let (h2, lo2, hi2) = index(q_hi);
-    let (_, &mut v_lo1, rest) = values.select_nth_unstable_by(lo1, f64::total_cmp);
-    let first = if hi1 == lo1 {
-        v_lo1
-    } else {
-        let v_hi1 = rest.iter().copied().fold(f64::INFINITY, f64::min);
-        v_lo1 + (h1 - lo1 as f64) * (v_hi1 - v_lo1)
-    };
+    let (h1, lo1, hi1) = position(n, q_lo);
+    let (h2, lo2, hi2) = position(n, q_hi);
+    let first = interpolated(values, lo1, hi1, h1 - lo1 as f64);
     if lo2 <= lo1 {
         // the upper quantile falls on the same order statistics (tiny samples)
-        let (_, &mut v_lo2, rest) = values.select_nth_unstable_by(lo2, f64::total_cmp);
-        let second = if hi2 == lo2 {
-            v_lo2
-        } else {
-            let v_hi2 = rest.iter().copied().fold(f64::INFINITY, f64::min);
-            v_lo2 + (h2 - lo2 as f64) * (v_hi2 - v_lo2)
-        };
-        return (first, second);
+        return (first, interpolated(values, lo2, hi2, h2 - lo2 as f64));
     }
-    // everything above position lo1 is at least v_lo1: select within it
-    let upper = &mut values[lo1 + 1..];
-    let (_, &mut v_lo2, rest) = upper.select_nth_unstable_by(lo2 - lo1 - 1, f64::total_cmp);
-    let second = if hi2 == lo2 {
-        v_lo2
-    } else {
-        let v_hi2 = rest.iter().copied().fold(f64::INFINITY, f64::min);
-        v_lo2 + (h2 - lo2 as f64) * (v_hi2 - v_lo2)
-    };
+    // everything above position lo1 is at least its order statistic: select within it
+    let skipped = lo1 + 1;
+    let second = interpolated(
+        &mut values[skipped..],
+        lo2 - skipped,
+        hi2 - skipped,
+        h2 - lo2 as f64,
+    );
     (first, second)
 }
 
@@ -391,14 +372,13 @@ impl TailQuantiles {
     /// the full selection is needed.
     fn gathered(&mut self, values: &[f64], q_lo: f64, q_hi: f64) -> Option<(f64, f64)> {
         let n = values.len();
-        let index = |q: f64| {
-            let h = (n.max(1) - 1) as f64 * q.clamp(0.0, 1.0);
-            (h, h.floor() as usize, h.ceil() as usize)
-        };
-        let (h1, lo1, hi1) = index(q_lo);
-        let (h2, lo2, hi2) = index(q_hi);
+        if n < 64 {
+            return None;
+        }
+        let (h1, lo1, hi1) = position(n, q_lo);
+        let (h2, lo2, hi2) = position(n, q_hi);
         // ranks 0..=hi1 must fall in the low tail, lo2..n in the high one
-        if n < 64 || hi1 + 1 > n / 8 || n - lo2 > n / 8 || q_lo > q_hi {
+        if hi1 + 1 > n / 8 || n - lo2 > n / 8 || q_lo > q_hi {
             return None;
         }
         // the cuts need not be exact, only cheap: sums in eight independent lanes (which
