@@ -72,6 +72,7 @@
 
 use super::Problem;
 use crate::error::{Error, Result};
+use crate::simd::gemv;
 use nalgebra::{DMatrix, DVector};
 
 /// Singular values of `Ã` below `g_max · max(m, n) · ε` are treated as zero (the usual
@@ -466,10 +467,10 @@ impl Decomposition {
         proj.work.copy_from(d);
         proj.work.component_mul_assign(&self.inv_sigma);
         proj.z.gemv_tr(1.0, &self.q1, &proj.work, 0.0);
-        proj.null_coef.gemv(1.0, &self.r1_inv, &proj.z, 0.0);
-        proj.work.gemv(-1.0, &self.q1, &proj.z, 1.0);
+        gemv(&mut proj.null_coef, &self.r1_inv, &proj.z, false);
+        gemv(&mut proj.work, &self.q1, &proj.z, true);
         proj.beta.gemv_tr(1.0, &self.u, &proj.work, 0.0);
-        proj.work.gemv(-1.0, &self.u, &proj.beta, 1.0);
+        gemv(&mut proj.work, &self.u, &proj.beta, true);
         proj.delta0 = proj.work.norm_squared();
         Ok(())
     }
@@ -650,7 +651,7 @@ impl Decomposition {
                 ),
             ));
         }
-        out.gemv(1.0, &self.a, c, 0.0);
+        gemv(out, &self.a, c, false);
         Ok(())
     }
 

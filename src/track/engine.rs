@@ -77,6 +77,7 @@ use crate::inverse::{
     Decomposition, EvidenceSearch, Problem, Projection, Selection, Strength, StrengthMethod,
 };
 use crate::noise::{NoiseSpec, SigmaSource};
+use crate::simd::gemv;
 use nalgebra::{DMatrix, DVector};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
@@ -1110,7 +1111,7 @@ impl RowEstimator {
             self.fitted = DVector::zeros(m);
         }
         match cached(pat, step.mode) {
-            Some(fx) => self.fitted.gemv(1.0, &fx.smoother, &self.d, 0.0),
+            Some(fx) => gemv(&mut self.fitted, &fx.smoother, &self.d, false),
             None if !self.reference => {
                 // through the singular basis: the weights x(λ), then the maps
                 step.project(pat, &self.d)?;
@@ -1118,7 +1119,7 @@ impl RowEstimator {
                 let basis = pat.basis.as_ref().ok_or_else(internal)?;
                 pat.dec
                     .basis_weights_into(&pat.proj, step.lambda, &mut self.x)?;
-                self.fitted.gemv(1.0, &basis.fitted, &self.x, 0.0);
+                gemv(&mut self.fitted, &basis.fitted, &self.x, false);
                 step.basis = true;
             }
             None => {
@@ -1199,7 +1200,7 @@ impl RowEstimator {
         let s = step.s;
         leverage.clear();
         if let Some(fx) = cached(pat, step.mode) {
-            self.scan_est.gemv(1.0, &fx.scan_pg, &self.d, 0.0);
+            gemv(&mut self.scan_est, &fx.scan_pg, &self.d, false);
             for (j, v) in self.scan_est.iter_mut().enumerate() {
                 *v += self.scan_offset[j];
             }
@@ -1209,8 +1210,8 @@ impl RowEstimator {
             leverage.extend_from_slice(&fx.leverage);
         } else {
             match pat.basis.as_ref().filter(|_| step.basis) {
-                Some(b) => self.scan_est.gemv(1.0, &b.scan, &self.x, 0.0),
-                None => self.scan_est.gemv(1.0, &self.scan_matrix, &self.c, 0.0),
+                Some(b) => gemv(&mut self.scan_est, &b.scan, &self.x, false),
+                None => gemv(&mut self.scan_est, &self.scan_matrix, &self.c, false),
             }
             self.scan_est += &self.scan_offset;
             self.pattern_maps(pat)?;
@@ -1487,7 +1488,7 @@ impl RowEstimator {
                     // the coefficients at lref only if a sensor left out needs them (below)
                     pat.dec
                         .basis_weights_into(&pat.proj, lref, &mut self.x_ref)?;
-                    self.fitted_ref.gemv(1.0, &b.fitted, &self.x_ref, 0.0);
+                    gemv(&mut self.fitted_ref, &b.fitted, &self.x_ref, false);
                 } else {
                     if self.reference {
                         pat.dec

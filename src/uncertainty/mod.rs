@@ -189,7 +189,7 @@ pub fn bootstrap(input: &BootstrapInput<'_>) -> Result<BootstrapOutput> {
                     };
                     *c = centre + sd * z;
                 }
-                s.d.gemv(1.0, input.a, &s.c_true, 0.0);
+                crate::simd::gemv(&mut s.d, input.a, &s.c_true, false);
                 for i in 0..m {
                     let e = match input.mode {
                         BootstrapMode::Parametric => {
