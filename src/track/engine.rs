@@ -181,7 +181,7 @@ pub struct AheadFit {
     pub fit: RowFit,
     proj: Option<Projection>,
     /// The profile and its sd on the scan grid, and the alarm limit, for the exceedance.
-    scan_est: Vec<f64>,
+    scan_est: DVector<f64>,
     scan_sd: Vec<f64>,
     limit: Option<f64>,
 }
@@ -867,9 +867,16 @@ impl RowEstimator {
             false,
         )?;
         out.limit = limit;
-        out.scan_est.clear();
-        out.scan_est.extend_from_slice(self.scan_est.as_slice());
-        out.scan_sd.clone_from(&self.scan_sd);
+        // the profile and its sd move out by an exchange of buffers: every row writes the
+        // estimator's own afresh before it reads them
+        if out.scan_est.len() != self.scan_est.len() {
+            out.scan_est = DVector::zeros(self.scan_est.len());
+        }
+        std::mem::swap(&mut out.scan_est, &mut self.scan_est);
+        if out.scan_sd.len() != self.scan_sd.len() {
+            out.scan_sd = vec![0.0; self.scan_sd.len()];
+        }
+        std::mem::swap(&mut out.scan_sd, &mut self.scan_sd);
         // the row's projection, formed by the strength search and the fitted values
         let pat = self.cache.get(self.key.as_slice()).ok_or_else(internal)?;
         match &mut out.proj {
@@ -882,7 +889,9 @@ impl RowEstimator {
     /// The rest of a row fitted by [`Self::fit_row_ahead`] (with the same `readings`, `used`
     /// and strength; `out` holds `ahead.fit`'s numbers): its exceedance probability for the
     /// limit given there, and the sensor diagnostics at the reference strength, which moves
-    /// with every row, both exactly as [`Self::fit_row`] forms them.
+    /// with every row, both exactly as [`Self::fit_row`] forms them. The projection and the
+    /// profile made ahead move in by an exchange of buffers: `ahead` is left with spare
+    /// buffers for [`Self::fit_row_ahead`] to fill again.
     ///
     /// # Errors
     /// As [`Self::fit_row`].
@@ -891,7 +900,7 @@ impl RowEstimator {
         readings: &[Option<f64>],
         used: &[usize],
         strength: Strength,
-        ahead: &AheadFit,
+        ahead: &mut AheadFit,
         out: &mut RowFit,
     ) -> Result<()> {
         let (key, mut pat) = self.take_pattern(readings, used, out.order)?;
@@ -908,9 +917,9 @@ impl RowEstimator {
             s: out.sigma_scale.unwrap_or(1.0),
         };
         fill_d(&mut self.d, used, readings, &self.sensor_map.offset);
-        // the projection made ahead (the same decomposition, so the same numbers)
-        if let Some(p) = ahead.proj.as_ref() {
-            pat.proj.copy_from(p);
+        // the projection made ahead (the same decomposition, so the same numbers and sizes)
+        if let Some(p) = ahead.proj.as_mut() {
+            std::mem::swap(&mut pat.proj, p);
             step.projected = true;
         }
         let result = self.finish_steps(&mut pat, &mut step, ahead, out);
@@ -925,13 +934,16 @@ impl RowEstimator {
         &mut self,
         pat: &mut Pattern,
         step: &mut RowStep<'_>,
-        ahead: &AheadFit,
+        ahead: &mut AheadFit,
         out: &mut RowFit,
     ) -> Result<()> {
         out.exceedance = match ahead.limit {
-            Some(t) if ahead.scan_est.len() == self.scan_est.len() => {
-                self.scan_est.copy_from_slice(&ahead.scan_est);
-                self.scan_sd.clone_from(&ahead.scan_sd);
+            Some(t)
+                if ahead.scan_est.len() == self.scan_est.len()
+                    && ahead.scan_sd.len() == self.scan_sd.len() =>
+            {
+                std::mem::swap(&mut self.scan_est, &mut ahead.scan_est);
+                std::mem::swap(&mut self.scan_sd, &mut ahead.scan_sd);
                 Some(self.exceedance(pat, step, t)?)
             }
             Some(_) => return Err(internal()),
