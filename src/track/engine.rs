@@ -419,6 +419,14 @@ enum RowMode {
     Chosen,
 }
 
+/// Whether a row is fitted in row order ([`RowEstimator::fit_row`]) or ahead of it
+/// ([`RowEstimator::fit_row_ahead`]).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Pass {
+    InOrder,
+    Ahead,
+}
+
 /// One row on its way through [`RowEstimator::fit_row`]'s steps.
 struct RowStep<'r> {
     readings: &'r [Option<f64>],
@@ -834,38 +842,34 @@ impl RowEstimator {
         limit: Option<f64>,
         out: &mut RowFit,
     ) -> Result<()> {
-        self.fit_row_steps(readings, used, strength, limit, out, true)
+        self.fit_row_steps(readings, used, strength, limit, out, Pass::InOrder)
     }
 
-    /// [`Self::fit_row`] for a strength chosen on the row, without the two steps that depend
-    /// on the rows before it: the exceedance probability (its draws are made at the pattern's
-    /// first chosen strength in row order) and the sensor diagnostics (judged at a running
-    /// reference strength). Every other number of `out.fit` is the one [`Self::fit_row`]
-    /// gives, whatever rows this estimator saw before; the two are left empty for
-    /// [`Self::finish_row`], which must then be called on the rows in their order (on one
-    /// estimator of the same case, any). This lets rows be fitted ahead, on other threads
-    /// (`Tracker::push_batch`). `out` may be reused from an earlier row.
+    /// [`Self::fit_row`] without the steps that depend on the rows before it: the exceedance
+    /// probability (its draws are made at the pattern's first strength in row order, and
+    /// without a stated σ at that row's scale) and, with the strength chosen on the row, the
+    /// sensor diagnostics (judged at a running reference strength). Every other number of
+    /// `out.fit` is the one [`Self::fit_row`] gives, whatever rows this estimator saw before;
+    /// the rest is left empty for [`Self::finish_row`], which must then be called on the rows
+    /// in their order (on one estimator of the same case, any). This lets rows be fitted
+    /// ahead, on other threads (`Tracker::push_batch`). `out` may be reused from an earlier
+    /// row.
     ///
     /// # Errors
-    /// As [`Self::fit_row`].
+    /// As [`Self::fit_row`]; and at a fixed strength with a rule to re-choose it, an error
+    /// for a row the fixed strength misfits: its refit depends on the rows before it, so it
+    /// must be fitted in order ([`Self::fit_row`]).
     pub fn fit_row_ahead(
         &mut self,
         readings: &[Option<f64>],
         used: &[usize],
-        strength: Strength,
+        strength: RowStrength,
         limit: Option<f64>,
         out: &mut AheadFit,
     ) -> Result<()> {
         out.fit.diagnostics.clear();
         // no limit: the exceedance is left to `finish_row`
-        self.fit_row_steps(
-            readings,
-            used,
-            RowStrength::PerRow(strength),
-            None,
-            &mut out.fit,
-            false,
-        )?;
+        self.fit_row_steps(readings, used, strength, None, &mut out.fit, Pass::Ahead)?;
         out.limit = limit;
         // the profile and its sd move out by an exchange of buffers: every row writes the
         // estimator's own afresh before it reads them
@@ -877,6 +881,10 @@ impl RowEstimator {
             out.scan_sd = vec![0.0; self.scan_sd.len()];
         }
         std::mem::swap(&mut out.scan_sd, &mut self.scan_sd);
+        if !matches!(strength, RowStrength::PerRow(_)) {
+            // at a fixed λ the cached maps act on the data: no projection was formed
+            return Ok(());
+        }
         // the row's projection, formed by the strength search and the fitted values
         let pat = self.cache.get(self.key.as_slice()).ok_or_else(internal)?;
         match &mut out.proj {
@@ -888,8 +896,9 @@ impl RowEstimator {
 
     /// The rest of a row fitted by [`Self::fit_row_ahead`] (with the same `readings`, `used`
     /// and strength; `out` holds `ahead.fit`'s numbers): its exceedance probability for the
-    /// limit given there, and the sensor diagnostics at the reference strength, which moves
-    /// with every row, both exactly as [`Self::fit_row`] forms them. The projection and the
+    /// limit given there and, with the strength chosen on the row, the sensor diagnostics at
+    /// the reference strength, which moves with every row, both exactly as [`Self::fit_row`]
+    /// forms them. The projection and the
     /// profile made ahead move in by an exchange of buffers: `ahead` is left with spare
     /// buffers for [`Self::fit_row_ahead`] to fill again.
     ///
@@ -899,7 +908,7 @@ impl RowEstimator {
         &mut self,
         readings: &[Option<f64>],
         used: &[usize],
-        strength: Strength,
+        strength: RowStrength,
         ahead: &mut AheadFit,
         out: &mut RowFit,
     ) -> Result<()> {
@@ -907,9 +916,12 @@ impl RowEstimator {
         let mut step = RowStep {
             readings,
             used,
-            strength: RowStrength::PerRow(strength),
+            strength,
             order: out.order,
-            mode: RowMode::Chosen,
+            mode: match strength {
+                RowStrength::Fixed { .. } => RowMode::Cached,
+                RowStrength::PerRow(_) => RowMode::Chosen,
+            },
             lambda: out.lambda,
             projected: false,
             coefficients: false,
@@ -917,12 +929,23 @@ impl RowEstimator {
             s: out.sigma_scale.unwrap_or(1.0),
         };
         fill_d(&mut self.d, used, readings, &self.sensor_map.offset);
-        // the projection made ahead (the same decomposition, so the same numbers and sizes)
-        if let Some(p) = ahead.proj.as_mut() {
-            std::mem::swap(&mut pat.proj, p);
-            step.projected = true;
-        }
-        let result = self.finish_steps(&mut pat, &mut step, ahead, out);
+        let result = match strength {
+            RowStrength::PerRow(_) => {
+                // the projection made ahead (the same decomposition: the same numbers and
+                // sizes)
+                if let Some(p) = ahead.proj.as_mut() {
+                    std::mem::swap(&mut pat.proj, p);
+                    step.projected = true;
+                }
+                self.finish_steps(&mut pat, &mut step, ahead, out)
+            }
+            // the pattern's maps at the fixed λ as the first step makes them (so that its
+            // draws are made, and dropped, where the rows in order would make them), then
+            // the exceedance
+            RowStrength::Fixed { .. } => self
+                .choose_lambda(&mut pat, &mut step)
+                .and_then(|()| self.finish_exceedance(&mut pat, &mut step, ahead, out)),
+        };
         self.cache.insert(key, pat);
         result.and_then(|()| finite_row(out))
     }
@@ -931,6 +954,34 @@ impl RowEstimator {
     /// the profile made ahead, then the diagnostics (step 8) with what the steps before them
     /// would have left.
     fn finish_steps(
+        &mut self,
+        pat: &mut Pattern,
+        step: &mut RowStep<'_>,
+        ahead: &mut AheadFit,
+        out: &mut RowFit,
+    ) -> Result<()> {
+        self.finish_exceedance(pat, step, ahead, out)?;
+        // The fitted values at the row's λ (the second step) when the diagnostics judge at
+        // that λ (the first row of an order, or a reference strength equal to it), else only
+        // the projection and the pattern's maps, which they use at the reference strength.
+        #[allow(clippy::float_cmp)] // the same test as the diagnostics make
+        let at_row_lambda = self.ref_log_lambda[out.order].is_none_or(|v| v.exp() == out.lambda);
+        if at_row_lambda {
+            self.fitted_values(pat, step)?;
+        } else {
+            step.project(pat, &self.d)?;
+            self.pattern_maps(pat)?;
+            step.basis = true;
+        }
+        let mut leverage = std::mem::take(&mut self.lev);
+        let result = self.diagnostics(pat, step, &mut leverage, out);
+        self.lev = leverage;
+        result
+    }
+
+    /// Step 7 of a row fitted ahead: the exceedance probability for the limit given there,
+    /// from the profile made ahead (moved in by an exchange of buffers).
+    fn finish_exceedance(
         &mut self,
         pat: &mut Pattern,
         step: &mut RowStep<'_>,
@@ -949,22 +1000,7 @@ impl RowEstimator {
             Some(_) => return Err(internal()),
             None => None,
         };
-        // The fitted values at the row's λ (the second step) when the diagnostics judge at
-        // that λ (the first row of an order, or a reference strength equal to it), else only
-        // the projection and the pattern's maps, which they use at the reference strength.
-        #[allow(clippy::float_cmp)] // the same test as the diagnostics make
-        let at_row_lambda = self.ref_log_lambda[out.order].is_none_or(|v| v.exp() == out.lambda);
-        if at_row_lambda {
-            self.fitted_values(pat, step)?;
-        } else {
-            step.project(pat, &self.d)?;
-            self.pattern_maps(pat)?;
-            step.basis = true;
-        }
-        let mut leverage = std::mem::take(&mut self.lev);
-        let result = self.diagnostics(pat, step, &mut leverage, out);
-        self.lev = leverage;
-        result
+        Ok(())
     }
 
     /// The row's pattern (made if new), out of the cache: so that the steps can borrow it
@@ -986,7 +1022,7 @@ impl RowEstimator {
         self.reference
     }
 
-    /// [`Self::fit_row`], the sensor diagnostics formed (`diagnose`) or left out.
+    /// [`Self::fit_row`] (`Pass::InOrder`), or [`Self::fit_row_ahead`]'s part of it.
     fn fit_row_steps(
         &mut self,
         readings: &[Option<f64>],
@@ -994,8 +1030,10 @@ impl RowEstimator {
         strength: RowStrength,
         limit: Option<f64>,
         out: &mut RowFit,
-        diagnose: bool,
+        pass: Pass,
     ) -> Result<()> {
+        // the diagnostics at a chosen strength are judged at the running reference strength
+        let diagnose = pass == Pass::InOrder || matches!(strength, RowStrength::Fixed { .. });
         let (order, serial) = match strength {
             RowStrength::Fixed { order, .. } => (order, None),
             RowStrength::PerRow(_) => (self.order_for(readings, used)?, Some(self.row_serial)),
@@ -1020,6 +1058,11 @@ impl RowEstimator {
         let refit = self.fit_pattern_row(&mut pat, &mut step, limit, out, diagnose);
         self.cache.insert(key, pat);
         if let Some(rule) = refit? {
+            if pass == Pass::Ahead {
+                return Err(Error::Internal(
+                    "a row the calibrated strength misfits is fitted again in order".into(),
+                ));
+            }
             // the sensor diagnostics stay those of the calibrated fit: a strength re-chosen
             // with a faulty reading included bends toward it and hides it
             let diagnostics = std::mem::take(&mut out.diagnostics);

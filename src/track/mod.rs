@@ -17,12 +17,13 @@
 //! 5. [`series::TrackSeries`] keeps a fixed number of time bins for `track.svg`.
 //!
 //! [`Tracker::push_batch`] gives the same records as [`Tracker::push`] on each row, faster on
-//! more than one core: with the strength chosen on every row, a batch is fitted ahead on a
-//! helper thread (with its own [`RowEstimator`]: a row's fit does not depend on the rows
-//! before it, [`RowEstimator::fit_row_ahead`]) while the previous batch goes through steps 1
-//! and 3–5 in order on the calling thread, with the parts of step 2 that do depend on the
-//! rows before (the exceedance probability and the sensor diagnostics,
-//! [`RowEstimator::finish_row`]); the calling thread then helps fit the rest of the batch.
+//! more than one core: with the strength chosen on every row or calibrated, a batch is fitted
+//! ahead on a helper thread (with its own [`RowEstimator`]: a row's fit does not depend on the
+//! rows before it, [`RowEstimator::fit_row_ahead`]) while the previous batch goes through
+//! steps 1 and 3–5 in order on the calling thread, with the parts of step 2 that do depend on
+//! the rows before (the exceedance probability and, with the strength chosen per row, the
+//! sensor diagnostics, [`RowEstimator::finish_row`]); the calling thread then helps fit the
+//! rest of the batch. A row the calibrated strength misfits is refitted in order.
 //! A row fitted ahead with sensors other than the ones step 1 then picks (a sensor just found
 //! stuck or faulty) is fitted again in order, so the sensor decisions, and every output, are
 //! the sequential ones (`docs/track.md`, "Two cores").
@@ -331,8 +332,8 @@ impl Tracker {
     }
 
     /// Feed a batch of rows: the same records, in the same order, as [`Self::push`] on each,
-    /// but with the strength chosen on every row and more than one thread allowed
-    /// (`rayon::current_num_threads`), the batch is fitted ahead on a helper thread while the
+    /// but once the strength is chosen on every row or calibrated, with more than one thread
+    /// allowed (`rayon::current_num_threads`), the batch is fitted ahead on a helper thread while the
     /// previous batch is finished here, and this thread then helps fit the rest (module
     /// doc). The last batch's records come with the next call, [`Self::push`] or
     /// [`Self::finish`].
@@ -345,7 +346,7 @@ impl Tracker {
         sink: &mut dyn FnMut(&RowRecord<'_>) -> Result<()>,
     ) -> Result<()> {
         let strength = match self.mode {
-            Mode::Ready(RowStrength::PerRow(s))
+            Mode::Ready(s)
                 if !self.options.bootstrap
                     && !self.estimator.reference_path()
                     && rayon::current_num_threads() > 1 =>
@@ -577,14 +578,14 @@ impl Tracker {
             )));
         }
         let fitted = match (ahead, strength) {
-            (Some((left_out, fit)), RowStrength::PerRow(s))
+            (Some((left_out, fit)), strength)
                 if self.used.iter().copied().eq(guessed_sensors(row, left_out)) =>
             {
                 // the row's numbers move in; the buffers they leave go back with the slot
                 std::mem::swap(&mut self.fit, &mut fit.fit);
                 self.fitted_ahead += 1;
                 self.estimator
-                    .finish_row(&row.values, &self.used, s, fit, &mut self.fit)
+                    .finish_row(&row.values, &self.used, strength, fit, &mut self.fit)
             }
             _ => self.estimator.fit_row(
                 &row.values,

@@ -367,8 +367,10 @@ fn per_row_strength_and_leverages_match_fresh_full_searches() {
 /// in row order, and a row whose sensors the health checks change is fitted again in order.
 /// Two logs (an open circuit; a frozen sensor and a drifting one, which the checks leave
 /// out), batches of 1, 37 and 512 rows, on a pool of two threads; then σ estimated per row
-/// with one smoothing order. Records are compared through their `Debug` text, which prints
-/// every number to the last bit.
+/// with one smoothing order; then both again with the strength calibrated on the first 40
+/// rows (`--calibrate`: with σ stated, the rows the calibrated strength misfits are refitted
+/// in order). Records are compared through their `Debug` text, which prints every number to
+/// the last bit.
 #[test]
 fn rows_fitted_ahead_give_the_sequential_records_bit_for_bit() {
     let mut case = busbar();
@@ -395,16 +397,29 @@ fn rows_fitted_ahead_give_the_sequential_records_bit_for_bit() {
         .num_threads(2)
         .build()
         .unwrap();
-    for round in 0..2 {
-        if round == 1 {
+    let stated = case.clone();
+    let (mut refitted, mut ahead_beside_refits) = (0, 0);
+    for round in 0..4 {
+        let calibrate = (round >= 2).then_some(40);
+        if round == 1 || round == 3 {
             case.fit.smoothing = edgetherm::case::Smoothing::Curvature;
             case.noise = edgetherm::noise::NoiseSpec::Unstated;
+        } else {
+            case = stated.clone();
         }
         for path in [&open, &faulty] {
             let rows = read_rows(&case, path);
-            let (one_by_one, _) = records(&case, &rows, None);
+            let (one_by_one, _) = records(&case, &rows, None, calibrate);
+            let refit_here = one_by_one
+                .0
+                .iter()
+                .filter(|r| r.contains("refitted: true"))
+                .count();
+            refitted += refit_here;
+
             for batch in [1, 37, 512] {
-                let (ahead, used_ahead) = pool.install(|| records(&case, &rows, Some(batch)));
+                let (ahead, used_ahead) =
+                    pool.install(|| records(&case, &rows, Some(batch), calibrate));
                 assert_eq!(one_by_one.0.len(), ahead.0.len());
                 for (k, (a, b)) in one_by_one.0.iter().zip(&ahead.0).enumerate() {
                     assert_eq!(a, b, "round {round}, batch {batch}, row {k}");
@@ -414,20 +429,46 @@ fn rows_fitted_ahead_give_the_sequential_records_bit_for_bit() {
                     "summary, round {round}, batch {batch}"
                 );
                 // most rows' fits were made ahead, not all in order (a single batch of 512
-                // guesses every row's sensors from the state before the log: the fewest)
-                assert!(
-                    used_ahead as usize > rows.len() / 2,
-                    "round {round}, batch {batch}: {used_ahead} rows fitted ahead"
-                );
+                // guesses every row's sensors from the state before the log: the fewest);
+                // with refits, the few rows left may all fall in the batch where the
+                // calibration ends, which is fed in order
+                // rows that can be fitted ahead: not those of the batches the calibration
+                // ends in or before (fed in order), nor those refitted
+                let calibrating = calibrate.map_or(0, |c| c.next_multiple_of(batch));
+                let eligible = rows.len().saturating_sub(calibrating + refit_here);
+                if calibrate.is_some() && batch >= rows.len() {
+                    // one batch holding the rows calibrated on is fed in order
+                    assert_eq!(used_ahead, 0, "round {round}, batch {batch}");
+                } else if refit_here == 0 {
+                    assert!(
+                        used_ahead as usize > eligible / 2,
+                        "round {round}, batch {batch}: {used_ahead} rows fitted ahead"
+                    );
+                } else {
+                    ahead_beside_refits += used_ahead;
+                }
             }
         }
     }
+    // the misfit path was taken (the calibrated strength misfits this log's later rows),
+    // beside rows fitted ahead at the calibrated strength
+    assert!(refitted > 0, "no row refitted");
+    assert!(
+        ahead_beside_refits > 0,
+        "no row fitted ahead beside the refits"
+    );
 }
 
 /// Every record of a run as text, the summary, and the rows fitted ahead (`batch`: rows per
-/// `push_batch`; `None`: `push` row by row).
-fn records(case: &Case, rows: &[LoggerRow], batch: Option<usize>) -> ((Vec<String>, String), u64) {
+/// `push_batch`; `None`: `push` row by row; `calibrate`: rows to calibrate the strength on).
+fn records(
+    case: &Case,
+    rows: &[LoggerRow],
+    batch: Option<usize>,
+    calibrate: Option<usize>,
+) -> ((Vec<String>, String), u64) {
     let opts = TrackOptions {
+        calibrate,
         limit: Some(K + 70.0),
         ..TrackOptions::default()
     };
