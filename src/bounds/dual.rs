@@ -536,19 +536,22 @@ fn gram_block_body(
     acc
 }
 
+/// Rows of [`row_dots`] side by side.
+const ROW_GROUP: usize = 8;
+
 /// `out[k] = rows_k · y` for the rows of `rows` (`m` entries each), each the products added in
-/// order from −0.0 as `Iterator::sum` adds them; four rows side by side, so that their sums
-/// overlap instead of waiting on one another.
-fn row_dots(rows: &[f64], m: usize, y: &[f64], out: &mut [f64]) {
+/// order from −0.0 as `Iterator::sum` adds them; [`ROW_GROUP`] rows side by side, so that
+/// their sums overlap instead of waiting on one another.
+pub(super) fn row_dots(rows: &[f64], m: usize, y: &[f64], out: &mut [f64]) {
     if m == 0 {
         out.fill(-0.0); // an empty sum
         return;
     }
     let y = &y[..m];
-    let whole = out.len() / 4 * 4;
-    let groups = rows.chunks_exact(4 * m);
-    for (group, o) in groups.zip(out[..whole].chunks_exact_mut(4)) {
-        let mut acc = [-0.0_f64; 4];
+    let whole = out.len() / ROW_GROUP * ROW_GROUP;
+    let groups = rows.chunks_exact(ROW_GROUP * m);
+    for (group, o) in groups.zip(out[..whole].chunks_exact_mut(ROW_GROUP)) {
+        let mut acc = [-0.0_f64; ROW_GROUP];
         for (i, &yi) in y.iter().enumerate() {
             for (r, a) in acc.iter_mut().enumerate() {
                 *a += group[r * m + i] * yi;

@@ -719,15 +719,10 @@ fn polar_quasi_interpolation_allowance(
                 let w: Vec<f64> = (0..n).map(|j| map.a[(i, first + j)]).collect();
                 let q = PolarMap::decay_ratio(shape, e.edge, sensors[i]).min(1.0 - 1e-12);
                 let tau = 4.0 * q.powf(m_top + 1.0) / (std::f64::consts::PI * radius * (1.0 - q));
-                let kernel: Vec<f64> = (0..fine.len())
-                    .map(|k| {
-                        phi[k * n..(k + 1) * n]
-                            .iter()
-                            .zip(&w)
-                            .map(|(a, b)| a * b)
-                            .sum()
-                    })
-                    .collect();
+                // each point's Σ_j φ_j(s_k) w_j, added in the order of j (four points side
+                // by side)
+                let mut kernel = vec![0.0; fine.len()];
+                super::dual::row_dots(&phi, n, &w, &mut kernel);
                 let len = e.length_m;
                 integral_of_r(&kernel, per_cell, cells, ds) + 2.0 * tau * len * len
             })
