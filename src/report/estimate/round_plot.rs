@@ -34,9 +34,13 @@ const BAR_BLOCK_H: f64 = 78.0;
 const CAPTION_LINE_H: f64 = 19.0;
 /// Angular subdivisions drawn per display cell (arcs look round).
 const ARC_STEPS: usize = 2;
-/// Display cells per grid cell, round the circle and across the wall (the field is
-/// interpolated bilinearly in angle and radius, so a coarse grid is not shown as blocks).
+/// At most this many display cells per grid cell, round the circle and across the wall (the
+/// field is interpolated bilinearly in angle and radius, so a coarse grid is not shown as
+/// blocks).
 const UPSAMPLE: (usize, usize) = (4, 3);
+/// Display cells are made about this size, px, or larger: finer ones cannot be seen and only
+/// make the picture heavier (a thin wall would otherwise be drawn in cells under a pixel).
+const CELL_PX: f64 = 3.0;
 
 /// Split `text` into lines no wider than `max_px` at `TEXT_PX`.
 fn wrap(text: &str, max_px: f64) -> Vec<String> {
@@ -96,6 +100,29 @@ pub(crate) fn field_svg(r: &EstimateResult) -> Result<String> {
 }
 
 #[allow(clippy::too_many_arguments)]
+/// `cells + 1` evenly spaced display positions from the first to the last of `grid` (at
+/// least two points, increasing), each with the grid cell it falls in and its fraction of the
+/// way across it: `(position, cell, fraction)`.
+fn display_axis(grid: &[f64], cells: usize) -> Vec<(f64, usize, f64)> {
+    let (first, last) = (grid[0], grid[grid.len() - 1]);
+    (0..=cells)
+        .map(|k| {
+            let x = first + (last - first) * k as f64 / cells as f64;
+            let i = grid
+                .partition_point(|&g| g <= x)
+                .saturating_sub(1)
+                .min(grid.len() - 2);
+            let width = grid[i + 1] - grid[i];
+            let t = if width > 0.0 {
+                ((x - grid[i]) / width).clamp(0.0, 1.0)
+            } else {
+                0.0
+            };
+            (x, i, t)
+        })
+        .collect()
+}
+
 fn draw(
     root: &Area<'_>,
     r: &EstimateResult,
@@ -152,39 +179,33 @@ fn draw(
             .flat_map(|j| (0..=na).map(move |i| (i % na, j)))
             .map(|(i, j)| u.temp(f.estimate[j * na + i]))
             .collect();
-        // the display grid: each grid cell split UPSAMPLE ways, bilinear in (angle, radius)
-        let fine = |v: &[f64], k: usize| -> Vec<f64> {
-            let mut out = Vec::with_capacity((v.len() - 1) * k + 1);
-            for w in v.windows(2) {
-                for s in 0..k {
-                    out.push(w[0] + (w[1] - w[0]) * s as f64 / k as f64);
-                }
-            }
-            out.push(v[v.len() - 1]);
-            out
+        // the display grid: cells of about CELL_PX (at least the grid's own round the
+        // circle, at most UPSAMPLE per grid cell), the field bilinear in (angle, radius)
+        let cells = |px: f64, least: usize, most: usize| {
+            ((px / CELL_PX).round() as usize).clamp(least.max(1), most.max(1))
         };
-        let angles = fine(&grid_angles, UPSAMPLE.0);
-        let radii = fine(&f.ys, UPSAMPLE.1);
+        let angles = display_axis(
+            &grid_angles,
+            cells(TAU * outer * scale, na, na * UPSAMPLE.0),
+        );
+        let radii = display_axis(
+            &f.ys,
+            cells((f.ys[nr - 1] - f.ys[0]) * scale, 1, (nr - 1) * UPSAMPLE.1),
+        );
         let (fa, fr) = (angles.len(), radii.len());
         let mut z = Vec::with_capacity(fa * fr);
-        for jj in 0..fr {
-            let (j, tj) = (
-                jj / UPSAMPLE.1,
-                (jj % UPSAMPLE.1) as f64 / UPSAMPLE.1 as f64,
-            );
-            let j1 = (j + 1).min(nr - 1);
-            for ii in 0..fa {
-                let (i, ti) = (
-                    ii / UPSAMPLE.0,
-                    (ii % UPSAMPLE.0) as f64 / UPSAMPLE.0 as f64,
-                );
-                let i1 = (i + 1).min(na);
+        for &(_, j, tj) in &radii {
+            for &(_, i, ti) in &angles {
                 let g = |i: usize, j: usize| grid_z[j * (na + 1) + i];
-                let lo = g(i, j) + (g(i1, j) - g(i, j)) * ti;
-                let hi = g(i, j1) + (g(i1, j1) - g(i, j1)) * ti;
+                let lo = g(i, j) + (g(i + 1, j) - g(i, j)) * ti;
+                let hi = g(i, j + 1) + (g(i + 1, j + 1) - g(i, j + 1)) * ti;
                 z.push(lo + (hi - lo) * tj);
             }
         }
+        let (angles, radii): (Vec<f64>, Vec<f64>) = (
+            angles.iter().map(|a| a.0).collect(),
+            radii.iter().map(|r| r.0).collect(),
+        );
         let at = |i: usize, j: usize| z[j * fa + i];
         for j in 0..fr - 1 {
             for i in 0..fa - 1 {
