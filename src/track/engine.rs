@@ -1935,10 +1935,12 @@ fn exceed(est: &DVector<f64>, ratio: &[f64], dr: &Draws, t: f64, bits: &mut Vec<
     let n = dr.n;
     bits.clear();
     bits.resize(n.div_ceil(64), 0);
-    let mut arg = 0;
+    // the first largest (the best value kept in hand: comparing with `est[arg]` would wait
+    // on a load at every point)
+    let (mut arg, mut best) = (0, est.as_slice().first().copied().unwrap_or(f64::NAN));
     for (j, &v) in est.iter().enumerate() {
-        if v > est[arg] {
-            arg = j;
+        if v > best {
+            (arg, best) = (j, v);
         }
     }
     // the hottest point first: far above the limit it decides every draw at once
