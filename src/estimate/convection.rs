@@ -242,22 +242,25 @@ pub fn profile_h(
     // The interval is the hull of the set {E ≤ level}: from the outermost grid points below
     // the level (a second dip of E is kept, never cut off), or from the optimum when no grid
     // point on that side is below it. An end at the range's is open.
+    // The two ends are found side by side (each search is the same alone).
     let below = |i: usize| values[i].is_finite() && values[i] <= level;
-    let lo = match (0..GRID_POINTS).find(|&i| below(i) && xs[i] <= x_hat) {
-        Some(0) => None,
-        Some(i) => Some(crossing(xs[i - 1], xs[i], xs[i - 1]).exp()),
-        None => (0..GRID_POINTS)
-            .rev()
-            .find(|&i| xs[i] < x_hat)
-            .map(|i| crossing(xs[i], x_hat, xs[i]).exp()),
-    };
-    let hi = match (0..GRID_POINTS).rev().find(|&i| below(i) && xs[i] >= x_hat) {
-        Some(i) if i == GRID_POINTS - 1 => None,
-        Some(i) => Some(crossing(xs[i], xs[i + 1], xs[i + 1]).exp()),
-        None => (0..GRID_POINTS)
-            .find(|&i| xs[i] > x_hat)
-            .map(|i| crossing(x_hat, xs[i], xs[i]).exp()),
-    };
+    let (lo, hi) = rayon::join(
+        || match (0..GRID_POINTS).find(|&i| below(i) && xs[i] <= x_hat) {
+            Some(0) => None,
+            Some(i) => Some(crossing(xs[i - 1], xs[i], xs[i - 1]).exp()),
+            None => (0..GRID_POINTS)
+                .rev()
+                .find(|&i| xs[i] < x_hat)
+                .map(|i| crossing(xs[i], x_hat, xs[i]).exp()),
+        },
+        || match (0..GRID_POINTS).rev().find(|&i| below(i) && xs[i] >= x_hat) {
+            Some(i) if i == GRID_POINTS - 1 => None,
+            Some(i) => Some(crossing(xs[i], xs[i + 1], xs[i + 1]).exp()),
+            None => (0..GRID_POINTS)
+                .find(|&i| xs[i] > x_hat)
+                .map(|i| crossing(x_hat, xs[i], xs[i]).exp()),
+        },
+    );
     let h = x_hat.exp().clamp(low, high);
     Ok(ConvectionEstimate {
         edge,
@@ -283,19 +286,25 @@ pub(super) fn estimate_unknown_h(
     progress: Option<&(dyn Fn(usize) + Sync)>,
 ) -> Result<EstimateResult> {
     let conv = profile_h(case, &[readings.to_vec()], options)?;
-    let mut result = estimate_known_h(
-        &with_h(case, conv.edge, conv.h)?,
-        readings,
-        options,
-        progress,
-    )?;
-    // the ends: no strict bounds there (the gradient study at ĥ is reported as it is)
+    // the ends: no strict bounds there (the gradient study at ĥ is reported as it is); the
+    // three estimates side by side, each the same as alone
     let quiet = EstimateOptions {
         strict_bounds: false,
         ..options.clone()
     };
-    for h_end in conv.h_interval {
-        let other = estimate_known_h(&with_h(case, conv.edge, h_end)?, readings, &quiet, None)?;
+    let (result, ends) = rayon::join(
+        || estimate_known_h(&with_h(case, conv.edge, conv.h)?, readings, options, progress),
+        || {
+            conv.h_interval
+                .par_iter()
+                .map(|&h_end| {
+                    estimate_known_h(&with_h(case, conv.edge, h_end)?, readings, &quiet, None)
+                })
+                .collect::<Result<Vec<_>>>()
+        },
+    );
+    let mut result = result?;
+    for other in ends? {
         widen(&mut result, &other);
     }
     result.plate = case.plate.clone();
