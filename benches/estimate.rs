@@ -5,6 +5,13 @@
 //! `cargo bench --bench estimate` prints the median and the spread of 15 runs of the whole
 //! estimate (fault search, order choice, bootstrap, bands), and the same with the fault
 //! search turned off (`--keep-all`), plus the peak resident memory (VmHWM).
+//!
+//! Then the row of issue 9's table, whole process: `edgetherm estimate` (the release binary,
+//! `cargo build --release` first) on an invented case of 14 sensors × 64 terms (cold-plate
+//! geometry, readings of an invented hot spot with noise), 2000 replicates with the strength
+//! re-chosen in each, 41 × 41 field bands, strict bounds' gradient study on, every output
+//! written: the median wall time of 15 runs, their spread, the largest peak resident memory
+//! (`wait4`), and the ratios to the targets (60 ms, 40 MB). Skipped without the binary.
 
 use edgetherm::case::{CaseFiles, Sensor};
 use edgetherm::estimate::{EstimateOptions, estimate};
@@ -82,4 +89,102 @@ fn main() {
             );
         }
     }
+    whole_process();
+}
+
+/// Issue 9's row: the release binary on an invented 14-sensor case, end to end.
+fn whole_process() {
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR"));
+    let bin = root.join("target/release/edgetherm");
+    if !bin.exists() {
+        println!("whole process: skipped (build the binary first: cargo build --release)");
+        return;
+    }
+    let tmp = tempfile::tempdir().expect("temp dir");
+    let case_dir = tmp.path().join("case");
+    std::fs::create_dir(&case_dir).expect("case dir");
+    std::fs::copy(
+        root.join("sample-measurements/cold-plate/plate.toml"),
+        case_dir.join("plate.toml"),
+    )
+    .expect("plate.toml");
+    // 14 sensors in two staggered rows, 5 and 9 mm above the hidden edge (invented)
+    let mut sensors = String::from("sensor,x,y\n");
+    for i in 0..14 {
+        let x = 180.0 * (i as f64 + 0.5) / 14.0;
+        let y = if i % 2 == 0 { 5.0 } else { 9.0 };
+        sensors.push_str(&format!("S{i:02},{x},{y}\n"));
+    }
+    std::fs::write(case_dir.join("sensors.csv"), sensors).expect("sensors.csv");
+    let case = load_case(&CaseFiles::in_dir(&case_dir)).expect("case");
+    assert_eq!(case.fit.terms, 64, "the sample plate's terms");
+    let w = 0.18;
+    let s: Vec<f64> = (0..181).map(|i| w * i as f64 / 180.0).collect();
+    let t = s
+        .iter()
+        .map(|&x| 273.15 + 33.0 + 7.0 * (-((x - 0.121) / 0.018f64).powi(2)).exp())
+        .collect();
+    let truth = EdgeProfile::piecewise_linear(s, t).expect("truth");
+    let model = truth_model(&case.plate, &[(Edge::Bottom, truth)]).expect("model");
+    let points: Vec<Point> = case.sensors.iter().map(|s| s.position).collect();
+    let exact = exact_readings(&model, &points).expect("exact");
+    let noisy = add_noise(&exact, 0.15, 5).expect("noise");
+    let mut readings = String::from("sensor,temperature\n");
+    for (i, v) in noisy.iter().enumerate() {
+        readings.push_str(&format!("S{i:02},{:.4}\n", v - 273.15));
+    }
+    std::fs::write(case_dir.join("readings.csv"), readings).expect("readings.csv");
+    let out = tmp.path().join("out");
+    let mut runs: Vec<(f64, f64)> = (0..16)
+        .map(|_| run_estimate(&bin, &case_dir, &out))
+        .collect();
+    runs.remove(0); // the first run warms the file cache
+    let mut secs: Vec<f64> = runs.iter().map(|r| r.0).collect();
+    secs.sort_by(f64::total_cmp);
+    let peak = runs.iter().map(|r| r.1).fold(0.0, f64::max);
+    let median = secs[secs.len() / 2];
+    println!(
+        "estimate whole process, 14 sensors x 64 terms, 2000 replicates, 41x41 field bands, \
+         gradient study on: median {:.1} ms (spread {:.1} to {:.1} ms over {} runs), peak \
+         memory {peak:.1} MB; target 60 ms, 40 MB: median/target = {:.2}, peak/target = {:.2}",
+        1e3 * median,
+        1e3 * secs[0],
+        1e3 * secs[secs.len() - 1],
+        secs.len(),
+        median / 0.060,
+        peak / 40.0
+    );
+}
+
+/// One run of `edgetherm estimate`: wall seconds and the peak resident memory in MB (from
+/// `wait4`, which reports the child's own maximum even for a run of a few milliseconds).
+fn run_estimate(
+    bin: &std::path::Path,
+    case: &std::path::Path,
+    out: &std::path::Path,
+) -> (f64, f64) {
+    let t0 = Instant::now();
+    let child = std::process::Command::new(bin)
+        .arg("estimate")
+        .arg(case)
+        .arg("--out")
+        .arg(out)
+        .args(["--overwrite", "--quiet"])
+        .spawn()
+        .expect("run edgetherm");
+    let mut status = 0;
+    // SAFETY: `rusage` is plain data, zero is a valid value; wait4 writes it for the child
+    // just spawned, which nothing else waits for.
+    let mut usage: libc::rusage = unsafe { std::mem::zeroed() };
+    let pid = libc::pid_t::try_from(child.id()).expect("pid");
+    // SAFETY: a valid pid of our own child and valid pointers to the two outputs.
+    let reaped = unsafe { libc::wait4(pid, &mut status, 0, &mut usage) };
+    let secs = t0.elapsed().as_secs_f64();
+    assert_eq!(reaped, pid, "wait4");
+    assert!(
+        libc::WIFEXITED(status) && libc::WEXITSTATUS(status) == 0,
+        "edgetherm estimate failed: status {status}"
+    );
+    // ru_maxrss is in kilobytes on Linux
+    (secs, usage.ru_maxrss as f64 / 1024.0)
 }

@@ -293,7 +293,14 @@ pub(super) fn estimate_unknown_h(
         ..options.clone()
     };
     let (result, ends) = rayon::join(
-        || estimate_known_h(&with_h(case, conv.edge, conv.h)?, readings, options, progress),
+        || {
+            estimate_known_h(
+                &with_h(case, conv.edge, conv.h)?,
+                readings,
+                options,
+                progress,
+            )
+        },
         || {
             conv.h_interval
                 .par_iter()
