@@ -158,6 +158,7 @@ fn whole_process() {
 
 /// One run of `edgetherm estimate`: wall seconds and the peak resident memory in MB (from
 /// `wait4`, which reports the child's own maximum even for a run of a few milliseconds).
+#[allow(clippy::zombie_processes)] // reaped by `wait4`, which std does not know of
 fn run_estimate(
     bin: &std::path::Path,
     case: &std::path::Path,
