@@ -766,8 +766,23 @@ impl RowEstimator {
         self.key.clear();
         self.key.push(order as u64);
         self.key.resize(1 + self.points.len().div_ceil(64), 0);
+        // the bits of one word gathered in a register, stored when the word changes (an OR
+        // into memory per sensor waited on the store before it)
+        let mut word: Option<(usize, u64)> = None;
         for &i in used {
-            self.key[1 + i / 64] |= 1 << (i % 64);
+            let w = 1 + i / 64;
+            match &mut word {
+                Some((at, bits)) if *at == w => *bits |= 1 << (i % 64),
+                _ => {
+                    if let Some((at, bits)) = word {
+                        self.key[at] |= bits;
+                    }
+                    word = Some((w, 1 << (i % 64)));
+                }
+            }
+        }
+        if let Some((at, bits)) = word {
+            self.key[at] |= bits;
         }
         let tol_sigma: Option<Vec<f64>> = if self.tolerance {
             let (s, _) = crate::estimate::resolve_sigmas(&self.case, used, readings)?;
