@@ -146,6 +146,9 @@ pub struct RowRecord<'a> {
     pub bound: Option<bounds::RowBound>,
 }
 
+/// Rows a thread claims at a time when fitting a batch ahead ([`Tracker::push_batch`]).
+const CLAIM_ROWS: usize = 8;
+
 /// Rows fitted ahead ([`Tracker::push_batch`]), each with its sensors that have a reading
 /// less those in `left_out`, and the fits (`None`: too few sensors or an error; the row is
 /// then fitted in order).
@@ -379,18 +382,25 @@ impl Tracker {
             .collect();
         let next = AtomicUsize::new(0);
         // fit the rows not yet claimed by either thread, each with its guessed sensors
+        // rows are claimed a few at a time: fewer trips of the counter's and the slots'
+        // cache lines between the cores
         let fit_rest = |est: &mut RowEstimator| {
             let mut used = Vec::new();
             loop {
-                let i = next.fetch_add(1, Ordering::Relaxed);
-                let Some(row) = rows.get(i) else { break };
-                used.clear();
-                used.extend(guessed_sensors(row, &left_out));
-                let mut slot = slots[i].lock().unwrap_or_else(PoisonError::into_inner);
-                slot.fitted = used.len() >= need
-                    && est
-                        .fit_row_ahead(&row.values, &used, strength, limit, &mut slot.ahead)
-                        .is_ok();
+                let first = next.fetch_add(CLAIM_ROWS, Ordering::Relaxed);
+                if first >= rows.len() {
+                    break;
+                }
+                for i in first..(first + CLAIM_ROWS).min(rows.len()) {
+                    let row = &rows[i];
+                    used.clear();
+                    used.extend(guessed_sensors(row, &left_out));
+                    let mut slot = slots[i].lock().unwrap_or_else(PoisonError::into_inner);
+                    slot.fitted = used.len() >= need
+                        && est
+                            .fit_row_ahead(&row.values, &used, strength, limit, &mut slot.ahead)
+                            .is_ok();
+                }
             }
         };
         let pending = self.ahead.take();
