@@ -913,9 +913,8 @@ impl RowEstimator {
     /// and strength; `out` holds `ahead.fit`'s numbers): its exceedance probability for the
     /// limit given there and, with the strength chosen on the row, the sensor diagnostics at
     /// the reference strength, which moves with every row, both exactly as [`Self::fit_row`]
-    /// forms them. The projection and the
-    /// profile made ahead move in by an exchange of buffers: `ahead` is left with spare
-    /// buffers for [`Self::fit_row_ahead`] to fill again.
+    /// forms them. The projection and the profile made ahead move in by an exchange of
+    /// buffers: `ahead` is left with spare buffers for [`Self::fit_row_ahead`] to fill again.
     ///
     /// # Errors
     /// As [`Self::fit_row`].
