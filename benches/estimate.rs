@@ -20,6 +20,8 @@ use edgetherm::io::load_case;
 use edgetherm::simulate::{add_noise, exact_readings, truth_model};
 use std::time::Instant;
 
+mod common;
+
 fn main() {
     let dir =
         std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-measurements/cold-plate");
@@ -101,21 +103,8 @@ fn whole_process() {
         return;
     }
     let tmp = tempfile::tempdir().expect("temp dir");
-    let case_dir = tmp.path().join("case");
-    std::fs::create_dir(&case_dir).expect("case dir");
-    std::fs::copy(
-        root.join("sample-measurements/cold-plate/plate.toml"),
-        case_dir.join("plate.toml"),
-    )
-    .expect("plate.toml");
     // 14 sensors in two staggered rows, 5 and 9 mm above the hidden edge (invented)
-    let mut sensors = String::from("sensor,x,y\n");
-    for i in 0..14 {
-        let x = 180.0 * (i as f64 + 0.5) / 14.0;
-        let y = if i % 2 == 0 { 5.0 } else { 9.0 };
-        sensors.push_str(&format!("S{i:02},{x},{y}\n"));
-    }
-    std::fs::write(case_dir.join("sensors.csv"), sensors).expect("sensors.csv");
+    let case_dir = common::staggered_case(root, tmp.path(), 14, (5.0, 9.0));
     let case = load_case(&CaseFiles::in_dir(&case_dir)).expect("case");
     assert_eq!(case.fit.terms, 64, "the sample plate's terms");
     let w = 0.18;

@@ -22,6 +22,8 @@ use std::io::Write;
 use std::path::Path;
 use std::time::{Duration, Instant};
 
+mod common;
+
 fn main() {
     let rows: usize = std::env::var("TRACK_BENCH_ROWS")
         .ok()
@@ -42,20 +44,7 @@ fn main() {
         std::mem::forget(tmp);
     }
     let dir = DirRef(&dir_path);
-    let case_dir = dir.path().join("case");
-    std::fs::create_dir(&case_dir).expect("case dir");
-    std::fs::copy(
-        root.join("sample-measurements/cold-plate/plate.toml"),
-        case_dir.join("plate.toml"),
-    )
-    .expect("plate.toml");
-    let mut sensors = String::from("sensor,x,y\n");
-    for i in 0..32 {
-        let x = 180.0 * (i as f64 + 0.5) / 32.0;
-        let y = if i % 2 == 0 { 6.0 } else { 10.0 };
-        sensors.push_str(&format!("S{i:02},{x},{y}\n"));
-    }
-    std::fs::write(case_dir.join("sensors.csv"), sensors).expect("sensors.csv");
+    let case_dir = common::staggered_case(root, dir.path(), 32, (6.0, 10.0));
     let mut case = load_case(&CaseFiles::in_dir(&case_dir)).expect("case");
     case.sensors = case
         .sensors
