@@ -543,24 +543,31 @@ const ROW_GROUP: usize = 8;
 /// order from −0.0 as `Iterator::sum` adds them; [`ROW_GROUP`] rows side by side, so that
 /// their sums overlap instead of waiting on one another.
 pub(super) fn row_dots(rows: &[f64], m: usize, y: &[f64], out: &mut [f64]) {
+    row_dots_strided(rows, m, m, y, out);
+}
+
+/// [`row_dots`] over the first `m` entries of rows `stride` entries apart (`m ≤ stride`).
+pub(super) fn row_dots_strided(rows: &[f64], stride: usize, m: usize, y: &[f64], out: &mut [f64]) {
     if m == 0 {
         out.fill(-0.0); // an empty sum
         return;
     }
     let y = &y[..m];
     let whole = out.len() / ROW_GROUP * ROW_GROUP;
-    let groups = rows.chunks_exact(ROW_GROUP * m);
-    for (group, o) in groups.zip(out[..whole].chunks_exact_mut(ROW_GROUP)) {
+    for (g, o) in out[..whole].chunks_exact_mut(ROW_GROUP).enumerate() {
+        let first = g * ROW_GROUP;
+        let group: [&[f64]; ROW_GROUP] =
+            std::array::from_fn(|r| &rows[(first + r) * stride..][..m]);
         let mut acc = [-0.0_f64; ROW_GROUP];
         for (i, &yi) in y.iter().enumerate() {
-            for (r, a) in acc.iter_mut().enumerate() {
-                *a += group[r * m + i] * yi;
+            for (a, row) in acc.iter_mut().zip(&group) {
+                *a += row[i] * yi;
             }
         }
         o.copy_from_slice(&acc);
     }
     for (k, o) in out.iter_mut().enumerate().skip(whole) {
-        *o = rows[k * m..(k + 1) * m]
+        *o = rows[k * stride..k * stride + m]
             .iter()
             .zip(y)
             .map(|(a, b)| a * b)
@@ -574,8 +581,8 @@ mod tests {
 
     #[test]
     fn row_dots_are_the_iterator_sums_bit_for_bit() {
-        // four rows at a time must give each row's `Iterator::sum` exactly: invented rows
-        // with signed zeros, tiny and large entries, any count of rows (whole groups of four
+        // eight rows at a time must give each row's `Iterator::sum` exactly: invented rows
+        // with signed zeros, tiny and large entries, any count of rows (whole groups of eight
         // and a remainder)
         let mut x: u64 = 0x2545_f491_4f6c_dd1d;
         let mut next = || {
@@ -591,7 +598,7 @@ mod tests {
                 }
             }
         };
-        for (n, m) in [(1, 1), (4, 3), (9, 14), (241, 10), (7, 1)] {
+        for (n, m) in [(1, 1), (4, 3), (9, 14), (241, 10), (7, 1), (17, 5)] {
             let rows: Vec<f64> = (0..n * m).map(|_| next()).collect();
             let mut y: Vec<f64> = (0..m).map(|_| next()).collect();
             for pass in 0..2 {
@@ -600,6 +607,18 @@ mod tests {
                 }
                 let mut out = vec![f64::NAN; n];
                 row_dots(&rows, m, &y, &mut out);
+                // the first m - 1 entries of the same rows (stride m)
+                let short = m - 1;
+                let mut part = vec![f64::NAN; n];
+                row_dots_strided(&rows, m, short, &y, &mut part);
+                for k in 0..n {
+                    let want: f64 = rows[k * m..k * m + short]
+                        .iter()
+                        .zip(&y)
+                        .map(|(a, b)| a * b)
+                        .sum();
+                    assert_eq!(part[k].to_bits(), want.to_bits(), "n {n} m {short} row {k}");
+                }
                 for k in 0..n {
                     let want: f64 = rows[k * m..(k + 1) * m]
                         .iter()

@@ -544,23 +544,13 @@ fn quasi_interpolation_allowance(
                 (w, used)
             })
             .collect();
-        // φ_t at the fine points, divided by ‖φ_t‖², for the modes some sensor uses (the
-        // values do not depend on how many are asked for)
-        let width = modes.iter().map(|m| m.1).max().unwrap_or(0);
-        let mut phi = vec![0.0; fine.len() * width];
-        if width > 0 {
-            for (k, &s) in fine.iter().enumerate() {
-                let row = &mut phi[k * width..(k + 1) * width];
-                series.phi_into(s, row);
-                for (t, v) in row.iter_mut().enumerate() {
-                    *v /= series.norm_sq(t);
-                }
-            }
-        }
+        // every sensor's kernel at the fine points, block by block
+        let kernels = fine_kernels(series, &fine, &modes);
         let per_sensor: Vec<f64> = sensors
-            .par_iter()
+            .iter()
             .zip(&modes)
-            .map(|(&p, (w, used))| {
+            .zip(kernels.chunks_exact(fine.len().max(1)))
+            .map(|((&p, (_, used)), kernel)| {
                 let (used, d_i) = (*used, shape.depth_from(e.edge, p));
                 // The kernel's omitted modes (n ≥ used): |K_tail| ≤ Σ ψ_n (2/L) ≤ τ with
                 // ψ_n ≤ 2 e^{−k_n d} and k_n ≥ nπ/L, so |K_tail − Q K_tail| ≤ 2τ and their
@@ -569,16 +559,7 @@ fn quasi_interpolation_allowance(
                 let k_omit = used as f64 * std::f64::consts::PI / len;
                 let tau = 4.0 / len * (-k_omit * d_i).exp()
                     / -(-std::f64::consts::PI * d_i / len).exp_m1();
-                let kernel: Vec<f64> = (0..fine.len())
-                    .map(|k| {
-                        phi[k * width..k * width + used]
-                            .iter()
-                            .zip(&w[..used])
-                            .map(|(a, b)| a * b)
-                            .sum()
-                    })
-                    .collect();
-                integral_of_r(&kernel, per_cell, cells, ds) + 2.0 * tau * len * len
+                integral_of_r(kernel, per_cell, cells, ds) + 2.0 * tau * len * len
             })
             .collect();
         for (acc, v) in rho.iter_mut().zip(per_sensor) {
@@ -586,6 +567,58 @@ fn quasi_interpolation_allowance(
         }
     }
     Ok(rho)
+}
+
+/// Fine points per block of [`fine_kernels`]: the block's `φ` table (points × modes) and
+/// every sensor's sums stay in the core's caches while the modes are swept.
+const KERNEL_BLOCK: usize = 64;
+
+/// Each sensor's kernel `K_i(s_k) = Σ_{t < used_i} φ_t(s_k) w_{it} / ‖φ_t‖²` at every fine
+/// point, sensor after sensor (`fine.len()` values each); `modes` holds each sensor's `w_i`
+/// and its `used_i`. Every value is the products added in the order of `t` from −0.0, as
+/// `Iterator::sum` adds them; blocks of [`KERNEL_BLOCK`] points run in parallel and each
+/// sweeps the modes once for all sensors (a blocked product in place of a pass over the whole
+/// `φ` table per sensor).
+fn fine_kernels(series: &Series, fine: &[f64], modes: &[(Vec<f64>, usize)]) -> Vec<f64> {
+    let width = modes.iter().map(|m| m.1).max().unwrap_or(0);
+    let count = modes.len();
+    let n_fine = fine.len();
+    let blocks: Vec<Vec<f64>> = fine
+        .par_chunks(KERNEL_BLOCK)
+        .map(|points| {
+            let b = points.len();
+            // φ_t(s_k) / ‖φ_t‖², mode after mode (b values each)
+            let mut phi = vec![0.0; width * b];
+            let mut row = vec![0.0; width];
+            for (k, &s) in points.iter().enumerate() {
+                series.phi_into(s, &mut row);
+                for (t, v) in row.iter().enumerate() {
+                    phi[t * b + k] = v / series.norm_sq(t);
+                }
+            }
+            let mut sums = vec![-0.0; count * b];
+            for (t, phi_t) in phi.chunks_exact(b).enumerate() {
+                for ((w, used), acc) in modes.iter().zip(sums.chunks_exact_mut(b)) {
+                    if t < *used {
+                        let wt = w[t];
+                        for (a, &f) in acc.iter_mut().zip(phi_t) {
+                            *a += f * wt;
+                        }
+                    }
+                }
+            }
+            sums
+        })
+        .collect();
+    let mut kernels = vec![0.0; count * n_fine];
+    for (block, sums) in blocks.iter().enumerate() {
+        let b = sums.len() / count.max(1);
+        for (i, acc) in sums.chunks_exact(b.max(1)).enumerate() {
+            let at = i * n_fine + block * KERNEL_BLOCK;
+            kernels[at..at + b].copy_from_slice(acc);
+        }
+    }
+    kernels
 }
 /// The sensor map of a round plate's unknown circles with `terms` Fourier functions each: the
 /// reading of sensor `i` per unit coefficient of function `j` of each hidden circle.
@@ -719,7 +752,7 @@ fn polar_quasi_interpolation_allowance(
                 let w: Vec<f64> = (0..n).map(|j| map.a[(i, first + j)]).collect();
                 let q = PolarMap::decay_ratio(shape, e.edge, sensors[i]).min(1.0 - 1e-12);
                 let tau = 4.0 * q.powf(m_top + 1.0) / (std::f64::consts::PI * radius * (1.0 - q));
-                // each point's Σ_j φ_j(s_k) w_j, added in the order of j (four points side
+                // each point's Σ_j φ_j(s_k) w_j, added in the order of j (eight points side
                 // by side)
                 let mut kernel = vec![0.0; fine.len()];
                 super::dual::row_dots(&phi, n, &w, &mut kernel);
