@@ -20,7 +20,7 @@
 //! Vandenberghe 2004, *Convex Optimization*, §5.2.3 and §5.9). The search for a good `y` is a
 //! smooth problem in `m` unknowns: each `|x|` is replaced by `√(x² + μ²)`, which overestimates
 //! it by at most `μ`, and Newton's method with the edge sums as equality constraints is run
-//! for `μ` falling tenfold per stage (a homotopy). The bound returned is the exact,
+//! for `μ` falling by [`MU_REDUCTION`] per stage (a homotopy). The bound returned is the exact,
 //! non-smooth `F` at the final `y`, so a search that stops early gives a wider bound, never a
 //! false one. Rounding in the edge sums is covered by adding `|Σ g| T_span` per edge
 //! ([`super::set::TEMPERATURE_SPAN_K`]).
@@ -63,6 +63,13 @@ const GRAM_ROWS: usize = 2;
 
 /// Largest number of Newton steps over all smoothing stages.
 const MAX_STEPS: usize = 400;
+
+/// Factor on `μ` from one smoothing stage to the next. Measured on the sample cases (the
+/// gradient study and `--max-gradient 2`): 0.4 takes 12–26 % fewer Newton steps in all than
+/// 0.1 (each stage then starts closer to its optimum), 0.2–0.5 are within a few per cent of
+/// it, 0.01–0.05 take more; the bounds move by about 1e-4 K either way (each is `F` at the
+/// final point, a strict bound whatever the path: module doc).
+const MU_REDUCTION: f64 = 0.4;
 
 /// The smoothing stops when `μ` times the total weight of the smoothed terms is below this,
 /// kelvin: the smooth optimum is then within it of the exact one.
@@ -354,7 +361,10 @@ impl<'a> Problem<'a> {
             if mu.0 <= target.0 && mu.1 <= target.1 {
                 break;
             }
-            mu = ((mu.0 * 0.1).max(target.0), (mu.1 * 0.1).max(target.1));
+            mu = (
+                (mu.0 * MU_REDUCTION).max(target.0),
+                (mu.1 * MU_REDUCTION).max(target.1),
+            );
         }
         let b = self.bound(&y, &p);
         b.is_finite().then_some((y, b))
