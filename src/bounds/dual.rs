@@ -71,6 +71,13 @@ const MAX_STEPS: usize = 400;
 /// final point, a strict bound whatever the path: module doc).
 const MU_REDUCTION: f64 = 0.4;
 
+/// Share of the predicted decrease a Newton step must achieve before the line search takes
+/// it (Armijo's condition; Nocedal & Wright 2006, *Numerical Optimization*, §3.1). Measured on
+/// the sample cases: 0.3 takes 12 % fewer Newton steps in all than the customary 1e-4, and
+/// 3–11 % less time per estimate (an observation, not a derivation), 0.2–0.4 about the same;
+/// the bounds move by at most 4e-4 K either way.
+const ARMIJO: f64 = 0.3;
+
 /// The smoothing stops when `μ` times the total weight of the smoothed terms is below this,
 /// kelvin: the smooth optimum is then within it of the exact one.
 const SMOOTHING_TOLERANCE_K: f64 = 1e-5;
@@ -335,7 +342,7 @@ impl<'a> Problem<'a> {
                         *t = p0 + alpha * d;
                     }
                     let f1 = self.value(&trial, &p_trial, Some(mu));
-                    if f1.is_finite() && f1 <= f0 - 1e-4 * alpha * decrement.max(0.0) {
+                    if f1.is_finite() && f1 <= f0 - ARMIJO * alpha * decrement.max(0.0) {
                         accepted = true;
                         break;
                     }
