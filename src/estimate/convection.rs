@@ -100,7 +100,8 @@ fn criterion(
     let model = super::case_model(&trial)?;
     let mut total = 0.0;
     for set in readings {
-        let problem = super::problem::Problem::with_model(&trial, set, options, model.clone())?;
+        let problem =
+            super::problem::Problem::without_edge_maps(&trial, set, options, model.clone())?;
         if !problem.stated {
             return Err(Error::invalid_at(
                 &case.files.plate,

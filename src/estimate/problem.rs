@@ -64,6 +64,26 @@ impl<'a> Problem<'a> {
         options: &EstimateOptions,
         model: ForwardModel,
     ) -> Result<Self> {
+        let mut problem = Problem::without_edge_maps(case, readings, options, model)?;
+        problem.edge_positions = profile_positions(case);
+        problem.edge_maps = problem
+            .edge_positions
+            .iter()
+            .map(|(e, pos)| problem.model.edge_profile_map(*e, pos))
+            .collect();
+        Ok(problem)
+    }
+
+    /// [`Problem::with_model`] without the edge profiles' maps (`edge_positions` and
+    /// `edge_maps` left empty), for callers that only fit the readings ([`Problem::input`]):
+    /// the profile over an unknown `h` builds a problem for every `h` it tries, and the maps
+    /// (hundreds of points per edge) were a fifth of its time.
+    pub fn without_edge_maps(
+        case: &'a Case,
+        readings: &'a [Option<f64>],
+        options: &EstimateOptions,
+        model: ForwardModel,
+    ) -> Result<Self> {
         let with_reading: Vec<usize> = (0..case.sensors.len())
             .filter(|&i| readings.get(i).copied().flatten().is_some())
             .collect();
@@ -92,11 +112,6 @@ impl<'a> Problem<'a> {
                  tolerance class or a sigma column in sensors.csv, or choose another rule",
             ));
         }
-        let edge_positions = profile_positions(case);
-        let edge_maps: Vec<LinearMap> = edge_positions
-            .iter()
-            .map(|(e, pos)| model.edge_profile_map(*e, pos))
-            .collect();
         let mut problem = Problem {
             case,
             readings,
@@ -111,8 +126,8 @@ impl<'a> Problem<'a> {
             strength,
             order,
             penalty,
-            edge_positions,
-            edge_maps,
+            edge_positions: Vec::new(),
+            edge_maps: Vec::new(),
         };
         if case.fit.smoothing == Smoothing::Auto {
             problem.order = choose_order(&problem.input(&problem.with_reading), &problem.model)?;
