@@ -364,13 +364,57 @@ impl TailQuantiles {
     /// whole sample's; when a side gathered too few (skewed or non-finite values), or the
     /// quantiles are central, the full selection runs instead. `values` may be reordered.
     pub fn pair(&mut self, values: &mut [f64], q_lo: f64, q_hi: f64) -> (f64, f64) {
-        self.gathered(values, q_lo, q_hi)
+        self.gathered(values, None, q_lo, q_hi)
+            .unwrap_or_else(|| quantile_pair(values, q_lo, q_hi))
+    }
+
+    /// [`TailQuantiles::pair`] of the values `estimate − errors[k]`, written into `values`
+    /// (the same numbers as filling `values` and calling [`TailQuantiles::pair`]): the mean
+    /// and spread that place the cuts are summed while the values are written, which saves
+    /// a pass over them.
+    pub fn pair_of_differences(
+        &mut self,
+        estimate: f64,
+        errors: &[f64],
+        values: &mut Vec<f64>,
+        q_lo: f64,
+        q_hi: f64,
+    ) -> (f64, f64) {
+        values.clear();
+        values.reserve(errors.len());
+        // lane_moments' sums, formed as the values are written
+        let (mut sum, mut sum_sq) = ([0.0_f64; 8], [0.0_f64; 8]);
+        let chunks = errors.chunks_exact(8);
+        let rest = chunks.remainder();
+        for chunk in chunks {
+            let v: [f64; 8] = std::array::from_fn(|l| estimate - chunk[l]);
+            for ((s, q), &x) in sum.iter_mut().zip(sum_sq.iter_mut()).zip(&v) {
+                *s += x;
+                *q += x * x;
+            }
+            values.extend_from_slice(&v);
+        }
+        let whole = values.len();
+        values.extend(rest.iter().map(|err| estimate - err));
+        let n = values.len() as f64;
+        let tail = &values[whole..];
+        let moments = (
+            (sum.iter().sum::<f64>() + tail.iter().sum::<f64>()) / n,
+            (sum_sq.iter().sum::<f64>() + tail.iter().map(|v| v * v).sum::<f64>()) / n,
+        );
+        self.gathered(values, Some(moments), q_lo, q_hi)
             .unwrap_or_else(|| quantile_pair(values, q_lo, q_hi))
     }
 
     /// [`TailQuantiles::pair`] from the gathered tails; `None` (and `values` untouched) when
-    /// the full selection is needed.
-    fn gathered(&mut self, values: &[f64], q_lo: f64, q_hi: f64) -> Option<(f64, f64)> {
+    /// the full selection is needed. `moments` are [`lane_moments`] of `values` when known.
+    fn gathered(
+        &mut self,
+        values: &[f64],
+        moments: Option<(f64, f64)>,
+        q_lo: f64,
+        q_hi: f64,
+    ) -> Option<(f64, f64)> {
         let n = values.len();
         if n < 64 {
             return None;
@@ -381,20 +425,7 @@ impl TailQuantiles {
         if hi1 + 1 > n / 8 || n - lo2 > n / 8 || q_lo > q_hi {
             return None;
         }
-        // the cuts need not be exact, only cheap: sums in eight independent lanes (which
-        // the compiler vectorises), the variance as E[x²] − mean²
-        let (mut sum, mut sum_sq) = ([0.0_f64; 8], [0.0_f64; 8]);
-        let chunks = values.chunks_exact(8);
-        let rest = chunks.remainder();
-        for chunk in chunks {
-            for ((s, q), &v) in sum.iter_mut().zip(sum_sq.iter_mut()).zip(chunk) {
-                *s += v;
-                *q += v * v;
-            }
-        }
-        let mean = (sum.iter().sum::<f64>() + rest.iter().sum::<f64>()) / n as f64;
-        let mean_sq =
-            (sum_sq.iter().sum::<f64>() + rest.iter().map(|v| v * v).sum::<f64>()) / n as f64;
+        let (mean, mean_sq) = moments.unwrap_or_else(|| lane_moments(values));
         let cut = TAIL_CUT_SD * (mean_sq - mean * mean).max(0.0).sqrt();
         let (below, above) = (mean - cut, mean + cut);
         self.low.resize(n, 0.0);
@@ -420,6 +451,25 @@ impl TailQuantiles {
     }
 }
 
+/// The mean and the mean square of `values` (at least one), for [`TailQuantiles`]' cuts,
+/// which need not be exact, only cheap: sums in eight independent lanes (which the compiler
+/// vectorises).
+fn lane_moments(values: &[f64]) -> (f64, f64) {
+    let n = values.len() as f64;
+    let (mut sum, mut sum_sq) = ([0.0_f64; 8], [0.0_f64; 8]);
+    let chunks = values.chunks_exact(8);
+    let rest = chunks.remainder();
+    for chunk in chunks {
+        for ((s, q), &v) in sum.iter_mut().zip(sum_sq.iter_mut()).zip(chunk) {
+            *s += v;
+            *q += v * v;
+        }
+    }
+    let mean = (sum.iter().sum::<f64>() + rest.iter().sum::<f64>()) / n;
+    let mean_sq = (sum_sq.iter().sum::<f64>() + rest.iter().map(|v| v * v).sum::<f64>()) / n;
+    (mean, mean_sq)
+}
+
 /// The type-7 interpolation between the order statistics `lo` and `hi` (`hi` is `lo` or
 /// `lo + 1`) of `values` with weight `frac` on the upper one, as [`quantile`] computes it.
 /// `values` is reordered.
@@ -439,15 +489,18 @@ pub fn pointwise_band(
     confidence: f64,
 ) -> (Vec<f64>, Vec<f64>) {
     let alpha = 1.0 - confidence;
-    let mut col = vec![0.0; errors.nrows()];
+    let mut col = Vec::with_capacity(errors.nrows());
     let mut tails = TailQuantiles::default();
     let mut lower = Vec::with_capacity(estimate.len());
     let mut upper = Vec::with_capacity(estimate.len());
     for (j, &e) in estimate.iter().enumerate() {
-        for (v, err) in col.iter_mut().zip(errors.column(j).iter()) {
-            *v = e - err;
-        }
-        let (lo, hi) = tails.pair(&mut col, alpha / 2.0, 1.0 - alpha / 2.0);
+        let (lo, hi) = tails.pair_of_differences(
+            e,
+            errors.column(j).as_slice(),
+            &mut col,
+            alpha / 2.0,
+            1.0 - alpha / 2.0,
+        );
         lower.push(lo);
         upper.push(hi);
     }
@@ -562,8 +615,17 @@ mod tests {
                     let mut x = v.clone();
                     let mut y = v.clone();
                     let want = quantile_pair(&mut x, a, b);
-                    fast_used += usize::from(tails.gathered(&y, a, b).is_some());
+                    fast_used += usize::from(tails.gathered(&y, None, a, b).is_some());
                     let got = tails.pair(&mut y, a, b);
+                    assert_eq!(want.0.to_bits(), got.0.to_bits(), "n {n} kind {kind} {a}");
+                    assert_eq!(want.1.to_bits(), got.1.to_bits(), "n {n} kind {kind} {b}");
+                    // the same values as an estimate minus errors, written by the pair
+                    let e = 1.5;
+                    let errors: Vec<f64> = v.iter().map(|x| e - x).collect();
+                    let mut want = errors.iter().map(|err| e - err).collect::<Vec<f64>>();
+                    let want = quantile_pair(&mut want, a, b);
+                    let mut buf = Vec::new();
+                    let got = tails.pair_of_differences(e, &errors, &mut buf, a, b);
                     assert_eq!(want.0.to_bits(), got.0.to_bits(), "n {n} kind {kind} {a}");
                     assert_eq!(want.1.to_bits(), got.1.to_bits(), "n {n} kind {kind} {b}");
                 }
@@ -572,7 +634,7 @@ mod tests {
         // the gathered tails served most of the cases (normal draws always)
         assert!(fast_used >= 20, "{fast_used}");
         let normal: Vec<f64> = (0..2000).map(|_| rng.sample(StandardNormal)).collect();
-        assert!(tails.gathered(&normal, 0.025, 0.975).is_some());
+        assert!(tails.gathered(&normal, None, 0.025, 0.975).is_some());
     }
 
     #[test]
