@@ -20,7 +20,7 @@
 //! Vandenberghe 2004, *Convex Optimization*, §5.2.3 and §5.9). The search for a good `y` is a
 //! smooth problem in `m` unknowns: each `|x|` is replaced by `√(x² + μ²)`, which overestimates
 //! it by at most `μ`, and Newton's method with the edge sums as equality constraints is run
-//! for `μ` falling by [`MU_REDUCTION`] per stage (a homotopy). The bound returned is the exact,
+//! for `μ` falling by a factor 0.4 per stage (a homotopy). The bound returned is the exact,
 //! non-smooth `F` at the final `y`, so a search that stops early gives a wider bound, never a
 //! false one. Rounding in the edge sums is covered by adding `|Σ g| T_span` per edge
 //! ([`super::set::TEMPERATURE_SPAN_K`]).
