@@ -14,6 +14,8 @@ use edgetherm::geometry::Point;
 use edgetherm::io::case::load_design_case;
 use std::time::Instant;
 
+mod common;
+
 fn main() {
     let dir =
         std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-measurements/cold-plate");
@@ -73,12 +75,5 @@ fn main() {
             times[2] / bar
         );
     }
-    if let Ok(status) = std::fs::read_to_string("/proc/self/status") {
-        if let Some(line) = status.lines().find(|l| l.starts_with("VmHWM")) {
-            println!(
-                "peak resident memory: {}",
-                line.trim_start_matches("VmHWM:").trim()
-            );
-        }
-    }
+    common::print_own_peak_memory();
 }

@@ -41,21 +41,10 @@ fn main() {
             line: i + 2,
         })
         .collect();
-    let w = 0.18;
-    let s: Vec<f64> = (0..181).map(|i| w * i as f64 / 180.0).collect();
-    let t = s
-        .iter()
-        .map(|&x| 273.15 + 34.0 + 9.0 * (-((x - 0.097) / 0.015f64).powi(2)).exp())
+    let readings: Vec<Option<f64>> = hot_spot_readings(&case, (34.0, 9.0, 0.097, 0.015), 3)
+        .into_iter()
+        .map(Some)
         .collect();
-    let truth = EdgeProfile::piecewise_linear(s, t).expect("truth");
-    let model = truth_model(&case.plate, &[(Edge::Bottom, truth)]).expect("model");
-    let points: Vec<Point> = case.sensors.iter().map(|s| s.position).collect();
-    let readings: Vec<Option<f64>> =
-        add_noise(&exact_readings(&model, &points).expect("exact"), 0.15, 3)
-            .expect("noise")
-            .into_iter()
-            .map(Some)
-            .collect();
     for (label, keep_all) in [("full estimate", false), ("without the fault search", true)] {
         let opts = EstimateOptions {
             replicates: Some(2000),
@@ -83,15 +72,28 @@ fn main() {
             rayon::current_num_threads()
         );
     }
-    if let Ok(status) = std::fs::read_to_string("/proc/self/status") {
-        if let Some(line) = status.lines().find(|l| l.starts_with("VmHWM")) {
-            println!(
-                "peak resident memory: {}",
-                line.trim_start_matches("VmHWM:").trim()
-            );
-        }
-    }
+    common::print_own_peak_memory();
     whole_process();
+}
+
+/// Noisy readings (kelvin, σ 0.15 K, `seed`) of `case`'s sensors under an invented hidden
+/// bottom edge of the 180 mm cold-plate geometry: `base` °C plus a Gaussian hot spot of
+/// `rise` K at `centre` metres, `width` metres wide.
+fn hot_spot_readings(
+    case: &edgetherm::case::Case,
+    (base, rise, centre, width): (f64, f64, f64, f64),
+    seed: u64,
+) -> Vec<f64> {
+    let w = 0.18;
+    let s: Vec<f64> = (0..181).map(|i| w * i as f64 / 180.0).collect();
+    let t = s
+        .iter()
+        .map(|&x| 273.15 + base + rise * (-((x - centre) / width).powi(2)).exp())
+        .collect();
+    let truth = EdgeProfile::piecewise_linear(s, t).expect("truth");
+    let model = truth_model(&case.plate, &[(Edge::Bottom, truth)]).expect("model");
+    let points: Vec<Point> = case.sensors.iter().map(|s| s.position).collect();
+    add_noise(&exact_readings(&model, &points).expect("exact"), 0.15, seed).expect("noise")
 }
 
 /// Issue 9's row: the release binary on an invented 14-sensor case, end to end.
@@ -107,17 +109,7 @@ fn whole_process() {
     let case_dir = common::staggered_case(root, tmp.path(), 14, (5.0, 9.0));
     let case = load_case(&CaseFiles::in_dir(&case_dir)).expect("case");
     assert_eq!(case.fit.terms, 64, "the sample plate's terms");
-    let w = 0.18;
-    let s: Vec<f64> = (0..181).map(|i| w * i as f64 / 180.0).collect();
-    let t = s
-        .iter()
-        .map(|&x| 273.15 + 33.0 + 7.0 * (-((x - 0.121) / 0.018f64).powi(2)).exp())
-        .collect();
-    let truth = EdgeProfile::piecewise_linear(s, t).expect("truth");
-    let model = truth_model(&case.plate, &[(Edge::Bottom, truth)]).expect("model");
-    let points: Vec<Point> = case.sensors.iter().map(|s| s.position).collect();
-    let exact = exact_readings(&model, &points).expect("exact");
-    let noisy = add_noise(&exact, 0.15, 5).expect("noise");
+    let noisy = hot_spot_readings(&case, (33.0, 7.0, 0.121, 0.018), 5);
     let mut readings = String::from("sensor,temperature\n");
     for (i, v) in noisy.iter().enumerate() {
         readings.push_str(&format!("S{i:02},{:.4}\n", v - 273.15));

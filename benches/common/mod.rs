@@ -1,4 +1,6 @@
-//! Shared by the benchmarks that run the release binary on an invented case.
+//! Shared by the benchmarks: an invented case for those that run the release binary, and
+//! the benchmark process's own peak memory. Each benchmark uses some of these.
+#![allow(dead_code)]
 
 use std::path::{Path, PathBuf};
 
@@ -22,4 +24,17 @@ pub fn staggered_case(root: &Path, dir: &Path, count: usize, depths_mm: (f64, f6
     }
     std::fs::write(case_dir.join("sensors.csv"), sensors).expect("sensors.csv");
     case_dir
+}
+
+/// Print the peak resident memory of this process so far (`VmHWM` of `/proc/self/status`;
+/// nothing where there is no such file).
+pub fn print_own_peak_memory() {
+    if let Ok(status) = std::fs::read_to_string("/proc/self/status") {
+        if let Some(line) = status.lines().find(|l| l.starts_with("VmHWM")) {
+            println!(
+                "peak resident memory: {}",
+                line.trim_start_matches("VmHWM:").trim()
+            );
+        }
+    }
 }

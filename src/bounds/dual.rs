@@ -560,11 +560,6 @@ const ROW_GROUP: usize = 8;
 /// order from −0.0 as `Iterator::sum` adds them; [`ROW_GROUP`] rows side by side, so that
 /// their sums overlap instead of waiting on one another.
 pub(super) fn row_dots(rows: &[f64], m: usize, y: &[f64], out: &mut [f64]) {
-    row_dots_strided(rows, m, m, y, out);
-}
-
-/// [`row_dots`] over the first `m` entries of rows `stride` entries apart (`m ≤ stride`).
-pub(super) fn row_dots_strided(rows: &[f64], stride: usize, m: usize, y: &[f64], out: &mut [f64]) {
     if m == 0 {
         out.fill(-0.0); // an empty sum
         return;
@@ -573,8 +568,7 @@ pub(super) fn row_dots_strided(rows: &[f64], stride: usize, m: usize, y: &[f64],
     let whole = out.len() / ROW_GROUP * ROW_GROUP;
     for (g, o) in out[..whole].chunks_exact_mut(ROW_GROUP).enumerate() {
         let first = g * ROW_GROUP;
-        let group: [&[f64]; ROW_GROUP] =
-            std::array::from_fn(|r| &rows[(first + r) * stride..][..m]);
+        let group: [&[f64]; ROW_GROUP] = std::array::from_fn(|r| &rows[(first + r) * m..][..m]);
         let mut acc = [-0.0_f64; ROW_GROUP];
         for (i, &yi) in y.iter().enumerate() {
             for (a, row) in acc.iter_mut().zip(&group) {
@@ -584,7 +578,7 @@ pub(super) fn row_dots_strided(rows: &[f64], stride: usize, m: usize, y: &[f64],
         o.copy_from_slice(&acc);
     }
     for (k, o) in out.iter_mut().enumerate().skip(whole) {
-        *o = rows[k * stride..k * stride + m]
+        *o = rows[k * m..(k + 1) * m]
             .iter()
             .zip(y)
             .map(|(a, b)| a * b)
@@ -624,18 +618,6 @@ mod tests {
                 }
                 let mut out = vec![f64::NAN; n];
                 row_dots(&rows, m, &y, &mut out);
-                // the first m - 1 entries of the same rows (stride m)
-                let short = m - 1;
-                let mut part = vec![f64::NAN; n];
-                row_dots_strided(&rows, m, short, &y, &mut part);
-                for k in 0..n {
-                    let want: f64 = rows[k * m..k * m + short]
-                        .iter()
-                        .zip(&y)
-                        .map(|(a, b)| a * b)
-                        .sum();
-                    assert_eq!(part[k].to_bits(), want.to_bits(), "n {n} m {short} row {k}");
-                }
                 for k in 0..n {
                     let want: f64 = rows[k * m..(k + 1) * m]
                         .iter()

@@ -40,7 +40,8 @@ pub(super) struct Problem<'a> {
     /// The smoothing order used (chosen when the case says `auto`).
     pub order: usize,
     pub penalty: DVector<f64>,
-    /// Profile positions along every unknown edge ([`profile_positions`]) and their maps.
+    /// Profile positions along every unknown edge ([`profile_positions`]) and their maps
+    /// (both empty in a problem built by [`Problem::without_edge_maps`]).
     pub edge_positions: Vec<(Edge, Vec<f64>)>,
     pub edge_maps: Vec<LinearMap>,
 }

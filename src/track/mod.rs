@@ -336,9 +336,9 @@ impl Tracker {
 
     /// Feed a batch of rows: the same records, in the same order, as [`Self::push`] on each,
     /// but once the strength is chosen on every row or calibrated, with more than one thread
-    /// allowed (`rayon::current_num_threads`), the batch is fitted ahead on a helper thread while the
-    /// previous batch is finished here, and this thread then helps fit the rest (module
-    /// doc). The last batch's records come with the next call, [`Self::push`] or
+    /// allowed (`rayon::current_num_threads`), the batch is fitted ahead on a helper thread
+    /// while the previous batch is finished here, and this thread then helps fit the rest
+    /// (module doc). The last batch's records come with the next call, [`Self::push`] or
     /// [`Self::finish`].
     ///
     /// # Errors
@@ -381,7 +381,7 @@ impl Tracker {
             .map(|_| Mutex::new(self.spare.pop().unwrap_or_default()))
             .collect();
         let next = AtomicUsize::new(0);
-        // fit the rows not yet claimed by either thread, each with its guessed sensors
+        // fit the rows not yet claimed by either thread, each with its guessed sensors;
         // rows are claimed a few at a time: fewer trips of the counter's and the slots'
         // cache lines between the cores
         let fit_rest = |est: &mut RowEstimator| {

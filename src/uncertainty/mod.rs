@@ -382,25 +382,12 @@ impl TailQuantiles {
     ) -> (f64, f64) {
         values.clear();
         values.reserve(errors.len());
-        // lane_moments' sums, formed as the values are written
-        let (mut sum, mut sum_sq) = ([0.0_f64; 8], [0.0_f64; 8]);
-        let chunks = errors.chunks_exact(8);
-        let rest = chunks.remainder();
-        for chunk in chunks {
-            let v: [f64; 8] = std::array::from_fn(|l| estimate - chunk[l]);
-            for ((s, q), &x) in sum.iter_mut().zip(sum_sq.iter_mut()).zip(&v) {
-                *s += x;
-                *q += x * x;
-            }
-            values.extend_from_slice(&v);
-        }
-        let whole = values.len();
-        values.extend(rest.iter().map(|err| estimate - err));
-        let n = values.len() as f64;
-        let tail = &values[whole..];
-        let moments = (
-            (sum.iter().sum::<f64>() + tail.iter().sum::<f64>()) / n,
-            (sum_sq.iter().sum::<f64>() + tail.iter().map(|v| v * v).sum::<f64>()) / n,
+        let moments = lane_moments_of(
+            errors,
+            |err| estimate - err,
+            |v| {
+                values.extend_from_slice(v);
+            },
         );
         self.gathered(values, Some(moments), q_lo, q_hi)
             .unwrap_or_else(|| quantile_pair(values, q_lo, q_hi))
@@ -455,18 +442,37 @@ impl TailQuantiles {
 /// which need not be exact, only cheap: sums in eight independent lanes (which the compiler
 /// vectorises).
 fn lane_moments(values: &[f64]) -> (f64, f64) {
-    let n = values.len() as f64;
+    lane_moments_of(values, |v| v, |_| {})
+}
+
+/// [`lane_moments`] of the values `f(x)` for `x` in `source`, each run of them handed to
+/// `sink` as it is formed (in order), so that a caller can keep them without a second pass.
+#[inline(always)]
+fn lane_moments_of(
+    source: &[f64],
+    f: impl Fn(f64) -> f64,
+    mut sink: impl FnMut(&[f64]),
+) -> (f64, f64) {
+    let n = source.len() as f64;
     let (mut sum, mut sum_sq) = ([0.0_f64; 8], [0.0_f64; 8]);
-    let chunks = values.chunks_exact(8);
+    let chunks = source.chunks_exact(8);
     let rest = chunks.remainder();
     for chunk in chunks {
-        for ((s, q), &v) in sum.iter_mut().zip(sum_sq.iter_mut()).zip(chunk) {
-            *s += v;
-            *q += v * v;
+        let v: [f64; 8] = std::array::from_fn(|l| f(chunk[l]));
+        for ((s, q), &x) in sum.iter_mut().zip(sum_sq.iter_mut()).zip(&v) {
+            *s += x;
+            *q += x * x;
         }
+        sink(&v);
     }
-    let mean = (sum.iter().sum::<f64>() + rest.iter().sum::<f64>()) / n;
-    let mean_sq = (sum_sq.iter().sum::<f64>() + rest.iter().map(|v| v * v).sum::<f64>()) / n;
+    let mut last = [0.0_f64; 8];
+    for (t, &x) in last.iter_mut().zip(rest) {
+        *t = f(x);
+    }
+    let tail = &last[..rest.len()];
+    sink(tail);
+    let mean = (sum.iter().sum::<f64>() + tail.iter().sum::<f64>()) / n;
+    let mean_sq = (sum_sq.iter().sum::<f64>() + tail.iter().map(|v| v * v).sum::<f64>()) / n;
     (mean, mean_sq)
 }
 

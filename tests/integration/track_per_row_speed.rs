@@ -429,11 +429,10 @@ fn rows_fitted_ahead_give_the_sequential_records_bit_for_bit() {
                     "summary, round {round}, batch {batch}"
                 );
                 // most rows' fits were made ahead, not all in order (a single batch of 512
-                // guesses every row's sensors from the state before the log: the fewest);
-                // with refits, the few rows left may all fall in the batch where the
-                // calibration ends, which is fed in order
-                // rows that can be fitted ahead: not those of the batches the calibration
-                // ends in or before (fed in order), nor those refitted
+                // guesses every row's sensors from the state before the log: the fewest).
+                // Rows that can be fitted ahead: not those of the batches the calibration
+                // ends in or before (fed in order), nor those refitted; with refits, the few
+                // rows left may all fall in the batch where the calibration ends
                 let calibrating = calibrate.map_or(0, |c| c.next_multiple_of(batch));
                 let eligible = rows.len().saturating_sub(calibrating + refit_here);
                 if calibrate.is_some() && batch >= rows.len() {

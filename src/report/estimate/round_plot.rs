@@ -99,7 +99,6 @@ pub(crate) fn field_svg(r: &EstimateResult) -> Result<String> {
     Ok(buf)
 }
 
-#[allow(clippy::too_many_arguments)]
 /// `cells + 1` evenly spaced display positions from the first to the last of `grid` (at
 /// least two points, increasing), each with the grid cell it falls in and its fraction of the
 /// way across it: `(position, cell, fraction)`.
@@ -123,6 +122,7 @@ fn display_axis(grid: &[f64], cells: usize) -> Vec<(f64, usize, f64)> {
         .collect()
 }
 
+#[allow(clippy::too_many_arguments)]
 fn draw(
     root: &Area<'_>,
     r: &EstimateResult,
