@@ -121,6 +121,86 @@ fn gemv_block<const B: usize>(
     y.copy_from_slice(&acc);
 }
 
+/// For four rows `a[g]` of equal length `r` and a vector `v` (at least `r` long): per row, the
+/// four lane sums of `a[g][i] · v[i]` (lane `l` adds the terms `i ≡ l mod 4` of the whole
+/// chunks of four, in order; the `r mod 4` terms left add on lane 0, in order). The same
+/// numbers as the plain loop ([`lane_sums4_body`]) in either build: with AVX2 the four rows'
+/// chunks go through four-lane multiplications and additions written out, which the compiler
+/// did not find on its own for this loop (it mixed the rows in shuffles).
+pub fn lane_sums4(a: [&[f64]; 4], v: &[f64]) -> [[f64; 4]; 4] {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the processor has AVX2, the only feature the function is built for.
+            return unsafe { lane_sums4_avx2(a, v) };
+        }
+    }
+    lane_sums4_body(a, v)
+}
+
+/// The plain loop of [`lane_sums4`].
+#[inline(always)]
+fn lane_sums4_body(a: [&[f64]; 4], v: &[f64]) -> [[f64; 4]; 4] {
+    let r = a[0].len();
+    let whole = r - r % 4;
+    let mut acc = [[0.0f64; 4]; 4];
+    for (acc_g, a_g) in acc.iter_mut().zip(a) {
+        for c in (0..whole).step_by(4) {
+            for l in 0..4 {
+                acc_g[l] += a_g[c + l] * v[c + l];
+            }
+        }
+        for c in whole..r {
+            acc_g[0] += a_g[c] * v[c];
+        }
+    }
+    acc
+}
+
+/// [`lane_sums4`] with AVX2: lane `l` of register `g` is `acc[g][l]`, and each step is one
+/// multiplication and one addition per lane, as in the plain loop.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn lane_sums4_avx2(a: [&[f64]; 4], v: &[f64]) -> [[f64; 4]; 4] {
+    use std::arch::x86_64::{
+        _mm256_add_pd, _mm256_loadu_pd, _mm256_mul_pd, _mm256_setzero_pd, _mm256_storeu_pd,
+    };
+    let r = a[0].len();
+    assert!(
+        a.iter().all(|x| x.len() == r) && v.len() >= r,
+        "lane_sums4: lengths"
+    );
+    let whole = r - r % 4;
+    let mut acc = [[0.0f64; 4]; 4];
+    // SAFETY: every load reads four values at `c < whole ≤ r`, inside each row and `v`
+    // (lengths checked above); the stores write four values into each `acc[g]`.
+    unsafe {
+        let (mut s0, mut s1, mut s2, mut s3) = (
+            _mm256_setzero_pd(),
+            _mm256_setzero_pd(),
+            _mm256_setzero_pd(),
+            _mm256_setzero_pd(),
+        );
+        for c in (0..whole).step_by(4) {
+            let x = _mm256_loadu_pd(v.as_ptr().add(c));
+            s0 = _mm256_add_pd(s0, _mm256_mul_pd(_mm256_loadu_pd(a[0].as_ptr().add(c)), x));
+            s1 = _mm256_add_pd(s1, _mm256_mul_pd(_mm256_loadu_pd(a[1].as_ptr().add(c)), x));
+            s2 = _mm256_add_pd(s2, _mm256_mul_pd(_mm256_loadu_pd(a[2].as_ptr().add(c)), x));
+            s3 = _mm256_add_pd(s3, _mm256_mul_pd(_mm256_loadu_pd(a[3].as_ptr().add(c)), x));
+        }
+        _mm256_storeu_pd(acc[0].as_mut_ptr(), s0);
+        _mm256_storeu_pd(acc[1].as_mut_ptr(), s1);
+        _mm256_storeu_pd(acc[2].as_mut_ptr(), s2);
+        _mm256_storeu_pd(acc[3].as_mut_ptr(), s3);
+    }
+    for (acc_g, a_g) in acc.iter_mut().zip(a) {
+        for c in whole..r {
+            acc_g[0] += a_g[c] * v[c];
+        }
+    }
+    acc
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -161,6 +241,35 @@ mod tests {
                 let bits = |v: &DVector<f64>| v.iter().map(|t| t.to_bits()).collect::<Vec<_>>();
                 assert_eq!(bits(&got), bits(&expected), "{rows} x {cols}, {subtract}");
             }
+        }
+    }
+
+    #[test]
+    fn lane_sums4_is_the_plain_loop_bit_for_bit() {
+        let mut rng = ChaCha8Rng::seed_from_u64(12);
+        for r in [0, 1, 3, 4, 5, 8, 31, 33, 64] {
+            let rows: Vec<Vec<f64>> = (0..4)
+                .map(|_| {
+                    (0..r)
+                        .map(|_| rng.random_range(-1.0..1.0) * 10f64.powi(rng.random_range(-8..8)))
+                        .collect()
+                })
+                .collect();
+            let v: Vec<f64> = (0..r + 2)
+                .map(|_| rng.random_range(-1.0..1.0) * 10f64.powi(rng.random_range(-8..8)))
+                .collect();
+            let a = [&rows[0][..], &rows[1][..], &rows[2][..], &rows[3][..]];
+            // the loop written out once more, one term at a time
+            let mut expected = [[0.0f64; 4]; 4];
+            for g in 0..4 {
+                for i in 0..r {
+                    let lane = if i < r - r % 4 { i % 4 } else { 0 };
+                    expected[g][lane] += a[g][i] * v[i];
+                }
+            }
+            let bits = |x: [[f64; 4]; 4]| x.map(|row| row.map(f64::to_bits));
+            assert_eq!(bits(lane_sums4(a, &v)), bits(expected), "r = {r}");
+            assert_eq!(bits(lane_sums4_body(a, &v)), bits(expected), "r = {r}");
         }
     }
 }

@@ -77,7 +77,7 @@ use crate::inverse::{
     Decomposition, EvidenceSearch, Problem, Projection, Selection, Strength, StrengthMethod,
 };
 use crate::noise::{NoiseSpec, SigmaSource};
-use crate::simd::gemv;
+use crate::simd::{gemv, lane_sums4};
 use nalgebra::{DMatrix, DVector};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
@@ -288,22 +288,9 @@ impl VarianceParts {
     }
 
     /// [`Self::sd_with`] of the fine points `points`, times `scale`, into `out`: the same
-    /// numbers, four points at a time so that their sums overlap, in either build
-    /// ([`crate::simd`]).
+    /// numbers, four points at a time so that their sums overlap ([`lane_sums4`], four-lane
+    /// arithmetic when the processor has AVX2).
     fn sds_into(
-        &self,
-        points: &[usize],
-        inv: &[f64],
-        inv_lambda: f64,
-        scale: f64,
-        out: &mut [f64],
-    ) {
-        sds(self, points, inv, inv_lambda, scale, out);
-    }
-
-    /// The sums of [`Self::sds_into`].
-    #[inline(always)]
-    fn sds_body(
         &self,
         points: &[usize],
         inv: &[f64],
@@ -318,20 +305,7 @@ impl VarianceParts {
         let (out4, out_rest) = out.split_at_mut(points.len() - rest.len());
         for (group, o) in groups.zip(out4.chunks_exact_mut(4)) {
             let sq: [&[f64]; 4] = std::array::from_fn(|g| &all[group[g] * r..(group[g] + 1) * r]);
-            let mut acc = [[0.0f64; 4]; 4];
-            let whole = r - r % 4;
-            for c in (0..whole).step_by(4) {
-                for (acc_g, sq_g) in acc.iter_mut().zip(&sq) {
-                    for l in 0..4 {
-                        acc_g[l] += sq_g[c + l] * inv[c + l];
-                    }
-                }
-            }
-            for (acc_g, sq_g) in acc.iter_mut().zip(&sq) {
-                for c in whole..r {
-                    acc_g[0] += sq_g[c] * inv[c];
-                }
-            }
+            let acc = lane_sums4(sq, inv);
             for g in 0..4 {
                 let a = &acc[g];
                 let seen = (a[0] + a[1]) + (a[2] + a[3]);
@@ -346,18 +320,6 @@ impl VarianceParts {
             *o = self.sd_with(j, inv, inv_lambda) * scale;
         }
     }
-}
-
-crate::simd::avx2_dispatch! {
-    /// [`VarianceParts::sds_into`]'s sums ([`VarianceParts::sds_body`]) in either build.
-    fn sds(
-        parts: &VarianceParts,
-        points: &[usize],
-        inv: &[f64],
-        inv_lambda: f64,
-        scale: f64,
-        out: &mut [f64],
-    ) = VarianceParts::sds_body;
 }
 
 struct Pattern {
@@ -1509,12 +1471,14 @@ impl RowEstimator {
             )?);
         }
         let dr = pat.draws.as_ref().ok_or_else(internal)?;
-        for j in 0..n_scan {
-            self.ratio[j] = if dr.sd[j] > 0.0 {
-                self.scan_sd[j] / dr.sd[j]
-            } else {
-                s
-            };
+        // over slices, without a branch: the divisions go four to a vector instruction
+        for ((o, &v), &v0) in self.ratio[..n_scan]
+            .iter_mut()
+            .zip(&self.scan_sd[..n_scan])
+            .zip(&dr.sd[..n_scan])
+        {
+            let q = v / v0;
+            *o = if v0 > 0.0 { q } else { s };
         }
         Ok(exceed(&self.scan_est, &self.ratio, dr, t, &mut self.bits))
     }
@@ -1941,12 +1905,35 @@ impl Draws {
     }
 }
 
+/// `top · r ≤ d` for certain, whatever the rounding of the product (at most 2⁻⁵² of it) and
+/// of the test itself: then `top ≤ fl(d / r)` for `r > 0` (`top` is a float and rounding is
+/// monotone), the test [`exceed`] makes, found without a division.
+fn surely_within(top: f64, r: f64, d: f64) -> bool {
+    let p = top * r;
+    p + (p.abs() + d.abs()) * 1e-15 + f64::MIN_POSITIVE <= d
+}
+
 /// Share of draws `k` with `max_j (est_j + ratio_j e_kj) > t`: the union over scan points of
 /// the draws that pass the limit there. Each point's draws are sorted, so a point contributes
 /// only the draws that pass (a prefix of its list) to a bitset, and a point none of whose
 /// draws can pass costs one comparison: O(n_scan + passing draws + n/64) per row.
 fn exceed(est: &DVector<f64>, ratio: &[f64], dr: &Draws, t: f64, bits: &mut Vec<u64>) -> f64 {
     let n = dr.n;
+    // The points where some draw may pass the limit, by the screen of the loop below
+    // (`top ≤ c` for certain): with none, no draw passes anywhere (most rows, far below
+    // the limit). The answer does not depend on the order of the points (the loop returns
+    // early only with 1, which any order finds), so one pass over all of them, in vector
+    // lanes, can decide first.
+    let near = |(e, (r, top)): (&f64, (&f64, &f64))| u32::from(!surely_within(*top, *r, t - e));
+    let m = est.len();
+    let candidates: u32 = est
+        .iter()
+        .zip(ratio[..m].iter().zip(&dr.top[..m]))
+        .map(near)
+        .sum();
+    if candidates == 0 {
+        return 0.0;
+    }
     bits.clear();
     bits.resize(n.div_ceil(64), 0);
     // the first largest (the best value kept in hand: comparing with `est[arg]` would wait
@@ -1966,7 +1953,11 @@ fn exceed(est: &DVector<f64>, ratio: &[f64], dr: &Draws, t: f64, bits: &mut Vec<
             }
             continue;
         }
-        let c = (t - est[j]) / r;
+        let d = t - est[j];
+        if surely_within(dr.top[j], r, d) {
+            continue;
+        }
+        let c = d / r;
         if dr.top[j] <= c {
             continue;
         }
