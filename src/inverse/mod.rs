@@ -61,7 +61,7 @@ pub mod search;
 pub mod strength;
 pub mod tikhonov;
 
-pub use search::EvidenceSearch;
+pub use search::{EvidenceSearch, GridPick};
 pub use strength::{
     EvidenceKind, SelectOptions, Selection, Strength, StrengthGrid, StrengthMethod,
 };

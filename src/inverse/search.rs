@@ -40,7 +40,7 @@
 
 use super::strength::{EvidenceKind, SelectOptions, Selection, Strength, StrengthMethod};
 use super::tikhonov::{Decomposition, Projection};
-use crate::error::Result;
+use crate::error::{Error, Result};
 
 /// Where the previous search on the same decomposition ended, and its scratch: reusable,
 /// no allocation after the first call.
@@ -87,6 +87,22 @@ struct GridTable {
     lambda: Vec<f64>,
 }
 
+/// The best grid point of an evidence search ([`Decomposition::evidence_grid`]), to be
+/// refined, or shown unable to win, by [`Decomposition::evidence_refine`].
+#[derive(Debug, Clone, Copy)]
+pub struct GridPick {
+    /// The criterion at the best grid point: the refined choice's is not above it (NaN when
+    /// the search is left to [`Decomposition::select_for`]).
+    pub value: f64,
+    k: usize,
+    kind: EvidenceKind,
+    /// The grid: `log₁₀ λ` from `lo` to `hi` in `n` points.
+    grid: (f64, f64, usize),
+    /// The choice is [`Decomposition::select_for`]'s (the curve is asked for, or no
+    /// singular values).
+    reference: bool,
+}
+
 /// The two sums and the criterion at one λ.
 #[derive(Debug, Clone, Copy)]
 struct Point {
@@ -110,12 +126,32 @@ impl Decomposition {
         opts: &SelectOptions,
         state: &mut EvidenceSearch,
     ) -> Result<Selection> {
-        let strength = Strength::Rule(StrengthMethod::Evidence);
+        let pick = self.evidence_grid(proj, opts, state);
+        self.evidence_refine(proj, opts, state, &pick, f64::INFINITY)?
+            .ok_or_else(|| Error::Internal("no criterion value exceeds an infinite cutoff".into()))
+    }
+
+    /// The first step of [`Self::select_evidence`]: the best grid point (module doc, step
+    /// 1). Its value is the criterion there, which the refined choice does not exceed;
+    /// [`Self::evidence_refine`] with the same `proj`, `opts` and `state` finishes the
+    /// search.
+    pub fn evidence_grid(
+        &self,
+        proj: &Projection,
+        opts: &SelectOptions,
+        state: &mut EvidenceSearch,
+    ) -> GridPick {
         let r = self.g.len();
-        if opts.keep_curve || r == 0 {
-            return self.select_for(proj, strength, opts);
-        }
         let kind = self.evidence_kind(opts);
+        if opts.keep_curve || r == 0 {
+            return GridPick {
+                value: f64::NAN,
+                k: 0,
+                kind,
+                grid: (0.0, 0.0, 0),
+                reference: true,
+            };
+        }
         let n = opts.grid_points.max(3);
         let g_max = self.g[0];
         let g_min = self.g[r - 1].max(g_max * 1e-8);
@@ -123,16 +159,21 @@ impl Decomposition {
         let hi = 2.0 * g_max.log10() + opts.margin_decades;
         // the grid of `lambda_grid`, point by point (the same expression, so the same numbers)
         let x_at = |k: usize| lo + (hi - lo) * k as f64 / (n - 1) as f64;
-        let mp = (self.m - self.q) as f64;
         let st = state;
         let key = (n, lo.to_bits(), hi.to_bits());
         let table = match st.table.take() {
             Some(tb) if tb.key == key && tb.g == self.g.as_slice() => tb,
             _ => self.grid_table(key, |k| (x_at(k) * std::f64::consts::LN_10).exp()),
         };
-        let sel = self.select_on_grid(proj, opts, st, &table, kind, (lo, hi, n, mp));
+        let (value, k) = self.best_grid_point(proj, st, &table, kind, n);
         st.table = Some(table);
-        sel
+        GridPick {
+            value,
+            k,
+            kind,
+            grid: (lo, hi, n),
+            reference: false,
+        }
     }
 
     /// The table of [`GridTable`] for grid points `λ(k)`, `k < key.0`.
@@ -165,28 +206,18 @@ impl Decomposition {
         }
     }
 
-    /// [`Self::select_evidence`] on its grid, with the grid's table.
-    fn select_on_grid(
+    /// The best grid point, `(criterion, index)` (module doc, step 1).
+    fn best_grid_point(
         &self,
         proj: &Projection,
-        opts: &SelectOptions,
         st: &mut EvidenceSearch,
         table: &GridTable,
         kind: EvidenceKind,
-        (lo, hi, n, mp): (f64, f64, usize, f64),
-    ) -> Result<Selection> {
-        let strength = Strength::Rule(StrengthMethod::Evidence);
+        n: usize,
+    ) -> (f64, usize) {
         let r = self.g.len();
-        let x_at = |k: usize| lo + (hi - lo) * k as f64 / (n - 1) as f64;
-        let eval = |lambda: f64| -> Point {
-            let (ell, quad) = self.sums(proj, lambda);
-            Point {
-                ell,
-                quad,
-                value: criterion(kind, mp, ell, quad),
-            }
-        };
-        // a grid point from the table: the same numbers as `eval` at its λ
+        let mp = (self.m - self.q) as f64;
+        // a grid point from the table: the same numbers as `sums` at its λ
         let eval_grid = |k: usize| -> Point {
             let ell = table.ell[k];
             let quad = quad_sum(&table.w[k * r..(k + 1) * r], proj);
@@ -272,12 +303,41 @@ impl Decomposition {
             .min()
             .unwrap_or(k);
         st.last_k = Some(k);
+        (fk, k)
+    }
+
+    /// The second step of [`Self::select_evidence`]: the minimum between the neighbours of
+    /// the best grid point `pick` (module doc, step 2), or `None` when it is shown to exceed
+    /// `cutoff` without being found (module doc, "A candidate that cannot win"; never with
+    /// an infinite `cutoff`). `proj`, `opts` and `state` as given to
+    /// [`Self::evidence_grid`] for `pick`.
+    ///
+    /// # Errors
+    /// As [`Self::select_for`].
+    pub fn evidence_refine(
+        &self,
+        proj: &Projection,
+        opts: &SelectOptions,
+        state: &EvidenceSearch,
+        pick: &GridPick,
+        cutoff: f64,
+    ) -> Result<Option<Selection>> {
+        let strength = Strength::Rule(StrengthMethod::Evidence);
+        let table = match (&state.table, pick.reference) {
+            (Some(t), false) => t,
+            _ => return self.select_for(proj, strength, opts).map(Some),
+        };
+        let (r, kind) = (self.g.len(), pick.kind);
+        let (lo, hi, n) = pick.grid;
+        let (fk, k) = (pick.value, pick.k);
+        let x_at = |k: usize| lo + (hi - lo) * k as f64 / (n - 1) as f64;
+        let mp = (self.m - self.q) as f64;
         let effective = |lambda: f64| {
             self.q as f64 + self.g.iter().map(|g| g * g / (g * g + lambda)).sum::<f64>()
         };
         if k == 0 || k == n - 1 {
             let lambda = 10f64.powf(x_at(k));
-            return Ok(Selection {
+            return Ok(Some(Selection {
                 strength,
                 lambda,
                 criterion: fk,
@@ -287,10 +347,17 @@ impl Decomposition {
                 at_grid_end: true,
                 target: None,
                 evidence_kind: Some(kind),
-            });
+            }));
         }
         let ln10 = std::f64::consts::LN_10;
         let (a, b) = (x_at(k - 1) * ln10, x_at(k + 1) * ln10);
+        if cutoff < f64::INFINITY
+            && self
+                .bracket_floor(proj, table, state, kind, k, (a, b), fk)
+                .is_some_and(|floor| floor > cutoff + 1e-9 * (1.0 + cutoff.abs()))
+        {
+            return Ok(None);
+        }
         // dE/dt at the bracket's ends (grid points: from the table)
         let at_grid = |k: usize| {
             let inv = &table.inv[k * r..(k + 1) * r];
@@ -298,26 +365,98 @@ impl Decomposition {
                 .0
         };
         let Some(t) = self.stationary(proj, kind, (a, at_grid(k - 1)), (b, at_grid(k + 1))) else {
-            return self.select_for(proj, strength, opts);
+            return self.select_for(proj, strength, opts).map(Some);
         };
         let lambda = t.exp();
-        let p = eval(lambda);
-        if p.value.is_nan() || p.value > fk {
+        let (ell, quad) = self.sums(proj, lambda);
+        let value = criterion(kind, mp, ell, quad);
+        if value.is_nan() || value > fk {
             // the root found is not below the grid point (a maximum beside a minimum in
             // one grid step): leave it to the reference search
-            return self.select_for(proj, strength, opts);
+            return self.select_for(proj, strength, opts).map(Some);
         }
-        Ok(Selection {
+        Ok(Some(Selection {
             strength,
             lambda,
-            criterion: p.value,
+            criterion: value,
             effective_parameters: effective(lambda),
             grid: Vec::new(),
             curve: Vec::new(),
             at_grid_end: false,
             target: None,
             evidence_kind: Some(kind),
-        })
+        }))
+    }
+
+    /// A lower bound of the criterion for every λ in the bracket `[e^a, e^b]` around grid
+    /// point `k` (criterion `fk`), or `None` when another evaluated grid value is within
+    /// rounding of `fk` (the reference search might then refine around that one).
+    ///
+    /// With `t = ln λ`, `f_i w_i` is the rate of `w_i = 1 − f_i`, which rises with `t`; on
+    /// the bracket `f_i w_i ≤ φ_i` (`1/4` where `w_i` crosses `1/2`, else the larger end
+    /// value). Known σ: `E'' = Σ f_i w_i (1 + β_i² (f_i − w_i))`, whose terms can be negative
+    /// only through `β_i² (w_i − f_i) > 1`, so `E'' ≥ −M`, `M = Σ φ_i (β_i² (2 w_i(b) − 1) − 1)⁺`.
+    /// Profiled scale: `E = m' ln Q + ℓ + const`, `E'' ≥ m' (Q''/Q − (Q'/Q)²)` (`ℓ'' ≥ 0`)
+    /// with `Q' = Σ β_i² f_i w_i ≤ B = Σ β_i² φ_i`, `Q'' ≥ −A`,
+    /// `A = Σ β_i² φ_i (2 w_i(b) − 1)⁺` and `Q ≥ Q(e^a)`, so `M = m' (A/Q(e^a) + (B/Q(e^a))²)`.
+    /// Then `E(t_k + u) ≥ E(t_k) + E'(t_k) u − M u²/2 ≥ fk − |E'(t_k)| h − M h²/2` for
+    /// `|u| ≤ h`, half the bracket. Relative margins of 1e-9 cover the rounding of these
+    /// sums.
+    #[allow(clippy::too_many_arguments)]
+    fn bracket_floor(
+        &self,
+        proj: &Projection,
+        table: &GridTable,
+        st: &EvidenceSearch,
+        kind: EvidenceKind,
+        k: usize,
+        (a, b): (f64, f64),
+        fk: f64,
+    ) -> Option<f64> {
+        let r = self.g.len();
+        let close = 1e-9 * (1.0 + fk.abs());
+        if st
+            .visited
+            .iter()
+            .any(|&j| j != k && (st.value[j] - fk).abs() <= close)
+        {
+            return None;
+        }
+        let inv = &table.inv[k * r..(k + 1) * r];
+        let (d1, _) = self.derivatives_with(proj, kind, table.lambda[k], Some(inv));
+        let (w_a, w_b) = (
+            &table.w[(k - 1) * r..k * r],
+            &table.w[(k + 1) * r..(k + 2) * r],
+        );
+        // Σ φ_i (β_i² (2 w_i(b) − 1) − 1)⁺, Σ β_i² φ_i (2 w_i(b) − 1)⁺, Σ β_i² φ_i
+        let (mut known, mut fall, mut rise) = (0.0, 0.0, 0.0);
+        for ((&wa, &wb), &beta) in w_a.iter().zip(w_b).zip(proj.beta.as_slice()) {
+            let phi = if wa <= 0.5 && wb >= 0.5 {
+                0.25
+            } else {
+                (wa * (1.0 - wa)).max(wb * (1.0 - wb))
+            };
+            let b2 = beta * beta;
+            known += phi * (b2 * (2.0 * wb - 1.0) - 1.0).max(0.0);
+            fall += b2 * phi * (2.0 * wb - 1.0).max(0.0);
+            rise += b2 * phi;
+        }
+        let m = match kind {
+            EvidenceKind::KnownSigma => known,
+            EvidenceKind::ProfiledScale => {
+                let q_a = quad_sum(w_a, proj) * (1.0 - 1e-9);
+                if q_a.is_nan() || q_a <= 0.0 {
+                    return None;
+                }
+                let mp = (self.m - self.q) as f64;
+                mp * (fall / q_a + (rise / q_a).powi(2))
+            }
+        } * (1.0 + 1e-9);
+        let h = 0.5 * (b - a) * (1.0 + 1e-9);
+        let floor = fk - d1.abs() * h - 0.5 * m * h * h;
+        floor
+            .is_finite()
+            .then(|| floor - 1e-9 * (1.0 + fk.abs() + d1.abs() * h + m * h * h))
     }
 
     /// `ℓ(λ) = −Σ ln w_i` and `Q(λ) = δ₀ + Σ w_i β_i²`, `w_i = λ/(g_i² + λ)` (`Q` summed as
@@ -581,6 +720,51 @@ mod tests {
             .collect::<Vec<_>>();
         let problem = Problem::new(a, rows[0].clone(), sigma, penalty, sigma_stated).unwrap();
         (Decomposition::new(&problem).unwrap(), rows)
+    }
+
+    #[test]
+    fn a_candidate_shown_unable_to_win_would_not_have_won() {
+        // For cutoffs below and above each row's refined criterion: `evidence_refine` may
+        // leave the refinement out only when the criterion is above the cutoff, and when it
+        // refines, it gives `select_evidence`'s choice to the last bit.
+        let opts = SelectOptions {
+            keep_curve: false,
+            ..SelectOptions::default()
+        };
+        for stated in [true, false] {
+            let (dec, rows) = problem_and_rows(16, 12, stated, 60);
+            let mut st = EvidenceSearch::default();
+            let mut proj = dec.empty_projection();
+            let (mut left_out, mut refined) = (0, 0);
+            for d in &rows {
+                dec.project_into(d, &mut proj).unwrap();
+                let full = dec.select_evidence(&proj, &opts, &mut st).unwrap();
+                for gap in [-3.0, -1.0, -0.3, -0.1, -0.03, -1e-6, 0.0, 1e-6, 0.1, 1.0] {
+                    let cutoff = full.criterion + gap;
+                    let pick = dec.evidence_grid(&proj, &opts, &mut st);
+                    assert!(pick.value >= full.criterion);
+                    match dec
+                        .evidence_refine(&proj, &opts, &st, &pick, cutoff)
+                        .unwrap()
+                    {
+                        None => {
+                            assert!(full.criterion > cutoff, "σ stated {stated}, gap {gap}");
+                            left_out += 1;
+                        }
+                        Some(sel) => {
+                            assert_eq!(sel.lambda.to_bits(), full.lambda.to_bits());
+                            assert_eq!(sel.criterion.to_bits(), full.criterion.to_bits());
+                            refined += 1;
+                        }
+                    }
+                }
+            }
+            // the bound does its work well below the criterion, and is never the only path
+            assert!(
+                left_out > 100 && refined > 300,
+                "{left_out} left out, {refined} refined"
+            );
+        }
     }
 
     #[test]

@@ -74,7 +74,8 @@ use crate::estimate::{AUTO_ORDERS, penalty, profile_positions, refined_max, stac
 use crate::forward::LinearMap;
 use crate::geometry::{Edge, Point};
 use crate::inverse::{
-    Decomposition, EvidenceSearch, Problem, Projection, Selection, Strength, StrengthMethod,
+    Decomposition, EvidenceSearch, GridPick, Problem, Projection, Selection, Strength,
+    StrengthMethod,
 };
 use crate::noise::{NoiseSpec, SigmaSource};
 use crate::simd::{gemv, lane_sums4};
@@ -696,7 +697,14 @@ impl RowEstimator {
         if let Some(o) = self.case.fit.smoothing.order() {
             return Ok(o);
         }
-        let mut best: Option<(f64, usize)> = None;
+        // The order with the lower evidence criterion, ties to the first of AUTO_ORDERS.
+        // Both orders' best grid points first; the order whose grid value is lower is
+        // refined first, and the other's refinement is left out when its bracket is shown to
+        // stay above that criterion ([`Decomposition::evidence_refine`]): it cannot win, and
+        // its λ is not needed. The order of the work does not change the choice.
+        let rule = Strength::Rule(StrengthMethod::Evidence);
+        let opts = select_options(false);
+        let mut picks: [Option<GridPick>; 3] = [None; 3];
         for order in AUTO_ORDERS {
             self.pattern_key(readings, used, order)?;
             let pat = self
@@ -706,15 +714,41 @@ impl RowEstimator {
             fill_d(&mut self.d, used, readings, &self.sensor_map.offset);
             pat.dec.project_into(&self.d, &mut pat.proj)?;
             pat.projected_row = self.row_serial;
-            if let Ok(sel) = pat.select(Strength::Rule(StrengthMethod::Evidence), self.reference) {
+            if !self.reference {
+                picks[order] = Some(pat.dec.evidence_grid(&pat.proj, &opts, &mut pat.search));
+            }
+        }
+        let grid_value = |o: usize| picks[o].map_or(f64::INFINITY, |p| p.value);
+        let mut orders = AUTO_ORDERS;
+        if grid_value(orders[1]) < grid_value(orders[0]) {
+            orders.swap(0, 1);
+        }
+        let rank = |o: usize| AUTO_ORDERS.iter().position(|&x| x == o);
+        let mut best: Option<(f64, usize)> = None;
+        for order in orders {
+            // the pattern of this row and order, still holding the row's projection
+            self.pattern_key(readings, used, order)?;
+            let pat = self
+                .cache
+                .get_mut(self.key.as_slice())
+                .ok_or_else(internal)?;
+            let cutoff = best.map_or(f64::INFINITY, |(b, _)| b);
+            let sel = match &picks[order] {
+                Some(pick) => pat
+                    .dec
+                    .evidence_refine(&pat.proj, &opts, &pat.search, pick, cutoff),
+                None => pat.dec.select_for(&pat.proj, rule, &opts).map(Some),
+            };
+            if let Ok(Some(sel)) = sel {
                 self.row_evidence[order] = Some(sel.lambda);
                 let e = sel.criterion;
-                if e.is_finite() && best.is_none_or(|(b, _)| e < b) {
+                let better = best.is_none_or(|(b, o)| e < b || (e <= b && rank(order) < rank(o)));
+                if e.is_finite() && better {
                     best = Some((e, order));
                 }
             }
         }
-        Ok(best.map_or(2, |(_, o)| o))
+        Ok(best.map_or(AUTO_ORDERS[0], |(_, o)| o))
     }
 
     /// Make sure the pattern (used sensors, their sigmas, order) is cached; returns its key.
