@@ -96,7 +96,8 @@ pub fn loo_residuals(input: &FitInput, strength: Strength) -> Vec<Option<LooVerd
         .collect()
 }
 
-fn loo_one(input: &FitInput, strength: Strength, i: usize) -> Option<LooVerdict> {
+/// Entry `i` of [`loo_residuals`] alone (one decomposition instead of one per reading).
+pub fn loo_one(input: &FitInput, strength: Strength, i: usize) -> Option<LooVerdict> {
     let rest = without_row(input, i);
     let problem = Problem::new(
         rest.a.clone(),

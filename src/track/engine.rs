@@ -1695,8 +1695,8 @@ impl RowEstimator {
     /// The verdict of `estimate`'s own leave-one-out fault model
     /// ([`crate::estimate::fit::loo_residuals`]: the prediction averaged over the strength by
     /// the evidence of the other readings) on sensor `i` of this row, fitted with the sensors
-    /// `used` plus `i`, at smoothing `order`. Slow (one decomposition per reading): the health
-    /// checks call it only to confirm a sensor before leaving it out.
+    /// `used` plus `i`, at smoothing `order`. Slow (a decomposition and a sweep of the strength
+    /// grid): the health checks call it only to confirm a sensor before leaving it out.
     pub fn loo_verdict(
         &self,
         readings: &[Option<f64>],
@@ -1706,7 +1706,7 @@ impl RowEstimator {
         strength: Strength,
     ) -> Option<crate::estimate::fit::LooVerdict> {
         let (input, k) = self.row_input(readings, used, i, order)?;
-        crate::estimate::fit::loo_residuals(&input, strength)[k]
+        crate::estimate::fit::loo_one(&input, strength, k)
     }
 
     /// Whether a hot feature of a hidden edge (obeying a stated gradient limit, K/m) explains

@@ -58,6 +58,13 @@ pub const DRIFT_LEVEL: f64 = 3.0;
 pub const MAX_BACKOFF: u32 = 8;
 /// The drift trend is evaluated every this many rows (it costs O(window) per sensor).
 pub const DRIFT_EVERY: u64 = 25;
+/// After each refuted drift candidate in a row, a sensor's trend waits twice as long before
+/// it is evaluated again, up to `DRIFT_EVERY << MAX_DRIFT_BACKOFF` rows (1,600, about the
+/// longest wait of an outlier candidate); an evaluation that finds no drift starts afresh.
+/// Without it a misfit that `estimate`'s model explains (a hot spot growing faster than the
+/// reference strength follows) was confirmed again every `DRIFT_EVERY` rows, at the cost of
+/// a decomposition each time.
+pub const MAX_DRIFT_BACKOFF: u32 = 6;
 /// A left-out sensor passes its check when its standardised residual is within this.
 pub const CLEAR_Z: f64 = 2.5;
 /// At most this many recorded problems per sensor (later ones are counted, not listed).
@@ -179,6 +186,10 @@ struct SensorState {
     drift_onset: u64,
     /// Failed confirmations so far (each doubles the rows needed before the next try).
     refuted: u32,
+    /// Drift candidates refuted in a row, and the row from which the trend is evaluated again
+    /// ([`MAX_DRIFT_BACKOFF`]).
+    drift_refuted: u32,
+    drift_next: u64,
     window: Window,
     event_count: usize,
     /// The open `doubtful` event, and passing rows in a row toward its end.
@@ -452,14 +463,18 @@ impl HealthMonitor {
             if st.outlier_run >= needed {
                 // ranked by |z|: the probability saturates at 1 for every gross misfit
                 candidates.push((i, Problem::Outlier, z.abs()));
-            } else if let Some((change, end)) = (self.row % DRIFT_EVERY == 0)
+            } else if let Some((change, end)) = (self.row % DRIFT_EVERY == 0
+                && self.row >= st.drift_next)
                 .then(|| st.window.trend(self.row))
                 .flatten()
             {
-                if change.abs() > DRIFT_CHANGE
+                let drifting = change.abs() > DRIFT_CHANGE
                     && end.abs() > DRIFT_LEVEL
-                    && change.signum() == end.signum()
-                {
+                    && change.signum() == end.signum();
+                if !drifting {
+                    st.drift_refuted = 0;
+                }
+                if drifting {
                     candidates.push((i, Problem::Drift, end.abs()));
                     // onset: where the fitted line crosses zero, within the window
                     let slope = change / (DRIFT_WINDOW - 1) as f64;
@@ -508,8 +523,12 @@ impl HealthMonitor {
             if problem == Problem::Outlier {
                 st.refuted += 1;
                 st.outlier_run = 0;
+            } else {
+                // the trend is evaluated again after a wait that doubles with each refutation
+                st.drift_refuted += 1;
+                let wait = DRIFT_EVERY << st.drift_refuted.min(MAX_DRIFT_BACKOFF);
+                st.drift_next = self.row + wait;
             }
-            // a drift candidate is simply tried again at the next evaluation
             self.refuted += 1;
             if hot_feature {
                 // named, never left out: a hot spot or a fault
