@@ -10,7 +10,7 @@
 //! | `stuck` | the reading has not changed at all for [`STUCK_ROWS`] rows in a row | from the row that completes the run until the reading changes |
 //! | `outlier` | the leave-one-out fault probability of `estimate`'s fault model exceeds [`crate::estimate::fit::FAULT_POSTERIOR`] for [`OUTLIER_ROWS`] rows in a row | from the next row until its prediction check passes for [`CLEAR_ROWS`] rows in a row |
 //! | `doubtful` | an `outlier` or `drift` candidate reads above the others' prediction and a hot feature of a hidden edge explains it (a hot spot or a fault) | never; ends when its prediction check passes for [`CLEAR_ROWS`] rows in a row |
-//! | `drift` | the straight line fitted to its standardised residual over the last [`DRIFT_WINDOW`] rows changes by more than [`DRIFT_CHANGE`] across the window and ends beyond [`DRIFT_LEVEL`]; the reported start is where that line crosses zero | as for `outlier` |
+//! | `drift` | the straight line fitted to its standardised residual (clipped to ±[`DRIFT_CLIP_Z`]) over the last [`DRIFT_WINDOW`] rows changes by more than [`DRIFT_CHANGE`] across the window and ends beyond [`DRIFT_LEVEL`]; the reported start is where that line crosses zero; a candidate that `estimate`'s model refutes is tried again after a wait that doubles each time ([`MAX_DRIFT_BACKOFF`]) | as for `outlier` |
 //!
 //! Before a sensor is left out, the candidate is confirmed with `estimate`'s own fault model
 //! on that row ([`crate::estimate::fit::loo_residuals`], whose prediction is averaged over the
@@ -51,6 +51,11 @@ pub const CLEAR_ROWS: usize = 20;
 pub const DRIFT_WINDOW: usize = 120;
 /// Change of the fitted residual trend across the window, in standard deviations.
 pub const DRIFT_CHANGE: f64 = 3.0;
+/// The standardised residuals enter the drift window clipped to ±this: one wild row (a row
+/// whose own noise estimate comes out near zero, which scales every sensor's residual up
+/// by orders of magnitude) would otherwise tilt the fitted line of every sensor for a whole
+/// window. A steady drift crosses [`DRIFT_LEVEL`] long before it reaches the clip.
+pub const DRIFT_CLIP_Z: f64 = 10.0;
 /// The fitted trend's value at the window's end, in standard deviations.
 pub const DRIFT_LEVEL: f64 = 3.0;
 /// After each refuted candidate a sensor needs twice as many rows before the next try, up
@@ -409,7 +414,8 @@ impl HealthMonitor {
         for (i, d) in diagnostics.iter().enumerate() {
             let Some((z, p)) = *d else { continue };
             let st = &mut self.states[i];
-            st.window.push(self.row, z);
+            st.window
+                .push(self.row, z.clamp(-DRIFT_CLIP_Z, DRIFT_CLIP_Z));
             if let Some(e) = st.doubt {
                 if z.abs() <= CLEAR_Z {
                     st.doubt_clear += 1;
@@ -615,5 +621,128 @@ impl HealthMonitor {
     /// Every problem recorded so far (open ones have no end).
     pub fn events(&self) -> &[HealthEvent] {
         &self.events
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Feed `rows` rows of `n` sensors to a monitor: every sensor reads, its standardised
+    /// residual is `z(row, sensor)` (fault probability 0, so no outlier runs), and every
+    /// confirmation is counted and answered by `verdict`. Returns the monitor and the rows
+    /// on which a confirmation was asked.
+    fn run(
+        n: usize,
+        rows: u64,
+        z: impl Fn(u64, usize) -> f64,
+        verdict: impl Fn(usize) -> Option<(f64, f64)>,
+    ) -> (HealthMonitor, Vec<u64>) {
+        let mut mon = HealthMonitor::new(n);
+        let mut asked = Vec::new();
+        let mut used = Vec::new();
+        for row in 1..=rows {
+            let time = format!("{row}");
+            // distinct readings, so that nothing is stuck
+            let readings: Vec<Option<f64>> = (0..n).map(|i| Some(row as f64 + i as f64)).collect();
+            mon.before_fit(&time, row, &readings, false, &mut used);
+            let diagnostics: Vec<Option<(f64, f64)>> =
+                (0..n).map(|i| Some((z(row, i), 0.0))).collect();
+            let mut confirm = |i: usize, _: &[usize]| {
+                asked.push(row);
+                verdict(i)
+            };
+            mon.after_fit(&time, row, &diagnostics, &mut confirm, &mut |_, _| {
+                f64::INFINITY
+            });
+        }
+        (mon, asked)
+    }
+
+    /// Invented residuals: a fixed pseudo-random sequence of about unit size, per row and
+    /// sensor.
+    fn noise(row: u64, i: usize) -> f64 {
+        ((row as f64 * 12.9898 + i as f64 * 78.233).sin() * 43758.5453).fract() * 2.0 - 1.0
+    }
+
+    #[test]
+    fn one_wild_row_does_not_make_a_drift() {
+        // Every sensor's residual is 800 on one row (a row whose noise estimate came out
+        // near zero): without the clip the fitted line of every sensor tilts by far more
+        // than DRIFT_CHANGE for a whole window, and every sensor becomes a drift candidate.
+        let (mon, asked) = run(
+            8,
+            600,
+            |row, i| if row == 300 { 800.0 } else { noise(row, i) },
+            |_| Some((0.0, 0.0)),
+        );
+        assert!(asked.is_empty(), "confirmations asked on rows {asked:?}");
+        assert!(mon.events().is_empty());
+    }
+
+    #[test]
+    fn a_steady_drift_is_still_named() {
+        // Sensor 2's residual grows by 0.1 per row from row 200: it crosses DRIFT_LEVEL about
+        // 30 rows in and is named as soon as the trend across the window is clear, clip or
+        // no clip (the clip is far above the level).
+        let (mon, _) = run(
+            8,
+            600,
+            |row, i| {
+                let drift = if i == 2 && row > 200 {
+                    0.1 * (row - 200) as f64
+                } else {
+                    0.0
+                };
+                noise(row, i) + drift
+            },
+            |i| Some((if i == 2 { 8.0 } else { 0.0 }, 0.0)),
+        );
+        let named: Vec<_> = mon
+            .events()
+            .iter()
+            .filter(|e| e.sensor == 2 && e.problem == Problem::Drift)
+            .collect();
+        assert_eq!(named.len(), 1, "{:?}", mon.events());
+        let first = named[0].start_line;
+        // the start is where the fitted line crosses zero: a few rows either side of 200
+        assert!(
+            (180..=300).contains(&first),
+            "drift named from line {first}"
+        );
+    }
+
+    #[test]
+    fn a_refuted_drift_waits_longer_each_time() {
+        // Sensor 2's residual ramps up by 0.03 per row from row 1000 (a trend of 3.6 across
+        // the window) until the clip flattens it; the model refutes every candidate. The
+        // trend is tried again after 50, then 100 rows (doubling), not at every evaluation.
+        let (_, asked) = run(
+            8,
+            2000,
+            |row, i| {
+                let ramp = if i == 2 && row > 1000 {
+                    0.03 * (row - 1000) as f64
+                } else {
+                    0.0
+                };
+                noise(row, i) + ramp
+            },
+            |_| Some((0.0, 0.0)),
+        );
+        assert!(asked.len() >= 3, "tried on rows {asked:?}");
+        for (k, w) in asked.windows(2).enumerate() {
+            assert_eq!(
+                w[1] - w[0],
+                DRIFT_EVERY << (k + 1),
+                "tried on rows {asked:?}"
+            );
+        }
+        // the trend stays a candidate from its first try to its clip (about 280 rows):
+        // every evaluation would have asked without the wait
+        assert!(
+            asked.len() < 280 / DRIFT_EVERY as usize / 2,
+            "tried on rows {asked:?}"
+        );
     }
 }
