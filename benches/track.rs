@@ -6,7 +6,8 @@
 //! `cargo build --release && cargo bench --bench track` writes an invented log (cold-plate
 //! geometry, 64 terms, 32 sensors in two staggered rows, a hot spot that grows and fades, one
 //! sensor open circuit for a stretch) to a temporary directory and runs the release binary on
-//! it. For each of the two targeted settings it prints the median rows/s of
+//! it. For each targeted setting (the per-row strength with σ stated and, on the same log,
+//! with σ estimated on every row; `--calibrate 200`) it prints the median rows/s of
 //! `TRACK_BENCH_REPEATS` runs (default 3), their spread (slowest to fastest), the binary's
 //! peak resident memory (VmHWM, polled from /proc while it runs) and the ratio of the median
 //! to the target. It also runs once with the limit inside the band (every row needs the
@@ -61,37 +62,66 @@ fn main() {
         .and_then(|v| v.parse().ok())
         .unwrap_or(3)
         .max(1);
-    // (rows, extra flags, what it shows, target rows/s)
-    let runs: [(usize, &[&str], &str, Option<f64>); 5] = [
+    // the same case without a stated σ: every row's fit estimates its own noise scale
+    let unstated_dir = dir.path().join("case-sigma-estimated");
+    std::fs::create_dir_all(&unstated_dir).expect("case dir");
+    for entry in std::fs::read_dir(&case_dir).expect("case dir") {
+        let path = entry.expect("case file").path();
+        let text = std::fs::read_to_string(&path).expect("case file");
+        let text = if path.file_name().is_some_and(|n| n == "plate.toml") {
+            text.lines()
+                .filter(|l| !l.trim_start().starts_with("sigma"))
+                .collect::<Vec<_>>()
+                .join("\n")
+        } else {
+            text
+        };
+        std::fs::write(unstated_dir.join(path.file_name().expect("name")), text)
+            .expect("case file");
+    }
+    // (rows, extra flags, what it shows, target rows/s, σ stated)
+    let runs: [(usize, &[&str], &str, Option<f64>, bool); 6] = [
         (
             rows,
             &["--limit", "70"],
             "strength chosen on every row (the default)",
             Some(200_000.0),
+            true,
+        ),
+        (
+            rows,
+            &["--limit", "70"],
+            "strength chosen on every row, sigma estimated on every row",
+            Some(200_000.0),
+            false,
         ),
         (
             rows,
             &["--calibrate", "200", "--limit", "70"],
             "calibrated, limit far above",
             Some(500_000.0),
+            true,
         ),
         (
             rows,
             &["--calibrate", "200", "--limit", "56"],
             "calibrated, limit within the band",
             None,
+            true,
         ),
         (
             rows / 10,
             &["--limit", "70"],
             "strength chosen on every row, a tenth of the rows",
             None,
+            true,
         ),
         (
             rows / 10,
             &["--calibrate", "200", "--limit", "70"],
             "calibrated, a tenth of the rows",
             None,
+            true,
         ),
     ];
     println!(
@@ -99,7 +129,8 @@ fn main() {
          (single runs for the rows without a target)",
         std::thread::available_parallelism().map_or(1, |n| n.get())
     );
-    for (n, flags, what, target) in runs {
+    for (n, flags, what, target, stated) in runs {
+        let case_used = if stated { &case_dir } else { &unstated_dir };
         let log = dir.path().join(format!("log-{n}.csv"));
         if !log.exists() {
             let t0 = Instant::now();
@@ -117,7 +148,7 @@ fn main() {
         let mut peak_mb: f64 = 0.0;
         let mut last = None;
         for _ in 0..times {
-            let run = run_track(&bin, &case_dir, &log, &out, flags);
+            let run = run_track(&bin, case_used, &log, &out, flags);
             rates.push(n as f64 / run.secs);
             peak_mb = peak_mb.max(run.peak_mb);
             last = Some(run);
