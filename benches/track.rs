@@ -79,8 +79,7 @@ fn main() {
         std::fs::write(unstated_dir.join(path.file_name().expect("name")), text)
             .expect("case file");
     }
-    // (rows, extra flags, what it shows, target rows/s, σ stated)
-    let runs: [(usize, &[&str], &str, Option<f64>, bool); 6] = [
+    let runs: [RunSpec<'_>; 6] = [
         (
             rows,
             &["--limit", "70"],
@@ -187,6 +186,10 @@ fn main() {
         );
     }
 }
+
+/// A measured setting: rows, extra flags, what it shows, target rows/s, whether the case
+/// states σ.
+type RunSpec<'a> = (usize, &'a [&'a str], &'a str, Option<f64>, bool);
 
 /// One run of the binary: wall seconds, peak resident memory, exit code.
 struct Run {
