@@ -649,6 +649,7 @@ fn derivative_sums_body(
 /// `Q = δ₀ + Σ w_i β_i²` from given weights, in the order of [`Decomposition::sums`]: four
 /// lanes (`i mod 4` within the whole chunks of four, the remainder on lane 0), each term
 /// `(w_i β_i) β_i`, the lanes added pairwise. The same number as `sums` gives.
+#[inline]
 fn quad_sum(w: &[f64], proj: &Projection) -> f64 {
     const LANES: usize = 4;
     let beta = proj.beta.as_slice();

@@ -505,6 +505,8 @@ pub struct RowEstimator {
     draw_bases: FxHashMap<Vec<u64>, (f64, Vec<f64>)>,
     draw_base_order: std::collections::VecDeque<Vec<u64>>,
     key: Vec<u64>,
+    /// `auto` smoothing: each order's pattern key for the row in hand ([`Self::order_for`]).
+    order_keys: [Vec<u64>; 3],
     ratio: Vec<f64>,
     /// Per sensor: used in this row (the diagnostics of the sensors left out).
     in_use: Vec<bool>,
@@ -623,6 +625,7 @@ impl RowEstimator {
             draw_bases: FxHashMap::default(),
             draw_base_order: std::collections::VecDeque::new(),
             key: Vec::new(),
+            order_keys: [Vec::new(), Vec::new(), Vec::new()],
             ratio: vec![0.0; n_scan],
             in_use: Vec::new(),
             window: Vec::new(),
@@ -707,6 +710,7 @@ impl RowEstimator {
         let mut picks: [Option<GridPick>; 3] = [None; 3];
         for order in AUTO_ORDERS {
             self.pattern_key(readings, used, order)?;
+            self.order_keys[order].clone_from(&self.key);
             let pat = self
                 .cache
                 .get_mut(self.key.as_slice())
@@ -726,11 +730,11 @@ impl RowEstimator {
         let rank = |o: usize| AUTO_ORDERS.iter().position(|&x| x == o);
         let mut best: Option<(f64, usize)> = None;
         for order in orders {
-            // the pattern of this row and order, still holding the row's projection
-            self.pattern_key(readings, used, order)?;
+            // the pattern of this row and order (cached by the loop above: two patterns
+            // touched since cannot have evicted it), still holding the row's projection
             let pat = self
                 .cache
-                .get_mut(self.key.as_slice())
+                .get_mut(self.order_keys[order].as_slice())
                 .ok_or_else(internal)?;
             let cutoff = best.map_or(f64::INFINITY, |(b, _)| b);
             let sel = match &picks[order] {
