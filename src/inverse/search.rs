@@ -277,8 +277,14 @@ impl Decomposition {
             }
         }
         while let Some((i, j)) = st.stack.pop() {
-            // every grid point strictly between i and j is at least this
-            let bound = criterion(kind, mp, st.ell[j], st.quad[i]);
+            // every grid point strictly between i and j is at least E(ℓ_j, Q_i); the
+            // criterion is ℓ plus a function of Q, so that is E_i − ℓ_i + ℓ_j (no logarithm
+            // of Q again; the same number to rounding, far inside the margin below)
+            let bound = if st.value[i].is_finite() {
+                st.value[i] - st.ell[i] + st.ell[j]
+            } else {
+                criterion(kind, mp, st.ell[j], st.quad[i])
+            };
             let margin = 1e-9 * (1.0 + best.0.abs());
             if bound > best.0 + margin {
                 continue;
