@@ -195,7 +195,7 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
         set.staging_path("track.csv")
     };
     let writer = StreamWriter::create(&csv_path, TRACK_CSV_HEADER, args.follow)?;
-    let (rx, handle) = spawn_reader(reader, if args.follow { 1 } else { BATCH });
+    let (rx, handle, recycle) = spawn_reader(reader, if args.follow { 1 } else { BATCH });
     let mut rows_out = RowsOut {
         case: tracker.case().clone(),
         writer,
@@ -203,7 +203,7 @@ pub fn run(args: &TrackArgs, global: &GlobalOptions) -> Result<i32> {
     if args.follow {
         stop::install();
     }
-    let interrupted = stream_rows(args, global, &mut tracker, &mut rows_out, &rx)?;
+    let interrupted = stream_rows(args, global, &mut tracker, &mut rows_out, (&rx, &recycle))?;
     tracker.finish(&mut |rec| rows_out.write(rec))?;
     if !interrupted {
         // (after a signal the reading thread may be waiting for the log to grow: it is left
@@ -330,19 +330,32 @@ type RowBatches = mpsc::Receiver<Result<Vec<LoggerRow>>>;
 
 /// Start the reading thread: it sends batches of `batch` rows and stops at the end of the
 /// log, at the first error (sent), or when the receiver is gone.
+///
+/// Batches the tracker is done with come back through the second channel (at most two wait):
+/// their rows are filled again, so that a row's buffers are not allocated anew on this
+/// thread and freed on another for every row of the log.
 fn spawn_reader(
     mut reader: LoggerReader,
     batch: usize,
-) -> (RowBatches, std::thread::JoinHandle<()>) {
+) -> (
+    RowBatches,
+    std::thread::JoinHandle<()>,
+    mpsc::SyncSender<Vec<LoggerRow>>,
+) {
     let (tx, rx) = mpsc::sync_channel::<Result<Vec<LoggerRow>>>(8);
+    let (recycle, spent) = mpsc::sync_channel::<Vec<LoggerRow>>(2);
     let handle = std::thread::spawn(move || {
         loop {
             let mut rows = Vec::with_capacity(batch);
-            let mut row = LoggerRow::default();
+            let mut spare = spent.try_recv().unwrap_or_default();
+            let mut row = spare.pop().unwrap_or_default();
             let mut done = false;
             while rows.len() < batch {
                 match reader.next_row(&mut row) {
-                    Ok(true) => rows.push(std::mem::take(&mut row)),
+                    Ok(true) => {
+                        let next = spare.pop().unwrap_or_default();
+                        rows.push(std::mem::replace(&mut row, next));
+                    }
                     Ok(false) => {
                         done = true;
                         break;
@@ -361,7 +374,7 @@ fn spawn_reader(
             }
         }
     });
-    (rx, handle)
+    (rx, handle, recycle)
 }
 
 /// Push every row through the tracker into `track.csv`, with a progress bar; with
@@ -372,7 +385,7 @@ fn stream_rows(
     global: &GlobalOptions,
     tracker: &mut Tracker,
     rows_out: &mut RowsOut,
-    rx: &RowBatches,
+    (rx, recycle): (&RowBatches, &mpsc::SyncSender<Vec<LoggerRow>>),
 ) -> Result<bool> {
     let bar = progress_bar(global, None, "track {spinner} {pos} rows ({per_sec})");
     let mut last_write = Instant::now();
@@ -429,6 +442,10 @@ fn stream_rows(
         } else {
             // fitted ahead on a helper thread while the batch before is finished
             tracker.push_batch(rows, &mut |rec| rows_out.write(rec))?;
+            if let Some(spent) = tracker.take_spent_rows() {
+                // the reader fills them again; if two batches already wait, these go
+                let _ = recycle.try_send(spent);
+            }
         }
         rows_seen += count;
         if let Some(b) = &bar {

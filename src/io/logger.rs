@@ -681,7 +681,8 @@ pub(crate) fn checked_number(
     text: &dyn Fn() -> String,
     what: &str,
 ) -> Result<Option<f64>, String> {
-    if v.is_nan() || FAULT_CODES.contains(&v) {
+    // every fault code is at least 9,999 in size: most readings skip the list
+    if v.is_nan() || (v.abs() >= 9999.0 && FAULT_CODES.contains(&v)) {
         return Ok(None);
     }
     if !v.is_finite() {
@@ -1104,6 +1105,20 @@ fn short_decimal(b: &[u8]) -> Option<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn every_fault_code_passes_the_size_check_before_the_list() {
+        // `checked_number` looks a number up in FAULT_CODES only when it is at least 9,999
+        // in size
+        assert!(FAULT_CODES.iter().all(|c| c.abs() >= 9999.0));
+        for &c in &FAULT_CODES {
+            assert_eq!(checked_number(c, &String::new, "temperature"), Ok(None));
+        }
+        assert_eq!(
+            checked_number(9998.5, &String::new, "temperature"),
+            Ok(Some(9998.5))
+        );
+    }
 
     #[test]
     fn short_decimals_read_as_parse_reads_them() {

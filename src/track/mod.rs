@@ -206,6 +206,9 @@ pub struct Tracker {
     /// Buffers of rows fitted ahead, for the next batch (boxed: they move by pointer).
     #[allow(clippy::vec_box)]
     spare: Vec<Box<Slot>>,
+    /// The rows of the last batch finished, for the reader to fill again
+    /// ([`Self::take_spent_rows`]).
+    spent: Option<Vec<LoggerRow>>,
     /// Rows whose fit was made ahead and used ([`Self::rows_fitted_ahead`]).
     fitted_ahead: u64,
     /// The batch fitted ahead, waiting for its turn.
@@ -285,6 +288,7 @@ impl Tracker {
             seed,
             helper: None,
             spare: Vec::new(),
+            spent: None,
             fitted_ahead: 0,
             ahead: None,
         })
@@ -444,7 +448,14 @@ impl Tracker {
             }
             self.spare.push(slot);
         }
+        self.spent = Some(ahead.rows);
         result
+    }
+
+    /// The rows of the last batch [`Self::push_batch`] finished, done with: a reader can
+    /// fill them again instead of allocating new ones (their buffers are reused).
+    pub fn take_spent_rows(&mut self) -> Option<Vec<LoggerRow>> {
+        self.spent.take()
     }
 
     /// Finish the batch fitted ahead, if any.
