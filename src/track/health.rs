@@ -726,6 +726,11 @@ mod tests {
         (v - v.floor()) * 2.0 - 1.0
     }
 
+    /// A residual rising by `rate` per row after row `from` (0 before).
+    fn ramp(row: u64, from: u64, rate: f64) -> f64 {
+        rate * row.saturating_sub(from) as f64
+    }
+
     #[test]
     fn the_quick_level_check_never_contradicts_the_fitted_line() {
         // Windows of noise, with gaps (rows without a z), drifts of either sign and wild
@@ -790,14 +795,7 @@ mod tests {
         let (mon, _) = run(
             8,
             600,
-            |row, i| {
-                let drift = if i == 2 && row > 200 {
-                    0.1 * (row - 200) as f64
-                } else {
-                    0.0
-                };
-                noise(row, i) + drift
-            },
+            |row, i| noise(row, i) + if i == 2 { ramp(row, 200, 0.1) } else { 0.0 },
             |i| Some((if i == 2 { 8.0 } else { 0.0 }, 0.0)),
         );
         let named: Vec<_> = mon
@@ -825,14 +823,7 @@ mod tests {
         let (_, asked) = run(
             8,
             2000,
-            |row, i| {
-                let ramp = if i == 2 && row > 1000 {
-                    0.03 * (row - 1000) as f64
-                } else {
-                    0.0
-                };
-                noise(row, i) + ramp
-            },
+            |row, i| noise(row, i) + if i == 2 { ramp(row, 1000, 0.03) } else { 0.0 },
             |_| Some((0.0, 0.0)),
         );
         assert!(asked.len() >= 3, "tried on rows {asked:?}");
