@@ -150,20 +150,20 @@ pub struct RowRecord<'a> {
 const CLAIM_ROWS: usize = 8;
 
 /// Rows fitted ahead ([`Tracker::push_batch`]), each with its sensors that have a reading
-/// less those in `left_out`, and the fits (`None`: too few sensors or an error; the row is
-/// then fitted in order).
+/// less those left out as stuck or faulty when the batch was fitted, and the fits (not
+/// fitted: too few sensors or an error; the row is then fitted in order).
 struct Ahead {
     rows: Vec<LoggerRow>,
-    /// The sensors left out as stuck or faulty when the batch was fitted.
-    left_out: Vec<bool>,
     #[allow(clippy::vec_box)] // a slot is a few hundred bytes, moved several times per row
     fits: Vec<Box<Slot>>,
 }
 
-/// One row fitted ahead: whether the fit succeeded, and its buffers (reused row after row).
+/// One row fitted ahead: whether the fit succeeded, the sensors it was fitted with, and its
+/// buffers (reused row after row).
 #[derive(Default)]
 struct Slot {
     fitted: bool,
+    used: Vec<usize>,
     ahead: AheadFit,
 }
 
@@ -389,7 +389,6 @@ impl Tracker {
         // rows are claimed a few at a time: fewer trips of the counter's and the slots'
         // cache lines between the cores
         let fit_rest = |est: &mut RowEstimator| {
-            let mut used = Vec::new();
             loop {
                 let first = next.fetch_add(CLAIM_ROWS, Ordering::Relaxed);
                 if first >= rows.len() {
@@ -397,12 +396,19 @@ impl Tracker {
                 }
                 for i in first..(first + CLAIM_ROWS).min(rows.len()) {
                     let row = &rows[i];
-                    used.clear();
-                    used.extend(guessed_sensors(row, &left_out));
-                    let mut slot = slots[i].lock().unwrap_or_else(PoisonError::into_inner);
-                    slot.fitted = used.len() >= need
+                    let mut guard = slots[i].lock().unwrap_or_else(PoisonError::into_inner);
+                    let slot: &mut Slot = &mut guard;
+                    slot.used.clear();
+                    slot.used.extend(guessed_sensors(row, &left_out));
+                    slot.fitted = slot.used.len() >= need
                         && est
-                            .fit_row_ahead(&row.values, &used, strength, limit, &mut slot.ahead)
+                            .fit_row_ahead(
+                                &row.values,
+                                &slot.used,
+                                strength,
+                                limit,
+                                &mut slot.ahead,
+                            )
                             .is_ok();
                 }
             }
@@ -423,7 +429,6 @@ impl Tracker {
         self.helper = Some(helper);
         self.ahead = Some(Ahead {
             rows,
-            left_out,
             fits: slots
                 .into_iter()
                 .map(|s| s.into_inner().unwrap_or_else(PoisonError::into_inner))
@@ -441,9 +446,8 @@ impl Tracker {
         let mut result = Ok(());
         for (row, mut slot) in ahead.rows.iter().zip(ahead.fits) {
             if result.is_ok() {
-                let fit = slot
-                    .fitted
-                    .then_some((ahead.left_out.as_slice(), &mut slot.ahead));
+                let s: &mut Slot = &mut slot;
+                let fit = s.fitted.then_some((s.used.as_slice(), &mut s.ahead));
                 result = self.process(row, fit, sink);
             }
             self.spare.push(slot);
@@ -503,7 +507,7 @@ impl Tracker {
     fn process(
         &mut self,
         row: &LoggerRow,
-        ahead: Option<(&[bool], &mut AheadFit)>,
+        ahead: Option<(&[usize], &mut AheadFit)>,
         sink: &mut dyn FnMut(&RowRecord<'_>) -> Result<()>,
     ) -> Result<()> {
         let Mode::Ready(strength) = self.mode else {
@@ -589,7 +593,7 @@ impl Tracker {
         &mut self,
         row: &LoggerRow,
         strength: RowStrength,
-        ahead: Option<(&[bool], &mut AheadFit)>,
+        ahead: Option<(&[usize], &mut AheadFit)>,
     ) -> Result<RowStatus> {
         let need = self.estimator.min_readings();
         if self.used.len() < need {
@@ -599,9 +603,7 @@ impl Tracker {
             )));
         }
         let fitted = match (ahead, strength) {
-            (Some((left_out, fit)), strength)
-                if self.used.iter().copied().eq(guessed_sensors(row, left_out)) =>
-            {
+            (Some((guessed, fit)), strength) if self.used == guessed => {
                 // the row's numbers move in; the buffers they leave go back with the slot
                 std::mem::swap(&mut self.fit, &mut fit.fit);
                 self.fitted_ahead += 1;
