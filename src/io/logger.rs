@@ -533,11 +533,27 @@ impl CsvLog {
             },
             None => None,
         };
+        // The common cell in a few operations: a plain decimal (no fault code is under 9,999
+        // in size), a temperature in the plausible range, no voltage to convert: the same
+        // number `reading` gives, which also handles (and words the message for) the rest.
+        let plain = !self.dialect.decimal_comma && self.case.conversion().is_none();
+        let plausible = crate::plausible::MIN_TEMPERATURE_K..=MAX_PLAUSIBLE_K;
         for (k, raw) in self.record.iter().enumerate() {
             let Some(i) = self.column_sensor[k] else {
                 continue;
             };
-            row.values[i] = self.reading(raw.trim_ascii(), line, k, i, cold_junction)?;
+            let cell = raw.trim_ascii();
+            if plain {
+                if let Some(v) = short_decimal(cell).filter(|v| v.abs() < 9999.0) {
+                    let kelvin = self.case.units.temp_to_k(v);
+                    if plausible.contains(&kelvin) {
+                        row.values[i] =
+                            Some(crate::io::convert::with_offset(&self.case, i, kelvin));
+                        continue;
+                    }
+                }
+            }
+            row.values[i] = self.reading(cell, line, k, i, cold_junction)?;
         }
         Ok(true)
     }
