@@ -37,6 +37,16 @@
 //! valley around the minimum resolve to the same refined λ. When the bracket does not hold a
 //! sign change of the derivative (a grid minimum at a kink or a flat stretch), the search
 //! falls back to [`Decomposition::select_for`] itself.
+//!
+//! ## A candidate that cannot win
+//!
+//! `auto` smoothing compares the evidence of two penalty orders and needs the λ of the winner
+//! only. The search is therefore split in its two steps ([`Decomposition::evidence_grid`],
+//! [`Decomposition::evidence_refine`]): with the winner's refined criterion as a cutoff, the
+//! other's refinement is left out when a lower bound of its criterion over its bracket
+//! (`Decomposition::bracket_floor`, with the derivation) exceeds the cutoff. Its refined
+//! criterion, wherever the refinement or the reference search would put it in the bracket, is
+//! then above the cutoff: it would not have been chosen.
 
 use super::strength::{EvidenceKind, SelectOptions, Selection, Strength, StrengthMethod};
 use super::tikhonov::{Decomposition, Projection};
@@ -157,13 +167,13 @@ impl Decomposition {
         let g_min = self.g[r - 1].max(g_max * 1e-8);
         let lo = 2.0 * g_min.log10() - opts.margin_decades;
         let hi = 2.0 * g_max.log10() + opts.margin_decades;
-        // the grid of `lambda_grid`, point by point (the same expression, so the same numbers)
-        let x_at = |k: usize| lo + (hi - lo) * k as f64 / (n - 1) as f64;
         let st = state;
         let key = (n, lo.to_bits(), hi.to_bits());
         let table = match st.table.take() {
             Some(tb) if tb.key == key && tb.g == self.g.as_slice() => tb,
-            _ => self.grid_table(key, |k| (x_at(k) * std::f64::consts::LN_10).exp()),
+            _ => self.grid_table(key, |k| {
+                (grid_log10((lo, hi, n), k) * std::f64::consts::LN_10).exp()
+            }),
         };
         let (value, k) = self.best_grid_point(proj, st, &table, kind, n);
         st.table = Some(table);
@@ -336,7 +346,7 @@ impl Decomposition {
         let (r, kind) = (self.g.len(), pick.kind);
         let (lo, hi, n) = pick.grid;
         let (fk, k) = (pick.value, pick.k);
-        let x_at = |k: usize| lo + (hi - lo) * k as f64 / (n - 1) as f64;
+        let x_at = |k: usize| grid_log10((lo, hi, n), k);
         let mp = (self.m - self.q) as f64;
         let effective = |lambda: f64| {
             self.q as f64 + self.g.iter().map(|g| g * g / (g * g + lambda)).sum::<f64>()
@@ -650,6 +660,12 @@ fn derivative_sums_body(
         }
     }
     sums
+}
+
+/// `log₁₀ λ` of grid point `k` of the grid from `lo` to `hi` in `n` points: the expression of
+/// [`Decomposition::lambda_grid`], so the same numbers.
+fn grid_log10((lo, hi, n): (f64, f64, usize), k: usize) -> f64 {
+    lo + (hi - lo) * k as f64 / (n - 1) as f64
 }
 
 /// `Q = δ₀ + Σ w_i β_i²` from given weights, in the order of [`Decomposition::sums`]: four

@@ -53,6 +53,10 @@ pub const FAULT_CODES: [f64; 10] = [
     9999.0, -9999.0, 9999.9, -9999.9, 99999.0, -99999.0, 99999.9, -99999.9, 32767.0, -32768.0,
 ];
 
+/// Every number in [`FAULT_CODES`] is at least this large in size, so a smaller reading is
+/// none of them without a look at the list.
+pub const FAULT_CODE_MIN: f64 = 9999.0;
+
 /// Readings above this many kelvin are refused as implausible (no thermocouple type in
 /// IEC 60584-1 reaches it; a number this large is a corrupted cell, not a temperature).
 pub const MAX_PLAUSIBLE_K: f64 = crate::plausible::MAX_TEMPERATURE_K;
@@ -533,8 +537,8 @@ impl CsvLog {
             },
             None => None,
         };
-        // The common cell in a few operations: a plain decimal (no fault code is under 9,999
-        // in size), a temperature in the plausible range, no voltage to convert: the same
+        // The common cell in a few operations: a plain decimal (no fault code is under
+        // FAULT_CODE_MIN in size), a temperature in the plausible range, no voltage to convert: the same
         // number `reading` gives, which also handles (and words the message for) the rest.
         let plain = !self.dialect.decimal_comma && self.case.conversion().is_none();
         let plausible = crate::plausible::MIN_TEMPERATURE_K..=MAX_PLAUSIBLE_K;
@@ -544,7 +548,7 @@ impl CsvLog {
             };
             let cell = raw.trim_ascii();
             if plain {
-                if let Some(v) = short_decimal(cell).filter(|v| v.abs() < 9999.0) {
+                if let Some(v) = short_decimal(cell).filter(|v| v.abs() < FAULT_CODE_MIN) {
                     let kelvin = self.case.units.temp_to_k(v);
                     if plausible.contains(&kelvin) {
                         row.values[i] =
@@ -697,8 +701,7 @@ pub(crate) fn checked_number(
     text: &dyn Fn() -> String,
     what: &str,
 ) -> Result<Option<f64>, String> {
-    // every fault code is at least 9,999 in size: most readings skip the list
-    if v.is_nan() || (v.abs() >= 9999.0 && FAULT_CODES.contains(&v)) {
+    if v.is_nan() || (v.abs() >= FAULT_CODE_MIN && FAULT_CODES.contains(&v)) {
         return Ok(None);
     }
     if !v.is_finite() {
@@ -1124,9 +1127,9 @@ mod tests {
 
     #[test]
     fn every_fault_code_passes_the_size_check_before_the_list() {
-        // `checked_number` looks a number up in FAULT_CODES only when it is at least 9,999
-        // in size
-        assert!(FAULT_CODES.iter().all(|c| c.abs() >= 9999.0));
+        // `checked_number` looks a number up in FAULT_CODES only when it is at least
+        // FAULT_CODE_MIN in size
+        assert!(FAULT_CODES.iter().all(|c| c.abs() >= FAULT_CODE_MIN));
         for &c in &FAULT_CODES {
             assert_eq!(checked_number(c, &String::new, "temperature"), Ok(None));
         }

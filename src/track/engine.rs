@@ -2098,6 +2098,36 @@ mod tests {
     }
 
     #[test]
+    fn the_division_free_screen_never_contradicts_the_division() {
+        // `surely_within(top, r, d)` must imply `top <= d / r` as the loop computes it, on
+        // invented values of every size and sign, ties (d = top·r exactly, and one ulp
+        // either side) included.
+        let mut x: u64 = 0x2545_f491_4f6c_dd1d;
+        let mut next = || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            (x >> 11) as f64 / (1u64 << 53) as f64
+        };
+        let mut said = 0;
+        for k in 0..200_000 {
+            let top = (next() - 0.3) * 10f64.powi(k % 7 - 3);
+            let r = next() * 4.0 + 1e-3;
+            let d = match k % 4 {
+                0 => top * r,
+                1 => f64::from_bits((top * r).to_bits() + 1),
+                2 => f64::from_bits((top * r).to_bits().saturating_sub(1)),
+                _ => (next() - 0.5) * 20.0,
+            };
+            if surely_within(top, r, d) {
+                said += 1;
+                assert!(top <= d / r, "top {top}, r {r}, d {d}");
+            }
+        }
+        assert!(said > 20_000, "{said}");
+    }
+
+    #[test]
     fn exceedance_from_sorted_draws_matches_a_plain_count() {
         // Three invented draws on two points; estimate [1, 2], ratios [1, 0.5].
         let raw = [[0.5, -0.2], [3.0, 0.0], [-1.0, 0.4]];

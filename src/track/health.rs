@@ -519,33 +519,29 @@ impl HealthMonitor {
             if st.outlier_run >= needed {
                 // ranked by |z|: the probability saturates at 1 for every gross misfit
                 candidates.push((i, Problem::Outlier, z.abs()));
-            } else if let Some((change, end)) = (self.row % DRIFT_EVERY == 0
-                && self.row >= st.drift_next)
-                .then(|| {
-                    // a line that surely ends within DRIFT_LEVEL is no drift: its exact fit
-                    // (O(window)) is needed only when it might not
-                    if st.window.values.len() >= DRIFT_WINDOW / 2
-                        && st.window.surely_level(self.row, DRIFT_LEVEL)
-                    {
-                        Some((0.0, 0.0))
-                    } else {
-                        st.window.trend(self.row)
-                    }
-                })
-                .flatten()
+            } else if self.row % DRIFT_EVERY == 0
+                && self.row >= st.drift_next
+                && st.window.values.len() >= DRIFT_WINDOW / 2
             {
-                let drifting = change.abs() > DRIFT_CHANGE
-                    && end.abs() > DRIFT_LEVEL
-                    && change.signum() == end.signum();
-                if !drifting {
-                    st.drift_refuted = 0;
-                }
-                if drifting {
+                // a line that surely ends within DRIFT_LEVEL is no drift: its exact fit
+                // (O(window)) is needed only when it might be one
+                let line = (!st.window.surely_level(self.row, DRIFT_LEVEL))
+                    .then(|| st.window.trend(self.row))
+                    .flatten();
+                let drift = line.filter(|&(change, end)| {
+                    change.abs() > DRIFT_CHANGE
+                        && end.abs() > DRIFT_LEVEL
+                        && change.signum() == end.signum()
+                });
+                if let Some((change, end)) = drift {
                     candidates.push((i, Problem::Drift, end.abs()));
                     // onset: where the fitted line crosses zero, within the window
                     let slope = change / (DRIFT_WINDOW - 1) as f64;
                     let back = (end / slope).clamp(0.0, (DRIFT_WINDOW - 1) as f64);
                     st.drift_onset = self.row.saturating_sub(back.round() as u64);
+                } else {
+                    // no drift now: a later candidate is fresh evidence
+                    st.drift_refuted = 0;
                 }
             }
         }
