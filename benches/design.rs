@@ -5,7 +5,8 @@
 //! `cargo bench --bench design` prints, for each criterion, the median and the range of 5
 //! runs of the whole design (sensor map of every candidate, search, scoring of the result),
 //! the passes and swaps the exchange made, the ratio of the median to its bar, and at the end
-//! the peak resident memory of the benchmark process.
+//! the peak resident memory of the benchmark process. `DESIGN_BENCH_ONLY=worst` (or
+//! `information`, `edge`) runs one criterion, for a profile.
 
 use edgetherm::case::CandidateSource;
 use edgetherm::case::{CaseFiles, Smoothing};
@@ -41,7 +42,12 @@ fn main() {
             })
         })
         .collect();
+    // DESIGN_BENCH_ONLY=worst (or information, edge) runs one criterion, for profiling
+    let only = std::env::var("DESIGN_BENCH_ONLY").ok();
     for criterion in [Criterion::Information, Criterion::Edge, Criterion::Worst] {
+        if only.as_deref().is_some_and(|o| o != criterion.name()) {
+            continue;
+        }
         let mut times = Vec::new();
         let mut last = None;
         for _ in 0..5 {

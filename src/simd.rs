@@ -121,6 +121,71 @@ fn gemv_block<const B: usize>(
     y.copy_from_slice(&acc);
 }
 
+avx2_dispatch! {
+    /// Thirty-two rows at once: rows `k0 .. k0 + 32` of the column-major `a` (`rows` rows, at
+    /// least `x.len()` columns) times `x`. Each entry is its products added in column order
+    /// from −0.0 — the same number, bit for bit, as [`dot`] of the row and `x` — with the
+    /// rows side by side in the lanes: eight independent four-lane sums, enough to keep the
+    /// additions' pipeline full (one sum's additions must wait for each other).
+    ///
+    /// # Panics
+    /// When `a` is shorter than `rows · x.len()` or `k0 + 32 > rows`.
+    pub fn dots32(a: &[f64], rows: usize, k0: usize, x: &[f64]) -> [f64; 32] = dots32_body;
+}
+
+/// The plain loop of [`dots32`].
+#[inline(always)]
+fn dots32_body(a: &[f64], rows: usize, k0: usize, x: &[f64]) -> [f64; 32] {
+    assert!(
+        k0 + 32 <= rows && a.len() >= rows * x.len(),
+        "dots32: shapes"
+    );
+    let mut acc = [-0.0_f64; 32];
+    for (col, &xj) in a.chunks_exact(rows).zip(x) {
+        let col: &[f64; 32] = col[k0..k0 + 32].try_into().unwrap_or(&[0.0; 32]);
+        for (s, &v) in acc.iter_mut().zip(col) {
+            *s += v * xj;
+        }
+    }
+    acc
+}
+
+/// `Σ a_i b_i` over the shorter of the two, added in order from −0.0 (as `Iterator::sum`):
+/// one row of [`dots32`].
+pub fn dot(a: &[f64], b: &[f64]) -> f64 {
+    a.iter().zip(b).fold(-0.0, |s, (x, y)| s + x * y)
+}
+
+avx2_dispatch! {
+    /// `Σ a_i b_i` over the shorter of the two in four interleaved partial sums (sum `l`
+    /// adds the terms `i ≡ l mod 4` of the whole chunks of four, in order, the terms left
+    /// add on sum 0; then `(s0 + s1) + (s2 + s3)`): its own rounding, not [`dot`]'s, with
+    /// four additions in flight instead of one.
+    pub fn dot4(a: &[f64], b: &[f64]) -> f64 = dot4_body;
+}
+
+/// The plain loop of [`dot4`].
+#[inline(always)]
+fn dot4_body(a: &[f64], b: &[f64]) -> f64 {
+    let n = a.len().min(b.len());
+    let (a, b) = (&a[..n], &b[..n]);
+    let mut s = [-0.0_f64; 4];
+    for (x, y) in a.chunks_exact(4).zip(b.chunks_exact(4)) {
+        for l in 0..4 {
+            s[l] += x[l] * y[l];
+        }
+    }
+    for (x, y) in a
+        .chunks_exact(4)
+        .remainder()
+        .iter()
+        .zip(b.chunks_exact(4).remainder())
+    {
+        s[0] += x * y;
+    }
+    (s[0] + s[1]) + (s[2] + s[3])
+}
+
 /// For four rows `a[g]` of equal length `r` and a vector `v` (at least `r` long): per row, the
 /// four lane sums of `a[g][i] · v[i]` (lane `l` adds the terms `i ≡ l mod 4` of the whole
 /// chunks of four, in order; the `r mod 4` terms left add on lane 0, in order). The same
@@ -206,6 +271,51 @@ mod tests {
     use super::*;
     use rand::{RngExt, SeedableRng};
     use rand_chacha::ChaCha8Rng;
+
+    #[test]
+    fn dots32_is_the_plain_dot_bit_for_bit() {
+        let mut rng = ChaCha8Rng::seed_from_u64(12);
+        for &(rows, cols) in &[(32, 0), (32, 1), (32, 7), (45, 64), (288, 64), (70, 33)] {
+            // values of very different sizes, so that the order of the additions shows
+            let a: Vec<f64> = (0..rows * cols)
+                .map(|_| rng.random_range(-1.0..1.0) * 10f64.powi(rng.random_range(-8..8)))
+                .collect();
+            let x: Vec<f64> = (0..cols)
+                .map(|_| rng.random_range(-1.0..1.0) * 10f64.powi(rng.random_range(-8..8)))
+                .collect();
+            for k0 in 0..=rows - 32 {
+                let got = dots32(&a, rows, k0, &x);
+                for (b, g) in got.iter().enumerate() {
+                    let row: Vec<f64> = (0..cols).map(|j| a[j * rows + k0 + b]).collect();
+                    let plain: f64 = row.iter().zip(&x).map(|(p, q)| p * q).sum();
+                    assert_eq!(g.to_bits(), plain.to_bits(), "{rows}x{cols} row {}", k0 + b);
+                    assert_eq!(g.to_bits(), dot(&row, &x).to_bits());
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn dot4_adds_in_four_interleaved_sums() {
+        let mut rng = ChaCha8Rng::seed_from_u64(13);
+        for n in [0, 1, 3, 4, 5, 64, 67] {
+            let a: Vec<f64> = (0..n)
+                .map(|_| rng.random_range(-1.0..1.0) * 10f64.powi(rng.random_range(-8..8)))
+                .collect();
+            let b: Vec<f64> = (0..n + 2).map(|_| rng.random_range(-1.0..1.0)).collect();
+            let mut s = [-0.0_f64; 4];
+            for i in 0..n - n % 4 {
+                s[i % 4] += a[i] * b[i];
+            }
+            for i in n - n % 4..n {
+                s[0] += a[i] * b[i];
+            }
+            let expected = (s[0] + s[1]) + (s[2] + s[3]);
+            assert_eq!(dot4(&a, &b).to_bits(), expected.to_bits(), "n = {n}");
+            let plain: f64 = a.iter().zip(&b).map(|(x, y)| x * y).sum();
+            assert!((dot4(&a, &b) - plain).abs() <= 1e-12 * a.iter().map(|x| x.abs()).sum::<f64>());
+        }
+    }
 
     #[test]
     fn gemv_is_nalgebras_bit_for_bit() {

@@ -84,7 +84,15 @@ impl Constraints {
     /// Whether two sensors at `a` and `b` are far enough apart.
     pub fn spaced(&self, a: Point, b: Point) -> bool {
         let eps = SLACK * self.shape.width();
-        (a.x - b.x).hypot(a.y - b.y) >= self.sensor_spacing_m - eps
+        let need = self.sensor_spacing_m - eps;
+        let (dx, dy) = ((a.x - b.x).abs(), (a.y - b.y).abs());
+        // hypot ≥ max(|dx|, |dy|): a gap that clears the spacing along one axis by more than
+        // the rounding of a hypot (under an ulp) decides without the square root — most
+        // pairs do, and the design search asks after every pair at each step
+        if dx.max(dy) > need * (1.0 + 1e-12) {
+            return true;
+        }
+        dx.hypot(dy) >= need
     }
 
     /// The allowed area (the union of the allowed rectangles clipped to the plate; overlaps

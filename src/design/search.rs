@@ -25,10 +25,18 @@
 //! `v_k ← v_k + s (p_k · w)²`,
 //!
 //! which costs O(N·p) per step for N candidates and p coefficients, instead of O(N·p²) for
-//! recomputing `C h_i`. For `worst` the products `e_ik = p_k · u_i` are formed only when a
-//! candidate is weighed, from the highest `v_k` down, and the candidate is dropped as soon as
-//! one term shows it cannot beat the best so far (`State::best_worst`): on 10,000
-//! candidates and 257 edge points most are dropped after a few terms.
+//! recomputing `C h_i`.
+//!
+//! `worst` needs neither `u_i` nor `t_i` kept: it keeps `r_k = C p_k` at the edge points
+//! instead (`r_k ← r_k + s (p_k · w) w`, O(n·p)), forms `e_ik = p_k · u_i = r_k · h_i` only
+//! when it weighs a candidate, from the highest `v_k` down, and drops the candidate as soon
+//! as one term shows it cannot beat the best so far; `t_i = Σ_k e_ik² / n` comes from the
+//! same terms for a candidate weighed in full, and `u_k = C h_k` is formed for the one
+//! candidate added or removed. Its `d_i` updates wait for the next weighing, which applies
+//! them on its way through the rows (`State::best_worst`, which also runs in parallel and
+//! still makes exactly the choice of the scan in candidate order). On 10,000 candidates and
+//! 257 edge points most candidates are dropped on one of the two highest-variance points,
+//! which are screened for 32 candidates at once.
 //!
 //! **Greedy**: add, K times, the feasible candidate that improves the criterion most (ties:
 //! the lower candidate index; for `worst`, ties on the maximum are broken by the mean
@@ -38,8 +46,9 @@
 //! turn, remove it, find the best feasible candidate for its place, and swap when that
 //! improves the criterion by more than a relative 1e-9; repeat passes until a pass makes no
 //! swap (at most [`MAX_PASSES`]). Every pass starts from a posterior recomputed from
-//! scratch, so rounding cannot accumulate. Everything is sequential and the order of
-//! candidates fixed: the same inputs give the same layout.
+//! scratch, so rounding cannot accumulate. The work behind a choice may run in parallel, the
+//! choice itself is made in the fixed order of the candidates: the same inputs give the same
+//! layout with any thread count.
 //!
 //! For `information` the greedy value is within `(1 − 1/e)` of the optimum, because
 //! `log det` of the information is monotone and submodular in the set of sensors
@@ -49,8 +58,10 @@
 
 use crate::error::{Error, Result};
 use crate::geometry::Point;
-use nalgebra::{DMatrix, DVector};
+use crate::simd;
+use nalgebra::{DMatrix, DMatrixView, DVector};
 use rayon::prelude::*;
+use std::sync::OnceLock;
 
 /// The most exchange passes a search makes.
 pub const MAX_PASSES: usize = 25;
@@ -114,14 +125,25 @@ struct State<'a> {
     p: usize,
     n_pts: usize,
     /// Row-major copy of the candidate rows.
-    h: Vec<f64>,
+    h: &'a [f64],
     c: DMatrix<f64>,
+    /// `u_i = C h_i`, row-major N × p (empty for `worst`, which keeps `r` instead).
     u: Vec<f64>,
     d: Vec<f64>,
+    /// `t_i = u_iᵀ Q u_i` (empty for `worst`).
     t: Vec<f64>,
-    /// The edge points' rows `p_k`, row-major n_pts × p (`worst` forms `e_ik = p_k · u_i`
-    /// from them when it needs them).
-    pts: Vec<f64>,
+    /// `worst` only: `r_k = C p_k` at the edge points, row-major n_pts × p, from which it
+    /// forms `e_ik = r_k · h_i` when it weighs a candidate.
+    r: Vec<f64>,
+    /// The edge points' rows `p_k`, row-major n_pts × p.
+    pts: &'a [f64],
+    /// `worst`: the candidate rows in panels ([`Rows::panels`]).
+    panels: &'a [f64],
+    /// [`Rows::near`].
+    near: &'a [OnceLock<Vec<u32>>],
+    /// `worst` only: the rank-one updates `(w, s)` made since `d` was last brought up to date
+    /// (the next weighing of the candidates applies them on its way, [`State::best_worst`]).
+    pending: Vec<(Vec<f64>, f64)>,
     /// Posterior variances at the edge points.
     v: Vec<f64>,
     q: DMatrix<f64>,
@@ -137,6 +159,15 @@ struct State<'a> {
 /// Loss to minimise: (primary, secondary).
 type Loss = (f64, f64);
 
+/// `worst`: a candidate weighed against a cut.
+#[derive(Clone, Copy)]
+enum Weighed {
+    /// Its exact loss.
+    Loss(Loss),
+    /// Skipped: one of its terms, which exceeded the cut (its loss is at least this).
+    Beyond(f64),
+}
+
 fn better(a: Loss, b: Loss) -> bool {
     let tol = SWAP_TOLERANCE * a.0.abs().max(b.0.abs()).max(f64::MIN_POSITIVE);
     if (a.0 - b.0).abs() > tol {
@@ -146,9 +177,79 @@ fn better(a: Loss, b: Loss) -> bool {
     }
 }
 
+/// The candidate rows and the edge points' rows, row-major, made once per search.
+struct Rows {
+    h: Vec<f64>,
+    pts: Vec<f64>,
+    /// `worst` only: the candidate rows again in panels of [`LANES`] candidates, each panel
+    /// p columns of [`LANES`] (zeros past the last candidate), for [`simd::dots32`].
+    panels: Vec<f64>,
+    /// For each candidate, once asked: the candidates closer to it than the spacing (itself
+    /// included), which its choice blocks.
+    near: Vec<OnceLock<Vec<u32>>>,
+}
+
+impl Rows {
+    fn new(inp: &SearchInput<'_>) -> Self {
+        let row_major = |m: &DMatrix<f64>| -> Vec<f64> {
+            (0..m.nrows())
+                .flat_map(|i| (0..m.ncols()).map(move |j| (i, j)))
+                .map(|(i, j)| m[(i, j)])
+                .collect()
+        };
+        let h = row_major(inp.candidates);
+        let p = inp.candidates.ncols();
+        let panels = if inp.goal == Goal::Worst {
+            let mut panels = vec![0.0; h.len().div_ceil(p * LANES).max(1) * p * LANES];
+            for (i, hi) in h.chunks(p.max(1)).enumerate() {
+                let panel = &mut panels[(i / LANES) * p * LANES..];
+                for (j, &x) in hi.iter().enumerate() {
+                    panel[j * LANES + i % LANES] = x;
+                }
+            }
+            panels
+        } else {
+            Vec::new()
+        };
+        Rows {
+            h,
+            pts: row_major(inp.edge_points),
+            panels,
+            near: (0..inp.positions.len()).map(|_| OnceLock::new()).collect(),
+        }
+    }
+}
+
+/// Candidates weighed together by `worst`'s search: the unit of its parallel work, fixed so
+/// that the choice does not depend on the thread count (a multiple of [`LANES`]).
+const WORST_CHUNK: usize = 512;
+
+/// Rows [`simd::dots32`] forms at once.
+const LANES: usize = 32;
+
+/// `worst`: the edge points in the order they are weighed (highest variance first), as the
+/// column-major matrix of the `r_k` (padded to a multiple of [`LANES`] with zero rows whose
+/// variance is −∞, which change no maximum and no sum), for one weighing of the candidates.
+struct Ordered {
+    /// Rows, a multiple of [`LANES`].
+    rows: usize,
+    /// `r_k` of the k-th point in the order, column-major: `r[j · rows + k]`.
+    r: Vec<f64>,
+    /// Its variance `v_k`.
+    v: Vec<f64>,
+    /// The highest variance.
+    v_max: f64,
+    /// The first [`SCREEN`] points of the order: `(k, v_k)`.
+    first: Vec<(usize, f64)>,
+}
+
+/// How many of the highest-variance points screen a panel of candidates at once (most
+/// candidates are refused on one of them) before the rest are weighed one by one.
+const SCREEN: usize = 2;
+
 impl<'a> State<'a> {
     /// The posterior after the fixed sensors and `chosen`, from scratch.
-    fn new(inp: &'a SearchInput<'a>, chosen: &[usize]) -> Result<Self> {
+    fn new(inp: &'a SearchInput<'a>, rows: &'a Rows, chosen: &[usize]) -> Result<Self> {
         let p = inp.prior_variances.len();
         let n = inp.candidates.nrows();
         let mut precision = DMatrix::from_diagonal(&inp.prior_variances.map(|v| 1.0 / v));
@@ -163,29 +264,47 @@ impl<'a> State<'a> {
         let logdet_post: f64 = chol.l().diagonal().iter().map(|x| 2.0 * x.ln()).sum();
         let logdet_prior: f64 = inp.prior_variances.iter().map(|v| -v.ln()).sum();
         let c = chol.inverse();
-        let uc = inp.candidates * &c; // N × p, row i = (C h_i)ᵀ
         let pts = inp.edge_points;
         let n_pts = pts.nrows();
         let q = pts.transpose() * pts / n_pts.max(1) as f64;
-        let uq = &uc * &q;
-        let mut h = vec![0.0; n * p];
-        let mut u = vec![0.0; n * p];
+        let worst = inp.goal == Goal::Worst;
+        let h = rows.h.as_slice();
         let mut d = vec![0.0; n];
-        let mut t = vec![0.0; n];
-        for i in 0..n {
-            for j in 0..p {
-                h[i * p + j] = inp.candidates[(i, j)];
-                u[i * p + j] = uc[(i, j)];
+        let (u, t) = if worst {
+            // only d_i = h_iᵀ C h_i: C times blocks of the row-major rows, read as the
+            // columns of Hᵀ
+            for (block, db) in h.chunks(WORST_CHUNK * p).zip(d.chunks_mut(WORST_CHUNK)) {
+                let cu = &c * DMatrixView::from_slice(block, p, db.len());
+                for ((di, hi), ui) in db.iter_mut().zip(block.chunks(p)).zip(cu.column_iter()) {
+                    *di = simd::dot4(hi, ui.as_slice());
+                }
             }
-            d[i] = (0..p).map(|j| h[i * p + j] * u[i * p + j]).sum();
-            t[i] = (0..p).map(|j| uq[(i, j)] * u[i * p + j]).sum();
-        }
-        let pc = pts * &c;
+            (Vec::new(), Vec::new())
+        } else {
+            let uc = inp.candidates * &c; // N × p, row i = (C h_i)ᵀ
+            let uq = &uc * &q;
+            let mut u = vec![0.0; n * p];
+            let mut t = vec![0.0; n];
+            for i in 0..n {
+                for j in 0..p {
+                    u[i * p + j] = uc[(i, j)];
+                }
+                d[i] = (0..p).map(|j| h[i * p + j] * u[i * p + j]).sum();
+                t[i] = (0..p).map(|j| uq[(i, j)] * u[i * p + j]).sum();
+            }
+            (u, t)
+        };
+        let pc = pts * &c; // row k = (C p_k)ᵀ
         let v: Vec<f64> = (0..n_pts).map(|k| pc.row(k).dot(&pts.row(k))).collect();
+        let r: Vec<f64> = if worst {
+            (0..n_pts)
+                .flat_map(|k| (0..p).map(move |j| (k, j)))
+                .map(|(k, j)| pc[(k, j)])
+                .collect()
+        } else {
+            Vec::new()
+        };
         let mean_var = (&q * &c).trace();
-        let pts_rows: Vec<f64> = (0..n_pts)
-            .flat_map(|k| (0..p).map(move |j| pts[(k, j)]))
-            .collect();
         let mut blocked = vec![0u32; n];
         for &fp in inp.fixed_positions {
             for (i, &cp) in inp.positions.iter().enumerate() {
@@ -203,7 +322,11 @@ impl<'a> State<'a> {
             u,
             d,
             t,
-            pts: pts_rows,
+            r,
+            pts: &rows.pts,
+            panels: &rows.panels,
+            near: &rows.near,
+            pending: Vec::new(),
             v,
             q,
             mean_var,
@@ -220,10 +343,14 @@ impl<'a> State<'a> {
     fn block(&mut self, k: usize, delta: i32) {
         let pk = self.inp.positions[k];
         self.chosen_flag[k] = delta > 0;
-        for (i, &cp) in self.inp.positions.iter().enumerate() {
-            if !(self.inp.spaced)(pk, cp) {
-                self.blocked[i] = (self.blocked[i] as i32 + delta) as u32;
-            }
+        let near = self.near[k].get_or_init(|| {
+            let positions = self.inp.positions.iter().enumerate();
+            let near = positions.filter(|&(_, &cp)| !(self.inp.spaced)(pk, cp));
+            near.map(|(i, _)| i as u32).collect()
+        });
+        for &i in near {
+            let b = &mut self.blocked[i as usize];
+            *b = (*b as i32 + delta) as u32;
         }
     }
 
@@ -243,54 +370,88 @@ impl<'a> State<'a> {
         }
     }
 
-    /// The loss if candidate `i` were added.
+    /// `information` and `edge`: the loss if candidate `i` were added (`worst` weighs its
+    /// candidates with [`State::weigh`]).
     fn loss_with(&self, i: usize) -> Loss {
         let d = self.d[i];
-        match self.inp.goal {
-            Goal::Information => (
-                -(self.info + d.ln_1p()),
-                self.mean_var - self.t[i] / (1.0 + d),
-            ),
-            Goal::Edge => (
-                self.mean_var - self.t[i] / (1.0 + d),
-                -(self.info + d.ln_1p()),
-            ),
-            Goal::Worst => self
-                .worst_loss_with(i, 0..self.n_pts, None)
-                .unwrap_or((f64::INFINITY, f64::INFINITY)),
+        let info = -(self.info + d.ln_1p());
+        let mean_var = self.mean_var - self.t[i] / (1.0 + d);
+        if self.inp.goal == Goal::Information {
+            (info, mean_var)
+        } else {
+            (mean_var, info)
         }
     }
 
-    /// `worst`: the loss if candidate `i` were added, its terms `v_k − e_ik²/(1 + d_i)`
-    /// formed over the edge points in `order`; `None` as soon as one exceeds `cut` (the
-    /// candidate then cannot have a loss below it).
-    fn worst_loss_with(
-        &self,
-        i: usize,
-        order: impl IntoIterator<Item = usize>,
-        cut: Option<f64>,
-    ) -> Option<Loss> {
-        let ui = &self.u[i * self.p..(i + 1) * self.p];
-        let scale = 1.0 / (1.0 + self.d[i]);
+    /// `worst`: the loss if a candidate of row `hi` and `d_i` = `di` were added, its terms
+    /// `v_k − e_ik²/(1 + d_i)`, `e_ik = p_k · C h_i = r_k · h_i`, formed [`LANES`] points at
+    /// a time in `ord`'s order; `Beyond(term)` with a term that exceeds `cut` as soon as one
+    /// does (the loss, their maximum, is at least that term: the candidate is refused exactly
+    /// when its loss exceeds `cut`). The mean variance's change is `t_i = u_iᵀ Q u_i =
+    /// Σ_k e_ik² / n`, from the same terms. The loss does not depend on `cut`.
+    fn weigh(&self, ord: &Ordered, hi: &[f64], di: f64, cut: Option<f64>) -> Weighed {
+        let scale = 1.0 / (1.0 + di);
         let mut worst = f64::NEG_INFINITY;
-        for k in order {
-            let e = self.e_at(k, ui);
-            let term = self.v[k] - e * e * scale;
-            if cut.is_some_and(|c| term > c) {
-                return None;
+        let mut t = 0.0;
+        for k0 in (0..ord.rows).step_by(LANES) {
+            let e = simd::dots32(&ord.r, ord.rows, k0, hi);
+            for (e, &v) in e.iter().zip(&ord.v[k0..k0 + LANES]) {
+                let term = v - e * e * scale;
+                if cut.is_some_and(|c| term > c) {
+                    return Weighed::Beyond(term);
+                }
+                worst = worst.max(term);
+                t += e * e;
             }
-            worst = worst.max(term);
         }
-        Some((worst, self.mean_var - self.t[i] * scale))
+        let t = t / self.n_pts.max(1) as f64;
+        Weighed::Loss((worst, self.mean_var - t * scale))
     }
 
-    /// `e_ik = p_k · u_i`: how much candidate `i` would tell about edge point `k`.
-    fn e_at(&self, k: usize, ui: &[f64]) -> f64 {
-        self.pts[k * self.p..(k + 1) * self.p]
-            .iter()
-            .zip(ui)
-            .map(|(a, b)| a * b)
-            .sum()
+    /// `worst`: the edge points in the order they are weighed, for [`State::weigh`].
+    fn ordered(&self) -> Ordered {
+        let p = self.p;
+        let mut order: Vec<usize> = (0..self.n_pts).collect();
+        order.sort_by(|&a, &b| self.v[b].total_cmp(&self.v[a]).then(a.cmp(&b)));
+        let rows = self.n_pts.div_ceil(LANES).max(1) * LANES;
+        let mut r = vec![0.0; rows * p];
+        let mut v = vec![f64::NEG_INFINITY; rows];
+        for (kk, &k) in order.iter().enumerate() {
+            for (j, &x) in self.r[k * p..(k + 1) * p].iter().enumerate() {
+                r[j * rows + kk] = x;
+            }
+            v[kk] = self.v[k];
+        }
+        Ordered {
+            rows,
+            r,
+            v,
+            v_max: order.first().map_or(0.0, |&k| self.v[k]),
+            first: order.iter().take(SCREEN).map(|&k| (k, self.v[k])).collect(),
+        }
+    }
+
+    /// `d_k` with the pending updates applied (in the order [`State::best_worst`] applies
+    /// them, so the same number).
+    fn d_now(&self, k: usize) -> f64 {
+        let hk = &self.h[k * self.p..(k + 1) * self.p];
+        let mut d = self.d[k];
+        for (w, s) in &self.pending {
+            let a = simd::dot(w, hk);
+            d += s * a * a;
+        }
+        d
+    }
+
+    /// `u_k = C h_k` (stored for `information` and `edge`, formed for `worst`).
+    fn u_of(&self, k: usize) -> Vec<f64> {
+        let p = self.p;
+        if self.u.is_empty() {
+            let hk = DVector::from_column_slice(&self.h[k * p..(k + 1) * p]);
+            (&self.c * hk).iter().copied().collect()
+        } else {
+            self.u[k * p..(k + 1) * p].to_vec()
+        }
     }
 
     /// `worst`: the best feasible candidate, in candidate order, skipping every candidate
@@ -300,20 +461,106 @@ impl<'a> State<'a> {
     /// tolerance at `max v`, [`better`] would refuse the candidate, so it is skipped. A
     /// candidate that is not skipped gets its exact loss (the maximum does not depend on the
     /// order of its terms).
-    fn best_worst(&self) -> Option<(usize, Loss)> {
-        let mut order: Vec<usize> = (0..self.n_pts).collect();
-        order.sort_by(|&a, &b| self.v[b].total_cmp(&self.v[a]).then(a.cmp(&b)));
-        let v_max = order.first().map_or(0.0, |&k| self.v[k]);
-        let mut best: Option<(usize, Loss)> = None;
-        for i in 0..self.d.len() {
-            if !self.feasible(i) {
-                continue;
+    ///
+    /// The work is split in two so that it runs in parallel and still makes exactly the
+    /// choice of the scan in candidate order above. The first phase weighs fixed blocks of
+    /// [`WORST_CHUNK`] candidates in parallel, each block skipping against the lower of its
+    /// own best so far and the `probe`'s loss: a candidate gets its exact loss (which does not
+    /// depend on the cut), or is skipped with the term that exceeded the cut — a lower bound
+    /// of its loss. Any cut would do for the result; a good one (the probe's) only saves
+    /// work. The second phase is the scan itself, in candidate order: a skipped candidate
+    /// whose bound exceeds the scan's cut is refused as the scan would refuse it (the scan
+    /// refuses a candidate exactly when its loss exceeds the cut); any other is weighed
+    /// again, against the scan's cut (few: those the scan meets before its best so far is as
+    /// good as the probe). On its way through a candidate's row the first phase brings `d_i` up to date
+    /// with the pending rank-one updates (one pass over the rows per step instead of one per
+    /// update).
+    fn best_worst(&mut self, probe: Option<usize>) -> Option<(usize, Loss)> {
+        let ord = self.ordered();
+        let p = self.p;
+        let cut_of = |best: Option<(usize, Loss)>| {
+            best.map(|(_, b): (usize, Loss)| {
+                b.0 + SWAP_TOLERANCE * ord.v_max.abs().max(b.0.abs()).max(f64::MIN_POSITIVE)
+            })
+        };
+        let row = |i: usize| &self.h[i * p..(i + 1) * p];
+        let seed = probe.filter(|&i| self.feasible(i)).and_then(|i| {
+            match self.weigh(&ord, row(i), self.d_now(i), None) {
+                Weighed::Loss(l) => cut_of(Some((i, l))),
+                Weighed::Beyond(_) => None,
             }
-            let cut = best.map(|(_, b)| {
-                b.0 + SWAP_TOLERANCE * v_max.abs().max(b.0.abs()).max(f64::MIN_POSITIVE)
-            });
-            let Some(l) = self.worst_loss_with(i, order.iter().copied(), cut) else {
-                continue;
+        });
+        let pending = std::mem::take(&mut self.pending);
+        let mut d = std::mem::take(&mut self.d);
+        let this = &*self;
+        let weigh_block = |(c, (dc, panels)): (usize, (&mut [f64], &[f64]))| {
+            let mut best: Option<(usize, Loss)> = None;
+            let mut weighed: Vec<(usize, Weighed)> = Vec::new();
+            for (b, (db, panel)) in dc
+                .chunks_mut(LANES)
+                .zip(panels.chunks((p * LANES).max(1)))
+                .enumerate()
+            {
+                // the pending updates in their order, `LANES` candidates at a time
+                for (w, s) in &pending {
+                    let a = simd::dots32(panel, LANES, 0, w);
+                    for (di, a) in db.iter_mut().zip(a) {
+                        *di += s * a * a;
+                    }
+                }
+                let cut_now = |best| match (cut_of(best), seed) {
+                    (Some(a), Some(b)) => Some(a.min(b)),
+                    (a, b) => a.or(b),
+                };
+                // the panel's candidates against the first points of the order at once
+                let mut refused = [None; LANES];
+                if let Some(cut) = cut_now(best) {
+                    for &(k, vk) in &ord.first {
+                        let e = simd::dots32(panel, LANES, 0, &this.r[k * p..(k + 1) * p]);
+                        for ((r, e), di) in refused.iter_mut().zip(e).zip(db.iter()) {
+                            let term = vk - e * e * (1.0 / (1.0 + di));
+                            if r.is_none() && term > cut {
+                                *r = Some(term);
+                            }
+                        }
+                    }
+                }
+                for (l, &di) in db.iter().enumerate() {
+                    let i = c * WORST_CHUNK + b * LANES + l;
+                    if !this.feasible(i) {
+                        continue;
+                    }
+                    let w = match refused[l] {
+                        Some(term) => Weighed::Beyond(term),
+                        None => this.weigh(&ord, &this.h[i * p..(i + 1) * p], di, cut_now(best)),
+                    };
+                    if let Weighed::Loss(l) = w {
+                        if best.is_none_or(|(_, b)| better(l, b)) {
+                            best = Some((i, l));
+                        }
+                    }
+                    weighed.push((i, w));
+                }
+            }
+            weighed
+        };
+        let blocks: Vec<Vec<(usize, Weighed)>> = d
+            .par_chunks_mut(WORST_CHUNK)
+            .zip(this.panels.par_chunks(WORST_CHUNK * p.max(1)))
+            .enumerate()
+            .map(weigh_block)
+            .collect();
+        self.d = d;
+        let mut best: Option<(usize, Loss)> = None;
+        for (i, w) in blocks.into_iter().flatten() {
+            let cut = cut_of(best);
+            let l = match w {
+                Weighed::Loss(l) => l,
+                Weighed::Beyond(e) if cut.is_some_and(|c| e > c) => continue,
+                Weighed::Beyond(_) => match self.weigh(&ord, row(i), self.d[i], cut) {
+                    Weighed::Loss(l) => l,
+                    Weighed::Beyond(_) => continue,
+                },
             };
             if best.is_none_or(|(_, b)| better(l, b)) {
                 best = Some((i, l));
@@ -324,9 +571,12 @@ impl<'a> State<'a> {
 
     /// The best feasible candidate to add, with its loss. The losses are computed in
     /// parallel, the choice is made in candidate order: the same winner with any thread count.
-    fn best(&self) -> Option<(usize, Loss)> {
+    ///
+    /// `probe`, a candidate likely to be nearly the best (the sensor just removed from the
+    /// slot being exchanged), only makes `worst`'s weighing faster.
+    fn best(&mut self, probe: Option<usize>) -> Option<(usize, Loss)> {
         if self.inp.goal == Goal::Worst {
-            return self.best_worst();
+            return self.best_worst(probe);
         }
         let losses: Vec<Option<Loss>> = (0..self.d.len())
             .into_par_iter()
@@ -349,9 +599,33 @@ impl<'a> State<'a> {
         let wv = DVector::from_column_slice(w);
         let qw = &self.q * &wv;
         let wqw = wv.dot(&qw);
-        let pw: Vec<f64> = (0..self.n_pts)
-            .map(|k| self.inp.edge_points.row(k).transpose().dot(&wv))
+        let pw: Vec<f64> = self
+            .pts
+            .chunks(p)
+            .map(|pk| pk.iter().zip(w).map(|(a, b)| a * b).sum())
             .collect();
+        if self.u.is_empty() {
+            // `worst`: d_i ← d_i + s (w · h_i)² left to the next weighing, and
+            // r_k ← r_k + s (p_k · w) w
+            self.pending.push((w.to_vec(), s));
+            for (rk, pwk) in self.r.chunks_mut(p).zip(&pw) {
+                for (x, wj) in rk.iter_mut().zip(w) {
+                    *x += s * pwk * wj;
+                }
+            }
+        } else {
+            self.rank_one_rows(w, s, &qw, wqw);
+        }
+        for (v, pwk) in self.v.iter_mut().zip(&pw) {
+            *v += s * pwk * pwk;
+        }
+        self.c.ger(s, &wv, &wv, 1.0);
+        self.mean_var += s * wqw;
+    }
+
+    /// `information` and `edge`: every candidate's `u_i`, `t_i`, `d_i` after `C ← C + s w wᵀ`.
+    fn rank_one_rows(&mut self, w: &[f64], s: f64, qw: &DVector<f64>, wqw: f64) {
+        let p = self.p;
         // every candidate's update is independent of the others': in parallel, with the same
         // operations in the same order as one thread would make them
         let update = |hi: &[f64], ui: &mut [f64], ti: &mut f64, di: &mut f64| {
@@ -376,34 +650,21 @@ impl<'a> State<'a> {
             .zip(self.d.par_iter_mut())
             .with_min_len(64);
         rows.for_each(|(((hi, ui), ti), di)| update(hi, ui, ti, di));
-        for (v, pwk) in self.v.iter_mut().zip(&pw) {
-            *v += s * pwk * pwk;
-        }
-        self.c.ger(s, &wv, &wv, 1.0);
-        self.mean_var += s * wqw;
     }
 
     fn add(&mut self, k: usize) {
-        let p = self.p;
-        let d = self.d[k];
+        let d = self.d_now(k);
         let scale = 1.0 / (1.0 + d).sqrt();
-        let w: Vec<f64> = self.u[k * p..(k + 1) * p]
-            .iter()
-            .map(|x| x * scale)
-            .collect();
+        let w: Vec<f64> = self.u_of(k).iter().map(|x| x * scale).collect();
         self.info += d.ln_1p();
         self.rank_one(&w, -1.0);
         self.block(k, 1);
     }
 
     fn remove(&mut self, k: usize) {
-        let p = self.p;
-        let d = self.d[k].min(1.0 - 1e-15);
+        let d = self.d_now(k).min(1.0 - 1e-15);
         let scale = 1.0 / (1.0 - d).sqrt();
-        let w: Vec<f64> = self.u[k * p..(k + 1) * p]
-            .iter()
-            .map(|x| x * scale)
-            .collect();
+        let w: Vec<f64> = self.u_of(k).iter().map(|x| x * scale).collect();
         self.info += (1.0 - d).ln();
         self.rank_one(&w, 1.0);
         self.block(k, -1);
@@ -426,11 +687,12 @@ fn value_of(goal: Goal, loss: Loss) -> f64 {
 /// the spacing; [`Error::Internal`] on a numerical breakdown.
 pub fn search(inp: &SearchInput<'_>, progress: &dyn Fn(usize, usize)) -> Result<SearchOutcome> {
     let k = inp.count;
-    let mut state = State::new(inp, &[])?;
+    let rows = Rows::new(inp);
+    let mut state = State::new(inp, &rows, &[])?;
     let mut chosen = Vec::with_capacity(k);
     let mut total = k + k;
     for step in 0..k {
-        let Some((i, _)) = state.best() else {
+        let Some((i, _)) = state.best(None) else {
             // Greedy placed sensors where they block the rest; a sweep packs more.
             let packed = sweep_packing(inp, k);
             if packed.len() < k {
@@ -445,7 +707,7 @@ pub fn search(inp: &SearchInput<'_>, progress: &dyn Fn(usize, usize)) -> Result<
                 ));
             }
             chosen = packed;
-            state = State::new(inp, &chosen)?;
+            state = State::new(inp, &rows, &chosen)?;
             break;
         };
         state.add(i);
@@ -458,13 +720,13 @@ pub fn search(inp: &SearchInput<'_>, progress: &dyn Fn(usize, usize)) -> Result<
     let mut done = k;
     while passes < MAX_PASSES && k > 0 {
         passes += 1;
-        let mut state = State::new(inp, &chosen)?;
+        let mut state = State::new(inp, &rows, &chosen)?;
         let mut improved = false;
         for slot in chosen.iter_mut() {
             let current = state.loss();
             let c = *slot;
             state.remove(c);
-            match state.best() {
+            match state.best(Some(c)) {
                 Some((j, l)) if j != c && better(l, current) => {
                     state.add(j);
                     *slot = j;
@@ -481,7 +743,7 @@ pub fn search(inp: &SearchInput<'_>, progress: &dyn Fn(usize, usize)) -> Result<
         }
         total += k;
     }
-    let state = State::new(inp, &chosen)?;
+    let state = State::new(inp, &rows, &chosen)?;
     Ok(SearchOutcome {
         chosen,
         greedy_value,
@@ -518,5 +780,158 @@ fn sweep_packing(inp: &SearchInput<'_>, k: usize) -> Vec<usize> {
 /// The criterion value of a given set of candidates (fixed sensors included), from scratch:
 /// for tests and exhaustive search.
 pub fn criterion_value(inp: &SearchInput<'_>, chosen: &[usize]) -> Result<f64> {
-    Ok(value_of(inp.goal, State::new(inp, chosen)?.loss()))
+    let rows = Rows::new(inp);
+    Ok(value_of(inp.goal, State::new(inp, &rows, chosen)?.loss()))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use rand::{RngExt, SeedableRng};
+    use rand_chacha::ChaCha8Rng;
+
+    /// An invented `worst` problem: `n` random candidate rows (the last 40 copies of the
+    /// first 40 at other positions, for exact ties), `p` coefficients, `n_pts` edge points.
+    fn problem(
+        seed: u64,
+        n: usize,
+        p: usize,
+        n_pts: usize,
+    ) -> (DMatrix<f64>, Vec<Point>, DVector<f64>, DMatrix<f64>) {
+        let mut rng = ChaCha8Rng::seed_from_u64(seed);
+        let mut h = DMatrix::from_fn(n, p, |_, _| rng.random_range(-1.0..1.0));
+        for i in 0..40 {
+            let row = h.row(i).clone_owned();
+            h.set_row(n - 40 + i, &row);
+        }
+        let positions = (0..n)
+            .map(|_| Point::new(rng.random_range(0.0..1.0), rng.random_range(0.0..1.0)))
+            .collect();
+        let prior = DVector::from_fn(p, |_, _| rng.random_range(0.5..2.0));
+        let pts = DMatrix::from_fn(n_pts, p, |_, _| rng.random_range(-1.0..1.0));
+        (h, positions, prior, pts)
+    }
+
+    /// `worst`'s parallel weighing (blocks, screening, probe, second phase) makes the choice
+    /// of the plain scan in candidate order over the exact losses, whatever the probe, and
+    /// leaves every `d_i` as the pending updates make it one candidate at a time.
+    #[test]
+    fn worst_weighing_is_the_plain_scan() {
+        for seed in 0..4_u64 {
+            let (mut h, positions, mut prior, mut pts) = problem(seed, 1300, 12, 45);
+            // near-ties on the primary: edge point 0 reads coefficient 0 alone, whose prior
+            // variance (100) makes it the worst point, and the candidates barely see that
+            // coefficient — their losses differ by a few swap tolerances (1e-9 relative) or
+            // not at all, and the secondary decides, as on a fine grid of candidates
+            prior[0] = 100.0;
+            pts.row_mut(0).fill(0.0);
+            pts[(0, 0)] = 1.0;
+            let mut rng = ChaCha8Rng::seed_from_u64(100 + seed);
+            for i in 0..h.nrows() {
+                h[(i, 0)] = if i % 3 == 0 {
+                    0.0
+                } else {
+                    rng.random_range(0.0..[5e-6, 1e-5, 1e-5, 2e-5][seed as usize])
+                };
+            }
+            let fixed = DMatrix::zeros(0, 12);
+            let spaced = |a: Point, b: Point| (a.x - b.x).hypot(a.y - b.y) >= 0.03;
+            let inp = SearchInput {
+                candidates: &h,
+                positions: &positions,
+                fixed: &fixed,
+                fixed_positions: &[],
+                prior_variances: &prior,
+                edge_points: &pts,
+                goal: Goal::Worst,
+                count: 4,
+                spaced: &spaced,
+            };
+            let rows = Rows::new(&inp);
+            let mut state = State::new(&inp, &rows, &[3, 700]).expect("state");
+            state.remove(700);
+            state.add(11);
+            state.remove(3);
+            assert_eq!(state.pending.len(), 3);
+            let ord = state.ordered();
+            let p = state.p;
+            let d_now: Vec<f64> = (0..h.nrows()).map(|i| state.d_now(i)).collect();
+            let mut expected: Option<(usize, Loss)> = None;
+            for (i, &di) in d_now.iter().enumerate() {
+                if !state.feasible(i) {
+                    continue;
+                }
+                let Weighed::Loss(l) = state.weigh(&ord, &state.h[i * p..(i + 1) * p], di, None)
+                else {
+                    panic!("no cut, no refusal");
+                };
+                if expected.is_none_or(|(_, b)| better(l, b)) {
+                    expected = Some((i, l));
+                }
+            }
+            let infeasible = (0..h.nrows()).find(|&i| !state.feasible(i));
+            for probe in [None, Some(3), expected.map(|e| e.0), Some(5), infeasible] {
+                let mut s = State::new(&inp, &rows, &[3, 700]).expect("state");
+                s.remove(700);
+                s.add(11);
+                s.remove(3);
+                let got = s.best_worst(probe);
+                assert_eq!(
+                    got.map(|g| g.0),
+                    expected.map(|e| e.0),
+                    "seed {seed}, {probe:?}"
+                );
+                let (g, e) = (got.expect("a best").1, expected.expect("a best").1);
+                assert_eq!(
+                    (g.0.to_bits(), g.1.to_bits()),
+                    (e.0.to_bits(), e.1.to_bits())
+                );
+                assert!(s.pending.is_empty());
+                for (i, (a, b)) in s.d.iter().zip(&d_now).enumerate() {
+                    assert_eq!(a.to_bits(), b.to_bits(), "d_{i}");
+                }
+            }
+        }
+    }
+
+    /// `worst`'s loss for a candidate is the largest posterior variance along the edge points
+    /// with it, computed from scratch: `max_k p_kᵀ (Σ₀⁻¹ + Σ h hᵀ)⁻¹ p_k`.
+    #[test]
+    fn worst_loss_is_the_largest_posterior_variance() {
+        let (h, positions, prior, pts) = problem(9, 300, 10, 33);
+        let fixed = DMatrix::zeros(0, 10);
+        let spaced = |_: Point, _: Point| true;
+        let inp = SearchInput {
+            candidates: &h,
+            positions: &positions,
+            fixed: &fixed,
+            fixed_positions: &[],
+            prior_variances: &prior,
+            edge_points: &pts,
+            goal: Goal::Worst,
+            count: 3,
+            spaced: &spaced,
+        };
+        let rows = Rows::new(&inp);
+        let mut state = State::new(&inp, &rows, &[4]).expect("state");
+        state.add(17);
+        let ord = state.ordered();
+        for i in [0, 5, 99, 299] {
+            let Weighed::Loss((worst, _)) =
+                state.weigh(&ord, &state.h[i * 10..(i + 1) * 10], state.d_now(i), None)
+            else {
+                panic!("no cut, no refusal");
+            };
+            let mut precision = DMatrix::from_diagonal(&prior.map(|v| 1.0 / v));
+            for k in [4, 17, i] {
+                let r = h.row(k);
+                precision += r.transpose() * r;
+            }
+            let c = precision.try_inverse().expect("invertible");
+            let truth = (0..pts.nrows())
+                .map(|k| (pts.row(k) * &c * pts.row(k).transpose())[(0, 0)])
+                .fold(f64::NEG_INFINITY, f64::max);
+            assert!((worst - truth).abs() <= 1e-12 * truth, "{worst} vs {truth}");
+        }
+    }
 }
