@@ -30,23 +30,32 @@ pub(super) fn assemble(
     let case = problem.case;
     let boot = &resampled.output;
     let confidence = case.uncertainty.confidence;
-    let prof_est = profile_estimate(&maps, &fitted);
-    // the profiles' errors in every replicate: the bands, the hottest point and the
-    // exceedance all read them
-    let prof_err = boot.errors_of(&maps.profile);
-    // each replicate's hottest point and largest value (the hottest point's shares and the
-    // exceedance read them)
-    let peaks = ReplicatePeaks::new(&problem.edge_positions, &prof_est, &prof_err);
-    let (edges, hottest) = edge_results(
-        problem,
-        &fitted,
-        &maps,
-        &resampled,
-        &prof_est,
-        (&prof_err, &peaks),
-    )?;
+    // the field's bands need nothing of the edges': formed side by side with them (the
+    // edges' work, mostly sequential, on this thread; the field's parallel blocks wherever
+    // a thread is free)
+    let (edge_side, field) = rayon::join(
+        || -> Result<_> {
+            let prof_est = profile_estimate(&maps, &fitted);
+            // the profiles' errors in every replicate: the bands, the hottest point and the
+            // exceedance all read them
+            let prof_err = boot.errors_of(&maps.profile);
+            // each replicate's hottest point and largest value (the hottest point's shares
+            // and the exceedance read them)
+            let peaks = ReplicatePeaks::new(&problem.edge_positions, &prof_est, &prof_err);
+            let (edges, hottest) = edge_results(
+                problem,
+                &fitted,
+                &maps,
+                &resampled,
+                &prof_est,
+                (&prof_err, &peaks),
+            )?;
+            Ok((edges, hottest, peaks))
+        },
+        || field_result(&fitted, &maps, boot, confidence),
+    );
+    let (edges, hottest, peaks) = edge_side?;
     let convective_heat_flows = convective_flows(problem, &fitted, &maps, &resampled);
-    let field = field_result(&fitted, &maps, boot, confidence);
     let exceedance = options
         .limit
         .map(|limit| exceedance(&peaks.maxima, &fitted, limit, options));
