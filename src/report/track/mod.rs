@@ -57,7 +57,9 @@ pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
                     .name()
                     .as_bytes(),
             );
-            let _ = write!(out, ",{},", f.lambda);
+            out.push(b',');
+            push_lambda(out, f.lambda);
+            out.push(b',');
             if let Some(crate::track::bounds::RowBound::Interval([lo, hi])) = rec.bound {
                 push_fixed(out, u.temp(lo), TEMP_DECIMALS);
                 out.push(b',');
@@ -139,10 +141,36 @@ fn push_u64(out: &mut Vec<u8>, mut v: u64, width: usize) {
             break;
         }
     }
+    out.reserve(width.max(buf.len() - i));
     for _ in (buf.len() - i)..width {
         out.push(b'0');
     }
-    out.extend_from_slice(&buf[i..]);
+    // a few bytes: pushed one by one (a slice copy of unknown length is a call to memcpy,
+    // which cost more than the digits on a calibrated run's thread that writes every row)
+    for &d in &buf[i..] {
+        out.push(d);
+    }
+}
+
+thread_local! {
+    /// The last strength written and its text: a calibrated run writes the same λ on
+    /// nearly every row.
+    static LAST_LAMBDA: std::cell::RefCell<(Option<u64>, Vec<u8>)> =
+        const { std::cell::RefCell::new((None, Vec::new())) };
+}
+
+/// `λ` as `{}` writes it (the shortest text that reads back to the same number), formatted
+/// once per distinct value in a row.
+fn push_lambda(out: &mut Vec<u8>, lambda: f64) {
+    use std::io::Write as _;
+    LAST_LAMBDA.with_borrow_mut(|(bits, text)| {
+        if *bits != Some(lambda.to_bits()) {
+            text.clear();
+            let _ = write!(text, "{lambda}");
+            *bits = Some(lambda.to_bits());
+        }
+        out.extend_from_slice(text);
+    });
 }
 
 /// [`csv_cell`] appended to `out` without an intermediate string.
