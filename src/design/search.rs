@@ -812,6 +812,27 @@ mod tests {
         (h, positions, prior, pts)
     }
 
+    /// A `worst` search for 4 sensors among the candidates `h` at `positions`, no fixed sensor.
+    fn worst_input<'a>(
+        (h, positions): (&'a DMatrix<f64>, &'a [Point]),
+        fixed: &'a DMatrix<f64>,
+        prior: &'a DVector<f64>,
+        pts: &'a DMatrix<f64>,
+        spaced: &'a (dyn Fn(Point, Point) -> bool + Sync),
+    ) -> SearchInput<'a> {
+        SearchInput {
+            candidates: h,
+            positions,
+            fixed,
+            fixed_positions: &[],
+            prior_variances: prior,
+            edge_points: pts,
+            goal: Goal::Worst,
+            count: 4,
+            spaced,
+        }
+    }
+
     /// `worst`'s parallel weighing (blocks, screening, probe, second phase) makes the choice
     /// of the plain scan in candidate order over the exact losses, whatever the probe, and
     /// leaves every `d_i` as the pending updates make it one candidate at a time.
@@ -836,17 +857,7 @@ mod tests {
             }
             let fixed = DMatrix::zeros(0, 12);
             let spaced = |a: Point, b: Point| (a.x - b.x).hypot(a.y - b.y) >= 0.03;
-            let inp = SearchInput {
-                candidates: &h,
-                positions: &positions,
-                fixed: &fixed,
-                fixed_positions: &[],
-                prior_variances: &prior,
-                edge_points: &pts,
-                goal: Goal::Worst,
-                count: 4,
-                spaced: &spaced,
-            };
+            let inp = worst_input((&h, &positions), &fixed, &prior, &pts, &spaced);
             let rows = Rows::new(&inp);
             let mut state = State::new(&inp, &rows, &[3, 700]).expect("state");
             state.remove(700);
@@ -901,17 +912,7 @@ mod tests {
         let (h, positions, prior, pts) = problem(9, 300, 10, 33);
         let fixed = DMatrix::zeros(0, 10);
         let spaced = |_: Point, _: Point| true;
-        let inp = SearchInput {
-            candidates: &h,
-            positions: &positions,
-            fixed: &fixed,
-            fixed_positions: &[],
-            prior_variances: &prior,
-            edge_points: &pts,
-            goal: Goal::Worst,
-            count: 3,
-            spaced: &spaced,
-        };
+        let inp = worst_input((&h, &positions), &fixed, &prior, &pts, &spaced);
         let rows = Rows::new(&inp);
         let mut state = State::new(&inp, &rows, &[4]).expect("state");
         state.add(17);
