@@ -14,8 +14,10 @@
 //!    of two sums, `ℓ(λ) = −Σ ln w_i` (the log-determinant) and `Q(λ) = δ₀ + Σ w_i β_i²` (the
 //!    quadratic form): `E = m' ln 2π + ℓ + Q` (known σ) or `E = m' (ln(2π Q/m') + 1) + ℓ`
 //!    (profiled scale). Each `w_i` rises with λ, so `ℓ` falls and `Q` rises, and `E` rises
-//!    with `Q` and with `ℓ`. Between two grid points `λ_i < λ_j` every grid value is
-//!    therefore at least `E(ℓ(λ_j), Q(λ_i))`. The search evaluates the grid points around the
+//!    with `Q` and with `ℓ`. Every grid value strictly between two grid points `λ_i < λ_j`
+//!    is therefore at least `E(ℓ(λ_{j−1}), Q(λ_i))` (`ℓ` is known at every grid point from
+//!    the table, evaluated or not; `ℓ(λ_j)` in its place made a looser bound, which left 18 %
+//!    more grid points to evaluate with the profiled scale). The search evaluates the grid points around the
 //!    previous data vector's choice and the two ends, then bisects the runs of grid points
 //!    between evaluated ones: a run whose bound exceeds the best value found so far (by more
 //!    than a rounding margin) cannot hold the best grid point and is dropped; the rest are
@@ -287,13 +289,16 @@ impl Decomposition {
             }
         }
         while let Some((i, j)) = st.stack.pop() {
-            // every grid point strictly between i and j is at least E(ℓ_j, Q_i); the
-            // criterion is ℓ plus a function of Q, so that is E_i − ℓ_i + ℓ_j (no logarithm
-            // of Q again; the same number to rounding, far inside the margin below)
+            // every grid point strictly between i and j is at least E(ℓ_{j−1}, Q_i) (ℓ falls
+            // and Q rises with λ; ℓ is the table's at every grid point, evaluated or not);
+            // the criterion is ℓ plus a function of Q, so that is E_i − ℓ_i + ℓ_{j−1} (no
+            // logarithm of Q again; the same number to rounding, far inside the margin
+            // below)
+            let ell_last = table.ell[j - 1];
             let bound = if st.value[i].is_finite() {
-                st.value[i] - st.ell[i] + st.ell[j]
+                st.value[i] - st.ell[i] + ell_last
             } else {
-                criterion(kind, mp, st.ell[j], st.quad[i])
+                criterion(kind, mp, ell_last, st.quad[i])
             };
             let margin = 1e-9 * (1.0 + best.0.abs());
             if bound > best.0 + margin {
