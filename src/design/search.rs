@@ -15,9 +15,9 @@
 //! | `edge` (A on the edge profile `P c`) | `tr(Q C)`, `Q = PᵀP / n` (mean variance over the edge points) | `− uᵀ Q u / (1 + d)` |
 //! | `worst` | `max_k p_kᵀ C p_k` over the edge points | `p_kᵀ C p_k − (p_k·u)² / (1 + d)` at each point |
 //!
-//! The search keeps, for every candidate `i`, `u_i = C h_i`, `d_i` and `t_i = u_iᵀ Q u_i`,
-//! and the posterior variances `v_k = p_kᵀ C p_k` at the edge points. Adding candidate `k` is the update `C ← C − w wᵀ` with
-//! `w = u_k/√(1 + d_k)`; removing a chosen sensor `c` is `C ← C + w wᵀ` with
+//! The search keeps, for every candidate `i`, `u_i = C h_i`, `d_i` and `t_i = u_iᵀ Q u_i`, and the
+//! posterior variances `v_k = p_kᵀ C p_k` at the edge points. Adding candidate `k` is the update
+//! `C ← C − w wᵀ` with `w = u_k/√(1 + d_k)`; removing a chosen sensor `c` is `C ← C + w wᵀ` with
 //! `w = u_c/√(1 − d_c)` (the same identity read backwards; `d_c < 1` for a sensor in the
 //! posterior). Either way, with `a_i = w · h_i` and sign `s`,
 //!
@@ -51,10 +51,10 @@
 //! layout with any thread count.
 //!
 //! For `information` the greedy value is within `(1 − 1/e)` of the optimum, because
-//! `log det` of the information is monotone and submodular in the set of sensors
-//! (Nemhauser, Wolsey & Fisher 1978, Math. Program. 14:265–294; Krause, Singh & Guestrin
-//! 2008, JMLR 9:235–284). `tests/integration/design_search.rs` checks the bound and the distance to the
-//! optimum by exhaustive search on small cases.
+//! `log det` of the information is monotone and submodular in the set of sensors (Nemhauser, Wolsey
+//! & Fisher 1978, Math. Program. 14:265–294; Krause, Singh & Guestrin 2008, JMLR 9:235–284).
+//! `tests/integration/design_search.rs` checks the bound and the distance to the optimum by
+//! exhaustive search on small cases.
 
 use crate::error::{Error, Result};
 use crate::geometry::Point;
@@ -124,8 +124,8 @@ struct State<'a> {
     inp: &'a SearchInput<'a>,
     p: usize,
     n_pts: usize,
-    /// Row-major copy of the candidate rows.
-    h: &'a [f64],
+    /// The candidate and edge-point rows, and the candidates' neighbours.
+    rows: &'a Rows,
     c: DMatrix<f64>,
     /// `u_i = C h_i`, row-major N × p (empty for `worst`, which keeps `r` instead).
     u: Vec<f64>,
@@ -135,12 +135,6 @@ struct State<'a> {
     /// `worst` only: `r_k = C p_k` at the edge points, row-major n_pts × p, from which it
     /// forms `e_ik = r_k · h_i` when it weighs a candidate.
     r: Vec<f64>,
-    /// The edge points' rows `p_k`, row-major n_pts × p.
-    pts: &'a [f64],
-    /// `worst`: the candidate rows in panels ([`Rows::panels`]).
-    panels: &'a [f64],
-    /// [`Rows::near`].
-    near: &'a [OnceLock<Vec<u32>>],
     /// `worst` only: the rank-one updates `(w, s)` made since `d` was last brought up to date
     /// (the next weighing of the candidates applies them on its way, [`State::best_worst`]).
     pending: Vec<(Vec<f64>, f64)>,
@@ -179,7 +173,9 @@ fn better(a: Loss, b: Loss) -> bool {
 
 /// The candidate rows and the edge points' rows, row-major, made once per search.
 struct Rows {
+    /// The candidate rows `h_i`, row-major N × p.
     h: Vec<f64>,
+    /// The edge points' rows `p_k`, row-major n_pts × p.
     pts: Vec<f64>,
     /// `worst` only: the candidate rows again in panels of [`LANES`] candidates, each panel
     /// p columns of [`LANES`] (zeros past the last candidate), for [`simd::dots32`].
@@ -191,12 +187,6 @@ struct Rows {
 
 impl Rows {
     fn new(inp: &SearchInput<'_>) -> Self {
-        let row_major = |m: &DMatrix<f64>| -> Vec<f64> {
-            (0..m.nrows())
-                .flat_map(|i| (0..m.ncols()).map(move |j| (i, j)))
-                .map(|(i, j)| m[(i, j)])
-                .collect()
-        };
         let h = row_major(inp.candidates);
         let p = inp.candidates.ncols();
         let panels = if inp.goal == Goal::Worst {
@@ -220,6 +210,11 @@ impl Rows {
     }
 }
 
+/// The entries of `m` row by row.
+fn row_major(m: &DMatrix<f64>) -> Vec<f64> {
+    m.transpose().as_slice().to_vec()
+}
+
 /// Candidates weighed together by `worst`'s search: the unit of its parallel work, fixed so
 /// that the choice does not depend on the thread count (a multiple of [`LANES`]).
 const WORST_CHUNK: usize = 512;
@@ -241,6 +236,28 @@ struct Ordered {
     v_max: f64,
     /// The first [`SCREEN`] points of the order: `(k, v_k)`.
     first: Vec<(usize, f64)>,
+}
+
+impl Ordered {
+    /// The cut against the best so far `(i, loss)`: a term above it makes [`better`] refuse
+    /// the candidate (the swap tolerance taken at the highest variance, which bounds every
+    /// loss).
+    fn cut(&self, best: Option<(usize, Loss)>) -> Option<f64> {
+        best.map(|(_, b)| {
+            b.0 + SWAP_TOLERANCE * self.v_max.abs().max(b.0.abs()).max(f64::MIN_POSITIVE)
+        })
+    }
+}
+
+/// `d_i ← d_i + s (w · h_i)²` for the pending rank-one updates `(w, s)` in their order, on
+/// the [`LANES`] candidates of a panel (`d_i` in `db`).
+fn apply_pending(pending: &[(Vec<f64>, f64)], panel: &[f64], db: &mut [f64]) {
+    for (w, s) in pending {
+        let a = simd::dots32(panel, LANES, 0, w);
+        for (di, a) in db.iter_mut().zip(a) {
+            *di += s * a * a;
+        }
+    }
 }
 
 /// How many of the highest-variance points screen a panel of candidates at once (most
@@ -296,14 +313,7 @@ impl<'a> State<'a> {
         };
         let pc = pts * &c; // row k = (C p_k)ᵀ
         let v: Vec<f64> = (0..n_pts).map(|k| pc.row(k).dot(&pts.row(k))).collect();
-        let r: Vec<f64> = if worst {
-            (0..n_pts)
-                .flat_map(|k| (0..p).map(move |j| (k, j)))
-                .map(|(k, j)| pc[(k, j)])
-                .collect()
-        } else {
-            Vec::new()
-        };
+        let r = if worst { row_major(&pc) } else { Vec::new() };
         let mean_var = (&q * &c).trace();
         let mut blocked = vec![0u32; n];
         for &fp in inp.fixed_positions {
@@ -317,15 +327,12 @@ impl<'a> State<'a> {
             inp,
             p,
             n_pts,
-            h,
+            rows,
             c,
             u,
             d,
             t,
             r,
-            pts: &rows.pts,
-            panels: &rows.panels,
-            near: &rows.near,
             pending: Vec::new(),
             v,
             q,
@@ -343,7 +350,7 @@ impl<'a> State<'a> {
     fn block(&mut self, k: usize, delta: i32) {
         let pk = self.inp.positions[k];
         self.chosen_flag[k] = delta > 0;
-        let near = self.near[k].get_or_init(|| {
+        let near = self.rows.near[k].get_or_init(|| {
             let positions = self.inp.positions.iter().enumerate();
             let near = positions.filter(|&(_, &cp)| !(self.inp.spaced)(pk, cp));
             near.map(|(i, _)| i as u32).collect()
@@ -434,7 +441,7 @@ impl<'a> State<'a> {
     /// `d_k` with the pending updates applied (in the order [`State::best_worst`] applies
     /// them, so the same number).
     fn d_now(&self, k: usize) -> f64 {
-        let hk = &self.h[k * self.p..(k + 1) * self.p];
+        let hk = self.h_row(k);
         let mut d = self.d[k];
         for (w, s) in &self.pending {
             let a = simd::dot(w, hk);
@@ -446,118 +453,68 @@ impl<'a> State<'a> {
     /// `u_k = C h_k` (stored for `information` and `edge`, formed for `worst`).
     fn u_of(&self, k: usize) -> Vec<f64> {
         let p = self.p;
-        if self.u.is_empty() {
-            let hk = DVector::from_column_slice(&self.h[k * p..(k + 1) * p]);
+        if self.inp.goal == Goal::Worst {
+            let hk = DVector::from_column_slice(self.h_row(k));
             (&self.c * hk).iter().copied().collect()
         } else {
             self.u[k * p..(k + 1) * p].to_vec()
         }
     }
 
+    /// Candidate `i`'s row `h_i`.
+    fn h_row(&self, i: usize) -> &[f64] {
+        &self.rows.h[i * self.p..(i + 1) * self.p]
+    }
+
     /// `worst`: the best feasible candidate, in candidate order, skipping every candidate
     /// whose loss provably cannot beat the best so far. Its loss is the maximum over the edge
     /// points of `v_k − e_ik²/(1 + d_i)`, at most `max v`; the terms are formed from the
     /// highest `v_k` down, and as soon as one exceeds the best loss by more than the swap
-    /// tolerance at `max v`, [`better`] would refuse the candidate, so it is skipped. A
-    /// candidate that is not skipped gets its exact loss (the maximum does not depend on the
-    /// order of its terms).
+    /// tolerance at `max v` ([`Ordered::cut`]), [`better`] would refuse the candidate, so it
+    /// is skipped. A candidate that is not skipped gets its exact loss (the maximum does not
+    /// depend on the order of its terms).
     ///
     /// The work is split in two so that it runs in parallel and still makes exactly the
     /// choice of the scan in candidate order above. The first phase weighs fixed blocks of
-    /// [`WORST_CHUNK`] candidates in parallel, each block skipping against the lower of its
-    /// own best so far and the `probe`'s loss: a candidate gets its exact loss (which does not
-    /// depend on the cut), or is skipped with the term that exceeded the cut — a lower bound
-    /// of its loss. Any cut would do for the result; a good one (the probe's) only saves
-    /// work. The second phase is the scan itself, in candidate order: a skipped candidate
-    /// whose bound exceeds the scan's cut is refused as the scan would refuse it (the scan
-    /// refuses a candidate exactly when its loss exceeds the cut); any other is weighed
-    /// again, against the scan's cut (few: those the scan meets before its best so far is as
-    /// good as the probe). On its way through a candidate's row the first phase brings `d_i` up to date
-    /// with the pending rank-one updates (one pass over the rows per step instead of one per
-    /// update).
+    /// [`WORST_CHUNK`] candidates in parallel ([`State::weigh_block`]), each block skipping
+    /// against the lower of its own best so far and the `probe`'s loss: a candidate gets its
+    /// exact loss (which does not depend on the cut), or is skipped with the term that
+    /// exceeded the cut — a lower bound of its loss. Any cut would do for the result; a good
+    /// one (the probe's) only saves work. The second phase is the scan itself, in candidate
+    /// order: a skipped candidate whose bound exceeds the scan's cut is refused as the scan
+    /// would refuse it (the scan refuses a candidate exactly when its loss exceeds the cut);
+    /// any other is weighed again, against the scan's cut (few: those the scan meets before
+    /// its best so far is as good as the probe). On its way through a candidate's row the
+    /// first phase brings `d_i` up to date with the pending rank-one updates (one pass over
+    /// the rows per step instead of one per update).
     fn best_worst(&mut self, probe: Option<usize>) -> Option<(usize, Loss)> {
         let ord = self.ordered();
         let p = self.p;
-        let cut_of = |best: Option<(usize, Loss)>| {
-            best.map(|(_, b): (usize, Loss)| {
-                b.0 + SWAP_TOLERANCE * ord.v_max.abs().max(b.0.abs()).max(f64::MIN_POSITIVE)
-            })
-        };
-        let row = |i: usize| &self.h[i * p..(i + 1) * p];
         let seed = probe.filter(|&i| self.feasible(i)).and_then(|i| {
-            match self.weigh(&ord, row(i), self.d_now(i), None) {
-                Weighed::Loss(l) => cut_of(Some((i, l))),
+            match self.weigh(&ord, self.h_row(i), self.d_now(i), None) {
+                Weighed::Loss(l) => ord.cut(Some((i, l))),
                 Weighed::Beyond(_) => None,
             }
         });
         let pending = std::mem::take(&mut self.pending);
         let mut d = std::mem::take(&mut self.d);
         let this = &*self;
-        let weigh_block = |(c, (dc, panels)): (usize, (&mut [f64], &[f64]))| {
-            let mut best: Option<(usize, Loss)> = None;
-            let mut weighed: Vec<(usize, Weighed)> = Vec::new();
-            for (b, (db, panel)) in dc
-                .chunks_mut(LANES)
-                .zip(panels.chunks((p * LANES).max(1)))
-                .enumerate()
-            {
-                // the pending updates in their order, `LANES` candidates at a time
-                for (w, s) in &pending {
-                    let a = simd::dots32(panel, LANES, 0, w);
-                    for (di, a) in db.iter_mut().zip(a) {
-                        *di += s * a * a;
-                    }
-                }
-                let cut_now = |best| match (cut_of(best), seed) {
-                    (Some(a), Some(b)) => Some(a.min(b)),
-                    (a, b) => a.or(b),
-                };
-                // the panel's candidates against the first points of the order at once
-                let mut refused = [None; LANES];
-                if let Some(cut) = cut_now(best) {
-                    for &(k, vk) in &ord.first {
-                        let e = simd::dots32(panel, LANES, 0, &this.r[k * p..(k + 1) * p]);
-                        for ((r, e), di) in refused.iter_mut().zip(e).zip(db.iter()) {
-                            let term = vk - e * e * (1.0 / (1.0 + di));
-                            if r.is_none() && term > cut {
-                                *r = Some(term);
-                            }
-                        }
-                    }
-                }
-                for (l, &di) in db.iter().enumerate() {
-                    let i = c * WORST_CHUNK + b * LANES + l;
-                    if !this.feasible(i) {
-                        continue;
-                    }
-                    let w = match refused[l] {
-                        Some(term) => Weighed::Beyond(term),
-                        None => this.weigh(&ord, &this.h[i * p..(i + 1) * p], di, cut_now(best)),
-                    };
-                    if let Weighed::Loss(l) = w {
-                        if best.is_none_or(|(_, b)| better(l, b)) {
-                            best = Some((i, l));
-                        }
-                    }
-                    weighed.push((i, w));
-                }
-            }
-            weighed
-        };
         let blocks: Vec<Vec<(usize, Weighed)>> = d
             .par_chunks_mut(WORST_CHUNK)
-            .zip(this.panels.par_chunks(WORST_CHUNK * p.max(1)))
+            .zip(this.rows.panels.par_chunks(WORST_CHUNK * p.max(1)))
             .enumerate()
-            .map(weigh_block)
+            .map(|(c, (dc, panels))| {
+                this.weigh_block(&ord, &pending, seed, c * WORST_CHUNK, dc, panels)
+            })
             .collect();
         self.d = d;
         let mut best: Option<(usize, Loss)> = None;
         for (i, w) in blocks.into_iter().flatten() {
-            let cut = cut_of(best);
+            let cut = ord.cut(best);
             let l = match w {
                 Weighed::Loss(l) => l,
                 Weighed::Beyond(e) if cut.is_some_and(|c| e > c) => continue,
-                Weighed::Beyond(_) => match self.weigh(&ord, row(i), self.d[i], cut) {
+                Weighed::Beyond(_) => match self.weigh(&ord, self.h_row(i), self.d[i], cut) {
                     Weighed::Loss(l) => l,
                     Weighed::Beyond(_) => continue,
                 },
@@ -567,6 +524,70 @@ impl<'a> State<'a> {
             }
         }
         best
+    }
+
+    /// [`State::best_worst`]'s first phase on one block: the feasible candidates from
+    /// `first` on, their `d_i` (`dc`, brought up to date with `pending` on the way) and rows
+    /// in panels, each with its exact loss or the term that refused it, against the lower
+    /// of the block's best so far and `seed`.
+    fn weigh_block(
+        &self,
+        ord: &Ordered,
+        pending: &[(Vec<f64>, f64)],
+        seed: Option<f64>,
+        first: usize,
+        dc: &mut [f64],
+        panels: &[f64],
+    ) -> Vec<(usize, Weighed)> {
+        let p = self.p;
+        let cut_now = |best: Option<(usize, Loss)>| match (ord.cut(best), seed) {
+            (Some(a), Some(b)) => Some(a.min(b)),
+            (a, b) => a.or(b),
+        };
+        let mut best: Option<(usize, Loss)> = None;
+        let mut weighed = Vec::new();
+        let panels = dc.chunks_mut(LANES).zip(panels.chunks((p * LANES).max(1)));
+        for (b, (db, panel)) in panels.enumerate() {
+            apply_pending(pending, panel, db);
+            let refused = match cut_now(best) {
+                Some(cut) => self.screen(ord, panel, db, cut),
+                None => [None; LANES],
+            };
+            for (l, &di) in db.iter().enumerate() {
+                let i = first + b * LANES + l;
+                if !self.feasible(i) {
+                    continue;
+                }
+                let w = match refused[l] {
+                    Some(term) => Weighed::Beyond(term),
+                    None => self.weigh(ord, self.h_row(i), di, cut_now(best)),
+                };
+                if let Weighed::Loss(l) = w {
+                    if best.is_none_or(|(_, b)| better(l, b)) {
+                        best = Some((i, l));
+                    }
+                }
+                weighed.push((i, w));
+            }
+        }
+        weighed
+    }
+
+    /// The first term of each candidate of a panel (`d_i` in `db`) on [`Ordered::first`]'s
+    /// points that exceeds `cut`, if one does: the [`LANES`] candidates at once.
+    fn screen(&self, ord: &Ordered, panel: &[f64], db: &[f64], cut: f64) -> [Option<f64>; LANES] {
+        let p = self.p;
+        let mut refused = [None; LANES];
+        for &(k, vk) in &ord.first {
+            let e = simd::dots32(panel, LANES, 0, &self.r[k * p..(k + 1) * p]);
+            for ((r, e), di) in refused.iter_mut().zip(e).zip(db) {
+                let term = vk - e * e * (1.0 / (1.0 + di));
+                if r.is_none() && term > cut {
+                    *r = Some(term);
+                }
+            }
+        }
+        refused
     }
 
     /// The best feasible candidate to add, with its loss. The losses are computed in
@@ -600,11 +621,12 @@ impl<'a> State<'a> {
         let qw = &self.q * &wv;
         let wqw = wv.dot(&qw);
         let pw: Vec<f64> = self
+            .rows
             .pts
             .chunks(p)
             .map(|pk| pk.iter().zip(w).map(|(a, b)| a * b).sum())
             .collect();
-        if self.u.is_empty() {
+        if self.inp.goal == Goal::Worst {
             // `worst`: d_i ← d_i + s (w · h_i)² left to the next weighing, and
             // r_k ← r_k + s (p_k · w) w
             self.pending.push((w.to_vec(), s));
@@ -643,6 +665,7 @@ impl<'a> State<'a> {
             }
         };
         let rows = self
+            .rows
             .h
             .par_chunks(p)
             .zip(self.u.par_chunks_mut(p))
@@ -865,15 +888,13 @@ mod tests {
             state.remove(3);
             assert_eq!(state.pending.len(), 3);
             let ord = state.ordered();
-            let p = state.p;
             let d_now: Vec<f64> = (0..h.nrows()).map(|i| state.d_now(i)).collect();
             let mut expected: Option<(usize, Loss)> = None;
             for (i, &di) in d_now.iter().enumerate() {
                 if !state.feasible(i) {
                     continue;
                 }
-                let Weighed::Loss(l) = state.weigh(&ord, &state.h[i * p..(i + 1) * p], di, None)
-                else {
+                let Weighed::Loss(l) = state.weigh(&ord, state.h_row(i), di, None) else {
                     panic!("no cut, no refusal");
                 };
                 if expected.is_none_or(|(_, b)| better(l, b)) {
@@ -918,8 +939,7 @@ mod tests {
         state.add(17);
         let ord = state.ordered();
         for i in [0, 5, 99, 299] {
-            let Weighed::Loss((worst, _)) =
-                state.weigh(&ord, &state.h[i * 10..(i + 1) * 10], state.d_now(i), None)
+            let Weighed::Loss((worst, _)) = state.weigh(&ord, state.h_row(i), state.d_now(i), None)
             else {
                 panic!("no cut, no refusal");
             };

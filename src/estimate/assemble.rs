@@ -401,10 +401,10 @@ fn locate_hottest(
 /// then `T* = u(s*) ≤ U(s*) ≤ max U`, and if it holds where `L` peaks then
 /// `T* ≥ u(argmax L) ≥ max L`, so the interval misses only when one of two one-sided bounds
 /// fails. It is wider than the spread of the replicates' maxima, which sits too high for a
-/// smooth truth (the maximum of a rough draw exceeds the maximum of the truth) and too low at
-/// a sharp peak (smoothing bias); see `docs/calibration.md`. The position interval is the
-/// hull of the set `{s : U(s) ≥ max L}` on the hottest edge, the set that can hold the
-/// maximum (`docs/method.md` §3). `main_peak_share` is the share of replicates whose own hottest point
+/// smooth truth (the maximum of a rough draw exceeds the maximum of the truth) and too low at a
+/// sharp peak (smoothing bias); see `docs/calibration.md`. The position interval is the hull of the
+/// set `{s : U(s) ≥ max L}` on the hottest edge, the set that can hold the maximum
+/// (`docs/method.md` §3). `main_peak_share` is the share of replicates whose own hottest point
 /// falls inside it.
 fn hottest_point(
     shape: &crate::geometry::Shape,

@@ -38,6 +38,7 @@ pub use basis::{BasisKind, Decay, EdgeBasis, End, Series};
 
 use crate::error::{Error, Result};
 use crate::geometry::{Edge, EdgeCondition, Plate, Point};
+use crate::simd::dot;
 use nalgebra::{DMatrix, DVector};
 use serde::Serialize;
 use std::borrow::Cow;
@@ -114,11 +115,6 @@ pub struct ForwardModel {
     parameters: Vec<Parameter>,
     /// Round plates: the polar model (the rectangle's base and series are then empty).
     polar: Option<polar::PolarModel>,
-}
-
-/// `Σ a_i b_i` over the shorter of the two.
-fn dot(a: &[f64], b: &[f64]) -> f64 {
-    a.iter().zip(b).map(|(x, y)| x * y).sum()
 }
 
 /// A point closer than this fraction of the width to an edge lies on it.

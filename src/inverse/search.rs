@@ -14,13 +14,13 @@
 //!    of two sums, `ℓ(λ) = −Σ ln w_i` (the log-determinant) and `Q(λ) = δ₀ + Σ w_i β_i²` (the
 //!    quadratic form): `E = m' ln 2π + ℓ + Q` (known σ) or `E = m' (ln(2π Q/m') + 1) + ℓ`
 //!    (profiled scale). Each `w_i` rises with λ, so `ℓ` falls and `Q` rises, and `E` rises
-//!    with `Q` and with `ℓ`. Every grid value strictly between two grid points `λ_i < λ_j`
-//!    is therefore at least `E(ℓ(λ_{j−1}), Q(λ_i))` (`ℓ` is known at every grid point from
-//!    the table, evaluated or not; `ℓ(λ_j)` in its place made a looser bound, which left 18 %
-//!    more grid points to evaluate with the profiled scale). The search evaluates the grid points around the
-//!    previous data vector's choice and the two ends, then bisects the runs of grid points
-//!    between evaluated ones: a run whose bound exceeds the best value found so far (by more
-//!    than a rounding margin) cannot hold the best grid point and is dropped; the rest are
+//!    with `Q` and with `ℓ`. Every grid value strictly between two grid points `λ_i < λ_j` is
+//!    therefore at least `E(ℓ(λ_{j−1}), Q(λ_i))` (`ℓ` is known at every grid point from the table,
+//!    evaluated or not; `ℓ(λ_j)` in its place made a looser bound, which left 18 % more grid points
+//!    to evaluate with the profiled scale). The search evaluates the grid points around the
+//!    previous data vector's choice and the two ends, then bisects the runs of grid points between
+//!    evaluated ones: a run whose bound exceeds the best value found so far (by more than a
+//!    rounding margin) cannot hold the best grid point and is dropped; the rest are
 //!    split at their middle point, which is evaluated. Every grid point not evaluated is thus
 //!    provably worse than the best one, so `k*` does not depend on where the search
 //!    started. Away from the optimum the evidence rises by many units, so a handful of
@@ -82,10 +82,10 @@ pub struct EvidenceSearch {
 }
 
 /// Per grid point `k`, the weights `w_i = λ_k/(g_i² + λ_k)` (row `k` of `w`, r values),
-/// `1/(g_i² + λ_k)` and `ℓ(λ_k)`, computed by the same expressions as [`Decomposition::sums`], so that a grid
-/// value read from the table is the same number as one computed afresh: the search then
-/// costs one multiply-add pass over r values per grid point instead of r divisions and a
-/// logarithm. Valid for one decomposition and grid (`key`).
+/// `1/(g_i² + λ_k)` and `ℓ(λ_k)`, computed by the same expressions as [`Decomposition::sums`],
+/// so that a grid value read from the table is the same number as one computed afresh: the
+/// search then costs one multiply-add pass over r values per grid point instead of r divisions
+/// and a logarithm. Valid for one decomposition and grid (`key`).
 #[derive(Debug, Clone)]
 struct GridTable {
     /// `(n, lo bits, hi bits)` of the grid, and the singular values it was made for.
@@ -724,8 +724,8 @@ mod tests {
     use crate::inverse::Problem;
     use nalgebra::DVector;
 
-    /// The strength module's invented ill-posed problem and `n` invented data vectors drifting from row to
-    /// row, as a logger's rows do.
+    /// The strength module's invented ill-posed problem and `n` invented data vectors drifting from
+    /// row to row, as a logger's rows do.
     fn problem_and_rows(
         m: usize,
         p: usize,

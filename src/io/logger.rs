@@ -538,8 +538,8 @@ impl CsvLog {
             None => None,
         };
         // The common cell in a few operations: a plain decimal (no fault code is under
-        // FAULT_CODE_MIN in size), a temperature in the plausible range, no voltage to convert: the same
-        // number `reading` gives, which also handles (and words the message for) the rest.
+        // FAULT_CODE_MIN in size), a temperature in the plausible range, no voltage to convert: the
+        // same number `reading` gives, which also handles (and words the message for) the rest.
         let plain = !self.dialect.decimal_comma && self.case.conversion().is_none();
         let plausible = crate::plausible::MIN_TEMPERATURE_K..=MAX_PLAUSIBLE_K;
         for (k, raw) in self.record.iter().enumerate() {

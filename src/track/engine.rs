@@ -61,11 +61,11 @@
 //!   many kelvin too low. The misfit shows in the chi-square long before the alarm matters.
 //! * Sensor diagnostics: for each used sensor the standardised leave-one-out residual at the
 //!   row's λ, `z_i = r_i / (σ_i √(1 − H_ii))` (exact for a linear smoother at fixed λ), and the
-//!   fault probability of `estimate`'s fault model ([`crate::estimate::fit`]) with this
-//!   plug-in predictive distribution, at the fixed λ, or in per-row mode at a reference λ
-//!   that follows the rows' choices slowly ([`REFERENCE_ROWS`]): a λ chosen with a faulty
-//!   reading included bends toward it and hides it; for a sensor left out, the same from the prediction of
-//!   the fit without it, `σ_i² + a_i C a_iᵀ`.
+//!   fault probability of `estimate`'s fault model ([`crate::estimate::fit`]) with this plug-in
+//!   predictive distribution, at the fixed λ, or in per-row mode at a reference λ that follows the
+//!   rows' choices slowly ([`REFERENCE_ROWS`]): a λ chosen with a faulty reading included bends
+//!   toward it and hides it; for a sensor left out, the same from the prediction of the fit without
+//!   it, `σ_i² + a_i C a_iᵀ`.
 
 use crate::case::{Case, Smoothing};
 use crate::error::{Error, Result};
@@ -2016,6 +2016,7 @@ fn exceed(est: &DVector<f64>, ratio: &[f64], dr: &Draws, t: f64, bits: &mut Vec<
 #[allow(clippy::float_cmp)] // the checked values are exact by construction
 mod tests {
     use super::*;
+    use rand::RngExt;
 
     #[test]
     fn cached_variance_parts_give_the_same_numbers_as_predictive_variances() {
@@ -2102,13 +2103,8 @@ mod tests {
         // `surely_within(top, r, d)` must imply `top <= d / r` as the loop computes it, on
         // invented values of every size and sign, ties (d = top·r exactly, and one ulp
         // either side) included.
-        let mut x: u64 = 0x2545_f491_4f6c_dd1d;
-        let mut next = || {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            (x >> 11) as f64 / (1u64 << 53) as f64
-        };
+        let mut rng = ChaCha8Rng::seed_from_u64(7);
+        let mut next = || rng.random::<f64>();
         let mut said = 0;
         for k in 0..200_000 {
             let top = (next() - 0.3) * 10f64.powi(k % 7 - 3);

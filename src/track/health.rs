@@ -32,11 +32,10 @@
 //! that a borderline sensor does not go out and come back row after row): it has become the
 //! witness of a hot spot, not a faulty sensor.
 //! At most one sensor is newly left out per row for `outlier`/`drift` (the worst by its
-//! standardised residual; the others' outlier runs and drift windows then start afresh, since their evidence
-//! came from fits that included it), and never
-//! more than a quarter of the sensors at once, as in `estimate`'s fault search: one gross
-//! fault makes its neighbours' residuals look odd too, and dropping the only sensors that see
-//! a real hot spot would hide it.
+//! standardised residual; the others' outlier runs and drift windows then start afresh, since their
+//! evidence came from fits that included it), and never more than a quarter of the sensors at once,
+//! as in `estimate`'s fault search: one gross fault makes its neighbours' residuals look odd too,
+//! and dropping the only sensors that see a real hot spot would hide it.
 
 use crate::estimate::explain::{HOT_READMIT_CHI2, HOT_REFUTE_CHI2};
 use serde::Serialize;
