@@ -12,6 +12,10 @@
 //! re-chosen in each, 41 × 41 field bands, strict bounds' gradient study on, every output
 //! written: the median wall time of 15 runs, their spread, the largest peak resident memory
 //! (`wait4`), and the ratios to the targets (60 ms, 40 MB). Skipped without the binary.
+//! With `ESTIMATE_BENCH_PYTHON=PYTHON` (a Python with numpy), the same case is then run 15
+//! times in alternation with `benches/estimate_reference.py`, a straightforward numpy
+//! implementation of the estimate, and the ratio of the medians printed (issue 9's bar: the
+//! binary at least 10 times faster, whole process).
 
 use edgetherm::case::{CaseFiles, Sensor};
 use edgetherm::estimate::{EstimateOptions, estimate};
@@ -135,6 +139,20 @@ fn whole_process() {
         median / 0.060,
         peak / 40.0
     );
+    // ESTIMATE_BENCH_PYTHON=PYTHON (a Python with numpy): the same case in alternation with
+    // the straightforward numpy implementation, issue 9's "at least 10x faster"
+    if let Some(python) = std::env::var_os("ESTIMATE_BENCH_PYTHON") {
+        let status = std::process::Command::new(python)
+            .arg(root.join("benches/estimate_reference.py"))
+            .arg("--compare")
+            .arg(&bin)
+            .arg(&case_dir)
+            .arg("15")
+            .status();
+        if !status.as_ref().is_ok_and(|s| s.success()) {
+            println!("the numpy reference did not run: {status:?}");
+        }
+    }
 }
 
 /// One run of `edgetherm estimate`: wall seconds and the peak resident memory in MB (from
