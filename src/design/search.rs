@@ -190,7 +190,7 @@ impl Rows {
         let h = row_major(inp.candidates);
         let p = inp.candidates.ncols();
         let panels = if inp.goal == Goal::Worst {
-            let mut panels = vec![0.0; h.len().div_ceil(p * LANES).max(1) * p * LANES];
+            let mut panels = vec![0.0; h.len().div_ceil((p * LANES).max(1)).max(1) * p * LANES];
             for (i, hi) in h.chunks(p.max(1)).enumerate() {
                 let panel = &mut panels[(i / LANES) * p * LANES..];
                 for (j, &x) in hi.iter().enumerate() {
@@ -290,7 +290,10 @@ impl<'a> State<'a> {
         let (u, t) = if worst {
             // only d_i = h_iᵀ C h_i: C times blocks of the row-major rows, read as the
             // columns of Hᵀ
-            for (block, db) in h.chunks(WORST_CHUNK * p).zip(d.chunks_mut(WORST_CHUNK)) {
+            for (block, db) in h
+                .chunks(WORST_CHUNK * p.max(1))
+                .zip(d.chunks_mut(WORST_CHUNK))
+            {
                 let cu = &c * DMatrixView::from_slice(block, p, db.len());
                 for ((di, hi), ui) in db.iter_mut().zip(block.chunks(p)).zip(cu.column_iter()) {
                     *di = simd::dot4(hi, ui.as_slice());
@@ -300,12 +303,9 @@ impl<'a> State<'a> {
         } else {
             let uc = inp.candidates * &c; // N × p, row i = (C h_i)ᵀ
             let uq = &uc * &q;
-            let mut u = vec![0.0; n * p];
+            let u = row_major(&uc);
             let mut t = vec![0.0; n];
             for i in 0..n {
-                for j in 0..p {
-                    u[i * p + j] = uc[(i, j)];
-                }
                 d[i] = (0..p).map(|j| h[i * p + j] * u[i * p + j]).sum();
                 t[i] = (0..p).map(|j| uq[(i, j)] * u[i * p + j]).sum();
             }
@@ -490,7 +490,7 @@ impl<'a> State<'a> {
     fn best_worst(&mut self, probe: Option<usize>) -> Option<(usize, Loss)> {
         let ord = self.ordered();
         let p = self.p;
-        let seed = probe.filter(|&i| self.feasible(i)).and_then(|i| {
+        let probe_cut = probe.filter(|&i| self.feasible(i)).and_then(|i| {
             match self.weigh(&ord, self.h_row(i), self.d_now(i), None) {
                 Weighed::Loss(l) => ord.cut(Some((i, l))),
                 Weighed::Beyond(_) => None,
@@ -504,7 +504,7 @@ impl<'a> State<'a> {
             .zip(this.rows.panels.par_chunks(WORST_CHUNK * p.max(1)))
             .enumerate()
             .map(|(c, (dc, panels))| {
-                this.weigh_block(&ord, &pending, seed, c * WORST_CHUNK, dc, panels)
+                this.weigh_block(&ord, &pending, probe_cut, c * WORST_CHUNK, dc, panels)
             })
             .collect();
         self.d = d;
@@ -529,18 +529,18 @@ impl<'a> State<'a> {
     /// [`State::best_worst`]'s first phase on one block: the feasible candidates from
     /// `first` on, their `d_i` (`dc`, brought up to date with `pending` on the way) and rows
     /// in panels, each with its exact loss or the term that refused it, against the lower
-    /// of the block's best so far and `seed`.
+    /// of the block's best so far and `probe_cut` (the cut of the probe's loss).
     fn weigh_block(
         &self,
         ord: &Ordered,
         pending: &[(Vec<f64>, f64)],
-        seed: Option<f64>,
+        probe_cut: Option<f64>,
         first: usize,
         dc: &mut [f64],
         panels: &[f64],
     ) -> Vec<(usize, Weighed)> {
         let p = self.p;
-        let cut_now = |best: Option<(usize, Loss)>| match (ord.cut(best), seed) {
+        let cut_now = |best: Option<(usize, Loss)>| match (ord.cut(best), probe_cut) {
             (Some(a), Some(b)) => Some(a.min(b)),
             (a, b) => a.or(b),
         };
@@ -882,10 +882,15 @@ mod tests {
             let spaced = |a: Point, b: Point| (a.x - b.x).hypot(a.y - b.y) >= 0.03;
             let inp = worst_input((&h, &positions), &fixed, &prior, &pts, &spaced);
             let rows = Rows::new(&inp);
-            let mut state = State::new(&inp, &rows, &[3, 700]).expect("state");
-            state.remove(700);
-            state.add(11);
-            state.remove(3);
+            // three rank-one updates pending: a removal, an addition, a removal
+            let updated = || {
+                let mut state = State::new(&inp, &rows, &[3, 700]).expect("state");
+                state.remove(700);
+                state.add(11);
+                state.remove(3);
+                state
+            };
+            let state = updated();
             assert_eq!(state.pending.len(), 3);
             let ord = state.ordered();
             let d_now: Vec<f64> = (0..h.nrows()).map(|i| state.d_now(i)).collect();
@@ -903,10 +908,7 @@ mod tests {
             }
             let infeasible = (0..h.nrows()).find(|&i| !state.feasible(i));
             for probe in [None, Some(3), expected.map(|e| e.0), Some(5), infeasible] {
-                let mut s = State::new(&inp, &rows, &[3, 700]).expect("state");
-                s.remove(700);
-                s.add(11);
-                s.remove(3);
+                let mut s = updated();
                 let got = s.best_worst(probe);
                 assert_eq!(
                     got.map(|g| g.0),
@@ -927,7 +929,8 @@ mod tests {
     }
 
     /// `worst`'s loss for a candidate is the largest posterior variance along the edge points
-    /// with it, computed from scratch: `max_k p_kᵀ (Σ₀⁻¹ + Σ h hᵀ)⁻¹ p_k`.
+    /// with it, computed from scratch: `max_k p_kᵀ (Σ₀⁻¹ + Σ h hᵀ)⁻¹ p_k`, and its tie-breaker
+    /// the mean of the same variances.
     #[test]
     fn worst_loss_is_the_largest_posterior_variance() {
         let (h, positions, prior, pts) = problem(9, 300, 10, 33);
@@ -939,7 +942,8 @@ mod tests {
         state.add(17);
         let ord = state.ordered();
         for i in [0, 5, 99, 299] {
-            let Weighed::Loss((worst, _)) = state.weigh(&ord, state.h_row(i), state.d_now(i), None)
+            let Weighed::Loss((worst, mean)) =
+                state.weigh(&ord, state.h_row(i), state.d_now(i), None)
             else {
                 panic!("no cut, no refusal");
             };
@@ -949,10 +953,17 @@ mod tests {
                 precision += r.transpose() * r;
             }
             let c = precision.try_inverse().expect("invertible");
-            let truth = (0..pts.nrows())
+            let variances: Vec<f64> = (0..pts.nrows())
                 .map(|k| (pts.row(k) * &c * pts.row(k).transpose())[(0, 0)])
-                .fold(f64::NEG_INFINITY, f64::max);
+                .collect();
+            let truth = variances.iter().copied().fold(f64::NEG_INFINITY, f64::max);
             assert!((worst - truth).abs() <= 1e-12 * truth, "{worst} vs {truth}");
+            // the secondary, the mean variance along the edge points (ties on the maximum)
+            let mean_truth = variances.iter().sum::<f64>() / variances.len() as f64;
+            assert!(
+                (mean - mean_truth).abs() <= 1e-12 * mean_truth,
+                "{mean} vs {mean_truth}"
+            );
         }
     }
 }
