@@ -470,8 +470,14 @@ impl Decomposition {
         gemv(&mut proj.null_coef, &self.r1_inv, &proj.z, false);
         gemv(&mut proj.work, &self.q1, &proj.z, true);
         proj.beta.gemv_tr(1.0, &self.u, &proj.work, 0.0);
-        gemv(&mut proj.work, &self.u, &proj.beta, true);
-        proj.delta0 = proj.work.norm_squared();
+        proj.delta0 = if self.g.len() + self.q == self.m {
+            // U's r = m − q orthonormal columns span the complement of Q₁'s: the residual
+            // P⊥ W d − U β is zero but for rounding, and δ₀ = 0 exactly
+            0.0
+        } else {
+            gemv(&mut proj.work, &self.u, &proj.beta, true);
+            proj.work.norm_squared()
+        };
         Ok(())
     }
 
