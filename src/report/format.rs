@@ -271,11 +271,80 @@ pub(crate) fn fixed(v: f64, decimals: usize) -> String {
         // three hundred digits help no reader: a value this large is written in exponent form
         return format!("{v:.decimals$e}");
     }
+    if let Some(units) = fixed_units(v, decimals) {
+        let mut out = Vec::with_capacity(24);
+        push_units(&mut out, units, decimals);
+        // only ASCII digits, a sign and a point were pushed
+        return String::from_utf8(out).unwrap_or_default();
+    }
     let s = format!("{v:.decimals$}");
     if s.starts_with('-') && s[1..].chars().all(|c| c == '0' || c == '.') {
         s[1..].to_string()
     } else {
         s
+    }
+}
+
+/// Powers of ten that are exact in `f64`, up to the most decimals [`fixed_units`] takes.
+const POW10: [f64; 16] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15,
+];
+
+/// `v` in units of its last decimal, rounded as `{v:.decimals$}` rounds it (the exact
+/// binary value to the nearest unit, ties to even), as `(negative, units)`; `None` when one
+/// multiplication cannot decide that rounding.
+///
+/// `x = |v| · 10^decimals` is the exact product `y` rounded once. Below 2⁵² every half unit
+/// `n + ½` is a double, and rounding is monotone, so `x > n + ½` implies `y > n + ½` and
+/// `x < n + ½` implies `y < n + ½`: `x` rounds to the nearest integer as `y` does, except when
+/// `x` is a half unit itself (a tie, or a product that rounded onto one), which is left to the
+/// float formatter. Outputs write tens of thousands of numbers; this spares nearly all of
+/// them the formatter's exact digit generation, and the text is the formatter's.
+#[allow(clippy::float_cmp)] // a half unit is compared exactly
+pub(crate) fn fixed_units(v: f64, decimals: usize) -> Option<(bool, u64)> {
+    let scale = *POW10.get(decimals)?;
+    let x = v.abs() * scale;
+    if !(x < 4_503_599_627_370_496.0) {
+        return None; // 2⁵² (and NaN)
+    }
+    let whole = x.floor();
+    let frac = x - whole; // exact below 2⁵²
+    // exactly a half unit: the one case the product cannot decide
+    if frac == 0.5 {
+        return None;
+    }
+    let units = whole as u64 + u64::from(frac > 0.5);
+    // `{:.N}` keeps the sign of a negative value that rounds to zero; [`fixed`] drops it
+    Some((v.is_sign_negative() && units != 0, units))
+}
+
+/// Append `units` (from [`fixed_units`]) as a decimal number with `decimals` decimals.
+pub(crate) fn push_units(out: &mut Vec<u8>, (negative, units): (bool, u64), decimals: usize) {
+    let mut buf = [0u8; 24];
+    let mut i = buf.len();
+    let mut rest = units;
+    let mut written = 0;
+    // the digits from the last decimal back, with the point after `decimals` of them and at
+    // least one digit before it
+    while rest != 0 || written <= decimals {
+        if written == decimals && decimals > 0 {
+            i -= 1;
+            buf[i] = b'.';
+        }
+        i -= 1;
+        buf[i] = b'0' + (rest % 10) as u8;
+        rest /= 10;
+        written += 1;
+    }
+    if negative {
+        i -= 1;
+        buf[i] = b'-';
+    }
+    // a few bytes, pushed one by one: a copy of unknown length is a call to memcpy, which
+    // costs more than the digits (`track.csv` writes millions of these)
+    out.reserve(buf.len() - i);
+    for &b in &buf[i..] {
+        out.push(b);
     }
 }
 
@@ -424,6 +493,57 @@ mod tests {
         assert_eq!(rounded(71.23456, 2), serde_json::json!(71.23));
         assert_eq!(significant(0.001234567, 4), serde_json::json!(0.001235));
         assert_eq!(significant(123456.0, 2), serde_json::json!(120000.0));
+    }
+
+    #[test]
+    fn fixed_is_the_float_formatter_digit_for_digit() {
+        // the reference is the standard library's exact formatter (`{:.N}`), with
+        // `fixed`'s own rule (no `-0.000`); values of every magnitude `fixed` writes in
+        // decimal form, ties and near-ties (k + 1/2 units of the last decimal, and their
+        // neighbours one ulp away), and values that round to zero from below
+        use rand::{RngExt, SeedableRng};
+        let reference = |v: f64, d: usize| {
+            let s = format!("{v:.d$}");
+            if s.starts_with('-') && s[1..].chars().all(|c| c == '0' || c == '.') {
+                s[1..].to_string()
+            } else {
+                s
+            }
+        };
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
+        let mut fast = 0;
+        let mut values = vec![0.0, -0.0, 0.5, -0.5, 1.5, 2.5, 0.125, 0.375, 1e-300, -1e-300];
+        for _ in 0..200_000 {
+            let e: i32 = rng.random_range(-12..15);
+            let m: f64 = rng.random_range(-10.0..10.0);
+            values.push(m * 10f64.powi(e));
+        }
+        for d in 0..=15usize {
+            for k in [0u64, 1, 2, 7, 12, 125, 999, 123_456, 987_654_321] {
+                let tie = (k as f64 + 0.5) / 10f64.powi(d as i32);
+                for v in [tie, -tie, tie.next_up(), tie.next_down()] {
+                    values.push(v);
+                }
+            }
+        }
+        let mut typical = 0;
+        for &v in &values {
+            for d in 0..=16usize {
+                if v.abs() < 1e15 {
+                    assert_eq!(fixed(v, d), reference(v, d), "{v:e} with {d} decimals");
+                }
+                // what the outputs write: up to six decimals of values below a million
+                if v.abs() < 1e6 && d <= 6 {
+                    typical += 1;
+                    fast += usize::from(fixed_units(v, d).is_some());
+                }
+            }
+        }
+        // there the fast path is the rule, not the exception (else this test checks little)
+        assert!(
+            fast as f64 >= 0.99 * typical as f64,
+            "fast path taken {fast} of {typical} times"
+        );
     }
 
     #[test]
