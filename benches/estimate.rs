@@ -15,7 +15,8 @@
 //! With `ESTIMATE_BENCH_PYTHON=PYTHON` (a Python with numpy), the same case is then run 15
 //! times in alternation with `benches/estimate_reference.py`, a straightforward numpy
 //! implementation of the estimate, and the ratio of the medians printed (issue 9's bar: the
-//! binary at least 10 times faster, whole process).
+//! binary at least 10 times faster, whole process). `ESTIMATE_BENCH_KEEP=1` keeps the
+//! 14-sensor case and prints where.
 
 use edgetherm::case::{CaseFiles, Sensor};
 use edgetherm::estimate::{EstimateOptions, estimate};
@@ -109,6 +110,10 @@ fn whole_process() {
         return;
     }
     let tmp = tempfile::tempdir().expect("temp dir");
+    // ESTIMATE_BENCH_KEEP=1 keeps the 14-sensor case (for profiling) and prints where
+    if std::env::var_os("ESTIMATE_BENCH_KEEP").is_some() {
+        println!("files kept in {}", tmp.path().display());
+    }
     // 14 sensors in two staggered rows, 5 and 9 mm above the hidden edge (invented)
     let case_dir = common::staggered_case(root, tmp.path(), 14, (5.0, 9.0));
     let case = load_case(&CaseFiles::in_dir(&case_dir)).expect("case");
@@ -152,6 +157,9 @@ fn whole_process() {
         if !status.as_ref().is_ok_and(|s| s.success()) {
             println!("the numpy reference did not run: {status:?}");
         }
+    }
+    if std::env::var_os("ESTIMATE_BENCH_KEEP").is_some() {
+        let _ = tmp.keep();
     }
 }
 

@@ -512,7 +512,9 @@ mod tests {
         };
         let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(11);
         let mut fast = 0;
-        let mut values = vec![0.0, -0.0, 0.5, -0.5, 1.5, 2.5, 0.125, 0.375, 1e-300, -1e-300];
+        let mut values = vec![
+            0.0, -0.0, 0.5, -0.5, 1.5, 2.5, 0.125, 0.375, 1e-300, -1e-300,
+        ];
         for _ in 0..200_000 {
             let e: i32 = rng.random_range(-12..15);
             let m: f64 = rng.random_range(-10.0..10.0);
