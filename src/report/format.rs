@@ -304,8 +304,8 @@ const POW10: [f64; 16] = [
 pub(crate) fn fixed_units(v: f64, decimals: usize) -> Option<(bool, u64)> {
     let scale = *POW10.get(decimals)?;
     let x = v.abs() * scale;
-    if !(x < 4_503_599_627_370_496.0) {
-        return None; // 2⁵² (and NaN)
+    if x.is_nan() || x >= 4_503_599_627_370_496.0 {
+        return None; // 2⁵²
     }
     let whole = x.floor();
     let frac = x - whole; // exact below 2⁵²

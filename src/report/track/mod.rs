@@ -7,7 +7,7 @@ pub mod plot;
 
 use crate::case::Case;
 use crate::report::format::CaseUnits;
-use crate::report::format::{fixed, significant};
+use crate::report::format::{fixed, fixed_units, push_units, significant};
 use crate::track::{RowRecord, RowStatus, TrackSummary};
 use serde_json::{Value, json};
 use std::fmt::Write as _;
@@ -102,28 +102,13 @@ pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
 /// Decimals of temperatures in `track.csv` (as in `estimate`'s tables).
 const TEMP_DECIMALS: usize = 4;
 
-/// `v` with `decimals` decimals, appended without going through the float formatter: the
-/// value is rounded to an integer number of units of the last decimal (half away from zero)
-/// and printed as an integer. Used for the millions of numbers in `track.csv`; the same text
-/// as [`fixed`] except, at most, in the last digit of a value that lies exactly half-way.
+/// `v` with `decimals` decimals, appended: the text of [`fixed`] (a value half-way between
+/// two texts rounds to even, as in every other output), without a string per number (this
+/// runs for the millions of numbers in `track.csv`).
 fn push_fixed(out: &mut Vec<u8>, v: f64, decimals: usize) {
-    let scale = 10f64.powi(decimals as i32);
-    let x = (v * scale).round();
-    if !v.is_finite() || x.abs() >= 9.0e15 {
-        out.extend_from_slice(fixed(v, decimals).as_bytes());
-        return;
-    }
-    let x = x as i64;
-    let neg = x < 0;
-    let a = x.unsigned_abs();
-    let p = 10u64.pow(decimals as u32);
-    if neg && a != 0 {
-        out.push(b'-');
-    }
-    push_u64(out, a / p, 0);
-    if decimals > 0 {
-        out.push(b'.');
-        push_u64(out, a % p, decimals);
+    match fixed_units(v, decimals) {
+        Some(units) if v.abs() < 1e15 => push_units(out, units, decimals),
+        _ => out.extend_from_slice(fixed(v, decimals).as_bytes()),
     }
 }
 
@@ -533,4 +518,39 @@ pub fn text_summary(case: &Case, s: &TrackSummary) -> String {
         let _ = writeln!(out, "Caution: {c}");
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn track_csv_numbers_are_the_other_outputs_text() {
+        // `track.csv` writes its numbers without a string each; the text must be [`fixed`]'s
+        // (the float formatter's), ties to even included: a hull end at 104.0625 mm is
+        // 104.062 here as in alarms.csv (it was 104.063 when ties went away from zero)
+        let mut out = Vec::new();
+        for (v, d) in [
+            (104.0625, 3),
+            (-104.0625, 3),
+            (2.5, 0),
+            (0.00005, 4),
+            (-0.00004, 4),
+            (53.63055, 4),
+            (1e20, 2),
+            (f64::NAN, 4),
+            (12.0, 0),
+        ] {
+            out.clear();
+            push_fixed(&mut out, v, d);
+            assert_eq!(
+                String::from_utf8_lossy(&out),
+                fixed(v, d),
+                "{v} with {d} decimals"
+            );
+        }
+        out.clear();
+        push_fixed(&mut out, 104.0625, 3);
+        assert_eq!(out, b"104.062");
+    }
 }
