@@ -355,6 +355,12 @@ pub struct TailQuantiles {
 /// band needs; draws that leave too few beyond are handled by the full selection.
 const TAIL_CUT_SD: f64 = 1.5;
 
+/// How many values [`TailQuantiles::pair_of_differences`] places its cuts from. Their mean
+/// and standard deviation are then within about 0.06 and 4 % of the whole sample's (one
+/// standard error), which moves the share beyond a cut between about 5.5 and 8.5 %, still
+/// more than twice the 2.5 % a 95 % band needs.
+const CUT_SAMPLE: usize = 256;
+
 impl TailQuantiles {
     /// The same numbers as [`quantile_pair`]`(values, q_lo, q_hi)`, found faster when both
     /// quantiles lie in the outer eighths of many values: every value beyond a cut on either
@@ -368,10 +374,13 @@ impl TailQuantiles {
             .unwrap_or_else(|| quantile_pair(values, q_lo, q_hi))
     }
 
-    /// [`TailQuantiles::pair`] of the values `estimate − errors[k]`, written into `values`
-    /// (the same numbers as filling `values` and calling [`TailQuantiles::pair`]): the mean
-    /// and spread that place the cuts are summed while the values are written, which saves
-    /// a pass over them.
+    /// [`quantile_pair`] of the values `estimate − errors[k]` (the same numbers), with
+    /// `values` as scratch. The values are bootstrap replicates in the order they were drawn,
+    /// so the first [`CUT_SAMPLE`] of them are a random sample: the cuts are placed from
+    /// their mean and spread, and the values are formed and the tails gathered in one pass
+    /// over `errors`. Where the cuts fall decides only how many values are gathered, never
+    /// which order statistics come out; when too few are (or a value is NaN, which the
+    /// cuts cannot place), the values are written into `values` and fully selected.
     pub fn pair_of_differences(
         &mut self,
         estimate: f64,
@@ -380,17 +389,53 @@ impl TailQuantiles {
         q_lo: f64,
         q_hi: f64,
     ) -> (f64, f64) {
+        if let Some(pair) = self.gathered_differences(estimate, errors, q_lo, q_hi) {
+            return pair;
+        }
         values.clear();
-        values.reserve(errors.len());
-        let moments = lane_moments_of(
-            errors,
-            |err| estimate - err,
-            |v| {
-                values.extend_from_slice(v);
-            },
-        );
-        self.gathered(values, Some(moments), q_lo, q_hi)
-            .unwrap_or_else(|| quantile_pair(values, q_lo, q_hi))
+        values.extend(errors.iter().map(|err| estimate - err));
+        quantile_pair(values, q_lo, q_hi)
+    }
+
+    /// [`TailQuantiles::pair_of_differences`] from tails gathered while the values are
+    /// formed; `None` when the full selection is needed.
+    fn gathered_differences(
+        &mut self,
+        estimate: f64,
+        errors: &[f64],
+        q_lo: f64,
+        q_hi: f64,
+    ) -> Option<(f64, f64)> {
+        let n = errors.len();
+        let (h1, lo1, hi1, h2, lo2, hi2) = tail_positions(n, q_lo, q_hi)?;
+        let sample = &errors[..n.min(CUT_SAMPLE)];
+        let (mean, mean_sq) = lane_moments_of(sample, |err| estimate - err, |_| {});
+        let cut = TAIL_CUT_SD * (mean_sq - mean * mean).max(0.0).sqrt();
+        let (below, above) = (mean - cut, mean + cut);
+        self.low.resize(n, 0.0);
+        self.high.resize(n, 0.0);
+        let (mut n_low, mut n_high) = (0, 0);
+        let mut nan = false;
+        // branch-free gathering, as in `gathered`; a NaN value is neither below nor above a
+        // cut but has a rank among the others (`f64::total_cmp`), so it sends the values to
+        // the full selection
+        for &err in errors {
+            let v = estimate - err;
+            self.low[n_low] = v;
+            n_low += usize::from(v <= below);
+            self.high[n_high] = v;
+            n_high += usize::from(v >= above);
+            nan |= v.is_nan();
+        }
+        if nan || n_low <= hi1 || n_high < n - lo2 {
+            return None;
+        }
+        let low = &mut self.low[..n_low];
+        let first = interpolated(low, lo1, hi1, h1 - lo1 as f64);
+        let skipped = n - n_high; // ranks below the high tail
+        let high = &mut self.high[..n_high];
+        let second = interpolated(high, lo2 - skipped, hi2 - skipped, h2 - lo2 as f64);
+        Some((first, second))
     }
 
     /// [`TailQuantiles::pair`] from the gathered tails; `None` (and `values` untouched) when
@@ -403,15 +448,7 @@ impl TailQuantiles {
         q_hi: f64,
     ) -> Option<(f64, f64)> {
         let n = values.len();
-        if n < 64 {
-            return None;
-        }
-        let (h1, lo1, hi1) = position(n, q_lo);
-        let (h2, lo2, hi2) = position(n, q_hi);
-        // ranks 0..=hi1 must fall in the low tail, lo2..n in the high one
-        if hi1 + 1 > n / 8 || n - lo2 > n / 8 || q_lo > q_hi {
-            return None;
-        }
+        let (h1, lo1, hi1, h2, lo2, hi2) = tail_positions(n, q_lo, q_hi)?;
         let (mean, mean_sq) = moments.unwrap_or_else(|| lane_moments(values));
         let cut = TAIL_CUT_SD * (mean_sq - mean * mean).max(0.0).sqrt();
         let (below, above) = (mean - cut, mean + cut);
@@ -436,6 +473,26 @@ impl TailQuantiles {
         let second = interpolated(high, lo2 - skipped, hi2 - skipped, h2 - lo2 as f64);
         Some((first, second))
     }
+}
+
+/// The positions ([`position`]) of the `q_lo`- and `q_hi`-quantiles of `n` values, when
+/// [`TailQuantiles`] may gather them: both in the outer eighths of at least 64 values (ranks
+/// `0..=hi1` must fall in the low tail, `lo2..n` in the high one).
+#[allow(clippy::type_complexity)]
+fn tail_positions(
+    n: usize,
+    q_lo: f64,
+    q_hi: f64,
+) -> Option<(f64, usize, usize, f64, usize, usize)> {
+    if n < 64 {
+        return None;
+    }
+    let (h1, lo1, hi1) = position(n, q_lo);
+    let (h2, lo2, hi2) = position(n, q_hi);
+    if hi1 + 1 > n / 8 || n - lo2 > n / 8 || q_lo > q_hi {
+        return None;
+    }
+    Some((h1, lo1, hi1, h2, lo2, hi2))
 }
 
 /// The mean and the mean square of `values` (at least one), for [`TailQuantiles`]' cuts,
@@ -600,9 +657,9 @@ mod tests {
         // whether or not the tails gathered enough values
         let mut rng = ChaCha8Rng::seed_from_u64(23);
         let mut tails = TailQuantiles::default();
-        let mut fast_used = 0;
+        let (mut fast_used, mut fast_differences) = (0, 0);
         for n in [63usize, 64, 100, 401, 2000, 2001] {
-            for kind in 0..6 {
+            for kind in 0..8 {
                 let v: Vec<f64> = (0..n)
                     .map(|i| {
                         let z: f64 = rng.sample(StandardNormal);
@@ -613,6 +670,10 @@ mod tests {
                             3 => (z * 2.0).round(),      // ties
                             4 if i == 7 => f64::NAN,     // a NaN among the draws
                             5 if i == 3 => -0.0,
+                            // a NaN, or an infinity, after the values the cuts are placed from
+                            6 if i == n - 5 => f64::NAN,
+                            7 if i == n - 3 => f64::INFINITY,
+                            6 | 7 => z,
                             _ => -z.abs(), // one-sided
                         }
                     })
@@ -631,6 +692,8 @@ mod tests {
                     let mut want = errors.iter().map(|err| e - err).collect::<Vec<f64>>();
                     let want = quantile_pair(&mut want, a, b);
                     let mut buf = Vec::new();
+                    fast_differences +=
+                        usize::from(tails.gathered_differences(e, &errors, a, b).is_some());
                     let got = tails.pair_of_differences(e, &errors, &mut buf, a, b);
                     assert_eq!(want.0.to_bits(), got.0.to_bits(), "n {n} kind {kind} {a}");
                     assert_eq!(want.1.to_bits(), got.1.to_bits(), "n {n} kind {kind} {b}");
@@ -639,6 +702,7 @@ mod tests {
         }
         // the gathered tails served most of the cases (normal draws always)
         assert!(fast_used >= 20, "{fast_used}");
+        assert!(fast_differences >= 20, "{fast_differences}");
         let normal: Vec<f64> = (0..2000).map(|_| rng.sample(StandardNormal)).collect();
         assert!(tails.gathered(&normal, None, 0.025, 0.975).is_some());
     }
