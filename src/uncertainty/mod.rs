@@ -391,9 +391,8 @@ impl TailQuantiles {
 
     /// [`quantile_pair`] of the values `estimate − errors[k]` (the same numbers), with
     /// `values` as scratch. The values are bootstrap replicates in the order they were drawn,
-    /// so the first [`CUT_SAMPLE`] of them are a random sample: the cuts are placed from
-    /// their mean and spread, and the values are formed and the tails gathered in one pass
-    /// over `errors`. Where the cuts fall decides only how many values are gathered, never
+    /// so the first 256 of them are a random sample: the cuts are placed from their mean and
+    /// spread, and the values are formed and the tails gathered in one pass over `errors`. Where the cuts fall decides only how many values are gathered, never
     /// which order statistics come out; when too few are (or a value is NaN, which the
     /// cuts cannot place), the values are written into `values` and fully selected.
     pub fn pair_of_differences(
