@@ -392,9 +392,10 @@ impl TailQuantiles {
     /// [`quantile_pair`] of the values `estimate − errors[k]` (the same numbers), with
     /// `values` as scratch. The values are bootstrap replicates in the order they were drawn,
     /// so the first 256 of them are a random sample: the cuts are placed from their mean and
-    /// spread, and the values are formed and the tails gathered in one pass over `errors`. Where the cuts fall decides only how many values are gathered, never
-    /// which order statistics come out; when too few are (or a value is NaN, which the
-    /// cuts cannot place), the values are written into `values` and fully selected.
+    /// spread, and the values are formed and the tails gathered in one pass over `errors`.
+    /// Where the cuts fall decides only how many values are gathered, never which order
+    /// statistics come out; when too few are (or a value is NaN, which the cuts cannot
+    /// place), the values are written into `values` and fully selected.
     pub fn pair_of_differences(
         &mut self,
         estimate: f64,
@@ -420,36 +421,10 @@ impl TailQuantiles {
         q_lo: f64,
         q_hi: f64,
     ) -> Option<(f64, f64)> {
-        let n = errors.len();
-        let (h1, lo1, hi1, h2, lo2, hi2) = tail_positions(n, q_lo, q_hi)?;
-        let sample = &errors[..n.min(CUT_SAMPLE)];
-        let (mean, mean_sq) = lane_moments_of(sample, |err| estimate - err, |_| {});
-        let cut = TAIL_CUT_SD * (mean_sq - mean * mean).max(0.0).sqrt();
-        let (below, above) = (mean - cut, mean + cut);
-        self.low.resize(n, 0.0);
-        self.high.resize(n, 0.0);
-        let (mut n_low, mut n_high) = (0, 0);
-        let mut nan = false;
-        // branch-free gathering, as in `gathered`; a NaN value is neither below nor above a
-        // cut but has a rank among the others (`f64::total_cmp`), so it sends the values to
-        // the full selection
-        for &err in errors {
-            let v = estimate - err;
-            self.low[n_low] = v;
-            n_low += usize::from(v <= below);
-            self.high[n_high] = v;
-            n_high += usize::from(v >= above);
-            nan |= v.is_nan();
-        }
-        if nan || n_low <= hi1 || n_high < n - lo2 {
-            return None;
-        }
-        let low = &mut self.low[..n_low];
-        let first = interpolated(low, lo1, hi1, h1 - lo1 as f64);
-        let skipped = n - n_high; // ranks below the high tail
-        let high = &mut self.high[..n_high];
-        let second = interpolated(high, lo2 - skipped, hi2 - skipped, h2 - lo2 as f64);
-        Some((first, second))
+        let at = TailPositions::new(errors.len(), q_lo, q_hi)?;
+        let sample = &errors[..errors.len().min(CUT_SAMPLE)];
+        let moments = lane_moments_of(sample, |err| estimate - err, |_| {});
+        self.select_in_tails(errors.iter().map(|err| estimate - err), &at, moments)
     }
 
     /// [`TailQuantiles::pair`] from the gathered tails; `None` (and `values` untouched) when
@@ -461,52 +436,88 @@ impl TailQuantiles {
         q_lo: f64,
         q_hi: f64,
     ) -> Option<(f64, f64)> {
-        let n = values.len();
-        let (h1, lo1, hi1, h2, lo2, hi2) = tail_positions(n, q_lo, q_hi)?;
-        let (mean, mean_sq) = moments.unwrap_or_else(|| lane_moments(values));
+        let at = TailPositions::new(values.len(), q_lo, q_hi)?;
+        let moments = moments.unwrap_or_else(|| lane_moments(values));
+        self.select_in_tails(values.iter().copied(), &at, moments)
+    }
+
+    /// Gather the `at.n` values beyond the cuts at the mean ∓ [`TAIL_CUT_SD`] standard
+    /// deviations (from `(mean, mean square)`) and select the two order statistics of `at` in
+    /// them; `None` when a tail gathered too few or a value is NaN (neither below nor above
+    /// a cut, it still has a rank among the others under `f64::total_cmp`).
+    fn select_in_tails(
+        &mut self,
+        values: impl Iterator<Item = f64>,
+        at: &TailPositions,
+        (mean, mean_sq): (f64, f64),
+    ) -> Option<(f64, f64)> {
+        let n = at.n;
         let cut = TAIL_CUT_SD * (mean_sq - mean * mean).max(0.0).sqrt();
         let (below, above) = (mean - cut, mean + cut);
         self.low.resize(n, 0.0);
         self.high.resize(n, 0.0);
         let (mut n_low, mut n_high) = (0, 0);
+        let mut nan = false;
         // branch-free gathering: every value is stored, the count moves only for a value
         // beyond the cut (a NaN cut gathers nothing)
-        for &v in values.iter() {
+        for v in values.take(n) {
             self.low[n_low] = v;
             n_low += usize::from(v <= below);
             self.high[n_high] = v;
             n_high += usize::from(v >= above);
+            nan |= v.is_nan();
         }
-        if n_low <= hi1 || n_high < n - lo2 {
+        if nan || n_low <= at.hi1 || n_high < n - at.lo2 {
             return None;
         }
         let low = &mut self.low[..n_low];
-        let first = interpolated(low, lo1, hi1, h1 - lo1 as f64);
+        let first = interpolated(low, at.lo1, at.hi1, at.h1 - at.lo1 as f64);
         let skipped = n - n_high; // ranks below the high tail
         let high = &mut self.high[..n_high];
-        let second = interpolated(high, lo2 - skipped, hi2 - skipped, h2 - lo2 as f64);
+        let second = interpolated(
+            high,
+            at.lo2 - skipped,
+            at.hi2 - skipped,
+            at.h2 - at.lo2 as f64,
+        );
         Some((first, second))
     }
 }
 
-/// The positions ([`position`]) of the `q_lo`- and `q_hi`-quantiles of `n` values, when
-/// [`TailQuantiles`] may gather them: both in the outer eighths of at least 64 values (ranks
-/// `0..=hi1` must fall in the low tail, `lo2..n` in the high one).
-#[allow(clippy::type_complexity)]
-fn tail_positions(
+/// The positions ([`position`]) of a pair of quantiles of `n` values.
+struct TailPositions {
     n: usize,
-    q_lo: f64,
-    q_hi: f64,
-) -> Option<(f64, usize, usize, f64, usize, usize)> {
-    if n < 64 {
-        return None;
+    h1: f64,
+    lo1: usize,
+    hi1: usize,
+    h2: f64,
+    lo2: usize,
+    hi2: usize,
+}
+
+impl TailPositions {
+    /// The positions of the `q_lo`- and `q_hi`-quantiles of `n` values, when
+    /// [`TailQuantiles`] may gather them: both in the outer eighths of at least 64 values
+    /// (ranks `0..=hi1` must fall in the low tail, `lo2..n` in the high one).
+    fn new(n: usize, q_lo: f64, q_hi: f64) -> Option<Self> {
+        if n < 64 {
+            return None;
+        }
+        let (h1, lo1, hi1) = position(n, q_lo);
+        let (h2, lo2, hi2) = position(n, q_hi);
+        if hi1 + 1 > n / 8 || n - lo2 > n / 8 || q_lo > q_hi {
+            return None;
+        }
+        Some(TailPositions {
+            n,
+            h1,
+            lo1,
+            hi1,
+            h2,
+            lo2,
+            hi2,
+        })
     }
-    let (h1, lo1, hi1) = position(n, q_lo);
-    let (h2, lo2, hi2) = position(n, q_hi);
-    if hi1 + 1 > n / 8 || n - lo2 > n / 8 || q_lo > q_hi {
-        return None;
-    }
-    Some((h1, lo1, hi1, h2, lo2, hi2))
 }
 
 /// The mean and the mean square of `values` (at least one), for [`TailQuantiles`]' cuts,
