@@ -291,8 +291,8 @@ const POW10: [f64; 16] = [
 ];
 
 /// `v` in units of its last decimal, rounded as `{v:.decimals$}` rounds it (the exact
-/// binary value to the nearest unit, ties to even), as `(negative, units)`; `None` for NaN, more
-/// than 15 decimals, or 2⁵² units or more.
+/// binary value to the nearest unit, ties to even), as `(negative, units)`; `None` for NaN,
+/// more than 15 decimals, or 2⁵² units or more.
 ///
 /// `x = |v| · 10^decimals` is the exact product `y` rounded once. Below 2⁵² every half unit
 /// `n + ½` is a double, and rounding is monotone, so `x > n + ½` implies `y > n + ½` and
@@ -315,8 +315,8 @@ pub(crate) fn fixed_units(v: f64, decimals: usize) -> Option<(bool, u64)> {
         // a half unit: the product's rounding error decides, and it is exact (the error of a
         // rounded product is a double, which a fused multiply-add returns unrounded: Dekker
         // 1971, "A floating-point technique for extending the available precision", Numer.
-        // Math. 18:224–242; |v| ≥ ½·10⁻¹⁵ here, far from underflow). None: a true tie, to
-        // the even unit
+        // Math. 18:224–242; |v| ≥ ½·10⁻¹⁵ here, far from underflow). A zero error is a true
+        // tie, which goes to the even unit
         let err = v.abs().mul_add(scale, -x);
         if err == 0.0 {
             whole % 2.0 == 1.0
