@@ -380,8 +380,18 @@ pub(crate) fn rounded(v: f64, decimals: usize) -> Value {
     if !v.is_finite() {
         return Value::Null;
     }
-    let scale = 10f64.powi(decimals as i32);
-    let r = (v * scale).round() / scale;
+    // the rounding of [`fixed`] (an exact tie to the even unit), so that a JSON number and
+    // the CSV text of the same value agree
+    let r = match fixed_units(v, decimals) {
+        Some((negative, units)) => {
+            let magnitude = units as f64 / POW10[decimals];
+            if negative { -magnitude } else { magnitude }
+        }
+        None => {
+            let scale = 10f64.powi(decimals as i32);
+            (v * scale).round() / scale
+        }
+    };
     // Normalise -0.0 so that files never show `-0.0`.
     json_number(if r == 0.0 { 0.0 } else { r })
 }
@@ -575,6 +585,34 @@ mod tests {
         // there the fast path decides every value (ties included), so the formatter is never
         // called for them (else this test checks little)
         assert_eq!(fast, typical, "fast path taken {fast} of {typical} times");
+    }
+
+    #[test]
+    fn json_numbers_round_as_the_csv_text() {
+        // summary.json and the CSV files write the same quantities: the JSON number is the
+        // value of the CSV text, exact ties (a position of 104.0625 mm at 3 decimals) and
+        // products that land on a half unit included
+        use rand::{RngExt, SeedableRng};
+        let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(3);
+        let mut values = vec![104.0625, -104.0625, 0.125, 2.5, -0.0004, 1.0005, 0.0];
+        for _ in 0..20_000 {
+            let e: i32 = rng.random_range(-6..7);
+            let m: f64 = rng.random_range(-10.0..10.0);
+            values.push(m * 10f64.powi(e));
+            // a binary fraction: an exact tie at some decimal count
+            values.push(f64::from(rng.random_range(-100_000..100_000)) / 1024.0);
+        }
+        for &v in &values {
+            for d in 0..=6usize {
+                let text: f64 = fixed(v, d).parse().unwrap();
+                assert_eq!(
+                    rounded(v, d).as_f64(),
+                    Some(text),
+                    "{v:e} with {d} decimals"
+                );
+            }
+        }
+        assert_eq!(rounded(104.0625, 3).to_string(), "104.062");
     }
 
     #[test]
