@@ -50,7 +50,8 @@ pub fn track_csv_row(case: &Case, rec: &RowRecord<'_>, out: &mut Vec<u8>) {
                 push_fixed(out, p, 4);
             }
             out.push(b',');
-            push_u64(out, f.used.len() as u64, 0);
+            // a count: a whole number of units with no decimals
+            push_units(out, (false, f.used.len() as u64), 0);
             out.push(b',');
             out.extend_from_slice(
                 crate::case::Smoothing::of_penalty_order(f.order)
@@ -109,31 +110,6 @@ fn push_fixed(out: &mut Vec<u8>, v: f64, decimals: usize) {
     match fixed_units(v, decimals) {
         Some(units) if v.abs() < 1e15 => push_units(out, units, decimals),
         _ => out.extend_from_slice(fixed(v, decimals).as_bytes()),
-    }
-}
-
-/// Append the decimal digits of `v`, zero-padded to at least `width` digits (what
-/// `{:0width$}` writes for an unsigned integer, without the formatting machinery: this runs
-/// for every number of every row of `track.csv`).
-fn push_u64(out: &mut Vec<u8>, mut v: u64, width: usize) {
-    let mut buf = [0u8; 20];
-    let mut i = buf.len();
-    loop {
-        i -= 1;
-        buf[i] = b'0' + (v % 10) as u8;
-        v /= 10;
-        if v == 0 {
-            break;
-        }
-    }
-    out.reserve(width.max(buf.len() - i));
-    for _ in (buf.len() - i)..width {
-        out.push(b'0');
-    }
-    // a few bytes: pushed one by one (a slice copy of unknown length is a call to memcpy,
-    // which cost more than the digits on a calibrated run's thread that writes every row)
-    for &d in &buf[i..] {
-        out.push(d);
     }
 }
 
