@@ -225,20 +225,17 @@ pub fn bootstrap(input: &BootstrapInput<'_>) -> Result<BootstrapOutput> {
                 let lam_b = if dec.project_into(&s.d, &mut s.proj).is_ok() {
                     match input.strength {
                         Strength::Fixed(_) => lambda,
-                        _ if evidence => match dec.select_evidence(&s.proj, &opts, &mut s.search) {
-                            Ok(sel) => sel.lambda,
-                            Err(_) => {
+                        rule => {
+                            let chosen = if evidence {
+                                dec.select_evidence(&s.proj, &opts, &mut s.search)
+                            } else {
+                                dec.select_on(&s.proj, rule, &opts, grid.as_ref())
+                            };
+                            chosen.map(|sel| sel.lambda).unwrap_or_else(|_| {
                                 fallback = true;
                                 lambda
-                            }
-                        },
-                        rule => match dec.select_on(&s.proj, rule, &opts, grid.as_ref()) {
-                            Ok(sel) => sel.lambda,
-                            Err(_) => {
-                                fallback = true;
-                                lambda
-                            }
-                        },
+                            })
+                        }
                     }
                 } else {
                     fallback = true;
@@ -385,7 +382,7 @@ impl TailQuantiles {
     /// whole sample's; when a side gathered too few (skewed or non-finite values), or the
     /// quantiles are central, the full selection runs instead. `values` may be reordered.
     pub fn pair(&mut self, values: &mut [f64], q_lo: f64, q_hi: f64) -> (f64, f64) {
-        self.gathered(values, None, q_lo, q_hi)
+        self.gathered(values, q_lo, q_hi)
             .unwrap_or_else(|| quantile_pair(values, q_lo, q_hi))
     }
 
@@ -423,21 +420,15 @@ impl TailQuantiles {
     ) -> Option<(f64, f64)> {
         let at = TailPositions::new(errors.len(), q_lo, q_hi)?;
         let sample = &errors[..errors.len().min(CUT_SAMPLE)];
-        let moments = lane_moments_of(sample, |err| estimate - err, |_| {});
+        let moments = lane_moments_of(sample, |err| estimate - err);
         self.select_in_tails(errors.iter().map(|err| estimate - err), &at, moments)
     }
 
     /// [`TailQuantiles::pair`] from the gathered tails; `None` (and `values` untouched) when
-    /// the full selection is needed. `moments` are [`lane_moments`] of `values` when known.
-    fn gathered(
-        &mut self,
-        values: &[f64],
-        moments: Option<(f64, f64)>,
-        q_lo: f64,
-        q_hi: f64,
-    ) -> Option<(f64, f64)> {
+    /// the full selection is needed.
+    fn gathered(&mut self, values: &[f64], q_lo: f64, q_hi: f64) -> Option<(f64, f64)> {
         let at = TailPositions::new(values.len(), q_lo, q_hi)?;
-        let moments = moments.unwrap_or_else(|| lane_moments(values));
+        let moments = lane_moments_of(values, |v| v);
         self.select_in_tails(values.iter().copied(), &at, moments)
     }
 
@@ -520,21 +511,11 @@ impl TailPositions {
     }
 }
 
-/// The mean and the mean square of `values` (at least one), for [`TailQuantiles`]' cuts,
-/// which need not be exact, only cheap: sums in eight independent lanes (which the compiler
-/// vectorises).
-fn lane_moments(values: &[f64]) -> (f64, f64) {
-    lane_moments_of(values, |v| v, |_| {})
-}
-
-/// [`lane_moments`] of the values `f(x)` for `x` in `source`, each run of them handed to
-/// `sink` as it is formed (in order), so that a caller can keep them without a second pass.
+/// The mean and the mean square of the values `f(x)` for `x` in `source` (at least one), for
+/// [`TailQuantiles`]' cuts, which need not be exact, only cheap: sums in eight independent
+/// lanes (which the compiler vectorises).
 #[inline(always)]
-fn lane_moments_of(
-    source: &[f64],
-    f: impl Fn(f64) -> f64,
-    mut sink: impl FnMut(&[f64]),
-) -> (f64, f64) {
+fn lane_moments_of(source: &[f64], f: impl Fn(f64) -> f64) -> (f64, f64) {
     let n = source.len() as f64;
     let (mut sum, mut sum_sq) = ([0.0_f64; 8], [0.0_f64; 8]);
     let chunks = source.chunks_exact(8);
@@ -545,14 +526,12 @@ fn lane_moments_of(
             *s += x;
             *q += x * x;
         }
-        sink(&v);
     }
     let mut last = [0.0_f64; 8];
     for (t, &x) in last.iter_mut().zip(rest) {
         *t = f(x);
     }
     let tail = &last[..rest.len()];
-    sink(tail);
     let mean = (sum.iter().sum::<f64>() + tail.iter().sum::<f64>()) / n;
     let mean_sq = (sum_sq.iter().sum::<f64>() + tail.iter().map(|v| v * v).sum::<f64>()) / n;
     (mean, mean_sq)
@@ -753,7 +732,7 @@ mod tests {
                     let mut x = v.clone();
                     let mut y = v.clone();
                     let want = quantile_pair(&mut x, a, b);
-                    fast_used += usize::from(tails.gathered(&y, None, a, b).is_some());
+                    fast_used += usize::from(tails.gathered(&y, a, b).is_some());
                     let got = tails.pair(&mut y, a, b);
                     assert_eq!(want.0.to_bits(), got.0.to_bits(), "n {n} kind {kind} {a}");
                     assert_eq!(want.1.to_bits(), got.1.to_bits(), "n {n} kind {kind} {b}");
@@ -775,7 +754,7 @@ mod tests {
         assert!(fast_used >= 20, "{fast_used}");
         assert!(fast_differences >= 20, "{fast_differences}");
         let normal: Vec<f64> = (0..2000).map(|_| rng.sample(StandardNormal)).collect();
-        assert!(tails.gathered(&normal, None, 0.025, 0.975).is_some());
+        assert!(tails.gathered(&normal, 0.025, 0.975).is_some());
     }
 
     #[test]
