@@ -59,7 +59,7 @@ pub struct DualData {
 /// Columns (and rows) of one register block of the Hessian's Gram product
 /// ([`Problem::derivatives`]).
 const GRAM_COLS: usize = 8;
-const GRAM_ROWS: usize = 2;
+const GRAM_ROWS: usize = 4;
 
 /// Largest number of Newton steps over all smoothing stages.
 const MAX_STEPS: usize = 400;
@@ -241,8 +241,9 @@ impl<'a> Problem<'a> {
         }
     }
 
-    /// `F` (exact, `mu = None`) or its smoothing with parameters `(μ_P, μ_y)`.
-    fn value(&self, y: &[f64], p: &[f64], mu: Option<(f64, f64)>) -> f64 {
+    /// `F` (exact, `mu = None`) or its smoothing with parameters `(μ_P, μ_y)`; `terms` is
+    /// scratch for the nodes' terms.
+    fn value(&self, y: &[f64], p: &[f64], mu: Option<(f64, f64)>, terms: &mut Vec<f64>) -> f64 {
         let abs = |x: f64, s: f64| match mu {
             None => x.abs(),
             Some(_) => (x * x + s * s).sqrt(),
@@ -253,9 +254,13 @@ impl<'a> Problem<'a> {
         for ((a, b), &yi) in self.data.a0.iter().zip(&self.beta).zip(y) {
             f += a * yi + b * abs(yi, mu_y);
         }
-        for (k, &pk) in p.iter().enumerate() {
-            if self.omega[k] > 0.0 {
-                f += self.omega[k] * abs(pk, mu_p);
+        // each node's ω |P| (smoothed) over the whole slice, then added in node order
+        terms.clear();
+        terms.resize(p.len(), 0.0);
+        node_magnitudes(p, &self.omega, mu.map(|_| mu_p), terms);
+        for (&t, &om) in terms.iter().zip(&self.omega) {
+            if om > 0.0 {
+                f += t;
             }
         }
         f
@@ -264,7 +269,7 @@ impl<'a> Problem<'a> {
     /// The exact bound at `y`: `F(y)` plus the rounding of the edge sums.
     fn bound(&self, y: &[f64], p: &[f64]) -> f64 {
         let slack: f64 = self.last.iter().map(|&k| p[k].abs()).sum();
-        self.value(y, p, None) + slack * TEMPERATURE_SPAN_K
+        self.value(y, p, None, &mut Vec::new()) + slack * TEMPERATURE_SPAN_K
     }
 
     fn solve(&self) -> Option<(Vec<f64>, f64)> {
@@ -294,6 +299,8 @@ impl<'a> Problem<'a> {
         let mut trial = vec![0.0; m];
         let mut p_trial = vec![0.0; n];
         let mut dp = vec![0.0; n];
+        let mut work = Work::default();
+        let mut terms = Vec::with_capacity(n);
         loop {
             // Newton on the smoothed F at this μ
             loop {
@@ -301,7 +308,7 @@ impl<'a> Problem<'a> {
                     return None;
                 }
                 steps += 1;
-                self.derivatives(&y, &p, mu, &mut grad, &mut hess);
+                self.derivatives(&y, &p, mu, &mut grad, &mut hess, &mut work);
                 for r in 0..m {
                     for c in 0..e {
                         hess[(r, m + c)] = s[(r, c)];
@@ -325,7 +332,7 @@ impl<'a> Problem<'a> {
                 let step = hess.clone().lu().solve(&rhs)?;
                 let dy: Vec<f64> = step.iter().take(m).copied().collect();
                 let decrement: f64 = -dy.iter().zip(&grad).map(|(a, b)| a * b).sum::<f64>();
-                let f0 = self.value(&y, &p, Some(mu));
+                let f0 = self.value(&y, &p, Some(mu), &mut terms);
                 // backtracking line search (Armijo); along the line the partial sums move by
                 // α dP with dP = −cum · dy, so each trial costs O(n), not O(n m)
                 row_dots(&self.data.cum, self.data.m, &dy, &mut dp);
@@ -341,7 +348,7 @@ impl<'a> Problem<'a> {
                     for ((t, &p0), &d) in p_trial.iter_mut().zip(&p).zip(&dp) {
                         *t = p0 + alpha * d;
                     }
-                    let f1 = self.value(&trial, &p_trial, Some(mu));
+                    let f1 = self.value(&trial, &p_trial, Some(mu), &mut terms);
                     if f1.is_finite() && f1 <= f0 - ARMIJO * alpha * decrement.max(0.0) {
                         accepted = true;
                         break;
@@ -436,6 +443,12 @@ impl<'a> Problem<'a> {
     }
 
     /// Gradient and Hessian (top-left `m × m` block of `hess`) of the smoothed `F`.
+    ///
+    /// Every entry is the same operations in the same order as the plain loops (the
+    /// Hessian's `r ‖y‖` part, then the `β` terms, then the nodes' terms in node order), so
+    /// the numbers do not depend on how the passes are laid out: the per-node square roots
+    /// and divisions over whole slices (`sqrt` and `/` are correctly rounded however they
+    /// are issued), the gradient's node sums over the zero-padded rows.
     fn derivatives(
         &self,
         y: &[f64],
@@ -443,21 +456,21 @@ impl<'a> Problem<'a> {
         (mu_p, mu_y): (f64, f64),
         grad: &mut [f64],
         hess: &mut DMatrix<f64>,
+        work: &mut Work,
     ) {
         let m = self.data.m;
+        let n = p.len();
         let norm = y.iter().map(|v| v * v).sum::<f64>().sqrt().max(1e-300);
-        for i in 0..m {
-            for j in 0..m {
-                hess[(i, j)] = 0.0;
+        // r ‖y‖: each entry of the zeroed Hessian plus its term (0 + x, as `+=` on a zero)
+        for j in 0..m {
+            let column = &mut hess.column_mut(j);
+            for i in 0..m {
+                let delta = if i == j { 1.0 } else { 0.0 };
+                column[i] = 0.0 + self.radius * (delta - y[i] * y[j] / (norm * norm)) / norm;
             }
         }
-        // r ‖y‖
         for i in 0..m {
             grad[i] = self.radius * y[i] / norm + self.data.a0[i];
-            for j in 0..m {
-                let delta = if i == j { 1.0 } else { 0.0 };
-                hess[(i, j)] += self.radius * (delta - y[i] * y[j] / (norm * norm)) / norm;
-            }
         }
         // β_i |y_i|
         for i in 0..m {
@@ -465,39 +478,40 @@ impl<'a> Problem<'a> {
             grad[i] += self.beta[i] * y[i] / h;
             hess[(i, i)] += self.beta[i] * mu_y * mu_y / (h * h * h);
         }
-        // Σ ω_k |P_k|, P_k = C_k − cum_k · y. The Hessian terms ω μ² / (P² + μ²)^{3/2} fall
-        // off as |P|^{-3}: those below 1e-14 of the largest cannot change the Newton step and
-        // are left out.
-        let mut curvature = vec![0.0; p.len()];
-        let mut largest = 0.0_f64;
-        for (k, &pk) in p.iter().enumerate() {
-            let om = self.omega[k];
-            if om == 0.0 {
-                continue;
-            }
-            let h = (pk * pk + mu_p * mu_p).sqrt();
-            let row = &self.data.cum[k * m..(k + 1) * m];
-            let g1 = om * pk / h;
-            for (g, r) in grad.iter_mut().zip(row) {
-                *g -= g1 * r;
-            }
-            curvature[k] = om * mu_p * mu_p / (h * h * h);
-            largest = largest.max(curvature[k]);
-        }
+        // Σ ω_k |P_k|, P_k = C_k − cum_k · y ([`node_terms`])
+        let stride = self.data.stride;
+        work.slope.clear();
+        work.slope.resize(n, 0.0);
+        work.curvature.clear();
+        work.curvature.resize(n, 0.0);
+        work.grad.clear();
+        work.grad.extend_from_slice(grad);
+        work.grad.resize(stride, 0.0);
+        let largest = node_terms(
+            (p, &self.omega, mu_p),
+            (&self.data.padded, stride),
+            (&mut work.slope, &mut work.curvature),
+            &mut work.grad,
+        );
+        grad.copy_from_slice(&work.grad[..m]);
+        // The Hessian terms ω μ² / (P² + μ²)^{3/2} fall off as |P|^{-3}: those below 1e-14 of
+        // the largest cannot change the Newton step and are left out.
         let threshold = 1e-14 * largest;
         // Σ_k c_k cum_k cum_kᵀ over the nodes whose term counts, its upper triangle in blocks
         // of GRAM_ROWS × GRAM_COLS entries held in registers across the nodes: every entry is
         // the same products added in the same node order as a plain triple loop would add them
-        let active: Vec<(usize, f64)> = curvature
-            .iter()
-            .enumerate()
-            .filter(|&(_, &c)| c > threshold || c.is_nan())
-            .map(|(k, &c)| (k, c))
-            .collect();
-        let stride = self.data.stride;
+        work.active.clear();
+        work.active.extend(
+            work.curvature
+                .iter()
+                .enumerate()
+                .filter(|&(_, &c)| c > threshold || c.is_nan())
+                .map(|(k, &c)| (k, c)),
+        );
+        let active = &work.active;
         for i0 in (0..m).step_by(GRAM_ROWS) {
             for j0 in ((i0 / GRAM_COLS) * GRAM_COLS..m).step_by(GRAM_COLS) {
-                let acc = gram_block(&active, &self.data.padded, stride, (i0, j0));
+                let acc = gram_block(active, &self.data.padded, stride, (i0, j0));
                 for (i, acc_i) in (i0..m).zip(&acc) {
                     for (j, &v) in (j0..m).zip(acc_i) {
                         if j >= i {
@@ -511,6 +525,91 @@ impl<'a> Problem<'a> {
             }
         }
     }
+}
+
+/// Buffers of [`Problem::derivatives`], kept across the Newton steps of one solve.
+#[derive(Debug, Default)]
+struct Work {
+    /// Per node: `ω P / h` and `ω μ² / h³`.
+    slope: Vec<f64>,
+    curvature: Vec<f64>,
+    /// The gradient padded to the rows' stride.
+    grad: Vec<f64>,
+    /// The nodes whose curvature counts, with it.
+    active: Vec<(usize, f64)>,
+}
+
+crate::simd::avx2_dispatch! {
+    /// `out[k] = ω_k |P_k|`, or `ω_k (P_k² + μ²)^{1/2}` when `mu` is given ([`Problem::value`]).
+    fn node_magnitudes(p: &[f64], omega: &[f64], mu: Option<f64>, out: &mut [f64]) =
+        node_magnitudes_body;
+}
+
+/// The body of [`node_magnitudes`].
+#[inline(always)]
+fn node_magnitudes_body(p: &[f64], omega: &[f64], mu: Option<f64>, out: &mut [f64]) {
+    match mu {
+        Some(mu) => {
+            for ((o, &pk), &om) in out.iter_mut().zip(p).zip(omega) {
+                *o = om * (pk * pk + mu * mu).sqrt();
+            }
+        }
+        None => {
+            for ((o, &pk), &om) in out.iter_mut().zip(p).zip(omega) {
+                *o = om * pk.abs();
+            }
+        }
+    }
+}
+
+crate::simd::avx2_dispatch! {
+    /// The nodes' terms of [`Problem::derivatives`]: per node `k` of nonzero weight `ω_k`,
+    /// with `h = (P_k² + μ²)^{1/2}`, the slope `ω P_k / h` (subtracted times the node's row
+    /// from `grad`, node after node) and the curvature `ω μ² / h³`; a node of zero weight
+    /// (each edge's last) gets neither. Returns the largest curvature. The square roots and
+    /// divisions run over whole slices, four to an instruction in the AVX2 build: the same
+    /// correctly rounded results as one at a time.
+    fn node_terms(
+        nodes: (&[f64], &[f64], f64),
+        rows: (&[f64], usize),
+        out: (&mut [f64], &mut [f64]),
+        grad: &mut [f64],
+    ) -> f64 = node_terms_body;
+}
+
+/// The body of [`node_terms`]; `grad` and each row hold `stride` entries (a multiple of
+/// [`GRAM_COLS`]).
+#[inline(always)]
+fn node_terms_body(
+    (p, omega, mu): (&[f64], &[f64], f64),
+    (padded, stride): (&[f64], usize),
+    (slope, curvature): (&mut [f64], &mut [f64]),
+    grad: &mut [f64],
+) -> f64 {
+    for (((sl, cv), &pk), &om) in slope.iter_mut().zip(curvature.iter_mut()).zip(p).zip(omega) {
+        let h = (pk * pk + mu * mu).sqrt();
+        *sl = om * pk / h;
+        *cv = om * mu * mu / (h * h * h);
+    }
+    let mut largest = 0.0_f64;
+    for (k, &om) in omega.iter().enumerate() {
+        if om == 0.0 {
+            curvature[k] = 0.0;
+            continue;
+        }
+        let g1 = slope[k];
+        let row = &padded[k * stride..(k + 1) * stride];
+        for (gs, rs) in grad
+            .chunks_exact_mut(GRAM_COLS)
+            .zip(row.chunks_exact(GRAM_COLS))
+        {
+            for (g, r) in gs.iter_mut().zip(rs) {
+                *g -= g1 * r;
+            }
+        }
+        largest = largest.max(curvature[k]);
+    }
+    largest
 }
 
 crate::simd::avx2_dispatch! {
@@ -556,10 +655,17 @@ fn gram_block_body(
 /// Rows of [`row_dots`] side by side.
 const ROW_GROUP: usize = 8;
 
-/// `out[k] = rows_k · y` for the rows of `rows` (`m` entries each), each the products added in
-/// order from −0.0 as `Iterator::sum` adds them; [`ROW_GROUP`] rows side by side, so that
-/// their sums overlap instead of waiting on one another.
-pub(super) fn row_dots(rows: &[f64], m: usize, y: &[f64], out: &mut [f64]) {
+crate::simd::avx2_dispatch! {
+    /// `out[k] = rows_k · y` for the rows of `rows` (`m` entries each), each the products
+    /// added in order from −0.0 as `Iterator::sum` adds them; [`ROW_GROUP`] rows side by side,
+    /// so that their sums overlap instead of waiting on one another (and go four to an
+    /// instruction in the AVX2 build).
+    pub(super) fn row_dots(rows: &[f64], m: usize, y: &[f64], out: &mut [f64]) = row_dots_body;
+}
+
+/// The body of [`row_dots`].
+#[inline(always)]
+fn row_dots_body(rows: &[f64], m: usize, y: &[f64], out: &mut [f64]) {
     if m == 0 {
         out.fill(-0.0); // an empty sum
         return;
@@ -589,6 +695,7 @@ pub(super) fn row_dots(rows: &[f64], m: usize, y: &[f64], out: &mut [f64]) {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::geometry::Edge;
 
     #[test]
     fn row_dots_are_the_iterator_sums_bit_for_bit() {
@@ -625,6 +732,146 @@ mod tests {
                         .map(|(a, b)| a * b)
                         .sum();
                     assert_eq!(out[k].to_bits(), want.to_bits(), "n {n} m {m} row {k}");
+                }
+            }
+        }
+    }
+
+    /// The plain loops `Problem::derivatives` and `Problem::value` replaced (one node at a
+    /// time, the Hessian's Gram entries by a triple loop in node order): the reference their
+    /// passes must equal bit for bit.
+    fn plain_derivatives(
+        pr: &Problem,
+        y: &[f64],
+        p: &[f64],
+        (mu_p, mu_y): (f64, f64),
+    ) -> (Vec<f64>, DMatrix<f64>) {
+        let m = pr.data.m;
+        let norm = y.iter().map(|v| v * v).sum::<f64>().sqrt().max(1e-300);
+        let mut hess = DMatrix::<f64>::zeros(m, m);
+        let mut grad = vec![0.0; m];
+        for i in 0..m {
+            grad[i] = pr.radius * y[i] / norm + pr.data.a0[i];
+            for j in 0..m {
+                let delta = if i == j { 1.0 } else { 0.0 };
+                hess[(i, j)] += pr.radius * (delta - y[i] * y[j] / (norm * norm)) / norm;
+            }
+        }
+        for i in 0..m {
+            let h = (y[i] * y[i] + mu_y * mu_y).sqrt();
+            grad[i] += pr.beta[i] * y[i] / h;
+            hess[(i, i)] += pr.beta[i] * mu_y * mu_y / (h * h * h);
+        }
+        let mut curvature = vec![0.0; p.len()];
+        let mut largest = 0.0_f64;
+        for (k, &pk) in p.iter().enumerate() {
+            let om = pr.omega[k];
+            if om == 0.0 {
+                continue;
+            }
+            let h = (pk * pk + mu_p * mu_p).sqrt();
+            let g1 = om * pk / h;
+            for (g, r) in grad.iter_mut().zip(&pr.data.cum[k * m..(k + 1) * m]) {
+                *g -= g1 * r;
+            }
+            curvature[k] = om * mu_p * mu_p / (h * h * h);
+            largest = largest.max(curvature[k]);
+        }
+        let threshold = 1e-14 * largest;
+        for i in 0..m {
+            for j in i..m {
+                let mut acc = 0.0;
+                for (k, &c) in curvature.iter().enumerate() {
+                    if c > threshold || c.is_nan() {
+                        acc += c * pr.data.cum[k * m + i] * pr.data.cum[k * m + j];
+                    }
+                }
+                hess[(i, j)] += acc;
+                if j != i {
+                    hess[(j, i)] += acc;
+                }
+            }
+        }
+        (grad, hess)
+    }
+
+    fn plain_value(pr: &Problem, y: &[f64], p: &[f64], mu: Option<(f64, f64)>) -> f64 {
+        let abs = |x: f64, s: f64| match mu {
+            None => x.abs(),
+            Some(_) => (x * x + s * s).sqrt(),
+        };
+        let (mu_p, mu_y) = mu.unwrap_or((0.0, 0.0));
+        let norm = y.iter().map(|v| v * v).sum::<f64>().sqrt();
+        let mut f = pr.radius * norm;
+        for ((a, b), &yi) in pr.data.a0.iter().zip(&pr.beta).zip(y) {
+            f += a * yi + b * abs(yi, mu_y);
+        }
+        for (k, &pk) in p.iter().enumerate() {
+            if pr.omega[k] > 0.0 {
+                f += pr.omega[k] * abs(pk, mu_p);
+            }
+        }
+        f
+    }
+
+    #[test]
+    fn derivatives_and_value_are_the_plain_loops_bit_for_bit() {
+        // invented sets of one edge: sensor counts around the padding's multiples of eight,
+        // node counts with and without a whole last group; partial sums that are exactly zero
+        // (with μ = 0 in the exact value) and far apart in size
+        let mut x: u64 = 0x9e37_79b9_7f4a_7c15;
+        let mut next = || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            (x >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+        };
+        for (m, nodes) in [(1, 3), (7, 10), (8, 33), (9, 41), (14, 241), (17, 20)] {
+            let h: Vec<f64> = (0..m * nodes).map(|_| next()).collect();
+            let set = AdmissibleSet::from_matrix(
+                Edge::Top,
+                0.2,
+                nodes,
+                h,
+                (0..m).map(|_| next()).collect(),
+                (0..m).map(|_| 50.0 + next()).collect(),
+                (0..m).map(|_| 0.1 + next().abs()).collect(),
+                (0..m).map(|_| next().abs() * 1e-3).collect(),
+            )
+            .expect("a consistent invented set");
+            let data = DualData::new(&set);
+            for node in [0, nodes / 2, nodes - 1] {
+                let pr = Problem::new(&data, node, 1.0, 300.0, 4.0).expect("a valid problem");
+                let y: Vec<f64> = (0..m).map(|_| next() * 3.0).collect();
+                let mut p = vec![0.0; nodes];
+                pr.partial_sums(&y, &mut p);
+                p[nodes / 3] = 0.0;
+                if nodes > 4 {
+                    p[1] *= 1e-9;
+                }
+                for mu in [(1.0, 0.5), (1e-7, 1e-6), (3e-3, 0.0)] {
+                    let (want_g, want_h) = plain_derivatives(&pr, &y, &p, mu);
+                    let mut grad = vec![f64::NAN; m];
+                    let mut hess = DMatrix::<f64>::from_element(m + 1, m + 1, f64::NAN);
+                    pr.derivatives(&y, &p, mu, &mut grad, &mut hess, &mut Work::default());
+                    for i in 0..m {
+                        assert_eq!(grad[i].to_bits(), want_g[i].to_bits(), "m {m} grad {i}");
+                        for j in 0..m {
+                            assert_eq!(
+                                hess[(i, j)].to_bits(),
+                                want_h[(i, j)].to_bits(),
+                                "m {m} nodes {nodes} hess ({i}, {j})"
+                            );
+                        }
+                    }
+                    let mut terms = Vec::new();
+                    for smooth in [Some(mu), None] {
+                        assert_eq!(
+                            pr.value(&y, &p, smooth, &mut terms).to_bits(),
+                            plain_value(&pr, &y, &p, smooth).to_bits(),
+                            "m {m} value"
+                        );
+                    }
                 }
             }
         }
