@@ -585,30 +585,7 @@ fn fine_kernels(series: &Series, fine: &[f64], modes: &[(Vec<f64>, usize)]) -> V
     let n_fine = fine.len();
     let blocks: Vec<Vec<f64>> = fine
         .par_chunks(KERNEL_BLOCK)
-        .map(|points| {
-            let b = points.len();
-            // φ_t(s_k) / ‖φ_t‖², mode after mode (b values each)
-            let mut phi = vec![0.0; width * b];
-            let mut row = vec![0.0; width];
-            for (k, &s) in points.iter().enumerate() {
-                series.phi_into(s, &mut row);
-                for (t, v) in row.iter().enumerate() {
-                    phi[t * b + k] = v / series.norm_sq(t);
-                }
-            }
-            let mut sums = vec![-0.0; count * b];
-            for (t, phi_t) in phi.chunks_exact(b).enumerate() {
-                for ((w, used), acc) in modes.iter().zip(sums.chunks_exact_mut(b)) {
-                    if t < *used {
-                        let wt = w[t];
-                        for (a, &f) in acc.iter_mut().zip(phi_t) {
-                            *a += f * wt;
-                        }
-                    }
-                }
-            }
-            sums
-        })
+        .map(|points| kernel_block(series, points, modes, width))
         .collect();
     let mut kernels = vec![0.0; count * n_fine];
     for (block, sums) in blocks.iter().enumerate() {
@@ -620,6 +597,44 @@ fn fine_kernels(series: &Series, fine: &[f64], modes: &[(Vec<f64>, usize)]) -> V
     }
     kernels
 }
+crate::simd::avx2_dispatch! {
+    /// One block of [`fine_kernels`]: every sensor's sums at the block's points (`points.len()`
+    /// values per sensor, sensor after sensor), built for AVX2 when the processor has it (the
+    /// same operations on each value either way).
+    fn kernel_block(
+        series: &Series,
+        points: &[f64],
+        modes: &[(Vec<f64>, usize)],
+        width: usize,
+    ) -> Vec<f64> = kernel_block_body;
+}
+
+/// The body of [`kernel_block`].
+#[inline(always)]
+fn kernel_block_body(
+    series: &Series,
+    points: &[f64],
+    modes: &[(Vec<f64>, usize)],
+    width: usize,
+) -> Vec<f64> {
+    let b = points.len();
+    // φ_t(s_k) / ‖φ_t‖², mode after mode (b values each)
+    let mut phi = vec![0.0; width * b];
+    series.scaled_phi_table(points, width, &mut phi, &mut Vec::new());
+    let mut sums = vec![-0.0; modes.len() * b];
+    for (t, phi_t) in phi.chunks_exact(b.max(1)).enumerate() {
+        for ((w, used), acc) in modes.iter().zip(sums.chunks_exact_mut(b.max(1))) {
+            if t < *used {
+                let wt = w[t];
+                for (a, &f) in acc.iter_mut().zip(phi_t) {
+                    *a += f * wt;
+                }
+            }
+        }
+    }
+    sums
+}
+
 /// The sensor map of a round plate's unknown circles with `terms` Fourier functions each: the
 /// reading of sensor `i` per unit coefficient of function `j` of each hidden circle.
 struct PolarMap {
