@@ -389,14 +389,34 @@ impl OutputSet {
     /// # Errors
     /// The first [`Error::Io`], in the order given.
     pub fn write_all(&mut self, files: &[(&str, &[u8])]) -> Result<()> {
-        use rayon::prelude::*;
         let staging = self.staging.path();
-        // every outcome kept, so that the error reported is the first in the order given
-        // (a temporary of this process is never taken for a stale one by another write)
-        let written: Vec<Result<()>> = files
-            .par_iter()
-            .map(|(name, bytes)| write_atomic(&staging.join(name), bytes))
-            .collect();
+        let write = |(name, bytes): &(&str, &[u8])| write_atomic(&staging.join(name), bytes);
+        // one thread per file: the threads mostly wait on their `fsync`, and waits issued
+        // together end together (on the 2-core bench machine 3.4 ms -> 2.5 ms for the
+        // estimate's seven files, against two at a time on the compute threads). A file
+        // whose thread cannot be started is written here. Every outcome is kept, so that
+        // the error reported is the first in the order given (a temporary of this process
+        // is never taken for a stale one by another write).
+        let written: Vec<Result<()>> = std::thread::scope(|scope| {
+            let started: Vec<_> = files
+                .iter()
+                .map(|file| {
+                    std::thread::Builder::new()
+                        .name("edgetherm-write".into())
+                        .spawn_scoped(scope, move || write(file))
+                        .map_err(|_| file)
+                })
+                .collect();
+            started
+                .into_iter()
+                .map(|thread| match thread {
+                    Ok(handle) => handle.join().unwrap_or_else(|_| {
+                        Err(Error::Internal("a thread writing an output stopped".into()))
+                    }),
+                    Err(file) => write(file),
+                })
+                .collect()
+        });
         written.into_iter().collect::<Result<Vec<()>>>()?;
         self.files.extend(
             files
