@@ -232,6 +232,51 @@ fn check_lambda(lambda: f64) -> Result<()> {
     }
 }
 
+/// Penalised coefficients per pass of [`filtered_sums`].
+const FILTER_ROWS: usize = 8;
+
+crate::simd::avx2_dispatch! {
+    /// `out[l] = Σ_i V[first + l, i] g_i β_i / (g_i² + λ)` for the `out.len()` (at most
+    /// [`FILTER_ROWS`]) rows of `V` from `first` (`v` column-major with `rows` rows, `g` and
+    /// `β` one value per column): each sum the terms `((V g) β) / (g² + λ)` added in the order of
+    /// `i` from zero, as a loop over `i` for one row adds them; the rows side by side, so that
+    /// their divisions go four to an instruction in the AVX2 build.
+    fn filtered_sums(
+        v: &[f64],
+        at: (usize, usize),
+        filter: (&[f64], &[f64], f64),
+        out: &mut [f64],
+    ) = filtered_sums_body;
+}
+
+/// The body of [`filtered_sums`].
+#[inline(always)]
+fn filtered_sums_body(
+    v: &[f64],
+    (rows, first): (usize, usize),
+    (g, beta, lambda): (&[f64], &[f64], f64),
+    out: &mut [f64],
+) {
+    let len = out.len().min(FILTER_ROWS);
+    let mut acc = [0.0_f64; FILTER_ROWS];
+    for (i, (&gi, &bi)) in g.iter().zip(beta).enumerate() {
+        let den = gi * gi + lambda;
+        let column = &v[i * rows + first..];
+        if len == FILTER_ROWS {
+            if let Some(col) = column.first_chunk::<FILTER_ROWS>() {
+                for (a, &x) in acc.iter_mut().zip(col) {
+                    *a += x * gi * bi / den;
+                }
+                continue;
+            }
+        }
+        for (a, &x) in acc.iter_mut().zip(&column[..len]) {
+            *a += x * gi * bi / den;
+        }
+    }
+    out[..len].copy_from_slice(&acc[..len]);
+}
+
 impl Decomposition {
     /// Decompose a problem: scale by W, eliminate the unpenalised columns, and take one SVD of
     /// the standard form `Ã = P⊥ W A_P L_P⁻¹` (module doc, (2)–(3)).
@@ -505,14 +550,20 @@ impl Decomposition {
     ) -> Result<()> {
         check_lambda(lambda)?;
         self.check_coefficient_len(c)?;
-        let r = self.g.len();
-        for (jj, &j) in self.pen_idx.iter().enumerate() {
-            let mut s = 0.0;
-            for i in 0..r {
-                let g = self.g[i];
-                s += self.v[(jj, i)] * g * proj.beta[i] / (g * g + lambda);
+        // Σ_i V_{jj,i} g_i β_i / (g_i² + λ) for every penalised coefficient jj, then over its
+        // penalty weight
+        let mut block = [0.0; FILTER_ROWS];
+        for (at, idx) in self.pen_idx.chunks(FILTER_ROWS).enumerate() {
+            let sums = &mut block[..idx.len()];
+            filtered_sums(
+                self.v.as_slice(),
+                (self.v.nrows(), at * FILTER_ROWS),
+                (self.g.as_slice(), proj.beta.as_slice(), lambda),
+                sums,
+            );
+            for (l, (&j, &s)) in idx.iter().zip(sums.iter()).enumerate() {
+                c[j] = s / self.l_pen[at * FILTER_ROWS + l];
             }
-            c[j] = s / self.l_pen[jj];
         }
         for (k, &j) in self.null_idx.iter().enumerate() {
             let mut s = proj.null_coef[k];
@@ -898,6 +949,47 @@ fn add_leverages_body(u: &[f64], m: usize, g: &[f64], lambda: f64, out: &mut [f6
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn filtered_sums_are_the_plain_loop_bit_for_bit() {
+        // invented V (rows 1..=19, so whole blocks of eight and remainders), singular values
+        // over many decades, λ from tiny to large: every row's sum must be the one-row loop's
+        let mut x: u64 = 0x1234_5678_9abc_def1;
+        let mut next = || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            (x >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+        };
+        for rows in 1..20 {
+            let r = 1 + rows % 7;
+            let v: Vec<f64> = (0..rows * r).map(|_| next()).collect();
+            let g: Vec<f64> = (0..r)
+                .map(|i| 10f64.powi(2 - 2 * i as i32) * (1.0 + next()))
+                .collect();
+            let beta: Vec<f64> = (0..r).map(|_| 5.0 * next()).collect();
+            for lambda in [1e-12, 3e-3, 0.7, 40.0] {
+                for first in (0..rows).step_by(FILTER_ROWS) {
+                    let len = FILTER_ROWS.min(rows - first);
+                    let mut out = vec![f64::NAN; len];
+                    filtered_sums(&v, (rows, first), (&g, &beta, lambda), &mut out);
+                    for (l, &got) in out.iter().enumerate() {
+                        let mut want = 0.0;
+                        for i in 0..r {
+                            want +=
+                                v[i * rows + first + l] * g[i] * beta[i] / (g[i] * g[i] + lambda);
+                        }
+                        assert_eq!(
+                            got.to_bits(),
+                            want.to_bits(),
+                            "rows {rows} row {} λ {lambda}",
+                            first + l
+                        );
+                    }
+                }
+            }
+        }
+    }
 
     /// A small ill-posed problem with a constant (unpenalised) column: columns
     /// cos(jπx) e^{−jπy}, a curvature-like penalty (jπ)², and unequal σ. Invented numbers.
