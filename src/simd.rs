@@ -266,11 +266,185 @@ unsafe fn lane_sums4_avx2(a: [&[f64]; 4], v: &[f64]) -> [[f64; 4]; 4] {
     acc
 }
 
+/// The values beyond two cuts, gathered: `v_i = estimate − src_i` (or `src_i` when
+/// `estimate` is `None`) goes to `low` when `v_i ≤ below` and to `high` when `v_i ≥ above`,
+/// each in the order of `i`. Returns how many each received and whether some `v_i` is NaN
+/// (NaN is never gathered). `low` and `high` must hold `src.len() + 4` values: the AVX2
+/// build stores four at a time past the count.
+///
+/// # Panics
+/// When `low` or `high` is too short.
+pub fn gather_tails(
+    src: &[f64],
+    estimate: Option<f64>,
+    (below, above): (f64, f64),
+    low: &mut [f64],
+    high: &mut [f64],
+) -> (usize, usize, bool) {
+    assert!(
+        low.len() >= src.len() + 4 && high.len() >= src.len() + 4,
+        "gather_tails: buffers too short"
+    );
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the processor has AVX2; the lengths were checked above.
+            return unsafe { gather_tails_avx2(src, estimate, (below, above), low, high) };
+        }
+    }
+    gather_tails_plain(src, estimate, (below, above), low, high, (0, 0, false))
+}
+
+/// The plain loop of [`gather_tails`], from `src`'s first value on, with the counts and the
+/// NaN flag so far: branch-free, every value stored and the count moved only for a value
+/// beyond its cut.
+fn gather_tails_plain(
+    src: &[f64],
+    estimate: Option<f64>,
+    (below, above): (f64, f64),
+    low: &mut [f64],
+    high: &mut [f64],
+    (mut n_low, mut n_high, mut nan): (usize, usize, bool),
+) -> (usize, usize, bool) {
+    for &x in src {
+        let v = estimate.map_or(x, |e| e - x);
+        low[n_low] = v;
+        n_low += usize::from(v <= below);
+        high[n_high] = v;
+        n_high += usize::from(v >= above);
+        nan |= v.is_nan();
+    }
+    (n_low, n_high, nan)
+}
+
+/// For each 4-bit mask, the 32-bit lane indices that move the masked 64-bit lanes of a
+/// vector to its front, in order (the rest of the vector is don't-care).
+#[cfg(target_arch = "x86_64")]
+const LEFT_PACK: [[u32; 8]; 16] = {
+    let mut table = [[0u32; 8]; 16];
+    let mut mask = 0;
+    while mask < 16 {
+        let mut at = 0;
+        let mut lane = 0;
+        while lane < 4 {
+            if mask & (1 << lane) != 0 {
+                table[mask][2 * at] = 2 * lane as u32;
+                table[mask][2 * at + 1] = 2 * lane as u32 + 1;
+                at += 1;
+            }
+            lane += 1;
+        }
+        mask += 1;
+    }
+    table
+};
+
+/// [`gather_tails`] with AVX2: four values compared at once, the ones beyond a cut moved to
+/// the front of the vector (a lane permutation looked up from the comparison's mask) and the
+/// whole vector stored at the count, which then moves by the number gathered. The same
+/// comparisons as the plain loop (`≤` and `≥` are false for NaN), the same values in the
+/// same order.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn gather_tails_avx2(
+    src: &[f64],
+    estimate: Option<f64>,
+    (below, above): (f64, f64),
+    low: &mut [f64],
+    high: &mut [f64],
+) -> (usize, usize, bool) {
+    use std::arch::x86_64::{
+        _CMP_GE_OQ, _CMP_LE_OQ, _CMP_UNORD_Q, _mm256_castpd_ps, _mm256_castps_pd, _mm256_cmp_pd,
+        _mm256_loadu_pd, _mm256_loadu_si256, _mm256_movemask_pd, _mm256_permutevar8x32_ps,
+        _mm256_set1_pd, _mm256_storeu_pd, _mm256_sub_pd,
+    };
+    let whole = src.len() - src.len() % 4;
+    let (mut n_low, mut n_high) = (0usize, 0usize);
+    let mut nan_mask = 0;
+    let (lo_cut, hi_cut) = (_mm256_set1_pd(below), _mm256_set1_pd(above));
+    let e = _mm256_set1_pd(estimate.unwrap_or(0.0));
+    for c in (0..whole).step_by(4) {
+        // SAFETY: `c + 4 ≤ whole ≤ src.len()`; the stores write four values from a count at
+        // most `c`, inside `low` and `high` (at least `src.len() + 4` long, checked by the
+        // caller); the table index is a 4-bit mask.
+        unsafe {
+            let x = _mm256_loadu_pd(src.as_ptr().add(c));
+            let v = if estimate.is_some() {
+                _mm256_sub_pd(e, x)
+            } else {
+                x
+            };
+            nan_mask |= _mm256_movemask_pd(_mm256_cmp_pd::<_CMP_UNORD_Q>(v, v));
+            let m_low = _mm256_movemask_pd(_mm256_cmp_pd::<_CMP_LE_OQ>(v, lo_cut)) as usize;
+            let m_high = _mm256_movemask_pd(_mm256_cmp_pd::<_CMP_GE_OQ>(v, hi_cut)) as usize;
+            let pack = |m: usize| {
+                let idx = _mm256_loadu_si256(LEFT_PACK[m].as_ptr().cast());
+                _mm256_castps_pd(_mm256_permutevar8x32_ps(_mm256_castpd_ps(v), idx))
+            };
+            _mm256_storeu_pd(low.as_mut_ptr().add(n_low), pack(m_low));
+            n_low += m_low.count_ones() as usize;
+            _mm256_storeu_pd(high.as_mut_ptr().add(n_high), pack(m_high));
+            n_high += m_high.count_ones() as usize;
+        }
+    }
+    gather_tails_plain(
+        &src[whole..],
+        estimate,
+        (below, above),
+        low,
+        high,
+        (n_low, n_high, nan_mask != 0),
+    )
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
     use rand::{RngExt, SeedableRng};
     use rand_chacha::ChaCha8Rng;
+
+    #[test]
+    fn gathered_tails_are_the_plain_loops() {
+        // invented draws with NaN, signed zeros, values exactly on a cut and every length
+        // remainder: the dispatched gathering (AVX2 on such a machine) must give the plain
+        // loop's counts, flag and values in order
+        let mut rng = ChaCha8Rng::seed_from_u64(7);
+        let mut gathered = 0;
+        for len in [0, 1, 3, 4, 5, 8, 63, 64, 257, 2000] {
+            for trial in 0..4 {
+                let src: Vec<f64> = (0..len)
+                    .map(|_| match rng.random_range(0..20) {
+                        0 if trial == 3 => f64::NAN,
+                        1 => 0.0,
+                        2 => -0.0,
+                        3 => -1.0,
+                        4 => 1.0,
+                        _ => rng.random_range(-3.0..3.0),
+                    })
+                    .collect();
+                let cuts = (-1.0, 1.0);
+                for estimate in [None, Some(0.0), Some(0.25)] {
+                    let mut want = (vec![0.0; len + 4], vec![0.0; len + 4]);
+                    let w = gather_tails_plain(
+                        &src,
+                        estimate,
+                        cuts,
+                        &mut want.0,
+                        &mut want.1,
+                        (0, 0, false),
+                    );
+                    let mut got = (vec![0.0; len + 4], vec![0.0; len + 4]);
+                    let g = gather_tails(&src, estimate, cuts, &mut got.0, &mut got.1);
+                    assert_eq!(g, w, "len {len} trial {trial} {estimate:?}");
+                    let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                    assert_eq!(bits(&got.0[..g.0]), bits(&want.0[..w.0]), "low, len {len}");
+                    assert_eq!(bits(&got.1[..g.1]), bits(&want.1[..w.1]), "high, len {len}");
+                    gathered += g.0.min(g.1);
+                }
+            }
+        }
+        assert!(gathered > 1000, "both tails gathered values: {gathered}");
+    }
 
     #[test]
     fn dots32_is_the_plain_dot_bit_for_bit() {

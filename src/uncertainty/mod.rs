@@ -421,7 +421,7 @@ impl TailQuantiles {
         let at = TailPositions::new(errors.len(), q_lo, q_hi)?;
         let sample = &errors[..errors.len().min(CUT_SAMPLE)];
         let moments = lane_moments_of(sample, |err| estimate - err);
-        self.select_in_tails(errors.iter().map(|err| estimate - err), &at, moments)
+        self.select_in_tails(errors, Some(estimate), &at, moments)
     }
 
     /// [`TailQuantiles::pair`] from the gathered tails; `None` (and `values` untouched) when
@@ -429,35 +429,34 @@ impl TailQuantiles {
     fn gathered(&mut self, values: &[f64], q_lo: f64, q_hi: f64) -> Option<(f64, f64)> {
         let at = TailPositions::new(values.len(), q_lo, q_hi)?;
         let moments = lane_moments_of(values, |v| v);
-        self.select_in_tails(values.iter().copied(), &at, moments)
+        self.select_in_tails(values, None, &at, moments)
     }
 
-    /// Gather the `at.n` values beyond the cuts at the mean ∓ [`TAIL_CUT_SD`] standard
-    /// deviations (from `(mean, mean square)`) and select the two order statistics of `at` in
-    /// them; `None` when a tail gathered too few or a value is NaN (neither below nor above
-    /// a cut, it still has a rank among the others under `f64::total_cmp`).
+    /// Gather the values (`estimate − source_i`, or `source_i` without an estimate) beyond the
+    /// cuts at the mean ∓ [`TAIL_CUT_SD`] standard deviations (from `(mean, mean square)`)
+    /// and select the two order statistics of `at` in them; `None` when a tail gathered too
+    /// few or a value is NaN (neither below nor above a cut, it still has a rank among the
+    /// others under `f64::total_cmp`).
     fn select_in_tails(
         &mut self,
-        values: impl Iterator<Item = f64>,
+        source: &[f64],
+        estimate: Option<f64>,
         at: &TailPositions,
         (mean, mean_sq): (f64, f64),
     ) -> Option<(f64, f64)> {
         let n = at.n;
         let cut = TAIL_CUT_SD * (mean_sq - mean * mean).max(0.0).sqrt();
         let (below, above) = (mean - cut, mean + cut);
-        self.low.resize(n, 0.0);
-        self.high.resize(n, 0.0);
-        let (mut n_low, mut n_high) = (0, 0);
-        let mut nan = false;
-        // branch-free gathering: every value is stored, the count moves only for a value
-        // beyond the cut (a NaN cut gathers nothing)
-        for v in values.take(n) {
-            self.low[n_low] = v;
-            n_low += usize::from(v <= below);
-            self.high[n_high] = v;
-            n_high += usize::from(v >= above);
-            nan |= v.is_nan();
-        }
+        // room for the gathering's four-value stores past its counts
+        self.low.resize(n + 4, 0.0);
+        self.high.resize(n + 4, 0.0);
+        let (n_low, n_high, nan) = crate::simd::gather_tails(
+            &source[..n],
+            estimate,
+            (below, above),
+            &mut self.low,
+            &mut self.high,
+        );
         if nan || n_low <= at.hi1 || n_high < n - at.lo2 {
             return None;
         }
