@@ -591,7 +591,7 @@ impl Series {
     /// as [`Series::phi_into`] at `s_k` divided by [`Series::norm_sq`]`(n)`. The uniform
     /// families run their recurrence for all the points in step (the same operations on each
     /// point, side by side instead of one chain after another); `row` is scratch. Inlined so
-    /// that a caller built for AVX2 ([`crate::simd`]) runs it four points to an instruction.
+    /// that a caller built for AVX2 (`crate::simd`) runs it four points to an instruction.
     #[inline(always)]
     pub fn scaled_phi_table(
         &self,
