@@ -266,6 +266,58 @@ unsafe fn lane_sums4_avx2(a: [&[f64]; 4], v: &[f64]) -> [[f64; 4]; 4] {
     acc
 }
 
+/// `y = Aᵀ x`: the same numbers, bit for bit, as nalgebra's `y.gemv_tr(1.0, a, x, 0.0)`, whose
+/// entry `j` is `1 · (a_j · x)` with the dot product of `Matrix::dot`: eight accumulators
+/// over each run of eight rows, combined as `((((0 + (s₀ + s₄)) + (s₁ + s₅)) + (s₂ + s₆)) +
+/// (s₃ + s₇))`, then the rows after the last whole run added one by one. Here the eight
+/// accumulators are two vectors, built for AVX2 when the processor has it
+/// ([`avx2_dispatch`]).
+///
+/// # Panics
+/// When the shapes do not match (as nalgebra's `gemv_tr`).
+pub fn gemv_tr(y: &mut DVector<f64>, a: &DMatrix<f64>, x: &DVector<f64>) {
+    assert!(
+        a.nrows() == x.len() && a.ncols() == y.len(),
+        "gemv_tr: dimensions mismatch"
+    );
+    gemv_tr_slices(a.as_slice(), a.nrows(), x.as_slice(), y.as_mut_slice());
+}
+
+avx2_dispatch! {
+    /// [`gemv_tr`] on the column-major slice of `a` (`rows` rows).
+    fn gemv_tr_slices(a: &[f64], rows: usize, x: &[f64], y: &mut [f64]) = gemv_tr_body;
+}
+
+/// The body of [`gemv_tr_slices`].
+#[inline(always)]
+fn gemv_tr_body(a: &[f64], rows: usize, x: &[f64], y: &mut [f64]) {
+    let x = &x[..rows];
+    let whole = rows - rows % 8;
+    for (yj, column) in y.iter_mut().zip(a.chunks_exact(rows.max(1))) {
+        let mut acc = [0.0_f64; 8];
+        for (c8, x8) in column[..whole]
+            .chunks_exact(8)
+            .zip(x[..whole].chunks_exact(8))
+        {
+            for l in 0..8 {
+                acc[l] += c8[l] * x8[l];
+            }
+        }
+        let mut res = 0.0;
+        res += acc[0] + acc[4];
+        res += acc[1] + acc[5];
+        res += acc[2] + acc[6];
+        res += acc[3] + acc[7];
+        for (c, xv) in column[whole..].iter().zip(&x[whole..]) {
+            res += c * xv;
+        }
+        *yj = 1.0 * res;
+    }
+    if rows == 0 {
+        y.fill(0.0);
+    }
+}
+
 /// The values beyond two cuts, gathered: `v_i = estimate − src_i` (or `src_i` when
 /// `estimate` is `None`) goes to `low` when `v_i ≤ below` and to `high` when `v_i ≥ above`,
 /// each in the order of `i`. Returns how many each received and whether some `v_i` is NaN
@@ -402,6 +454,29 @@ mod tests {
     use super::*;
     use rand::{RngExt, SeedableRng};
     use rand_chacha::ChaCha8Rng;
+
+    #[test]
+    fn gemv_tr_is_nalgebras_bit_for_bit() {
+        // invented matrices with every row count around the runs of eight (and zero rows)
+        let mut rng = ChaCha8Rng::seed_from_u64(11);
+        for rows in [0, 1, 5, 7, 8, 9, 16, 31, 32, 33] {
+            for cols in [1, 3, 30] {
+                let a = DMatrix::from_fn(rows, cols, |_, _| rng.random_range(-1.0..1.0) * 1e3);
+                let x = DVector::from_fn(rows, |_, _| rng.random_range(-1.0..1.0));
+                let mut want = DVector::from_element(cols, f64::NAN);
+                want.gemv_tr(1.0, &a, &x, 0.0);
+                let mut got = DVector::from_element(cols, f64::NAN);
+                gemv_tr(&mut got, &a, &x);
+                for j in 0..cols {
+                    assert_eq!(
+                        got[j].to_bits(),
+                        want[j].to_bits(),
+                        "{rows} x {cols}, column {j}"
+                    );
+                }
+            }
+        }
+    }
 
     #[test]
     fn gathered_tails_are_the_plain_loops() {

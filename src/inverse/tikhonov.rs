@@ -72,7 +72,7 @@
 
 use super::Problem;
 use crate::error::{Error, Result};
-use crate::simd::gemv;
+use crate::simd::{gemv, gemv_tr};
 use nalgebra::{DMatrix, DVector};
 
 /// Singular values of `Ã` below `g_max · max(m, n) · ε` are treated as zero (the usual
@@ -511,10 +511,10 @@ impl Decomposition {
         proj.d.copy_from(d);
         proj.work.copy_from(d);
         proj.work.component_mul_assign(&self.inv_sigma);
-        proj.z.gemv_tr(1.0, &self.q1, &proj.work, 0.0);
+        gemv_tr(&mut proj.z, &self.q1, &proj.work);
         gemv(&mut proj.null_coef, &self.r1_inv, &proj.z, false);
         gemv(&mut proj.work, &self.q1, &proj.z, true);
-        proj.beta.gemv_tr(1.0, &self.u, &proj.work, 0.0);
+        gemv_tr(&mut proj.beta, &self.u, &proj.work);
         proj.delta0 = if self.g.len() + self.q == self.m {
             // U's r = m − q orthonormal columns span the complement of Q₁'s: the residual
             // P⊥ W d − U β is zero but for rounding, and δ₀ = 0 exactly

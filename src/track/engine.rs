@@ -1804,7 +1804,8 @@ fn fill_d(d: &mut DVector<f64>, used: &[usize], readings: &[Option<f64>], offset
 /// The fine profile at the points `rows`: `out[i] = Σ_k map[(j, k)] x[k] + offset[j]` for
 /// `j = rows.start + i`, each sum taken in the order of `k` (so every value is the same
 /// number as the row's dot product). The sums of the window's points run side by side, a
-/// column of `map` at a time, instead of one long chain of additions per point.
+/// column of `map` at a time, instead of one long chain of additions per point (four points
+/// to an instruction when the processor has AVX2: [`crate::simd`]).
 fn profile_rows(
     map: &DMatrix<f64>,
     x: &DVector<f64>,
@@ -1814,7 +1815,36 @@ fn profile_rows(
 ) {
     out.clear();
     out.resize(rows.len(), -0.0);
-    let (nr, data) = (map.nrows(), map.as_slice()); // column-major
+    profile_window(
+        (map.as_slice(), map.nrows()),
+        x.as_slice(),
+        offset,
+        rows,
+        out,
+    );
+}
+
+crate::simd::avx2_dispatch! {
+    /// The sums of [`profile_rows`] into `out` (zeroed, one value per row of `rows`), from
+    /// the column-major `map` of `nr` rows.
+    fn profile_window(
+        map: (&[f64], usize),
+        x: &[f64],
+        offset: &[f64],
+        rows: std::ops::Range<usize>,
+        out: &mut [f64],
+    ) = profile_window_body;
+}
+
+/// The body of [`profile_window`].
+#[inline(always)]
+fn profile_window_body(
+    (data, nr): (&[f64], usize),
+    x: &[f64],
+    offset: &[f64],
+    rows: std::ops::Range<usize>,
+    out: &mut [f64],
+) {
     for (k, &xk) in x.iter().enumerate() {
         let col = &data[k * nr + rows.start..k * nr + rows.end];
         for (o, &w) in out.iter_mut().zip(col) {
