@@ -513,6 +513,9 @@ pub struct RowEstimator {
     /// Fine profile values around the scan's maximum, and around the band's maxima.
     window: Vec<f64>,
     band_window: Vec<f64>,
+    /// The band's window: its fine points and their posterior sds.
+    band_points: Vec<usize>,
+    band_sds: Vec<f64>,
     /// Per used sensor: standardised leave-one-out residual, its sd, and the Gaussian factor.
     loo_x: Vec<f64>,
     loo_sd: Vec<f64>,
@@ -630,6 +633,8 @@ impl RowEstimator {
             in_use: Vec::new(),
             window: Vec::new(),
             band_window: Vec::new(),
+            band_points: Vec::new(),
+            band_sds: Vec::new(),
             loo_x: Vec::new(),
             loo_sd: Vec::new(),
             loo_good: Vec::new(),
@@ -1399,16 +1404,11 @@ impl RowEstimator {
                 (ju, best_u) = (j, u);
             }
         }
-        let fine_sd = |j: usize| -> Result<f64> {
-            match cached(pat, step.mode) {
-                Some(fx) => Ok(fx.fine_sd[j] * s),
-                None => {
-                    let vp = pat.variance.as_ref().ok_or_else(internal)?;
-                    Ok(vp.sd_with(j, inv_den, inv_lambda) * s)
-                }
-            }
-        };
         let mut band = std::mem::take(&mut self.band_window);
+        let (mut points, mut sds) = (
+            std::mem::take(&mut self.band_points),
+            std::mem::take(&mut self.band_sds),
+        );
         let mut band_max = |js: usize, sign: f64| -> Result<f64> {
             let f = self.scan_index[js];
             let k = f / n;
@@ -1421,14 +1421,28 @@ impl RowEstimator {
                 profile_rows(fine_map, fine_x, &self.prof_offset, lo..hi, &mut band);
                 &band
             };
+            // the window's sds: the cached ones at a fixed λ, else four points at a time
+            // (`sds_into`: each the number `sd_with` gives for its point)
+            sds.clear();
+            match cached(pat, step.mode) {
+                Some(fx) => sds.extend(fx.fine_sd[lo..hi].iter().map(|v| v * s)),
+                None => {
+                    let vp = pat.variance.as_ref().ok_or_else(internal)?;
+                    points.clear();
+                    points.extend(lo..hi);
+                    sds.resize(hi - lo, 0.0);
+                    vp.sds_into(&points, inv_den, inv_lambda, s, &mut sds);
+                }
+            }
             let mut best = f64::NEG_INFINITY;
-            for (j, v) in (lo..hi).zip(values) {
-                best = best.max(v + sign * z * fine_sd(j)?);
+            for (v, sd) in values.iter().zip(&sds) {
+                best = best.max(v + sign * z * sd);
             }
             Ok(best)
         };
         let max_l = band_max(jl, -1.0)?;
         let max_u = band_max(ju, 1.0)?;
+        (self.band_points, self.band_sds) = (points, sds);
         self.band_window = band;
         self.window = vals;
         let mut p_lo = position;
