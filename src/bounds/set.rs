@@ -918,3 +918,56 @@ fn tail_factors(
     }
     (tail, max_tail_factor)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::forward::basis::{Decay, EdgeBasis, End};
+
+    #[test]
+    fn fine_kernels_are_the_per_sensor_sums_bit_for_bit() {
+        // invented weights over many decades, sensors using different numbers of modes, fine
+        // grids with whole blocks of KERNEL_BLOCK points, a remainder and fewer than four:
+        // every value must be Σ_{t < used} (φ_t(s) / ‖φ_t‖²) w_t added in the order of t from
+        // −0.0, as the plain loop forms it
+        let mut x: u64 = 0x9e37_79b9_7f4a_7c15;
+        let mut next = || {
+            x ^= x << 13;
+            x ^= x >> 7;
+            x ^= x << 17;
+            (x >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+        };
+        for (start, end) in [
+            (End::Held, End::Held),
+            (End::Insulated, End::Held),
+            (End::Convective { beta: 3.0 }, End::Held),
+        ] {
+            let series = Series::new(EdgeBasis::new(start, end, 0.4), Decay::Unbounded, 40);
+            for n_fine in [3, 64, 150] {
+                let fine: Vec<f64> = (0..n_fine)
+                    .map(|k| 0.4 * k as f64 / (n_fine - 1) as f64)
+                    .collect();
+                let modes: Vec<(Vec<f64>, usize)> = [40, 7, 23, 1]
+                    .iter()
+                    .map(|&used| {
+                        let w = (0..40).map(|_| next() * 10f64.powf(6.0 * next())).collect();
+                        (w, used)
+                    })
+                    .collect();
+                let got = fine_kernels(&series, &fine, &modes);
+                let mut row = vec![0.0; 40];
+                for (k, &s) in fine.iter().enumerate() {
+                    series.phi_into(s, &mut row);
+                    for (i, (w, used)) in modes.iter().enumerate() {
+                        let want: f64 = (0..*used).map(|t| row[t] / series.norm_sq(t) * w[t]).sum();
+                        assert_eq!(
+                            got[i * n_fine + k].to_bits(),
+                            want.to_bits(),
+                            "{start:?} n_fine={n_fine} sensor {i} point {k}"
+                        );
+                    }
+                }
+            }
+        }
+    }
+}
