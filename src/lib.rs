@@ -47,6 +47,8 @@ pub mod plausible;
 pub mod report;
 mod simd;
 pub mod simulate;
+#[cfg(test)]
+mod testing;
 pub mod track;
 pub mod uncertainty;
 pub mod units;

@@ -859,13 +859,7 @@ mod tests {
         // invented sets of one edge: sensor counts around the padding's multiples of eight,
         // node counts with and without a whole last group; partial sums that are exactly zero
         // (with μ = 0 in the exact value) and far apart in size
-        let mut x: u64 = 0x9e37_79b9_7f4a_7c15;
-        let mut next = || {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            (x >> 11) as f64 / (1u64 << 53) as f64 - 0.5
-        };
+        let mut next = crate::testing::uniform(0x9e37_79b9_7f4a_7c15);
         for (m, nodes) in [(1, 3), (7, 10), (8, 33), (9, 41), (14, 241), (17, 20)] {
             let h: Vec<f64> = (0..m * nodes).map(|_| next()).collect();
             let set = AdmissibleSet::from_matrix(

@@ -930,13 +930,7 @@ mod tests {
         // grids with whole blocks of KERNEL_BLOCK points, a remainder and fewer than four:
         // every value must be Σ_{t < used} (φ_t(s) / ‖φ_t‖²) w_t added in the order of t from
         // −0.0, as the plain loop forms it
-        let mut x: u64 = 0x9e37_79b9_7f4a_7c15;
-        let mut next = || {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            (x >> 11) as f64 / (1u64 << 53) as f64 - 0.5
-        };
+        let mut next = crate::testing::uniform(0x9e37_79b9_7f4a_7c15);
         for (start, end) in [
             (End::Held, End::Held),
             (End::Insulated, End::Held),

@@ -954,13 +954,7 @@ mod tests {
     fn filtered_sums_are_the_plain_loop_bit_for_bit() {
         // invented V (rows 1..=19, so whole blocks of eight and remainders), singular values
         // over many decades, λ from tiny to large: every row's sum must be the one-row loop's
-        let mut x: u64 = 0x1234_5678_9abc_def1;
-        let mut next = || {
-            x ^= x << 13;
-            x ^= x >> 7;
-            x ^= x << 17;
-            (x >> 11) as f64 / (1u64 << 53) as f64 - 0.5
-        };
+        let mut next = crate::testing::uniform(0x1234_5678_9abc_def1);
         for rows in 1..20 {
             let r = 1 + rows % 7;
             let v: Vec<f64> = (0..rows * r).map(|_| next()).collect();
