@@ -272,6 +272,11 @@ fn same_seed_same_numbers_whatever_the_thread_count() {
         a.hottest.temperature_interval,
         b.hottest.temperature_interval
     );
+    // the fault search's leave-one-out fits run in parallel: the same verdicts
+    for (sa, sb) in a.sensors.iter().zip(&b.sensors) {
+        assert_eq!(sa.loo_residual, sb.loo_residual, "{}", sa.sensor);
+        assert_eq!(sa.flag, sb.flag, "{}", sa.sensor);
+    }
     let c = estimate(
         &case,
         &readings,
