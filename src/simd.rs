@@ -291,9 +291,14 @@ avx2_dispatch! {
 /// The body of [`gemv_tr_slices`].
 #[inline(always)]
 fn gemv_tr_body(a: &[f64], rows: usize, x: &[f64], y: &mut [f64]) {
+    if rows == 0 {
+        // every dot product is empty: nalgebra's 1 · 0
+        y.fill(0.0);
+        return;
+    }
     let x = &x[..rows];
     let whole = rows - rows % 8;
-    for (yj, column) in y.iter_mut().zip(a.chunks_exact(rows.max(1))) {
+    for (yj, column) in y.iter_mut().zip(a.chunks_exact(rows)) {
         let mut acc = [0.0_f64; 8];
         for (c8, x8) in column[..whole]
             .chunks_exact(8)
@@ -312,9 +317,6 @@ fn gemv_tr_body(a: &[f64], rows: usize, x: &[f64], y: &mut [f64]) {
             res += c * xv;
         }
         *yj = 1.0 * res;
-    }
-    if rows == 0 {
-        y.fill(0.0);
     }
 }
 

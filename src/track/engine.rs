@@ -1343,7 +1343,8 @@ impl RowEstimator {
         let hi = ((edge_k + 1) * n).min(fi + self.stride + 2);
         // the fine profile is the data through the cached map at a fixed λ, else the
         // coefficients through the profile map
-        let (fine_map, fine_x) = match (cached(pat, step.mode), &pat.basis) {
+        let fixed = cached(pat, step.mode);
+        let (fine_map, fine_x) = match (fixed, &pat.basis) {
             (Some(fx), _) => (&fx.fine_pg, &self.d),
             (None, Some(b)) if step.basis => (&b.fine, &self.x),
             (None, _) => (&self.prof_matrix, &self.c),
@@ -1424,7 +1425,7 @@ impl RowEstimator {
             // the window's sds: the cached ones at a fixed λ, else four points at a time
             // (`sds_into`: each the number `sd_with` gives for its point)
             sds.clear();
-            match cached(pat, step.mode) {
+            match fixed {
                 Some(fx) => sds.extend(fx.fine_sd[lo..hi].iter().map(|v| v * s)),
                 None => {
                     let vp = pat.variance.as_ref().ok_or_else(internal)?;
@@ -1839,8 +1840,8 @@ fn profile_rows(
 }
 
 crate::simd::avx2_dispatch! {
-    /// The sums of [`profile_rows`] into `out` (zeroed, one value per row of `rows`), from
-    /// the column-major `map` of `nr` rows.
+    /// The values of [`profile_rows`] into `out` (one per row of `rows`, holding −0.0 on
+    /// entry, where `Iterator::sum` starts), from the column-major `map` of `nr` rows.
     fn profile_window(
         map: (&[f64], usize),
         x: &[f64],
