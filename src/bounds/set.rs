@@ -754,44 +754,15 @@ fn polar_quasi_interpolation_allowance(
         let weights: Vec<Vec<f64>> = (0..m)
             .map(|i| (0..n).map(|j| map.a[(i, first + j)]).collect())
             .collect();
-        // every sensor's kernel at every fine point, Σ_j φ_j(s_k) w_j added in the order of j
-        // (eight points side by side), a block of points at a time: the block's basis values
-        // (KERNEL_BLOCK × n) stay in cache for all the sensors, where a table of every point
-        // (about 16 MB at 1,921 points and 1,024 terms) was read again from memory for each
-        // sensor. Each sum is the same as from the whole table.
-        let blocks: Vec<Vec<f64>> = fine
-            .par_chunks(KERNEL_BLOCK)
-            .map(|points| {
-                let mut phi = vec![0.0; points.len() * n];
-                for (row, &s) in phi.chunks_exact_mut(n.max(1)).zip(points) {
-                    crate::forward::polar::trig_into(s / radius, row);
-                    for (t, v) in row.iter_mut().enumerate() {
-                        *v /= if t == 0 {
-                            std::f64::consts::TAU * radius
-                        } else {
-                            std::f64::consts::PI * radius
-                        };
-                    }
-                }
-                let mut sums = vec![0.0; m * points.len()];
-                for (w, out) in weights.iter().zip(sums.chunks_exact_mut(points.len())) {
-                    super::dual::row_dots(&phi, n, w, out);
-                }
-                sums
-            })
-            .collect();
+        let kernels = polar_kernels(&fine, radius, n, &weights);
         let per_sensor: Vec<f64> = (0..m)
             .into_par_iter()
             .map(|i| {
                 let q = PolarMap::decay_ratio(shape, e.edge, sensors[i]).min(1.0 - 1e-12);
                 let tau = 4.0 * q.powf(m_top + 1.0) / (std::f64::consts::PI * radius * (1.0 - q));
-                let mut kernel = Vec::with_capacity(fine.len());
-                for block in &blocks {
-                    let len = block.len() / m;
-                    kernel.extend_from_slice(&block[i * len..(i + 1) * len]);
-                }
+                let kernel = &kernels[i * fine.len()..(i + 1) * fine.len()];
                 let len = e.length_m;
-                integral_of_r(&kernel, per_cell, cells, ds) + 2.0 * tau * len * len
+                integral_of_r(kernel, per_cell, cells, ds) + 2.0 * tau * len * len
             })
             .collect();
         for (acc, v) in rho.iter_mut().zip(per_sensor) {
@@ -799,6 +770,50 @@ fn polar_quasi_interpolation_allowance(
         }
     }
     rho
+}
+
+/// Every sensor's kernel of the polar allowance at every fine position `fine` (metres along
+/// a circle of `radius`): `Σ_j φ_j(s_k) w_j` over the `n` normalised trigonometric functions
+/// `φ_j` ([`crate::forward::polar::trig_into`] over `2π r` for the constant, `π r` for the
+/// others) with the sensor's weights `w` (`n` each), added in the order of `j` from −0.0 as
+/// `Iterator::sum` adds them; sensor after sensor (`fine.len()` values each).
+///
+/// A block of [`KERNEL_BLOCK`] points at a time (eight points side by side in
+/// [`super::dual::row_dots`]): the block's basis values stay in cache for all the sensors,
+/// where a table of every point (about 16 MB at 1,921 points and 1,024 functions) was read
+/// again from memory for each sensor. Each sum is the same as from the whole table.
+fn polar_kernels(fine: &[f64], radius: f64, n: usize, weights: &[Vec<f64>]) -> Vec<f64> {
+    let m = weights.len();
+    let blocks: Vec<Vec<f64>> = fine
+        .par_chunks(KERNEL_BLOCK)
+        .map(|points| {
+            let mut phi = vec![0.0; points.len() * n];
+            for (row, &s) in phi.chunks_exact_mut(n.max(1)).zip(points) {
+                crate::forward::polar::trig_into(s / radius, row);
+                for (t, v) in row.iter_mut().enumerate() {
+                    *v /= if t == 0 {
+                        std::f64::consts::TAU * radius
+                    } else {
+                        std::f64::consts::PI * radius
+                    };
+                }
+            }
+            let mut sums = vec![0.0; m * points.len()];
+            for (w, out) in weights.iter().zip(sums.chunks_exact_mut(points.len())) {
+                super::dual::row_dots(&phi, n, w, out);
+            }
+            sums
+        })
+        .collect();
+    let mut kernels = vec![0.0; m * fine.len()];
+    for (b, block) in blocks.iter().enumerate() {
+        let len = block.len() / m.max(1);
+        for (i, sums) in block.chunks_exact(len.max(1)).enumerate() {
+            let at = i * fine.len() + b * KERNEL_BLOCK;
+            kernels[at..at + len].copy_from_slice(sums);
+        }
+    }
+    kernels
 }
 
 /// The quadrature grid of an edge's kernels: `per_cell` points per node cell (at least
@@ -977,6 +992,46 @@ mod tests {
                             got[i * n_fine + k].to_bits(),
                             want.to_bits(),
                             "{start:?} n_fine={n_fine} sensor {i} point {k}"
+                        );
+                    }
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn polar_kernels_are_the_per_sensor_sums_bit_for_bit() {
+        // invented weights over many decades; fine grids with whole blocks of KERNEL_BLOCK
+        // points, a remainder, fewer than eight, and function counts odd and even: every
+        // value must be Σ_j φ_j(s) w_j added in the order of j from −0.0, as the plain loop
+        // over the whole table forms it
+        let mut next = crate::testing::uniform(0x2545_f491_4f6c_dd1d);
+        let radius = 0.05;
+        for n in [1, 2, 9, 64] {
+            for n_fine in [3, 64, 150] {
+                let fine: Vec<f64> = (0..n_fine)
+                    .map(|k| std::f64::consts::TAU * radius * k as f64 / (n_fine - 1) as f64)
+                    .collect();
+                let weights: Vec<Vec<f64>> = (0..3)
+                    .map(|_| (0..n).map(|_| next() * 10f64.powf(6.0 * next())).collect())
+                    .collect();
+                let got = polar_kernels(&fine, radius, n, &weights);
+                let mut row = vec![0.0; n];
+                for (k, &s) in fine.iter().enumerate() {
+                    crate::forward::polar::trig_into(s / radius, &mut row);
+                    for (t, v) in row.iter_mut().enumerate() {
+                        *v /= if t == 0 {
+                            std::f64::consts::TAU * radius
+                        } else {
+                            std::f64::consts::PI * radius
+                        };
+                    }
+                    for (i, w) in weights.iter().enumerate() {
+                        let want: f64 = row.iter().zip(w).map(|(p, w)| p * w).sum();
+                        assert_eq!(
+                            got[i * n_fine + k].to_bits(),
+                            want.to_bits(),
+                            "n={n} n_fine={n_fine} sensor {i} point {k}"
                         );
                     }
                 }
