@@ -15,7 +15,7 @@ use crate::case::{Case, Smoothing};
 use crate::error::Result;
 use crate::geometry::Edge;
 use crate::noise::SigmaSource;
-use crate::uncertainty::{pointwise_band, quantile, simultaneous_band};
+use crate::uncertainty::{SimultaneousBand, band_blocks, pointwise_band, quantile};
 use nalgebra::DMatrix;
 use statrs::distribution::{ChiSquared, ContinuousCDF, Normal};
 
@@ -36,21 +36,19 @@ pub(super) fn assemble(
     let (edge_side, field) = rayon::join(
         || -> Result<_> {
             let prof_est = profile_estimate(&maps, &fitted);
-            // the profiles' errors in every replicate: the bands, the hottest point and the
-            // exceedance all read them
-            let prof_err = boot.errors_of(&maps.profile);
-            // each replicate's hottest point and largest value (the hottest point's shares
-            // and the exceedance read them)
-            let peaks = ReplicatePeaks::new(&problem.edge_positions, &prof_est, &prof_err);
-            let (edges, hottest) = edge_results(
-                problem,
-                &fitted,
-                &maps,
-                &resampled,
+            // the profiles' bands and each replicate's hottest point and largest value (the
+            // hottest point's shares and the exceedance read them), from the profiles'
+            // errors in every replicate a block of points at a time
+            let profile = ProfileBands::new(
+                &problem.edge_positions,
                 &prof_est,
-                (&prof_err, &peaks),
-            )?;
-            Ok((edges, hottest, peaks))
+                boot,
+                &maps.profile,
+                confidence,
+            );
+            let (edges, hottest) =
+                edge_results(problem, &fitted, &maps, &resampled, &prof_est, &profile)?;
+            Ok((edges, hottest, profile.peaks))
         },
         || field_result(&fitted, &maps, boot, confidence),
     );
@@ -144,7 +142,7 @@ fn edge_results(
     maps: &OutputMaps,
     resampled: &Resampled,
     prof_est: &[f64],
-    (prof_err, peaks): (&DMatrix<f64>, &ReplicatePeaks),
+    profile: &ProfileBands,
 ) -> Result<(Vec<EdgeResult>, Hottest)> {
     let case = problem.case;
     let boot = &resampled.output;
@@ -153,16 +151,16 @@ fn edge_results(
     let confidence = case.uncertainty.confidence;
     let z = Normal::standard().inverse_cdf(0.5 + confidence / 2.0);
     let n_prof = profile_points(case.fit.terms);
-    let (p_lo, p_hi) = pointwise_band(prof_est, prof_err, confidence);
-    let (s_lo, s_hi) = simultaneous_band(prof_est, prof_err, confidence);
+    let ((p_lo, p_hi), (s_lo, s_hi)) = (&profile.pointwise, &profile.simultaneous);
+    let peaks = &profile.peaks;
     let heat_err = maps.heat.as_ref().map(|(m, _)| boot.errors_of(m));
     let prof_sd = linear_sd(&maps.profile, &fitted.fit.solution.covariance);
     let mut hottest = hottest_point(
         case.plate.shape(),
         &problem.edge_positions,
         prof_est,
-        &p_lo,
-        &p_hi,
+        p_lo,
+        p_hi,
         &peaks.located,
     );
     // A sensor kept under two explanations: the hotter one bounds the hottest temperature.
@@ -334,8 +332,156 @@ fn strength_summary(problem: &Problem<'_>, fitted: &Fitted) -> StrengthSummary {
     }
 }
 
-/// Replicates per block of [`ReplicatePeaks::new`].
+/// Replicates per block of `ReplicatePeaks::new` (the tests' reference).
+#[cfg(test)]
 const REPLICATE_BLOCK: usize = 64;
+
+/// The stacked profiles' pointwise and simultaneous bands and every replicate's peak, from
+/// the profile errors `Q ε_b` formed a block of points at a time
+/// ([`crate::uncertainty::band_blocks`]) and read while the block is in cache: the whole
+/// `B × n` matrix (8 MB at 2000 replicates and 513 points) was memory the kernel handed out
+/// page by page and read three times from main memory. The same numbers to the bit as the
+/// bands and `ReplicatePeaks::new` of the whole matrix (each block's columns are the
+/// whole product's; each point's band reads its own column; each replicate's peak is taken
+/// point after point in order).
+struct ProfileBands {
+    pointwise: (Vec<f64>, Vec<f64>),
+    simultaneous: (Vec<f64>, Vec<f64>),
+    peaks: ReplicatePeaks,
+}
+
+impl ProfileBands {
+    fn new(
+        edge_positions: &[(Edge, Vec<f64>)],
+        est: &[f64],
+        boot: &crate::uncertainty::BootstrapOutput,
+        q: &DMatrix<f64>,
+        confidence: f64,
+    ) -> Self {
+        let b = boot.coefficient_errors.nrows();
+        let (mut lower, mut upper) = (Vec::with_capacity(est.len()), Vec::with_capacity(est.len()));
+        let mut simultaneous = SimultaneousBand::new(b);
+        let mut peaks = PeakTracker::new(edge_positions, b);
+        let mut errors = DMatrix::<f64>::zeros(0, 0);
+        for (start, len) in band_blocks(q.nrows()) {
+            if errors.shape() != (b, len) {
+                errors = DMatrix::zeros(b, len);
+            }
+            // `gemm` with β = 0: the same call to the product kernel as `*`
+            errors.gemm(
+                1.0,
+                &boot.coefficient_errors,
+                &q.rows(start, len).transpose(),
+                0.0,
+            );
+            let block_est = &est[start..start + len];
+            let (lo, hi) = pointwise_band(block_est, &errors, confidence);
+            lower.extend(lo);
+            upper.extend(hi);
+            simultaneous.add_block(block_est, &errors);
+            peaks.add_block(start, block_est, &errors);
+        }
+        ProfileBands {
+            pointwise: (lower, upper),
+            simultaneous: simultaneous.finish(confidence),
+            peaks: peaks.finish(),
+        }
+    }
+}
+
+/// [`ReplicatePeaks`] taken point after point (blocks of points in order): per replicate,
+/// the running maximum of its profile, and on the edge under way the first grid point of
+/// its largest value with that value's neighbours, refined as [`refined_max`] refines it when
+/// the edge's last point is in; the first edge wins a tie, as in [`locate_hottest`].
+struct PeakTracker<'a> {
+    edge_positions: &'a [(Edge, Vec<f64>)],
+    /// Points per edge.
+    n: usize,
+    /// Per replicate: the edge's best point so far (its index on the edge), its value, the
+    /// values before and after it, and the value at the last point seen.
+    k: Vec<usize>,
+    top: Vec<f64>,
+    before: Vec<f64>,
+    after: Vec<f64>,
+    last: Vec<f64>,
+    /// Per replicate: the best edge so far, the position on it and the refined value.
+    best: Vec<(usize, f64, f64)>,
+    maxima: Vec<f64>,
+}
+
+impl<'a> PeakTracker<'a> {
+    fn new(edge_positions: &'a [(Edge, Vec<f64>)], replicates: usize) -> Self {
+        let nan = vec![f64::NAN; replicates];
+        PeakTracker {
+            edge_positions,
+            n: edge_positions.first().map_or(0, |e| e.1.len()),
+            k: vec![0; replicates],
+            top: nan.clone(),
+            before: nan.clone(),
+            after: nan.clone(),
+            last: nan,
+            best: vec![(0, f64::NAN, f64::NEG_INFINITY); replicates],
+            maxima: vec![f64::NEG_INFINITY; replicates],
+        }
+    }
+
+    /// Points `start..start + est.len()` of the stacked profiles: their estimates and their
+    /// errors (`B × points`); replicate `b`'s profile is `est − errors[b, :]`.
+    fn add_block(&mut self, start: usize, est: &[f64], errors: &DMatrix<f64>) {
+        let b_count = errors.nrows();
+        let n = self.n;
+        for (c, column) in errors.as_slice().chunks_exact(b_count.max(1)).enumerate() {
+            let j = start + c;
+            let (edge, t) = (j / n, j % n);
+            let e = est[c];
+            for (b, err) in column.iter().enumerate() {
+                let v = e - err;
+                if t == 0 {
+                    (self.k[b], self.top[b]) = (0, v);
+                } else if v > self.top[b] {
+                    (self.k[b], self.top[b], self.before[b]) = (t, v, self.last[b]);
+                } else if t == self.k[b] + 1 {
+                    self.after[b] = v;
+                }
+                self.last[b] = v;
+                self.maxima[b] = self.maxima[b].max(v);
+            }
+            if t + 1 == n {
+                self.finish_edge(edge);
+            }
+        }
+    }
+
+    /// The edge's refined maximum per replicate ([`refined_max`]'s parabola through the best
+    /// point and its neighbours, away from the edge's ends), kept if above the best so far.
+    fn finish_edge(&mut self, edge: usize) {
+        let n = self.n;
+        let pos = &self.edge_positions[edge].1;
+        for b in 0..self.k.len() {
+            let (k, y1) = (self.k[b], self.top[b]);
+            let (mut idx, mut v) = (k as f64, y1);
+            if k > 0 && k + 1 < n {
+                let (y0, y2) = (self.before[b], self.after[b]);
+                let den = y0 - 2.0 * y1 + y2;
+                if den < 0.0 {
+                    let off = (0.5 * (y0 - y2) / den).clamp(-0.5, 0.5);
+                    (idx, v) = (k as f64 + off, y1 - 0.25 * (y0 - y2) * off);
+                }
+            }
+            if v > self.best[b].2 {
+                let step = pos[1] - pos[0];
+                self.best[b] = (edge, pos[0] + idx * step, v);
+            }
+        }
+    }
+
+    fn finish(self) -> ReplicatePeaks {
+        ReplicatePeaks {
+            located: self.best.iter().map(|&(k, p, _)| (k, p)).collect(),
+            maxima: self.maxima,
+        }
+    }
+}
 
 /// Every bootstrap replicate's hottest point and largest profile value.
 struct ReplicatePeaks {
@@ -347,10 +493,11 @@ struct ReplicatePeaks {
 }
 
 impl ReplicatePeaks {
-    /// From the profiles' errors `errors` (B × n, column `j` holding every replicate's error
+    /// The reference [`PeakTracker`] is held to in the tests: from the profiles' errors `errors` (B × n, column `j` holding every replicate's error
     /// at point `j`): replicate `b`'s profile is `est − errors[b, :]`. The errors are read
     /// block by block of replicates, each block's profiles gathered contiguous, rather than
     /// transposed whole.
+    #[cfg(test)]
     fn new(edge_positions: &[(Edge, Vec<f64>)], est: &[f64], errors: &DMatrix<f64>) -> Self {
         let (b_count, n) = errors.shape();
         let mut located = Vec::with_capacity(b_count);
@@ -622,4 +769,102 @@ pub(super) fn significant3(v: f64) -> String {
     }
     let decimals = (2 - v.abs().log10().floor() as i32).max(0) as usize;
     format!("{v:.decimals$}")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::uncertainty::{BootstrapOutput, simultaneous_band};
+
+    #[test]
+    fn profile_bands_by_blocks_are_the_whole_matrix_bands_bit_for_bit() {
+        // invented coefficient errors and maps: one to three edges of 77, 65, 2 and 129
+        // points (blocks of 64 with a remainder, a remainder of one joined to the block
+        // before, a single narrow block), peaks at an edge's ends and inside; once with
+        // values of full precision near zero (where a product by another kernel would round
+        // differently, and nothing larger absorbs the difference) and once on a coarse grid
+        // of exact values (where profiles tie)
+        let mut next = crate::testing::uniform(0x5851_f42d_4c95_7f2d);
+        let cases = [(1, 77), (2, 65), (3, 2), (1, 129)];
+        for ((edges, points), coarse) in cases.iter().flat_map(|&c| [(c, false), (c, true)]) {
+            let (b, p) = (300, 9);
+            let n = edges * points;
+            let mut value = |scale: f64| {
+                let v = next();
+                if coarse {
+                    (v * scale).round() / scale
+                } else {
+                    v
+                }
+            };
+            let coefficient_errors = DMatrix::from_fn(b, p, |_, _| value(2.0));
+            let q = DMatrix::from_fn(n, p, |_, _| value(2.0));
+            let est: Vec<f64> = (0..n)
+                .map(|j| 0.1 * ((j % points) as f64 - 20.0).abs().min(3.0) + value(1.0))
+                .collect();
+            let edge_positions: Vec<(Edge, Vec<f64>)> = [Edge::Bottom, Edge::Left, Edge::Top]
+                [..edges]
+                .iter()
+                .map(|&e| (e, (0..points).map(|k| 0.002 * k as f64).collect()))
+                .collect();
+            let boot = BootstrapOutput {
+                coefficient_errors,
+                lambdas: vec![1.0; b],
+                fallbacks: 0,
+            };
+            let got = ProfileBands::new(&edge_positions, &est, &boot, &q, 0.95);
+            let whole = boot.errors_of(&q);
+            let want_p = pointwise_band(&est, &whole, 0.95);
+            let want_s = simultaneous_band(&est, &whole, 0.95);
+            let want_peaks = ReplicatePeaks::new(&edge_positions, &est, &whole);
+            let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+            let case = format!("{edges} edges of {points} points, coarse {coarse}");
+            assert_eq!(
+                bits(&got.pointwise.0),
+                bits(&want_p.0),
+                "{case}: pointwise lower"
+            );
+            assert_eq!(
+                bits(&got.pointwise.1),
+                bits(&want_p.1),
+                "{case}: pointwise upper"
+            );
+            assert_eq!(
+                bits(&got.simultaneous.0),
+                bits(&want_s.0),
+                "{case}: simultaneous lower"
+            );
+            assert_eq!(
+                bits(&got.simultaneous.1),
+                bits(&want_s.1),
+                "{case}: simultaneous upper"
+            );
+            assert_eq!(
+                bits(&got.peaks.maxima),
+                bits(&want_peaks.maxima),
+                "{case}: maxima"
+            );
+            let located =
+                |l: &[(usize, f64)]| l.iter().map(|&(k, x)| (k, x.to_bits())).collect::<Vec<_>>();
+            assert_eq!(
+                located(&got.peaks.located),
+                located(&want_peaks.located),
+                "{case}: located"
+            );
+        }
+    }
+
+    #[test]
+    fn band_blocks_cover_every_point_without_a_narrow_block() {
+        for n in [0, 1, 5, 6, 63, 64, 65, 69, 70, 128, 133, 134, 513, 1681] {
+            let blocks: Vec<(usize, usize)> = band_blocks(n).collect();
+            let mut next = 0;
+            for &(start, len) in &blocks {
+                assert_eq!(start, next, "n = {n}: blocks in order, no gap");
+                assert!(len > 5 || blocks.len() == 1, "n = {n}: a block of {len}");
+                next += len;
+            }
+            assert_eq!(next, n, "n = {n}: every point once");
+        }
+    }
 }

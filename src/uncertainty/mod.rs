@@ -275,6 +275,29 @@ pub fn bootstrap(input: &BootstrapInput<'_>) -> Result<BootstrapOutput> {
 /// (`B × BAND_BLOCK`) are formed, read and dropped, so memory does not grow with the grid.
 const BAND_BLOCK: usize = 64;
 
+/// The blocks `(first point, points)` of 64 (`BAND_BLOCK`) points that cover `n` points, a
+/// remainder of a few points joined to the block before it.
+///
+/// A block's errors are the same numbers as the whole product's columns only while the
+/// product goes to the same kernel: nalgebra multiplies a matrix of at most five columns by
+/// its own loop instead of `matrixmultiply` (a different rounding), so no block is left
+/// that narrow unless all `n` points are.
+pub fn band_blocks(n: usize) -> impl Iterator<Item = (usize, usize)> {
+    /// Widest product nalgebra does not hand to `matrixmultiply` (its `SMALL_DIM`).
+    const NARROW: usize = 5;
+    let whole = n / BAND_BLOCK;
+    let rest = n % BAND_BLOCK;
+    let (count, last) = match (whole, rest) {
+        (0, _) => (usize::from(n > 0), n),
+        (w, r) if r <= NARROW => (w, BAND_BLOCK + r),
+        (w, r) => (w + 1, r),
+    };
+    (0..count).map(move |b| {
+        let len = if b + 1 == count { last } else { BAND_BLOCK };
+        (b * BAND_BLOCK, len)
+    })
+}
+
 impl BootstrapOutput {
     /// The errors `Q ε_b` of the linear quantity `Q c` (`Q` is n × p): `B × n`, row `b` for
     /// replicate `b` (one matrix product).
@@ -293,11 +316,10 @@ impl BootstrapOutput {
         confidence: f64,
     ) -> (Vec<f64>, Vec<f64>) {
         let n = q.nrows();
-        let starts: Vec<usize> = (0..n).step_by(BAND_BLOCK).collect();
-        let blocks: Vec<(Vec<f64>, Vec<f64>)> = starts
+        let blocks: Vec<(usize, usize)> = band_blocks(n).collect();
+        let blocks: Vec<(Vec<f64>, Vec<f64>)> = blocks
             .into_par_iter()
-            .map(|start| {
-                let len = BAND_BLOCK.min(n - start);
+            .map(|(start, len)| {
                 let errors = &self.coefficient_errors * q.rows(start, len).transpose();
                 pointwise_band(&estimate[start..start + len], &errors, confidence)
             })
@@ -628,35 +650,70 @@ pub fn simultaneous_band(
     errors: &DMatrix<f64>,
     confidence: f64,
 ) -> (Vec<f64>, Vec<f64>) {
-    let (b_count, n) = errors.shape();
-    // each point's mean error once (the band's centre and its spread both use it): the sum of
-    // the column from zero in order, as `errors.column(j).mean()` forms it
-    let mut mean_err = vec![0.0; n];
-    column_sums(errors, None, &mut mean_err);
-    for m in &mut mean_err {
-        *m /= b_count as f64;
-    }
-    let mean: Vec<f64> = (0..n).map(|j| estimate[j] - mean_err[j]).collect();
-    let mut se = vec![0.0; n];
-    column_sums(errors, Some(&mean_err), &mut se);
-    for v in &mut se {
-        *v = (*v / (b_count.max(2) - 1) as f64).sqrt().max(1e-12);
-    }
-    // T_b, point after point (each point's column is contiguous); a maximum does not
-    // depend on the order it is taken in
-    let mut t = vec![0.0_f64; b_count];
-    for (j, column) in errors.as_slice().chunks_exact(b_count.max(1)).enumerate() {
-        let (e, m, s) = (estimate[j], mean[j], se[j]);
-        // a slice (not the matrix's iterator), so that the loop runs in vector lanes
-        for (t_b, err) in t.iter_mut().zip(column) {
-            *t_b = t_b.max(((e - err) - m).abs() / s);
+    let mut band = SimultaneousBand::new(errors.nrows());
+    band.add_block(estimate, errors);
+    band.finish(confidence)
+}
+
+/// [`simultaneous_band`] from the points' errors a block of points at a time, in order:
+/// each point's mean and standard deviation come from its own column, and each replicate's
+/// `T_b` is the largest of its standardised deviations so far (a maximum does not depend on
+/// the order it is taken in), so the band is the same to the bit as from all the points at
+/// once.
+#[derive(Debug, Clone)]
+pub struct SimultaneousBand {
+    mean: Vec<f64>,
+    se: Vec<f64>,
+    t: Vec<f64>,
+}
+
+impl SimultaneousBand {
+    /// No points yet, for `replicates` draws.
+    pub fn new(replicates: usize) -> Self {
+        SimultaneousBand {
+            mean: Vec::new(),
+            se: Vec::new(),
+            t: vec![0.0; replicates],
         }
     }
-    let c = quantile(&mut t, confidence);
-    (
-        (0..n).map(|j| mean[j] - c * se[j]).collect(),
-        (0..n).map(|j| mean[j] + c * se[j]).collect(),
-    )
+
+    /// The next points: their estimates and their errors (`B × points`, a column per point).
+    pub fn add_block(&mut self, estimate: &[f64], errors: &DMatrix<f64>) {
+        let (b_count, n) = errors.shape();
+        // each point's mean error once (the band's centre and its spread both use it): the
+        // sum of the column from zero in order, as `errors.column(j).mean()` forms it
+        let mut mean_err = vec![0.0; n];
+        column_sums(errors, None, &mut mean_err);
+        for m in &mut mean_err {
+            *m /= b_count as f64;
+        }
+        let mean: Vec<f64> = (0..n).map(|j| estimate[j] - mean_err[j]).collect();
+        let mut se = vec![0.0; n];
+        column_sums(errors, Some(&mean_err), &mut se);
+        for v in &mut se {
+            *v = (*v / (b_count.max(2) - 1) as f64).sqrt().max(1e-12);
+        }
+        // T_b, point after point (each point's column is contiguous)
+        for (j, column) in errors.as_slice().chunks_exact(b_count.max(1)).enumerate() {
+            let (e, m, s) = (estimate[j], mean[j], se[j]);
+            // a slice (not the matrix's iterator), so that the loop runs in vector lanes
+            for (t_b, err) in self.t.iter_mut().zip(column) {
+                *t_b = t_b.max(((e - err) - m).abs() / s);
+            }
+        }
+        self.mean.extend(mean);
+        self.se.extend(se);
+    }
+
+    /// The band's lower and upper ends at every point added.
+    pub fn finish(mut self, confidence: f64) -> (Vec<f64>, Vec<f64>) {
+        let c = quantile(&mut self.t, confidence);
+        let (mean, se) = (&self.mean, &self.se);
+        (
+            mean.iter().zip(se).map(|(m, s)| m - c * s).collect(),
+            mean.iter().zip(se).map(|(m, s)| m + c * s).collect(),
+        )
+    }
 }
 
 #[cfg(test)]
