@@ -426,6 +426,89 @@ impl OutputSet {
         Ok(())
     }
 
+    /// Write the files `produce` hands over, each on a thread of its own started as soon as
+    /// its bytes are handed over (as [`Self::write_all`]), so that writing the first files
+    /// overlaps making the last. `produce` is given the function to hand a file over with
+    /// (from any thread) and must hand over each of `names` once; the files are recorded in
+    /// the order of `names`.
+    ///
+    /// # Errors
+    /// The error of `produce`; else the first [`Error::Io`] in the order of `names`; an
+    /// [`Error::Internal`] when a name was not handed over once. On an error nothing is
+    /// recorded.
+    pub fn write_as_produced<F>(&mut self, names: &[&str], produce: F) -> Result<()>
+    where
+        F: FnOnce(&(dyn Fn(&'static str, Vec<u8>) + Sync)) -> Result<()>,
+    {
+        let staging = self.staging.path();
+        type Written = (&'static str, u64, Result<()>);
+        let done: std::sync::Mutex<Vec<Written>> = std::sync::Mutex::new(Vec::new());
+        let produced = std::thread::scope(|scope| {
+            let started = std::sync::Mutex::new(Vec::new());
+            let hand_over = |name: &'static str, bytes: Vec<u8>| {
+                let len = bytes.len() as u64;
+                let write = move || write_atomic(&staging.join(name), &bytes);
+                // a file whose thread cannot be started is written here
+                let spawned = std::thread::Builder::new()
+                    .name("edgetherm-write".into())
+                    .spawn_scoped(scope, write);
+                match spawned {
+                    Ok(handle) => started
+                        .lock()
+                        .unwrap_or_else(std::sync::PoisonError::into_inner)
+                        .push((name, len, handle)),
+                    Err(_) => done
+                        .lock()
+                        .unwrap_or_else(std::sync::PoisonError::into_inner)
+                        .push((
+                            name,
+                            len,
+                            Err(Error::Internal(format!("no thread to write {name}"))),
+                        )),
+                }
+            };
+            let produced = produce(&hand_over);
+            let started = started
+                .into_inner()
+                .unwrap_or_else(std::sync::PoisonError::into_inner);
+            let mut done = done
+                .lock()
+                .unwrap_or_else(std::sync::PoisonError::into_inner);
+            for (name, len, handle) in started {
+                let outcome = handle.join().unwrap_or_else(|_| {
+                    Err(Error::Internal("a thread writing an output stopped".into()))
+                });
+                done.push((name, len, outcome));
+            }
+            produced
+        });
+        produced?;
+        let mut done = done
+            .into_inner()
+            .unwrap_or_else(std::sync::PoisonError::into_inner);
+        let mut files = Vec::with_capacity(names.len());
+        for &name in names {
+            let at = done.iter().position(|(n, _, _)| *n == name);
+            let (_, len, outcome) = match at {
+                Some(i) if done[i + 1..].iter().all(|(n, _, _)| *n != name) => done.swap_remove(i),
+                _ => {
+                    return Err(Error::Internal(format!(
+                        "the output {name} was not made exactly once"
+                    )));
+                }
+            };
+            outcome?;
+            files.push((name.to_string(), len));
+        }
+        if let Some((extra, _, _)) = done.first() {
+            return Err(Error::Internal(format!(
+                "an output {extra} that was not expected"
+            )));
+        }
+        self.files.extend(files);
+        Ok(())
+    }
+
     /// The path where a file of the set is streamed (in the staging folder); call
     /// [`Self::record`] once it is complete.
     pub fn staging_path(&self, name: &str) -> PathBuf {
@@ -774,5 +857,57 @@ mod tests {
         assert!(check_output_file(&f, "--out", &[], false).is_err());
         assert!(check_output_file(&f, "--out", &[], true).is_ok());
         assert!(check_output_file(&f, "--out", &[f.as_path()], true).is_err());
+    }
+
+    /// Files handed over from several threads in any order are written and recorded in the
+    /// order of the names; a name handed over twice or not at all, or a failure of the
+    /// producer, is an error with nothing recorded, and the set's earlier files stay whole.
+    #[test]
+    fn files_written_as_produced_are_recorded_in_order() {
+        let d = tempfile::tempdir().unwrap();
+        let out = d.path().join("out");
+        let mut set = OutputSet::begin(&out, "test").unwrap();
+        set.write_as_produced(&["a.csv", "b.csv", "c.csv"], |emit| {
+            std::thread::scope(|scope| {
+                scope.spawn(|| emit("c.csv", b"ccc".to_vec()));
+                scope.spawn(|| emit("a.csv", b"a".to_vec()));
+            });
+            emit("b.csv", b"bb".to_vec());
+            Ok(())
+        })
+        .unwrap();
+        let written = set.commit().unwrap();
+        assert_eq!(
+            written,
+            ["a.csv", "b.csv", "c.csv"].map(|n| out.join(n)).to_vec()
+        );
+        assert_eq!(verify_manifest(&out).unwrap(), ["a.csv", "b.csv", "c.csv"]);
+        assert_eq!(std::fs::read(out.join("c.csv")).unwrap(), b"ccc");
+        for bad in 0..3 {
+            let mut set = OutputSet::begin(&out, "test").unwrap();
+            let e = set
+                .write_as_produced(&["a.csv", "b.csv"], |emit| {
+                    emit("a.csv", b"new".to_vec());
+                    match bad {
+                        0 => Ok(()),
+                        1 => {
+                            emit("b.csv", b"new".to_vec());
+                            emit("b.csv", b"again".to_vec());
+                            Ok(())
+                        }
+                        _ => Err(Error::Internal("the renderer failed".into())),
+                    }
+                })
+                .unwrap_err();
+            assert_eq!(e.exit_code(), 1, "case {bad}: {e}");
+            assert!(set.files.is_empty(), "case {bad}: nothing recorded");
+            drop(set);
+            assert_eq!(
+                std::fs::read(out.join("a.csv")).unwrap(),
+                b"a",
+                "case {bad}"
+            );
+            assert!(verify_manifest(&out).is_ok(), "case {bad}");
+        }
     }
 }

@@ -12,8 +12,9 @@
 //!
 //! The strict bounds, when the estimate has them, are rendered by `bounds` into each of
 //! these. Every output carries the safety caution [`SAFETY_CAUTION`]. Rendering happens in
-//! memory ([`render_outputs`]); [`write_outputs`] then writes each file atomically through
-//! [`crate::io::write_atomic`]. Nothing here prints.
+//! memory ([`render_outputs`]); [`write_outputs`] writes each file atomically through
+//! [`crate::io::write_atomic`] as soon as it is made, while the others are still being made
+//! ([`OutputSet::write_as_produced`]). Nothing here prints.
 
 mod bounds;
 mod field_plot;
@@ -42,61 +43,80 @@ pub struct Output {
 
 /// Render every output of `docs/case-files.md`, outputs in memory, in the order of [`OUTPUT_FILE_NAMES`].
 pub fn render_outputs(result: &EstimateResult) -> Result<Vec<Output>> {
-    // the pictures (and the page that inlines them) and the tables are independent: made
-    // side by side
-    let ((pictures, json), (field_csv, (profile_csv, sensors_csv))) = rayon::join(
-        || {
-            rayon::join(
-                || -> Result<_> {
-                    let (profile_svg, field_svg) = rayon::join(
-                        || profile_plot::profile_svg(result),
-                        || field_plot::field_svg(result),
-                    );
-                    let (profile_svg, field_svg) = (profile_svg?, field_svg?);
-                    let html = html::report_html(result, &profile_svg, &field_svg);
-                    Ok((profile_svg, field_svg, html))
-                },
-                || {
-                    serde_json::to_string_pretty(&summary_json(result))
-                        .map_err(|e| Error::Internal(format!("cannot format summary.json: {e}")))
-                },
-            )
-        },
-        || {
-            rayon::join(
-                || tables::field_csv(result),
-                || {
-                    rayon::join(
-                        || tables::profile_csv(result),
-                        || tables::sensors_csv(result),
-                    )
-                },
-            )
-        },
-    );
-    let (profile_svg, field_svg, html) = pictures?;
-    let mut rendered = [
-        ("profile.csv", profile_csv?),
-        ("field.csv", field_csv?),
-        ("sensors.csv", sensors_csv?),
-        ("summary.json", format!("{}\n", json?).into_bytes()),
-        ("profile.svg", profile_svg.into_bytes()),
-        ("field.svg", field_svg.into_bytes()),
-        ("report.html", html.into_bytes()),
-    ];
+    let made = std::sync::Mutex::new(Vec::with_capacity(OUTPUT_FILE_NAMES.len()));
+    render_each(result, &|name, bytes| {
+        made.lock()
+            .unwrap_or_else(std::sync::PoisonError::into_inner)
+            .push(Output { name, bytes });
+    })?;
+    let mut made = made
+        .into_inner()
+        .unwrap_or_else(std::sync::PoisonError::into_inner);
     let mut out = Vec::with_capacity(OUTPUT_FILE_NAMES.len());
     for name in OUTPUT_FILE_NAMES {
-        let bytes = match rendered.iter_mut().find(|(n, _)| *n == name) {
-            Some((_, bytes)) => std::mem::take(bytes),
+        match made.iter().position(|o| o.name == name) {
+            Some(i) => out.push(made.swap_remove(i)),
             None => {
                 return Err(Error::Internal(format!(
                     "the report has no renderer for the output file {name}"
                 )));
             }
-        };
-        out.push(Output { name, bytes });
+        }
     }
     Ok(out)
+}
+
+/// Render every output, handing each to `emit` (from whichever thread made it) as soon as it
+/// is made: the tables, `summary.json` and the two pictures side by side, then the page that
+/// inlines the pictures.
+fn render_each(
+    result: &EstimateResult,
+    emit: &(dyn Fn(&'static str, Vec<u8>) + Sync),
+) -> Result<()> {
+    let (pictures, (field_csv, (profile_csv, (sensors_csv, json)))) = rayon::join(
+        || -> Result<()> {
+            let (profile_svg, field_svg) = rayon::join(
+                || profile_plot::profile_svg(result),
+                || field_plot::field_svg(result),
+            );
+            let (profile_svg, field_svg) = (profile_svg?, field_svg?);
+            emit("profile.svg", profile_svg.clone().into_bytes());
+            emit("field.svg", field_svg.clone().into_bytes());
+            let html = html::report_html(result, &profile_svg, &field_svg);
+            emit("report.html", html.into_bytes());
+            Ok(())
+        },
+        || {
+            rayon::join(
+                || tables::field_csv(result).map(|b| emit("field.csv", b)),
+                || {
+                    rayon::join(
+                        || tables::profile_csv(result).map(|b| emit("profile.csv", b)),
+                        || {
+                            rayon::join(
+                                || tables::sensors_csv(result).map(|b| emit("sensors.csv", b)),
+                                || {
+                                    let json = serde_json::to_string_pretty(&summary_json(result))
+                                        .map_err(|e| {
+                                            Error::Internal(format!(
+                                                "cannot format summary.json: {e}"
+                                            ))
+                                        })?;
+                                    emit("summary.json", format!("{json}\n").into_bytes());
+                                    Ok(())
+                                },
+                            )
+                        },
+                    )
+                },
+            )
+        },
+    );
+    pictures?;
+    field_csv?;
+    profile_csv?;
+    sensors_csv?;
+    json
 }
 
 /// Render every output and write it into `out_dir` (created if needed) as one set
@@ -105,9 +125,8 @@ pub fn render_outputs(result: &EstimateResult) -> Result<Vec<Output>> {
 /// Nothing is written unless every output rendered. The caller must first check with
 /// [`crate::io::check_output_dir`] that no output would replace an input.
 pub fn write_outputs(result: &EstimateResult, out_dir: &Path) -> Result<Vec<PathBuf>> {
-    let outputs = render_outputs(result)?;
     let mut set = OutputSet::begin(out_dir, "estimate")?;
-    let files: Vec<(&str, &[u8])> = outputs.iter().map(|o| (o.name, &o.bytes[..])).collect();
-    set.write_all(&files)?;
+    // each file is written as soon as it is made, while the others are still being made
+    set.write_as_produced(&OUTPUT_FILE_NAMES, |emit| render_each(result, emit))?;
     set.commit()
 }
