@@ -819,31 +819,15 @@ mod tests {
             let want_peaks = ReplicatePeaks::new(&edge_positions, &est, &whole);
             let bits = |v: &[f64]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
             let case = format!("{edges} edges of {points} points, coarse {coarse}");
-            assert_eq!(
-                bits(&got.pointwise.0),
-                bits(&want_p.0),
-                "{case}: pointwise lower"
-            );
-            assert_eq!(
-                bits(&got.pointwise.1),
-                bits(&want_p.1),
-                "{case}: pointwise upper"
-            );
-            assert_eq!(
-                bits(&got.simultaneous.0),
-                bits(&want_s.0),
-                "{case}: simultaneous lower"
-            );
-            assert_eq!(
-                bits(&got.simultaneous.1),
-                bits(&want_s.1),
-                "{case}: simultaneous upper"
-            );
-            assert_eq!(
-                bits(&got.peaks.maxima),
-                bits(&want_peaks.maxima),
-                "{case}: maxima"
-            );
+            for (what, got, want) in [
+                ("pointwise lower", &got.pointwise.0, &want_p.0),
+                ("pointwise upper", &got.pointwise.1, &want_p.1),
+                ("simultaneous lower", &got.simultaneous.0, &want_s.0),
+                ("simultaneous upper", &got.simultaneous.1, &want_s.1),
+                ("maxima", &got.peaks.maxima, &want_peaks.maxima),
+            ] {
+                assert_eq!(bits(got), bits(want), "{case}: {what}");
+            }
             let located =
                 |l: &[(usize, f64)]| l.iter().map(|&(k, x)| (k, x.to_bits())).collect::<Vec<_>>();
             assert_eq!(
