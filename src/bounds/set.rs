@@ -772,10 +772,23 @@ fn polar_quasi_interpolation_allowance(
     rho
 }
 
+/// The polar allowance's basis at arc length `s` (metres) on a circle of `radius`: the
+/// functions of [`crate::forward::polar::trig_into`] over their norms squared (`2π r` for
+/// the constant, `π r` for the others), as many as `row` holds.
+fn polar_phi_into(s: f64, radius: f64, row: &mut [f64]) {
+    crate::forward::polar::trig_into(s / radius, row);
+    for (t, v) in row.iter_mut().enumerate() {
+        *v /= if t == 0 {
+            std::f64::consts::TAU * radius
+        } else {
+            std::f64::consts::PI * radius
+        };
+    }
+}
+
 /// Every sensor's kernel of the polar allowance at every fine position `fine` (metres along
-/// a circle of `radius`): `Σ_j φ_j(s_k) w_j` over the `n` normalised trigonometric functions
-/// `φ_j` ([`crate::forward::polar::trig_into`] over `2π r` for the constant, `π r` for the
-/// others) with the sensor's weights `w` (`n` each), added in the order of `j` from −0.0 as
+/// a circle of `radius`): `Σ_j φ_j(s_k) w_j` over the `n` functions of [`polar_phi_into`]
+/// with the sensor's weights `w` (`n` each), added in the order of `j` from −0.0 as
 /// `Iterator::sum` adds them; sensor after sensor (`fine.len()` values each).
 ///
 /// A block of [`KERNEL_BLOCK`] points at a time (eight points side by side in
@@ -789,14 +802,7 @@ fn polar_kernels(fine: &[f64], radius: f64, n: usize, weights: &[Vec<f64>]) -> V
         .map(|points| {
             let mut phi = vec![0.0; points.len() * n];
             for (row, &s) in phi.chunks_exact_mut(n.max(1)).zip(points) {
-                crate::forward::polar::trig_into(s / radius, row);
-                for (t, v) in row.iter_mut().enumerate() {
-                    *v /= if t == 0 {
-                        std::f64::consts::TAU * radius
-                    } else {
-                        std::f64::consts::PI * radius
-                    };
-                }
+                polar_phi_into(s, radius, row);
             }
             let mut sums = vec![0.0; m * points.len()];
             for (w, out) in weights.iter().zip(sums.chunks_exact_mut(points.len())) {
@@ -1018,14 +1024,7 @@ mod tests {
                 let got = polar_kernels(&fine, radius, n, &weights);
                 let mut row = vec![0.0; n];
                 for (k, &s) in fine.iter().enumerate() {
-                    crate::forward::polar::trig_into(s / radius, &mut row);
-                    for (t, v) in row.iter_mut().enumerate() {
-                        *v /= if t == 0 {
-                            std::f64::consts::TAU * radius
-                        } else {
-                            std::f64::consts::PI * radius
-                        };
-                    }
+                    polar_phi_into(s, radius, &mut row);
                     for (i, w) in weights.iter().enumerate() {
                         let want: f64 = row.iter().zip(w).map(|(p, w)| p * w).sum();
                         assert_eq!(

@@ -364,16 +364,7 @@ impl ProfileBands {
         let mut peaks = PeakTracker::new(edge_positions, b);
         let mut errors = DMatrix::<f64>::zeros(0, 0);
         for (start, len) in band_blocks(q.nrows()) {
-            if errors.shape() != (b, len) {
-                errors = DMatrix::zeros(b, len);
-            }
-            // `gemm` with β = 0: the same call to the product kernel as `*`
-            errors.gemm(
-                1.0,
-                &boot.coefficient_errors,
-                &q.rows(start, len).transpose(),
-                0.0,
-            );
+            boot.errors_of_rows_into(q, (start, len), &mut errors);
             let block_est = &est[start..start + len];
             let (lo, hi) = pointwise_band(block_est, &errors, confidence);
             lower.extend(lo);

@@ -383,54 +383,16 @@ impl OutputSet {
         Ok(())
     }
 
-    /// Write several files of the set side by side (each as [`Self::write`]); they are
-    /// recorded in the order given. On an error nothing of them is recorded.
-    ///
-    /// # Errors
-    /// The first [`Error::Io`], in the order given.
-    pub fn write_all(&mut self, files: &[(&str, &[u8])]) -> Result<()> {
-        let staging = self.staging.path();
-        let write = |(name, bytes): &(&str, &[u8])| write_atomic(&staging.join(name), bytes);
-        // one thread per file: the threads mostly wait on their `fsync`, and waits issued
-        // together end together (on the 2-core bench machine 3.4 ms -> 2.5 ms for the
-        // estimate's seven files, against two at a time on the compute threads). A file
-        // whose thread cannot be started is written here. Every outcome is kept, so that
-        // the error reported is the first in the order given (a temporary of this process
-        // is never taken for a stale one by another write).
-        let written: Vec<Result<()>> = std::thread::scope(|scope| {
-            let started: Vec<_> = files
-                .iter()
-                .map(|file| {
-                    std::thread::Builder::new()
-                        .name("edgetherm-write".into())
-                        .spawn_scoped(scope, move || write(file))
-                        .map_err(|_| file)
-                })
-                .collect();
-            started
-                .into_iter()
-                .map(|thread| match thread {
-                    Ok(handle) => handle.join().unwrap_or_else(|_| {
-                        Err(Error::Internal("a thread writing an output stopped".into()))
-                    }),
-                    Err(file) => write(file),
-                })
-                .collect()
-        });
-        written.into_iter().collect::<Result<Vec<()>>>()?;
-        self.files.extend(
-            files
-                .iter()
-                .map(|(name, bytes)| (name.to_string(), bytes.len() as u64)),
-        );
-        Ok(())
-    }
-
-    /// Write the files `produce` hands over, each on a thread of its own started as soon as
-    /// its bytes are handed over (as [`Self::write_all`]), so that writing the first files
-    /// overlaps making the last. `produce` is given the function to hand a file over with
-    /// (from any thread) and must hand over each of `names` once; the files are recorded in
-    /// the order of `names`.
+    /// Write the files `produce` hands over (each as [`Self::write`]), each on a thread of
+    /// its own started as soon as its bytes are handed over: the threads mostly wait on
+    /// their `fsync`, waits issued together end together (on the 2-core bench machine
+    /// 3.4 ms -> 2.5 ms for the estimate's seven files, against two at a time on the compute
+    /// threads), and writing the first files overlaps making the last. A file whose thread
+    /// cannot be started is written where it is handed over. `produce` is given the
+    /// function to hand a file over with (from any thread) and must hand over each of
+    /// `names` once; the files are recorded in the order of `names`. Every outcome is kept,
+    /// so that the error reported is the first in that order (a temporary of this process
+    /// is never taken for a stale one by another write).
     ///
     /// # Errors
     /// The error of `produce`; else the first [`Error::Io`] in the order of `names`; an
@@ -441,51 +403,41 @@ impl OutputSet {
         F: FnOnce(&(dyn Fn(&'static str, Vec<u8>) + Sync)) -> Result<()>,
     {
         let staging = self.staging.path();
-        type Written = (&'static str, u64, Result<()>);
-        let done: std::sync::Mutex<Vec<Written>> = std::sync::Mutex::new(Vec::new());
-        let produced = std::thread::scope(|scope| {
-            let started = std::sync::Mutex::new(Vec::new());
+        let (produced, mut done) = std::thread::scope(|scope| {
+            let handed = std::sync::Mutex::new(Vec::new());
             let hand_over = |name: &'static str, bytes: Vec<u8>| {
                 let len = bytes.len() as u64;
-                let write = move || write_atomic(&staging.join(name), &bytes);
-                // a file whose thread cannot be started is written here
-                let spawned = std::thread::Builder::new()
+                let bytes = std::sync::Arc::new(bytes);
+                let for_thread = std::sync::Arc::clone(&bytes);
+                let pending = std::thread::Builder::new()
                     .name("edgetherm-write".into())
-                    .spawn_scoped(scope, write);
-                match spawned {
-                    Ok(handle) => started
-                        .lock()
-                        .unwrap_or_else(std::sync::PoisonError::into_inner)
-                        .push((name, len, handle)),
-                    Err(_) => done
-                        .lock()
-                        .unwrap_or_else(std::sync::PoisonError::into_inner)
-                        .push((
-                            name,
-                            len,
-                            Err(Error::Internal(format!("no thread to write {name}"))),
-                        )),
-                }
+                    .spawn_scoped(scope, move || {
+                        write_atomic(&staging.join(name), &for_thread)
+                    })
+                    .map_err(|_| write_atomic(&staging.join(name), &bytes));
+                handed
+                    .lock()
+                    .unwrap_or_else(std::sync::PoisonError::into_inner)
+                    .push((name, len, pending));
             };
             let produced = produce(&hand_over);
-            let started = started
+            let done: Vec<(&str, u64, Result<()>)> = handed
                 .into_inner()
-                .unwrap_or_else(std::sync::PoisonError::into_inner);
-            let mut done = done
-                .lock()
-                .unwrap_or_else(std::sync::PoisonError::into_inner);
-            for (name, len, handle) in started {
-                let outcome = handle.join().unwrap_or_else(|_| {
-                    Err(Error::Internal("a thread writing an output stopped".into()))
-                });
-                done.push((name, len, outcome));
-            }
-            produced
+                .unwrap_or_else(std::sync::PoisonError::into_inner)
+                .into_iter()
+                .map(|(name, len, pending)| {
+                    let outcome = match pending {
+                        Ok(thread) => thread.join().unwrap_or_else(|_| {
+                            Err(Error::Internal("a thread writing an output stopped".into()))
+                        }),
+                        Err(written_here) => written_here,
+                    };
+                    (name, len, outcome)
+                })
+                .collect();
+            (produced, done)
         });
         produced?;
-        let mut done = done
-            .into_inner()
-            .unwrap_or_else(std::sync::PoisonError::into_inner);
         let mut files = Vec::with_capacity(names.len());
         for &name in names {
             let at = done.iter().position(|(n, _, _)| *n == name);

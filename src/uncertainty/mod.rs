@@ -305,6 +305,28 @@ impl BootstrapOutput {
         &self.coefficient_errors * q.transpose()
     }
 
+    /// The errors of rows `start..start + len` of the quantity `Q c` into `errors` (made
+    /// `B × len` if it is not): the same numbers as those columns of [`Self::errors_of`]
+    /// when `len` is one of [`band_blocks`]' widths (the same call to the product kernel;
+    /// `gemm` with β = 0 writes over what the buffer held), without a new matrix per block.
+    pub fn errors_of_rows_into(
+        &self,
+        q: &DMatrix<f64>,
+        (start, len): (usize, usize),
+        errors: &mut DMatrix<f64>,
+    ) {
+        let b = self.coefficient_errors.nrows();
+        if errors.shape() != (b, len) {
+            *errors = DMatrix::zeros(b, len);
+        }
+        errors.gemm(
+            1.0,
+            &self.coefficient_errors,
+            &q.rows(start, len).transpose(),
+            0.0,
+        );
+    }
+
     /// The pointwise band ([`pointwise_band`]) of the quantity `Q c` whose estimate is
     /// `estimate`, formed block by block of points in parallel without holding every
     /// replicate's error at every point: the same numbers as
@@ -320,7 +342,8 @@ impl BootstrapOutput {
         let blocks: Vec<(Vec<f64>, Vec<f64>)> = blocks
             .into_par_iter()
             .map(|(start, len)| {
-                let errors = &self.coefficient_errors * q.rows(start, len).transpose();
+                let mut errors = DMatrix::zeros(0, 0);
+                self.errors_of_rows_into(q, (start, len), &mut errors);
                 pointwise_band(&estimate[start..start + len], &errors, confidence)
             })
             .collect();

@@ -68,61 +68,44 @@ pub fn render_outputs(result: &EstimateResult) -> Result<Vec<Output>> {
 
 /// Render every output, handing each to `emit` (from whichever thread made it) as soon as it
 /// is made: the tables, `summary.json` and the two pictures side by side, then the page that
-/// inlines the pictures.
+/// inlines the pictures. The first error in the order of the tasks below is returned.
 fn render_each(
     result: &EstimateResult,
     emit: &(dyn Fn(&'static str, Vec<u8>) + Sync),
 ) -> Result<()> {
-    let (pictures, (field_csv, (profile_csv, (sensors_csv, json)))) = rayon::join(
-        || -> Result<()> {
-            let (profile_svg, field_svg) = rayon::join(
-                || profile_plot::profile_svg(result),
-                || field_plot::field_svg(result),
-            );
-            let (profile_svg, field_svg) = (profile_svg?, field_svg?);
-            emit("profile.svg", profile_svg.clone().into_bytes());
-            emit("field.svg", field_svg.clone().into_bytes());
-            let html = html::report_html(result, &profile_svg, &field_svg);
-            emit("report.html", html.into_bytes());
-            Ok(())
-        },
-        || {
-            rayon::join(
-                || tables::field_csv(result).map(|b| emit("field.csv", b)),
-                || {
-                    rayon::join(
-                        || tables::profile_csv(result).map(|b| emit("profile.csv", b)),
-                        || {
-                            rayon::join(
-                                || tables::sensors_csv(result).map(|b| emit("sensors.csv", b)),
-                                || {
-                                    let json = serde_json::to_string_pretty(&summary_json(result))
-                                        .map_err(|e| {
-                                            Error::Internal(format!(
-                                                "cannot format summary.json: {e}"
-                                            ))
-                                        })?;
-                                    emit("summary.json", format!("{json}\n").into_bytes());
-                                    Ok(())
-                                },
-                            )
-                        },
-                    )
-                },
-            )
-        },
-    );
-    pictures?;
-    field_csv?;
-    profile_csv?;
-    sensors_csv?;
-    json
+    use rayon::prelude::*;
+    let pictures = || -> Result<()> {
+        let (profile_svg, field_svg) = rayon::join(
+            || profile_plot::profile_svg(result),
+            || field_plot::field_svg(result),
+        );
+        let (profile_svg, field_svg) = (profile_svg?, field_svg?);
+        emit("profile.svg", profile_svg.clone().into_bytes());
+        emit("field.svg", field_svg.clone().into_bytes());
+        let html = html::report_html(result, &profile_svg, &field_svg);
+        emit("report.html", html.into_bytes());
+        Ok(())
+    };
+    let summary = || -> Result<()> {
+        let json = serde_json::to_string_pretty(&summary_json(result))
+            .map_err(|e| Error::Internal(format!("cannot format summary.json: {e}")))?;
+        emit("summary.json", format!("{json}\n").into_bytes());
+        Ok(())
+    };
+    let field_csv = || tables::field_csv(result).map(|b| emit("field.csv", b));
+    let profile_csv = || tables::profile_csv(result).map(|b| emit("profile.csv", b));
+    let sensors_csv = || tables::sensors_csv(result).map(|b| emit("sensors.csv", b));
+    let tasks: [&(dyn Fn() -> Result<()> + Sync); 5] =
+        [&pictures, &field_csv, &profile_csv, &sensors_csv, &summary];
+    let outcomes: Vec<Result<()>> = tasks.par_iter().map(|task| task()).collect();
+    outcomes.into_iter().collect()
 }
 
 /// Render every output and write it into `out_dir` (created if needed) as one set
 /// ([`OutputSet`]: a reader never sees a mix of an earlier set and this one). Returns the paths written, in the order of [`OUTPUT_FILE_NAMES`].
 ///
-/// Nothing is written unless every output rendered. The caller must first check with
+/// Nothing reaches `out_dir` unless every output rendered (the files already written stay in
+/// the set's staging folder, which goes with the set). The caller must first check with
 /// [`crate::io::check_output_dir`] that no output would replace an input.
 pub fn write_outputs(result: &EstimateResult, out_dir: &Path) -> Result<Vec<PathBuf>> {
     let mut set = OutputSet::begin(out_dir, "estimate")?;
