@@ -380,6 +380,50 @@ impl ProfileBands {
     }
 }
 
+crate::simd::avx2_dispatch! {
+    /// One point `t > 0` of an edge for every replicate `b` ([`PeakTracker::add_block`]):
+    /// with `v = estimate − errors[b]`, a value above the best so far becomes the best (its
+    /// index `t`, the value before it), else the value just after the best is kept; then the
+    /// last value and the running maximum. The choices as selections instead of branches, so
+    /// that the replicates go four to an instruction in the AVX2 build: the same comparisons
+    /// (`>` is false for NaN) and the same values as the branches.
+    fn peak_step(
+        point: (f64, &[f64], usize),
+        best: (&mut [usize], &mut [f64]),
+        beside: (&mut [f64], &mut [f64]),
+        running: (&mut [f64], &mut [f64]),
+    ) = peak_step_body;
+}
+
+/// The body of [`peak_step`].
+#[inline(always)]
+fn peak_step_body(
+    (estimate, errors, t): (f64, &[f64], usize),
+    (k, top): (&mut [usize], &mut [f64]),
+    (before, after): (&mut [f64], &mut [f64]),
+    (last, maxima): (&mut [f64], &mut [f64]),
+) {
+    let n = errors.len();
+    let (k, top, before, after) = (
+        &mut k[..n],
+        &mut top[..n],
+        &mut before[..n],
+        &mut after[..n],
+    );
+    let (last, maxima) = (&mut last[..n], &mut maxima[..n]);
+    for b in 0..n {
+        let v = estimate - errors[b];
+        let higher = v > top[b];
+        let next = !higher && t == k[b] + 1;
+        after[b] = if next { v } else { after[b] };
+        before[b] = if higher { last[b] } else { before[b] };
+        k[b] = if higher { t } else { k[b] };
+        top[b] = if higher { v } else { top[b] };
+        last[b] = v;
+        maxima[b] = maxima[b].max(v);
+    }
+}
+
 /// [`ReplicatePeaks`] taken point after point (blocks of points in order): per replicate,
 /// the running maximum of its profile, and on the edge under way the first grid point of
 /// its largest value with that value's neighbours, refined as [`refined_max`] refines it when
@@ -424,18 +468,20 @@ impl<'a> PeakTracker<'a> {
         for (c, column) in errors.as_slice().chunks_exact(b_count.max(1)).enumerate() {
             let j = start + c;
             let (edge, t) = (j / n, j % n);
-            let e = est[c];
-            for (b, err) in column.iter().enumerate() {
-                let v = e - err;
-                if t == 0 {
+            if t == 0 {
+                for (b, err) in column.iter().enumerate() {
+                    let v = est[c] - err;
                     (self.k[b], self.top[b]) = (0, v);
-                } else if v > self.top[b] {
-                    (self.k[b], self.top[b], self.before[b]) = (t, v, self.last[b]);
-                } else if t == self.k[b] + 1 {
-                    self.after[b] = v;
+                    self.last[b] = v;
+                    self.maxima[b] = self.maxima[b].max(v);
                 }
-                self.last[b] = v;
-                self.maxima[b] = self.maxima[b].max(v);
+            } else {
+                peak_step(
+                    (est[c], column, t),
+                    (&mut self.k, &mut self.top),
+                    (&mut self.before, &mut self.after),
+                    (&mut self.last, &mut self.maxima),
+                );
             }
             if t + 1 == n {
                 self.finish_edge(edge);
