@@ -149,6 +149,107 @@ pub struct RowRecord<'a> {
 /// Rows a thread claims at a time when fitting a batch ahead ([`Tracker::push_batch`]).
 const CLAIM_ROWS: usize = 8;
 
+/// A batch to fit ahead ([`Tracker::push_batch`]): its rows, a slot per row for the fit, the
+/// counter by which the two threads claim rows, and what every row's fit takes.
+struct BatchJob {
+    rows: Vec<LoggerRow>,
+    #[allow(clippy::vec_box)] // boxed slots move by pointer into `Ahead`
+    slots: Vec<Mutex<Box<Slot>>>,
+    next: AtomicUsize,
+    /// Per sensor: left out as stuck or faulty when the batch was handed over.
+    left_out: Vec<bool>,
+    /// The fewest readings a fit takes.
+    need: usize,
+    limit: Option<f64>,
+    strength: RowStrength,
+}
+
+impl BatchJob {
+    /// Fit the rows not yet claimed by either thread, each with its guessed sensors; rows
+    /// are claimed a few at a time: fewer trips of the counter's and the slots' cache lines
+    /// between the cores.
+    fn fit_rest(&self, est: &mut RowEstimator) {
+        let rows = &self.rows;
+        loop {
+            let first = self.next.fetch_add(CLAIM_ROWS, Ordering::Relaxed);
+            if first >= rows.len() {
+                break;
+            }
+            for i in first..(first + CLAIM_ROWS).min(rows.len()) {
+                let row = &rows[i];
+                let mut guard = self.slots[i].lock().unwrap_or_else(PoisonError::into_inner);
+                let slot: &mut Slot = &mut guard;
+                slot.used.clear();
+                slot.used.extend(guessed_sensors(row, &self.left_out));
+                slot.fitted = slot.used.len() >= self.need
+                    && est
+                        .fit_row_ahead(
+                            &row.values,
+                            &slot.used,
+                            self.strength,
+                            self.limit,
+                            &mut slot.ahead,
+                        )
+                        .is_ok();
+            }
+        }
+    }
+}
+
+/// What the helper thread says when a batch is done: nothing, or the panic that stopped it.
+type HelperDone = std::thread::Result<()>;
+
+/// The thread that fits each batch ahead beside the calling thread ([`Tracker::push_batch`]),
+/// with its own [`RowEstimator`], started once for the tracker's life. A thread started for
+/// each batch, as before, began fitting about 0.4 ms after it was asked to on the 2-core
+/// bench machine (its creation, then its wait for a core while the reading thread ran: the
+/// scheduler lets a new thread wait), most of the time the calling thread spends finishing
+/// the batch before; a thread woken from sleep starts within tens of microseconds.
+struct HelperThread {
+    jobs: std::sync::mpsc::Sender<std::sync::Arc<BatchJob>>,
+    done: std::sync::mpsc::Receiver<HelperDone>,
+    handle: Option<std::thread::JoinHandle<()>>,
+}
+
+impl HelperThread {
+    /// Start the thread with `estimator`; `None` when no thread can be started.
+    fn start(mut estimator: RowEstimator) -> Option<Self> {
+        let (jobs, job_rx) = std::sync::mpsc::channel::<std::sync::Arc<BatchJob>>();
+        let (done_tx, done) = std::sync::mpsc::channel::<HelperDone>();
+        let handle = std::thread::Builder::new()
+            .name("edgetherm-track-ahead".into())
+            .spawn(move || {
+                for job in job_rx {
+                    let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+                        job.fit_rest(&mut estimator);
+                    }));
+                    // the batch goes back to the calling thread whole: let go of it first
+                    drop(job);
+                    if done_tx.send(outcome).is_err() {
+                        break;
+                    }
+                }
+            })
+            .ok()?;
+        Some(HelperThread {
+            jobs,
+            done,
+            handle: Some(handle),
+        })
+    }
+}
+
+impl Drop for HelperThread {
+    fn drop(&mut self) {
+        // closing the job channel ends the thread's loop
+        let (closed, _) = std::sync::mpsc::channel();
+        drop(std::mem::replace(&mut self.jobs, closed));
+        if let Some(handle) = self.handle.take() {
+            let _ = handle.join();
+        }
+    }
+}
+
 /// Rows fitted ahead ([`Tracker::push_batch`]), each with its sensors that have a reading
 /// less those left out as stuck or faulty when the batch was fitted, and the fits (not
 /// fitted: too few sensors or an error; the row is then fitted in order).
@@ -201,8 +302,8 @@ pub struct Tracker {
     /// Strict bounds on rows, with a gradient limit.
     bounds: Option<bounds::RowBounds>,
     bound: Option<bounds::RowBound>,
-    /// The estimator of the helper thread of [`Self::push_batch`] (made on its first call).
-    helper: Option<RowEstimator>,
+    /// The helper thread of [`Self::push_batch`] (started on its first call).
+    helper: Option<HelperThread>,
     /// Buffers of rows fitted ahead, for the next batch (boxed: they move by pointer).
     #[allow(clippy::vec_box)]
     spare: Vec<Box<Slot>>,
@@ -367,69 +468,65 @@ impl Tracker {
                 return Ok(());
             }
         };
-        let mut helper = match self.helper.take() {
-            Some(h) => h,
-            None => RowEstimator::new(
+        let helper = match self.helper.take() {
+            Some(h) => Some(h),
+            None => HelperThread::start(RowEstimator::new(
                 &self.case,
                 self.options.draws,
                 self.seed,
                 self.options.stride,
-            )?,
+            )?),
+        };
+        let Some(helper) = helper else {
+            // no thread could be started: the rows one after another, as without one
+            for row in &rows {
+                self.push(row, sink)?;
+            }
+            return Ok(());
         };
         let left_out: Vec<bool> = (0..self.case.sensors.len())
             .map(|i| !self.options.keep_all && self.health.left_out_now(i))
             .collect();
-        let (need, limit) = (self.estimator.min_readings(), self.options.limit);
         let slots: Vec<Mutex<Box<Slot>>> = rows
             .iter()
             .map(|_| Mutex::new(self.spare.pop().unwrap_or_default()))
             .collect();
-        let next = AtomicUsize::new(0);
-        // fit the rows not yet claimed by either thread, each with its guessed sensors;
-        // rows are claimed a few at a time: fewer trips of the counter's and the slots'
-        // cache lines between the cores
-        let fit_rest = |est: &mut RowEstimator| {
-            loop {
-                let first = next.fetch_add(CLAIM_ROWS, Ordering::Relaxed);
-                if first >= rows.len() {
-                    break;
-                }
-                for i in first..(first + CLAIM_ROWS).min(rows.len()) {
-                    let row = &rows[i];
-                    let mut guard = slots[i].lock().unwrap_or_else(PoisonError::into_inner);
-                    let slot: &mut Slot = &mut guard;
-                    slot.used.clear();
-                    slot.used.extend(guessed_sensors(row, &left_out));
-                    slot.fitted = slot.used.len() >= need
-                        && est
-                            .fit_row_ahead(
-                                &row.values,
-                                &slot.used,
-                                strength,
-                                limit,
-                                &mut slot.ahead,
-                            )
-                            .is_ok();
-                }
-            }
-        };
-        let pending = self.ahead.take();
-        let done = std::thread::scope(|scope| {
-            let ahead = scope.spawn(|| fit_rest(&mut helper));
-            let done = match pending {
-                Some(a) => self.commit_ahead(a, sink),
-                None => Ok(()),
-            };
-            fit_rest(&mut self.estimator);
-            if let Err(panic) = ahead.join() {
-                std::panic::resume_unwind(panic);
-            }
-            done
-        });
-        self.helper = Some(helper);
-        self.ahead = Some(Ahead {
+        let job = std::sync::Arc::new(BatchJob {
             rows,
-            fits: slots
+            slots,
+            next: AtomicUsize::new(0),
+            left_out,
+            need: self.estimator.min_readings(),
+            limit: self.options.limit,
+            strength,
+        });
+        let sent = helper.jobs.send(std::sync::Arc::clone(&job)).is_ok();
+        let pending = self.ahead.take();
+        let done = match pending {
+            Some(a) => self.commit_ahead(a, sink),
+            None => Ok(()),
+        };
+        job.fit_rest(&mut self.estimator);
+        if sent {
+            match helper.done.recv() {
+                Ok(Ok(())) => {}
+                Ok(Err(panic)) => std::panic::resume_unwind(panic),
+                Err(_) => {
+                    return Err(crate::error::Error::Internal(
+                        "the thread fitting rows ahead stopped".into(),
+                    ));
+                }
+            }
+        }
+        self.helper = Some(helper);
+        // the helper let go of the batch before it said so
+        let job = std::sync::Arc::try_unwrap(job).map_err(|_| {
+            crate::error::Error::Internal("a batch fitted ahead is still in use".into())
+        })?;
+        self.ahead = Some(Ahead {
+            rows: job.rows,
+            fits: job
+                .slots
                 .into_iter()
                 .map(|s| s.into_inner().unwrap_or_else(PoisonError::into_inner))
                 .collect(),
