@@ -175,9 +175,9 @@ impl BatchJob {
             if first >= rows.len() {
                 break;
             }
-            for i in first..(first + CLAIM_ROWS).min(rows.len()) {
-                let row = &rows[i];
-                let mut guard = self.slots[i].lock().unwrap_or_else(PoisonError::into_inner);
+            let end = (first + CLAIM_ROWS).min(rows.len());
+            for (row, slot) in rows[first..end].iter().zip(&self.slots[first..end]) {
+                let mut guard = slot.lock().unwrap_or_else(PoisonError::into_inner);
                 let slot: &mut Slot = &mut guard;
                 slot.used.clear();
                 slot.used.extend(guessed_sensors(row, &self.left_out));
