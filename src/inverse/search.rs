@@ -25,6 +25,15 @@
 //!    provably worse than the best one, so `k*` does not depend on where the search
 //!    started. Away from the optimum the evidence rises by many units, so a handful of
 //!    bisections rule out most of the grid.
+//!
+//!    With the profiled scale the criterion holds a logarithm of `Q`, which is most of a
+//!    grid point's cost. `E > X` is the same as `Q > S(X) e^{−ℓ/m'}` with
+//!    `S(X) = (m'/2π) e^{X/m' − 1}` and `e^{−ℓ/m'}` in the grid's table, so a point shown
+//!    above the best by more than a small window, and a run whose bound is above the best
+//!    by the margin, are recognised by a product (`Screen`; one exponential per new best).
+//!    A point so shown is left unformed: it can be neither the best nor tie with it, so the
+//!    choice is the same to the last bit as with every point formed (a unit test holds the
+//!    two to each other).
 //! 2. **The minimum between the neighbours** of `k*`: the root of `dE/d ln λ`, which is a
 //!    rational function of λ (`Σ f_i (β_i² w_i − 1)` with known σ; with the profiled scale
 //!    `m' Σ β_i² f_i w_i / Q − Σ f_i`), by Newton's method safeguarded by bisection in the
@@ -76,6 +85,12 @@ pub struct EvidenceSearch {
     visited: Vec<usize>,
     /// Grid points evaluated by the last search (for the benchmark's account).
     pub evaluated: usize,
+    /// Of those, the ones whose criterion was formed (with the profiled scale, the others
+    /// were shown to lose without it: module doc, step 1).
+    pub formed: usize,
+    /// Form every evaluated point's criterion (the check path of the tests): the same
+    /// choice, to the last bit, as with the screen.
+    pub without_screen: bool,
     /// The data-independent parts of the criterion on the grid, built on the first search
     /// (and again if the grid changes): per grid point the `w_i` and `ℓ`.
     table: Option<GridTable>,
@@ -97,6 +112,8 @@ struct GridTable {
     ell: Vec<f64>,
     /// `λ_k`.
     lambda: Vec<f64>,
+    /// `e^{−ℓ_k/m'}` (the profiled-scale screen of [`Decomposition::best_grid_point`]).
+    decay: Vec<f64>,
 }
 
 /// The best grid point of an evidence search ([`Decomposition::evidence_grid`]), to be
@@ -115,12 +132,78 @@ pub struct GridPick {
     reference: bool,
 }
 
-/// The two sums and the criterion at one λ.
+/// How far above the best criterion a grid point's criterion must be shown to lie before
+/// [`Decomposition::best_grid_point`] leaves it unformed: four times the [`MARGIN`] of its
+/// run bounds, so that an unformed point is neither the best nor within the rounding tolerance
+/// (1e-9 relative) at which [`Decomposition::bracket_floor`] asks whether another grid value
+/// ties with the best.
+const WINDOW: f64 = 4.0 * MARGIN;
+
+/// The relative margin by which [`Decomposition::best_grid_point`] drops a run of grid
+/// points only when its bound exceeds the best: far above the rounding of the bound.
+const MARGIN: f64 = 1e-9;
+
+/// The screen's scales ([`Screen::scales`]) at the best so far plus the window and plus the
+/// margin (`None` before a best, or where the screen is off).
 #[derive(Debug, Clone, Copy)]
-struct Point {
-    ell: f64,
-    quad: f64,
-    value: f64,
+struct Scales {
+    window: Option<f64>,
+    margin: Option<f64>,
+}
+
+/// The profiled scale's screen of [`Decomposition::best_grid_point`]: with
+/// `E = m' (ln(2π Q/m') + 1) + ℓ`, `E > X` exactly when `Q > S(X) e^{−ℓ/m'}`,
+/// `S(X) = (m'/2π) e^{X/m' − 1}`; `e^{−ℓ/m'}` is in the grid's table, so a point, or a run's
+/// bound `E(ℓ_{j−1}, Q_i)`, is compared with `X` by a product instead of a logarithm (one
+/// exponential per new best). The product and the exponentials are each within a few units
+/// in the last place, a relative error of about 1e-15 in `Q`, i.e. `m'`·1e-15 in `E`; a
+/// relative slack of 1e-12 on `Q` covers it, so "above" is certain, and where a factor is
+/// not a normal number the criterion is formed instead. With the known σ, `E` has no
+/// logarithm and the screen is off.
+#[derive(Debug, Clone, Copy)]
+struct Screen {
+    /// `m'` when the screen is on.
+    mp: Option<f64>,
+}
+
+impl Screen {
+    fn new(kind: EvidenceKind, mp: f64, off: bool) -> Self {
+        let on = kind == EvidenceKind::ProfiledScale && !off && mp.is_normal() && mp > 0.0;
+        Screen {
+            mp: on.then_some(mp),
+        }
+    }
+
+    /// The scales at a new best criterion `v`: `S(v)(1 + δ/m')` for the window and the
+    /// margin `δ` (each relative to `1 + |v|`), one exponential for both. `1 + δ/m'` is
+    /// below `e^{δ/m'}`, so each stands for `v` plus at least half its `δ` (`δ/m'` is far
+    /// below one): still twice, and half, the tolerances they must exceed.
+    fn scales(&self, v: f64) -> Scales {
+        let Some(mp) = self.mp else {
+            return Scales {
+                window: None,
+                margin: None,
+            };
+        };
+        let s = mp / (2.0 * std::f64::consts::PI) * (v / mp - 1.0).exp();
+        let at = |rel: f64| {
+            let x = s * (1.0 + rel * (1.0 + v.abs()) / mp);
+            (x.is_normal() && x > 0.0).then_some(x)
+        };
+        Scales {
+            window: at(WINDOW),
+            margin: at(MARGIN),
+        }
+    }
+
+    /// Whether the criterion at `Q = quad` with `e^{−ℓ/m'} = decay` is above the `X` whose
+    /// scale `S(X)` is `scale`: `Some(true)` only when it certainly is, `Some(false)` when
+    /// it is not by more than the slack, `None` when the screen cannot tell (off, or a
+    /// factor not a normal number).
+    fn above(quad: f64, decay: f64, scale: Option<f64>) -> Option<bool> {
+        let threshold = scale? * decay;
+        (decay.is_normal() && threshold.is_normal()).then_some(quad > threshold * (1.0 + 1e-12))
+    }
 }
 
 impl Decomposition {
@@ -196,6 +279,7 @@ impl Decomposition {
         let mut ell = Vec::with_capacity(n);
         let mut lambdas = Vec::with_capacity(n);
         let zero = self.empty_projection();
+        let mp = (self.m - self.q) as f64;
         for k in 0..n {
             let lam = lambda(k);
             // the same expressions as `sums` (w = λ/(g² + λ)) and `derivatives`
@@ -208,6 +292,7 @@ impl Decomposition {
             ell.push(self.sums(&zero, lam).0);
             lambdas.push(lam);
         }
+        let decay = ell.iter().map(|l| (-l / mp).exp()).collect();
         GridTable {
             key,
             g: self.g.as_slice().to_vec(),
@@ -215,6 +300,7 @@ impl Decomposition {
             inv,
             ell,
             lambda: lambdas,
+            decay,
         }
     }
 
@@ -229,16 +315,7 @@ impl Decomposition {
     ) -> (f64, usize) {
         let r = self.g.len();
         let mp = (self.m - self.q) as f64;
-        // a grid point from the table: the same numbers as `sums` at its λ
-        let eval_grid = |k: usize| -> Point {
-            let ell = table.ell[k];
-            let quad = quad_sum(&table.w[k * r..(k + 1) * r], proj);
-            Point {
-                ell,
-                quad,
-                value: criterion(kind, mp, ell, quad),
-            }
-        };
+        let screen = Screen::new(kind, mp, st.without_screen);
         st.id = st.id.wrapping_add(1);
         if st.done.len() != n || st.id == 0 {
             st.ell = vec![0.0; n];
@@ -249,24 +326,43 @@ impl Decomposition {
         }
         let id = st.id;
         st.evaluated = 0;
+        st.formed = 0;
         st.visited.clear();
         let mut best = (f64::INFINITY, usize::MAX);
-        let visit = |st: &mut EvidenceSearch, k: usize, best: &mut (f64, usize)| {
-            if st.done[k] == id {
-                return;
-            }
-            let p = eval_grid(k);
-            st.ell[k] = p.ell;
-            st.quad[k] = p.quad;
-            st.value[k] = not_nan(p.value);
-            st.done[k] = id;
-            st.evaluated += 1;
-            st.visited.push(k);
-            let v = st.value[k];
-            if v < best.0 || (v <= best.0 && k < best.1) {
-                *best = (v, k);
-            }
+        // the screen's scales for the window above the best and for the runs' margin
+        // (recomputed as the best falls)
+        let mut scales = Scales {
+            window: None,
+            margin: None,
         };
+        // a grid point from the table (`Q` the same number as `sums` gives at its λ); its
+        // criterion is formed unless the screen shows it above the best by more than the
+        // window (it is then left at +∞: it cannot be the best, nor tie with it)
+        let visit =
+            |st: &mut EvidenceSearch, k: usize, best: &mut (f64, usize), scales: &mut Scales| {
+                if st.done[k] == id {
+                    return;
+                }
+                let quad = quad_sum(&table.w[k * r..(k + 1) * r], proj);
+                st.ell[k] = table.ell[k];
+                st.quad[k] = quad;
+                st.done[k] = id;
+                st.evaluated += 1;
+                st.visited.push(k);
+                if Screen::above(quad, table.decay[k], scales.window) == Some(true) {
+                    st.value[k] = f64::INFINITY;
+                    return;
+                }
+                st.formed += 1;
+                let v = not_nan(criterion(kind, mp, table.ell[k], quad));
+                st.value[k] = v;
+                if v < best.0 || (v <= best.0 && k < best.1) {
+                    if v < best.0 {
+                        *scales = screen.scales(v);
+                    }
+                    *best = (v, k);
+                }
+            };
         // the previous choice's neighbourhood first (a good bound early), then the ends
         let start = st.last_k.filter(|&k| k < n).unwrap_or(n / 2);
         for k in [
@@ -276,7 +372,7 @@ impl Decomposition {
             0,
             n - 1,
         ] {
-            visit(st, k, &mut best);
+            visit(st, k, &mut best, &mut scales);
         }
         // the runs between the points evaluated so far (the five above, both ends among
         // them), in the order of the grid
@@ -290,22 +386,27 @@ impl Decomposition {
         }
         while let Some((i, j)) = st.stack.pop() {
             // every grid point strictly between i and j is at least E(ℓ_{j−1}, Q_i) (ℓ falls
-            // and Q rises with λ; ℓ is the table's at every grid point, evaluated or not);
-            // the criterion is ℓ plus a function of Q, so that is E_i − ℓ_i + ℓ_{j−1} (no
-            // logarithm of Q again; the same number to rounding, far inside the margin
-            // below)
+            // and Q rises with λ; ℓ is the table's at every grid point, evaluated or not)
             let ell_last = table.ell[j - 1];
-            let bound = if st.value[i].is_finite() {
-                st.value[i] - st.ell[i] + ell_last
-            } else {
-                criterion(kind, mp, ell_last, st.quad[i])
-            };
-            let margin = 1e-9 * (1.0 + best.0.abs());
-            if bound > best.0 + margin {
+            let margin = MARGIN * (1.0 + best.0.abs());
+            // with the profiled scale, by the screen (a run it cannot show above, it is
+            // split); else the bound itself: the criterion is ℓ plus a function of Q, so it
+            // is E_i − ℓ_i + ℓ_{j−1} when E_i was formed (no logarithm of Q again; the same
+            // number to rounding, far inside the margin)
+            let above = Screen::above(st.quad[i], table.decay[j - 1], scales.margin)
+                .unwrap_or_else(|| {
+                    let bound = if st.value[i].is_finite() {
+                        st.value[i] - st.ell[i] + ell_last
+                    } else {
+                        criterion(kind, mp, ell_last, st.quad[i])
+                    };
+                    bound > best.0 + margin
+                });
+            if above {
                 continue;
             }
             let mid = (i + j) / 2;
-            visit(st, mid, &mut best);
+            visit(st, mid, &mut best, &mut scales);
             if mid > i + 1 {
                 st.stack.push((i, mid));
             }
@@ -314,7 +415,8 @@ impl Decomposition {
             }
         }
         // ties go to the first grid point, as in `select_for`: the unevaluated points are
-        // worse than `best` by more than the margin, so scanning the evaluated ones suffices
+        // worse than `best` by more than the margin, and the evaluated ones whose criterion
+        // was not formed by more than the window, so scanning the formed ones suffices
         let (fk, k) = best;
         let k = st
             .visited
@@ -844,6 +946,61 @@ mod tests {
                 interior += usize::from(!full.at_grid_end);
             }
             assert!(interior > 50, "{interior} interior choices");
+        }
+    }
+
+    #[test]
+    fn the_profiled_scale_screen_changes_no_choice_to_the_last_bit() {
+        // the same rows searched with every evaluated point's criterion formed and with
+        // the screen (which leaves out the logarithm of points shown to lose): the same
+        // grid point, value, λ and criterion, bit for bit, warm and cold, with σ estimated
+        // (the screen on) and stated (off: no logarithm to leave out)
+        let opts = SelectOptions {
+            keep_curve: false,
+            ..SelectOptions::default()
+        };
+        for stated in [false, true] {
+            let (dec, rows) = problem_and_rows(16, 12, stated, 60);
+            let mut proj = dec.empty_projection();
+            let mut screened = EvidenceSearch::default();
+            let mut formed_all = EvidenceSearch {
+                without_screen: true,
+                ..EvidenceSearch::default()
+            };
+            let (mut evaluated, mut formed) = (0, 0);
+            for (r, d) in rows.iter().enumerate() {
+                dec.project_into(d, &mut proj).unwrap();
+                for fresh in [false, true] {
+                    if fresh {
+                        screened = EvidenceSearch::default();
+                    }
+                    let a = dec.evidence_grid(&proj, &opts, &mut screened);
+                    let b = dec.evidence_grid(&proj, &opts, &mut formed_all);
+                    assert_eq!(
+                        (a.value.to_bits(), a.k),
+                        (b.value.to_bits(), b.k),
+                        "σ stated {stated}, row {r}"
+                    );
+                    evaluated += screened.evaluated;
+                    formed += screened.formed;
+                    let sa = dec
+                        .evidence_refine(&proj, &opts, &screened, &a, f64::INFINITY)
+                        .unwrap()
+                        .unwrap();
+                    let sb = dec
+                        .evidence_refine(&proj, &opts, &formed_all, &b, f64::INFINITY)
+                        .unwrap()
+                        .unwrap();
+                    assert_eq!(sa.lambda.to_bits(), sb.lambda.to_bits(), "row {r}");
+                    assert_eq!(sa.criterion.to_bits(), sb.criterion.to_bits(), "row {r}");
+                }
+            }
+            if stated {
+                assert_eq!(formed, evaluated, "no screen with σ stated");
+            } else {
+                // most evaluated points are shown to lose without their logarithm
+                assert!(2 * formed < evaluated, "{formed} of {evaluated} formed");
+            }
         }
     }
 
