@@ -587,6 +587,12 @@ fn fine_kernels(series: &Series, fine: &[f64], modes: &[(Vec<f64>, usize)]) -> V
         .par_chunks(KERNEL_BLOCK)
         .map(|points| kernel_block(series, points, modes, width))
         .collect();
+    sensor_major(&blocks, count, n_fine)
+}
+
+/// Blocks of [`KERNEL_BLOCK`] points (each every sensor's sums at its points, sensor after
+/// sensor) laid out sensor after sensor over all `n_fine` points, for `count` sensors.
+fn sensor_major(blocks: &[Vec<f64>], count: usize, n_fine: usize) -> Vec<f64> {
     let mut kernels = vec![0.0; count * n_fine];
     for (block, sums) in blocks.iter().enumerate() {
         let b = sums.len() / count.max(1);
@@ -811,15 +817,7 @@ fn polar_kernels(fine: &[f64], radius: f64, n: usize, weights: &[Vec<f64>]) -> V
             sums
         })
         .collect();
-    let mut kernels = vec![0.0; m * fine.len()];
-    for (b, block) in blocks.iter().enumerate() {
-        let len = block.len() / m.max(1);
-        for (i, sums) in block.chunks_exact(len.max(1)).enumerate() {
-            let at = i * fine.len() + b * KERNEL_BLOCK;
-            kernels[at..at + len].copy_from_slice(sums);
-        }
-    }
-    kernels
+    sensor_major(&blocks, m, fine.len())
 }
 
 /// The quadrature grid of an edge's kernels: `per_cell` points per node cell (at least

@@ -9,7 +9,7 @@ use super::problem::Problem;
 use super::{
     DoubtfulSensor, EdgeResult, EstimateOptions, EstimateResult, Exceedance, FieldResult,
     FitSummary, Hottest, Interval, SAFETY_CAUTION, SensorResult, StrengthSummary, linear_sd,
-    profile_points, refined_max, resolution,
+    parabola_vertex, profile_points, refined_max, resolution,
 };
 use crate::case::{Case, Smoothing};
 use crate::error::Result;
@@ -496,15 +496,11 @@ impl<'a> PeakTracker<'a> {
         let pos = &self.edge_positions[edge].1;
         for b in 0..self.k.len() {
             let (k, y1) = (self.k[b], self.top[b]);
-            let (mut idx, mut v) = (k as f64, y1);
-            if k > 0 && k + 1 < n {
-                let (y0, y2) = (self.before[b], self.after[b]);
-                let den = y0 - 2.0 * y1 + y2;
-                if den < 0.0 {
-                    let off = (0.5 * (y0 - y2) / den).clamp(-0.5, 0.5);
-                    (idx, v) = (k as f64 + off, y1 - 0.25 * (y0 - y2) * off);
-                }
-            }
+            let inside = k > 0 && k + 1 < n;
+            let (idx, v) = inside
+                .then(|| parabola_vertex(k, (self.before[b], y1, self.after[b])))
+                .flatten()
+                .unwrap_or((k as f64, y1));
             if v > self.best[b].2 {
                 let step = pos[1] - pos[0];
                 self.best[b] = (edge, pos[0] + idx * step, v);
@@ -530,8 +526,9 @@ struct ReplicatePeaks {
 }
 
 impl ReplicatePeaks {
-    /// The reference [`PeakTracker`] is held to in the tests: from the profiles' errors `errors` (B × n, column `j` holding every replicate's error
-    /// at point `j`): replicate `b`'s profile is `est − errors[b, :]`. The errors are read
+    /// The reference [`PeakTracker`] is held to in the tests: from the profiles' errors
+    /// `errors` (B × n, column `j` holding every replicate's error at point `j`): replicate
+    /// `b`'s profile is `est − errors[b, :]`. The errors are read
     /// block by block of replicates, each block's profiles gathered contiguous, rather than
     /// transposed whole.
     #[cfg(test)]

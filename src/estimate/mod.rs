@@ -356,12 +356,20 @@ pub(crate) fn refined_max(values: impl Fn(usize) -> f64, lo: usize, hi: usize) -
         }
     }
     if k > lo && k + 1 < hi {
-        let (y0, y1, y2) = (values(k - 1), values(k), values(k + 1));
-        let den = y0 - 2.0 * y1 + y2;
-        if den < 0.0 {
-            let off = (0.5 * (y0 - y2) / den).clamp(-0.5, 0.5);
-            return (k as f64 + off, y1 - 0.25 * (y0 - y2) * off);
+        if let Some(vertex) = parabola_vertex(k, (values(k - 1), values(k), values(k + 1))) {
+            return vertex;
         }
     }
     (k as f64, values(k))
+}
+
+/// The vertex `(index as a fraction, value)` of the parabola through sampled values `y0`,
+/// `y1`, `y2` at `k − 1`, `k`, `k + 1`, kept within half a step of `k`; `None` when the
+/// parabola does not open downward ([`refined_max`]'s refinement).
+pub(crate) fn parabola_vertex(k: usize, (y0, y1, y2): (f64, f64, f64)) -> Option<(f64, f64)> {
+    let den = y0 - 2.0 * y1 + y2;
+    (den < 0.0).then(|| {
+        let off = (0.5 * (y0 - y2) / den).clamp(-0.5, 0.5);
+        (k as f64 + off, y1 - 0.25 * (y0 - y2) * off)
+    })
 }

@@ -826,6 +826,14 @@ mod tests {
     use crate::inverse::Problem;
     use nalgebra::DVector;
 
+    /// The search's options: no curve kept (a curve asks for the full search).
+    fn without_curve() -> SelectOptions {
+        SelectOptions {
+            keep_curve: false,
+            ..SelectOptions::default()
+        }
+    }
+
     /// The strength module's invented ill-posed problem and `n` invented data vectors drifting from
     /// row to row, as a logger's rows do.
     fn problem_and_rows(
@@ -857,10 +865,7 @@ mod tests {
         // For cutoffs below and above each row's refined criterion: `evidence_refine` may
         // leave the refinement out only when the criterion is above the cutoff, and when it
         // refines, it gives `select_evidence`'s choice to the last bit.
-        let opts = SelectOptions {
-            keep_curve: false,
-            ..SelectOptions::default()
-        };
+        let opts = without_curve();
         for stated in [true, false] {
             let (dec, rows) = problem_and_rows(16, 12, stated, 60);
             let mut st = EvidenceSearch::default();
@@ -899,10 +904,7 @@ mod tests {
 
     #[test]
     fn same_choice_as_the_full_search_warm_or_cold() {
-        let opts = SelectOptions {
-            keep_curve: false,
-            ..SelectOptions::default()
-        };
+        let opts = without_curve();
         for stated in [true, false] {
             let (dec, rows) = problem_and_rows(16, 12, stated, 60);
             let mut warm = EvidenceSearch::default();
@@ -955,10 +957,7 @@ mod tests {
         // the screen (which leaves out the logarithm of points shown to lose): the same
         // grid point, value, λ and criterion, bit for bit, warm and cold, with σ estimated
         // (the screen on) and stated (off: no logarithm to leave out)
-        let opts = SelectOptions {
-            keep_curve: false,
-            ..SelectOptions::default()
-        };
+        let opts = without_curve();
         for stated in [false, true] {
             let (dec, rows) = problem_and_rows(16, 12, stated, 60);
             let mut proj = dec.empty_projection();
@@ -1049,10 +1048,7 @@ mod tests {
         // untabled one found)
         for stated in [true, false] {
             let (dec, rows) = problem_and_rows(16, 12, stated, 3);
-            let opts = SelectOptions {
-                keep_curve: false,
-                ..SelectOptions::default()
-            };
+            let opts = without_curve();
             let mut st = EvidenceSearch::default();
             let proj = dec.projection(&rows[1]).unwrap();
             dec.select_evidence(&proj, &opts, &mut st).unwrap();

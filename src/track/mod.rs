@@ -206,7 +206,8 @@ type HelperDone = std::thread::Result<()>;
 /// scheduler lets a new thread wait), most of the time the calling thread spends finishing
 /// the batch before; a thread woken from sleep starts within tens of microseconds.
 struct HelperThread {
-    jobs: std::sync::mpsc::Sender<std::sync::Arc<BatchJob>>,
+    /// The jobs' channel (taken and closed on drop, which ends the thread's loop).
+    jobs: Option<std::sync::mpsc::Sender<std::sync::Arc<BatchJob>>>,
     done: std::sync::mpsc::Receiver<HelperDone>,
     handle: Option<std::thread::JoinHandle<()>>,
 }
@@ -232,7 +233,7 @@ impl HelperThread {
             })
             .ok()?;
         Some(HelperThread {
-            jobs,
+            jobs: Some(jobs),
             done,
             handle: Some(handle),
         })
@@ -241,9 +242,7 @@ impl HelperThread {
 
 impl Drop for HelperThread {
     fn drop(&mut self) {
-        // closing the job channel ends the thread's loop
-        let (closed, _) = std::sync::mpsc::channel();
-        drop(std::mem::replace(&mut self.jobs, closed));
+        drop(self.jobs.take());
         if let Some(handle) = self.handle.take() {
             let _ = handle.join();
         }
@@ -500,7 +499,10 @@ impl Tracker {
             limit: self.options.limit,
             strength,
         });
-        let sent = helper.jobs.send(std::sync::Arc::clone(&job)).is_ok();
+        let sent = helper
+            .jobs
+            .as_ref()
+            .is_some_and(|jobs| jobs.send(std::sync::Arc::clone(&job)).is_ok());
         let pending = self.ahead.take();
         let done = match pending {
             Some(a) => self.commit_ahead(a, sink),

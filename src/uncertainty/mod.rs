@@ -353,8 +353,8 @@ impl BootstrapOutput {
         confidence: f64,
     ) -> (Vec<f64>, Vec<f64>) {
         let n = q.nrows();
-        let blocks: Vec<(usize, usize)> = band_blocks(n).collect();
-        let blocks: Vec<(Vec<f64>, Vec<f64>)> = blocks
+        let blocks: Vec<(Vec<f64>, Vec<f64>)> = band_blocks(n)
+            .collect::<Vec<_>>()
             .into_par_iter()
             .map(|(start, len)| {
                 let mut errors = DMatrix::zeros(0, 0);
