@@ -356,11 +356,14 @@ impl BootstrapOutput {
         let blocks: Vec<(Vec<f64>, Vec<f64>)> = band_blocks(n)
             .collect::<Vec<_>>()
             .into_par_iter()
-            .map(|(start, len)| {
-                let mut errors = DMatrix::zeros(0, 0);
-                self.errors_of_rows_into(q, (start, len), &mut errors);
-                pointwise_band(&estimate[start..start + len], &errors, confidence)
-            })
+            // one errors buffer per worker, written over block after block
+            .map_init(
+                || DMatrix::zeros(0, 0),
+                |errors, (start, len)| {
+                    self.errors_of_rows_into(q, (start, len), errors);
+                    pointwise_band(&estimate[start..start + len], errors, confidence)
+                },
+            )
             .collect();
         let mut lower = Vec::with_capacity(n);
         let mut upper = Vec::with_capacity(n);
