@@ -309,14 +309,23 @@ pub const AUTO_ORDERS: [usize; 2] = [2, 1];
 /// out: its white-noise prior gave bands several times wider than the others without better
 /// coverage in the calibration study.
 pub fn choose_order(input: &FitInput, model: &ForwardModel) -> Result<usize> {
+    use rayon::prelude::*;
+    // each order's fit on a thread of its own, compared in the order of AUTO_ORDERS
+    let criteria: Vec<Option<f64>> = AUTO_ORDERS
+        .par_iter()
+        .map(|&order| {
+            let trial = FitInput {
+                penalty: penalty::penalty_weights(model, order),
+                ..input.clone()
+            };
+            fit::fit(&trial, Strength::Rule(StrengthMethod::Evidence))
+                .ok()
+                .map(|f| f.selection.criterion)
+        })
+        .collect();
     let mut best: Option<(f64, usize)> = None;
-    for order in AUTO_ORDERS {
-        let trial = FitInput {
-            penalty: penalty::penalty_weights(model, order),
-            ..input.clone()
-        };
-        if let Ok(f) = fit::fit(&trial, Strength::Rule(StrengthMethod::Evidence)) {
-            let e = f.selection.criterion;
+    for (&order, e) in AUTO_ORDERS.iter().zip(criteria) {
+        if let Some(e) = e {
             if e.is_finite() && best.is_none_or(|(b, _)| e < b) {
                 best = Some((e, order));
             }

@@ -65,13 +65,20 @@ impl<'a> Problem<'a> {
         options: &EstimateOptions,
         model: ForwardModel,
     ) -> Result<Self> {
-        let mut problem = Problem::without_edge_maps(case, readings, options, model)?;
-        problem.edge_positions = profile_positions(case);
-        problem.edge_maps = problem
-            .edge_positions
-            .iter()
-            .map(|(e, pos)| problem.model.edge_profile_map(*e, pos))
-            .collect();
+        let edge_positions = profile_positions(case);
+        // the profile maps depend on the model alone: made while the order is chosen
+        let (problem, edge_maps) = rayon::join(
+            || Problem::without_edge_maps(case, readings, options, model.clone()),
+            || {
+                edge_positions
+                    .iter()
+                    .map(|(e, pos)| model.edge_profile_map(*e, pos))
+                    .collect()
+            },
+        );
+        let mut problem = problem?;
+        problem.edge_positions = edge_positions;
+        problem.edge_maps = edge_maps;
         Ok(problem)
     }
 
