@@ -451,9 +451,163 @@ unsafe fn gather_tails_avx2(
     )
 }
 
+/// [`gather_tails`] of single-precision values, without an estimate: `src_i` goes to `low`
+/// when `src_i ≤ below` and to `high` when `src_i ≥ above`, each in the order of `i`.
+/// Returns how many each received and whether some value is NaN (never gathered). `low` and
+/// `high` must hold `src.len() + 8` values: the AVX2 build stores eight at a time past the
+/// count.
+///
+/// # Panics
+/// When `low` or `high` is too short.
+pub fn gather_tails_single(
+    src: &[f32],
+    (below, above): (f32, f32),
+    low: &mut [f32],
+    high: &mut [f32],
+) -> (usize, usize, bool) {
+    assert!(
+        low.len() >= src.len() + 8 && high.len() >= src.len() + 8,
+        "gather_tails_single: buffers too short"
+    );
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the processor has AVX2; the lengths were checked above.
+            return unsafe { gather_tails_single_avx2(src, (below, above), low, high) };
+        }
+    }
+    gather_tails_single_plain(src, (below, above), low, high, (0, 0, false))
+}
+
+/// The plain loop of [`gather_tails_single`], from `src`'s first value on, with the counts
+/// and the NaN flag so far (branch-free, as [`gather_tails_plain`]).
+fn gather_tails_single_plain(
+    src: &[f32],
+    (below, above): (f32, f32),
+    low: &mut [f32],
+    high: &mut [f32],
+    (mut n_low, mut n_high, mut nan): (usize, usize, bool),
+) -> (usize, usize, bool) {
+    for &v in src {
+        low[n_low] = v;
+        n_low += usize::from(v <= below);
+        high[n_high] = v;
+        n_high += usize::from(v >= above);
+        nan |= v.is_nan();
+    }
+    (n_low, n_high, nan)
+}
+
+/// For each 8-bit mask, the 32-bit lane indices that move the masked lanes of a vector to
+/// its front, in order (the rest of the vector is don't-care): 8 KB, in the first-level
+/// cache while a band is gathered.
+#[cfg(target_arch = "x86_64")]
+static LEFT_PACK_SINGLE: [[u32; 8]; 256] = {
+    let mut table = [[0u32; 8]; 256];
+    let mut mask = 0;
+    while mask < 256 {
+        let mut at = 0;
+        let mut lane = 0;
+        while lane < 8 {
+            if mask & (1 << lane) != 0 {
+                table[mask][at] = lane as u32;
+                at += 1;
+            }
+            lane += 1;
+        }
+        mask += 1;
+    }
+    table
+};
+
+/// [`gather_tails_single`] with AVX2: eight values compared at once, the ones beyond a cut
+/// moved to the front of the vector (a lane permutation looked up from the comparison's
+/// mask) and the whole vector stored at the count, which then moves by the number gathered.
+/// The same comparisons as the plain loop, the same values in the same order.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn gather_tails_single_avx2(
+    src: &[f32],
+    (below, above): (f32, f32),
+    low: &mut [f32],
+    high: &mut [f32],
+) -> (usize, usize, bool) {
+    use std::arch::x86_64::{
+        _CMP_GE_OQ, _CMP_LE_OQ, _CMP_UNORD_Q, _mm256_cmp_ps, _mm256_loadu_ps, _mm256_loadu_si256,
+        _mm256_movemask_ps, _mm256_permutevar8x32_ps, _mm256_set1_ps, _mm256_storeu_ps,
+    };
+    let whole = src.len() - src.len() % 8;
+    let (mut n_low, mut n_high) = (0usize, 0usize);
+    let mut nan_mask = 0;
+    let (lo_cut, hi_cut) = (_mm256_set1_ps(below), _mm256_set1_ps(above));
+    for c in (0..whole).step_by(8) {
+        // SAFETY: `c + 8 ≤ whole ≤ src.len()`; the stores write eight values from a count at
+        // most `c`, inside `low` and `high` (at least `src.len() + 8` long, checked by the
+        // caller); the table index is an 8-bit mask.
+        unsafe {
+            let v = _mm256_loadu_ps(src.as_ptr().add(c));
+            nan_mask |= _mm256_movemask_ps(_mm256_cmp_ps::<_CMP_UNORD_Q>(v, v));
+            let m_low = _mm256_movemask_ps(_mm256_cmp_ps::<_CMP_LE_OQ>(v, lo_cut)) as usize;
+            let m_high = _mm256_movemask_ps(_mm256_cmp_ps::<_CMP_GE_OQ>(v, hi_cut)) as usize;
+            let pack = |m: usize| {
+                let idx = _mm256_loadu_si256(LEFT_PACK_SINGLE[m].as_ptr().cast());
+                _mm256_permutevar8x32_ps(v, idx)
+            };
+            _mm256_storeu_ps(low.as_mut_ptr().add(n_low), pack(m_low));
+            n_low += m_low.count_ones() as usize;
+            _mm256_storeu_ps(high.as_mut_ptr().add(n_high), pack(m_high));
+            n_high += m_high.count_ones() as usize;
+        }
+    }
+    gather_tails_single_plain(
+        &src[whole..],
+        (below, above),
+        low,
+        high,
+        (n_low, n_high, nan_mask != 0),
+    )
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn gathered_single_tails_are_the_plain_loops() {
+        // as `gathered_tails_are_the_plain_loops`, for single-precision values and lengths
+        // around the runs of eight
+        let mut rng = ChaCha8Rng::seed_from_u64(8);
+        let mut gathered = 0;
+        for len in [0, 1, 7, 8, 9, 15, 16, 63, 64, 257, 2000] {
+            for trial in 0..4 {
+                let src: Vec<f32> = (0..len)
+                    .map(|_| match rng.random_range(0..20) {
+                        0 if trial == 3 => f32::NAN,
+                        1 => 0.0,
+                        2 => -0.0,
+                        3 => -1.0,
+                        4 => 1.0,
+                        _ => rng.random_range(-3.0..3.0),
+                    })
+                    .collect();
+                let cuts = (-1.0, 1.0);
+                let mut want = (vec![0.0; len + 8], vec![0.0; len + 8]);
+                let w =
+                    gather_tails_single_plain(&src, cuts, &mut want.0, &mut want.1, (0, 0, false));
+                let mut got = (vec![0.0; len + 8], vec![0.0; len + 8]);
+                let g = gather_tails_single(&src, cuts, &mut got.0, &mut got.1);
+                assert_eq!(g, w, "len {len} trial {trial}");
+                let bits = |v: &[f32]| v.iter().map(|x| x.to_bits()).collect::<Vec<_>>();
+                assert_eq!(bits(&got.0[..g.0]), bits(&want.0[..w.0]), "low, len {len}");
+                assert_eq!(bits(&got.1[..g.1]), bits(&want.1[..w.1]), "high, len {len}");
+                gathered += g.0.min(g.1);
+            }
+        }
+        assert!(
+            gathered > 1000,
+            "the cuts gathered almost nothing: {gathered}"
+        );
+    }
     use rand::{RngExt, SeedableRng};
     use rand_chacha::ChaCha8Rng;
 

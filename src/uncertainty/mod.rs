@@ -370,8 +370,9 @@ impl BootstrapOutput {
 
     /// [`Self::pointwise_band_of`] with the errors `Q ε_b` formed in single precision: `Q`
     /// and `ε_b` rounded to `f32` and multiplied in `f32` (`sgemm`, twice the values per
-    /// instruction of `dgemm`, half the bytes), each error widened back to `f64` before the
-    /// band is taken as in [`pointwise_band`].
+    /// instruction of `dgemm`, half the bytes); each point's tails are gathered from them
+    /// and widened to `f64` ([`TailQuantiles::pair_of_single_differences`]), the same band
+    /// as [`pointwise_band`] of every error widened.
     ///
     /// **Accuracy.** Each error is then within `γ_{p+2} Σ_k |q_jk ε_bk|` of the exact one
     /// (`p` the coefficients, `γ_n = n u / (1 − n u)`, `u = 2⁻²⁴`: two roundings of the
@@ -432,17 +433,16 @@ impl BootstrapOutput {
                     let mut lower = Vec::with_capacity(len);
                     let mut upper = Vec::with_capacity(len);
                     for (j, &e) in estimate[start..start + len].iter().enumerate() {
-                        column.clear();
                         // column-major: column `j` is entries `j b .. (j + 1) b`
                         let single = &errors.as_slice()[j * b..(j + 1) * b];
-                        column.extend(single.iter().map(|&v| f64::from(v)));
-                        let (lo, hi) = tails.pair_of_differences(
-                            e,
-                            column,
-                            scratch,
-                            alpha / 2.0,
-                            1.0 - alpha / 2.0,
-                        );
+                        let (q_lo, q_hi) = (alpha / 2.0, 1.0 - alpha / 2.0);
+                        let (lo, hi) = tails
+                            .pair_of_single_differences(e, single, q_lo, q_hi)
+                            .unwrap_or_else(|| {
+                                column.clear();
+                                column.extend(single.iter().map(|&v| f64::from(v)));
+                                tails.pair_of_differences(e, column, scratch, q_lo, q_hi)
+                            });
                         lower.push(lo);
                         upper.push(hi);
                     }
@@ -513,6 +513,9 @@ pub fn quantile_pair(values: &mut [f64], q_lo: f64, q_hi: f64) -> (f64, f64) {
 pub struct TailQuantiles {
     low: Vec<f64>,
     high: Vec<f64>,
+    /// The single-precision errors gathered by [`TailQuantiles::pair_of_single_differences`].
+    low_single: Vec<f32>,
+    high_single: Vec<f32>,
 }
 
 /// How far beyond the mean, in standard deviations, [`TailQuantiles::pair`] cuts each tail
@@ -575,6 +578,67 @@ impl TailQuantiles {
         let sample = &errors[..errors.len().min(CUT_SAMPLE)];
         let moments = lane_moments_of(sample, |err| estimate - err);
         self.select_in_tails(errors, Some(estimate), &at, moments)
+    }
+
+    /// [`TailQuantiles::pair_of_differences`] of single-precision errors, each widened to
+    /// `f64` (exactly), with the tails gathered before widening, eight errors to an
+    /// instruction: a value `estimate − e` falls as `e` rises (rounding keeps the order,
+    /// ties aside), so the values' low tail is the errors' high one, and the errors beyond
+    /// cuts at their own mean ± [`TAIL_CUT_SD`] standard deviations (of the first
+    /// [`CUT_SAMPLE`]) give exactly the values the double-precision gathering selects from:
+    /// the same numbers. `None` when a tail gathered too few (or an error is NaN): the
+    /// caller widens the errors and takes [`TailQuantiles::pair_of_differences`].
+    pub fn pair_of_single_differences(
+        &mut self,
+        estimate: f64,
+        errors: &[f32],
+        q_lo: f64,
+        q_hi: f64,
+    ) -> Option<(f64, f64)> {
+        let at = TailPositions::new(errors.len(), q_lo, q_hi)?;
+        let n = at.n;
+        let sample = &errors[..n.min(CUT_SAMPLE)];
+        let (sum, sum_sq) = sample.iter().fold((0.0_f64, 0.0_f64), |(s, q), &e| {
+            let e = f64::from(e);
+            (s + e, q + e * e)
+        });
+        let (mean, mean_sq) = (sum / sample.len() as f64, sum_sq / sample.len() as f64);
+        let cut = TAIL_CUT_SD * (mean_sq - mean * mean).max(0.0).sqrt();
+        // where the cuts fall decides only how many errors are gathered
+        let (below, above) = ((mean - cut) as f32, (mean + cut) as f32);
+        self.low_single.resize(n + 8, 0.0);
+        self.high_single.resize(n + 8, 0.0);
+        let (n_err_low, n_err_high, nan) = crate::simd::gather_tails_single(
+            &errors[..n],
+            (below, above),
+            &mut self.low_single,
+            &mut self.high_single,
+        );
+        // the values' low tail holds `n_err_high` values, their high tail `n_err_low`
+        if nan || n_err_high <= at.hi1 || n_err_low < n - at.lo2 {
+            return None;
+        }
+        self.low.clear();
+        self.low.extend(
+            self.high_single[..n_err_high]
+                .iter()
+                .map(|&e| estimate - f64::from(e)),
+        );
+        self.high.clear();
+        self.high.extend(
+            self.low_single[..n_err_low]
+                .iter()
+                .map(|&e| estimate - f64::from(e)),
+        );
+        let first = interpolated(&mut self.low, at.lo1, at.hi1, at.h1 - at.lo1 as f64);
+        let skipped = n - n_err_low; // ranks below the high tail
+        let second = interpolated(
+            &mut self.high,
+            at.lo2 - skipped,
+            at.hi2 - skipped,
+            at.h2 - at.lo2 as f64,
+        );
+        Some((first, second))
     }
 
     /// [`TailQuantiles::pair`] from the gathered tails; `None` (and `values` untouched) when
@@ -915,6 +979,52 @@ mod tests {
         assert!(
             largest_share > 1e-3,
             "largest change {largest_share:e} of the bound"
+        );
+    }
+
+    #[test]
+    fn single_precision_tails_give_the_widened_errors_quantiles_bit_for_bit() {
+        // invented single-precision errors: normal-like, skewed (one tail too thin for the
+        // cuts, so the gathering gives up), with ties, tiny and large; every answer must be
+        // the double-precision path's on the widened errors
+        let mut next = crate::testing::uniform(0x0bad_cafe_f00d_1234);
+        let (mut gathered, mut declined) = (0, 0);
+        for n in [64, 100, 257, 2000] {
+            for kind in 0..5 {
+                let errors: Vec<f32> = (0..n)
+                    .map(|i| {
+                        let u = next();
+                        let v = match kind {
+                            0 => (u + next() + next()) * 2.0,
+                            1 => (u + 0.5).powi(8) * 40.0,
+                            2 => (u * 8.0).round() / 8.0,
+                            3 => u * 1e-30,
+                            _ => u * 3e4 + (i % 7) as f64,
+                        };
+                        v as f32
+                    })
+                    .collect();
+                let widened: Vec<f64> = errors.iter().map(|&e| f64::from(e)).collect();
+                for (estimate, q) in [(21.5, 0.025), (-3.0, 0.05), (0.0, 0.1)] {
+                    let mut tails = TailQuantiles::default();
+                    let want =
+                        tails.pair_of_differences(estimate, &widened, &mut Vec::new(), q, 1.0 - q);
+                    match tails.pair_of_single_differences(estimate, &errors, q, 1.0 - q) {
+                        Some(got) => {
+                            gathered += 1;
+                            assert_eq!(got.0.to_bits(), want.0.to_bits(), "n {n} kind {kind}");
+                            assert_eq!(got.1.to_bits(), want.1.to_bits(), "n {n} kind {kind}");
+                        }
+                        None => declined += 1,
+                    }
+                }
+            }
+        }
+        // both ways were taken (a tenth in each tail is more than the cuts gather from
+        // normal-like errors, so those decline too)
+        assert!(
+            gathered >= 15 && declined >= 15,
+            "gathered {gathered}, declined {declined}"
         );
     }
 
