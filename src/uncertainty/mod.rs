@@ -371,7 +371,7 @@ impl BootstrapOutput {
     /// [`Self::pointwise_band_of`] with the errors `Q ε_b` formed in single precision: `Q`
     /// and `ε_b` rounded to `f32` and multiplied in `f32` (`sgemm`, twice the values per
     /// instruction of `dgemm`, half the bytes); each point's tails are gathered from them
-    /// and widened to `f64` ([`TailQuantiles::pair_of_single_differences`]), the same band
+    /// and widened to `f64` (`TailQuantiles::pair_of_single_differences`), the same band
     /// as [`pointwise_band`] of every error widened.
     ///
     /// **Accuracy.** Each error is then within `γ_{p+2} Σ_k |q_jk ε_bk|` of the exact one
@@ -513,7 +513,7 @@ pub fn quantile_pair(values: &mut [f64], q_lo: f64, q_hi: f64) -> (f64, f64) {
 pub struct TailQuantiles {
     low: Vec<f64>,
     high: Vec<f64>,
-    /// The single-precision errors gathered by [`TailQuantiles::pair_of_single_differences`].
+    /// The single-precision errors gathered by `TailQuantiles::pair_of_single_differences`.
     low_single: Vec<f32>,
     high_single: Vec<f32>,
 }
@@ -588,7 +588,7 @@ impl TailQuantiles {
     /// [`CUT_SAMPLE`]) give exactly the values the double-precision gathering selects from:
     /// the same numbers. `None` when a tail gathered too few (or an error is NaN): the
     /// caller widens the errors and takes [`TailQuantiles::pair_of_differences`].
-    pub fn pair_of_single_differences(
+    pub(crate) fn pair_of_single_differences(
         &mut self,
         estimate: f64,
         errors: &[f32],
