@@ -1602,15 +1602,17 @@ impl RowEstimator {
         // then the exponentials, then the probabilities) so that the sensors' chains overlap
         // instead of waiting on one `exp` call at a time; the same operations on each value.
         let (xs, sds) = (&mut self.loo_x, &mut self.loo_sd);
-        xs.clear();
-        sds.clear();
-        for k in 0..m {
-            let h = leverage[k].min(1.0 - 1e-12);
-            let r = self.d[k] - fitted_d[k];
-            let sd_loo = pat.sigma[k] * s / (1.0 - h).sqrt();
-            xs.push(r / (1.0 - h) / sd_loo);
-            sds.push(sd_loo);
-        }
+        xs.resize(m, 0.0);
+        sds.resize(m, 0.0);
+        loo_terms(
+            &leverage[..m],
+            &pat.sigma.as_slice()[..m],
+            s,
+            &self.d.as_slice()[..m],
+            &fitted_d.as_slice()[..m],
+            &mut xs[..m],
+            &mut sds[..m],
+        );
         let gauss = &mut self.loo_good;
         gauss.clear();
         gauss.extend(xs.iter().map(|&x| (-0.5 * x * x).exp()));
@@ -1982,6 +1984,42 @@ impl Draws {
             bottom,
             sd,
         }
+    }
+}
+
+crate::simd::avx2_dispatch! {
+    /// Each used sensor's leave-one-out standardised residual and its sd
+    /// ([`RowEstimator::diagnostics`]): with `h` the leverage (below 1), `sd = σ s / √(1 − h)`
+    /// and `x = (d − fitted) / (1 − h) / sd`; four sensors to an instruction in the AVX2 build.
+    fn loo_terms(
+        leverage: &[f64],
+        sigma: &[f64],
+        s: f64,
+        d: &[f64],
+        fitted: &[f64],
+        xs: &mut [f64],
+        sds: &mut [f64],
+    ) = loo_terms_body;
+}
+
+/// The body of [`loo_terms`].
+#[inline(always)]
+fn loo_terms_body(
+    leverage: &[f64],
+    sigma: &[f64],
+    s: f64,
+    d: &[f64],
+    fitted: &[f64],
+    xs: &mut [f64],
+    sds: &mut [f64],
+) {
+    let terms = leverage.iter().zip(sigma).zip(d.iter().zip(fitted));
+    for (((&h, &sigma), (&d, &f)), (x, sd)) in terms.zip(xs.iter_mut().zip(sds.iter_mut())) {
+        let h = h.min(1.0 - 1e-12);
+        let r = d - f;
+        let sd_loo = sigma * s / (1.0 - h).sqrt();
+        *x = r / (1.0 - h) / sd_loo;
+        *sd = sd_loo;
     }
 }
 
