@@ -221,6 +221,9 @@ struct Draws {
     bottom: Vec<f64>,
     /// The posterior sd on the scan grid the draws were made with (unit σ scale).
     sd: Vec<f64>,
+    /// At a fixed λ, the ratios of the rows' scan sds to `sd` for the λ and σ scale (their
+    /// bits) they were last formed for: the same for every row with those.
+    fixed_ratios: Option<([u64; 2], Vec<f64>)>,
 }
 
 /// The λ-independent parts of the posterior variance of every fine profile point
@@ -1523,14 +1526,29 @@ impl RowEstimator {
                 seed,
             )?);
         }
-        let dr = pat.draws.as_ref().ok_or_else(internal)?;
-        ratios(
-            &self.scan_sd[..n_scan],
-            &dr.sd[..n_scan],
-            s,
-            &mut self.ratio[..n_scan],
-        );
-        Ok(exceed(&self.scan_est, &self.ratio, dr, t, &mut self.bits))
+        let fixed_lambda = cached(pat, step.mode).map(|fx| fx.lambda);
+        let dr = pat.draws.as_mut().ok_or_else(internal)?;
+        let Some(lambda) = fixed_lambda else {
+            ratios(
+                &self.scan_sd[..n_scan],
+                &dr.sd[..n_scan],
+                s,
+                &mut self.ratio[..n_scan],
+            );
+            return Ok(exceed(&self.scan_est, &self.ratio, dr, t, &mut self.bits));
+        };
+        // at a fixed λ a row's scan sds are the pattern's times s: the ratios are formed once
+        // per pattern, λ and scale, the same numbers as every row forming them
+        let key = [lambda.to_bits(), s.to_bits()];
+        let mut memo = dr.fixed_ratios.take().unwrap_or_default();
+        if memo.0 != key || memo.1.len() != n_scan {
+            memo.0 = key;
+            memo.1.resize(n_scan, 0.0);
+            ratios(&self.scan_sd[..n_scan], &dr.sd[..n_scan], s, &mut memo.1);
+        }
+        let p = exceed(&self.scan_est, &memo.1, dr, t, &mut self.bits);
+        dr.fixed_ratios = Some(memo);
+        Ok(p)
     }
 
     /// Step 8: every sensor's standardised residual and fault probability: a used sensor's
@@ -1983,6 +2001,7 @@ impl Draws {
             top,
             bottom,
             sd,
+            fixed_ratios: None,
         }
     }
 }
