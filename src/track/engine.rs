@@ -221,9 +221,10 @@ struct Draws {
     bottom: Vec<f64>,
     /// The posterior sd on the scan grid the draws were made with (unit σ scale).
     sd: Vec<f64>,
-    /// At a fixed λ, the ratios of the rows' scan sds to `sd` for the λ and σ scale (their
-    /// bits) they were last formed for: the same for every row with those.
-    fixed_ratios: Option<([u64; 2], Vec<f64>)>,
+    /// At the pattern's fixed λ (the draws are made again when it changes), the ratios of
+    /// the rows' scan sds to `sd` for the σ scale (its bits) they were last formed for: the
+    /// same for every row with that scale.
+    fixed_ratios: Option<(u64, Vec<f64>)>,
 }
 
 /// The λ-independent parts of the posterior variance of every fine profile point
@@ -1526,29 +1527,30 @@ impl RowEstimator {
                 seed,
             )?);
         }
-        let fixed_lambda = cached(pat, step.mode).map(|fx| fx.lambda);
+        // at the fixed λ a row's scan sds are the pattern's times s: the ratios are formed once
+        // per pattern and scale, the same numbers as every row forming them (the check path
+        // forms them on every row)
+        let fixed = cached(pat, step.mode).is_some() && !self.reference;
         let dr = pat.draws.as_mut().ok_or_else(internal)?;
-        let Some(lambda) = fixed_lambda else {
+        let ratio: &[f64] = if fixed {
+            let key = s.to_bits();
+            if dr.fixed_ratios.as_ref().is_none_or(|(k, _)| *k != key) {
+                let mut r = dr.fixed_ratios.take().map(|(_, r)| r).unwrap_or_default();
+                r.resize(n_scan, 0.0);
+                ratios(&self.scan_sd[..n_scan], &dr.sd[..n_scan], s, &mut r);
+                dr.fixed_ratios = Some((key, r));
+            }
+            dr.fixed_ratios.as_ref().map_or(&[], |(_, r)| r.as_slice())
+        } else {
             ratios(
                 &self.scan_sd[..n_scan],
                 &dr.sd[..n_scan],
                 s,
                 &mut self.ratio[..n_scan],
             );
-            return Ok(exceed(&self.scan_est, &self.ratio, dr, t, &mut self.bits));
+            &self.ratio
         };
-        // at a fixed λ a row's scan sds are the pattern's times s: the ratios are formed once
-        // per pattern, λ and scale, the same numbers as every row forming them
-        let key = [lambda.to_bits(), s.to_bits()];
-        let mut memo = dr.fixed_ratios.take().unwrap_or_default();
-        if memo.0 != key || memo.1.len() != n_scan {
-            memo.0 = key;
-            memo.1.resize(n_scan, 0.0);
-            ratios(&self.scan_sd[..n_scan], &dr.sd[..n_scan], s, &mut memo.1);
-        }
-        let p = exceed(&self.scan_est, &memo.1, dr, t, &mut self.bits);
-        dr.fixed_ratios = Some(memo);
-        Ok(p)
+        Ok(exceed(&self.scan_est, ratio, dr, t, &mut self.bits))
     }
 
     /// Step 8: every sensor's standardised residual and fault probability: a used sensor's

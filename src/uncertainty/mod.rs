@@ -394,22 +394,28 @@ impl BootstrapOutput {
         /// Largest error, entry of `Q` and row sum of their products kept in `f32`
         /// (whose largest value is about 3.4e38).
         const SINGLE_RANGE: f64 = 1e30;
+        // a value that is not finite counts as infinitely large (and fails the test below)
+        let size = |v: f64| {
+            if v.is_finite() {
+                v.abs()
+            } else {
+                f64::INFINITY
+            }
+        };
         let e_max = self
             .coefficient_errors
             .iter()
-            .fold(0.0_f64, |a, v| a.max(v.abs()));
-        // the rows' sums of magnitudes, column after column (`Q` is column-major)
+            .fold(0.0_f64, |a, &v| a.max(size(v)));
+        // the rows' sums of sizes, column after column (`Q` is column-major); a row's sum
+        // bounds each of its entries
         let mut row_sums = vec![0.0_f64; q.nrows()];
         for column in q.column_iter() {
-            for (sum, v) in row_sums.iter_mut().zip(column.iter()) {
-                *sum += v.abs();
+            for (sum, &v) in row_sums.iter_mut().zip(column.iter()) {
+                *sum += size(v);
             }
         }
         let q_row_sum = row_sums.iter().fold(0.0_f64, |a, &v| a.max(v));
-        let in_range = |v: f64| v.is_finite() && v < SINGLE_RANGE;
-        let all_finite = self.coefficient_errors.iter().all(|v| v.is_finite())
-            && q.iter().all(|v| v.is_finite());
-        if !(all_finite && in_range(e_max) && in_range(q_row_sum) && in_range(e_max * q_row_sum)) {
+        if !(e_max < SINGLE_RANGE && q_row_sum < SINGLE_RANGE && e_max * q_row_sum < SINGLE_RANGE) {
             return self.pointwise_band_of(q, estimate, confidence);
         }
         let errors_single = self.coefficient_errors.map(|v| v as f32);
@@ -417,6 +423,7 @@ impl BootstrapOutput {
         let q_single = q.transpose().map(|v| v as f32);
         let b = errors_single.nrows();
         let alpha = 1.0 - confidence;
+        let (q_lo, q_hi) = (alpha / 2.0, 1.0 - alpha / 2.0);
         let blocks: Vec<(Vec<f64>, Vec<f64>)> = band_blocks(q.nrows())
             .collect::<Vec<_>>()
             .into_par_iter()
@@ -435,7 +442,6 @@ impl BootstrapOutput {
                     for (j, &e) in estimate[start..start + len].iter().enumerate() {
                         // column-major: column `j` is entries `j b .. (j + 1) b`
                         let single = &errors.as_slice()[j * b..(j + 1) * b];
-                        let (q_lo, q_hi) = (alpha / 2.0, 1.0 - alpha / 2.0);
                         let (lo, hi) = tails
                             .pair_of_single_differences(e, single, q_lo, q_hi)
                             .unwrap_or_else(|| {
@@ -597,12 +603,7 @@ impl TailQuantiles {
     ) -> Option<(f64, f64)> {
         let at = TailPositions::new(errors.len(), q_lo, q_hi)?;
         let n = at.n;
-        let sample = &errors[..n.min(CUT_SAMPLE)];
-        let (sum, sum_sq) = sample.iter().fold((0.0_f64, 0.0_f64), |(s, q), &e| {
-            let e = f64::from(e);
-            (s + e, q + e * e)
-        });
-        let (mean, mean_sq) = (sum / sample.len() as f64, sum_sq / sample.len() as f64);
+        let (mean, mean_sq) = lane_moments_of(&errors[..n.min(CUT_SAMPLE)], f64::from);
         let cut = TAIL_CUT_SD * (mean_sq - mean * mean).max(0.0).sqrt();
         // where the cuts fall decides only how many errors are gathered
         let (below, above) = ((mean - cut) as f32, (mean + cut) as f32);
@@ -615,7 +616,7 @@ impl TailQuantiles {
             &mut self.high_single,
         );
         // the values' low tail holds `n_err_high` values, their high tail `n_err_low`
-        if nan || n_err_high <= at.hi1 || n_err_low < n - at.lo2 {
+        if nan || !at.enough(n_err_high, n_err_low) {
             return None;
         }
         self.low.clear();
@@ -630,15 +631,7 @@ impl TailQuantiles {
                 .iter()
                 .map(|&e| estimate - f64::from(e)),
         );
-        let first = interpolated(&mut self.low, at.lo1, at.hi1, at.h1 - at.lo1 as f64);
-        let skipped = n - n_err_low; // ranks below the high tail
-        let second = interpolated(
-            &mut self.high,
-            at.lo2 - skipped,
-            at.hi2 - skipped,
-            at.h2 - at.lo2 as f64,
-        );
-        Some((first, second))
+        Some(self.tails_pair(&at, n_err_high, n_err_low))
     }
 
     /// [`TailQuantiles::pair`] from the gathered tails; `None` (and `values` untouched) when
@@ -674,12 +667,18 @@ impl TailQuantiles {
             &mut self.low,
             &mut self.high,
         );
-        if nan || n_low <= at.hi1 || n_high < n - at.lo2 {
+        if nan || !at.enough(n_low, n_high) {
             return None;
         }
+        Some(self.tails_pair(at, n_low, n_high))
+    }
+
+    /// The two quantiles of `at` from the `n_low` smallest values (the first of `low`) and
+    /// the `n_high` largest (the first of `high`), gathered beyond the cuts.
+    fn tails_pair(&mut self, at: &TailPositions, n_low: usize, n_high: usize) -> (f64, f64) {
         let low = &mut self.low[..n_low];
         let first = interpolated(low, at.lo1, at.hi1, at.h1 - at.lo1 as f64);
-        let skipped = n - n_high; // ranks below the high tail
+        let skipped = at.n - n_high; // ranks below the high tail
         let high = &mut self.high[..n_high];
         let second = interpolated(
             high,
@@ -687,7 +686,7 @@ impl TailQuantiles {
             at.hi2 - skipped,
             at.h2 - at.lo2 as f64,
         );
-        Some((first, second))
+        (first, second)
     }
 }
 
@@ -703,6 +702,12 @@ struct TailPositions {
 }
 
 impl TailPositions {
+    /// Whether `n_low` smallest and `n_high` largest values hold both quantiles' order
+    /// statistics.
+    fn enough(&self, n_low: usize, n_high: usize) -> bool {
+        n_low > self.hi1 && n_high >= self.n - self.lo2
+    }
+
     /// The positions of the `q_lo`- and `q_hi`-quantiles of `n` values, when
     /// [`TailQuantiles`] may gather them: both in the outer eighths of at least 64 values
     /// (ranks `0..=hi1` must fall in the low tail, `lo2..n` in the high one).
@@ -731,7 +736,7 @@ impl TailPositions {
 /// [`TailQuantiles`]' cuts, which need not be exact, only cheap: sums in eight independent
 /// lanes (which the compiler vectorises).
 #[inline(always)]
-fn lane_moments_of(source: &[f64], f: impl Fn(f64) -> f64) -> (f64, f64) {
+fn lane_moments_of<T: Copy>(source: &[T], f: impl Fn(T) -> f64) -> (f64, f64) {
     let n = source.len() as f64;
     let (mut sum, mut sum_sq) = ([0.0_f64; 8], [0.0_f64; 8]);
     let chunks = source.chunks_exact(8);

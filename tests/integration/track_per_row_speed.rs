@@ -496,3 +496,50 @@ fn records(
     let summary = format!("{:?}", tracker.snapshot());
     ((out, summary), tracker.rows_fitted_ahead())
 }
+
+/// At a calibrated (fixed) strength the engine keeps each pattern's exceedance ratios (scan
+/// sd over the draws' sd) for the σ scale it formed them at, instead of forming them on every
+/// row; the check path forms them on every row. With σ estimated on every row (a σ̂ of its
+/// own, so the scale changes from row to row) and a limit inside the rows' bands, the two
+/// give every row the same exceedance probability, bit for bit; a kept ratio reused at
+/// another scale would move it.
+#[test]
+fn calibrated_exceedance_with_kept_ratios_matches_the_check_path() {
+    let mut case = busbar();
+    case.fit.smoothing = edgetherm::case::Smoothing::Curvature;
+    case.noise = edgetherm::noise::NoiseSpec::Unstated;
+    let (_dir, path) = log(&case, 320);
+    let rows = read_rows(&case, &path);
+    let exceedances = |reference: bool, limit: f64| {
+        let opts = TrackOptions {
+            calibrate: Some(40),
+            limit: Some(limit),
+            ..TrackOptions::default()
+        };
+        let mut tracker = Tracker::new(&case, opts).unwrap();
+        tracker.estimator_mut().use_reference_path(reference);
+        let mut out = Vec::new();
+        let mut sink = |rec: &edgetherm::track::RowRecord<'_>| {
+            out.push((rec.fit.temperature, rec.fit.exceedance));
+            Ok(())
+        };
+        for row in &rows {
+            tracker.push(row, &mut sink).unwrap();
+        }
+        tracker.finish(&mut sink).unwrap();
+        out
+    };
+    // the limit at the median hottest temperature: many rows neither surely below nor above
+    let mut hottest: Vec<f64> = exceedances(false, K + 500.0).iter().map(|r| r.0).collect();
+    hottest.sort_by(f64::total_cmp);
+    let limit = hottest[hottest.len() / 2];
+    let (kept, formed) = (exceedances(false, limit), exceedances(true, limit));
+    assert_eq!(kept.len(), formed.len());
+    let mut between = 0;
+    for (k, (a, b)) in kept.iter().zip(&formed).enumerate() {
+        let bits = |p: Option<f64>| p.map(f64::to_bits);
+        assert_eq!(bits(a.1), bits(b.1), "row {k}: {:?} vs {:?}", a.1, b.1);
+        between += usize::from(a.1.is_some_and(|p| p > 0.0 && p < 1.0));
+    }
+    assert!(between > 20, "only {between} rows between 0 and 1");
+}
